@@ -1,0 +1,110 @@
+#include "indexer/camera_model.h"
+
+#include <cmath>
+
+namespace sightfix {
+
+bool CameraModel::IsValid(std::string* error) const {
+  auto fail = [&](const char* what) {
+    if (error) *error = what;
+    return false;
+  };
+  if (width_px <= 0 || height_px <= 0) return fail("image_width/image_height must be positive");
+  if (!(fx > 0) || !(fy > 0) || !std::isfinite(fx) || !std::isfinite(fy))
+    return fail("camera_matrix focal lengths must be positive and finite");
+  if (!(cx >= 0 && cx < width_px && cy >= 0 && cy < height_px))
+    return fail("camera_matrix principal point lies outside the image");
+  for (double d : distortion)
+    if (!std::isfinite(d)) return fail("distortion_coefficients must be finite");
+  return true;
+}
+
+bool CameraModel::HasDistortion() const {
+  for (double d : distortion)
+    if (d != 0) return true;
+  return false;
+}
+
+cv::Point2d CameraModel::Distort(const cv::Point2d& p) const {
+  const auto& [k1, k2, p1, p2, k3] = distortion;
+  const double x = p.x, y = p.y, r2 = x * x + y * y;
+  const double radial = 1 + r2 * (k1 + r2 * (k2 + r2 * k3));
+  return {x * radial + 2 * p1 * x * y + p2 * (r2 + 2 * x * x),
+          y * radial + p1 * (r2 + 2 * y * y) + 2 * p2 * x * y};
+}
+
+cv::Point2d CameraModel::Undistort(const cv::Point2d& target) const {
+  if (!HasDistortion()) return target;
+  cv::Point2d p = target;
+  for (int iter = 0; iter < 50; ++iter) {
+    // Newton step with a numeric Jacobian: robust and exact enough for a 2x2 system.
+    const cv::Point2d f = Distort(p) - target;
+    if (std::abs(f.x) + std::abs(f.y) < 1e-14) break;
+    const double h = 1e-7;
+    const cv::Point2d dx = (Distort({p.x + h, p.y}) - Distort(p)) / h;
+    const cv::Point2d dy = (Distort({p.x, p.y + h}) - Distort(p)) / h;
+    const double det = dx.x * dy.y - dy.x * dx.y;
+    if (std::abs(det) < 1e-12) break;
+    p.x -= (f.x * dy.y - dy.x * f.y) / det;
+    p.y -= (dx.x * f.y - f.x * dx.y) / det;
+  }
+  return p;
+}
+
+cv::Point2d CameraModel::Project(const cv::Vec3d& pc) const {
+  const cv::Point2d d = Distort({pc[0] / pc[2], pc[1] / pc[2]});
+  return {fx * d.x + cx, fy * d.y + cy};
+}
+
+cv::Point2d CameraModel::PixelToNormalized(const cv::Point2d& pixel) const {
+  return Undistort({(pixel.x - cx) / fx, (pixel.y - cy) / fy});
+}
+
+Result<CameraModel> LoadCameraModel(const std::string& path) {
+  try {
+    cv::FileStorage fs(path, cv::FileStorage::READ);
+    if (!fs.isOpened()) return Status::NotFound("cannot open calibration file " + path);
+    cv::Mat k, d;
+    fs["camera_matrix"] >> k;
+    fs["distortion_coefficients"] >> d;
+    CameraModel cam;
+    fs["image_width"] >> cam.width_px;
+    fs["image_height"] >> cam.height_px;
+    if (k.rows != 3 || k.cols != 3)
+      return Status::InvalidArgument(path + ": camera_matrix must be 3x3");
+    k.convertTo(k, CV_64F);
+    cam.fx = k.at<double>(0, 0);
+    cam.fy = k.at<double>(1, 1);
+    cam.cx = k.at<double>(0, 2);
+    cam.cy = k.at<double>(1, 2);
+    if (!d.empty()) {
+      d.convertTo(d, CV_64F);
+      const int n = static_cast<int>(d.total());
+      if (n != 4 && n != 5 && n != 8)
+        return Status::InvalidArgument(path + ": distortion_coefficients must have 4, 5 or 8 values");
+      if (n == 8 && (d.at<double>(5) != 0 || d.at<double>(6) != 0 || d.at<double>(7) != 0))
+        return Status::InvalidArgument(path + ": the rational model (k4..k6) is not supported");
+      for (int i = 0; i < std::min(n, 5); ++i) cam.distortion[i] = d.at<double>(i);
+    }
+    std::string error;
+    if (!cam.IsValid(&error)) return Status::InvalidArgument(path + ": " + error);
+    return cam;
+  } catch (const cv::Exception& e) {
+    return Status::InvalidArgument(path + ": unreadable calibration: " + e.what());
+  }
+}
+
+Status SaveCameraModel(const CameraModel& cam, const std::string& path) {
+  try {
+    cv::FileStorage fs(path, cv::FileStorage::WRITE);
+    if (!fs.isOpened()) return Status::IoError("cannot write " + path);
+    fs << "image_width" << cam.width_px << "image_height" << cam.height_px;
+    fs << "camera_matrix" << cv::Mat(cam.K());
+    fs << "distortion_coefficients" << cv::Mat(1, 5, CV_64F, const_cast<double*>(cam.distortion.data()));
+    return Status::Ok();
+  } catch (const cv::Exception& e) {
+    return Status::IoError("cannot write " + path + ": " + e.what());
+  }
+}
+
+}  // namespace sightfix

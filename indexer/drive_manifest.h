@@ -1,0 +1,37 @@
+// drive.csv: the manifest of one drive (survey or query), one row per image.
+//
+// Header row, then columns in this order:
+//   image,timestamp,lat,lon,height,heading_deg,pitch_deg,roll_deg,camera,sigma_h_m
+// image: path relative to the manifest's folder; timestamp: ISO 8601 UTC; lat/lon: WGS84
+// degrees; height: ellipsoidal metres; attitude as in rotation.h; camera: a calibration file
+// (camera_model.h) beside the manifest; sigma_h_m: 1-sigma horizontal accuracy of the pose in
+// metres. For query drives the pose columns are ground truth, read only by the evaluator.
+#pragma once
+
+#include <string>
+#include <vector>
+
+#include "indexer/geo.h"
+#include "indexer/rotation.h"
+#include "indexer/status.h"
+
+namespace sightfix {
+
+extern const char kDriveManifestHeader[];
+
+struct DriveRow {
+  std::string image;
+  double timestamp_s = 0;  // Unix seconds, UTC
+  GeoPoint position;
+  Attitude attitude;
+  std::string camera;
+  double sigma_h_m = 0;
+};
+
+// Writes the header and every row (9 decimals for degrees, 4 for metres).
+Status WriteDriveManifest(const std::string& path, const std::vector<DriveRow>& rows);
+// Reads and checks every row (column count, numbers, ranges, time format). The first bad row
+// fails the whole read with "<path>:<line>: <what>".
+Result<std::vector<DriveRow>> ReadDriveManifest(const std::string& path);
+
+}  // namespace sightfix
