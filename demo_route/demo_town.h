@@ -1,0 +1,42 @@
+// Generates the demo town on disk: a survey drive and three query drives with truth, GNSS
+// streams with spoofed segments, town.json (every parameter, so a world can be regenerated
+// exactly) and a contact sheet. Same options (any jobs count) give the same bytes.
+#pragma once
+
+#include <cstdint>
+#include <string>
+#include <vector>
+
+#include "indexer/status.h"
+
+namespace sightfix::demo {
+
+struct DemoOptions {
+  std::string out_dir;
+  uint64_t seed = 1;
+  double route_length_m = 1000;  // survey route, one direction
+  int image_width = 640, image_height = 480;  // survey camera; query-overcast has its own
+  double survey_spacing_m = 2.0;
+  double query_spacing_m = 5.0;
+  int supersample = 2;
+  int jobs = 0;  // render threads; 0 = all cores
+
+  // Names the bad field in *error.
+  bool Validate(std::string* error) const;
+};
+
+struct DriveSummary {
+  std::string name;
+  int images = 0;
+};
+
+struct DemoSummary {
+  std::vector<DriveSummary> drives;
+  int buildings = 0, vehicles = 0, poles = 0, trees = 0;
+  double render_s = 0, total_s = 0;
+  std::string contact_sheet;
+};
+
+Result<DemoSummary> GenerateDemoTown(const DemoOptions& options);
+
+}  // namespace sightfix::demo
