@@ -58,7 +58,7 @@ std::vector<Condition> Conditions() {
   survey.look.sun_dir = SunDir(135, 40);
   Condition day = Named("query-day", 1);
   day.look.sun_dir = SunDir(160, 46);
-  day.noise_sigma = 2.0, day.blur_sigma = 0.7, day.jpeg_quality = 80, day.exposure = 1.04;
+  day.noise_sigma = 2.0, day.blur_sigma = 0.5, day.jpeg_quality = 85, day.exposure = 1.04;
   day.start_offset_s = 3 * 3600;
   Condition dusk = Named("query-dusk", 2);
   dusk.look.sun_dir = SunDir(265, 4);
@@ -97,7 +97,7 @@ CameraModel FleetCamera() {
 
 cv::Mat FinishImage(const cv::Mat& linear, const Condition& c, uint64_t seed) {
   cv::Mat img = linear * c.exposure;
-  img = (img - 0.45) * c.contrast + 0.45;
+  img = (img - cv::Scalar::all(0.45)) * c.contrast + cv::Scalar::all(0.45);
   std::vector<cv::Mat> ch;
   cv::split(img, ch);
   for (int i = 0; i < 3; ++i) ch[i] *= c.tint[i];

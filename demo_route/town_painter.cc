@@ -232,7 +232,12 @@ cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs) {
   cv::Mat img(std::max(8, int(spec.height_m * ppm)), std::max(8, int(spec.width_m * ppm)), CV_8UC3);
   const cv::Scalar wall = Hsv(r.Uniform(0, 180), r.Uniform(0.1, 0.55), r.Uniform(0.45, 0.88));
   switch (r.Int(0, 2)) {
-    case 0: img.setTo(wall); AddNoise(img, r, 0.8 * ppm, 10); Speckle(img, r, img.total() / 300, 2.5, 0.12); break;
+    case 0:
+      img.setTo(wall);
+      AddNoise(img, r, 0.8 * ppm, 12);
+      AddNoise(img, r, 0.08 * ppm, 9);  // stucco grain
+      Speckle(img, r, img.total() / 120, 3.5, 0.2);
+      break;
     case 1: Brick(img, r, Hsv(r.Uniform(0, 20), r.Uniform(0.4, 0.7), r.Uniform(0.4, 0.75)), ppm); AddNoise(img, r, 1.5 * ppm, 8); break;
     default: Panels(img, r, wall, ppm); AddNoise(img, r, 1.0 * ppm, 7); break;
   }
@@ -245,7 +250,7 @@ cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs) {
     if (r.Chance(0.6)) cv::rectangle(img, cv::Rect2d(0, y - 0.08 * ppm, img.cols, 0.16 * ppm), Shade(wall, r.Uniform(0.7, 1.2)), -1);
   }
   // Upper floors: a column grid per building, each window its own.
-  const double spacing = r.Uniform(2.3, 3.6), win_w = r.Uniform(0.9, 1.5), win_h = r.Uniform(1.2, 1.8);
+  const double spacing = r.Uniform(1.9, 3.0), win_w = r.Uniform(0.9, 1.4), win_h = r.Uniform(1.2, 1.8);
   const int cols = std::max(1, int((spec.width_m - 0.8) / spacing));
   const double margin = (spec.width_m - cols * spacing) / 2;
   for (int f = 1; f < spec.floors; ++f) {
@@ -255,7 +260,13 @@ cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs) {
       const double x = (margin + c * spacing + (spacing - win_w) / 2) * ppm;
       const double hh = win_h * (r.Chance(0.15) ? 1.3 : 1.0);
       Window(img, r, cv::Rect2d(x, base_y - hh * ppm, win_w * ppm, hh * ppm), frame, ppm);
-      if (r.Chance(0.12))  // flower box or balcony rail
+      if (r.Chance(0.1)) {  // an air-conditioning unit or a satellite dish beside the window
+        const cv::Point2d p(x + (win_w + 0.15) * ppm, base_y - r.Uniform(0.2, 1.2) * ppm);
+        cv::rectangle(img, cv::Rect2d(p.x, p.y, 0.6 * ppm, 0.45 * ppm), cv::Scalar(205, 205, 200), -1);
+        for (double gy = p.y + 4; gy < p.y + 0.45 * ppm; gy += 4)
+          cv::line(img, cv::Point2d(p.x + 3, gy), cv::Point2d(p.x + 0.6 * ppm - 3, gy), cv::Scalar(120, 120, 120), 1);
+      }
+      if (r.Chance(0.2))  // flower box or balcony rail
         cv::rectangle(img, cv::Rect2d(x - 0.1 * ppm, base_y - 0.05 * ppm, (win_w + 0.2) * ppm, 0.25 * ppm),
                       RandomColour(r, 0.3, 0.9, 0.2, 0.8), -1);
     }
@@ -274,7 +285,7 @@ cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs) {
       if (std::abs(x - door_x) > 1.6 * ppm) Window(img, r, cv::Rect2d(x, img.rows - 2.2 * ppm, 1.0 * ppm, 1.1 * ppm), frame, ppm);
   }
   // Posters low on the wall, a drainpipe, graffiti, grime at the foot of the wall.
-  for (int i = 0, n = r.Int(0, 3); i < n; ++i) {
+  for (int i = 0, n = r.Int(1, 5); i < n; ++i) {
     const double pw = r.Uniform(0.5, 0.9) * ppm;
     Poster(img, r, cv::Rect2d(r.Uniform(0, img.cols - pw), img.rows - r.Uniform(1.4, 2.4) * ppm, pw, pw * 1.4), glyphs);
   }
@@ -289,6 +300,9 @@ cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs) {
     for (int i = 0; i < 10; ++i, x += r.Uniform(3, 14), y += r.Uniform(-8, 8)) pts.emplace_back(int(x), int(y));
     cv::polylines(img, pts, false, c, 3, cv::LINE_AA);
   }
+  for (int i = 0, n = int(spec.width_m * spec.height_m / 4); i < n; ++i)  // weathering stains
+    cv::ellipse(img, cv::Point2d(r.Uniform(0, img.cols), r.Uniform(0, img.rows)), cv::Size2d(r.Uniform(3, 14), r.Uniform(2, 10)),
+                r.Uniform(0, 180), 0, 360, Shade(wall, r.Uniform(0.6, 1.25)), -1, cv::LINE_AA);
   for (int i = 0; i < 20; ++i)
     cv::ellipse(img, cv::Point2d(r.Uniform(0, img.cols), img.rows - r.Uniform(0, 0.4) * ppm),
                 cv::Size2d(r.Uniform(4, 20), r.Uniform(2, 8)), 0, 0, 360, Shade(wall, r.Uniform(0.5, 0.8)), -1, cv::LINE_AA);

@@ -15,7 +15,7 @@
 
 namespace sightfix::demo {
 
-constexpr double kFacadeTexelsPerM = 40.0;
+constexpr double kFacadeTexelsPerM = 56.0;
 constexpr double kPlainTexelsPerM = 14.0;
 constexpr double kObjectTexelsPerM = 48.0;
 
