@@ -135,7 +135,7 @@ class Placer {
     Building b;
     b.footprint = fp;
     b.front_edge = front_edge;
-    b.floors = rng.Int(2, 5);
+    b.floors = rng.Int(4, 7);
     b.height_m = b.floors * rng.Uniform(3.0, 3.5) + rng.Uniform(0.3, 1.2);
     b.seed = rng.Next();
     town_->buildings.push_back(b);
@@ -172,13 +172,18 @@ void PlaceStreetBuildings(Town* town, Placer* placer, Rng& rng) {
         const double setback = rng.Uniform(0.0, 1.2), depth = rng.Uniform(10, 16);
         cv::Vec2d t0, t1;
         const cv::Vec2d p0 = c.At(s, &t0), p1 = c.At(s + w, &t1);
-        const double off = StreetSection::kFacadeM + setback;
-        // Right side (side +1) is on the right of travel: normal -Perp(t).
-        const cv::Vec2d q0 = p0 - side * off * Perp(t0), q1 = p1 - side * off * Perp(t1);
-        int front = 0;
-        // Seen from the street, the right-side front runs q1 -> q0 left to right.
-        const auto fp = side > 0 ? FrontFootprint(q1, q0, depth, &front) : FrontFootprint(q0, q1, depth, &front);
-        if (w >= 6 && placer->TryBuilding(fp, front, rng)) {
+        // On curves a straight front cuts the chord's sagitta into the sidewalk: step it back.
+        bool placed = false;
+        for (double extra = 0; extra <= 1.6 && !placed && w >= 6; extra += 0.8) {
+          const double off = StreetSection::kFacadeM + setback + extra;
+          // Right side (side +1) is on the right of travel: normal -Perp(t).
+          const cv::Vec2d q0 = p0 - side * off * Perp(t0), q1 = p1 - side * off * Perp(t1);
+          int front = 0;
+          // Seen from the street, the right-side front runs q1 -> q0 left to right.
+          const auto fp = side > 0 ? FrontFootprint(q1, q0, depth, &front) : FrontFootprint(q0, q1, depth, &front);
+          placed = placer->TryBuilding(fp, front, rng);
+        }
+        if (placed) {
           s += w + (rng.Chance(0.15) ? rng.Uniform(3, 6) : rng.Uniform(0, 1.5));
         } else {
           s += 1.5;

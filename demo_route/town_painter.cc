@@ -235,7 +235,7 @@ cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs) {
     case 0:
       img.setTo(wall);
       AddNoise(img, r, 0.8 * ppm, 12);
-      AddNoise(img, r, 0.08 * ppm, 9);  // stucco grain
+      AddNoise(img, r, 0.08 * ppm, 16);  // stucco grain
       Speckle(img, r, img.total() / 120, 3.5, 0.2);
       break;
     case 1: Brick(img, r, Hsv(r.Uniform(0, 20), r.Uniform(0.4, 0.7), r.Uniform(0.4, 0.75)), ppm); AddNoise(img, r, 1.5 * ppm, 8); break;

@@ -166,15 +166,15 @@ struct TownScene::Ground {
   cv::Vec3f Colour(double x, double y, double fp) const {
     double d = 1e9, s = 0;
     Nearest(x, y, &d, &s);
-    const float grain = Fbm(x, y, fp, 0.8, 4, seed);
+    const float grain = Fbm(x, y, fp, 0.8, 5, seed);
     if (d < StreetSection::kParkingM) {
       const bool parking = d > StreetSection::kCarriagewayM;
-      float g = (parking ? 0.36f : 0.31f) + 0.45f * grain;
+      float g = (parking ? 0.36f : 0.31f) + 0.6f * grain;
       // Sparse stones, oil spots and repairs on a 0.25 m lattice (band-limited by footprint).
       if (fp < 0.2) {
         const uint32_t hsh = Hash2(static_cast<int32_t>(std::floor(x * 4)), static_cast<int32_t>(std::floor(y * 4)), seed + 9);
         const float pick = (hsh & 0xffff) / 65536.0f;
-        if (pick < 0.12f) g *= 0.45f + 1.1f * ((hsh >> 16) & 0xff) / 255.0f * (1.0f - static_cast<float>(fp) * 5);
+        if (pick < 0.18f) g *= 0.35f + 1.4f * ((hsh >> 16) & 0xff) / 255.0f * (1.0f - static_cast<float>(fp) * 5);
       }
       float paint = 0;
       paint = std::max(paint, Stripe(d, 0.1, fp));                                          // centre line

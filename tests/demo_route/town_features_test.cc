@@ -110,7 +110,12 @@ TEST(TownFeaturesTest, NearFramesMatchFarFramesDoNot) {
     near_counts.push_back(near_in);
     far_counts.push_back(far_in);
     ++n;
-    if (near_in >= 100 && far_in * 3 <= near_in) ++pass;
+    if (near_in >= 100 && far_in * 3 <= near_in) {
+      ++pass;
+    } else {
+      std::printf("short: %s heading %.0f, nearest survey %s at %.2f m: %d inliers, far %d\n", q.image.c_str(),
+                  q.attitude.heading_deg, (*survey)[nearest].image.c_str(), best, near_in, far_in);
+    }
   }
   std::sort(near_counts.begin(), near_counts.end());
   std::sort(far_counts.begin(), far_counts.end());
