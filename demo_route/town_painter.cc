@@ -69,7 +69,7 @@ void Panels(cv::Mat& img, Rng& r, const cv::Scalar& base, double ppm) {
   const double pw = r.Uniform(1.2, 2.0) * ppm, ph = r.Uniform(0.8, 1.4) * ppm;
   for (double y = 0; y < img.rows; y += ph)
     for (double x = 0; x < img.cols; x += pw)
-      cv::rectangle(img, cv::Point2d(x, y), cv::Point2d(x + pw, y + ph), Shade(base, r.Uniform(0.85, 1.1)), -1);
+      cv::rectangle(img, cv::Point2d(x, y), cv::Point2d(x + pw, y + ph), Shade(base, r.Uniform(0.72, 1.22)), -1);
   for (double y = 0; y < img.rows; y += ph) cv::line(img, {0, int(y)}, {img.cols, int(y)}, Shade(base, 0.55), 2);
   for (double x = 0; x < img.cols; x += pw) cv::line(img, {int(x), 0}, {int(x), img.rows}, Shade(base, 0.55), 2);
 }
@@ -238,9 +238,17 @@ cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs) {
       AddNoise(img, r, 0.08 * ppm, 16);  // stucco grain
       Speckle(img, r, img.total() / 120, 3.5, 0.2);
       break;
-    case 1: Brick(img, r, Hsv(r.Uniform(0, 20), r.Uniform(0.4, 0.7), r.Uniform(0.4, 0.75)), ppm); AddNoise(img, r, 1.5 * ppm, 8); break;
+    case 1:
+      Brick(img, r, Hsv(r.Uniform(0, 20), r.Uniform(0.4, 0.7), r.Uniform(0.4, 0.75)), ppm);
+      AddNoise(img, r, 1.5 * ppm, 8);
+      for (int i = 0, n = int(spec.width_m * spec.height_m / 12); i < n; ++i)  // plaster patches over the brick
+        cv::ellipse(img, cv::Point2d(r.Uniform(0, img.cols), r.Uniform(0, img.rows)),
+                    cv::Size2d(r.Uniform(0.1, 0.5) * ppm, r.Uniform(0.08, 0.3) * ppm), r.Uniform(0, 180), 0, 360,
+                    Hsv(r.Uniform(10, 30), r.Uniform(0.05, 0.3), r.Uniform(0.55, 0.85)), -1, cv::LINE_AA);
+      break;
     default: Panels(img, r, wall, ppm); AddNoise(img, r, 1.0 * ppm, 7); break;
   }
+  Speckle(img, r, static_cast<int>(img.total() / 400), 3.0, 0.25);  // grime and chips on every material
   const double floor_h = (spec.height_m - 0.6) / spec.floors;
   const cv::Scalar frame = RandomColour(r, 0.0, 0.5, 0.2, 0.95);
   // Cornice and floor bands.
@@ -259,7 +267,27 @@ cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs) {
       if (r.Chance(0.08)) continue;  // a blank bay breaks the grid
       const double x = (margin + c * spacing + (spacing - win_w) / 2) * ppm;
       const double hh = win_h * (r.Chance(0.15) ? 1.3 : 1.0);
-      Window(img, r, cv::Rect2d(x, base_y - hh * ppm, win_w * ppm, hh * ppm), frame, ppm);
+      // Each window its own: size, position and frame tint vary a little, so no two windows of
+      // a facade share a descriptor (identical windows would defeat the ratio test).
+      const double jw = win_w * r.Uniform(0.9, 1.1), jx = x + r.Uniform(-0.08, 0.08) * ppm;
+      const double jy = base_y + r.Uniform(-0.05, 0.05) * ppm;
+      Window(img, r, cv::Rect2d(jx, jy - hh * ppm, jw * ppm, hh * ppm), Shade(frame, r.Uniform(0.75, 1.2)), ppm);
+      if (r.Chance(0.6)) {  // a rain streak below the sill, its own width and length
+        const double sw = jw * r.Uniform(0.2, 0.8) * ppm, sl = r.Uniform(0.3, 1.4) * ppm;
+        const double sx0 = jx + r.Uniform(0, std::max(1.0, jw * ppm - sw));
+        for (int k = 0; k < 3; ++k) {  // narrower and shorter each step: darkest at the middle top
+          const cv::Rect2d streak(sx0 + k * sw / 6, jy + 0.08 * ppm, sw * (1 - k / 3.0), sl * (1 - k / 4.0));
+          cv::Mat roi = img(cv::Rect(streak) & cv::Rect(0, 0, img.cols, img.rows));
+          roi.convertTo(roi, -1, r.Uniform(0.8, 0.92), 0);
+        }
+      }
+      if (r.Chance(0.3)) {  // open shutters in a colour of their own
+        const cv::Scalar sc = RandomColour(r, 0.3, 0.9, 0.25, 0.85);
+        cv::rectangle(img, cv::Rect2d(jx - 0.38 * ppm, jy - hh * ppm, 0.34 * ppm, hh * ppm), sc, -1);
+        cv::rectangle(img, cv::Rect2d(jx + (jw + 0.04) * ppm, jy - hh * ppm, 0.34 * ppm, hh * ppm), sc, -1);
+        for (double ly = jy - hh * ppm + 3; ly < jy; ly += 5)
+          cv::line(img, cv::Point2d(jx - 0.36 * ppm, ly), cv::Point2d(jx - 0.06 * ppm, ly), Shade(sc, 0.6), 1);
+      }
       if (r.Chance(0.1)) {  // an air-conditioning unit or a satellite dish beside the window
         const cv::Point2d p(x + (win_w + 0.15) * ppm, base_y - r.Uniform(0.2, 1.2) * ppm);
         cv::rectangle(img, cv::Rect2d(p.x, p.y, 0.6 * ppm, 0.45 * ppm), cv::Scalar(205, 205, 200), -1);

@@ -169,12 +169,20 @@ struct TownScene::Ground {
     const float grain = Fbm(x, y, fp, 0.8, 5, seed);
     if (d < StreetSection::kParkingM) {
       const bool parking = d > StreetSection::kCarriagewayM;
-      float g = (parking ? 0.36f : 0.31f) + 0.6f * grain;
-      // Sparse stones, oil spots and repairs on a 0.25 m lattice (band-limited by footprint).
-      if (fp < 0.2) {
-        const uint32_t hsh = Hash2(static_cast<int32_t>(std::floor(x * 4)), static_cast<int32_t>(std::floor(y * 4)), seed + 9);
-        const float pick = (hsh & 0xffff) / 65536.0f;
-        if (pick < 0.18f) g *= 0.35f + 1.4f * ((hsh >> 16) & 0xff) / 255.0f * (1.0f - static_cast<float>(fp) * 5);
+      float g = (parking ? 0.36f : 0.31f) + 0.4f * grain;
+      // Sparse round stones and oil spots, one chance per 0.25 m cell, each at its own place in
+      // the cell; drawn with footprint-filtered edges so they stay put under perspective.
+      if (fp < 0.08) {
+        const int32_t ix = static_cast<int32_t>(std::floor(x * 4)), iy = static_cast<int32_t>(std::floor(y * 4));
+        const uint32_t hsh = Hash2(ix, iy, seed + 9);
+        if ((hsh & 0xff) < 40) {
+          const double sx = (ix + 0.25 + 0.5 * ((hsh >> 8) & 0xff) / 255.0) / 4;
+          const double sy = (iy + 0.25 + 0.5 * ((hsh >> 16) & 0xff) / 255.0) / 4;
+          const double radius = 0.02 + 0.05 * ((hsh >> 24) & 0x0f) / 15.0;
+          const float cover = Stripe(std::hypot(x - sx, y - sy), radius, fp) * static_cast<float>(1.0 - fp / 0.08);
+          const float tone = (hsh >> 28) & 1 ? 1.8f : 0.4f;
+          g *= 1.0f + (tone - 1.0f) * cover;
+        }
       }
       float paint = 0;
       paint = std::max(paint, Stripe(d, 0.1, fp));                                          // centre line
@@ -193,7 +201,14 @@ struct TownScene::Ground {
       const float tint = 0.5f + 0.12f * (HashUnit(ia, ib, seed + 3) - 0.5f) + 0.1f * grain;
       const double ja = std::min(a - ia, 1 - (a - ia)) * 0.6, jb = std::min(b - ib, 1 - (b - ib)) * 0.6;
       const float joint = std::max(Stripe(ja, 0.01, fp), Stripe(jb, 0.01, fp));
-      return Lerp(cv::Vec3f(tint * 0.95f, tint, tint * 1.04f), cv::Vec3f(0.3f, 0.3f, 0.3f), joint * 0.7f);
+      float spot = 0;  // a stain or chewing-gum spot on one slab in five, somewhere on it
+      const uint32_t hs = Hash2(ia, ib, seed + 11);
+      if ((hs & 0xff) < 50 && fp < 0.1) {
+        const double sa = (ia + 0.2 + 0.6 * ((hs >> 8) & 0xff) / 255.0) * 0.6, sb = (ib + 0.2 + 0.6 * ((hs >> 16) & 0xff) / 255.0) * 0.6;
+        spot = Stripe(std::hypot(s - sa, d - sb), 0.02 + 0.06 * ((hs >> 24) & 0xf) / 15.0, fp) * static_cast<float>(1 - fp / 0.1);
+      }
+      const cv::Vec3f slab = Lerp(cv::Vec3f(tint * 0.95f, tint, tint * 1.04f), cv::Vec3f(0.3f, 0.3f, 0.3f), joint * 0.7f);
+      return Lerp(slab, cv::Vec3f(0.15f, 0.16f, 0.18f), spot * 0.8f);
     }
     const float g = 0.5f + grain;  // yards and verges
     return cv::Vec3f(0.18f * g, 0.36f * g, 0.3f * g);

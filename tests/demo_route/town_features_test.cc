@@ -60,7 +60,7 @@ int EssentialInliers(const Features& a, const Features& b, const cv::Matx33d& k)
 TEST(TownFeaturesTest, NearFramesMatchFarFramesDoNot) {
   DemoOptions o;
   o.out_dir = (fs::path(::testing::TempDir()) / "features_town").string();
-  o.seed = 11;  // a seed of its own
+  o.seed = 23;  // not the seed the town's textures were tuned on (11)
   o.route_length_m = 300;
   Result<DemoSummary> town = GenerateDemoTown(o);
   ASSERT_TRUE(town.ok()) << town.status().ToString();
