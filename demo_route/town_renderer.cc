@@ -386,15 +386,14 @@ bool ScreenBox(const cv::Vec3d c[4], const cv::Matx33d& k, cv::Size size, double
 
 }  // namespace
 
-cv::Mat TownScene::RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, cv::Size size, const Appearance& look,
-                                 int variant, const RenderOptions& options) const {
+cv::Mat TownScene::RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, cv::Size size, int ss,
+                                 const Appearance& look, int variant, const RenderOptions& options) const {
   const cv::Matx33d& r = pose.camera_from_enu;
   const cv::Matx33d rt = r.t();
   const double fx = k(0, 0), fy = k(1, 1), cx = k(0, 2), cy = k(1, 2);
   const int w = size.width, h = size.height;
   cv::Mat1f depth(h, w, std::numeric_limits<float>::infinity());
   cv::Mat1i id(h, w, kSky);
-  cv::Mat1f tu(h, w, 0.f), tv(h, w, 0.f);
   // Ground first: every ray that goes down meets the road plane z = 0.
   const double cz = pose.position[2];
   // World direction of pixel (x, y): rt * m = col0 * mx + col1 * my + col2, stepped along x.
@@ -448,67 +447,93 @@ cv::Mat TownScene::RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, c
           const double nm = qr.n.dot(m);
           const double lambda = qr.h / nm;
           if (lambda >= drow[x]) continue;
-          const double uu = std::clamp((lambda * qr.au.dot(m) - qr.cu) / qr.nn, 0.0, 1.0);
-          const double vv = std::clamp((lambda * qr.av.dot(m) - qr.cv) / qr.nn, 0.0, 1.0);
           if (tex.has_alpha) {
+            const double uu = std::clamp((lambda * qr.au.dot(m) - qr.cu) / qr.nn, 0.0, 1.0);
+            const double vv = std::clamp((lambda * qr.av.dot(m) - qr.cv) / qr.nn, 0.0, 1.0);
             const double mn = cv::norm(m);
             const double fp_m = lambda * mn / (fx * std::sqrt(std::abs(nm) / (fpn * mn)));
             if (SampleAlpha(tex, uu, vv, fp_m * tex.texels_per_m) < 0.5f) continue;
           }
           drow[x] = static_cast<float>(lambda);
           id(y, x) = raster_id;
-          tu(y, x) = static_cast<float>(uu);
-          tv(y, x) = static_cast<float>(vv);
         }
       }
       rasters.push_back(qr);
     }
   }
-  // Shade each pixel once.
-  cv::Mat3f out(h, w);
+  // Shading. With supersampling, a block of ss x ss samples that all see the same surface is
+  // shaded once at the block centre; blocks that straddle an edge shade every sample and average them. Surface
+  // coordinates are recomputed from the ray, so no per-sample texture coordinates are stored.
   const cv::Vec3f horizon(look.sky_horizon), zenith(look.sky_zenith), haze(look.haze);
   const uint32_t cloud_seed = static_cast<uint32_t>(HashSeed(town_.options.seed, 0x636c64));
-  for (int y = 0; y < h; ++y) {
-    cv::Vec3d wdir = row_start(y);
-    const double my = (y - cy) / fy;
-    for (int x = 0; x < w; ++x, wdir += step) {
-      const cv::Vec3d m((x - cx) / fx, my, 1.0);
-      const double mn = std::sqrt(m[0] * m[0] + my * my + 1.0);
-      const int which = id(y, x);
-      cv::Vec3f colour;
-      if (which == kSky) {
-        const double e = std::max(0.0, wdir[2] / mn);
-        colour = Lerp(horizon, zenith, static_cast<float>(std::sqrt(e)));
-        if (e > 0.03) {
-          const double px = wdir[0] / wdir[2] * 1.5, py = wdir[1] / wdir[2] * 1.5;
-          const float c = Fbm(px, py, 0.0, 1.0, 2, cloud_seed) + 0.2f;
-          colour = Lerp(colour, cv::Vec3f(0.97f, 0.97f, 0.97f), std::clamp(c, 0.0f, 1.0f) * float(look.cloud) * 2);
-        }
-        out(y, x) = colour;
+  auto shade = [&](int which, double mx, double my, double f_px) -> cv::Vec3f {
+    const cv::Vec3d m(mx, my, 1.0);
+    const cv::Vec3d wdir = rt * m;
+    const double mn = std::sqrt(mx * mx + my * my + 1.0);
+    if (which == kSky) {
+      const double e = std::max(0.0, wdir[2] / mn);
+      cv::Vec3f colour = Lerp(horizon, zenith, static_cast<float>(std::sqrt(e)));
+      if (e > 0.03) {
+        const double px = wdir[0] / wdir[2] * 1.5, py = wdir[1] / wdir[2] * 1.5;
+        const float c = Fbm(px, py, 0.0, 1.0, 2, cloud_seed) + 0.2f;
+        colour = Lerp(colour, cv::Vec3f(0.97f, 0.97f, 0.97f), std::clamp(c, 0.0f, 1.0f) * float(look.cloud) * 2);
+      }
+      return colour;
+    }
+    cv::Vec3f colour;
+    double dist;
+    if (which == kGround) {
+      const double lambda = -cz / std::min(wdir[2], -1e-9);
+      dist = lambda * mn;
+      const cv::Vec3d p = pose.position + lambda * wdir;
+      const double cos_inc = std::abs(wdir[2]) / mn;
+      const double fp = dist / (f_px * std::sqrt(std::max(cos_inc, 1e-3)));
+      const double light = look.ambient + look.sun * std::max(0.0, look.sun_dir[2]);
+      colour = ground_->Colour(p[0], p[1], fp) * static_cast<float>(light);
+    } else {
+      const QuadRaster& qr = rasters[which];
+      const Texture& tex = textures_.Get(qr.quad->texture);
+      const double nm = qr.n.dot(m);
+      const double lambda = qr.h / nm;
+      dist = lambda * mn;
+      const double uu = std::clamp((lambda * qr.au.dot(m) - qr.cu) / qr.nn, 0.0, 1.0);
+      const double vv = std::clamp((lambda * qr.av.dot(m) - qr.cv) / qr.nn, 0.0, 1.0);
+      const double fpn = std::sqrt(qr.nn);
+      const double cos_inc = std::abs(nm) / (fpn * mn);
+      const double fp_m = dist / (f_px * std::sqrt(std::max(cos_inc, 1e-3)));
+      colour = SampleTexture(tex, uu, vv, fp_m * tex.texels_per_m);
+      // Outward normal in ENU is V x U; two-sided surfaces (alpha cut-outs) take |n . sun|.
+      const cv::Vec3d nw = qr.quad->v_axis.cross(qr.quad->u_axis) / fpn;
+      const double ns = nw.dot(look.sun_dir);
+      const double light =
+          qr.quad->brightness * (look.ambient + look.sun * (tex.has_alpha ? std::abs(ns) : std::max(0.0, ns)));
+      colour *= static_cast<float>(light);
+    }
+    return Lerp(colour, haze, static_cast<float>(1.0 - std::exp(-dist / look.haze_m)));
+  };
+  const int ow = w / ss, oh = h / ss;
+  cv::Mat3f out(oh, ow);
+  for (int oy = 0; oy < oh; ++oy) {
+    for (int ox = 0; ox < ow; ++ox) {
+      const int which = id(oy * ss, ox * ss);
+      bool uniform = true;
+      for (int j = 0; j < ss && uniform; ++j)
+        for (int i = 0; i < ss && uniform; ++i) uniform = id(oy * ss + j, ox * ss + i) == which;
+      if (uniform) {
+        const double x = ox * ss + (ss - 1) / 2.0, y = oy * ss + (ss - 1) / 2.0;
+        // Filtered for the sample footprint, as a sample of an edge block would be: measured to
+        // keep the detail that four averaged samples keep (the output pixel's own footprint
+        // blurs one mip level more and cost the town a tenth of its matches).
+        out(oy, ox) = shade(which, (x - cx) / fx, (y - cy) / fy, fx);
         continue;
       }
-      const double lambda = depth(y, x);
-      const double dist = lambda * mn;
-      if (which == kGround) {
-        const cv::Vec3d p = pose.position + lambda * wdir;
-        const double cos_inc = std::abs(wdir[2]) / mn;
-        const double fp = dist / (fx * std::sqrt(std::max(cos_inc, 1e-3)));
-        const double light = look.ambient + look.sun * std::max(0.0, look.sun_dir[2]);
-        colour = ground_->Colour(p[0], p[1], fp) * static_cast<float>(light);
-      } else {
-        const QuadRaster& qr = rasters[which];
-        const Texture& tex = textures_.Get(qr.quad->texture);
-        const double fpn = std::sqrt(qr.nn);
-        const double cos_inc = std::abs(qr.n.dot(m)) / (fpn * mn);
-        const double fp_m = dist / (fx * std::sqrt(std::max(cos_inc, 1e-3)));
-        colour = SampleTexture(tex, tu(y, x), tv(y, x), fp_m * tex.texels_per_m);
-        // Outward normal in ENU is V x U; two-sided surfaces (alpha cut-outs) take |n . sun|.
-        const cv::Vec3d nw = qr.quad->v_axis.cross(qr.quad->u_axis) / fpn;
-        const double ns = nw.dot(look.sun_dir);
-        const double light = qr.quad->brightness * (look.ambient + look.sun * (tex.has_alpha ? std::abs(ns) : std::max(0.0, ns)));
-        colour *= static_cast<float>(light);
-      }
-      out(y, x) = Lerp(colour, haze, static_cast<float>(1.0 - std::exp(-dist / look.haze_m)));
+      cv::Vec3f sum(0, 0, 0);
+      for (int j = 0; j < ss; ++j)
+        for (int i = 0; i < ss; ++i) {
+          const int x = ox * ss + i, y = oy * ss + j;
+          sum += shade(id(y, x), (x - cx) / fx, (y - cy) / fy, fx);
+        }
+      out(oy, ox) = sum / static_cast<float>(ss * ss);
     }
   }
   return out;
@@ -586,9 +611,7 @@ cv::Mat TownScene::Render(const CameraPose& pose, const CameraModel& camera, con
     k = plan->canvas_k;
     size = plan->canvas_size;
   }
-  cv::Mat big = RenderPinhole(pose, Supersampled(k, ss), size * ss, look, variant, options);
-  cv::Mat img;
-  if (ss > 1) cv::resize(big, img, size, 0, 0, cv::INTER_AREA); else img = big;
+  cv::Mat img = RenderPinhole(pose, Supersampled(k, ss), size * ss, ss, look, variant, options);
   if (!plan) return img;
   cv::Mat out;
   cv::remap(img, out, plan->map_x, plan->map_y, cv::INTER_LINEAR, cv::BORDER_REPLICATE);

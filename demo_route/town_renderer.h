@@ -74,7 +74,9 @@ class TownScene {
   struct Ground;
   void AddBox(const std::array<cv::Vec2d, 4>& fp, double z0, double z1, const std::array<int, 5>& textures,
               double brightness, std::vector<Quad>* out);
-  cv::Mat RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, cv::Size size, const Appearance& look,
+  // Renders ss x ss samples per output pixel on the high-resolution canvas (k, size) and returns
+  // the output image (size / ss).
+  cv::Mat RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, cv::Size size, int ss, const Appearance& look,
                         int variant, const RenderOptions& options) const;
 
   const Town& town_;
