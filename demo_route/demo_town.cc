@@ -6,12 +6,11 @@
 #include <cmath>
 #include <filesystem>
 #include <fstream>
-#include <thread>
-
 #include <nlohmann/json.hpp>
 #include <opencv2/core/utility.hpp>
 #include <opencv2/imgcodecs.hpp>
 #include <opencv2/imgproc.hpp>
+#include <thread>
 
 #include "demo_route/drive_plan.h"
 #include "demo_route/town_renderer.h"
@@ -63,14 +62,16 @@ std::vector<Condition> Conditions() {
   Condition dusk = Named("query-dusk", 2);
   dusk.look.sun_dir = SunDir(265, 4);
   dusk.look.sun = 0.25, dusk.look.ambient = 0.5;
-  dusk.look.sky_horizon = {0.45, 0.6, 0.92}, dusk.look.sky_zenith = {0.5, 0.32, 0.25}, dusk.look.haze = {0.45, 0.5, 0.65};
+  dusk.look.sky_horizon = {0.45, 0.6, 0.92}, dusk.look.sky_zenith = {0.5, 0.32, 0.25},
+  dusk.look.haze = {0.45, 0.5, 0.65};
   dusk.look.haze_m = 350;
   dusk.exposure = 0.62, dusk.tone_gamma = 1.45, dusk.tint = {0.8, 0.92, 1.12};
   dusk.noise_sigma = 5.0, dusk.blur_sigma = 0.8, dusk.jpeg_quality = 75;
   dusk.start_offset_s = 10.5 * 3600;
   Condition overcast = Named("query-overcast", 3);
   overcast.look.sun = 0.0, overcast.look.ambient = 0.95, overcast.look.cloud = 0.0;
-  overcast.look.sky_horizon = {0.8, 0.8, 0.78}, overcast.look.sky_zenith = {0.72, 0.71, 0.7}, overcast.look.haze = {0.78, 0.78, 0.76};
+  overcast.look.sky_horizon = {0.8, 0.8, 0.78}, overcast.look.sky_zenith = {0.72, 0.71, 0.7},
+  overcast.look.haze = {0.78, 0.78, 0.76};
   overcast.look.haze_m = 300;
   overcast.contrast = 0.72, overcast.tint = {1.08, 1.03, 0.9};
   overcast.noise_sigma = 2.5, overcast.blur_sigma = 0.9, overcast.jpeg_quality = 75;
@@ -145,7 +146,8 @@ std::vector<PlannedDrive> PlanDrives(const Town& town, const DemoOptions& o) {
     d.condition = conditions[i];
     if (i == 0) {
       d.camera = SurveyCamera(o.image_width, o.image_height);
-      d.passes = {{0, L, StreetSection::kSurveyLaneM, 0.0, 0.0}, {L, 0, StreetSection::kSurveyLaneM, 0.0, 0.0}};
+      d.passes = {{0, L, StreetSection::kSurveyLaneM, 0.0, 0.0},
+                  {L, 0, StreetSection::kSurveyLaneM, 0.0, 0.0}};
       d.plan.spacing_m = o.survey_spacing_m;
       d.plan.speed_mps = 8.0;
       d.plan.heading_jitter_deg = 0.3, d.plan.pitch_jitter_deg = 0.3, d.plan.roll_jitter_deg = 0.3;
@@ -155,7 +157,8 @@ std::vector<PlannedDrive> PlanDrives(const Town& town, const DemoOptions& o) {
       const double lane = StreetSection::kQueryLaneM + rng.Uniform(-0.25, 0.25);
       const double a = rng.Uniform(0.0, 0.08) * L, b = rng.Uniform(0.62, 0.78) * L;
       const double b2 = std::min(L, b + rng.Uniform(0.0, 0.1) * L), c = rng.Uniform(0.12, 0.3) * L;
-      d.passes = {{a, b, lane, 0.25, rng.Uniform(0, 6.28)}, {b2, c, lane, 0.25, rng.Uniform(0, 6.28)}};
+      d.passes = {{a, b, lane, 0.25, rng.Uniform(0, 6.28)},
+                  {b2, c, lane, 0.25, rng.Uniform(0, 6.28)}};
       d.plan.spacing_m = o.query_spacing_m;
       d.plan.spacing_jitter_m = 0.3 * o.query_spacing_m;
       d.plan.speed_mps = 9.0;
@@ -199,36 +202,59 @@ Status WriteDriveFiles(const PlannedDrive& d, const EnuFrame& enu, const fs::pat
   char buf[256];
   for (const GnssSample& x : d.gnss) {
     const GeoPoint p = enu.ToGeo(x.position);
-    std::snprintf(buf, sizeof(buf), "%s,%.9f,%.9f,%.3f,%.2f,%.2f\n", FormatIsoUtc(start + x.time_s).c_str(), p.lat_deg,
-                  p.lon_deg, p.height_m, x.claimed_sigma_h_m, x.course_deg);
+    std::snprintf(buf, sizeof(buf), "%s,%.9f,%.9f,%.3f,%.2f,%.2f\n",
+                  FormatIsoUtc(start + x.time_s).c_str(), p.lat_deg, p.lon_deg, p.height_m,
+                  x.claimed_sigma_h_m, x.course_deg);
     g << buf;
   }
   return g ? Status::Ok() : Status::IoError("cannot write " + (dir / "gnss.csv").string());
 }
 
 nlohmann::json CameraJson(const CameraModel& c) {
-  return {{"image_width", c.width_px}, {"image_height", c.height_px}, {"fx", c.fx}, {"fy", c.fy},
-          {"cx", c.cx}, {"cy", c.cy}, {"distortion_k1_k2_p1_p2_k3", c.distortion}};
+  return {{"image_width", c.width_px},
+          {"image_height", c.height_px},
+          {"fx", c.fx},
+          {"fy", c.fy},
+          {"cx", c.cx},
+          {"cy", c.cy},
+          {"distortion_k1_k2_p1_p2_k3", c.distortion}};
 }
 
-nlohmann::json TownJson(const DemoOptions& o, const Town& town, const std::vector<PlannedDrive>& drives) {
+nlohmann::json TownJson(const DemoOptions& o, const Town& town,
+                        const std::vector<PlannedDrive>& drives) {
   nlohmann::json j;
   j["generator"] = "sightfix-demo-route 1";
   j["seed"] = o.seed;
-  j["options"] = {{"route_length_m", o.route_length_m}, {"image_size", {o.image_width, o.image_height}},
-                  {"survey_spacing_m", o.survey_spacing_m}, {"query_spacing_m", o.query_spacing_m},
+  j["options"] = {{"route_length_m", o.route_length_m},
+                  {"image_size", {o.image_width, o.image_height}},
+                  {"survey_spacing_m", o.survey_spacing_m},
+                  {"query_spacing_m", o.query_spacing_m},
                   {"supersample", o.supersample}};
-  j["origin"] = {{"lat_deg", kTownOrigin.lat_deg}, {"lon_deg", kTownOrigin.lon_deg}, {"height_m", kTownOrigin.height_m},
-                 {"frame", "ENU tangent at origin (GeographicLib LocalCartesian, WGS84); road surface at z = 0"}};
-  j["layout"] = {{"turn_radius_m", town.options.turn_radius_m}, {"stub_length_m", town.options.stub_length_m},
-                 {"curve_length_m", town.options.curve_length_m}, {"curve_offset_m", town.options.curve_offset_m},
-                 {"streets", town.streets.size()}, {"buildings", town.buildings.size()},
-                 {"vehicles", town.vehicles.size()}, {"poles", town.poles.size()}, {"trees", town.trees.size()},
-                 {"lane_width_m", StreetSection::kLaneWidthM}, {"facade_offset_min_m", StreetSection::kFacadeM},
+  j["origin"] = {
+      {"lat_deg", kTownOrigin.lat_deg},
+      {"lon_deg", kTownOrigin.lon_deg},
+      {"height_m", kTownOrigin.height_m},
+      {"frame",
+       "ENU tangent at origin (GeographicLib LocalCartesian, WGS84); road surface at z = 0"}};
+  j["layout"] = {{"turn_radius_m", town.options.turn_radius_m},
+                 {"stub_length_m", town.options.stub_length_m},
+                 {"curve_length_m", town.options.curve_length_m},
+                 {"curve_offset_m", town.options.curve_offset_m},
+                 {"streets", town.streets.size()},
+                 {"buildings", town.buildings.size()},
+                 {"vehicles", town.vehicles.size()},
+                 {"poles", town.poles.size()},
+                 {"trees", town.trees.size()},
+                 {"lane_width_m", StreetSection::kLaneWidthM},
+                 {"facade_offset_min_m", StreetSection::kFacadeM},
                  {"survey_lane_offset_m", StreetSection::kSurveyLaneM}};
-  j["survey_pose_noise"] = {{"horizontal_sigma_m_per_axis", 0.02}, {"vertical_sigma_m", 0.03},
-                            {"heading_sigma_deg", 0.05}, {"pitch_roll_sigma_deg", 0.03},
-                            {"note", "drive.csv of the survey holds truth plus this noise; images are rendered at truth"}};
+  j["survey_pose_noise"] = {
+      {"horizontal_sigma_m_per_axis", 0.02},
+      {"vertical_sigma_m", 0.03},
+      {"heading_sigma_deg", 0.05},
+      {"pitch_roll_sigma_deg", 0.03},
+      {"note",
+       "drive.csv of the survey holds truth plus this noise; images are rendered at truth"}};
   const GnssOptions gnss;
   for (const PlannedDrive& d : drives) {
     nlohmann::json dj;
@@ -238,26 +264,42 @@ nlohmann::json TownJson(const DemoOptions& o, const Town& town, const std::vecto
     dj["speed_mps"] = d.plan.speed_mps;
     dj["spacing_m"] = d.plan.spacing_m;
     dj["spacing_jitter_m"] = d.plan.spacing_jitter_m;
-    dj["attitude_jitter_sigma_deg"] = {d.plan.heading_jitter_deg, d.plan.pitch_jitter_deg, d.plan.roll_jitter_deg};
+    dj["attitude_jitter_sigma_deg"] = {d.plan.heading_jitter_deg, d.plan.pitch_jitter_deg,
+                                       d.plan.roll_jitter_deg};
     dj["start"] = FormatIsoUtc(kSurveyStartUnix + d.condition.start_offset_s);
     for (const Pass& p : d.passes)
-      dj["passes"].push_back({{"s_from_m", p.s_from_m}, {"s_to_m", p.s_to_m}, {"lane_offset_right_m", p.lane_offset_m},
+      dj["passes"].push_back({{"s_from_m", p.s_from_m},
+                              {"s_to_m", p.s_to_m},
+                              {"lane_offset_right_m", p.lane_offset_m},
                               {"wander_m", p.wander_m}});
     const Condition& c = d.condition;
-    dj["appearance"] = {{"vehicle_variant", c.variant}, {"exposure", c.exposure}, {"contrast", c.contrast},
-                        {"tone_gamma", c.tone_gamma}, {"tint_bgr", {c.tint[0], c.tint[1], c.tint[2]}},
-                        {"noise_sigma", c.noise_sigma}, {"blur_sigma_px", c.blur_sigma}, {"jpeg_quality", c.jpeg_quality},
-                        {"sun", c.look.sun}, {"ambient", c.look.ambient}};
+    dj["appearance"] = {{"vehicle_variant", c.variant},
+                        {"exposure", c.exposure},
+                        {"contrast", c.contrast},
+                        {"tone_gamma", c.tone_gamma},
+                        {"tint_bgr", {c.tint[0], c.tint[1], c.tint[2]}},
+                        {"noise_sigma", c.noise_sigma},
+                        {"blur_sigma_px", c.blur_sigma},
+                        {"jpeg_quality", c.jpeg_quality},
+                        {"sun", c.look.sun},
+                        {"ambient", c.look.ambient}};
     if (!d.gnss.empty()) {
-      dj["gnss"] = {{"file", "gnss.csv"}, {"rate_hz", gnss.rate_hz}, {"model", "first-order Gauss-Markov per axis"},
-                    {"sigma_h_m_per_axis", gnss.sigma_h_m}, {"sigma_v_m", gnss.sigma_v_m}, {"tau_s", gnss.tau_s},
+      dj["gnss"] = {{"file", "gnss.csv"},
+                    {"rate_hz", gnss.rate_hz},
+                    {"model", "first-order Gauss-Markov per axis"},
+                    {"sigma_h_m_per_axis", gnss.sigma_h_m},
+                    {"sigma_v_m", gnss.sigma_v_m},
+                    {"tau_s", gnss.tau_s},
                     {"claimed_sigma_h_m", gnss.claimed_sigma_h_m}};
       const double start = kSurveyStartUnix + c.start_offset_s;
       for (const SpoofSegment& s : d.spoofing)
-        dj["spoofed_segments"].push_back({{"start", FormatIsoUtc(start + s.start_s)}, {"start_s", s.start_s},
-                                          {"length_s", s.length_s}, {"rate_mps", s.rate_mps},
-                                          {"bearing_deg", s.bearing_deg},
-                                          {"model", "offset grows linearly at rate_mps along bearing_deg, then snaps back"}});
+        dj["spoofed_segments"].push_back(
+            {{"start", FormatIsoUtc(start + s.start_s)},
+             {"start_s", s.start_s},
+             {"length_s", s.length_s},
+             {"rate_mps", s.rate_mps},
+             {"bearing_deg", s.bearing_deg},
+             {"model", "offset grows linearly at rate_mps along bearing_deg, then snaps back"}});
     }
     j["drives"][c.name] = dj;
   }
@@ -277,8 +319,9 @@ void WriteContactSheet(const fs::path& out, const std::vector<PlannedDrive>& dri
       if (img.empty()) continue;
       cv::resize(img, img, cv::Size(tw, th), 0, 0, cv::INTER_AREA);
       img.copyTo(sheet(cv::Rect(c * tw, int(r) * (th + label) + label, tw, th)));
-      cv::putText(sheet, drives[r].condition.name + " #" + std::to_string(k), {c * tw + 6, int(r) * (th + label) + 16},
-                  cv::FONT_HERSHEY_SIMPLEX, 0.45, cv::Scalar(235, 235, 235), 1, cv::LINE_AA);
+      cv::putText(sheet, drives[r].condition.name + " #" + std::to_string(k),
+                  {c * tw + 6, int(r) * (th + label) + 16}, cv::FONT_HERSHEY_SIMPLEX, 0.45,
+                  cv::Scalar(235, 235, 235), 1, cv::LINE_AA);
     }
   }
   cv::imwrite((out / "contact_sheet.png").string(), sheet);
@@ -289,11 +332,14 @@ void WriteContactSheet(const fs::path& out, const std::vector<PlannedDrive>& dri
 bool DemoOptions::Validate(std::string* error) const {
   auto fail = [&](const char* m) { return *error = m, false; };
   if (out_dir.empty()) return fail("--out is required");
-  if (!(route_length_m >= 100 && route_length_m <= 20000)) return fail("--route-length-m must be within [100, 20000]");
+  if (!(route_length_m >= 100 && route_length_m <= 20000))
+    return fail("--route-length-m must be within [100, 20000]");
   if (image_width < 160 || image_height < 120 || image_width > 4096 || image_height > 4096)
     return fail("--image-size must be between 160x120 and 4096x4096");
-  if (!(survey_spacing_m >= 0.5 && survey_spacing_m <= 20)) return fail("survey spacing must be within [0.5, 20] m");
-  if (!(query_spacing_m >= 0.5 && query_spacing_m <= 50)) return fail("query spacing must be within [0.5, 50] m");
+  if (!(survey_spacing_m >= 0.5 && survey_spacing_m <= 20))
+    return fail("survey spacing must be within [0.5, 20] m");
+  if (!(query_spacing_m >= 0.5 && query_spacing_m <= 50))
+    return fail("query spacing must be within [0.5, 50] m");
   if (supersample < 1 || supersample > 4) return fail("--supersample must be 1..4");
   if (jobs < 0) return fail("--jobs must be >= 0");
   return true;
@@ -319,7 +365,9 @@ Result<DemoSummary> GenerateDemoTown(const DemoOptions& o) {
   for (const PlannedDrive& d : drives) {
     fs::remove_all(out / d.condition.name, ec);
     fs::create_directories(out / d.condition.name / "images", ec);
-    if (ec) return Status::IoError("cannot create " + (out / d.condition.name).string() + ": " + ec.message());
+    if (ec)
+      return Status::IoError("cannot create " + (out / d.condition.name).string() + ": " +
+                             ec.message());
   }
   struct Job {
     const PlannedDrive* drive;
@@ -341,8 +389,10 @@ Result<DemoSummary> GenerateDemoTown(const DemoOptions& o) {
       const PlannedDrive& d = *jobs[j].drive;
       const Frame& f = d.truth[jobs[j].index];
       const CameraPose pose{f.position, EnuFromCamera(f.attitude).t()};
-      const cv::Mat linear = scene.Render(pose, d.camera, d.condition.look, d.condition.variant, render);
-      const cv::Mat img = FinishImage(linear, d.condition, HashSeed(o.seed, 0x696d67, d.condition.variant, jobs[j].index));
+      const cv::Mat linear =
+          scene.Render(pose, d.camera, d.condition.look, d.condition.variant, render);
+      const cv::Mat img = FinishImage(
+          linear, d.condition, HashSeed(o.seed, 0x696d67, d.condition.variant, jobs[j].index));
       char name[32];
       std::snprintf(name, sizeof(name), "images/%06zu.jpg", jobs[j].index);
       const fs::path path = out / d.condition.name / name;
@@ -374,7 +424,8 @@ Result<DemoSummary> GenerateDemoTown(const DemoOptions& o) {
   summary.poles = static_cast<int>(town.poles.size());
   summary.trees = static_cast<int>(town.trees.size());
   summary.render_s = render_s;
-  summary.total_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t_start).count();
+  summary.total_s =
+      std::chrono::duration<double>(std::chrono::steady_clock::now() - t_start).count();
   summary.contact_sheet = (out / "contact_sheet.png").string();
   return summary;
 }

@@ -14,7 +14,7 @@ namespace sightfix::demo {
 struct DemoOptions {
   std::string out_dir;
   uint64_t seed = 1;
-  double route_length_m = 1000;  // survey route, one direction
+  double route_length_m = 1000;               // survey route, one direction
   int image_width = 640, image_height = 480;  // survey camera; query-overcast has its own
   double survey_spacing_m = 2.0;
   double query_spacing_m = 5.0;

@@ -20,7 +20,8 @@ Frame PoseOnPass(const Polyline& route, const Pass& pass, double d, double camer
   const cv::Vec2d c = route.At(pass.s_from_m + dir * d, &t);
   const cv::Vec2d travel = dir * t;
   const cv::Vec2d right(travel[1], -travel[0]);
-  const double offset = pass.lane_offset_m + pass.wander_m * std::sin(2 * M_PI * d / 80.0 + pass.wander_phase);
+  const double offset =
+      pass.lane_offset_m + pass.wander_m * std::sin(2 * M_PI * d / 80.0 + pass.wander_phase);
   const cv::Vec2d p = c + offset * right;
   Frame f;
   f.position = {p[0], p[1], camera_height_m};
@@ -32,19 +33,22 @@ Frame PoseOnPass(const Polyline& route, const Pass& pass, double d, double camer
 
 double DriveDuration(const std::vector<Pass>& passes, const DrivePlanOptions& o) {
   double t = 0;
-  for (size_t i = 0; i < passes.size(); ++i) t += PassLength(passes[i]) / o.speed_mps + (i + 1 < passes.size() ? o.turnaround_s : 0);
+  for (size_t i = 0; i < passes.size(); ++i)
+    t += PassLength(passes[i]) / o.speed_mps + (i + 1 < passes.size() ? o.turnaround_s : 0);
   return t;
 }
 
-std::vector<Frame> PlanFrames(const Polyline& route, const std::vector<Pass>& passes, const DrivePlanOptions& o,
-                              Rng& rng) {
+std::vector<Frame> PlanFrames(const Polyline& route, const std::vector<Pass>& passes,
+                              const DrivePlanOptions& o, Rng& rng) {
   std::vector<Frame> frames;
   double t0 = 0;
   for (const Pass& pass : passes) {
-    for (double d = o.spacing_m / 2; d < PassLength(pass); d += o.spacing_m + rng.Uniform(-1, 1) * o.spacing_jitter_m) {
+    for (double d = o.spacing_m / 2; d < PassLength(pass);
+         d += o.spacing_m + rng.Uniform(-1, 1) * o.spacing_jitter_m) {
       Frame f = PoseOnPass(route, pass, d, o.camera_height_m);
       f.time_s = t0 + d / o.speed_mps;
-      f.attitude.heading_deg = std::fmod(f.attitude.heading_deg + Truncated(rng, o.heading_jitter_deg) + 360.0, 360.0);
+      f.attitude.heading_deg =
+          std::fmod(f.attitude.heading_deg + Truncated(rng, o.heading_jitter_deg) + 360.0, 360.0);
       f.attitude.pitch_deg = Truncated(rng, o.pitch_jitter_deg);
       f.attitude.roll_deg = Truncated(rng, o.roll_jitter_deg);
       frames.push_back(f);
@@ -54,13 +58,15 @@ std::vector<Frame> PlanFrames(const Polyline& route, const std::vector<Pass>& pa
   return frames;
 }
 
-Frame PoseAtTime(const Polyline& route, const std::vector<Pass>& passes, const DrivePlanOptions& o, double t) {
+Frame PoseAtTime(const Polyline& route, const std::vector<Pass>& passes, const DrivePlanOptions& o,
+                 double t) {
   double t0 = 0;
   for (size_t i = 0; i < passes.size(); ++i) {
     const double dur = PassLength(passes[i]) / o.speed_mps;
     const bool last = i + 1 == passes.size();
     if (t < t0 + dur || last) {
-      Frame f = PoseOnPass(route, passes[i], std::clamp((t - t0) * o.speed_mps, 0.0, PassLength(passes[i])),
+      Frame f = PoseOnPass(route, passes[i],
+                           std::clamp((t - t0) * o.speed_mps, 0.0, PassLength(passes[i])),
                            o.camera_height_m);
       f.time_s = t;
       return f;
@@ -85,7 +91,9 @@ std::vector<SpoofSegment> PlanSpoofing(double duration_s, Rng& rng) {
     SpoofSegment s;
     s.length_s = duration_s * rng.Uniform(0.08, 0.14);
     const double slot0 = duration_s * k / 3.0, slot1 = duration_s * (k + 1) / 3.0;
-    s.start_s = rng.Uniform(slot0 + 0.05 * duration_s, std::max(slot0 + 0.05 * duration_s, slot1 - s.length_s - 0.02 * duration_s));
+    s.start_s =
+        rng.Uniform(slot0 + 0.05 * duration_s,
+                    std::max(slot0 + 0.05 * duration_s, slot1 - s.length_s - 0.02 * duration_s));
     s.rate_mps = rates[k];
     s.bearing_deg = rng.Uniform(0, 360);
     out.push_back(s);
@@ -117,7 +125,8 @@ std::vector<GnssSample> SimulateGnss(const Polyline& route, const std::vector<Pa
     s.course_deg = std::fmod(truth.attitude.heading_deg + 0.8 * rng.Normal() + 360.0, 360.0);
     s.claimed_sigma_h_m = o.claimed_sigma_h_m;
     out.push_back(s);
-    err = phi * err + q * cv::Vec3d(o.sigma_h_m * rng.Normal(), o.sigma_h_m * rng.Normal(), o.sigma_v_m * rng.Normal());
+    err = phi * err + q * cv::Vec3d(o.sigma_h_m * rng.Normal(), o.sigma_h_m * rng.Normal(),
+                                    o.sigma_v_m * rng.Normal());
   }
   return out;
 }

@@ -5,10 +5,9 @@
 // lateral offsets are to the right of the direction of travel (right-hand traffic).
 #pragma once
 
+#include <opencv2/core.hpp>
 #include <string>
 #include <vector>
-
-#include <opencv2/core.hpp>
 
 #include "demo_route/random.h"
 #include "demo_route/town_layout.h"
@@ -30,12 +29,12 @@ struct Frame {
 };
 
 struct DrivePlanOptions {
-  double spacing_m = 2.0;          // distance between frames along the drive
-  double spacing_jitter_m = 0.0;   // uniform +- jitter of that distance
+  double spacing_m = 2.0;         // distance between frames along the drive
+  double spacing_jitter_m = 0.0;  // uniform +- jitter of that distance
   double speed_mps = 8.0;
-  double turnaround_s = 15.0;      // time between passes
+  double turnaround_s = 15.0;  // time between passes
   double camera_height_m = 1.5;
-  double heading_jitter_deg = 0;   // 1-sigma, truncated at 2.5 sigma
+  double heading_jitter_deg = 0;  // 1-sigma, truncated at 2.5 sigma
   double pitch_jitter_deg = 0;
   double roll_jitter_deg = 0;
 };
@@ -46,12 +45,13 @@ Frame PoseOnPass(const Polyline& route, const Pass& pass, double d, double camer
 double PassLength(const Pass& pass);
 
 // Frames along the passes, in drive order, with times from the speed.
-std::vector<Frame> PlanFrames(const Polyline& route, const std::vector<Pass>& passes, const DrivePlanOptions& o,
-                              Rng& rng);
+std::vector<Frame> PlanFrames(const Polyline& route, const std::vector<Pass>& passes,
+                              const DrivePlanOptions& o, Rng& rng);
 // Total duration of a drive (seconds).
 double DriveDuration(const std::vector<Pass>& passes, const DrivePlanOptions& o);
 // The true camera pose at time t of the drive (for the GNSS stream).
-Frame PoseAtTime(const Polyline& route, const std::vector<Pass>& passes, const DrivePlanOptions& o, double t);
+Frame PoseAtTime(const Polyline& route, const std::vector<Pass>& passes, const DrivePlanOptions& o,
+                 double t);
 
 // A spoofing attack on the GNSS receiver: from start_s, the reported position is dragged
 // away along bearing_deg at rate_mps for length_s seconds, then snaps back.
@@ -61,9 +61,9 @@ struct SpoofSegment {
 
 struct GnssOptions {
   double rate_hz = 5;
-  double sigma_h_m = 1.2;       // stationary 1-sigma per horizontal axis of the Gauss-Markov error
+  double sigma_h_m = 1.2;  // stationary 1-sigma per horizontal axis of the Gauss-Markov error
   double sigma_v_m = 2.0;
-  double tau_s = 30;            // its correlation time
+  double tau_s = 30;               // its correlation time
   double claimed_sigma_h_m = 1.5;  // what the receiver says about itself
 };
 

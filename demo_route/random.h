@@ -41,7 +41,9 @@ class Rng {
   double Unit() { return static_cast<double>(Next() >> 11) * 0x1.0p-53; }
   double Uniform(double lo, double hi) { return lo + (hi - lo) * Unit(); }
   // Uniform integer in [lo, hi].
-  int Int(int lo, int hi) { return lo + static_cast<int>(Next() % static_cast<uint64_t>(hi - lo + 1)); }
+  int Int(int lo, int hi) {
+    return lo + static_cast<int>(Next() % static_cast<uint64_t>(hi - lo + 1));
+  }
   bool Chance(double p) { return Unit() < p; }
   // Standard normal (Box-Muller; one value per call for simplicity).
   double Normal() {

@@ -1,8 +1,7 @@
 // sightfix-demo-route: generates the procedural demo town with its survey and query drives.
+#include <boost/program_options.hpp>
 #include <cstdio>
 #include <iostream>
-
-#include <boost/program_options.hpp>
 #include <nlohmann/json.hpp>
 
 #include "demo_route/demo_town.h"
@@ -13,20 +12,26 @@ int main(int argc, char** argv) {
   sightfix::demo::DemoOptions o;
   std::string size = "640x480";
   po::options_description desc(
-      "sightfix-demo-route: generate the demo town (an invented place), its survey drive and three query drives\n"
-      "with exact ground truth, GNSS streams with spoofed segments, town.json and a contact sheet.\n\n"
+      "sightfix-demo-route: generate the demo town (an invented place), its survey drive and three "
+      "query drives\n"
+      "with exact ground truth, GNSS streams with spoofed segments, town.json and a contact "
+      "sheet.\n\n"
       "Usage: sightfix-demo-route --out DIR [options]\n\nOptions");
-  desc.add_options()
-      ("help,h", "show this help")
-      ("out", po::value(&o.out_dir), "output folder (its survey/ and query-*/ folders are replaced)")
-      ("seed", po::value(&o.seed)->default_value(o.seed), "world seed: same seed, same bytes")
-      ("route-length-m", po::value(&o.route_length_m)->default_value(o.route_length_m), "survey route length, metres")
-      ("image-size", po::value(&size)->default_value(size), "survey camera image size WxH")
-      ("survey-spacing-m", po::value(&o.survey_spacing_m)->default_value(o.survey_spacing_m), "survey frame spacing")
-      ("query-spacing-m", po::value(&o.query_spacing_m)->default_value(o.query_spacing_m), "query frame spacing (jittered)")
-      ("supersample", po::value(&o.supersample)->default_value(o.supersample), "anti-aliasing factor 1..4")
-      ("jobs", po::value(&o.jobs)->default_value(0), "render threads (0 = all cores); output does not depend on it")
-      ("json", "print the summary as JSON on stdout");
+  desc.add_options()("help,h", "show this help")(
+      "out", po::value(&o.out_dir),
+      "output folder (its survey/ and query-*/ folders are replaced)")(
+      "seed", po::value(&o.seed)->default_value(o.seed), "world seed: same seed, same bytes")(
+      "route-length-m", po::value(&o.route_length_m)->default_value(o.route_length_m),
+      "survey route length, metres")("image-size", po::value(&size)->default_value(size),
+                                     "survey camera image size WxH")(
+      "survey-spacing-m", po::value(&o.survey_spacing_m)->default_value(o.survey_spacing_m),
+      "survey frame spacing")("query-spacing-m",
+                              po::value(&o.query_spacing_m)->default_value(o.query_spacing_m),
+                              "query frame spacing (jittered)")(
+      "supersample", po::value(&o.supersample)->default_value(o.supersample),
+      "anti-aliasing factor 1..4")("jobs", po::value(&o.jobs)->default_value(0),
+                                   "render threads (0 = all cores); output does not depend on it")(
+      "json", "print the summary as JSON on stdout");
   po::variables_map vm;
   try {
     po::store(po::parse_command_line(argc, argv, desc), vm);
@@ -40,7 +45,8 @@ int main(int argc, char** argv) {
     return 0;
   }
   if (std::sscanf(size.c_str(), "%dx%d", &o.image_width, &o.image_height) != 2) {
-    std::fprintf(stderr, "sightfix-demo-route: --image-size must look like 640x480, got '%s'\n", size.c_str());
+    std::fprintf(stderr, "sightfix-demo-route: --image-size must look like 640x480, got '%s'\n",
+                 size.c_str());
     return 2;
   }
   std::string error;
@@ -55,16 +61,24 @@ int main(int argc, char** argv) {
   }
   const auto& s = *r;
   if (vm.count("json")) {
-    nlohmann::json j = {{"out", o.out_dir}, {"seed", o.seed}, {"route_length_m", o.route_length_m},
-                        {"buildings", s.buildings}, {"vehicles", s.vehicles}, {"poles", s.poles}, {"trees", s.trees},
-                        {"render_s", s.render_s}, {"total_s", s.total_s}, {"contact_sheet", s.contact_sheet}};
+    nlohmann::json j = {{"out", o.out_dir},
+                        {"seed", o.seed},
+                        {"route_length_m", o.route_length_m},
+                        {"buildings", s.buildings},
+                        {"vehicles", s.vehicles},
+                        {"poles", s.poles},
+                        {"trees", s.trees},
+                        {"render_s", s.render_s},
+                        {"total_s", s.total_s},
+                        {"contact_sheet", s.contact_sheet}};
     for (const auto& d : s.drives) j["drives"][d.name] = d.images;
     std::cout << j.dump(2) << "\n";
     return 0;
   }
-  std::printf("demo town (seed %llu, route %.0f m) written to %s\n", static_cast<unsigned long long>(o.seed),
-              o.route_length_m, o.out_dir.c_str());
-  std::printf("  %d buildings, %d parked vehicles, %d poles, %d trees\n", s.buildings, s.vehicles, s.poles, s.trees);
+  std::printf("demo town (seed %llu, route %.0f m) written to %s\n",
+              static_cast<unsigned long long>(o.seed), o.route_length_m, o.out_dir.c_str());
+  std::printf("  %d buildings, %d parked vehicles, %d poles, %d trees\n", s.buildings, s.vehicles,
+              s.poles, s.trees);
   int total = 0;
   for (const auto& d : s.drives) {
     std::printf("  %-15s %5d images\n", d.name.c_str(), d.images);

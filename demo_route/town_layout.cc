@@ -108,8 +108,10 @@ bool Overlap(const std::array<cv::Vec2d, 4>& a, const std::array<cv::Vec2d, 4>& 
       const double n = cv::norm(axis);
       if (n < 1e-9) continue;
       double amin = 1e18, amax = -1e18, bmin = 1e18, bmax = -1e18;
-      for (const cv::Vec2d& p : a) amin = std::min(amin, p.dot(axis) / n), amax = std::max(amax, p.dot(axis) / n);
-      for (const cv::Vec2d& p : b) bmin = std::min(bmin, p.dot(axis) / n), bmax = std::max(bmax, p.dot(axis) / n);
+      for (const cv::Vec2d& p : a)
+        amin = std::min(amin, p.dot(axis) / n), amax = std::max(amax, p.dot(axis) / n);
+      for (const cv::Vec2d& p : b)
+        bmin = std::min(bmin, p.dot(axis) / n), bmax = std::max(bmax, p.dot(axis) / n);
       if (amax <= bmin + 0.05 || bmax <= amin + 0.05) return false;
     }
   }
@@ -126,7 +128,8 @@ class Placer {
       const cv::Vec2d a = fp[i], b = fp[(i + 1) % 4];
       const int n = static_cast<int>(std::ceil(cv::norm(b - a) / 0.7));
       for (int k = 0; k <= n; ++k) {
-        if (DistanceToStreets(*town_, a + (b - a) * (double(k) / n)) < StreetSection::kFacadeM - 0.05)
+        if (DistanceToStreets(*town_, a + (b - a) * (double(k) / n)) <
+            StreetSection::kFacadeM - 0.05)
           return false;
       }
     }
@@ -154,7 +157,8 @@ class Placer {
 
 // Footprint of a building whose front runs from a to b (b on the viewer's right seen from the
 // street), `depth` metres deep; counter-clockwise, front edge index returned in *front.
-std::array<cv::Vec2d, 4> FrontFootprint(const cv::Vec2d& a, const cv::Vec2d& b, double depth, int* front) {
+std::array<cv::Vec2d, 4> FrontFootprint(const cv::Vec2d& a, const cv::Vec2d& b, double depth,
+                                        int* front) {
   const cv::Vec2d along = (b - a) / cv::norm(b - a);
   const cv::Vec2d back = Perp(along) * depth;  // away from the street (left of a->b)
   // Counter-clockwise: the front edge a -> b has the street (the exterior) on its right.
@@ -180,7 +184,8 @@ void PlaceStreetBuildings(Town* town, Placer* placer, Rng& rng) {
           const cv::Vec2d q0 = p0 - side * off * Perp(t0), q1 = p1 - side * off * Perp(t1);
           int front = 0;
           // Seen from the street, the right-side front runs q1 -> q0 left to right.
-          const auto fp = side > 0 ? FrontFootprint(q1, q0, depth, &front) : FrontFootprint(q0, q1, depth, &front);
+          const auto fp = side > 0 ? FrontFootprint(q1, q0, depth, &front)
+                                   : FrontFootprint(q0, q1, depth, &front);
           placed = placer->TryBuilding(fp, front, rng);
         }
         if (placed) {
@@ -194,7 +199,8 @@ void PlaceStreetBuildings(Town* town, Placer* placer, Rng& rng) {
 }
 
 // A facade across the far end of a street, so a view down it ends in buildings.
-void CloseStreetEnd(Town* town, Placer* placer, const cv::Vec2d& end, const cv::Vec2d& dir, Rng& rng) {
+void CloseStreetEnd(Town* town, Placer* placer, const cv::Vec2d& end, const cv::Vec2d& dir,
+                    Rng& rng) {
   const cv::Vec2d across = -Perp(dir);  // viewer's right looking along dir
   const cv::Vec2d a = end + 1.0 * dir - 14 * across, b = end + 1.0 * dir + 14 * across;
   int front = 0;
@@ -239,8 +245,10 @@ void PlaceStreetFurniture(Town* town, Placer* placer, Rng& rng) {
         v.height_m = van ? rng.Uniform(2.0, 2.4) : rng.Uniform(1.4, 1.65);
         v.yaw_rad = std::atan2(t[1], t[0]) + (side < 0 ? M_PI : 0.0);
         const cv::Vec2d ax = t * (v.length_m / 2), ay = Perp(t) * (v.width_m / 2);
-        if (!ClearOfCarriageways(*town, {v.centre + ax + ay, v.centre + ax - ay, v.centre - ax + ay, v.centre - ax - ay},
-                                 StreetSection::kCarriagewayM + 0.05))
+        if (!ClearOfCarriageways(
+                *town,
+                {v.centre + ax + ay, v.centre + ax - ay, v.centre - ax + ay, v.centre - ax - ay},
+                StreetSection::kCarriagewayM + 0.05))
           continue;
         v.id = vehicle_id++;
         v.seed = rng.Next();
@@ -277,7 +285,8 @@ void PlaceStreetFurniture(Town* town, Placer* placer, Rng& rng) {
         tr.seed = rng.Next();
         bool near_pole = false;
         for (const Pole& p : town->poles) near_pole |= cv::norm(p.base - tr.base) < 1.8;
-        if (!near_pole && DistanceToStreets(*town, tr.base) > 9.0 && !placer->InsideBuilding(tr.base))
+        if (!near_pole && DistanceToStreets(*town, tr.base) > 9.0 &&
+            !placer->InsideBuilding(tr.base))
           town->trees.push_back(tr);
       }
     }

@@ -12,20 +12,19 @@
 
 #include <array>
 #include <cstdint>
-#include <vector>
-
 #include <opencv2/core.hpp>
+#include <vector>
 
 namespace sightfix::demo {
 
 // Cross-section of every street, metres from the centreline.
 struct StreetSection {
-  static constexpr double kLaneWidthM = 3.0;     // two lanes each way
-  static constexpr double kCarriagewayM = 6.0;   // edge of the outer lane
-  static constexpr double kParkingM = 8.0;       // outer edge of the parking strip (kerb)
-  static constexpr double kFacadeM = 10.5;       // nearest facade line
-  static constexpr double kSurveyLaneM = 4.5;    // centre of the outer lane
-  static constexpr double kQueryLaneM = 1.5;     // centre of the inner lane
+  static constexpr double kLaneWidthM = 3.0;    // two lanes each way
+  static constexpr double kCarriagewayM = 6.0;  // edge of the outer lane
+  static constexpr double kParkingM = 8.0;      // outer edge of the parking strip (kerb)
+  static constexpr double kFacadeM = 10.5;      // nearest facade line
+  static constexpr double kSurveyLaneM = 4.5;   // centre of the outer lane
+  static constexpr double kQueryLaneM = 1.5;    // centre of the inner lane
 };
 
 // A polyline with cumulative arc length, sampled finely enough that chords follow curves.

@@ -9,9 +9,8 @@
 #include <functional>
 #include <memory>
 #include <mutex>
-#include <vector>
-
 #include <opencv2/core.hpp>
+#include <vector>
 
 namespace sightfix::demo {
 
@@ -24,8 +23,8 @@ class GlyphSet {
  public:
   explicit GlyphSet(uint64_t seed, int count = 40);
   // Draws a random string of n glyphs; top-left at `at`, glyph height h_px.
-  void DrawText(cv::Mat& img, cv::Point2d at, double h_px, int n, uint64_t seed, const cv::Scalar& colour,
-                int thickness) const;
+  void DrawText(cv::Mat& img, cv::Point2d at, double h_px, int n, uint64_t seed,
+                const cv::Scalar& colour, int thickness) const;
   int count() const { return static_cast<int>(glyphs_.size()); }
 
  private:
@@ -67,7 +66,8 @@ struct FacadeSpec {
 cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs);
 cv::Mat PaintPlainWall(double width_m, double height_m, uint64_t seed);
 // side: a long side (true) or an end (front/back) of a vehicle.
-cv::Mat PaintVehicle(double length_m, double height_m, uint64_t seed, int face, const GlyphSet& glyphs);
+cv::Mat PaintVehicle(double length_m, double height_m, uint64_t seed, int face,
+                     const GlyphSet& glyphs);
 cv::Mat PaintMetal(uint64_t seed);
 cv::Mat PaintSign(uint64_t seed, const GlyphSet& glyphs);  // BGRA, 0.7 m square
 cv::Mat PaintCanopy(uint64_t seed);                        // BGRA, leaves on transparent

@@ -3,9 +3,8 @@
 #include <algorithm>
 #include <cmath>
 #include <mutex>
-#include <sstream>
-
 #include <opencv2/imgproc.hpp>
+#include <sstream>
 
 #include "demo_route/random.h"
 
@@ -16,13 +15,16 @@ constexpr int kSky = -1;
 constexpr int kGround = -2;
 
 inline uint32_t Hash2(int32_t x, int32_t y, uint32_t seed) {
-  uint32_t h = static_cast<uint32_t>(x) * 0x8da6b343u ^ static_cast<uint32_t>(y) * 0xd8163841u ^ seed * 0xcb1ab31fu;
+  uint32_t h = static_cast<uint32_t>(x) * 0x8da6b343u ^ static_cast<uint32_t>(y) * 0xd8163841u ^
+               seed * 0xcb1ab31fu;
   h ^= h >> 13;
   h *= 0x5bd1e995u;
   return h ^ (h >> 15);
 }
 
-inline float HashUnit(int32_t x, int32_t y, uint32_t seed) { return (Hash2(x, y, seed) & 0xffffff) / 16777216.0f; }
+inline float HashUnit(int32_t x, int32_t y, uint32_t seed) {
+  return (Hash2(x, y, seed) & 0xffffff) / 16777216.0f;
+}
 
 // Smooth value noise in [0, 1) at unit lattice spacing.
 inline float ValueNoise(double x, double y, uint32_t seed) {
@@ -73,7 +75,8 @@ cv::Vec3f Bilinear(const cv::Mat& img, double x, double y, float* alpha) {
 
 // Trilinear mip-mapped sample; footprint in texels of level 0.
 cv::Vec3f SampleTexture(const Texture& t, double u, double v, double footprint_texels) {
-  const double level = std::clamp(std::log2(std::max(footprint_texels, 1e-6)), 0.0, double(t.levels.size() - 1));
+  const double level =
+      std::clamp(std::log2(std::max(footprint_texels, 1e-6)), 0.0, double(t.levels.size() - 1));
   const int l0 = static_cast<int>(level);
   const int l1 = std::min<int>(l0 + 1, t.levels.size() - 1);
   const float f = static_cast<float>(level - l0);
@@ -85,7 +88,8 @@ cv::Vec3f SampleTexture(const Texture& t, double u, double v, double footprint_t
 }
 
 float SampleAlpha(const Texture& t, double u, double v, double footprint_texels) {
-  const int level = std::clamp(static_cast<int>(std::log2(std::max(footprint_texels, 1.0))), 0, int(t.levels.size() - 1));
+  const int level = std::clamp(static_cast<int>(std::log2(std::max(footprint_texels, 1.0))), 0,
+                               int(t.levels.size() - 1));
   const cv::Mat& m = t.levels[level];
   const int x = std::clamp(static_cast<int>(u * m.cols), 0, m.cols - 1);
   const int y = std::clamp(static_cast<int>(v * m.rows), 0, m.rows - 1);
@@ -94,8 +98,8 @@ float SampleAlpha(const Texture& t, double u, double v, double footprint_texels)
 
 }  // namespace
 
-Quad MakeQuad(const cv::Vec3d& origin, const cv::Vec3d& u_axis, const cv::Vec3d& v_axis, int texture,
-              double brightness) {
+Quad MakeQuad(const cv::Vec3d& origin, const cv::Vec3d& u_axis, const cv::Vec3d& v_axis,
+              int texture, double brightness) {
   Quad q;
   q.origin = origin;
   q.u_axis = u_axis;
@@ -120,14 +124,16 @@ struct TownScene::Ground {
   std::vector<std::vector<int>> cells;
   uint32_t seed;
 
-  explicit Ground(const Town& town) : seed(static_cast<uint32_t>(HashSeed(town.options.seed, 0x67726e))) {
+  explicit Ground(const Town& town)
+      : seed(static_cast<uint32_t>(HashSeed(town.options.seed, 0x67726e))) {
     cv::Vec2d mn(1e18, 1e18), mx(-1e18, -1e18);
     for (const Street& st : town.streets) {
       const auto& p = st.centre.points();
       for (size_t i = 1; i < p.size(); ++i) {
         segments.push_back({p[i - 1], p[i], st.centre.arc()[i - 1]});
         for (const cv::Vec2d& q : {p[i - 1], p[i]})
-          mn = {std::min(mn[0], q[0]), std::min(mn[1], q[1])}, mx = {std::max(mx[0], q[0]), std::max(mx[1], q[1])};
+          mn = {std::min(mn[0], q[0]), std::min(mn[1], q[1])},
+          mx = {std::max(mx[0], q[0]), std::max(mx[1], q[1])};
       }
     }
     const double reach = StreetSection::kFacadeM + kCellM;
@@ -173,41 +179,50 @@ struct TownScene::Ground {
       // Sparse round stones and oil spots, one chance per 0.25 m cell, each at its own place in
       // the cell; drawn with footprint-filtered edges so they stay put under perspective.
       if (fp < 0.08) {
-        const int32_t ix = static_cast<int32_t>(std::floor(x * 4)), iy = static_cast<int32_t>(std::floor(y * 4));
+        const int32_t ix = static_cast<int32_t>(std::floor(x * 4)),
+                      iy = static_cast<int32_t>(std::floor(y * 4));
         const uint32_t hsh = Hash2(ix, iy, seed + 9);
         if ((hsh & 0xff) < 40) {
           const double sx = (ix + 0.25 + 0.5 * ((hsh >> 8) & 0xff) / 255.0) / 4;
           const double sy = (iy + 0.25 + 0.5 * ((hsh >> 16) & 0xff) / 255.0) / 4;
           const double radius = 0.02 + 0.05 * ((hsh >> 24) & 0x0f) / 15.0;
-          const float cover = Stripe(std::hypot(x - sx, y - sy), radius, fp) * static_cast<float>(1.0 - fp / 0.08);
+          const float cover =
+              Stripe(std::hypot(x - sx, y - sy), radius, fp) * static_cast<float>(1.0 - fp / 0.08);
           const float tone = (hsh >> 28) & 1 ? 1.8f : 0.4f;
           g *= 1.0f + (tone - 1.0f) * cover;
         }
       }
       float paint = 0;
-      paint = std::max(paint, Stripe(d, 0.1, fp));                                          // centre line
-      if (std::fmod(s, 9.0) < 3.0) paint = std::max(paint, Stripe(d - StreetSection::kLaneWidthM, 0.07, fp));  // lane dashes
-      paint = std::max(paint, Stripe(d - StreetSection::kCarriagewayM, 0.08, fp));          // edge line
-      if (parking && std::fmod(s, 6.0) < 0.1) paint = std::max(paint, 0.8f);                // bay marks
+      paint = std::max(paint, Stripe(d, 0.1, fp));  // centre line
+      if (std::fmod(s, 9.0) < 3.0)
+        paint = std::max(paint, Stripe(d - StreetSection::kLaneWidthM, 0.07, fp));  // lane dashes
+      paint = std::max(paint, Stripe(d - StreetSection::kCarriagewayM, 0.08, fp));  // edge line
+      if (parking && std::fmod(s, 6.0) < 0.1) paint = std::max(paint, 0.8f);        // bay marks
       const cv::Vec3f asphalt(g, g, g * 1.02f);
       if (paint <= 0) return asphalt;
       paint *= 0.85f + 0.3f * ValueNoise(x * 3, y * 3, seed + 5);  // worn paint
       return Lerp(asphalt, cv::Vec3f(0.82f, 0.85f, 0.86f), std::clamp(paint, 0.0f, 1.0f));
     }
-    if (d < StreetSection::kParkingM + 0.2) return cv::Vec3f(0.62f, 0.63f, 0.64f) * (1.0f + 0.2f * grain);  // kerb
+    if (d < StreetSection::kParkingM + 0.2)
+      return cv::Vec3f(0.62f, 0.63f, 0.64f) * (1.0f + 0.2f * grain);  // kerb
     if (d < StreetSection::kFacadeM + 2.0) {  // paving slabs, 0.6 m, aligned with the street
       const double a = s / 0.6, b = d / 0.6;
-      const int32_t ia = static_cast<int32_t>(std::floor(a)), ib = static_cast<int32_t>(std::floor(b));
+      const int32_t ia = static_cast<int32_t>(std::floor(a)),
+                    ib = static_cast<int32_t>(std::floor(b));
       const float tint = 0.5f + 0.12f * (HashUnit(ia, ib, seed + 3) - 0.5f) + 0.1f * grain;
-      const double ja = std::min(a - ia, 1 - (a - ia)) * 0.6, jb = std::min(b - ib, 1 - (b - ib)) * 0.6;
+      const double ja = std::min(a - ia, 1 - (a - ia)) * 0.6,
+                   jb = std::min(b - ib, 1 - (b - ib)) * 0.6;
       const float joint = std::max(Stripe(ja, 0.01, fp), Stripe(jb, 0.01, fp));
       float spot = 0;  // a stain or chewing-gum spot on one slab in five, somewhere on it
       const uint32_t hs = Hash2(ia, ib, seed + 11);
       if ((hs & 0xff) < 50 && fp < 0.1) {
-        const double sa = (ia + 0.2 + 0.6 * ((hs >> 8) & 0xff) / 255.0) * 0.6, sb = (ib + 0.2 + 0.6 * ((hs >> 16) & 0xff) / 255.0) * 0.6;
-        spot = Stripe(std::hypot(s - sa, d - sb), 0.02 + 0.06 * ((hs >> 24) & 0xf) / 15.0, fp) * static_cast<float>(1 - fp / 0.1);
+        const double sa = (ia + 0.2 + 0.6 * ((hs >> 8) & 0xff) / 255.0) * 0.6,
+                     sb = (ib + 0.2 + 0.6 * ((hs >> 16) & 0xff) / 255.0) * 0.6;
+        spot = Stripe(std::hypot(s - sa, d - sb), 0.02 + 0.06 * ((hs >> 24) & 0xf) / 15.0, fp) *
+               static_cast<float>(1 - fp / 0.1);
       }
-      const cv::Vec3f slab = Lerp(cv::Vec3f(tint * 0.95f, tint, tint * 1.04f), cv::Vec3f(0.3f, 0.3f, 0.3f), joint * 0.7f);
+      const cv::Vec3f slab = Lerp(cv::Vec3f(tint * 0.95f, tint, tint * 1.04f),
+                                  cv::Vec3f(0.3f, 0.3f, 0.3f), joint * 0.7f);
       return Lerp(slab, cv::Vec3f(0.15f, 0.16f, 0.18f), spot * 0.8f);
     }
     const float g = 0.5f + grain;  // yards and verges
@@ -225,10 +240,12 @@ TownScene::TownScene(const Town& town, const std::vector<std::vector<Vehicle>>& 
       const uint64_t seed = HashSeed(b.seed, e);
       if (e == b.front_edge) {
         const FacadeSpec spec{w, b.height_m, b.floors, seed};
-        tex[e] = textures_.Add([spec, glyphs] { return PaintFacade(spec, *glyphs); }, kFacadeTexelsPerM);
+        tex[e] =
+            textures_.Add([spec, glyphs] { return PaintFacade(spec, *glyphs); }, kFacadeTexelsPerM);
       } else {
         const double h = b.height_m;
-        tex[e] = textures_.Add([w, h, seed] { return PaintPlainWall(w, h, seed); }, kPlainTexelsPerM);
+        tex[e] =
+            textures_.Add([w, h, seed] { return PaintPlainWall(w, h, seed); }, kPlainTexelsPerM);
       }
     }
     tex[4] = -1;
@@ -243,26 +260,30 @@ TownScene::TownScene(const Town& town, const std::vector<std::vector<Vehicle>>& 
     const cv::Vec2d f(std::cos(p.facing_rad), std::sin(p.facing_rad)), side(-f[1], f[0]);
     if (p.kind == Pole::kLamp) {  // arm with a lamp head over the road
       const cv::Vec2d a = p.base, b = p.base + 1.6 * f;
-      AddBox({a - 0.06 * side, b - 0.06 * side, b + 0.06 * side, a + 0.06 * side}, p.height_m - 0.15, p.height_m,
-             {metal, metal, metal, metal, metal}, 1.0, &quads_);
+      AddBox({a - 0.06 * side, b - 0.06 * side, b + 0.06 * side, a + 0.06 * side},
+             p.height_m - 0.15, p.height_m, {metal, metal, metal, metal, metal}, 1.0, &quads_);
     } else {  // sign panel, seen from both sides (the back in plain metal)
-      const int face = textures_.Add([s = p.seed, glyphs] { return PaintSign(s, *glyphs); }, kObjectTexelsPerM);
+      const int face =
+          textures_.Add([s = p.seed, glyphs] { return PaintSign(s, *glyphs); }, kObjectTexelsPerM);
       const cv::Vec2d c = p.base + 0.06 * f;
       const cv::Vec3d o(c[0] + 0.35 * side[0], c[1] + 0.35 * side[1], p.height_m + 0.35);
-      quads_.push_back(MakeQuad(o, cv::Vec3d(-0.7 * side[0], -0.7 * side[1], 0), {0, 0, -0.7}, face));
+      quads_.push_back(
+          MakeQuad(o, cv::Vec3d(-0.7 * side[0], -0.7 * side[1], 0), {0, 0, -0.7}, face));
       quads_.back().two_sided = true;
     }
   }
   for (const Tree& t : town.trees) {
     const int bark = textures_.Add([s = t.seed] { return PaintBark(s); }, 16 / 0.3);
     const cv::Vec2d dx(0.13, 0), dy(0, 0.13);
-    AddBox({t.base - dx - dy, t.base + dx - dy, t.base + dx + dy, t.base - dx + dy}, 0, t.trunk_height_m + 0.5,
-           {bark, bark, bark, bark, bark}, 1.0, &quads_);
-    const int leaves = textures_.Add([s = t.seed] { return PaintCanopy(s); }, 128 / (2 * t.canopy_radius_m));
+    AddBox({t.base - dx - dy, t.base + dx - dy, t.base + dx + dy, t.base - dx + dy}, 0,
+           t.trunk_height_m + 0.5, {bark, bark, bark, bark, bark}, 1.0, &quads_);
+    const int leaves =
+        textures_.Add([s = t.seed] { return PaintCanopy(s); }, 128 / (2 * t.canopy_radius_m));
     const double r = t.canopy_radius_m, top = t.trunk_height_m + 2 * r;
     for (double a : {0.3, 0.3 + M_PI / 2}) {
       const cv::Vec3d u(2 * r * std::cos(a), 2 * r * std::sin(a), 0);
-      quads_.push_back(MakeQuad(cv::Vec3d(t.base[0], t.base[1], top) - 0.5 * u, u, {0, 0, -2 * r}, leaves));
+      quads_.push_back(
+          MakeQuad(cv::Vec3d(t.base[0], t.base[1], top) - 0.5 * u, u, {0, 0, -2 * r}, leaves));
       quads_.back().two_sided = true;
     }
   }
@@ -272,8 +293,9 @@ TownScene::TownScene(const Town& town, const std::vector<std::vector<Vehicle>>& 
     std::array<int, 5> tex{};
     for (int face = 0; face < 5; ++face) {
       const double len = face < 2 ? v.length_m : v.width_m, h = face == 4 ? v.length_m : v.height_m;
-      tex[face] = textures_.Add([len, h, s = v.seed, face, glyphs] { return PaintVehicle(len, h, s, face, *glyphs); },
-                                kObjectTexelsPerM);
+      tex[face] = textures_.Add(
+          [len, h, s = v.seed, face, glyphs] { return PaintVehicle(len, h, s, face, *glyphs); },
+          kObjectTexelsPerM);
     }
     vehicle_tex[v.id] = tex;
   }
@@ -284,8 +306,8 @@ TownScene::TownScene(const Town& town, const std::vector<std::vector<Vehicle>>& 
       const cv::Vec2d hx = ax * (v.length_m / 2), hy = ay * (v.width_m / 2);
       const auto& t = vehicle_tex.at(v.id);
       // Edges: 0 right side, 1 front, 2 left side, 3 back (counter-clockwise from the rear right).
-      AddBox({v.centre - hx - hy, v.centre + hx - hy, v.centre + hx + hy, v.centre - hx + hy}, 0.25, 0.25 + v.height_m,
-             {t[0], t[2], t[1], t[3], t[4]}, 1.0, &quads);
+      AddBox({v.centre - hx - hy, v.centre + hx - hy, v.centre + hx + hy, v.centre - hx + hy}, 0.25,
+             0.25 + v.height_m, {t[0], t[2], t[1], t[3], t[4]}, 1.0, &quads);
     }
     vehicle_quads_.push_back(std::move(quads));
   }
@@ -301,16 +323,19 @@ void TownScene::AddQuad(const Quad& q) { quads_.push_back(q); }
 
 // Walls of a box on a counter-clockwise footprint, textured from the outside; textures[4] is the
 // top (none when negative).
-void TownScene::AddBox(const std::array<cv::Vec2d, 4>& fp, double z0, double z1, const std::array<int, 5>& textures,
-                       double brightness, std::vector<Quad>* out) {
+void TownScene::AddBox(const std::array<cv::Vec2d, 4>& fp, double z0, double z1,
+                       const std::array<int, 5>& textures, double brightness,
+                       std::vector<Quad>* out) {
   for (int e = 0; e < 4; ++e) {
     const cv::Vec2d a = fp[e], b = fp[(e + 1) % 4];
-    out->push_back(MakeQuad({a[0], a[1], z1}, {b[0] - a[0], b[1] - a[1], 0}, {0, 0, z0 - z1}, textures[e], brightness));
+    out->push_back(MakeQuad({a[0], a[1], z1}, {b[0] - a[0], b[1] - a[1], 0}, {0, 0, z0 - z1},
+                            textures[e], brightness));
   }
   if (textures[4] >= 0) {
     const cv::Vec3d o(fp[3][0], fp[3][1], z1);
     out->push_back(MakeQuad(o, cv::Vec3d(fp[0][0] - fp[3][0], fp[0][1] - fp[3][1], 0),
-                            cv::Vec3d(fp[2][0] - fp[3][0], fp[2][1] - fp[3][1], 0), textures[4], brightness));
+                            cv::Vec3d(fp[2][0] - fp[3][0], fp[2][1] - fp[3][1], 0), textures[4],
+                            brightness));
   }
 }
 
@@ -328,7 +353,8 @@ struct QuadRaster {
 // near plane. Along a row every test (0 <= u <= 1, 0 <= v <= 1, depth > near) is linear in x
 // once multiplied by n.m, whose sign is fixed where the quad is in front; so each test cuts
 // the span at one point.
-bool ScanlineSpan(const QuadRaster& q, double my, double fx, double cx, double near_m, int* x0, int* x1) {
+bool ScanlineSpan(const QuadRaster& q, double my, double fx, double cx, double near_m, int* x0,
+                  int* x1) {
   const double s = q.h > 0 ? 1.0 : -1.0;
   // a . m = alpha x + beta for m = ((x - cx) / fx, my, 1).
   auto lin = [&](const cv::Vec3d& a, double* alpha, double* beta) {
@@ -347,13 +373,16 @@ bool ScanlineSpan(const QuadRaster& q, double my, double fx, double cx, double n
       return;
     }
     const double root = -c / p;
-    if (p > 0) lo = std::max(lo, root); else hi = std::min(hi, root);
+    if (p > 0)
+      lo = std::max(lo, root);
+    else
+      hi = std::min(hi, root);
   };
-  keep(na, nb);                                           // n.m has the sign of h
-  keep(-near_m * na, q.h - near_m * nb);                  // depth h / n.m > near
-  keep(q.h * ua - q.cu * na, q.h * ub - q.cu * nb);       // u >= 0
+  keep(na, nb);                                                        // n.m has the sign of h
+  keep(-near_m * na, q.h - near_m * nb);                               // depth h / n.m > near
+  keep(q.h * ua - q.cu * na, q.h * ub - q.cu * nb);                    // u >= 0
   keep((q.cu + q.nn) * na - q.h * ua, (q.cu + q.nn) * nb - q.h * ub);  // u <= 1
-  keep(q.h * va - q.cv * na, q.h * vb - q.cv * nb);       // v >= 0
+  keep(q.h * va - q.cv * na, q.h * vb - q.cv * nb);                    // v >= 0
   keep((q.cv + q.nn) * na - q.h * va, (q.cv + q.nn) * nb - q.h * vb);  // v <= 1
   const int a = static_cast<int>(std::ceil(lo)), b = static_cast<int>(std::floor(hi));
   *x0 = std::max(*x0, a);
@@ -362,13 +391,15 @@ bool ScanlineSpan(const QuadRaster& q, double my, double fx, double cx, double n
 }
 
 // Screen bounding box of the quad's part in front of the near plane; false if none.
-bool ScreenBox(const cv::Vec3d c[4], const cv::Matx33d& k, cv::Size size, double near_m, cv::Rect* box) {
+bool ScreenBox(const cv::Vec3d c[4], const cv::Matx33d& k, cv::Size size, double near_m,
+               cv::Rect* box) {
   std::vector<cv::Vec3d> poly;
   for (int i = 0; i < 4; ++i) {
     const cv::Vec3d& a = c[i];
     const cv::Vec3d& b = c[(i + 1) % 4];
     if (a[2] >= near_m) poly.push_back(a);
-    if ((a[2] >= near_m) != (b[2] >= near_m)) poly.push_back(a + (b - a) * ((near_m - a[2]) / (b[2] - a[2])));
+    if ((a[2] >= near_m) != (b[2] >= near_m))
+      poly.push_back(a + (b - a) * ((near_m - a[2]) / (b[2] - a[2])));
   }
   if (poly.empty()) return false;
   double x0 = 1e18, y0 = 1e18, x1 = -1e18, y1 = -1e18;
@@ -376,7 +407,8 @@ bool ScreenBox(const cv::Vec3d c[4], const cv::Matx33d& k, cv::Size size, double
     const double x = k(0, 0) * p[0] / p[2] + k(0, 2), y = k(1, 1) * p[1] / p[2] + k(1, 2);
     x0 = std::min(x0, x), x1 = std::max(x1, x), y0 = std::min(y0, y), y1 = std::max(y1, y);
   }
-  const int ix0 = std::max(0, static_cast<int>(std::floor(x0))), iy0 = std::max(0, static_cast<int>(std::floor(y0)));
+  const int ix0 = std::max(0, static_cast<int>(std::floor(x0))),
+            iy0 = std::max(0, static_cast<int>(std::floor(y0)));
   const int ix1 = std::min(size.width - 1, static_cast<int>(std::ceil(x1)));
   const int iy1 = std::min(size.height - 1, static_cast<int>(std::ceil(y1)));
   if (ix0 > ix1 || iy0 > iy1) return false;
@@ -386,8 +418,9 @@ bool ScreenBox(const cv::Vec3d c[4], const cv::Matx33d& k, cv::Size size, double
 
 }  // namespace
 
-cv::Mat TownScene::RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, cv::Size size, int ss,
-                                 const Appearance& look, int variant, const RenderOptions& options) const {
+cv::Mat TownScene::RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, cv::Size size,
+                                 int ss, const Appearance& look, int variant,
+                                 const RenderOptions& options) const {
   const cv::Matx33d& r = pose.camera_from_enu;
   const cv::Matx33d rt = r.t();
   const double fx = k(0, 0), fy = k(1, 1), cx = k(0, 2), cy = k(1, 2);
@@ -397,7 +430,8 @@ cv::Mat TownScene::RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, c
   // Ground first: every ray that goes down meets the road plane z = 0.
   const double cz = pose.position[2];
   // World direction of pixel (x, y): rt * m = col0 * mx + col1 * my + col2, stepped along x.
-  const cv::Vec3d col0(rt(0, 0), rt(1, 0), rt(2, 0)), col1(rt(0, 1), rt(1, 1), rt(2, 1)), col2(rt(0, 2), rt(1, 2), rt(2, 2));
+  const cv::Vec3d col0(rt(0, 0), rt(1, 0), rt(2, 0)), col1(rt(0, 1), rt(1, 1), rt(2, 1)),
+      col2(rt(0, 2), rt(1, 2), rt(2, 2));
   const cv::Vec3d step = col0 / fx;
   auto row_start = [&](int y) { return col0 * (-cx / fx) + col1 * ((y - cy) / fy) + col2; };
   for (int y = 0; y < h; ++y) {
@@ -405,11 +439,13 @@ cv::Mat TownScene::RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, c
     for (int x = 0; x < w; ++x, wdir += step) {
       if (wdir[2] < -1e-9) {
         const double lambda = -cz / wdir[2];
-        if (lambda * cv::norm(wdir) < options.max_range_m * 1.5) depth(y, x) = static_cast<float>(lambda), id(y, x) = kGround;
+        if (lambda * cv::norm(wdir) < options.max_range_m * 1.5)
+          depth(y, x) = static_cast<float>(lambda), id(y, x) = kGround;
       }
     }
   }
-  const std::vector<Quad>* lists[2] = {&quads_, variant < int(vehicle_quads_.size()) ? &vehicle_quads_[variant] : nullptr};
+  const std::vector<Quad>* lists[2] = {
+      &quads_, variant < int(vehicle_quads_.size()) ? &vehicle_quads_[variant] : nullptr};
   const cv::Vec3d forward = rt * cv::Vec3d(0, 0, 1);
   std::vector<QuadRaster> rasters;
   for (int li = 0; li < 2; ++li) {
@@ -462,8 +498,9 @@ cv::Mat TownScene::RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, c
     }
   }
   // Shading. With supersampling, a block of ss x ss samples that all see the same surface is
-  // shaded once at the block centre; blocks that straddle an edge shade every sample and average them. Surface
-  // coordinates are recomputed from the ray, so no per-sample texture coordinates are stored.
+  // shaded once at the block centre; blocks that straddle an edge shade every sample and average
+  // them. Surface coordinates are recomputed from the ray, so no per-sample texture coordinates are
+  // stored.
   const cv::Vec3f horizon(look.sky_horizon), zenith(look.sky_zenith), haze(look.haze);
   const uint32_t cloud_seed = static_cast<uint32_t>(HashSeed(town_.options.seed, 0x636c64));
   auto shade = [&](int which, double mx, double my, double f_px) -> cv::Vec3f {
@@ -476,7 +513,8 @@ cv::Mat TownScene::RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, c
       if (e > 0.03) {
         const double px = wdir[0] / wdir[2] * 1.5, py = wdir[1] / wdir[2] * 1.5;
         const float c = Fbm(px, py, 0.0, 1.0, 2, cloud_seed) + 0.2f;
-        colour = Lerp(colour, cv::Vec3f(0.97f, 0.97f, 0.97f), std::clamp(c, 0.0f, 1.0f) * float(look.cloud) * 2);
+        colour = Lerp(colour, cv::Vec3f(0.97f, 0.97f, 0.97f),
+                      std::clamp(c, 0.0f, 1.0f) * float(look.cloud) * 2);
       }
       return colour;
     }
@@ -506,7 +544,8 @@ cv::Mat TownScene::RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, c
       const cv::Vec3d nw = qr.quad->v_axis.cross(qr.quad->u_axis) / fpn;
       const double ns = nw.dot(look.sun_dir);
       const double light =
-          qr.quad->brightness * (look.ambient + look.sun * (tex.has_alpha ? std::abs(ns) : std::max(0.0, ns)));
+          qr.quad->brightness *
+          (look.ambient + look.sun * (tex.has_alpha ? std::abs(ns) : std::max(0.0, ns)));
       colour *= static_cast<float>(light);
     }
     return Lerp(colour, haze, static_cast<float>(1.0 - std::exp(-dist / look.haze_m)));
@@ -573,7 +612,8 @@ std::shared_ptr<const DistortionPlan> PlanFor(const CameraModel& cam) {
     for (int x = 0; x < cam.width_px; ++x) {
       const cv::Point2d n = cam.PixelToNormalized({double(x), double(y)});
       nx.at<double>(y, x) = n.x, ny.at<double>(y, x) = n.y;
-      x0 = std::min(x0, n.x), x1 = std::max(x1, n.x), y0 = std::min(y0, n.y), y1 = std::max(y1, n.y);
+      x0 = std::min(x0, n.x), x1 = std::max(x1, n.x), y0 = std::min(y0, n.y),
+      y1 = std::max(y1, n.y);
     }
   }
   const int margin = 3;
@@ -595,13 +635,14 @@ std::shared_ptr<const DistortionPlan> PlanFor(const CameraModel& cam) {
 // Renders at `ss` times the resolution then averages ss x ss blocks. The high-resolution
 // principal point is ss * c + (ss - 1) / 2 so that pixel centres line up exactly.
 cv::Matx33d Supersampled(const cv::Matx33d& k, int ss) {
-  return cv::Matx33d(k(0, 0) * ss, 0, k(0, 2) * ss + (ss - 1) / 2.0, 0, k(1, 1) * ss, k(1, 2) * ss + (ss - 1) / 2.0, 0, 0, 1);
+  return cv::Matx33d(k(0, 0) * ss, 0, k(0, 2) * ss + (ss - 1) / 2.0, 0, k(1, 1) * ss,
+                     k(1, 2) * ss + (ss - 1) / 2.0, 0, 0, 1);
 }
 
 }  // namespace
 
-cv::Mat TownScene::Render(const CameraPose& pose, const CameraModel& camera, const Appearance& look, int variant,
-                          const RenderOptions& options) const {
+cv::Mat TownScene::Render(const CameraPose& pose, const CameraModel& camera, const Appearance& look,
+                          int variant, const RenderOptions& options) const {
   const int ss = std::max(1, options.supersample);
   cv::Matx33d k = camera.K();
   cv::Size size(camera.width_px, camera.height_px);

@@ -10,9 +10,8 @@
 
 #include <map>
 #include <memory>
-#include <vector>
-
 #include <opencv2/core.hpp>
+#include <vector>
 
 #include "demo_route/town_layout.h"
 #include "demo_route/town_painter.h"
@@ -33,9 +32,9 @@ struct Quad {
 
 // Light and atmosphere of one drive.
 struct Appearance {
-  cv::Vec3d sun_dir{0.5, -0.5, 0.7};  // unit vector towards the sun, ENU
-  double sun = 0.55;                  // direct light on a surface facing the sun
-  double ambient = 0.6;               // sky light on every surface
+  cv::Vec3d sun_dir{0.5, -0.5, 0.7};       // unit vector towards the sun, ENU
+  double sun = 0.55;                       // direct light on a surface facing the sun
+  double ambient = 0.6;                    // sky light on every surface
   cv::Vec3d sky_horizon{0.93, 0.86, 0.8};  // BGR, 0..1
   cv::Vec3d sky_zenith{0.85, 0.6, 0.4};
   cv::Vec3d haze{0.9, 0.85, 0.8};
@@ -44,13 +43,13 @@ struct Appearance {
 };
 
 struct CameraPose {
-  cv::Vec3d position;        // ENU metres
+  cv::Vec3d position;           // ENU metres
   cv::Matx33d camera_from_enu;  // rotation, v_cam = R (v_enu - position)
 };
 
 struct RenderOptions {
-  int supersample = 2;        // render at this factor and average down (anti-aliasing)
-  double max_range_m = 300;   // objects beyond this are not drawn (haze hides the cut)
+  int supersample = 2;       // render at this factor and average down (anti-aliasing)
+  double max_range_m = 300;  // objects beyond this are not drawn (haze hides the cut)
   double near_m = 0.05;
 };
 
@@ -65,29 +64,29 @@ class TownScene {
   void AddQuad(const Quad& q);
 
   // Linear-light BGR image (CV_32FC3, 0..1-ish) of the view, `variant` choosing the vehicles.
-  cv::Mat Render(const CameraPose& pose, const CameraModel& camera, const Appearance& look, int variant,
-                 const RenderOptions& options = {}) const;
+  cv::Mat Render(const CameraPose& pose, const CameraModel& camera, const Appearance& look,
+                 int variant, const RenderOptions& options = {}) const;
 
   size_t quad_count() const { return quads_.size(); }
 
  private:
   struct Ground;
-  void AddBox(const std::array<cv::Vec2d, 4>& fp, double z0, double z1, const std::array<int, 5>& textures,
-              double brightness, std::vector<Quad>* out);
+  void AddBox(const std::array<cv::Vec2d, 4>& fp, double z0, double z1,
+              const std::array<int, 5>& textures, double brightness, std::vector<Quad>* out);
   // Renders ss x ss samples per output pixel on the high-resolution canvas (k, size) and returns
   // the output image (size / ss).
-  cv::Mat RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, cv::Size size, int ss, const Appearance& look,
-                        int variant, const RenderOptions& options) const;
+  cv::Mat RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, cv::Size size, int ss,
+                        const Appearance& look, int variant, const RenderOptions& options) const;
 
   const Town& town_;
   GlyphSet glyphs_;
   TextureBank textures_;
-  std::vector<Quad> quads_;                        // buildings, poles, trees, markers
-  std::vector<std::vector<Quad>> vehicle_quads_;   // per variant
+  std::vector<Quad> quads_;                       // buildings, poles, trees, markers
+  std::vector<std::vector<Quad>> vehicle_quads_;  // per variant
   std::unique_ptr<Ground> ground_;
 };
 
-Quad MakeQuad(const cv::Vec3d& origin, const cv::Vec3d& u_axis, const cv::Vec3d& v_axis, int texture,
-              double brightness = 1.0);
+Quad MakeQuad(const cv::Vec3d& origin, const cv::Vec3d& u_axis, const cv::Vec3d& v_axis,
+              int texture, double brightness = 1.0);
 
 }  // namespace sightfix::demo

@@ -81,7 +81,8 @@ Result<CameraModel> LoadCameraModel(const std::string& path) {
       d.convertTo(d, CV_64F);
       const int n = static_cast<int>(d.total());
       if (n != 4 && n != 5 && n != 8)
-        return Status::InvalidArgument(path + ": distortion_coefficients must have 4, 5 or 8 values");
+        return Status::InvalidArgument(path +
+                                       ": distortion_coefficients must have 4, 5 or 8 values");
       if (n == 8 && (d.at<double>(5) != 0 || d.at<double>(6) != 0 || d.at<double>(7) != 0))
         return Status::InvalidArgument(path + ": the rational model (k4..k6) is not supported");
       for (int i = 0; i < std::min(n, 5); ++i) cam.distortion[i] = d.at<double>(i);
@@ -100,7 +101,8 @@ Status SaveCameraModel(const CameraModel& cam, const std::string& path) {
     if (!fs.isOpened()) return Status::IoError("cannot write " + path);
     fs << "image_width" << cam.width_px << "image_height" << cam.height_px;
     fs << "camera_matrix" << cv::Mat(cam.K());
-    fs << "distortion_coefficients" << cv::Mat(1, 5, CV_64F, const_cast<double*>(cam.distortion.data()));
+    fs << "distortion_coefficients"
+       << cv::Mat(1, 5, CV_64F, const_cast<double*>(cam.distortion.data()));
     return Status::Ok();
   } catch (const cv::Exception& e) {
     return Status::IoError("cannot write " + path + ": " + e.what());

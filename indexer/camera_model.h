@@ -8,9 +8,8 @@
 #pragma once
 
 #include <array>
-#include <string>
-
 #include <opencv2/core.hpp>
+#include <string>
 
 #include "indexer/status.h"
 
@@ -19,7 +18,7 @@ namespace sightfix {
 struct CameraModel {
   int width_px = 0;
   int height_px = 0;
-  double fx = 0, fy = 0, cx = 0, cy = 0;       // pixels
+  double fx = 0, fy = 0, cx = 0, cy = 0;            // pixels
   std::array<double, 5> distortion{0, 0, 0, 0, 0};  // k1, k2, p1, p2, k3
 
   // Names the bad field in *error when false (non-positive size or focal length, principal

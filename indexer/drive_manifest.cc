@@ -31,22 +31,25 @@ bool ParseNumber(const std::string& s, double* v) {
 }
 
 Status ParseRow(const std::vector<std::string>& f, DriveRow* row) {
-  if (f.size() != 10) return Status::InvalidArgument("expected 10 columns, found " + std::to_string(f.size()));
+  if (f.size() != 10)
+    return Status::InvalidArgument("expected 10 columns, found " + std::to_string(f.size()));
   if (f[0].empty()) return Status::InvalidArgument("empty image path");
   row->image = f[0];
   Result<double> t = ParseIsoUtc(f[1]);
   if (!t.ok()) return t.status();
   row->timestamp_s = *t;
   const char* names[] = {"lat", "lon", "height", "heading_deg", "pitch_deg", "roll_deg"};
-  double* dst[] = {&row->position.lat_deg, &row->position.lon_deg, &row->position.height_m,
+  double* dst[] = {&row->position.lat_deg,     &row->position.lon_deg,   &row->position.height_m,
                    &row->attitude.heading_deg, &row->attitude.pitch_deg, &row->attitude.roll_deg};
   for (int i = 0; i < 6; ++i) {
     if (!ParseNumber(f[2 + i], dst[i]))
-      return Status::InvalidArgument(std::string(names[i]) + " is not a finite number: '" + f[2 + i] + "'");
+      return Status::InvalidArgument(std::string(names[i]) + " is not a finite number: '" +
+                                     f[2 + i] + "'");
   }
   if (!IsValidGeoPoint(row->position)) return Status::InvalidArgument("lat/lon out of range");
   if (std::abs(row->attitude.pitch_deg) >= 90 || std::abs(row->attitude.roll_deg) > 180)
-    return Status::InvalidArgument("pitch_deg must be within (-90, 90), roll_deg within [-180, 180]");
+    return Status::InvalidArgument(
+        "pitch_deg must be within (-90, 90), roll_deg within [-180, 180]");
   row->camera = f[8];
   if (row->camera.empty()) return Status::InvalidArgument("empty camera name");
   if (!ParseNumber(f[9], &row->sigma_h_m) || row->sigma_h_m < 0)
@@ -79,14 +82,16 @@ Result<std::vector<DriveRow>> ReadDriveManifest(const std::string& path) {
   if (!std::getline(in, line)) return Status::InvalidArgument(path + ":1: empty file");
   if (!line.empty() && line.back() == '\r') line.pop_back();
   if (line != kDriveManifestHeader)
-    return Status::InvalidArgument(path + ":1: header must be '" + std::string(kDriveManifestHeader) + "'");
+    return Status::InvalidArgument(path + ":1: header must be '" +
+                                   std::string(kDriveManifestHeader) + "'");
   std::vector<DriveRow> rows;
   for (int line_no = 2; std::getline(in, line); ++line_no) {
     if (!line.empty() && line.back() == '\r') line.pop_back();
     if (line.empty()) continue;
     DriveRow row;
     Status s = ParseRow(SplitCsvLine(line), &row);
-    if (!s.ok()) return Status::InvalidArgument(path + ":" + std::to_string(line_no) + ": " + s.message());
+    if (!s.ok())
+      return Status::InvalidArgument(path + ":" + std::to_string(line_no) + ": " + s.message());
     rows.push_back(std::move(row));
   }
   return rows;

@@ -19,8 +19,7 @@ GeodesicInverse GeodesicBetween(double lat1_deg, double lon1_deg, double lat2_de
   return out;
 }
 
-GeodesicDirect GeodesicFrom(double lat_deg, double lon_deg, double azimuth_deg,
-                            double distance_m) {
+GeodesicDirect GeodesicFrom(double lat_deg, double lon_deg, double azimuth_deg, double distance_m) {
   GeodesicDirect out;
   GeographicLib::Geodesic::WGS84().Direct(lat_deg, lon_deg, azimuth_deg, distance_m, out.lat_deg,
                                           out.lon_deg, out.azimuth2_deg);

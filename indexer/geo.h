@@ -8,7 +8,6 @@
 #pragma once
 
 #include <memory>
-
 #include <opencv2/core/matx.hpp>
 
 namespace sightfix {
@@ -33,8 +32,8 @@ GeodesicInverse GeodesicBetween(double lat1_deg, double lon1_deg, double lat2_de
 
 struct GeodesicDirect {
   double lat_deg = 0;
-  double lon_deg = 0;      // in [-180, 180]
-  double azimuth2_deg = 0; // forward azimuth at the end point
+  double lon_deg = 0;       // in [-180, 180]
+  double azimuth2_deg = 0;  // forward azimuth at the end point
 };
 
 // The point reached from (lat, lon) along azimuth_deg after distance_m metres.

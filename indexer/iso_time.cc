@@ -27,7 +27,8 @@ Result<double> ParseIsoUtc(const std::string& text) {
   std::tm tm{};
   int consumed = 0;
   if (std::sscanf(text.c_str(), "%4d-%2d-%2dT%2d:%2d:%2d%n", &tm.tm_year, &tm.tm_mon, &tm.tm_mday,
-                  &tm.tm_hour, &tm.tm_min, &tm.tm_sec, &consumed) != 6 || consumed != 19) {
+                  &tm.tm_hour, &tm.tm_min, &tm.tm_sec, &consumed) != 6 ||
+      consumed != 19) {
     return Status::InvalidArgument("not an ISO 8601 UTC time: '" + text + "'");
   }
   if (tm.tm_mon < 1 || tm.tm_mon > 12 || tm.tm_mday < 1 || tm.tm_mday > 31 || tm.tm_hour > 23 ||

@@ -9,13 +9,9 @@ namespace {
 constexpr double kDegToRad = M_PI / 180.0;
 
 // ENU axes of the north-east-down frame: columns are N, E, D expressed in ENU.
-const cv::Matx33d kEnuFromNed(0, 1, 0,
-                              1, 0, 0,
-                              0, 0, -1);
+const cv::Matx33d kEnuFromNed(0, 1, 0, 1, 0, 0, 0, 0, -1);
 // Camera axes in the forward-right-down body: x_cam = right, y_cam = down, z_cam = forward.
-const cv::Matx33d kBodyFromCamera(0, 0, 1,
-                                  1, 0, 0,
-                                  0, 1, 0);
+const cv::Matx33d kBodyFromCamera(0, 0, 1, 1, 0, 0, 0, 1, 0);
 
 cv::Matx33d NedFromBody(double yaw, double pitch, double roll) {
   const double cy = std::cos(yaw), sy = std::sin(yaw);

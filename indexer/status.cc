@@ -4,13 +4,20 @@ namespace sightfix {
 
 const char* StatusCodeName(StatusCode code) {
   switch (code) {
-    case StatusCode::kOk: return "OK";
-    case StatusCode::kInvalidArgument: return "invalid argument";
-    case StatusCode::kNotFound: return "not found";
-    case StatusCode::kIoError: return "I/O error";
-    case StatusCode::kCorrupt: return "corrupt";
-    case StatusCode::kFailedPrecondition: return "failed precondition";
-    case StatusCode::kInternal: return "internal error";
+    case StatusCode::kOk:
+      return "OK";
+    case StatusCode::kInvalidArgument:
+      return "invalid argument";
+    case StatusCode::kNotFound:
+      return "not found";
+    case StatusCode::kIoError:
+      return "I/O error";
+    case StatusCode::kCorrupt:
+      return "corrupt";
+    case StatusCode::kFailedPrecondition:
+      return "failed precondition";
+    case StatusCode::kInternal:
+      return "internal error";
   }
   return "unknown";
 }

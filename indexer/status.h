@@ -31,7 +31,9 @@ class Status {
   Status(StatusCode code, std::string message);
 
   static Status Ok() { return Status(); }
-  static Status InvalidArgument(std::string m) { return {StatusCode::kInvalidArgument, std::move(m)}; }
+  static Status InvalidArgument(std::string m) {
+    return {StatusCode::kInvalidArgument, std::move(m)};
+  }
   static Status NotFound(std::string m) { return {StatusCode::kNotFound, std::move(m)}; }
   static Status IoError(std::string m) { return {StatusCode::kIoError, std::move(m)}; }
   static Status Corrupt(std::string m) { return {StatusCode::kCorrupt, std::move(m)}; }

@@ -106,11 +106,12 @@ std::vector<TileKey> TilesTouchingCircle(double lat_deg, double lon_deg, double 
   // Bounding box of candidate tiles from the four cardinal geodesic end points.
   const double north = std::min(GeodesicFrom(lat_deg, lon_deg, 0, reach_m).lat_deg, 85.0);
   const double south = std::max(GeodesicFrom(lat_deg, lon_deg, 180, reach_m).lat_deg, -85.0);
-  const double dlon = std::abs(WrapLonDeg(GeodesicFrom(lat_deg, lon_deg, 90, reach_m).lon_deg - lon_deg));
+  const double dlon =
+      std::abs(WrapLonDeg(GeodesicFrom(lat_deg, lon_deg, 90, reach_m).lon_deg - lon_deg));
   // Widen in longitude by the latitude of the box edge nearer the pole (parallels converge).
   const double pole_lat = std::max(std::abs(north), std::abs(south));
-  const double dlon_edge = std::min(
-      180.0, dlon * std::cos(lat_deg * kDegToRad) / std::cos(pole_lat * kDegToRad) + 1e-9);
+  const double dlon_edge =
+      std::min(180.0, dlon * std::cos(lat_deg * kDegToRad) / std::cos(pole_lat * kDegToRad) + 1e-9);
   const TileKey nw = TileForPoint(north, lon_deg, zoom);
   const TileKey se = TileForPoint(south, lon_deg, zoom);
   const uint32_t n = static_cast<uint32_t>(std::ldexp(1.0, zoom));

@@ -45,8 +45,8 @@ TEST(DemoDeterminismTest, SameSeedSameBytesAnyJobs) {
     ASSERT_TRUE(b.count(path)) << path;
     EXPECT_TRUE(bytes == b.at(path)) << path << " differs";
   }
-  for (const char* must : {"town.json", "survey/drive.csv", "survey/camera.yml", "query-day/gnss.csv",
-                           "query-overcast/camera.yml", "contact_sheet.png"})
+  for (const char* must : {"town.json", "survey/drive.csv", "survey/camera.yml",
+                           "query-day/gnss.csv", "query-overcast/camera.yml", "contact_sheet.png"})
     EXPECT_TRUE(a.count(must)) << must;
 }
 

@@ -7,13 +7,13 @@
 // frame gives >= 100 inliers and the far frame at most a third as many (RANSAC finds 10-30 chance
 // inliers even between unrelated frames, common practice).
 #include <gtest/gtest.h>
-#include <opencv2/calib3d.hpp>
-#include <opencv2/features2d.hpp>
-#include <opencv2/imgcodecs.hpp>
 
 #include <algorithm>
 #include <filesystem>
 #include <map>
+#include <opencv2/calib3d.hpp>
+#include <opencv2/features2d.hpp>
+#include <opencv2/imgcodecs.hpp>
 
 #include "demo_route/demo_town.h"
 #include "demo_route/random.h"
@@ -66,7 +66,8 @@ TEST(TownFeaturesTest, NearFramesMatchFarFramesDoNot) {
   ASSERT_TRUE(town.ok()) << town.status().ToString();
   std::printf("300 m town: %.1f s to generate\n", town->total_s);
 
-  const fs::path survey_dir = fs::path(o.out_dir) / "survey", query_dir = fs::path(o.out_dir) / "query-day";
+  const fs::path survey_dir = fs::path(o.out_dir) / "survey",
+                 query_dir = fs::path(o.out_dir) / "query-day";
   auto survey = ReadDriveManifest((survey_dir / "drive.csv").string());
   auto queries = ReadDriveManifest((query_dir / "drive.csv").string());
   ASSERT_TRUE(survey.ok() && queries.ok());
@@ -113,17 +114,20 @@ TEST(TownFeaturesTest, NearFramesMatchFarFramesDoNot) {
     if (near_in >= 100 && far_in * 3 <= near_in) {
       ++pass;
     } else {
-      std::printf("short: %s heading %.0f, nearest survey %s at %.2f m: %d inliers, far %d\n", q.image.c_str(),
-                  q.attitude.heading_deg, (*survey)[nearest].image.c_str(), best, near_in, far_in);
+      std::printf("short: %s heading %.0f, nearest survey %s at %.2f m: %d inliers, far %d\n",
+                  q.image.c_str(), q.attitude.heading_deg, (*survey)[nearest].image.c_str(), best,
+                  near_in, far_in);
     }
   }
   std::sort(near_counts.begin(), near_counts.end());
   std::sort(far_counts.begin(), far_counts.end());
   const double share = double(pass) / n;
   std::printf("day queries: %d; passing %d (%.1f %%)\n", n, pass, 100 * share);
-  std::printf("near-frame inliers: min %d, p5 %d, median %d; far-frame inliers: median %d, p95 %d, max %d\n",
-              near_counts.front(), near_counts[n / 20], near_counts[n / 2], far_counts[n / 2],
-              far_counts[std::min(n - 1, n * 19 / 20)], far_counts.back());
+  std::printf(
+      "near-frame inliers: min %d, p5 %d, median %d; far-frame inliers: median %d, p95 %d, max "
+      "%d\n",
+      near_counts.front(), near_counts[n / 20], near_counts[n / 2], far_counts[n / 2],
+      far_counts[std::min(n - 1, n * 19 / 20)], far_counts.back());
   EXPECT_GE(share, 0.95);
 }
 

@@ -1,6 +1,7 @@
 // The renderer puts a world point where the reference implementation, cv::projectPoints,
 // puts it: within 0.5 px, for an ideal pinhole and for a camera with strong lens distortion.
 #include <gtest/gtest.h>
+
 #include <opencv2/calib3d.hpp>
 #include <opencv2/imgproc.hpp>
 
@@ -48,8 +49,10 @@ void CheckProjection(const CameraModel& camera) {
     for (double ay : {-0.35, 0.0, 0.35}) {
       const cv::Vec3d dir_cam = cv::normalize(cv::Vec3d(ax, ay, 1.0));
       const cv::Vec3d centre = c + 9.0 * (enu_from_cam * dir_cam);
-      const cv::Vec3d right = enu_from_cam * cv::Vec3d(1, 0, 0), down = enu_from_cam * cv::Vec3d(0, 1, 0);
-      scene.AddQuad(MakeQuad(centre - 0.07 * right - 0.07 * down, 0.14 * right, 0.14 * down, black));
+      const cv::Vec3d right = enu_from_cam * cv::Vec3d(1, 0, 0),
+                      down = enu_from_cam * cv::Vec3d(0, 1, 0);
+      scene.AddQuad(
+          MakeQuad(centre - 0.07 * right - 0.07 * down, 0.14 * right, 0.14 * down, black));
       world.emplace_back(centre[0], centre[1], centre[2]);
     }
   }
@@ -60,10 +63,12 @@ void CheckProjection(const CameraModel& camera) {
   cv::Rodrigues(cv::Mat(r), rvec);
   const cv::Vec3d tvec = -(r * c);
   std::vector<cv::Point2d> ref;
-  cv::projectPoints(world, rvec, tvec, cv::Mat(camera.K()), cv::Mat(1, 5, CV_64F, const_cast<double*>(camera.distortion.data())), ref);
+  cv::projectPoints(world, rvec, tvec, cv::Mat(camera.K()),
+                    cv::Mat(1, 5, CV_64F, const_cast<double*>(camera.distortion.data())), ref);
   double worst = 0;
   for (const cv::Point2d& p : ref) {
-    ASSERT_TRUE(p.x > 10 && p.y > 10 && p.x < camera.width_px - 10 && p.y < camera.height_px - 10) << p;
+    ASSERT_TRUE(p.x > 10 && p.y > 10 && p.x < camera.width_px - 10 && p.y < camera.height_px - 10)
+        << p;
     const cv::Point2d got = DarkCentroid(linear, p, 9);
     worst = std::max(worst, cv::norm(got - p));
     EXPECT_LT(cv::norm(got - p), 0.5) << "marker at " << p << " rendered at " << got;
@@ -79,7 +84,8 @@ TEST(TownProjectionTest, PinholeMatchesProjectPoints) {
 
 TEST(TownProjectionTest, DistortedCameraMatchesProjectPoints) {
   CameraModel cam;
-  cam.width_px = 720, cam.height_px = 540, cam.fx = 445, cam.fy = 447, cam.cx = 362.4, cam.cy = 268.1;
+  cam.width_px = 720, cam.height_px = 540, cam.fx = 445, cam.fy = 447, cam.cx = 362.4,
+  cam.cy = 268.1;
   cam.distortion = {-0.22, 0.05, 4e-4, -3e-4, 0.0};
   CheckProjection(cam);
 }

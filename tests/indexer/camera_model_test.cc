@@ -1,9 +1,9 @@
 #include "indexer/camera_model.h"
 
 #include <gtest/gtest.h>
-#include <opencv2/calib3d.hpp>
 
 #include <cstdio>
+#include <opencv2/calib3d.hpp>
 #include <random>
 
 namespace sightfix {
@@ -77,7 +77,8 @@ TEST(CameraModelTest, ReadsOpenCvCalibrationLayout) {
   ASSERT_NE(f, nullptr);
   std::fputs(
       "%YAML:1.0\n---\nimage_width: 640\nimage_height: 480\ncamera_matrix: !!opencv-matrix\n"
-      "   rows: 3\n   cols: 3\n   dt: d\n   data: [ 5.2e+02, 0., 3.2e+02, 0., 5.2e+02, 2.4e+02, 0., "
+      "   rows: 3\n   cols: 3\n   dt: d\n   data: [ 5.2e+02, 0., 3.2e+02, 0., 5.2e+02, 2.4e+02, "
+      "0., "
       "0., 1. ]\ndistortion_coefficients: !!opencv-matrix\n   rows: 4\n   cols: 1\n   dt: d\n"
       "   data: [ -0.1, 0.01, 0., 0. ]\navg_reprojection_error: 0.3\n",
       f);

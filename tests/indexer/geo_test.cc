@@ -5,7 +5,9 @@
 namespace sightfix {
 namespace {
 
-double Dms(int d, int m, double s) { return (std::abs(d) + m / 60.0 + s / 3600.0) * (d < 0 ? -1 : 1); }
+double Dms(int d, int m, double s) {
+  return (std::abs(d) + m / 60.0 + s / 3600.0) * (d < 0 ? -1 : 1);
+}
 
 // Geoscience Australia, Geodetic Calculations worked example "Flinders Peak to Buninyong"
 // (GRS80, which agrees with WGS84 to well under a millimetre over this line):

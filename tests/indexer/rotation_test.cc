@@ -12,8 +12,7 @@ cv::Vec3d Right(const Attitude& a) { return EnuFromCamera(a) * cv::Vec3d(1, 0, 0
 cv::Vec3d Down(const Attitude& a) { return EnuFromCamera(a) * cv::Vec3d(0, 1, 0); }
 
 void ExpectVec(const cv::Vec3d& got, const cv::Vec3d& want) {
-  EXPECT_LT(cv::norm(got - want), 1e-12)
-      << got[0] << "," << got[1] << "," << got[2];
+  EXPECT_LT(cv::norm(got - want), 1e-12) << got[0] << "," << got[1] << "," << got[2];
 }
 
 // Conventions of DESIGN.md section 3, checked axis by axis.
