@@ -199,8 +199,7 @@ void PlaceStreetBuildings(Town* town, Placer* placer, Rng& rng) {
 }
 
 // A facade across the far end of a street, so a view down it ends in buildings.
-void CloseStreetEnd(Town* town, Placer* placer, const cv::Vec2d& end, const cv::Vec2d& dir,
-                    Rng& rng) {
+void CloseStreetEnd(Town* town, const cv::Vec2d& end, const cv::Vec2d& dir, Rng& rng) {
   const cv::Vec2d across = -Perp(dir);  // viewer's right looking along dir
   const cv::Vec2d a = end + 1.0 * dir - 14 * across, b = end + 1.0 * dir + 14 * across;
   int front = 0;
@@ -215,7 +214,6 @@ void CloseStreetEnd(Town* town, Placer* placer, const cv::Vec2d& end, const cv::
   bl.height_m = bl.floors * 3.3 + 0.8;
   bl.seed = rng.Next();
   town->buildings.push_back(bl);
-  (void)placer;
 }
 
 bool ClearOfCarriageways(const Town& town, const std::vector<cv::Vec2d>& pts, double min_m) {
@@ -358,7 +356,7 @@ Town BuildTown(const TownOptions& options) {
   ends.emplace_back(first.points().front(), -legs[0].dir);
 
   Placer placer(&town);
-  for (const auto& [end, dir] : ends) CloseStreetEnd(&town, &placer, end, dir, rng);
+  for (const auto& [end, dir] : ends) CloseStreetEnd(&town, end, dir, rng);
   PlaceStreetBuildings(&town, &placer, rng);
   PlaceStreetFurniture(&town, &placer, rng);
   return town;

@@ -425,11 +425,11 @@ cv::Mat PaintVehicle(double length_m, double height_m, uint64_t seed, int face,
                   glass, -1);
     cv::line(img, cv::Point2d(0.5 * img.cols, glass_top),
              cv::Point2d(0.5 * img.cols, img.rows * 0.85), Shade(body, 0.5), 2);
-    for (double wx : {0.2, 0.8})
-      cv::circle(img, cv::Point2d(wx * img.cols, img.rows - 0.3 * ppm), int(0.32 * ppm),
-                 cv::Scalar(25, 25, 25), -1, cv::LINE_AA),
-          cv::circle(img, cv::Point2d(wx * img.cols, img.rows - 0.3 * ppm), int(0.16 * ppm),
-                     cv::Scalar(150, 150, 150), -1, cv::LINE_AA);
+    for (double wx : {0.2, 0.8}) {  // wheels: tyre and hub
+      const cv::Point2d hub(wx * img.cols, img.rows - 0.3 * ppm);
+      cv::circle(img, hub, int(0.32 * ppm), cv::Scalar(25, 25, 25), -1, cv::LINE_AA);
+      cv::circle(img, hub, int(0.16 * ppm), cv::Scalar(150, 150, 150), -1, cv::LINE_AA);
+    }
     if (rf.Chance(0.45)) {  // a livery stripe with invented lettering
       const cv::Scalar c = RandomColour(rf, 0.6, 1.0, 0.3, 1.0);
       cv::rectangle(
