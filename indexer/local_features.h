@@ -1,0 +1,51 @@
+// Local features of one image: keypoints, their undistorted normalized coordinates, and
+// descriptors, plus mutual ratio-test matching between two such sets.
+//
+// RootSIFT (Arandjelovic & Zisserman, CVPR 2012): SIFT (Lowe, IJCV 2004) descriptors
+// L1-normalised and square-rooted, so that L2 distance on them is the Hellinger kernel on SIFT.
+// ORB (Rublee et al., ICCV 2011) is the fast option, matched with Hamming distance.
+// Thread safety: functions are safe to call concurrently (each makes its own detector).
+#pragma once
+
+#include <string>
+#include <vector>
+
+#include <opencv2/core.hpp>
+
+#include "indexer/camera_model.h"
+#include "indexer/status.h"
+
+namespace sightfix {
+
+enum class FeatureType { kRootSift, kOrb };
+
+struct FeatureOptions {
+  FeatureType type = FeatureType::kRootSift;
+  // Strongest keypoints kept per image. 2000 keeps matching under ~150 ms a pair here.
+  int max_features = 2000;
+  bool Validate(std::string* error) const;
+};
+
+struct LocalFeatures {
+  FeatureType type = FeatureType::kRootSift;
+  std::vector<cv::KeyPoint> keypoints;  // pixels, as detected in the (distorted) image
+  std::vector<cv::Point2d> normalized;  // undistorted (x/z, y/z) per keypoint
+  cv::Mat descriptors;                  // n x 128 CV_32F (RootSIFT) or n x 32 CV_8U (ORB)
+};
+
+// REQUIRES: image is 8-bit grey or BGR. `camera` (may be null) undistorts the keypoints; with
+// null, normalized = pixels (no calibration). Fails on an empty image or a size that does not
+// match the calibration.
+Result<LocalFeatures> ExtractFeatures(const cv::Mat& image, const CameraModel* camera,
+                                      const FeatureOptions& options);
+
+struct MatchOptions {
+  double ratio = 0.8;   // Lowe's ratio test (Lowe 2004, section 7.1)
+  bool mutual = true;   // keep a -> b only if b's best match is a too
+};
+
+// Matches a's features to b's (queryIdx indexes a, trainIdx b). REQUIRES: same FeatureType.
+std::vector<cv::DMatch> MatchFeatures(const LocalFeatures& a, const LocalFeatures& b,
+                                      const MatchOptions& options);
+
+}  // namespace sightfix
