@@ -31,20 +31,25 @@ Result<LocalFeatures> ExtractFeatures(const cv::Mat& image, const CameraModel* c
   if (!options.Validate(&error)) return Status::InvalidArgument(error);
   if (image.empty()) return Status::InvalidArgument("empty image");
   if (camera && (image.cols != camera->width_px || image.rows != camera->height_px))
-    return Status::InvalidArgument("image is " + std::to_string(image.cols) + "x" + std::to_string(image.rows) +
-                                   " but the calibration is for " + std::to_string(camera->width_px) + "x" +
+    return Status::InvalidArgument("image is " + std::to_string(image.cols) + "x" +
+                                   std::to_string(image.rows) + " but the calibration is for " +
+                                   std::to_string(camera->width_px) + "x" +
                                    std::to_string(camera->height_px));
   LocalFeatures f;
   f.type = options.type;
   try {
     cv::Mat grey;
-    if (image.channels() == 1) grey = image;
-    else cv::cvtColor(image, grey, cv::COLOR_BGR2GRAY);
+    if (image.channels() == 1)
+      grey = image;
+    else
+      cv::cvtColor(image, grey, cv::COLOR_BGR2GRAY);
     if (options.type == FeatureType::kRootSift) {
-      cv::SIFT::create(options.max_features)->detectAndCompute(grey, cv::noArray(), f.keypoints, f.descriptors);
+      cv::SIFT::create(options.max_features)
+          ->detectAndCompute(grey, cv::noArray(), f.keypoints, f.descriptors);
       ToRootSift(f.descriptors);
     } else {
-      cv::ORB::create(options.max_features)->detectAndCompute(grey, cv::noArray(), f.keypoints, f.descriptors);
+      cv::ORB::create(options.max_features)
+          ->detectAndCompute(grey, cv::noArray(), f.keypoints, f.descriptors);
     }
   } catch (const cv::Exception& e) {
     return Status::Internal(std::string("feature extraction failed: ") + e.what());

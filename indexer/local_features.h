@@ -7,10 +7,9 @@
 // Thread safety: functions are safe to call concurrently (each makes its own detector).
 #pragma once
 
+#include <opencv2/core.hpp>
 #include <string>
 #include <vector>
-
-#include <opencv2/core.hpp>
 
 #include "indexer/camera_model.h"
 #include "indexer/status.h"
@@ -40,8 +39,8 @@ Result<LocalFeatures> ExtractFeatures(const cv::Mat& image, const CameraModel* c
                                       const FeatureOptions& options);
 
 struct MatchOptions {
-  double ratio = 0.8;   // Lowe's ratio test (Lowe 2004, section 7.1)
-  bool mutual = true;   // keep a -> b only if b's best match is a too
+  double ratio = 0.8;  // Lowe's ratio test (Lowe 2004, section 7.1)
+  bool mutual = true;  // keep a -> b only if b's best match is a too
 };
 
 // Matches a's features to b's (queryIdx indexes a, trainIdx b). REQUIRES: same FeatureType.

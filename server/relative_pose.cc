@@ -2,7 +2,6 @@
 
 #include <algorithm>
 #include <cmath>
-
 #include <opencv2/calib3d.hpp>
 
 #include "indexer/rotation.h"
@@ -27,26 +26,9 @@ double MedianParallaxDeg(const std::vector<cv::Point2d>& na, const std::vector<c
   return angles[angles.size() / 2];
 }
 
-// The sampled minimal model fits its five points exactly and the rest only roughly: refit E to
-// every inlier by the linear eight-point method (Hartley's normalisation, inside OpenCV), then
-// project it onto the essential manifold (singular values 1, 1, 0). Keeps the sampled model if
-// the refit is degenerate.
-cv::Mat RefineOnInliers(const cv::Mat& e, const std::vector<cv::Point2d>& na, const std::vector<cv::Point2d>& nb,
-                        const cv::Mat& mask) {
-  std::vector<cv::Point2d> a, b;
-  for (size_t i = 0; i < na.size(); ++i)
-    if (mask.at<uchar>(static_cast<int>(i))) a.push_back(na[i]), b.push_back(nb[i]);
-  if (a.size() < 16) return e;
-  const cv::Mat f = cv::findFundamentalMat(a, b, cv::FM_8POINT);
-  if (f.rows != 3 || f.cols != 3) return e;
-  cv::Mat w, u, vt;
-  cv::SVDecomp(f, w, u, vt);
-  return u * cv::Mat::diag((cv::Mat_<double>(3, 1) << 1, 1, 0)) * vt;
-}
-
 // Matches whose Sampson distance to the model (first-order geometric error) is within threshold.
-cv::Mat SampsonInliers(const cv::Mat& e, const std::vector<cv::Point2d>& na, const std::vector<cv::Point2d>& nb,
-                       double threshold) {
+cv::Mat SampsonInliers(const cv::Mat& e, const std::vector<cv::Point2d>& na,
+                       const std::vector<cv::Point2d>& nb, double threshold) {
   const cv::Matx33d m(e);
   cv::Mat mask(static_cast<int>(na.size()), 1, CV_8U);
   for (size_t i = 0; i < na.size(); ++i) {
@@ -83,27 +65,31 @@ Result<RelativePose> EstimateRelativePose(const std::vector<cv::Point2d>& na,
   RelativePose pose;
   pose.matches = static_cast<int>(na.size());
   if (pose.matches < options.min_inliers)
-    return Status(StatusCode::kFailedPrecondition, "too few matches: " + std::to_string(pose.matches));
+    return Status(StatusCode::kFailedPrecondition,
+                  "too few matches: " + std::to_string(pose.matches));
   cv::Mat mask, r, t;
   try {
-    const cv::Mat e = cv::findEssentialMat(na, nb, cv::Mat::eye(3, 3, CV_64F), cv::USAC_MAGSAC,
-                                           options.confidence, options.threshold_px / options.focal_px, mask);
+    const cv::Mat e =
+        cv::findEssentialMat(na, nb, cv::Mat::eye(3, 3, CV_64F), cv::USAC_MAGSAC,
+                             options.confidence, options.threshold_px / options.focal_px, mask);
     if (e.rows != 3 || e.cols != 3)
       return Status(StatusCode::kFailedPrecondition, "no essential matrix found");
-    const cv::Mat refined = RefineOnInliers(e, na, nb, mask);
-    mask = SampsonInliers(refined, na, nb, options.threshold_px / options.focal_px);
-    pose.inliers = cv::recoverPose(refined, na, nb, cv::Mat::eye(3, 3, CV_64F), r, t, mask);
+    // MAGSAC's own mask is stricter than its threshold; count inliers by Sampson distance.
+    mask = SampsonInliers(e, na, nb, options.threshold_px / options.focal_px);
+    pose.inliers = cv::recoverPose(e, na, nb, cv::Mat::eye(3, 3, CV_64F), r, t, mask);
   } catch (const cv::Exception& ex) {
     return Status::Internal(std::string("essential matrix estimation failed: ") + ex.what());
   }
   if (pose.inliers < options.min_inliers)
-    return Status(StatusCode::kFailedPrecondition, "too few inliers: " + std::to_string(pose.inliers));
+    return Status(StatusCode::kFailedPrecondition,
+                  "too few inliers: " + std::to_string(pose.inliers));
   pose.b_from_a = cv::Matx33d(r);
   const cv::Vec3d tb(t.at<double>(0), t.at<double>(1), t.at<double>(2));
   pose.translation_dir = cv::normalize(-(pose.b_from_a.t() * tb));
   pose.rotation_deg = RotationAngleDeg(pose.b_from_a, cv::Matx33d::eye());
   pose.inlier_mask.resize(na.size());
-  for (size_t i = 0; i < na.size(); ++i) pose.inlier_mask[i] = mask.at<uchar>(static_cast<int>(i)) != 0;
+  for (size_t i = 0; i < na.size(); ++i)
+    pose.inlier_mask[i] = mask.at<uchar>(static_cast<int>(i)) != 0;
   pose.median_parallax_deg = MedianParallaxDeg(na, nb, pose.inlier_mask, pose.b_from_a);
   pose.translation_reliable = pose.median_parallax_deg >= options.min_parallax_deg;
   return pose;

@@ -2,8 +2,8 @@
 #include "server/relative_pose.h"
 
 #include <gtest/gtest.h>
-#include <opencv2/calib3d.hpp>
 
+#include <opencv2/calib3d.hpp>
 #include <random>
 
 #include "indexer/rotation.h"
@@ -21,8 +21,8 @@ struct Views {
 
 // Points in front of both cameras, projected by cv::projectPoints; pixel noise of sigma_px, and
 // a share of the matches replaced by random pixels (outliers).
-Views MakeViews(const cv::Vec3d& rvec_ba, const cv::Vec3d& centre_b, double sigma_px, double outliers,
-                int n, uint32_t seed) {
+Views MakeViews(const cv::Vec3d& rvec_ba, const cv::Vec3d& centre_b, double sigma_px,
+                double outliers, int n, uint32_t seed) {
   std::mt19937 rng(seed);
   std::uniform_real_distribution<double> ux(-6, 6), uy(-3, 3), uz(4, 30), px(0, 640), py(0, 480);
   std::normal_distribution<double> noise(0, sigma_px);
@@ -39,10 +39,13 @@ Views MakeViews(const cv::Vec3d& rvec_ba, const cv::Vec3d& centre_b, double sigm
     const cv::Vec3d pb = v.b_from_a * cv::Vec3d(p.x, p.y, p.z) + tvec;
     if (pb[2] < 1) continue;
     std::vector<cv::Point2d> a, b;
-    cv::projectPoints(std::vector<cv::Point3d>{p}, cv::Vec3d(0, 0, 0), cv::Vec3d(0, 0, 0), k, cv::noArray(), a);
+    cv::projectPoints(std::vector<cv::Point3d>{p}, cv::Vec3d(0, 0, 0), cv::Vec3d(0, 0, 0), k,
+                      cv::noArray(), a);
     cv::projectPoints(std::vector<cv::Point3d>{p}, rvec_ba, tvec, k, cv::noArray(), b);
-    if (b[0].x < 0 || b[0].x > 640 || b[0].y < 0 || b[0].y > 480 || a[0].x < 0 || a[0].x > 640) continue;
-    cv::Point2d qa(a[0].x + noise(rng), a[0].y + noise(rng)), qb(b[0].x + noise(rng), b[0].y + noise(rng));
+    if (b[0].x < 0 || b[0].x > 640 || b[0].y < 0 || b[0].y > 480 || a[0].x < 0 || a[0].x > 640)
+      continue;
+    cv::Point2d qa(a[0].x + noise(rng), a[0].y + noise(rng)),
+        qb(b[0].x + noise(rng), b[0].y + noise(rng));
     if (u01(rng) < outliers) qb = cv::Point2d(px(rng), py(rng));
     v.na.emplace_back((qa.x - kCx) / kF, (qa.y - kCy) / kF);
     v.nb.emplace_back((qb.x - kCx) / kF, (qb.y - kCy) / kF);
