@@ -1,0 +1,41 @@
+#!/usr/bin/env bash
+# Command-line behaviour a user meets first: --help, bad flags, missing files. Each check prints
+# "ok" or "FAIL"; the script exits non-zero if any failed.
+# Usage: cli_test.sh BUILD_DIR
+set -u
+build="$1"
+demo="$build/demo_route/sightfix-demo-route"
+cli="$build/client/sightfix"
+tmp="$(mktemp -d)"
+trap 'rm -rf "$tmp"' EXIT
+passed=0 failed=0
+
+check() {  # check NAME EXPECTED_EXIT PATTERN -- COMMAND...
+  local name="$1" want="$2" pattern="$3"
+  shift 4
+  local out rc
+  out="$("$@" 2>&1)"
+  rc=$?
+  if [ "$rc" -eq "$want" ] && printf '%s' "$out" | grep -q -- "$pattern"; then
+    passed=$((passed + 1)); echo "ok   $name"
+  else
+    failed=$((failed + 1)); echo "FAIL $name (exit $rc, want $want; output: $(printf '%s' "$out" | head -3))"
+  fi
+}
+
+check "demo --help" 0 "route-length-m" -- "$demo" --help
+check "demo needs --out" 2 "--out is required" -- "$demo"
+check "demo bad image size" 2 "must look like 640x480" -- "$demo" --out "$tmp/x" --image-size big
+check "demo size out of range" 2 "image-size must be between" -- "$demo" --out "$tmp/x" --image-size 10x10
+check "demo unknown flag" 2 "unrecognised option" -- "$demo" --out "$tmp/x" --colour red
+check "demo route too short" 2 "route-length-m must be within" -- "$demo" --out "$tmp/x" --route-length-m 5
+check "sightfix usage names the safety caution" 0 "not a certified navigation source" -- "$cli" --help
+check "sightfix unknown command" 2 "unknown command 'fly'" -- "$cli" fly
+check "pair --help" 0 "translation" -- "$cli" pair --help
+check "pair needs a camera" 2 "needs IMAGE_A IMAGE_B and --camera" -- "$cli" pair a.jpg b.jpg
+check "pair missing calibration" 2 "cannot open calibration file" -- "$cli" pair a.jpg b.jpg --camera "$tmp/none.yml"
+printf '%%YAML:1.0\n---\nimage_width: 64\nimage_height: 48\ncamera_matrix: !!opencv-matrix\n   rows: 3\n   cols: 3\n   dt: d\n   data: [ 50., 0., 32., 0., 50., 24., 0., 0., 1. ]\n' > "$tmp/cam.yml"
+check "pair undecodable image" 2 "cannot read or decode image" -- "$cli" pair "$tmp/cam.yml" "$tmp/cam.yml" --camera "$tmp/cam.yml"
+
+echo "$passed passed, $failed failed"
+[ "$failed" -eq 0 ]
