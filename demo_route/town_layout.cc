@@ -252,27 +252,30 @@ void PlaceStreetFurniture(Town* town, Placer* placer, Rng& rng) {
         v.seed = rng.Next();
         town->vehicles.push_back(v);
       }
-      for (double s = rng.Uniform(3, 15); s < c.length() - 2; s += rng.Uniform(24, 32)) {
-        cv::Vec2d t;
-        Pole p;
-        p.kind = Pole::kLamp;
-        p.base = place(s, 8.6, &t);
-        p.height_m = rng.Uniform(5.5, 7.0);
-        p.facing_rad = std::atan2(side * Perp(t)[1], side * Perp(t)[0]);  // arm over the road
-        p.seed = rng.Next();
-        if (DistanceToStreets(*town, p.base) > 8.3) town->poles.push_back(p);
-      }
-      for (double s = rng.Uniform(10, 40); s < c.length() - 2; s += rng.Uniform(30, 55)) {
-        cv::Vec2d t;
-        Pole p;
-        p.kind = Pole::kSign;
-        p.base = place(s, 8.9, &t);
-        p.height_m = rng.Uniform(2.4, 3.0);
-        const cv::Vec2d facing = -side * t;  // faces traffic on its side
-        p.facing_rad = std::atan2(facing[1], facing[0]);
-        p.seed = rng.Next();
-        if (DistanceToStreets(*town, p.base) > 8.3) town->poles.push_back(p);
-      }
+      // A row of poles on this side: the first at U(first), then every U(step) metres.
+      struct PoleRow {
+        Pole::Kind kind;
+        double first_lo, first_hi, step_lo, step_hi, offset_m, height_lo, height_hi;
+      };
+      auto add_row = [&](const PoleRow& row, auto facing) {
+        for (double s = rng.Uniform(row.first_lo, row.first_hi); s < c.length() - 2;
+             s += rng.Uniform(row.step_lo, row.step_hi)) {
+          cv::Vec2d t;
+          Pole p;
+          p.kind = row.kind;
+          p.base = place(s, row.offset_m, &t);
+          p.height_m = rng.Uniform(row.height_lo, row.height_hi);
+          const cv::Vec2d f = facing(t);
+          p.facing_rad = std::atan2(f[1], f[0]);
+          p.seed = rng.Next();
+          if (DistanceToStreets(*town, p.base) > 8.3) town->poles.push_back(p);
+        }
+      };
+      // Lamps: the arm reaches over the road. Signs: they face the traffic on their side.
+      add_row({Pole::kLamp, 3, 15, 24, 32, 8.6, 5.5, 7.0},
+              [&](const cv::Vec2d& t) { return cv::Vec2d(side * Perp(t)); });
+      add_row({Pole::kSign, 10, 40, 30, 55, 8.9, 2.4, 3.0},
+              [&](const cv::Vec2d& t) { return cv::Vec2d(-side * t); });
       if (!avenue) continue;
       for (double s = rng.Uniform(4, 10); s < c.length() - 2; s += rng.Uniform(11, 17)) {
         cv::Vec2d t;

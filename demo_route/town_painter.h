@@ -45,7 +45,6 @@ class TextureBank {
   int Add(Painter painter, double texels_per_m);
   // Paints the texture if not yet painted. Thread-safe.
   const Texture& Get(int id) const;
-  size_t size() const { return slots_.size(); }
 
  private:
   struct Slot {

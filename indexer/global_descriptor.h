@@ -63,6 +63,8 @@ class GlobalDescriptor {
   // n x code_bytes CV_8U PQ codes of n whitened rows.
   cv::Mat Encode(const cv::Mat& whitened) const;
   // For each query row, the indices of the k nearest database codes (asymmetric distance).
+  // Wraps the codes in a FAISS index on every call: for one batch of queries, as in tests and
+  // benchmarks; a server keeps its tiles' indexes instead.
   std::vector<std::vector<int64_t>> SearchCodes(const cv::Mat& database_codes,
                                                 const cv::Mat& queries_whitened, int k) const;
 
