@@ -1,14 +1,20 @@
-// sightfix: the command-line client. So far: `pair`, the relative pose of two images.
+// sightfix: the command-line client: `locate` (one image against a map, in process) and `pair`
+// (the relative pose of two images).
 #include <boost/program_options.hpp>
+#include <cmath>
 #include <cstdio>
 #include <iostream>
 #include <nlohmann/json.hpp>
 #include <opencv2/core/utility.hpp>
 #include <opencv2/imgcodecs.hpp>
+#include <sstream>
 #include <string>
 
 #include "indexer/camera_model.h"
+#include "indexer/geo.h"
 #include "indexer/local_features.h"
+#include "indexer/threads.h"
+#include "server/localizer.h"
 #include "server/relative_pose.h"
 
 namespace po = boost::program_options;
@@ -111,11 +117,150 @@ int Pair(int argc, char** argv) {
   return pose.ok() ? 0 : 3;
 }
 
+// "a,b,c" -> numbers; false unless exactly n finite numbers.
+bool ParseNumbers(const std::string& text, size_t n, std::vector<double>* out) {
+  out->clear();
+  std::stringstream ss(text);
+  std::string item;
+  while (std::getline(ss, item, ',')) {
+    char* end = nullptr;
+    const double v = std::strtod(item.c_str(), &end);
+    if (item.empty() || *end != '\0' || !std::isfinite(v)) return false;
+    out->push_back(v);
+  }
+  return out->size() == n;
+}
+
+nlohmann::json FixJson(const sightfix::Fix& f) {
+  nlohmann::json refs = nlohmann::json::array();
+  for (const sightfix::ReferenceUse& u : f.references)
+    refs.push_back({{"tile", u.tile},
+                    {"image", u.name},
+                    {"retrieval_distance", u.retrieval_distance},
+                    {"matches", u.matches},
+                    {"inliers", u.inliers},
+                    {"points", u.points},
+                    {"verified", u.verified}});
+  const sightfix::StageTimings& t = f.timings;
+  nlohmann::json j = {{"quality", sightfix::FixQualityName(f.quality)},
+                      {"capture_time_s", f.capture_time_s},
+                      {"method", f.method},
+                      {"references", refs},
+                      {"correspondences", f.correspondences},
+                      {"pnp_inliers", f.pnp_inliers},
+                      {"timings_ms",
+                       {{"decode", t.decode_ms},
+                        {"features", t.features_ms},
+                        {"retrieval", t.retrieval_ms},
+                        {"verify", t.verify_ms},
+                        {"pose", t.pose_ms},
+                        {"total", t.total_ms}}}};
+  if (f.quality != sightfix::FixQuality::kNone) {
+    j["lat"] = f.lat_deg;
+    j["lon"] = f.lon_deg;
+    j["height"] = f.height_m;
+    j["heading_deg"] = f.heading_deg;
+    j["enu_to_camera"] = {f.enu_to_camera.w, f.enu_to_camera.x, f.enu_to_camera.y,
+                          f.enu_to_camera.z};
+    j["covariance_en_m2"] = {f.covariance_en(0, 0), f.covariance_en(0, 1), f.covariance_en(1, 1)};
+    j["radius95_m"] = f.radius95_m;
+  }
+  if (!f.reason.empty()) j["reason"] = f.reason;
+  if (f.prior_distance_m >= 0) {
+    j["prior_distance_m"] = f.prior_distance_m;
+    j["outside_prior"] = f.outside_prior;
+  }
+  return j;
+}
+
+int Locate(int argc, char** argv) {
+  std::string map_dir, image_path, camera_path, prior_text, truth_text, method = "auto";
+  double heading = NAN;
+  po::options_description desc(
+      "sightfix locate: where one camera image was taken, from a map, in this process.\n"
+      "Retrieval (prior tiles or the map-wide index), essential-matrix verification, PnP on the\n"
+      "map's 3D points, a 95 % confidence radius.\n\n"
+      "Usage: sightfix locate --map MAPDIR --image FILE --camera CAMERA.yml "
+      "[--prior LAT,LON,RADIUS_M] [--json]\n\nOptions");
+  desc.add_options()("help,h", "show this help")("map", po::value(&map_dir), "map folder")(
+      "image", po::value(&image_path), "query image (JPEG or PNG)")(
+      "camera", po::value(&camera_path), "its calibration (OpenCV FileStorage YAML)")(
+      "prior", po::value(&prior_text), "coarse prior circle LAT,LON,RADIUS_M (WGS84 degrees, m)")(
+      "heading", po::value(&heading), "coarse heading prior, degrees from north")(
+      "method", po::value(&method), "pose method: auto (points, then pair), points or pair")(
+      "truth", po::value(&truth_text), "true LAT,LON: also print the horizontal error")(
+      "json", "print JSON on stdout");
+  po::variables_map vm;
+  try {
+    po::store(po::command_line_parser(argc, argv).options(desc).run(), vm);
+    po::notify(vm);
+  } catch (const std::exception& e) {
+    return Fail(std::string(e.what()) + " (see sightfix locate --help)", 2);
+  }
+  if (vm.count("help")) {
+    std::cout << desc << "\n" << kSafety << "\n";
+    return 0;
+  }
+  if (map_dir.empty() || image_path.empty() || camera_path.empty())
+    return Fail("locate needs --map, --image and --camera (see sightfix locate --help)", 2);
+  sightfix::LocalizerOptions options;
+  if (method == "points")
+    options.method = sightfix::PoseMethod::kPoints;
+  else if (method == "pair")
+    options.method = sightfix::PoseMethod::kPair;
+  else if (method != "auto")
+    return Fail("--method must be auto, points or pair", 2);
+  sightfix::LocateRequest req;
+  std::vector<double> v;
+  if (!prior_text.empty()) {
+    if (!ParseNumbers(prior_text, 3, &v)) return Fail("--prior must look like LAT,LON,RADIUS_M", 2);
+    req.prior = sightfix::PriorCircle{v[0], v[1], v[2]};
+  }
+  std::vector<double> truth;
+  if (!truth_text.empty() && !ParseNumbers(truth_text, 2, &truth))
+    return Fail("--truth must look like LAT,LON", 2);
+  if (vm.count("heading")) req.heading_deg = heading;
+  auto cam = sightfix::LoadCameraModel(camera_path);
+  if (!cam.ok()) return Fail(cam.status().ToString(), 2);
+  req.camera = *cam;
+  req.image = cv::imread(image_path, cv::IMREAD_GRAYSCALE);
+  if (req.image.empty()) return Fail("cannot read or decode image " + image_path, 2);
+  auto localizer = sightfix::Localizer::Open(map_dir, options);
+  if (!localizer.ok()) return Fail(localizer.status().ToString(), 2);
+  auto fix = (*localizer)->Locate(req);
+  if (!fix.ok()) return Fail(fix.status().ToString(), 2);
+  nlohmann::json j = FixJson(*fix);
+  double error_m = -1;
+  if (!truth.empty() && fix->quality != sightfix::FixQuality::kNone) {
+    error_m = sightfix::GeodesicBetween(truth[0], truth[1], fix->lat_deg, fix->lon_deg).distance_m;
+    j["error_m"] = error_m;
+  }
+  if (vm.count("json")) {
+    std::cout << j.dump(2) << "\n";
+  } else if (fix->quality == sightfix::FixQuality::kNone) {
+    std::printf("no fix: %s\n", fix->reason.c_str());
+  } else {
+    std::printf("%s fix (%s): %.7f, %.7f, height %.2f m, heading %.1f deg, radius95 %.2f m\n",
+                sightfix::FixQualityName(fix->quality), fix->method.c_str(), fix->lat_deg,
+                fix->lon_deg, fix->height_m, fix->heading_deg, fix->radius95_m);
+    if (!fix->reason.empty()) std::printf("not refined: %s\n", fix->reason.c_str());
+    if (fix->outside_prior)
+      std::printf("outside the prior: %.1f m from its centre (radius %.1f m)\n",
+                  fix->prior_distance_m, req.prior->radius_m);
+    if (error_m >= 0) std::printf("error against truth: %.3f m\n", error_m);
+    std::printf("%d 2D-3D correspondences, %d inliers; %.0f ms\n%s\n", fix->correspondences,
+                fix->pnp_inliers, fix->timings.total_ms, kSafety);
+  }
+  return fix->quality == sightfix::FixQuality::kNone ? 3 : 0;
+}
+
 void Usage() {
   std::printf(
       "sightfix: visual localization client\n\nUsage: sightfix COMMAND [options]\n\nCommands:\n"
-      "  pair IMAGE_A IMAGE_B --camera A.yml [--camera-b B.yml] [--json]   relative pose of two "
-      "images\n\n"
+      "  locate --map MAPDIR --image FILE --camera CAMERA.yml [--prior LAT,LON,RADIUS_M] [--json]\n"
+      "      where one image was taken, against a map, in this process\n"
+      "  pair IMAGE_A IMAGE_B --camera A.yml [--camera-b B.yml] [--json]\n"
+      "      relative pose of two images\n\n"
       "sightfix COMMAND --help tells more.\n%s\n",
       kSafety);
 }
@@ -123,13 +268,14 @@ void Usage() {
 }  // namespace
 
 int main(int argc, char** argv) {
-  cv::setNumThreads(1);
+  sightfix::PinLibraryThreads();
   if (argc < 2 || std::string(argv[1]) == "--help" || std::string(argv[1]) == "-h") {
     Usage();
     return argc < 2 ? 2 : 0;
   }
   const std::string command = argv[1];
   if (command == "pair") return Pair(argc - 1, argv + 1);
+  if (command == "locate") return Locate(argc - 1, argv + 1);
   Usage();
   return Fail("unknown command '" + command + "'", 2);
 }

@@ -60,6 +60,18 @@ Result<LocalFeatures> ExtractFeatures(const cv::Mat& image, const CameraModel* c
   return f;
 }
 
+cv::Mat CompactDescriptors(const cv::Mat& rootsift) {
+  cv::Mat bytes;
+  rootsift.convertTo(bytes, CV_8U, kRootSiftByteScale);  // rounds and saturates
+  return bytes;
+}
+
+cv::Mat ExpandDescriptors(const cv::Mat& bytes) {
+  cv::Mat f;
+  bytes.convertTo(f, CV_32F, 1.0 / kRootSiftByteScale);
+  return f;
+}
+
 std::vector<cv::DMatch> MatchFeatures(const LocalFeatures& a, const LocalFeatures& b,
                                       const MatchOptions& options) {
   std::vector<cv::DMatch> out;

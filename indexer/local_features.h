@@ -43,6 +43,12 @@ struct MatchOptions {
   bool mutual = true;  // keep a -> b only if b's best match is a too
 };
 
+// Compact storage of RootSIFT descriptors: each value (at most 1, in practice under 0.45) times
+// kRootSiftByteScale, rounded and saturated to a byte; 128 bytes per keypoint instead of 512.
+constexpr float kRootSiftByteScale = 512.0f;
+cv::Mat CompactDescriptors(const cv::Mat& rootsift);  // n x 128 CV_32F -> CV_8U
+cv::Mat ExpandDescriptors(const cv::Mat& bytes);      // n x 128 CV_8U -> CV_32F
+
 // Matches a's features to b's (queryIdx indexes a, trainIdx b). REQUIRES: same FeatureType.
 std::vector<cv::DMatch> MatchFeatures(const LocalFeatures& a, const LocalFeatures& b,
                                       const MatchOptions& options);

@@ -1,9 +1,9 @@
 #include "indexer/local_features.h"
 
 #include <gtest/gtest.h>
-#include <opencv2/imgcodecs.hpp>
 
 #include <cmath>
+#include <opencv2/imgcodecs.hpp>
 
 namespace sightfix {
 namespace {
@@ -25,7 +25,8 @@ TEST(LocalFeaturesTest, GraffitiPairAgreesWithPublishedHomography) {
 
   FeatureOptions options;
   options.max_features = 4000;
-  Result<LocalFeatures> fa = ExtractFeatures(a, nullptr, options), fb = ExtractFeatures(b, nullptr, options);
+  Result<LocalFeatures> fa = ExtractFeatures(a, nullptr, options),
+                        fb = ExtractFeatures(b, nullptr, options);
   ASSERT_TRUE(fa.ok() && fb.ok());
   const std::vector<cv::DMatch> matches = MatchFeatures(*fa, *fb, MatchOptions{});
   ASSERT_GT(matches.size(), 100u);
@@ -38,8 +39,8 @@ TEST(LocalFeaturesTest, GraffitiPairAgreesWithPublishedHomography) {
     within10 += err <= 10;
   }
   const double s3 = double(within3) / matches.size(), s10 = double(within10) / matches.size();
-  std::printf("graf1->graf3: %zu matches, %.1f %% within 3 px, %.1f %% within 10 px\n", matches.size(), 100 * s3,
-              100 * s10);
+  std::printf("graf1->graf3: %zu matches, %.1f %% within 3 px, %.1f %% within 10 px\n",
+              matches.size(), 100 * s3, 100 * s10);
   EXPECT_GE(s3, 0.60);
   EXPECT_GE(s10, 0.85);
 }
@@ -57,6 +58,39 @@ TEST(LocalFeaturesTest, RootSiftIsUnitL2AndNonNegative) {
     cv::minMaxLoc(f->descriptors.row(i), &mn);
     EXPECT_GE(mn, 0.0);
   }
+}
+
+// The map stores descriptors as bytes: the graffiti pair, matched against stored (compacted)
+// descriptors, must keep the published-homography agreement above the same bounds, and the
+// scale must almost never saturate.
+TEST(LocalFeaturesTest, CompactDescriptorsKeepGraffitiMatches) {
+  const cv::Mat a = cv::imread(std::string(kOpenCvData) + "graf1.png");
+  const cv::Mat b = cv::imread(std::string(kOpenCvData) + "graf3.png");
+  ASSERT_FALSE(a.empty() || b.empty());
+  cv::FileStorage fs(std::string(kOpenCvData) + "H1to3p.xml", cv::FileStorage::READ);
+  cv::Mat h;
+  fs["H13"] >> h;
+  const cv::Matx33d H(h);
+  FeatureOptions options;
+  options.max_features = 4000;
+  Result<LocalFeatures> fa = ExtractFeatures(a, nullptr, options),
+                        fb = ExtractFeatures(b, nullptr, options);
+  ASSERT_TRUE(fa.ok() && fb.ok());
+  const cv::Mat bytes = CompactDescriptors(fb->descriptors);
+  EXPECT_EQ(bytes.type(), CV_8U);
+  EXPECT_LT(cv::countNonZero(bytes == 255), static_cast<int>(bytes.total() / 1000));
+  fb->descriptors = ExpandDescriptors(bytes);
+  const std::vector<cv::DMatch> matches = MatchFeatures(*fa, *fb, MatchOptions{});
+  ASSERT_GT(matches.size(), 100u);
+  int within3 = 0;
+  for (const cv::DMatch& m : matches) {
+    const cv::Point2f p = fa->keypoints[m.queryIdx].pt, q = fb->keypoints[m.trainIdx].pt;
+    const cv::Vec3d hp = H * cv::Vec3d(p.x, p.y, 1.0);
+    within3 += std::hypot(hp[0] / hp[2] - q.x, hp[1] / hp[2] - q.y) <= 3;
+  }
+  std::printf("compact: %zu matches, %.1f %% within 3 px\n", matches.size(),
+              100.0 * within3 / matches.size());
+  EXPECT_GE(double(within3) / matches.size(), 0.60);
 }
 
 TEST(LocalFeaturesTest, RejectsImageThatDoesNotFitCalibration) {

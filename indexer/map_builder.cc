@@ -1,0 +1,366 @@
+#include "indexer/map_builder.h"
+
+#include <faiss/IndexFlatCodes.h>
+#include <faiss/IndexIDMap.h>
+#include <faiss/impl/io.h>
+#include <faiss/index_io.h>
+#include <omp.h>
+
+#include <chrono>
+#include <cmath>
+#include <filesystem>
+#include <map>
+#include <nlohmann/json.hpp>
+#include <opencv2/imgcodecs.hpp>
+
+#include "indexer/drive_manifest.h"
+#include "indexer/geo.h"
+#include "indexer/iso_time.h"
+#include "indexer/map_store.h"
+#include "indexer/parallel.h"
+#include "indexer/progress.h"
+#include "indexer/rotation.h"
+#include "indexer/sha256.h"
+#include "indexer/threads.h"
+
+namespace sightfix {
+namespace {
+
+namespace fs = std::filesystem;
+using Clock = std::chrono::steady_clock;
+
+double SecondsSince(Clock::time_point t0) {
+  return std::chrono::duration<double>(Clock::now() - t0).count();
+}
+
+void Say(const BuildOptions& o, const std::string& line) {
+  if (o.progress) std::fprintf(stderr, "indexer: %s\n", line.c_str());
+}
+
+struct Survey {
+  std::vector<DriveRow> rows;
+  std::vector<CameraModel> cameras;  // distinct calibrations
+  std::vector<int> camera_of_row;
+  std::vector<LocalFeatures> features;
+};
+
+Status LoadCameras(const BuildOptions& o, Survey* s) {
+  std::map<std::string, int> by_name;
+  const std::string manifest = (fs::path(o.drive_dir) / "drive.csv").string();
+  for (size_t i = 0; i < s->rows.size(); ++i) {
+    const std::string& name = s->rows[i].camera;
+    auto it = by_name.find(name);
+    if (it == by_name.end()) {
+      Result<CameraModel> cam = LoadCameraModel((fs::path(o.drive_dir) / name).string());
+      if (!cam.ok())
+        return Status(cam.status().code(),
+                      manifest + ":" + std::to_string(i + 2) + ": " + cam.status().message());
+      it = by_name.emplace(name, static_cast<int>(s->cameras.size())).first;
+      s->cameras.push_back(*cam);
+    }
+    s->camera_of_row.push_back(it->second);
+  }
+  return Status::Ok();
+}
+
+Status ExtractAll(const BuildOptions& o, Survey* s) {
+  const std::string manifest = (fs::path(o.drive_dir) / "drive.csv").string();
+  s->features.resize(s->rows.size());
+  std::vector<Status> status(s->rows.size());
+  std::unique_ptr<Progress> progress;
+  if (o.progress) progress = std::make_unique<Progress>("survey images", s->rows.size());
+  ParallelFor(static_cast<int>(s->rows.size()), ThreadCount(o.jobs), [&](int i) {
+    const std::string path = (fs::path(o.drive_dir) / s->rows[i].image).string();
+    const std::string where = manifest + ":" + std::to_string(i + 2) + ": ";
+    const cv::Mat img = cv::imread(path, cv::IMREAD_GRAYSCALE);
+    if (img.empty()) {
+      status[i] = Status::InvalidArgument(where + "cannot read or decode image " + path);
+    } else {
+      Result<LocalFeatures> f = ExtractFeatures(img, &s->cameras[s->camera_of_row[i]], o.features);
+      if (f.ok())
+        s->features[i] = std::move(f).value();
+      else
+        status[i] = Status::InvalidArgument(where + s->rows[i].image + ": " + f.status().message());
+    }
+    if (progress) progress->Advance();
+  });
+  for (const Status& st : status)
+    if (!st.ok()) return st;  // the first bad row, in file order
+  return Status::Ok();
+}
+
+Result<GlobalDescriptor> TrainModel(const BuildOptions& o, const Survey& s, int* vectors) {
+  cv::Mat sample;
+  std::vector<cv::Mat> images;
+  for (const LocalFeatures& f : s.features) {
+    sample.push_back(f.descriptors.rowRange(0, std::min(f.descriptors.rows, o.vocabulary_sample)));
+    images.push_back(f.descriptors);
+  }
+  const int n = static_cast<int>(images.size());
+  const int need = o.descriptor.min_pq_training - n;
+  const int per_image = need > 0 ? std::min(o.max_crop_views, (need + n - 1) / n) : 0;
+  std::vector<cv::Mat> crops;
+  for (int i = 0; i < n; ++i) {
+    const CameraModel& cam = s.cameras[s.camera_of_row[i]];
+    for (cv::Mat& v : CropViews(s.features[i], cam.width_px, cam.height_px, per_image, i))
+      crops.push_back(std::move(v));
+  }
+  *vectors = n + static_cast<int>(crops.size());
+  return GlobalDescriptor::Train(sample, images, crops, o.descriptor);
+}
+
+struct Posed {
+  std::vector<cv::Matx33d> enu_from_camera;
+  std::vector<cv::Vec3d> center;
+};
+
+std::vector<SurveyView> Views(const Survey& s, const EnuFrame& enu) {
+  std::vector<SurveyView> views;
+  for (size_t i = 0; i < s.rows.size(); ++i) {
+    SurveyView v;
+    v.enu_from_camera = EnuFromCamera(s.rows[i].attitude);
+    v.center_enu = enu.ToEnu(s.rows[i].position);
+    v.sigma_h_m = s.rows[i].sigma_h_m;
+    v.focal_px = 0.5 * (s.cameras[s.camera_of_row[i]].fx + s.cameras[s.camera_of_row[i]].fy);
+    v.features = &s.features[i];
+    views.push_back(v);
+  }
+  return views;
+}
+
+std::vector<uint8_t> IndexBytes(const faiss::Index& index) {
+  faiss::VectorIOWriter w;
+  faiss::write_index(&index, &w);
+  return std::move(w.data);
+}
+
+// Everything the tiles are cut from.
+struct Built {
+  const Survey* survey;
+  const GlobalDescriptor* model;
+  std::string model_id;
+  cv::Mat codes;  // one row per image
+  const StructureResult* structure;
+  const EnuFrame* enu;
+  int map_version;
+};
+
+TileData MakeTile(const Built& b, const TileKey& key, const std::vector<int>& rows) {
+  TileData t;
+  t.key = key;
+  t.model_id = b.model_id;
+  t.map_version = b.map_version;
+  const TileBounds bounds = BoundsOfTile(key);
+  double mean_h = 0;
+  for (int r : rows) mean_h += b.survey->rows[r].position.height_m / rows.size();
+  t.origin = {0.5 * (bounds.south_deg + bounds.north_deg),
+              0.5 * (bounds.west_deg + bounds.east_deg), std::round(mean_h)};
+  const EnuFrame tile_enu(t.origin);
+  t.cameras = b.survey->cameras;
+  std::map<int, int> point_index;  // structure point -> tile point
+  std::map<std::pair<int, int>, int> point_of;
+  for (size_t p = 0; p < b.structure->points.size(); ++p)
+    for (auto ob : b.structure->points[p].observations) point_of[ob] = static_cast<int>(p);
+  cv::Mat tile_codes;
+  for (int r : rows) {
+    const DriveRow& row = b.survey->rows[r];
+    const LocalFeatures& f = b.survey->features[r];
+    ReferenceImage img;
+    img.id = static_cast<int>(t.images.size());
+    img.name = row.image;
+    img.timestamp_s = row.timestamp_s;
+    img.position = b.enu->ToGeo(b.structure->center_enu[r]);
+    img.attitude = AttitudeFromEnuFromCamera(b.structure->enu_from_camera[r]);
+    img.sigma_h_m = row.sigma_h_m;
+    img.camera_id = b.survey->camera_of_row[r];
+    img.global_code.assign(b.codes.ptr<uint8_t>(r), b.codes.ptr<uint8_t>(r) + b.codes.cols);
+    for (const cv::Point2d& n : f.normalized) img.normalized.emplace_back(n);
+    img.descriptors = CompactDescriptors(f.descriptors);
+    img.point_ids.assign(f.keypoints.size(), -1);
+    for (size_t k = 0; k < f.keypoints.size(); ++k) {
+      auto it = point_of.find({r, static_cast<int>(k)});
+      if (it == point_of.end()) continue;
+      auto [slot, fresh] = point_index.emplace(it->second, static_cast<int>(t.points.size()));
+      if (fresh) {
+        const StructurePoint& sp = b.structure->points[it->second];
+        MapPoint mp;
+        mp.enu = tile_enu.ToEnu(b.enu->ToGeo(sp.enu));
+        mp.covariance = sp.covariance;
+        const auto [v, kp] = sp.observations[sp.representative];
+        mp.descriptor = CompactDescriptors(b.survey->features[v].descriptors.row(kp));
+        mp.observations = static_cast<int>(sp.observations.size());
+        t.points.push_back(mp);
+      }
+      img.point_ids[k] = slot->second;
+    }
+    tile_codes.push_back(b.codes.row(r));
+    t.images.push_back(std::move(img));
+  }
+  t.retrieval_index = IndexBytes(*b.model->MakeIndex(tile_codes));
+  return t;
+}
+
+std::string NowIsoUtc() {
+  return FormatIsoUtc(static_cast<double>(std::chrono::duration_cast<std::chrono::seconds>(
+                                              std::chrono::system_clock::now().time_since_epoch())
+                                              .count()));
+}
+
+nlohmann::json ModelParams(const GlobalDescriptor& g, int training_vectors) {
+  const GlobalDescriptorOptions& d = g.options();
+  return {{"global", "VLAD+PCA+" + g.codec_name()},
+          {"clusters", d.clusters},
+          {"pca_dims", d.pca_dims},
+          {"pca_epsilon", d.pca_epsilon},
+          {"code_bytes", g.code_bytes()},
+          {"training_vectors", training_vectors},
+          {"local", "rootsift"}};
+}
+
+// Writes tiles and the catalog; fills the byte counts of *summary.
+Status Publish(const BuildOptions& o, const Built& b, Catalog& catalog, BuildSummary* summary) {
+  std::map<TileKey, std::vector<int>> by_tile;
+  for (size_t r = 0; r < b.survey->rows.size(); ++r) {
+    const GeoPoint p = b.enu->ToGeo(b.structure->center_enu[r]);
+    by_tile[TileForPoint(p.lat_deg, p.lon_deg, o.zoom)].push_back(static_cast<int>(r));
+  }
+  cv::Mat all_codes;
+  std::vector<faiss::Index::idx_t> ids;
+  double local_bytes = 0, point_bytes = 0, file_bytes = 0;
+  for (const auto& [key, rows] : by_tile) {
+    const TileData tile = MakeTile(b, key, rows);
+    const std::string rel = TileFileName(key, b.map_version);
+    const std::string path = (fs::path(o.map_dir) / rel).string();
+    if (Status s = WriteTile(path, tile); !s.ok()) return s;
+    Result<std::string> sha = Sha256OfFile(path);
+    if (!sha.ok()) return sha.status();
+    const int ordinal = static_cast<int>(catalog.tiles.size());
+    catalog.tiles.push_back({key, rel, *sha, static_cast<int>(tile.images.size()),
+                             static_cast<int>(tile.points.size()), b.model_id});
+    for (const ReferenceImage& img : tile.images) {
+      all_codes.push_back(b.codes.row(rows[img.id]));
+      ids.push_back(GlobalImageId(ordinal, img.id));
+      local_bytes += img.normalized.size() * (sizeof(cv::Point2f) + 128 + sizeof(int32_t));
+    }
+    point_bytes += tile.points.size() * (3 * 8 + 6 * 4 + 128 + 4);
+    file_bytes += fs::file_size(path);
+    summary->points += static_cast<int>(tile.points.size());
+  }
+  // FAISS wraps only an empty index; the codes go in afterwards, already encoded.
+  faiss::IndexIDMap global(b.model->MakeIndex(cv::Mat(0, b.codes.cols, CV_8U)).release());
+  global.own_fields = true;
+  auto* inner = dynamic_cast<faiss::IndexFlatCodes*>(global.index);
+  inner->codes.assign(all_codes.ptr<uint8_t>(), all_codes.ptr<uint8_t>() + all_codes.total());
+  inner->ntotal = global.ntotal = static_cast<faiss::Index::idx_t>(ids.size());
+  global.id_map = ids;
+  catalog.global_index = IndexBytes(global);
+  const double n = static_cast<double>(b.survey->rows.size());
+  summary->tiles = static_cast<int>(catalog.tiles.size());
+  summary->global_code_bytes = b.codes.cols;
+  summary->local_feature_bytes = local_bytes / n;
+  summary->point_bytes = point_bytes / n;
+  summary->tile_file_bytes = file_bytes / n;
+  return WriteCatalog((fs::path(o.map_dir) / "catalog.sqlite").string(), catalog);
+}
+
+Result<int> NextMapVersion(const BuildOptions& o) {
+  const std::string path = (fs::path(o.map_dir) / "catalog.sqlite").string();
+  if (!fs::exists(path)) return 1;
+  if (!o.overwrite)
+    return Status(StatusCode::kFailedPrecondition,
+                  o.map_dir + " already holds a map; pass --overwrite to replace it");
+  Result<Catalog> old = ReadCatalog(path);
+  return old.ok() ? old->map_version + 1 : 1;
+}
+
+}  // namespace
+
+bool BuildOptions::Validate(std::string* error) const {
+  auto fail = [&](const std::string& m) {
+    if (error) *error = m;
+    return false;
+  };
+  if (drive_dir.empty()) return fail("drive_dir is required");
+  if (map_dir.empty()) return fail("map_dir is required");
+  if (zoom < 10 || zoom > 22) return fail("zoom must be within [10, 22]");
+  if (jobs < 0) return fail("jobs must be >= 0");
+  if (vocabulary_sample < 10) return fail("vocabulary_sample must be >= 10");
+  if (max_crop_views < 0) return fail("max_crop_views must be >= 0");
+  if (features.type != FeatureType::kRootSift) return fail("features: the map needs RootSIFT");
+  std::string e;
+  if (!features.Validate(&e)) return fail("features: " + e);
+  if (!descriptor.Validate(&e)) return fail("descriptor: " + e);
+  if (!structure.Validate(&e)) return fail("structure: " + e);
+  return true;
+}
+
+Result<BuildSummary> BuildMap(const BuildOptions& o) {
+  std::string error;
+  if (!o.Validate(&error)) return Status::InvalidArgument(error);
+  PinLibraryThreads();  // DEVELOPERS.md, Threads
+  const auto t_start = Clock::now();
+  Result<int> version = NextMapVersion(o);
+  if (!version.ok()) return version.status();
+  Survey s;
+  Result<std::vector<DriveRow>> rows =
+      ReadDriveManifest((fs::path(o.drive_dir) / "drive.csv").string());
+  if (!rows.ok()) return rows.status();
+  s.rows = std::move(rows).value();
+  if (s.rows.size() < 16)
+    return Status::InvalidArgument("a map needs at least 16 survey images, the drive has " +
+                                   std::to_string(s.rows.size()));
+  if (Status st = LoadCameras(o, &s); !st.ok()) return st;
+  BuildSummary summary;
+  summary.images = static_cast<int>(s.rows.size());
+  summary.map_version = *version;
+
+  auto t0 = Clock::now();
+  if (Status st = ExtractAll(o, &s); !st.ok()) return st;
+  summary.feature_s = SecondsSince(t0);
+
+  t0 = Clock::now();
+  Say(o, "training the global descriptor model");
+  Result<GlobalDescriptor> model = TrainModel(o, s, &summary.training_vectors);
+  if (!model.ok()) return model.status();
+  cv::Mat vlads(static_cast<int>(s.rows.size()), model->vlad_dims(), CV_32F);
+  ParallelFor(vlads.rows, ThreadCount(o.jobs),
+              [&](int i) { model->Vlad(s.features[i].descriptors).copyTo(vlads.row(i)); });
+  const cv::Mat codes = model->Encode(model->Whiten(vlads));
+  const std::vector<uint8_t> model_blob = model->Serialize();
+  summary.model_id = Sha256Hex(model_blob).substr(0, 16);
+  summary.codec = model->codec_name();
+  summary.model_s = SecondsSince(t0);
+
+  t0 = Clock::now();
+  Say(o, "matching neighbouring frames, triangulating, bundle adjustment");
+  const EnuFrame enu(s.rows[0].position);
+  StructureOptions so = o.structure;
+  so.jobs = o.jobs;
+  Result<StructureResult> structure = BuildStructure(Views(s, enu), so);
+  if (!structure.ok()) return structure.status();
+  summary.structure = structure->summary;
+  summary.structure_s = SecondsSince(t0);
+
+  t0 = Clock::now();
+  Say(o, "writing tiles and the catalog");
+  Catalog catalog;
+  catalog.map_version = *version;
+  catalog.zoom = o.zoom;
+  catalog.model_id = summary.model_id;
+  catalog.model_params = ModelParams(*model, summary.training_vectors).dump();
+  catalog.model_blob = model_blob;
+  catalog.created_utc = NowIsoUtc();
+  catalog.provenance = nlohmann::json{
+      {"drive", fs::absolute(o.drive_dir).string()},
+      {"images", summary.images},
+      {"max_features", o.features.max_features},
+      {"zoom", o.zoom}}.dump();
+  const Built built{&s, &*model, summary.model_id, codes, &*structure, &enu, *version};
+  if (Status st = Publish(o, built, catalog, &summary); !st.ok()) return st;
+  summary.write_s = SecondsSince(t0);
+  summary.seconds = SecondsSince(t_start);
+  summary.images_per_s = summary.images / std::max(summary.seconds, 1e-9);
+  return summary;
+}
+
+}  // namespace sightfix

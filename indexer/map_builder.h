@@ -1,0 +1,58 @@
+// Builds a map from one survey drive: `sightfix-indexer build`.
+//
+// 1. Ingest: drive.csv read and checked row by row (ReadDriveManifest), every calibration loaded,
+//    every image decoded and checked against its calibration's size. The first bad row stops the
+//    build before anything is written, with "<file>:<line>: <what>".
+// 2. Local features (RootSIFT, keypoints undistorted), `jobs` images at a time.
+// 3. Global descriptor model (global_descriptor.h) trained on the survey, with crop views when the
+//    survey alone is under min_pq_training vectors; every image encoded.
+// 4. Structure (structure.h): tracks, triangulation, bundle adjustment with the poses as priors.
+// 5. Tiles: images grouped by the WebMercatorQuad tile of their camera centre at `zoom`; each
+//    tile gets the points its images observe, in its own ENU frame, and its retrieval index.
+// 6. Publishing: tile files first (versioned names, fsynced), then the catalog with the model,
+//    tile checksums and the map-wide index, renamed into place last.
+// Thread safety: one build per map folder at a time.
+#pragma once
+
+#include <string>
+
+#include "indexer/global_descriptor.h"
+#include "indexer/local_features.h"
+#include "indexer/status.h"
+#include "indexer/structure.h"
+#include "indexer/tile_key.h"
+
+namespace sightfix {
+
+struct BuildOptions {
+  std::string drive_dir;  // holds drive.csv and the calibrations it names
+  std::string map_dir;
+  int zoom = kDefaultTileZoom;
+  int jobs = 0;                 // worker threads; 0 = all cores
+  bool overwrite = false;       // replace an existing map (its version goes up)
+  int vocabulary_sample = 300;  // descriptors per image for the k-means vocabulary
+  // Crop views per image, only while under min_pq_training (DESIGN.md 4.3): 40 lets surveys of
+  // 244 images or more reach the 9 984 vectors of an 8-bit PQ; smaller ones get SQ8 codes.
+  int max_crop_views = 40;
+  bool progress = true;  // progress on stderr
+  FeatureOptions features;
+  GlobalDescriptorOptions descriptor;
+  StructureOptions structure;
+  // Names the bad field in *error.
+  bool Validate(std::string* error) const;
+};
+
+struct BuildSummary {
+  int images = 0, tiles = 0, points = 0, map_version = 0;
+  std::string model_id, codec;
+  int training_vectors = 0;  // real images plus crop views
+  double seconds = 0, images_per_s = 0;
+  double feature_s = 0, model_s = 0, structure_s = 0, write_s = 0;
+  // Bytes per image on disk, by part (averages over the map).
+  double global_code_bytes = 0, local_feature_bytes = 0, point_bytes = 0, tile_file_bytes = 0;
+  StructureSummary structure;
+};
+
+Result<BuildSummary> BuildMap(const BuildOptions& options);
+
+}  // namespace sightfix

@@ -1,0 +1,79 @@
+#include "server/tile_cache.h"
+
+#include <faiss/Index.h>
+#include <faiss/impl/FaissException.h>
+#include <faiss/impl/io.h>
+#include <faiss/index_io.h>
+
+#include <filesystem>
+
+namespace sightfix {
+
+LoadedTile::LoadedTile(TileData d, std::unique_ptr<faiss::Index> i)
+    : data(std::move(d)), index(std::move(i)), enu(data.origin) {
+  bytes = sizeof(*this) + data.retrieval_index.size();
+  for (const ReferenceImage& r : data.images) {
+    image_centers.push_back(enu.ToEnu(r.position));
+    bytes += r.descriptors.total() + r.normalized.size() * 12 + r.global_code.size();
+  }
+  bytes += data.points.size() * (sizeof(MapPoint) + 128);
+}
+
+LoadedTile::~LoadedTile() = default;
+
+TileCache::TileCache(std::string map_dir, std::vector<CatalogTile> tiles, size_t budget_bytes)
+    : map_dir_(std::move(map_dir)), tiles_(std::move(tiles)), budget_bytes_(budget_bytes) {
+  for (size_t i = 0; i < tiles_.size(); ++i) ordinal_[tiles_[i].key] = static_cast<int>(i);
+}
+
+int TileCache::OrdinalOf(const TileKey& key) const {
+  auto it = ordinal_.find(key);
+  return it == ordinal_.end() ? -1 : it->second;
+}
+
+size_t TileCache::cached_bytes() const {
+  std::lock_guard<std::mutex> lock(mu_);
+  return bytes_;
+}
+
+int TileCache::cached_tiles() const {
+  std::lock_guard<std::mutex> lock(mu_);
+  return static_cast<int>(cache_.size());
+}
+
+Result<std::shared_ptr<const LoadedTile>> TileCache::Get(int ordinal) {
+  if (ordinal < 0 || ordinal >= static_cast<int>(tiles_.size()))
+    return Status::NotFound("no tile with ordinal " + std::to_string(ordinal));
+  std::lock_guard<std::mutex> lock(mu_);  // loads are serialized: simple, and tiles are few
+  if (auto it = cache_.find(ordinal); it != cache_.end()) {
+    lru_.splice(lru_.begin(), lru_, it->second.second);
+    return it->second.first;
+  }
+  if (auto f = failed_.find(ordinal); f != failed_.end()) return f->second;
+  const std::string path = (std::filesystem::path(map_dir_) / tiles_[ordinal].file).string();
+  Result<TileData> data = ReadTile(path);
+  if (!data.ok()) return failed_[ordinal] = data.status();
+  std::unique_ptr<faiss::Index> index;
+  try {
+    faiss::VectorIOReader reader;
+    reader.data = data->retrieval_index;
+    index.reset(faiss::read_index(&reader));
+  } catch (const faiss::FaissException& e) {
+    return failed_[ordinal] = Status::Corrupt(path + ": retrieval index unreadable");
+  }
+  if (index->ntotal != static_cast<faiss::Index::idx_t>(data->images.size()))
+    return failed_[ordinal] = Status::Corrupt(path + ": retrieval index and images disagree");
+  auto tile = std::make_shared<const LoadedTile>(std::move(data).value(), std::move(index));
+  lru_.push_front(ordinal);
+  cache_[ordinal] = {tile, lru_.begin()};
+  bytes_ += tile->bytes;
+  while (bytes_ > budget_bytes_ && lru_.size() > 1) {  // keep at least the tile just loaded
+    const int victim = lru_.back();
+    lru_.pop_back();
+    bytes_ -= cache_[victim].first->bytes;
+    cache_.erase(victim);
+  }
+  return std::shared_ptr<const LoadedTile>(tile);
+}
+
+}  // namespace sightfix
