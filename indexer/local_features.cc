@@ -18,6 +18,10 @@ void ToRootSift(cv::Mat& d) {
 }  // namespace
 
 bool FeatureOptions::Validate(std::string* error) const {
+  if (!(min_contrast_std >= 0) || !(max_gain >= 1)) {
+    if (error) *error = "min_contrast_std must be >= 0 and max_gain >= 1";
+    return false;
+  }
   if (max_features < 8 || max_features > 100000) {
     if (error) *error = "max_features must be within [8, 100000]";
     return false;
@@ -43,6 +47,14 @@ Result<LocalFeatures> ExtractFeatures(const cv::Mat& image, const CameraModel* c
       grey = image;
     else
       cv::cvtColor(image, grey, cv::COLOR_BGR2GRAY);
+    if (options.min_contrast_std > 0) {
+      cv::Scalar mean, stddev;
+      cv::meanStdDev(grey, mean, stddev);
+      if (stddev[0] > 0 && stddev[0] < options.min_contrast_std) {
+        const double gain = std::min(options.max_gain, options.min_contrast_std / stddev[0]);
+        grey.convertTo(grey, CV_8U, gain, 128.0 - gain * mean[0]);  // saturates at 0 and 255
+      }
+    }
     if (options.type == FeatureType::kRootSift) {
       cv::SIFT::create(options.max_features)
           ->detectAndCompute(grey, cv::noArray(), f.keypoints, f.descriptors);

@@ -22,6 +22,13 @@ struct FeatureOptions {
   FeatureType type = FeatureType::kRootSift;
   // Strongest keypoints kept per image. 2000 keeps matching under ~150 ms a pair here.
   int max_features = 2000;
+  // Dim images (dusk, night, under-exposure) are stretched linearly before detection until their
+  // grey-level standard deviation reaches this (gain at most max_gain): SIFT's contrast threshold
+  // is absolute, so a dark frame otherwise yields a few dozen keypoints. A linear stretch leaves
+  // RootSIFT descriptors unchanged (they are normalised), and normal images (std above the target)
+  // are not touched. 0 turns it off. The demo's dusk drive: 63 keypoints -> see DEVELOPERS.md.
+  double min_contrast_std = 40.0;
+  double max_gain = 4.0;
   bool Validate(std::string* error) const;
 };
 

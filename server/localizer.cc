@@ -44,7 +44,7 @@ struct Candidate {
 // A verified reference: its candidate and the query <-> reference inlier matches.
 struct Verified {
   Candidate c;
-  std::vector<std::pair<int, int>> matches;  // (query keypoint, reference keypoint)
+  std::vector<std::pair<int, int>> matches;  // (query keypoint, reference keypoint), ratio test
   cv::Matx33d camera_from_frame;             // reference pose in the query's frame
   cv::Vec3d center;
 };
@@ -264,10 +264,15 @@ std::vector<Verified> Localizer::Impl::Verify(const LocalFeatures& q,
   RelativePoseOptions ro;
   ro.focal_px = 0.5 * (cam.fx + cam.fy);
   for (const Candidate& c : cands) {
-    if (static_cast<int>(out.size()) >= o.max_verified) break;
-    if (o.time_budget_ms > 0 && MsSince(start) > o.time_budget_ms) break;
     const ReferenceImage& ref = c.tile->data.images[c.image];
-    ReferenceUse use{c.tile->data.key.ToString(), c.image, ref.name, c.distance};
+    ReferenceUse use{c.tile->data.key.ToString(), c.image, ref.name, ref.position.lat_deg,
+                     ref.position.lon_deg, c.distance};
+    if (static_cast<int>(out.size()) >= o.max_verified ||
+        (o.time_budget_ms > 0 && MsSince(start) > o.time_budget_ms)) {
+      uses->push_back(use);  // ranked, not checked
+      continue;
+    }
+    use.checked = true;
     const LocalFeatures rf = ReferenceFeatures(ref);
     const std::vector<cv::DMatch> m = MatchFeatures(q, rf, MatchOptions{});
     use.matches = static_cast<int>(m.size());
@@ -279,8 +284,9 @@ std::vector<Verified> Localizer::Impl::Verify(const LocalFeatures& q,
     if (rp.ok() && rp->inliers >= o.min_verified_inliers) {
       use.verified = true;
       Verified v{c, {}, {}, {}};
-      for (size_t i = 0; i < m.size(); ++i)
-        if (rp->inlier_mask[i]) v.matches.push_back({m[i].queryIdx, m[i].trainIdx});
+      // Every ratio-test match, not only the essential matrix's inliers: its 1 px threshold
+      // drops good matches at low counts, and PnP's own RANSAC removes the wrong ones.
+      for (const cv::DMatch& d : m) v.matches.push_back({d.queryIdx, d.trainIdx});
       out.push_back(std::move(v));
     }
     uses->push_back(use);
@@ -447,22 +453,27 @@ Result<Fix> Localizer::Locate(const LocateRequest& r) const {
     po.min_inliers = m.o.min_pnp_inliers;
     po.pixel_sigma_px = m.o.pixel_sigma_px;
     Result<AbsolutePose> pose = Status(StatusCode::kFailedPrecondition, "no pose method ran");
+    std::string why;
     if (m.o.method != PoseMethod::kPair) {
       const auto pts = m.FromPoints(*q, verified, frame, &fix.references);
       fix.correspondences = static_cast<int>(pts.size());
       pose = EstimateAbsolutePose(pts, po);
       fix.method = "points";
+      if (!pose.ok()) why = "map points: " + pose.status().message();
     }
     if (!pose.ok() && m.o.method != PoseMethod::kPoints) {
       const auto pts = m.FromPair(*q, verified);
       fix.correspondences = static_cast<int>(pts.size());
       pose = EstimateAbsolutePose(pts, po);
       fix.method = "pair";
+      if (!pose.ok())
+        why += (why.empty() ? "" : "; ") + std::string("reference pair: ") +
+               (verified.size() < 2 ? "one verified reference" : pose.status().message());
     }
     if (pose.ok())
       m.Finish(*pose, verified, frame, r, &fix);
     else
-      m.Coarse(verified, note + pose.status().message(), &fix);
+      m.Coarse(verified, note + why, &fix);
   }
   fix.timings.pose_ms = MsSince(t0);
   if (r.prior && fix.quality != FixQuality::kNone) {

@@ -43,7 +43,10 @@ enum class PoseMethod {
 struct LocalizerOptions {
   int top_k = 8;                  // retrieval candidates verified at most
   int max_verified = 3;           // stop verifying after this many pass
-  int min_verified_inliers = 30;  // essential-matrix inliers of a verified reference
+  // Essential-matrix inliers of a verified reference. Low on purpose: a wrong reference still
+  // has to give min_pnp_inliers consistent 2D-3D correspondences, a far stronger test (the
+  // foreign-town test holds it to zero wrong fixes).
+  int min_verified_inliers = 20;
   double viewing_range_m = 50;    // a camera sees what lies this far ahead (candidate margin)
   PoseMethod method = PoseMethod::kAuto;
   double pnp_threshold_px = 3.0;
@@ -85,7 +88,9 @@ struct ReferenceUse {
   std::string tile;  // "z/x/y"
   int image_id = 0;
   std::string name;
-  float retrieval_distance = 0;
+  double lat_deg = 0, lon_deg = 0;  // the reference's camera centre
+  float retrieval_distance = 0;     // rank order: candidates are listed best first
+  bool checked = false;             // verification ran on it (false: ranked, not needed)
   int matches = 0, inliers = 0;  // essential-matrix verification
   int points = 0;                // 2D-3D correspondences it gave
   bool verified = false;
@@ -107,7 +112,7 @@ struct Fix {
   std::string method;  // "points", "pair", "retrieval" or empty
   int correspondences = 0, pnp_inliers = 0;
   double rms_px = 0;
-  std::vector<ReferenceUse> references;  // candidates in verification order
+  std::vector<ReferenceUse> references;  // every retrieval candidate, best first
   StageTimings timings;
   std::string reason;  // why not refined (empty when refined)
   bool outside_prior = false;
