@@ -43,8 +43,8 @@ void Score(QueryResult* q) {
             .distance_m <= kRecallRadiusM)
       q->first_hit_rank = static_cast<int>(i) + 1;
   if (f.quality == FixQuality::kNone) return;
-  const GeodesicInverse g = GeodesicBetween(q->truth.position.lat_deg, q->truth.position.lon_deg,
-                                            f.lat_deg, f.lon_deg);
+  const GeodesicInverse g =
+      GeodesicBetween(q->truth.position.lat_deg, q->truth.position.lon_deg, f.lat_deg, f.lon_deg);
   q->error_m = g.distance_m;
   q->heading_error_deg = std::fabs(WrapDeg180(f.heading_deg - q->truth.attitude.heading_deg));
   if (f.quality != FixQuality::kRefined) return;
@@ -149,11 +149,11 @@ std::string SummaryLine(const RouteSummary& s) {
                 "m, p95 %.3f m, max %.3f m; wrong refined %d; heading median %.2f deg; recall@1/5 "
                 "%.3f/%.3f; bins %.3f/%.3f/%.3f; radius95 coverage %.3f, NEES %.2f; latency p50 "
                 "%.0f ms, p95 %.0f ms",
-                s.queries, 100 * s.refined_share, s.coarse, s.none, s.median_error_m,
-                s.p90_error_m, s.p95_error_m, s.max_error_m, s.wrong_refined,
-                s.median_heading_error_deg, s.recall_at_1, s.recall_at_5, s.within_0_25m_2deg,
-                s.within_0_5m_5deg, s.within_5m_10deg, s.radius95_coverage, s.nees_mean,
-                s.latency_ms_p50, s.latency_ms_p95);
+                s.queries, 100 * s.refined_share, s.coarse, s.none, s.median_error_m, s.p90_error_m,
+                s.p95_error_m, s.max_error_m, s.wrong_refined, s.median_heading_error_deg,
+                s.recall_at_1, s.recall_at_5, s.within_0_25m_2deg, s.within_0_5m_5deg,
+                s.within_5m_10deg, s.radius95_coverage, s.nees_mean, s.latency_ms_p50,
+                s.latency_ms_p95);
   return buf;
 }
 

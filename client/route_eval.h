@@ -39,11 +39,11 @@ struct RouteEvalOptions {
 struct QueryResult {
   DriveRow truth;
   Fix fix;
-  double error_m = -1;         // horizontal, when a fix came back
+  double error_m = -1;  // horizontal, when a fix came back
   double heading_error_deg = -1;
-  double nees = -1;            // refined fixes only
-  int first_hit_rank = -1;     // rank (1-based) of the first candidate within 25 m, -1 none
-  std::string error;           // the engine refused the request
+  double nees = -1;         // refined fixes only
+  int first_hit_rank = -1;  // rank (1-based) of the first candidate within 25 m, -1 none
+  std::string error;        // the engine refused the request
 };
 
 struct RouteSummary {

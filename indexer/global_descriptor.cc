@@ -15,6 +15,8 @@
 #include <cstring>
 #include <random>
 
+#include "indexer/parallel.h"
+
 namespace sightfix {
 
 bool GlobalDescriptorOptions::Validate(std::string* error) const {
@@ -75,9 +77,7 @@ Result<GlobalDescriptor> GlobalDescriptor::Train(const cv::Mat& sample,
     g.assign_ = std::make_unique<faiss::IndexFlatL2>(128);
     g.assign_->add(o.clusters, g.centroids_.ptr<float>());
 
-    cv::Mat vlads(static_cast<int>(images.size()), g.vlad_dims(), CV_32F);
-    for (size_t i = 0; i < images.size(); ++i)
-      g.Vlad(images[i]).copyTo(vlads.row(static_cast<int>(i)));
+    const cv::Mat vlads = g.VladRows(images);
     g.pca_ = std::make_unique<faiss::PCAMatrix>(g.vlad_dims(), o.pca_dims, -0.5f, false);
     // Directions the few training images barely span have eigenvalues near 0: whitening would
     // scale them, and the queries' own noise in them, by 1/sqrt(eigenvalue). So epsilon is
@@ -89,7 +89,7 @@ Result<GlobalDescriptor> GlobalDescriptor::Train(const cv::Mat& sample,
     g.pca_->epsilon = static_cast<float>(o.pca_epsilon * mean_eig);
     g.pca_->prepare_Ab();
     cv::Mat white = g.Whiten(vlads);
-    for (const cv::Mat& view : augmented) white.push_back(g.Whiten(g.Vlad(view)));
+    if (!augmented.empty()) white.push_back(g.Whiten(g.VladRows(augmented)));
     if (white.rows >= o.min_pq_training)
       g.codec_ = std::make_unique<faiss::IndexPQ>(o.pca_dims, o.pq_subquantizers, o.pq_bits);
     else
@@ -122,6 +122,12 @@ cv::Mat GlobalDescriptor::Vlad(const cv::Mat& d) const {
     if (n > 0) v /= n;
   }
   return v.reshape(1, 1);
+}
+
+cv::Mat GlobalDescriptor::VladRows(const std::vector<cv::Mat>& images) const {
+  cv::Mat vlads(static_cast<int>(images.size()), vlad_dims(), CV_32F);
+  ParallelFor(vlads.rows, ThreadCount(0), [&](int i) { Vlad(images[i]).copyTo(vlads.row(i)); });
+  return vlads;
 }
 
 cv::Mat GlobalDescriptor::Whiten(const cv::Mat& vlads) const {

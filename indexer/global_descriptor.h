@@ -79,6 +79,8 @@ class GlobalDescriptor {
   std::string codec_name() const;
   // 1 x (k * 128) CV_32F, unit L2 (all zeros for an image without descriptors).
   cv::Mat Vlad(const cv::Mat& descriptors) const;
+  // n x vlad_dims() VLADs of n images, computed on all cores.
+  cv::Mat VladRows(const std::vector<cv::Mat>& images) const;
   // n x pca_dims CV_32F whitened vectors of n VLAD rows.
   cv::Mat Whiten(const cv::Mat& vlads) const;
   // n x code_bytes CV_8U PQ codes of n whitened rows.

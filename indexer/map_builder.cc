@@ -322,10 +322,9 @@ Result<BuildSummary> BuildMap(const BuildOptions& o) {
   Say(o, "training the global descriptor model");
   Result<GlobalDescriptor> model = TrainModel(o, s, &summary.training_vectors);
   if (!model.ok()) return model.status();
-  cv::Mat vlads(static_cast<int>(s.rows.size()), model->vlad_dims(), CV_32F);
-  ParallelFor(vlads.rows, ThreadCount(o.jobs),
-              [&](int i) { model->Vlad(s.features[i].descriptors).copyTo(vlads.row(i)); });
-  const cv::Mat codes = model->Encode(model->Whiten(vlads));
+  std::vector<cv::Mat> descriptors;
+  for (const LocalFeatures& f : s.features) descriptors.push_back(f.descriptors);
+  const cv::Mat codes = model->Encode(model->Whiten(model->VladRows(descriptors)));
   const std::vector<uint8_t> model_blob = model->Serialize();
   summary.model_id = Sha256Hex(model_blob).substr(0, 16);
   summary.codec = model->codec_name();

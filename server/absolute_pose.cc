@@ -102,7 +102,7 @@ void PoseInformation(const std::vector<PointCorrespondence>& pts, const Conditio
 
 bool AbsolutePoseOptions::Validate(std::string* error) const {
   if (threshold_px > 0 && focal_px > 0 && min_inliers >= 6 && iterations > 0 && confidence > 0 &&
-      confidence < 1 && pixel_sigma_px > 0)
+      confidence < 1 && pixel_sigma_px > 0 && min_variance_factor > 0)
     return true;
   if (error)
     *error =
@@ -148,7 +148,7 @@ Result<AbsolutePose> EstimateAbsolutePose(const std::vector<PointCorrespondence>
     double chi2, sse;
     PoseInformation(pts, c, in, rvec, tvec, o, &info, &chi2, &sse);
     const int dof = std::max(1, 2 * out.inliers - 6);
-    out.variance_factor = std::max(1.0, chi2 / dof);
+    out.variance_factor = std::max(o.min_variance_factor, chi2 / dof);
     out.rms_px = std::sqrt(sse / out.inliers);
     const cv::Vec6d pose(rvec.at<double>(0), rvec.at<double>(1), rvec.at<double>(2),
                          tvec.at<double>(0), tvec.at<double>(1), tvec.at<double>(2));

@@ -4,9 +4,12 @@
 // Levenberg-Marquardt on the inliers (cv::solvePnPRefineLM), inliers recounted and refined once
 // more. Covariance of the camera centre: first-order propagation through the pose Jacobian
 // (cv::projectPoints), each residual weighted by its own covariance, keypoint noise plus the
-// 3D point's covariance seen through the camera, then scaled up by the variance factor
-// (chi-square of the residuals over their degrees of freedom) when the residuals say the noise
-// was under-modelled. Frames: world is a local ENU (metres), camera as rotation.h. Thread-safe.
+// 3D point's covariance seen through the camera, then scaled by the a-posteriori variance
+// factor (chi-square of the residuals over their degrees of freedom, common practice in
+// least-squares adjustment), so a sharp day image and a noisy dusk one get the covariance their
+// residuals show. The factor is floored at min_variance_factor: a handful of lucky residuals must
+// not make a fix over-confident. Frames: world is a local ENU (metres), camera as rotation.h.
+// Thread-safe.
 #pragma once
 
 #include <opencv2/core.hpp>
@@ -20,6 +23,7 @@ struct PointCorrespondence {
   cv::Vec3d world;         // metres
   cv::Matx33d covariance;  // of `world`, m^2
   cv::Point2d normalized;  // undistorted (x/z, y/z) in the query image
+  int survey_frames = 2;   // survey frames whose poses pinned `world` (for the survey term)
 };
 
 struct AbsolutePoseOptions {
@@ -29,6 +33,8 @@ struct AbsolutePoseOptions {
   int iterations = 2000;
   double confidence = 0.9999;
   double pixel_sigma_px = 1.0;  // keypoint noise assumed before the variance factor
+  // Floor of the variance factor: 0.25 keeps the effective keypoint noise >= 0.5 px.
+  double min_variance_factor = 0.25;
   bool Validate(std::string* error) const;
 };
 
@@ -39,7 +45,7 @@ struct AbsolutePose {
   int inliers = 0;
   std::vector<bool> inlier_mask;  // per correspondence
   double rms_px = 0;              // of the inliers
-  double variance_factor = 1;     // >= 1, applied to center_covariance
+  double variance_factor = 1;     // applied to center_covariance
   int points_in_front = 0;        // inliers with positive depth
 };
 
