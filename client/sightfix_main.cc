@@ -2,6 +2,7 @@
 // (the relative pose of two images).
 #include <boost/program_options.hpp>
 #include <cmath>
+#include <filesystem>
 #include <cstdio>
 #include <iostream>
 #include <nlohmann/json.hpp>
@@ -223,10 +224,12 @@ int Locate(int argc, char** argv) {
   auto cam = sightfix::LoadCameraModel(camera_path);
   if (!cam.ok()) return Fail(cam.status().ToString(), 2);
   req.camera = *cam;
-  req.image = cv::imread(image_path, cv::IMREAD_GRAYSCALE);
-  if (req.image.empty()) return Fail("cannot read or decode image " + image_path, 2);
+  if (!std::filesystem::exists(image_path))
+    return Fail("cannot read or decode image " + image_path + " (no such file)", 2);
   auto localizer = sightfix::Localizer::Open(map_dir, options);
   if (!localizer.ok()) return Fail(localizer.status().ToString(), 2);
+  req.image = cv::imread(image_path, cv::IMREAD_GRAYSCALE);
+  if (req.image.empty()) return Fail("cannot read or decode image " + image_path, 2);
   auto fix = (*localizer)->Locate(req);
   if (!fix.ok()) return Fail(fix.status().ToString(), 2);
   nlohmann::json j = FixJson(*fix);

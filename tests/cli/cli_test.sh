@@ -37,5 +37,28 @@ check "pair missing calibration" 2 "cannot open calibration file" -- "$cli" pair
 printf '%%YAML:1.0\n---\nimage_width: 64\nimage_height: 48\ncamera_matrix: !!opencv-matrix\n   rows: 3\n   cols: 3\n   dt: d\n   data: [ 50., 0., 32., 0., 50., 24., 0., 0., 1. ]\n' > "$tmp/cam.yml"
 check "pair undecodable image" 2 "cannot read or decode image" -- "$cli" pair "$tmp/cam.yml" "$tmp/cam.yml" --camera "$tmp/cam.yml"
 
+indexer="$build/indexer/sightfix-indexer"
+check "indexer --help" 0 "build --drive DIR --map MAPDIR" -- "$indexer" --help
+check "indexer build --help" 0 "max-features" -- "$indexer" build --help
+check "indexer unknown command" 2 "unknown command 'fly'" -- "$indexer" fly
+check "indexer build needs flags" 2 "needs --drive DIR and --map MAPDIR" -- "$indexer" build
+check "indexer missing drive" 2 "drive.csv" -- "$indexer" build --drive "$tmp/nodrive" --map "$tmp/map" --quiet
+mkdir -p "$tmp/drive"
+cp "$tmp/cam.yml" "$tmp/drive/camera.yml"
+echo "image,timestamp,lat,lon,height,heading_deg,pitch_deg,roll_deg,camera,sigma_h_m" > "$tmp/drive/drive.csv"
+for i in $(seq 10 29); do
+  echo "images/$i.jpg,2026-05-04T12:00:$i.000Z,44.0001$i,-40.0,41.5,90,0,0,camera.yml,0.02" >> "$tmp/drive/drive.csv"
+done
+check "indexer names the bad row" 2 "drive.csv:2: cannot read or decode image" -- "$indexer" build --drive "$tmp/drive" --map "$tmp/map" --quiet
+check "indexer wrote nothing" 0 "absent" -- bash -c "test -e '$tmp/map/catalog.sqlite' || echo absent"
+check "indexer bad zoom" 2 "zoom must be within" -- "$indexer" build --drive "$tmp/drive" --map "$tmp/map" --zoom 3
+check "locate --help" 0 "prior LAT,LON,RADIUS_M" -- "$cli" locate --help
+check "locate --help names the safety caution" 0 "not a certified navigation source" -- "$cli" locate --help
+check "locate needs flags" 2 "needs --map, --image and --camera" -- "$cli" locate --map "$tmp/map"
+check "locate bad prior" 2 "must look like LAT,LON,RADIUS_M" -- "$cli" locate --map "$tmp/map" --image a.jpg --camera "$tmp/cam.yml" --prior 44,-40
+check "locate bad method" 2 "must be auto, points or pair" -- "$cli" locate --map "$tmp/map" --image a.jpg --camera "$tmp/cam.yml" --method guess
+check "locate missing map" 2 "no map catalog" -- "$cli" locate --map "$tmp/map" --image "$tmp/cam.yml" --camera "$tmp/cam.yml"
+check "locate missing image" 2 "cannot read or decode image" -- "$cli" locate --map "$tmp/map" --image "$tmp/none.jpg" --camera "$tmp/cam.yml"
+
 echo "$passed passed, $failed failed"
 [ "$failed" -eq 0 ]
