@@ -1,0 +1,34 @@
+#!/usr/bin/env bash
+# Benchmarks of the map and the engine (figures from one run; compare ratios, not absolute
+# times: this is a shared 2-core machine). Not a test: it prints, it does not judge.
+#  1. index build: images/s, bytes per image (global code, local features, 3D points);
+#  2. engine latency per query by stage against the bare OpenCV calls on the same data;
+#  3. retrieval over a synthetic 100 000-image set, map-wide index against the prior's tiles and
+#     against exact search.
+# Usage: scripts/bench.sh [OUT_DIR]   (default out/bench; the 300 m town of seed 5 is made once)
+set -euo pipefail
+root="$(cd "$(dirname "$0")/.." && pwd)"
+build="${BUILD_DIR:-$root/build}"
+out="${1:-$root/out/bench}"
+bash "$root/scripts/deps.sh"
+cmake -S "$root" -B "$build" -DCMAKE_BUILD_TYPE=RelWithDebInfo >/dev/null
+cmake --build "$build" -j "$(nproc)" --target sightfix-demo-route sightfix-indexer engine_bench
+if [ ! -f "$out/town/town.json" ]; then
+  "$build/demo_route/sightfix-demo-route" --out "$out/town" --seed 5 --route-length-m 300 >/dev/null
+fi
+echo "== index build (300 m town, seed 5, $(nproc) threads)"
+"$build/indexer/sightfix-indexer" build --drive "$out/town/survey" --map "$out/map" --overwrite \
+  --quiet --json >"$out/build.json"
+python3 - "$out/build.json" <<'PY' 2>/dev/null || cat "$out/build.json"
+import json, sys
+s = json.load(open(sys.argv[1]))
+b = s["bytes_per_image"]
+print(f"{s['images']} images in {s['seconds']:.1f} s: {s['images_per_s']:.2f} images/s "
+      f"(features {s['stage_s']['features']:.1f} s, model {s['stage_s']['model']:.1f} s, "
+      f"structure {s['stage_s']['structure']:.1f} s, write {s['stage_s']['write']:.1f} s)")
+print(f"bytes per image: global code {b['global_code']:.0f} ({s['codec']}), local features "
+      f"{b['local_features']:.0f}, 3D points {b['points']:.0f}; tile files {b['tile_file']:.0f}")
+PY
+echo
+echo "== engine latency against the bare library calls, and retrieval at scale"
+"$build/tests/engine_bench" --map "$out/map" --drive "$out/town/query-day" --limit 40
