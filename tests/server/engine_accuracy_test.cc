@@ -11,7 +11,10 @@
 // Prior: a 150 m circle centred uniformly within 100 m of the truth (the setting).
 #include <gtest/gtest.h>
 
+#include <cmath>
 #include <filesystem>
+#include <fstream>
+#include <opencv2/imgcodecs.hpp>
 
 #include "client/route_eval.h"
 #include "demo_route/demo_town.h"
@@ -93,6 +96,59 @@ TEST_F(EngineAccuracyTest, DuskAndOvercastMeetGoals) {
       EXPECT_LE(s.p95_error_m, 1.5) << drive;
       EXPECT_EQ(s.wrong_refined, 0) << drive;
     }
+}
+
+TEST_F(EngineAccuracyTest, RequestFormsAgreeAndBadRequestsAreRefused) {
+  ASSERT_NE(localizer_, nullptr);
+  const std::string dir = root_ + "/town/query-day";
+  auto cam = LoadCameraModel(dir + "/camera.yml");
+  ASSERT_TRUE(cam.ok());
+  LocateRequest by_image;
+  by_image.camera = *cam;
+  by_image.image = cv::imread(dir + "/images/000010.jpg", cv::IMREAD_GRAYSCALE);
+  auto a = localizer_->Locate(by_image);
+  ASSERT_TRUE(a.ok());
+  ASSERT_EQ(a->quality, FixQuality::kRefined);
+  LocateRequest by_bytes = by_image;  // the same JPEG as bytes
+  by_bytes.image.release();
+  std::ifstream in(dir + "/images/000010.jpg", std::ios::binary);
+  by_bytes.image_bytes.assign(std::istreambuf_iterator<char>(in), {});
+  auto b = localizer_->Locate(by_bytes);
+  ASSERT_TRUE(b.ok());
+  EXPECT_DOUBLE_EQ(a->lat_deg, b->lat_deg);
+  EXPECT_DOUBLE_EQ(a->lon_deg, b->lon_deg);
+  LocateRequest by_features = by_image;  // precomputed features
+  by_features.image.release();
+  by_features.features =
+      std::make_shared<LocalFeatures>(*ExtractFeatures(by_image.image, &*cam, FeatureOptions{}));
+  auto c = localizer_->Locate(by_features);
+  ASSERT_TRUE(c.ok());
+  EXPECT_DOUBLE_EQ(a->lat_deg, c->lat_deg);
+
+  auto refused = [&](LocateRequest r, const char* what) {
+    auto f = localizer_->Locate(r);
+    ASSERT_FALSE(f.ok()) << what;
+    EXPECT_EQ(f.status().code(), StatusCode::kInvalidArgument) << what;
+  };
+  LocateRequest r = by_bytes;
+  r.image_bytes = {0xff, 0xd8, 0x00, 0x01};
+  refused(r, "undecodable bytes");
+  r = by_image;
+  r.image = cv::Mat(240, 320, CV_8UC1, cv::Scalar(90));
+  refused(r, "size not the calibration's");
+  r = by_image;
+  r.image.release();
+  refused(r, "no image");
+  r = by_image;
+  r.prior = PriorCircle{std::nan(""), 0, 100};
+  refused(r, "NaN prior");
+  r.prior = PriorCircle{44, -40, -5};
+  refused(r, "negative radius");
+  r.prior = PriorCircle{95, -40, 5};
+  refused(r, "latitude out of range");
+  r = by_image;
+  r.camera.fx = -1;
+  refused(r, "bad calibration");
 }
 
 TEST_F(EngineAccuracyTest, ForeignTownGetsNoConfidentFix) {
