@@ -2,8 +2,9 @@
 // (the relative pose of two images).
 #include <boost/program_options.hpp>
 #include <cmath>
-#include <filesystem>
 #include <cstdio>
+#include <filesystem>
+#include <fstream>
 #include <iostream>
 #include <nlohmann/json.hpp>
 #include <opencv2/core/utility.hpp>
@@ -11,12 +12,15 @@
 #include <sstream>
 #include <string>
 
+#include "client/client.h"
 #include "indexer/camera_model.h"
 #include "indexer/geo.h"
 #include "indexer/local_features.h"
 #include "indexer/threads.h"
 #include "server/localizer.h"
 #include "server/relative_pose.h"
+#include "server/service.h"
+#include "server/wire.h"
 
 namespace po = boost::program_options;
 
@@ -174,16 +178,76 @@ nlohmann::json FixJson(const sightfix::Fix& f) {
   return j;
 }
 
-int Locate(int argc, char** argv) {
-  std::string map_dir, image_path, camera_path, prior_text, truth_text, method = "auto";
-  double heading = NAN;
+sightfix::Result<std::unique_ptr<sightfix::Client>> ConnectTo(const std::string& server,
+                                                              const std::string& token_file) {
+  sightfix::ClientOptions co;
+  if (!sightfix::SplitHostPort(server, &co.host, &co.port))
+    return sightfix::Status::InvalidArgument("--server must look like HOST:PORT");
+  if (!token_file.empty()) {
+    std::ifstream in(token_file);
+    if (!in) return sightfix::Status::NotFound("cannot read token file " + token_file);
+    std::getline(in, co.token);
+    while (!co.token.empty() && std::isspace(static_cast<unsigned char>(co.token.back())))
+      co.token.pop_back();
+  }
+  return sightfix::Client::Connect(co);
+}
+
+int Describe(int argc, char** argv) {
+  std::string server, token_file;
   po::options_description desc(
-      "sightfix locate: where one camera image was taken, from a map, in this process.\n"
-      "Retrieval (prior tiles or the map-wide index), essential-matrix verification, PnP on the\n"
-      "map's 3D points, a 95 % confidence radius.\n\n"
-      "Usage: sightfix locate --map MAPDIR --image FILE --camera CAMERA.yml "
-      "[--prior LAT,LON,RADIUS_M] [--json]\n\nOptions");
+      "sightfix describe: what a sightfix-server serves (map version, model, tiles, uptime).\n\n"
+      "Usage: sightfix describe --server HOST:PORT [--token-file F] [--json]\n\nOptions");
+  desc.add_options()("help,h", "show this help")("server", po::value(&server), "HOST:PORT")(
+      "token-file", po::value(&token_file), "file holding the server's bearer token")(
+      "json", "print JSON on stdout");
+  po::variables_map vm;
+  try {
+    po::store(po::command_line_parser(argc, argv).options(desc).run(), vm);
+    po::notify(vm);
+  } catch (const std::exception& e) {
+    return Fail(std::string(e.what()) + " (see sightfix describe --help)", 2);
+  }
+  if (vm.count("help")) {
+    std::cout << desc << "\n";
+    return 0;
+  }
+  if (server.empty()) return Fail("describe needs --server HOST:PORT", 2);
+  auto client = ConnectTo(server, token_file);
+  if (!client.ok()) return Fail(client.status().ToString(), 1);
+  auto d = (*client)->Describe(5000);
+  if (!d.ok()) return Fail(d.status().ToString(), 1);
+  nlohmann::json j = {{"map_version", d->map_version()},
+                      {"model_id", d->model_id()},
+                      {"tiles", d->tiles()},
+                      {"images", d->images()},
+                      {"server_version", d->server_version()},
+                      {"uptime_s", d->uptime_s()},
+                      {"tiles_cached", d->tiles_cached()}};
+  if (vm.count("json"))
+    std::cout << j.dump(2) << "\n";
+  else
+    std::printf("%s: map version %d (model %s), %d tiles, %d images, %d tiles cached, up %.0f s\n",
+                d->server_version().c_str(), d->map_version(), d->model_id().c_str(), d->tiles(),
+                d->images(), d->tiles_cached(), d->uptime_s());
+  return 0;
+}
+
+int Locate(int argc, char** argv) {
+  std::string map_dir, server, token_file, image_path, camera_path, prior_text, truth_text;
+  std::string method = "auto";
+  double heading = NAN;
+  int deadline_ms = 10000;
+  po::options_description desc(
+      "sightfix locate: where one camera image was taken, from a map in this process (--map) or\n"
+      "through sightfix-server (--server). Retrieval (prior tiles or the map-wide index),\n"
+      "essential-matrix verification, PnP on the map's 3D points, a 95 % confidence radius.\n\n"
+      "Usage: sightfix locate (--map MAPDIR | --server HOST:PORT) --image FILE --camera "
+      "CAMERA.yml [--prior LAT,LON,RADIUS_M] [--json]\n\nOptions");
   desc.add_options()("help,h", "show this help")("map", po::value(&map_dir), "map folder")(
+      "server", po::value(&server), "HOST:PORT of a sightfix-server instead of --map")(
+      "token-file", po::value(&token_file), "file holding the server's bearer token")(
+      "deadline-ms", po::value(&deadline_ms), "deadline of the call to the server (10000)")(
       "image", po::value(&image_path), "query image (JPEG or PNG)")(
       "camera", po::value(&camera_path), "its calibration (OpenCV FileStorage YAML)")(
       "prior", po::value(&prior_text), "coarse prior circle LAT,LON,RADIUS_M (WGS84 degrees, m)")(
@@ -202,8 +266,9 @@ int Locate(int argc, char** argv) {
     std::cout << desc << "\n" << kSafety << "\n";
     return 0;
   }
-  if (map_dir.empty() || image_path.empty() || camera_path.empty())
-    return Fail("locate needs --map, --image and --camera (see sightfix locate --help)", 2);
+  if ((map_dir.empty() == server.empty()) || image_path.empty() || camera_path.empty())
+    return Fail("locate needs --map or --server, --image and --camera (see sightfix locate --help)",
+                2);
   sightfix::LocalizerOptions options;
   if (method == "points")
     options.method = sightfix::PoseMethod::kPoints;
@@ -226,12 +291,24 @@ int Locate(int argc, char** argv) {
   req.camera = *cam;
   if (!std::filesystem::exists(image_path))
     return Fail("cannot read or decode image " + image_path + " (no such file)", 2);
-  auto localizer = sightfix::Localizer::Open(map_dir, options);
-  if (!localizer.ok()) return Fail(localizer.status().ToString(), 2);
-  req.image = cv::imread(image_path, cv::IMREAD_GRAYSCALE);
-  if (req.image.empty()) return Fail("cannot read or decode image " + image_path, 2);
-  auto fix = (*localizer)->Locate(req);
-  if (!fix.ok()) return Fail(fix.status().ToString(), 2);
+  sightfix::Result<sightfix::Fix> fix = sightfix::Status::Internal("not run");
+  if (!server.empty()) {
+    auto client = ConnectTo(server, token_file);
+    if (!client.ok()) return Fail(client.status().ToString(), 2);
+    std::ifstream in(image_path, std::ios::binary);
+    const std::string bytes((std::istreambuf_iterator<char>(in)), {});
+    fix = (*client)->Locate(sightfix::RequestToProto(bytes, *cam, req), deadline_ms);
+    if (!fix.ok())
+      return Fail(fix.status().ToString(),
+                  fix.status().code() == sightfix::StatusCode::kIoError ? 1 : 2);
+  } else {
+    auto localizer = sightfix::Localizer::Open(map_dir, options);
+    if (!localizer.ok()) return Fail(localizer.status().ToString(), 2);
+    req.image = cv::imread(image_path, cv::IMREAD_GRAYSCALE);
+    if (req.image.empty()) return Fail("cannot read or decode image " + image_path, 2);
+    fix = (*localizer)->Locate(req);
+    if (!fix.ok()) return Fail(fix.status().ToString(), 2);
+  }
   nlohmann::json j = FixJson(*fix);
   double error_m = -1;
   if (!truth.empty() && fix->quality != sightfix::FixQuality::kNone) {
@@ -262,6 +339,10 @@ void Usage() {
       "sightfix: visual localization client\n\nUsage: sightfix COMMAND [options]\n\nCommands:\n"
       "  locate --map MAPDIR --image FILE --camera CAMERA.yml [--prior LAT,LON,RADIUS_M] [--json]\n"
       "      where one image was taken, against a map, in this process\n"
+      "  locate --server HOST:PORT --image FILE --camera CAMERA.yml [...]\n"
+      "      the same through sightfix-server\n"
+      "  describe --server HOST:PORT [--json]\n"
+      "      what a server serves\n"
       "  pair IMAGE_A IMAGE_B --camera A.yml [--camera-b B.yml] [--json]\n"
       "      relative pose of two images\n\n"
       "sightfix COMMAND --help tells more.\n%s\n",
@@ -279,6 +360,7 @@ int main(int argc, char** argv) {
   const std::string command = argv[1];
   if (command == "pair") return Pair(argc - 1, argv + 1);
   if (command == "locate") return Locate(argc - 1, argv + 1);
+  if (command == "describe") return Describe(argc - 1, argv + 1);
   Usage();
   return Fail("unknown command '" + command + "'", 2);
 }

@@ -146,6 +146,7 @@ Localizer::Localizer(std::unique_ptr<Impl> impl) : impl_(std::move(impl)) {}
 Localizer::~Localizer() = default;
 const Catalog& Localizer::catalog() const { return impl_->catalog; }
 const LocalizerOptions& Localizer::options() const { return impl_->o; }
+int Localizer::tiles_cached() const { return impl_->cache->cached_tiles(); }
 
 Result<std::unique_ptr<Localizer>> Localizer::Open(const std::string& map_dir,
                                                    const LocalizerOptions& options) {

@@ -134,6 +134,7 @@ class Localizer {
 
   const Catalog& catalog() const;
   const LocalizerOptions& options() const;
+  int tiles_cached() const;  // tiles in memory now
 
  private:
   struct Impl;

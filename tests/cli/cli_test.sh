@@ -54,7 +54,7 @@ check "indexer wrote nothing" 0 "absent" -- bash -c "test -e '$tmp/map/catalog.s
 check "indexer bad zoom" 2 "zoom must be within" -- "$indexer" build --drive "$tmp/drive" --map "$tmp/map" --zoom 3
 check "locate --help" 0 "prior LAT,LON,RADIUS_M" -- "$cli" locate --help
 check "locate --help names the safety caution" 0 "not a certified navigation source" -- "$cli" locate --help
-check "locate needs flags" 2 "needs --map, --image and --camera" -- "$cli" locate --map "$tmp/map"
+check "locate needs flags" 2 "needs --map or --server, --image and --camera" -- "$cli" locate --map "$tmp/map"
 check "locate bad prior" 2 "must look like LAT,LON,RADIUS_M" -- "$cli" locate --map "$tmp/map" --image a.jpg --camera "$tmp/cam.yml" --prior 44,-40
 check "locate bad method" 2 "must be auto, points or pair" -- "$cli" locate --map "$tmp/map" --image a.jpg --camera "$tmp/cam.yml" --method guess
 check "locate missing map" 2 "no map catalog" -- "$cli" locate --map "$tmp/map" --image "$tmp/cam.yml" --camera "$tmp/cam.yml"

@@ -1,0 +1,204 @@
+#include "client/client.h"
+
+#include <boost/asio.hpp>
+#include <map>
+#include <mutex>
+#include <thread>
+
+#include "proto/frame_codec.h"
+#include "server/wire.h"
+
+namespace sightfix {
+
+namespace asio = boost::asio;
+using tcp = asio::ip::tcp;
+
+// One live connection with its reader thread; replaced whole on reconnect.
+struct Connection {
+  asio::io_context io;
+  tcp::socket socket{io};
+  std::thread reader;
+  std::mutex mu;  // guards pending and dead
+  std::map<uint64_t, std::promise<Result<Answer>>> pending;
+  bool dead = false;
+  std::mutex write_mu;
+
+  ~Connection() {
+    boost::system::error_code ec;
+    socket.shutdown(tcp::socket::shutdown_both, ec);
+    socket.close(ec);
+    if (reader.joinable()) reader.join();
+  }
+
+  void Fail(const std::string& why) {
+    std::lock_guard<std::mutex> lock(mu);
+    dead = true;
+    for (auto& [id, p] : pending) p.set_value(Status::IoError(why));
+    pending.clear();
+  }
+
+  void ReadLoop() {
+    for (;;) {
+      uint8_t header[kFrameHeaderBytes];
+      boost::system::error_code ec;
+      asio::read(socket, asio::buffer(header), ec);
+      if (ec) return Fail("connection lost: " + ec.message());
+      std::string body(FrameLength(header), '\0');
+      asio::read(socket, asio::buffer(body), ec);
+      if (ec) return Fail("connection lost: " + ec.message());
+      Result<v1::Envelope> env = ParseEnvelope(body.data(), body.size());
+      if (!env.ok()) return Fail("server sent a frame that is not an Envelope");
+      std::lock_guard<std::mutex> lock(mu);
+      auto it = pending.find(env->call_id());
+      if (it == pending.end()) {
+        if (env->call_id() == 0 && env->status().code() != v1::Status::OK) {
+          // A protocol error the server could not tie to a call: it closes the connection.
+          for (auto& [id, p] : pending)
+            p.set_value(Answer{env->status().code(), env->status().message(), {}});
+          pending.clear();
+        }
+        continue;
+      }
+      it->second.set_value(Answer{env->status().code(), env->status().message(), env->body()});
+      pending.erase(it);
+    }
+  }
+};
+
+struct Client::Impl {
+  ClientOptions o;
+  std::mutex mu;  // guards conn and next_id
+  std::shared_ptr<Connection> conn;
+  uint64_t next_id = 1;
+
+  Result<std::shared_ptr<Connection>> Live() {
+    std::lock_guard<std::mutex> lock(mu);
+    if (conn) {
+      std::lock_guard<std::mutex> l2(conn->mu);
+      if (!conn->dead) return conn;
+    }
+    auto c = std::make_shared<Connection>();
+    boost::system::error_code ec;
+    tcp::resolver resolver(c->io);
+    auto endpoints = resolver.resolve(o.host, std::to_string(o.port), ec);
+    if (!ec) asio::connect(c->socket, endpoints, ec);
+    if (ec)
+      return Status::IoError("cannot connect to " + o.host + ":" + std::to_string(o.port) + ": " +
+                             ec.message());
+    c->socket.set_option(tcp::no_delay(true), ec);
+    c->reader = std::thread([raw = c.get()] { raw->ReadLoop(); });
+    conn = c;
+    return c;
+  }
+
+  std::future<Result<Answer>> Send(const std::string& method, const std::string& body,
+                                   int deadline_ms, std::shared_ptr<Connection>* used) {
+    std::promise<Result<Answer>> failed;
+    Result<std::shared_ptr<Connection>> c = Live();
+    if (!c.ok()) {
+      failed.set_value(c.status());
+      return failed.get_future();
+    }
+    *used = *c;
+    v1::Envelope e;
+    {
+      std::lock_guard<std::mutex> lock(mu);
+      e.set_call_id(next_id++);
+    }
+    e.set_method(method);
+    e.set_deadline_ms(static_cast<uint32_t>(std::max(0, deadline_ms)));
+    e.set_token(o.token);
+    e.set_body(body);
+    std::future<Result<Answer>> f;
+    {
+      std::lock_guard<std::mutex> lock((*c)->mu);
+      if ((*c)->dead) {
+        failed.set_value(Status::IoError("connection lost"));
+        return failed.get_future();
+      }
+      f = (*c)->pending[e.call_id()].get_future();
+    }
+    const std::string frame = EncodeFrame(e);
+    boost::system::error_code ec;
+    {
+      std::lock_guard<std::mutex> lock((*c)->write_mu);
+      asio::write((*c)->socket, asio::buffer(frame), ec);
+    }
+    if (ec) {
+      boost::system::error_code ignored;
+      (*c)->socket.shutdown(tcp::socket::shutdown_both, ignored);  // reader fails the pending
+    }
+    return f;
+  }
+
+  Result<Answer> Call(const std::string& method, const std::string& body, int deadline_ms) {
+    Result<Answer> last = Status::IoError("no attempt made");
+    for (int attempt = 0; attempt <= o.retries; ++attempt) {
+      std::shared_ptr<Connection> used;
+      std::future<Result<Answer>> f = Send(method, body, deadline_ms, &used);
+      // The server answers DEADLINE_EXCEEDED itself; the margin covers the network.
+      if (f.wait_for(std::chrono::milliseconds(deadline_ms + 2000)) != std::future_status::ready)
+        return Status::Internal(method + ": no answer within the deadline");
+      last = f.get();
+      if (last.ok() || last.status().code() != StatusCode::kIoError) return last;
+    }
+    return last;
+  }
+};
+
+Client::Client(std::unique_ptr<Impl> impl) : impl_(std::move(impl)) {}
+Client::~Client() = default;
+
+Result<std::unique_ptr<Client>> Client::Connect(const ClientOptions& options) {
+  auto impl = std::make_unique<Impl>();
+  impl->o = options;
+  Result<std::shared_ptr<Connection>> c = impl->Live();
+  if (!c.ok()) return c.status();
+  return std::unique_ptr<Client>(new Client(std::move(impl)));
+}
+
+std::future<Result<Answer>> Client::CallAsync(const std::string& method, const std::string& body,
+                                              int deadline_ms) {
+  return std::async(std::launch::async, [impl = impl_, method, body, deadline_ms] {
+    return impl->Call(method, body, deadline_ms);
+  });
+}
+
+Result<Answer> Client::Call(const std::string& method, const std::string& body, int deadline_ms) {
+  return impl_->Call(method, body, deadline_ms);
+}
+
+namespace {
+
+template <typename T>
+Result<T> Typed(const Result<Answer>& a, const char* method) {
+  if (!a.ok()) return a.status();
+  if (a->code != v1::Status::OK)
+    return Status(a->code == v1::Status::INVALID_ARGUMENT ? StatusCode::kInvalidArgument
+                  : a->code == v1::Status::NOT_FOUND      ? StatusCode::kNotFound
+                                                          : StatusCode::kFailedPrecondition,
+                  std::string(method) + ": " + v1::Status::Code_Name(a->code) + ": " + a->message);
+  T out;
+  if (!out.ParseFromString(a->body))
+    return Status::Corrupt(std::string(method) + ": bad answer body");
+  return out;
+}
+
+}  // namespace
+
+Result<Fix> Client::Locate(const v1::LocateRequest& request, int deadline_ms) {
+  Result<v1::LocateResponse> r =
+      Typed<v1::LocateResponse>(Call("Locate", request.SerializeAsString(), deadline_ms), "Locate");
+  if (!r.ok()) return r.status();
+  return FixFromProto(r->fix());
+}
+
+Result<v1::DescribeResponse> Client::Describe(int deadline_ms) {
+  return Typed<v1::DescribeResponse>(Call("Describe", "", deadline_ms), "Describe");
+}
+
+Result<v1::ListTilesResponse> Client::ListTiles(int deadline_ms) {
+  return Typed<v1::ListTilesResponse>(Call("ListTiles", "", deadline_ms), "ListTiles");
+}
+
+}  // namespace sightfix

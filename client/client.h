@@ -1,0 +1,55 @@
+// The client library for sightfix-server: one connection, many calls in flight on it, a
+// deadline per call, reconnect and one retry for calls that are safe to repeat (all three
+// methods are reads). Async calls return a future; sync calls wait on it.
+// Thread safety: every method may be called from any thread concurrently.
+#pragma once
+
+#include <future>
+#include <memory>
+#include <string>
+
+#include "indexer/status.h"
+#include "proto/sightfix.pb.h"
+#include "server/localizer.h"
+
+namespace sightfix {
+
+struct ClientOptions {
+  std::string host = "127.0.0.1";
+  int port = 7411;
+  std::string token;  // sent with every call when set; never logged
+  int connect_timeout_ms = 3000;
+  int retries = 1;  // extra attempts after a lost connection (idempotent calls)
+};
+
+// A call's answer: the envelope's status decides; the body is the method's response.
+struct Answer {
+  v1::Status::Code code = v1::Status::OK;
+  std::string message;
+  std::string body;
+};
+
+class Client {
+ public:
+  static Result<std::unique_ptr<Client>> Connect(const ClientOptions& options);
+  ~Client();
+
+  // The raw call. Result not OK only for transport failures (kIoError: cannot connect, lost
+  // connection after the retries; kInternal: deadline passed with no answer); a server's
+  // refusal comes back as an Answer with its code.
+  std::future<Result<Answer>> CallAsync(const std::string& method, const std::string& body,
+                                        int deadline_ms);
+  Result<Answer> Call(const std::string& method, const std::string& body, int deadline_ms);
+
+  // Typed forms: a non-OK answer becomes a Status naming the server's code and message.
+  Result<Fix> Locate(const v1::LocateRequest& request, int deadline_ms);
+  Result<v1::DescribeResponse> Describe(int deadline_ms);
+  Result<v1::ListTilesResponse> ListTiles(int deadline_ms);
+
+ private:
+  struct Impl;
+  explicit Client(std::unique_ptr<Impl> impl);
+  std::shared_ptr<Impl> impl_;
+};
+
+}  // namespace sightfix

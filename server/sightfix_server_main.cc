@@ -1,0 +1,61 @@
+// sightfix-server: the localization engine behind a socket (server/service.h).
+#include <boost/program_options.hpp>
+#include <cstdio>
+#include <iostream>
+
+#include "indexer/threads.h"
+#include "server/service.h"
+
+namespace po = boost::program_options;
+
+int main(int argc, char** argv) {
+  sightfix::PinLibraryThreads();
+  sightfix::ServiceOptions o;
+  size_t cache_mb = o.engine.tile_cache_bytes >> 20;
+  po::options_description desc(
+      "sightfix-server: visual localization over TCP (framed protobuf, package sightfix.v1),\n"
+      "with /healthz and /metrics on an HTTP side port. SIGTERM drains and exits 0; SIGHUP\n"
+      "reloads the map. sightfix is a fallback aid, not a certified navigation source; defer to\n"
+      "the vehicle's safety case and local regulations.\n\n"
+      "Usage: sightfix-server --map MAPDIR [options]\n\nOptions");
+  desc.add_options()("help,h", "show this help")("map", po::value(&o.map_dir), "map folder")(
+      "listen", po::value(&o.listen)->default_value(o.listen), "HOST:PORT for calls")(
+      "http", po::value(&o.http)->default_value(o.http),
+      "HOST:PORT for /healthz and /metrics ('' = none)")(
+      "workers", po::value(&o.workers)->default_value(0), "engine threads (0 = all cores)")(
+      "queue", po::value(&o.queue)->default_value(o.queue), "calls waiting before OVERLOADED")(
+      "max-frame-bytes", po::value(&o.max_frame_bytes)->default_value(o.max_frame_bytes),
+      "largest frame accepted")("max-pixels", po::value(&o.max_pixels)->default_value(o.max_pixels),
+                                "largest image (width x height from its header) accepted")(
+      "max-connections", po::value(&o.max_connections)->default_value(o.max_connections),
+      "open connections at most")(
+      "deadline-ms", po::value(&o.default_deadline_ms)->default_value(o.default_deadline_ms),
+      "deadline of calls that set none")("token-file", po::value(&o.token_file),
+                                         "file holding the bearer token calls must carry")(
+      "allow-open", "listen beyond loopback without a token (not advised)")(
+      "tile-cache-mb", po::value(&cache_mb)->default_value(cache_mb), "memory for loaded tiles");
+  po::variables_map vm;
+  try {
+    po::store(po::parse_command_line(argc, argv, desc), vm);
+    po::notify(vm);
+  } catch (const std::exception& e) {
+    std::fprintf(stderr, "sightfix-server: %s (see --help)\n", e.what());
+    return 2;
+  }
+  if (vm.count("help")) {
+    std::cout << desc << "\n";
+    return 0;
+  }
+  o.allow_open = vm.count("allow-open") > 0;
+  o.engine.tile_cache_bytes = cache_mb << 20;
+  if (o.map_dir.empty()) {
+    std::fprintf(stderr, "sightfix-server: --map MAPDIR is required (see --help)\n");
+    return 2;
+  }
+  auto service = sightfix::Service::Create(o);
+  if (!service.ok()) {
+    std::fprintf(stderr, "sightfix-server: %s\n", service.status().ToString().c_str());
+    return 2;
+  }
+  return (*service)->Run(true).ok() ? 0 : 1;
+}
