@@ -52,14 +52,21 @@ std::string GlobalDescriptor::codec_name() const {
 Result<GlobalDescriptor> GlobalDescriptor::Train(const cv::Mat& sample,
                                                  const std::vector<cv::Mat>& images,
                                                  const std::vector<cv::Mat>& augmented,
-                                                 const GlobalDescriptorOptions& o) {
+                                                 const GlobalDescriptorOptions& requested) {
+  // n training images span at most n - 1 PCA directions: a small survey keeps fewer dimensions
+  // (a multiple of pq_subquantizers), and options() reports what was used.
+  GlobalDescriptorOptions o = requested;
+  const int rank = static_cast<int>(images.size()) - 1;
+  if (o.pca_dims > rank && rank >= o.pq_subquantizers)
+    o.pca_dims = rank / o.pq_subquantizers * o.pq_subquantizers;
   std::string error;
   if (!o.Validate(&error)) return Status::InvalidArgument(error);
   if (sample.type() != CV_32F || sample.cols != 128 || sample.rows < o.clusters * 4)
     return Status::InvalidArgument(
         "vocabulary sample must be n x 128 CV_32F with n >= 4 * clusters");
-  if (images.size() < 16)
-    return Status::InvalidArgument("training needs at least 16 images, got " +
+  if (static_cast<int>(images.size()) <= o.pq_subquantizers)
+    return Status::InvalidArgument("training needs more than " +
+                                   std::to_string(o.pq_subquantizers) + " images, got " +
                                    std::to_string(images.size()));
   omp_set_num_threads(1);  // we parallelise across images ourselves (DEVELOPERS.md, Threads)
   GlobalDescriptor g;

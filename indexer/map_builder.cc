@@ -306,9 +306,10 @@ Result<BuildSummary> BuildMap(const BuildOptions& o) {
       ReadDriveManifest((fs::path(o.drive_dir) / "drive.csv").string());
   if (!rows.ok()) return rows.status();
   s.rows = std::move(rows).value();
-  if (s.rows.size() < 16)
-    return Status::InvalidArgument("a map needs at least 16 survey images, the drive has " +
-                                   std::to_string(s.rows.size()));
+  if (static_cast<int>(s.rows.size()) <= o.descriptor.pq_subquantizers)
+    return Status::InvalidArgument(
+        "a map needs more than " + std::to_string(o.descriptor.pq_subquantizers) +
+        " survey images, the drive has " + std::to_string(s.rows.size()));
   if (Status st = LoadCameras(o, &s); !st.ok()) return st;
   BuildSummary summary;
   summary.images = static_cast<int>(s.rows.size());

@@ -46,7 +46,7 @@ check "indexer missing drive" 2 "drive.csv" -- "$indexer" build --drive "$tmp/no
 mkdir -p "$tmp/drive"
 cp "$tmp/cam.yml" "$tmp/drive/camera.yml"
 echo "image,timestamp,lat,lon,height,heading_deg,pitch_deg,roll_deg,camera,sigma_h_m" > "$tmp/drive/drive.csv"
-for i in $(seq 10 29); do
+for i in $(seq 10 49); do
   echo "images/$i.jpg,2026-05-04T12:00:$i.000Z,44.0001$i,-40.0,41.5,90,0,0,camera.yml,0.02" >> "$tmp/drive/drive.csv"
 done
 check "indexer names the bad row" 2 "drive.csv:2: cannot read or decode image" -- "$indexer" build --drive "$tmp/drive" --map "$tmp/map" --quiet

@@ -115,7 +115,7 @@ TEST(GlobalDescriptorTest, RejectsTooFewTrainingImages) {
   auto g = GlobalDescriptor::Train(sample, std::vector<cv::Mat>(10, sample), {},
                                    GlobalDescriptorOptions{});
   ASSERT_FALSE(g.ok());
-  EXPECT_NE(g.status().message().find("at least 16 images"), std::string::npos);
+  EXPECT_NE(g.status().message().find("more than 32 images"), std::string::npos);
   GlobalDescriptorOptions bad;
   bad.pq_subquantizers = 30;
   std::string error;
@@ -145,6 +145,13 @@ TEST(GlobalDescriptorTest, SmallTrainingSetFallsBackToScalarQuantizer) {
   for (int i = 0; i < w.rows; ++i) self += top[i][0] == i;
   EXPECT_EQ(self, w.rows);  // every image finds itself first
   EXPECT_FALSE(GlobalDescriptor::Deserialize({1, 2, 3}).ok());
+  // 40 images span at most 39 PCA directions: asking for 256 keeps 32 (a multiple of 8).
+  GlobalDescriptorOptions wide = o;
+  wide.pca_dims = 256;
+  auto narrow = GlobalDescriptor::Train(sample, images, {}, wide);
+  ASSERT_TRUE(narrow.ok()) << narrow.status().ToString();
+  EXPECT_EQ(narrow->options().pca_dims, 32);
+  EXPECT_EQ(narrow->Whiten(v).cols, 32);
 }
 
 }  // namespace

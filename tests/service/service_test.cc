@@ -1,0 +1,284 @@
+// sightfix-server's service on loopback against a demo map (fixture: make_map.sh): the same fixes
+// as the in-process engine, and every kind of bad input answered with a clear status or the one
+// connection closed, while another client keeps being served.
+#include "server/service.h"
+
+#include <gtest/gtest.h>
+
+#include <boost/asio.hpp>
+#include <chrono>
+#include <cmath>
+#include <filesystem>
+#include <fstream>
+#include <thread>
+
+#include "client/client.h"
+#include "indexer/drive_manifest.h"
+#include "server/wire.h"
+
+namespace sightfix {
+namespace {
+
+namespace asio = boost::asio;
+using tcp = asio::ip::tcp;
+
+std::string DataDir() {
+  const char* d = std::getenv("SIGHTFIX_SERVICE_DATA");
+  return d ? d : "service_data";
+}
+
+std::string ReadFile(const std::string& path) {
+  std::ifstream in(path, std::ios::binary);
+  return std::string((std::istreambuf_iterator<char>(in)), {});
+}
+
+class ServiceTest : public ::testing::Test {
+ protected:
+  void Start(ServiceOptions o) {
+    o.map_dir = DataDir() + "/map";
+    o.listen = "127.0.0.1:0";
+    o.http = "127.0.0.1:0";
+    auto s = Service::Create(o);
+    ASSERT_TRUE(s.ok()) << s.status().ToString();
+    service_ = std::move(s).value();
+    runner_ = std::thread([this] { service_->Run(false); });
+  }
+  void TearDown() override {
+    if (service_) service_->Shutdown();
+    if (runner_.joinable()) runner_.join();
+  }
+  std::unique_ptr<Client> Connect(const std::string& token = "") {
+    ClientOptions co;
+    co.port = service_->port();
+    co.token = token;
+    auto c = Client::Connect(co);
+    EXPECT_TRUE(c.ok());
+    return c.ok() ? std::move(c).value() : nullptr;
+  }
+  v1::LocateRequest Query(int row, bool with_prior = true) {
+    const std::string dir = DataDir() + "/town/query-day";
+    auto rows = ReadDriveManifest(dir + "/drive.csv");
+    auto cam = LoadCameraModel(dir + "/camera.yml");
+    LocateRequest fields;
+    const DriveRow& r = (*rows)[row];
+    if (with_prior) fields.prior = PriorCircle{r.position.lat_deg, r.position.lon_deg, 150};
+    camera_ = *cam;
+    return RequestToProto(ReadFile(dir + "/" + r.image), *cam, fields);
+  }
+  // Raw socket helpers for what a well-behaved client never sends.
+  tcp::socket Raw() {
+    tcp::socket s(io_);
+    s.connect({asio::ip::make_address("127.0.0.1"), static_cast<unsigned short>(service_->port())});
+    return s;
+  }
+  static v1::Envelope ReadAnswer(tcp::socket& s) {
+    uint8_t h[4];
+    asio::read(s, asio::buffer(h));
+    std::string body(FrameLength(h), '\0');
+    asio::read(s, asio::buffer(body));
+    return *ParseEnvelope(body.data(), body.size());
+  }
+  static bool ClosedByPeer(tcp::socket& s) {
+    boost::system::error_code ec;
+    char c;
+    asio::read(s, asio::buffer(&c, 1), ec);
+    return ec == asio::error::eof || ec == asio::error::connection_reset;
+  }
+  void ExpectStillServing() {
+    auto c = Connect();
+    ASSERT_NE(c, nullptr);
+    auto d = c->Describe(5000);
+    ASSERT_TRUE(d.ok()) << d.status().ToString();
+    EXPECT_GT(d->images(), 0);
+  }
+
+  asio::io_context io_;
+  std::unique_ptr<Service> service_;
+  std::thread runner_;
+  CameraModel camera_;
+};
+
+TEST_F(ServiceTest, SameFixesAsTheInProcessEngine) {
+  Start(ServiceOptions{});
+  auto local = Localizer::Open(DataDir() + "/map", LocalizerOptions{});
+  ASSERT_TRUE(local.ok());
+  auto client = Connect();
+  int refined = 0;
+  for (int row : {3, 10, 20}) {
+    const v1::LocateRequest req = Query(row);
+    auto remote = client->Locate(req, 20000);
+    ASSERT_TRUE(remote.ok()) << remote.status().ToString();
+    auto in_process_req = RequestFromProto(
+        req, [](const std::string&) { return std::nullopt; }, 1 << 30);
+    auto mine = (*local)->Locate(*in_process_req);
+    ASSERT_TRUE(mine.ok());
+    EXPECT_EQ(remote->quality, mine->quality);
+    EXPECT_DOUBLE_EQ(remote->lat_deg, mine->lat_deg);
+    EXPECT_DOUBLE_EQ(remote->lon_deg, mine->lon_deg);
+    EXPECT_DOUBLE_EQ(remote->radius95_m, mine->radius95_m);
+    refined += remote->quality == FixQuality::kRefined;
+  }
+  EXPECT_GE(refined, 2);  // the comparison must be about real fixes
+}
+
+TEST_F(ServiceTest, BadFramesCloseOnlyTheirConnection) {
+  ServiceOptions o;
+  o.max_frame_bytes = 1 << 20;
+  Start(o);
+  {  // length prefix over the cap: answered, then closed
+    tcp::socket s = Raw();
+    const uint8_t h[4] = {0x7f, 0, 0, 0};
+    asio::write(s, asio::buffer(h));
+    const v1::Envelope e = ReadAnswer(s);
+    EXPECT_EQ(e.status().code(), v1::Status::INVALID_ARGUMENT);
+    EXPECT_NE(e.status().message().find("over the"), std::string::npos);
+    EXPECT_TRUE(ClosedByPeer(s));
+  }
+  {  // zero-length frame
+    tcp::socket s = Raw();
+    const uint8_t h[4] = {0, 0, 0, 0};
+    asio::write(s, asio::buffer(h));
+    EXPECT_EQ(ReadAnswer(s).status().code(), v1::Status::INVALID_ARGUMENT);
+    EXPECT_TRUE(ClosedByPeer(s));
+  }
+  {  // garbage that is not an Envelope
+    tcp::socket s = Raw();
+    const uint8_t f[9] = {0, 0, 0, 5, 0xff, 0xff, 0xff, 0xff, 0xff};
+    asio::write(s, asio::buffer(f));
+    EXPECT_EQ(ReadAnswer(s).status().code(), v1::Status::INVALID_ARGUMENT);
+    EXPECT_TRUE(ClosedByPeer(s));
+  }
+  {  // truncated frame: the client goes away mid-frame
+    tcp::socket s = Raw();
+    const uint8_t f[6] = {0, 0, 0, 100, 1, 2};
+    asio::write(s, asio::buffer(f));
+  }
+  ExpectStillServing();
+}
+
+TEST_F(ServiceTest, BadRequestsGetClearStatuses) {
+  Start(ServiceOptions{});
+  auto c = Connect();
+  auto code_of = [&](const std::string& method, const v1::LocateRequest& r) {
+    auto a = c->Call(method, r.SerializeAsString(), 5000);
+    EXPECT_TRUE(a.ok());
+    return a.ok() ? a->code : v1::Status::OK;
+  };
+  const v1::LocateRequest good = Query(5);
+  EXPECT_EQ(code_of("Fly", good), v1::Status::UNIMPLEMENTED);
+  v1::LocateRequest r = good;
+  r.clear_image();
+  EXPECT_EQ(code_of("Locate", r), v1::Status::INVALID_ARGUMENT);  // missing image
+  r = good;
+  r.set_image("hello, not an image");
+  EXPECT_EQ(code_of("Locate", r), v1::Status::INVALID_ARGUMENT);  // undecodable
+  r = good;                                                       // a PNG whose header says 0 x 0
+  r.set_image(std::string("\x89PNG\r\n\x1a\n\0\0\0\rIHDR\0\0\0\0\0\0\0\0\x08\x02\0\0\0", 29));
+  EXPECT_EQ(code_of("Locate", r), v1::Status::INVALID_ARGUMENT);
+  r = good;  // a JPEG whose SOF0 claims 60000 x 60000: refused before any decode
+  r.set_image(std::string("\xff\xd8\xff\xc0\x00\x11\x08\xea\x60\xea\x60\x03", 12) +
+              std::string(64, '\0'));
+  auto a = c->Call("Locate", r.SerializeAsString(), 5000);
+  ASSERT_TRUE(a.ok());
+  EXPECT_EQ(a->code, v1::Status::INVALID_ARGUMENT);
+  EXPECT_NE(a->message.find("60000x60000"), std::string::npos) << a->message;
+  r = good;
+  r.mutable_prior()->set_lat_deg(std::nan(""));
+  EXPECT_EQ(code_of("Locate", r), v1::Status::INVALID_ARGUMENT);  // NaN prior
+  r = good;
+  r.mutable_prior()->set_radius_m(-10);
+  EXPECT_EQ(code_of("Locate", r), v1::Status::INVALID_ARGUMENT);  // negative radius
+  r = good;
+  r.mutable_prior()->set_lat_deg(123);
+  EXPECT_EQ(code_of("Locate", r), v1::Status::INVALID_ARGUMENT);  // out of range
+  r = good;
+  r.clear_calibration();
+  r.set_calibration_id("17/1/2#0");
+  EXPECT_EQ(code_of("Locate", r), v1::Status::NOT_FOUND);  // unknown calibration id
+  EXPECT_EQ(code_of("Locate", good), v1::Status::OK);      // and the good one still works
+}
+
+TEST_F(ServiceTest, SlowAndDeafClientsAreCutOff) {
+  ServiceOptions o;
+  o.read_timeout_ms = 1000;
+  o.max_pending_write_bytes = 64 << 10;
+  Start(o);
+  tcp::socket slow = Raw();  // slowloris: a frame announced, one byte a second
+  const uint8_t h[4] = {0, 0, 0, 50};
+  asio::write(slow, asio::buffer(h));
+  bool cut = false;
+  for (int i = 0; i < 5 && !cut; ++i) {
+    std::this_thread::sleep_for(std::chrono::milliseconds(600));
+    boost::system::error_code ec;
+    asio::write(slow, asio::buffer(h, 1), ec);
+    cut = ec.failed();
+    if (!cut && i >= 3) cut = ClosedByPeer(slow);
+  }
+  EXPECT_TRUE(cut) << "a client trickling one frame was not cut off";
+  tcp::socket deaf = Raw();  // sends calls, never reads the answers
+  v1::Envelope e;
+  e.set_method("ListTiles");
+  const std::string frame = EncodeFrame(e);
+  std::string burst;
+  for (int i = 0; i < 2000; ++i) burst += frame;
+  boost::system::error_code ec;
+  for (int i = 0; i < 200 && !ec; ++i) asio::write(deaf, asio::buffer(burst), ec);
+  EXPECT_TRUE(ec.failed()) << "a client that never reads was not closed";
+  ExpectStillServing();
+}
+
+TEST_F(ServiceTest, TokenOverloadAndDeadline) {
+  const std::string token_file = ::testing::TempDir() + "/service_token";
+  std::ofstream(token_file) << "correct-horse-battery-staple\n";
+  ServiceOptions o;
+  o.token_file = token_file;
+  o.workers = 1;
+  o.queue = 1;
+  Start(o);
+  auto anonymous = Connect();
+  auto d = anonymous->Call("Describe", "", 5000);
+  ASSERT_TRUE(d.ok());
+  EXPECT_EQ(d->code, v1::Status::UNAUTHENTICATED);
+  auto c = Connect("correct-horse-battery-staple");
+  EXPECT_EQ(c->Call("Describe", "", 5000)->code, v1::Status::OK);
+  // One worker, one queue slot: of 8 calls at once some must be refused as overloaded, and every
+  // call gets exactly one answer.
+  const std::string body = Query(7).SerializeAsString();
+  std::vector<std::future<Result<Answer>>> calls;
+  for (int i = 0; i < 8; ++i) calls.push_back(c->CallAsync("Locate", body, 20000));
+  int ok = 0, overloaded = 0;
+  for (auto& f : calls) {
+    auto a = f.get();
+    ASSERT_TRUE(a.ok());
+    ok += a->code == v1::Status::OK;
+    overloaded += a->code == v1::Status::OVERLOADED;
+  }
+  EXPECT_EQ(ok + overloaded, 8);
+  EXPECT_GE(overloaded, 1);
+  EXPECT_GE(ok, 1);
+  // A 1 ms deadline cannot be met by a locate: answered DEADLINE_EXCEEDED, not run.
+  auto late = c->Call("Locate", body, 1);
+  ASSERT_TRUE(late.ok());
+  EXPECT_EQ(late->code, v1::Status::DEADLINE_EXCEEDED);
+}
+
+TEST_F(ServiceTest, ShutdownAnswersCallsInFlight) {
+  ServiceOptions o;
+  o.workers = 1;
+  Start(o);
+  auto c = Connect();
+  const std::string body = Query(9).SerializeAsString();
+  std::vector<std::future<Result<Answer>>> calls;
+  for (int i = 0; i < 3; ++i) calls.push_back(c->CallAsync("Locate", body, 30000));
+  std::this_thread::sleep_for(std::chrono::milliseconds(200));
+  service_->Shutdown();
+  for (auto& f : calls) {
+    auto a = f.get();
+    ASSERT_TRUE(a.ok()) << a.status().ToString();
+    EXPECT_EQ(a->code, v1::Status::OK);
+  }
+  runner_.join();  // Run returned: drained
+}
+
+}  // namespace
+}  // namespace sightfix
