@@ -1,9 +1,10 @@
 #!/usr/bin/env bash
 # The main job, end to end, as far as it is built: install what is missing, build, generate the
 # demo town (survey drive, three query drives, GNSS streams, town.json, contact sheet), build its
-# map with sightfix-indexer, and locate a few query images of each drive with sightfix locate,
-# printing each fix's error against the drive's ground truth. The service and the route report
-# join here as they land.
+# map with sightfix-indexer, start sightfix-server on it, locate a few query images of each drive
+# through the server with sightfix locate --server, printing each fix's error against the drive's
+# ground truth, and stop the server cleanly (SIGTERM: it drains and exits 0). The route report
+# joins here with the evaluator.
 # Usage: scripts/demo.sh [OUT_DIR] [extra sightfix-demo-route flags]   (default out/demo-town)
 set -euo pipefail
 root="$(cd "$(dirname "$0")/.." && pwd)"
@@ -12,17 +13,33 @@ out="${1:-$root/out/demo-town}"
 shift || true
 bash "$root/scripts/deps.sh"
 cmake -S "$root" -B "$build" -DCMAKE_BUILD_TYPE=RelWithDebInfo >/dev/null
-cmake --build "$build" -j "$(nproc)" --target sightfix-demo-route sightfix-indexer sightfix
+cmake --build "$build" -j "$(nproc)" --target sightfix-demo-route sightfix-indexer sightfix \
+  sightfix-server
 
-echo "== 1/3 generating the demo town in $out"
+echo "== 1/4 generating the demo town in $out"
 "$build/demo_route/sightfix-demo-route" --out "$out" "$@"
 
 echo
-echo "== 2/3 building its map from the survey drive"
+echo "== 2/4 building its map from the survey drive"
 "$build/indexer/sightfix-indexer" build --drive "$out/survey" --map "$out/map" --overwrite
 
 echo
-echo "== 3/3 locating query images (prior: a 150 m circle centred 60 m off the truth)"
+echo "== 3/4 starting sightfix-server on the map (127.0.0.1, ports 7411 and 7412)"
+listen="${SIGHTFIX_DEMO_LISTEN:-127.0.0.1:7411}"
+http="${SIGHTFIX_DEMO_HTTP:-127.0.0.1:7412}"
+"$build/server/sightfix-server" --map "$out/map" --listen "$listen" --http "$http" \
+  2>"$out/server.log" &
+server_pid=$!
+trap 'kill -TERM "$server_pid" 2>/dev/null || true' EXIT
+for _ in $(seq 1 100); do
+  grep -q '"serving"' "$out/server.log" 2>/dev/null && break
+  kill -0 "$server_pid" 2>/dev/null || { cat "$out/server.log"; exit 1; }
+  sleep 0.1
+done
+"$build/client/sightfix" describe --server "$listen"
+
+echo
+echo "== 4/4 locating query images through the server (prior: 150 m circle centred 60 m off the truth)"
 # Rows 6, 26 and 46 of each query drive; the prior's centre is moved 60 m north of the truth
 # (1 degree of latitude is about 111 km; common practice), as a dead-reckoning prior might be.
 for drive in query-day query-dusk query-overcast; do
@@ -32,21 +49,28 @@ for drive in query-day query-dusk query-overcast; do
     IFS=, read -r image _ lat lon _ <<<"$line"
     prior_lat="$(awk -v a="$lat" 'BEGIN { printf "%.7f", a + 60 / 111132 }')"
     printf '%-15s %-18s ' "$drive" "$image"
-    "$build/client/sightfix" locate --map "$out/map" --image "$out/$drive/$image" \
+    "$build/client/sightfix" locate --server "$listen" --image "$out/$drive/$image" \
       --camera "$out/$drive/camera.yml" --prior "$prior_lat,$lon,150" --truth "$lat,$lon" --json |
       awk -F'[:,]' '/"quality"/ { q = $2 } /"error_m"/ { e = $2 } /"radius95_m"/ { r = $2 }
                     /"reason"/ { why = $0 } /"total"/ { t = $2 }
                     END {
                       gsub(/[ "]/, "", q)
-                      if (e == "") { sub(/.*"reason": /, "", why); printf "%-8s %s\n", q, why }
-                      else printf "%-8s error %.3f m, radius95 %.3f m, %.0f ms (first call loads tiles)\n", q, e, r, t
+                      if (e == "") { sub(/.*"reason": "/, "", why); sub(/",?$/, "", why); printf "%-8s %s\n", q, why }
+                      else printf "%-8s error %.3f m, radius95 %.3f m, %.0f ms\n", q, e, r, t
                     }' || true
   done
 done
 
 echo
+echo "stopping the server (SIGTERM: answers what is in flight, then exits)"
+kill -TERM "$server_pid"
+wait "$server_pid" && echo "server exited cleanly" || echo "server exited with status $?"
+trap - EXIT
+
+echo
 echo "town parameters: $out/town.json"
 echo "contact sheet:   $out/contact_sheet.png"
 echo "map:             $out/map (catalog.sqlite, tiles/)"
+echo "server log:      $out/server.log (one JSON line per call)"
 echo "Note: sightfix is a fallback aid, not a certified navigation source; defer to the vehicle's"
 echo "safety case and local regulations (see README, Safety)."

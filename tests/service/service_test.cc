@@ -34,14 +34,17 @@ std::string ReadFile(const std::string& path) {
 
 class ServiceTest : public ::testing::Test {
  protected:
-  void Start(ServiceOptions o) {
+  // False (with the reason) when the fixture's map is missing or the service cannot start.
+  bool Start(ServiceOptions o) {
     o.map_dir = DataDir() + "/map";
     o.listen = "127.0.0.1:0";
     o.http = "127.0.0.1:0";
     auto s = Service::Create(o);
-    ASSERT_TRUE(s.ok()) << s.status().ToString();
+    EXPECT_TRUE(s.ok()) << s.status().ToString() << " (run the service_map fixture first)";
+    if (!s.ok()) return false;
     service_ = std::move(s).value();
     runner_ = std::thread([this] { service_->Run(false); });
+    return true;
   }
   void TearDown() override {
     if (service_) service_->Shutdown();
@@ -99,7 +102,7 @@ class ServiceTest : public ::testing::Test {
 };
 
 TEST_F(ServiceTest, SameFixesAsTheInProcessEngine) {
-  Start(ServiceOptions{});
+  ASSERT_TRUE(Start(ServiceOptions{}));
   auto local = Localizer::Open(DataDir() + "/map", LocalizerOptions{});
   ASSERT_TRUE(local.ok());
   auto client = Connect();
@@ -124,7 +127,7 @@ TEST_F(ServiceTest, SameFixesAsTheInProcessEngine) {
 TEST_F(ServiceTest, BadFramesCloseOnlyTheirConnection) {
   ServiceOptions o;
   o.max_frame_bytes = 1 << 20;
-  Start(o);
+  ASSERT_TRUE(Start(o));
   {  // length prefix over the cap: answered, then closed
     tcp::socket s = Raw();
     const uint8_t h[4] = {0x7f, 0, 0, 0};
@@ -157,7 +160,7 @@ TEST_F(ServiceTest, BadFramesCloseOnlyTheirConnection) {
 }
 
 TEST_F(ServiceTest, BadRequestsGetClearStatuses) {
-  Start(ServiceOptions{});
+  ASSERT_TRUE(Start(ServiceOptions{}));
   auto c = Connect();
   auto code_of = [&](const std::string& method, const v1::LocateRequest& r) {
     auto a = c->Call(method, r.SerializeAsString(), 5000);
@@ -202,7 +205,7 @@ TEST_F(ServiceTest, SlowAndDeafClientsAreCutOff) {
   ServiceOptions o;
   o.read_timeout_ms = 1000;
   o.max_pending_write_bytes = 64 << 10;
-  Start(o);
+  ASSERT_TRUE(Start(o));
   tcp::socket slow = Raw();  // slowloris: a frame announced, one byte a second
   const uint8_t h[4] = {0, 0, 0, 50};
   asio::write(slow, asio::buffer(h));
@@ -234,7 +237,7 @@ TEST_F(ServiceTest, TokenOverloadAndDeadline) {
   o.token_file = token_file;
   o.workers = 1;
   o.queue = 1;
-  Start(o);
+  ASSERT_TRUE(Start(o));
   auto anonymous = Connect();
   auto d = anonymous->Call("Describe", "", 5000);
   ASSERT_TRUE(d.ok());
@@ -265,7 +268,7 @@ TEST_F(ServiceTest, TokenOverloadAndDeadline) {
 TEST_F(ServiceTest, ShutdownAnswersCallsInFlight) {
   ServiceOptions o;
   o.workers = 1;
-  Start(o);
+  ASSERT_TRUE(Start(o));
   auto c = Connect();
   const std::string body = Query(9).SerializeAsString();
   std::vector<std::future<Result<Answer>>> calls;
@@ -278,6 +281,86 @@ TEST_F(ServiceTest, ShutdownAnswersCallsInFlight) {
     EXPECT_EQ(a->code, v1::Status::OK);
   }
   runner_.join();  // Run returned: drained
+}
+
+// Load: 32 clients, each on its own raw connection, one call at a time for 30 s. Every call must
+// get exactly one answer (a duplicate would show up as an id mismatch on the next read), and
+// every answer must be OK within the deadline, OVERLOADED or DEADLINE_EXCEEDED.
+TEST_F(ServiceTest, ThirtyTwoClientsForThirtySeconds) {
+  ASSERT_TRUE(Start(ServiceOptions{}));
+  std::vector<std::string> bodies;
+  for (int row : {2, 6, 10, 14, 18}) bodies.push_back(Query(row).SerializeAsString());
+  constexpr int kClients = 32, kDeadlineMs = 10000;
+  const auto stop = std::chrono::steady_clock::now() + std::chrono::seconds(30);
+  std::mutex mu;
+  std::vector<double> ok_ms;
+  int sent = 0, lost = 0, mismatched = 0, overloaded = 0, expired = 0, other = 0, late = 0;
+  std::vector<std::thread> clients;
+  for (int c = 0; c < kClients; ++c)
+    clients.emplace_back([&, c] {
+      asio::io_context io;
+      tcp::socket s(io);
+      s.connect(
+          {asio::ip::make_address("127.0.0.1"), static_cast<unsigned short>(service_->port())});
+      for (uint64_t id = 1; std::chrono::steady_clock::now() < stop; ++id) {
+        v1::Envelope e;
+        e.set_call_id(id);
+        e.set_method("Locate");
+        e.set_deadline_ms(kDeadlineMs);
+        e.set_body(bodies[(c + id) % bodies.size()]);
+        const auto t0 = std::chrono::steady_clock::now();
+        boost::system::error_code ec;
+        asio::write(s, asio::buffer(EncodeFrame(e)), ec);
+        v1::Envelope a;
+        if (!ec) {
+          uint8_t h[4];
+          asio::read(s, asio::buffer(h), ec);
+          std::string body(ec ? 0 : FrameLength(h), '\0');
+          if (!ec) asio::read(s, asio::buffer(body), ec);
+          if (!ec) a = *ParseEnvelope(body.data(), body.size());
+        }
+        const double ms =
+            std::chrono::duration<double, std::milli>(std::chrono::steady_clock::now() - t0)
+                .count();
+        std::lock_guard<std::mutex> lock(mu);
+        ++sent;
+        if (ec) {
+          ++lost;
+          return;
+        }
+        if (a.call_id() != id) ++mismatched;
+        switch (a.status().code()) {
+          case v1::Status::OK:
+            ok_ms.push_back(ms);
+            late += ms > kDeadlineMs + 100;  // the server checks; 100 ms for the way back
+            break;
+          case v1::Status::OVERLOADED:
+            ++overloaded;
+            break;
+          case v1::Status::DEADLINE_EXCEEDED:
+            ++expired;
+            break;
+          default:
+            ++other;
+        }
+      }
+    });
+  for (std::thread& t : clients) t.join();
+  std::sort(ok_ms.begin(), ok_ms.end());
+  auto pct = [&](double q) {
+    return ok_ms.empty() ? 0.0 : ok_ms[std::min(ok_ms.size() - 1, size_t(q * ok_ms.size()))];
+  };
+  std::printf(
+      "load: %d clients, 30 s: %d calls, %zu OK (%.2f/s), %d overloaded, %d deadline "
+      "exceeded, %d other, %d lost, %d mismatched; OK latency p50 %.0f ms, p95 %.0f ms, "
+      "p99 %.0f ms\n",
+      kClients, sent, ok_ms.size(), ok_ms.size() / 30.0, overloaded, expired, other, lost,
+      mismatched, pct(0.5), pct(0.95), pct(0.99));
+  EXPECT_EQ(lost, 0);
+  EXPECT_EQ(mismatched, 0);
+  EXPECT_EQ(other, 0);
+  EXPECT_EQ(late, 0);
+  EXPECT_GT(ok_ms.size(), 0u);
 }
 
 }  // namespace
