@@ -4,7 +4,8 @@
 #  1. index build: images/s, bytes per image (global code, local features, 3D points);
 #  2. engine latency per query by stage against the bare OpenCV calls on the same data;
 #  3. retrieval over a synthetic 100 000-image set, map-wide index against the prior's tiles and
-#     against exact search.
+#     against exact search;
+#  4. the service: p50 through the socket against in process, throughput with 1 and 2 workers.
 # Usage: scripts/bench.sh [OUT_DIR]   (default out/bench; the 300 m town of seed 5 is made once)
 set -euo pipefail
 root="$(cd "$(dirname "$0")/.." && pwd)"
@@ -12,7 +13,8 @@ build="${BUILD_DIR:-$root/build}"
 out="${1:-$root/out/bench}"
 bash "$root/scripts/deps.sh"
 cmake -S "$root" -B "$build" -DCMAKE_BUILD_TYPE=RelWithDebInfo >/dev/null
-cmake --build "$build" -j "$(nproc)" --target sightfix-demo-route sightfix-indexer engine_bench
+cmake --build "$build" -j "$(nproc)" --target sightfix-demo-route sightfix-indexer engine_bench \
+  service_bench
 if [ ! -f "$out/town/town.json" ]; then
   "$build/demo_route/sightfix-demo-route" --out "$out/town" --seed 5 --route-length-m 300 >/dev/null
 fi
@@ -32,3 +34,8 @@ PY
 echo
 echo "== engine latency against the bare library calls, and retrieval at scale"
 "$build/tests/engine_bench" --map "$out/map" --drive "$out/town/query-day" --limit 40
+
+echo
+echo "== the service: socket against in process, throughput"
+"$build/tests/service_bench" --map "$out/map" --drive "$out/town/query-day" --limit 20 \
+  --seconds 15 2> >(grep -v '^{' >&2)

@@ -47,7 +47,8 @@ struct Bare {
 
 // The bare calls on one query and the references the engine checked.
 Bare BareSequence(const std::string& image_path, const sightfix::CameraModel& cam,
-                  const sightfix::Fix& fix, const std::map<std::string, sightfix::TileData>& tiles) {
+                  const sightfix::Fix& fix,
+                  const std::map<std::string, sightfix::TileData>& tiles) {
   Bare b;
   auto t0 = Clock::now();
   const cv::Mat img = cv::imread(image_path, cv::IMREAD_GRAYSCALE);
@@ -65,7 +66,8 @@ Bare BareSequence(const std::string& image_path, const sightfix::CameraModel& ca
   std::vector<cv::Point2f> qpx;
   for (const cv::KeyPoint& k : kp) qpx.push_back(k.pt);
   std::vector<cv::Point2f> qn;
-  cv::undistortPoints(qpx, qn, cam.K(), std::vector<double>(cam.distortion.begin(), cam.distortion.end()));
+  cv::undistortPoints(qpx, qn, cam.K(),
+                      std::vector<double>(cam.distortion.begin(), cam.distortion.end()));
   std::vector<cv::Point3d> obj;
   std::vector<cv::Point2d> im;
   for (const sightfix::ReferenceUse& u : fix.references) {
@@ -91,8 +93,8 @@ Bare BareSequence(const std::string& image_path, const sightfix::CameraModel& ca
     if (a.size() < 5) continue;
     t0 = Clock::now();
     cv::Mat mask;
-    const cv::Mat e = cv::findEssentialMat(a, c, cv::Mat::eye(3, 3, CV_64F), cv::USAC_MAGSAC,
-                                           0.999, 1.0 / cam.fx, mask);
+    const cv::Mat e = cv::findEssentialMat(a, c, cv::Mat::eye(3, 3, CV_64F), cv::USAC_MAGSAC, 0.999,
+                                           1.0 / cam.fx, mask);
     if (e.rows == 3) {
       cv::Mat r, tr;
       cv::recoverPose(e, a, c, cv::Mat::eye(3, 3, CV_64F), r, tr, mask);
@@ -129,7 +131,7 @@ void RetrievalBench(const sightfix::GlobalDescriptor& model, int n) {
   std::normal_distribution<float> n01;
   const int d = model.options().pca_dims;
   cv::Mat db(n, d, CV_32F), q(100, d, CV_32F);
-  for (float* p = db.ptr<float>(), *e = p + db.total(); p < e; ++p) *p = n01(rng);
+  for (float *p = db.ptr<float>(), *e = p + db.total(); p < e; ++p) *p = n01(rng);
   for (int i = 0; i < q.rows; ++i)  // queries near database rows, as real revisits are
     for (int j = 0; j < d; ++j) q.at<float>(i, j) = db.at<float>(i * 7, j) + 0.5f * n01(rng);
   const cv::Mat codes = model.Encode(db);
@@ -137,14 +139,16 @@ void RetrievalBench(const sightfix::GlobalDescriptor& model, int n) {
     std::vector<float> dist(8);
     std::vector<faiss::Index::idx_t> ids(8);
     const auto t0 = Clock::now();
-    for (int i = 0; i < queries; ++i) index.search(1, q.ptr<float>(i % q.rows), 8, dist.data(), ids.data());
+    for (int i = 0; i < queries; ++i)
+      index.search(1, q.ptr<float>(i % q.rows), 8, dist.data(), ids.data());
     return Ms(t0) / queries;
   };
   auto global = model.MakeIndex(codes);
   const double global_ms = time_search(*global, 100);
   double tiles_ms = 0;  // a prior touching 4 tiles of 300 images: four small searches
   std::vector<std::unique_ptr<faiss::Index>> tiles;
-  for (int t = 0; t < 4; ++t) tiles.push_back(model.MakeIndex(codes.rowRange(t * 300, t * 300 + 300)));
+  for (int t = 0; t < 4; ++t)
+    tiles.push_back(model.MakeIndex(codes.rowRange(t * 300, t * 300 + 300)));
   for (auto& t : tiles) tiles_ms += time_search(*t, 100);
   faiss::IndexFlatL2 exact(d);
   exact.add(n, db.ptr<float>());
@@ -205,12 +209,16 @@ int main(int argc, char** argv) {
   double engine_sum = 0, bare_all = 0;
   for (size_t i = 0; i < total.size(); ++i) engine_sum += total[i], bare_all += bare_total[i];
   std::printf("%zu queries of %s, one at a time\n", results->size(), drive.c_str());
-  std::printf("engine ms  p50 %.0f  p95 %.0f  (features p50 %.0f, retrieval %.1f, verify %.0f, pose %.1f)\n",
-              Percentile(total, 0.5), Percentile(total, 0.95), Percentile(features, 0.5),
-              Percentile(retrieval, 0.5), Percentile(verify, 0.5), Percentile(pose, 0.5));
-  std::printf("bare calls ms  p50 %.0f  p95 %.0f  (mean: SIFT %.0f, matching %.0f, essential %.0f, PnP %.1f)\n",
-              Percentile(bare_total, 0.5), Percentile(bare_total, 0.95), bare_sum.sift / n,
-              bare_sum.match / n, bare_sum.essential / n, bare_sum.pnp / n);
+  std::printf(
+      "engine ms  p50 %.0f  p95 %.0f  (features p50 %.0f, retrieval %.1f, verify %.0f, pose "
+      "%.1f)\n",
+      Percentile(total, 0.5), Percentile(total, 0.95), Percentile(features, 0.5),
+      Percentile(retrieval, 0.5), Percentile(verify, 0.5), Percentile(pose, 0.5));
+  std::printf(
+      "bare calls ms  p50 %.0f  p95 %.0f  (mean: SIFT %.0f, matching %.0f, essential %.0f, PnP "
+      "%.1f)\n",
+      Percentile(bare_total, 0.5), Percentile(bare_total, 0.95), bare_sum.sift / n,
+      bare_sum.match / n, bare_sum.essential / n, bare_sum.pnp / n);
   std::printf("overhead: engine / bare = %.3f (goal <= 1.25)\n", engine_sum / bare_all);
   RetrievalBench(*sightfix::GlobalDescriptor::Deserialize((*loc)->catalog().model_blob), synthetic);
   return 0;

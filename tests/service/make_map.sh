@@ -1,9 +1,10 @@
 #!/usr/bin/env bash
 # CTest fixture: a 150 m demo town (seed 17) and its map, shared by the service tests.
-# 150 survey images are under the PQ training size, so this map also runs the SQ8 code path.
+# 150 survey images are under the PQ training size, so this map also runs the SQ8 code path;
+# zoom 18 (about 110 m tiles here) cuts it into several tiles, so one can be damaged.
 # Usage: make_map.sh BUILD_DIR OUT_DIR
 set -euo pipefail
 build="$1" out="$2"
 rm -rf "$out"
 "$build/demo_route/sightfix-demo-route" --out "$out/town" --seed 17 --route-length-m 150 >/dev/null 2>&1
-"$build/indexer/sightfix-indexer" build --drive "$out/town/survey" --map "$out/map" --quiet
+"$build/indexer/sightfix-indexer" build --drive "$out/town/survey" --map "$out/map" --zoom 18 --quiet

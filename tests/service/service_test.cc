@@ -14,6 +14,7 @@
 
 #include "client/client.h"
 #include "indexer/drive_manifest.h"
+#include "indexer/map_store.h"
 #include "server/wire.h"
 
 namespace sightfix {
@@ -36,7 +37,7 @@ class ServiceTest : public ::testing::Test {
  protected:
   // False (with the reason) when the fixture's map is missing or the service cannot start.
   bool Start(ServiceOptions o) {
-    o.map_dir = DataDir() + "/map";
+    if (o.map_dir.empty()) o.map_dir = DataDir() + "/map";
     o.listen = "127.0.0.1:0";
     o.http = "127.0.0.1:0";
     auto s = Service::Create(o);
@@ -281,6 +282,76 @@ TEST_F(ServiceTest, ShutdownAnswersCallsInFlight) {
     EXPECT_EQ(a->code, v1::Status::OK);
   }
   runner_.join();  // Run returned: drained
+}
+
+TEST_F(ServiceTest, ConfigurationSafety) {
+  ServiceOptions o;
+  o.map_dir = DataDir() + "/map";
+  o.listen = "0.0.0.0:0";  // beyond loopback, no token: refused
+  o.http = "";
+  auto open = Service::Create(o);
+  ASSERT_FALSE(open.ok());
+  EXPECT_NE(open.status().message().find("--token-file"), std::string::npos);
+  o.allow_open = true;  // ... unless told explicitly
+  EXPECT_TRUE(Service::Create(o).ok());
+  o = ServiceOptions{};
+  o.map_dir = DataDir() + "/map";
+  o.listen = "127.0.0.1:0";
+  o.http = "";
+  o.token_file = ::testing::TempDir() + "/short_token";
+  std::ofstream(o.token_file) << "short\n";
+  EXPECT_FALSE(Service::Create(o).ok());  // a guessable token is refused
+  o.token_file.clear();
+  o.map_dir = DataDir() + "/no-such-map";
+  EXPECT_FALSE(Service::Create(o).ok());
+}
+
+TEST_F(ServiceTest, ReloadKeepsServingAndConnectionCapHolds) {
+  ServiceOptions o;
+  o.max_connections = 2;
+  ASSERT_TRUE(Start(o));
+  auto a = Connect();
+  auto b = Connect();
+  ASSERT_TRUE(a->Describe(5000).ok());
+  ASSERT_TRUE(b->Describe(5000).ok());
+  tcp::socket third = Raw();  // over the cap: closed at once, the first two unaffected
+  EXPECT_TRUE(ClosedByPeer(third));
+  EXPECT_TRUE(a->Describe(5000).ok());
+  std::future<Result<Answer>> during = a->CallAsync("Locate", Query(4).SerializeAsString(), 20000);
+  EXPECT_TRUE(service_->Reload().ok());
+  auto answer = during.get();
+  ASSERT_TRUE(answer.ok());
+  EXPECT_EQ(answer->code, v1::Status::OK);  // the call in flight finished on the old map
+  auto after = b->Locate(Query(4), 20000);
+  EXPECT_TRUE(after.ok()) << after.status().ToString();
+}
+
+TEST_F(ServiceTest, BadTileIsSkippedAndTheRestServes) {
+  namespace fs = std::filesystem;
+  const std::string copy = ::testing::TempDir() + "/service_bad_tile_map";
+  fs::remove_all(copy);
+  fs::copy(DataDir() + "/map", copy, fs::copy_options::recursive);
+  auto catalog = ReadCatalog(copy + "/catalog.sqlite");
+  ASSERT_TRUE(catalog.ok());
+  ASSERT_GE(catalog->tiles.size(), 2u);
+  std::ofstream(copy + "/" + catalog->tiles[0].file, std::ios::trunc) << "damaged";
+  ServiceOptions o;
+  o.map_dir = copy;
+  ASSERT_TRUE(Start(o));
+  auto c = Connect();
+  int answered = 0, refined = 0;
+  for (int row : {2, 8, 14, 20, 26}) {
+    auto fix = c->Locate(Query(row), 20000);
+    ASSERT_TRUE(fix.ok()) << fix.status().ToString();  // an answer, never a failure
+    ++answered;
+    refined += fix->quality == FixQuality::kRefined;
+    if (fix->quality != FixQuality::kRefined) {
+      EXPECT_NE(fix->reason.find("skipped"), std::string::npos) << fix->reason;
+    }
+  }
+  std::printf("with tile %s damaged: %d answered, %d refined\n",
+              catalog->tiles[0].key.ToString().c_str(), answered, refined);
+  EXPECT_GE(refined, 1);
 }
 
 // Load: 32 clients, each on its own raw connection, one call at a time for 30 s. Every call must
