@@ -5,6 +5,7 @@
 #include <faiss/impl/io.h>
 #include <faiss/index_io.h>
 
+#include <cstdio>
 #include <filesystem>
 
 namespace sightfix {
@@ -41,6 +42,15 @@ int TileCache::cached_tiles() const {
   return static_cast<int>(cache_.size());
 }
 
+Status TileCache::Failed(int ordinal, const Status& why) {
+  // Reported once, on stderr (the service's log), then remembered: the rest keeps serving.
+  std::fprintf(stderr, "{\"event\":\"tile_skipped\",\"tile\":\"%s\",\"reason\":\"%s\"}\n",
+               tiles_[ordinal].key.ToString().c_str(), why.code() == StatusCode::kNotFound
+                                                            ? "missing"
+                                                            : "unreadable or inconsistent");
+  return failed_[ordinal] = why;
+}
+
 Result<std::shared_ptr<const LoadedTile>> TileCache::Get(int ordinal) {
   if (ordinal < 0 || ordinal >= static_cast<int>(tiles_.size()))
     return Status::NotFound("no tile with ordinal " + std::to_string(ordinal));
@@ -52,17 +62,17 @@ Result<std::shared_ptr<const LoadedTile>> TileCache::Get(int ordinal) {
   if (auto f = failed_.find(ordinal); f != failed_.end()) return f->second;
   const std::string path = (std::filesystem::path(map_dir_) / tiles_[ordinal].file).string();
   Result<TileData> data = ReadTile(path);
-  if (!data.ok()) return failed_[ordinal] = data.status();
+  if (!data.ok()) return Failed(ordinal, data.status());
   std::unique_ptr<faiss::Index> index;
   try {
     faiss::VectorIOReader reader;
     reader.data = data->retrieval_index;
     index.reset(faiss::read_index(&reader));
   } catch (const faiss::FaissException& e) {
-    return failed_[ordinal] = Status::Corrupt(path + ": retrieval index unreadable");
+    return Failed(ordinal, Status::Corrupt(path + ": retrieval index unreadable"));
   }
   if (index->ntotal != static_cast<faiss::Index::idx_t>(data->images.size()))
-    return failed_[ordinal] = Status::Corrupt(path + ": retrieval index and images disagree");
+    return Failed(ordinal, Status::Corrupt(path + ": retrieval index and images disagree"));
   auto tile = std::make_shared<const LoadedTile>(std::move(data).value(), std::move(index));
   lru_.push_front(ordinal);
   cache_[ordinal] = {tile, lru_.begin()};

@@ -46,6 +46,8 @@ class TileCache {
   int cached_tiles() const;
 
  private:
+  Status Failed(int ordinal, const Status& why);  // REQUIRES: mu_ held
+
   const std::string map_dir_;
   const std::vector<CatalogTile> tiles_;
   std::map<TileKey, int> ordinal_;
