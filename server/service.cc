@@ -617,20 +617,21 @@ void Service::Impl::CheckDrained() {
 
 Status Service::Run(bool handle_signals) {
   Impl& m = *impl_;
+  // Outlives io.run(): the handler re-arms itself with it.
+  std::function<void(const boost::system::error_code&, int)> on_signal;
   if (handle_signals) {
     m.signals.add(SIGTERM);
     m.signals.add(SIGINT);
     m.signals.add(SIGHUP);
-    std::function<void(const boost::system::error_code&, int)> on_signal =
-        [&m, this, &on_signal](const boost::system::error_code& ec, int sig) {
-          if (ec) return;
-          if (sig == SIGHUP) {
-            std::thread([this] { Reload(); }).detach();
-            m.signals.async_wait(on_signal);
-          } else {
-            m.BeginDrain();
-          }
-        };
+    on_signal = [&m, this, &on_signal](const boost::system::error_code& ec, int sig) {
+      if (ec) return;
+      if (sig == SIGHUP) {
+        std::thread([this] { Reload(); }).detach();
+        m.signals.async_wait(on_signal);
+      } else {
+        m.BeginDrain();
+      }
+    };
     m.signals.async_wait(on_signal);
   }
   m.Accept();

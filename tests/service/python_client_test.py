@@ -16,6 +16,7 @@ import subprocess
 import sys
 import tempfile
 import threading
+import time
 
 build, source, data = sys.argv[1:4]
 tmp = tempfile.mkdtemp()
@@ -74,8 +75,9 @@ for line in server.stderr:
         port = json.loads(line)["port"]
         break
 check("server started", port is not None)
-# Keep reading the server's log so a full pipe never blocks it.
-threading.Thread(target=lambda: [None for _ in server.stderr], daemon=True).start()
+# Keep reading the server's log (so a full pipe never blocks it) and keep its lines.
+log = []
+threading.Thread(target=lambda: [log.append(line) for line in server.stderr], daemon=True).start()
 
 sock = socket.create_connection(("127.0.0.1", port))
 sock.sendall(frame(pb.Envelope(call_id=7, method="Describe")))
@@ -121,6 +123,17 @@ sock.sendall(frame(pb.Envelope(call_id=21, method="Teleport")))
 answer = read_answer(sock)
 check("unknown method is UNIMPLEMENTED", answer.call_id == 21
       and answer.status.code == pb.Status.UNIMPLEMENTED, str(answer.status))
+
+server.send_signal(signal.SIGHUP)  # reload the map while connected
+for _ in range(100):
+    if any('"reloaded"' in line for line in log):
+        break
+    time.sleep(0.1)
+check("SIGHUP reloads the map", any('"reloaded"' in line for line in log))
+sock.sendall(frame(pb.Envelope(call_id=31, method="Describe")))
+answer = read_answer(sock)
+check("same connection served after the reload", answer.call_id == 31
+      and answer.status.code == pb.Status.OK, str(answer.status))
 sock.close()
 
 server.send_signal(signal.SIGTERM)

@@ -284,6 +284,17 @@ TEST_F(ServiceTest, ShutdownAnswersCallsInFlight) {
   runner_.join();  // Run returned: drained
 }
 
+TEST_F(ServiceTest, ClientReconnectsAfterTheServerClosedAnIdleConnection) {
+  ServiceOptions o;
+  o.idle_timeout_ms = 300;
+  ASSERT_TRUE(Start(o));
+  auto c = Connect();
+  ASSERT_TRUE(c->Describe(5000).ok());
+  std::this_thread::sleep_for(std::chrono::milliseconds(900));  // the server drops it meanwhile
+  auto again = c->Describe(5000);
+  EXPECT_TRUE(again.ok()) << again.status().ToString();
+}
+
 TEST_F(ServiceTest, ConfigurationSafety) {
   ServiceOptions o;
   o.map_dir = DataDir() + "/map";
