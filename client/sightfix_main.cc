@@ -47,6 +47,24 @@ sightfix::Result<sightfix::LocalFeatures> Load(const std::string& image_path,
   return f;
 }
 
+// Parses a command's flags into *vm. Returns -1 to go on, else the exit code: 0 after --help
+// (which prints the options and the safety caution), 2 after a bad flag.
+int ParseFlags(int argc, char** argv, const std::string& command,
+               const po::options_description& desc, const po::positional_options_description& pos,
+               po::variables_map* vm) {
+  try {
+    po::store(po::command_line_parser(argc, argv).options(desc).positional(pos).run(), *vm);
+    po::notify(*vm);
+  } catch (const std::exception& e) {
+    return Fail(std::string(e.what()) + " (see sightfix " + command + " --help)", 2);
+  }
+  if (vm->count("help")) {
+    std::cout << desc << "\n" << kSafety << "\n";
+    return 0;
+  }
+  return -1;
+}
+
 int Pair(int argc, char** argv) {
   std::string image_a, image_b, camera_a, camera_b;
   po::options_description desc(
@@ -63,16 +81,7 @@ int Pair(int argc, char** argv) {
   po::positional_options_description pos;
   pos.add("image-a", 1).add("image-b", 1);
   po::variables_map vm;
-  try {
-    po::store(po::command_line_parser(argc, argv).options(desc).positional(pos).run(), vm);
-    po::notify(vm);
-  } catch (const std::exception& e) {
-    return Fail(std::string(e.what()) + " (see sightfix pair --help)", 2);
-  }
-  if (vm.count("help")) {
-    std::cout << desc << "\n";
-    return 0;
-  }
+  if (int rc = ParseFlags(argc, argv, "pair", desc, pos, &vm); rc >= 0) return rc;
   if (image_a.empty() || image_b.empty() || camera_a.empty())
     return Fail("pair needs IMAGE_A IMAGE_B and --camera (see sightfix pair --help)", 2);
   auto cam_a = sightfix::LoadCameraModel(camera_a);
@@ -184,11 +193,9 @@ sightfix::Result<std::unique_ptr<sightfix::Client>> ConnectTo(const std::string&
   if (!sightfix::SplitHostPort(server, &co.host, &co.port))
     return sightfix::Status::InvalidArgument("--server must look like HOST:PORT");
   if (!token_file.empty()) {
-    std::ifstream in(token_file);
-    if (!in) return sightfix::Status::NotFound("cannot read token file " + token_file);
-    std::getline(in, co.token);
-    while (!co.token.empty() && std::isspace(static_cast<unsigned char>(co.token.back())))
-      co.token.pop_back();
+    auto token = sightfix::ReadTokenFile(token_file);
+    if (!token.ok()) return token.status();
+    co.token = *token;
   }
   return sightfix::Client::Connect(co);
 }
@@ -202,16 +209,7 @@ int Describe(int argc, char** argv) {
       "token-file", po::value(&token_file), "file holding the server's bearer token")(
       "json", "print JSON on stdout");
   po::variables_map vm;
-  try {
-    po::store(po::command_line_parser(argc, argv).options(desc).run(), vm);
-    po::notify(vm);
-  } catch (const std::exception& e) {
-    return Fail(std::string(e.what()) + " (see sightfix describe --help)", 2);
-  }
-  if (vm.count("help")) {
-    std::cout << desc << "\n";
-    return 0;
-  }
+  if (int rc = ParseFlags(argc, argv, "describe", desc, {}, &vm); rc >= 0) return rc;
   if (server.empty()) return Fail("describe needs --server HOST:PORT", 2);
   auto client = ConnectTo(server, token_file);
   if (!client.ok()) return Fail(client.status().ToString(), 1);
@@ -256,16 +254,7 @@ int Locate(int argc, char** argv) {
       "truth", po::value(&truth_text), "true LAT,LON: also print the horizontal error")(
       "json", "print JSON on stdout");
   po::variables_map vm;
-  try {
-    po::store(po::command_line_parser(argc, argv).options(desc).run(), vm);
-    po::notify(vm);
-  } catch (const std::exception& e) {
-    return Fail(std::string(e.what()) + " (see sightfix locate --help)", 2);
-  }
-  if (vm.count("help")) {
-    std::cout << desc << "\n" << kSafety << "\n";
-    return 0;
-  }
+  if (int rc = ParseFlags(argc, argv, "locate", desc, {}, &vm); rc >= 0) return rc;
   if ((map_dir.empty() == server.empty()) || image_path.empty() || camera_path.empty())
     return Fail("locate needs --map or --server, --image and --camera (see sightfix locate --help)",
                 2);

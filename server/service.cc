@@ -351,6 +351,15 @@ bool IsLoopback(const std::string& address) {
 
 }  // namespace
 
+Result<std::string> ReadTokenFile(const std::string& path) {
+  std::ifstream in(path);
+  if (!in) return Status::NotFound("cannot read token file " + path);
+  std::string token;
+  std::getline(in, token);
+  while (!token.empty() && std::isspace(static_cast<unsigned char>(token.back()))) token.pop_back();
+  return token;
+}
+
 bool SplitHostPort(const std::string& text, std::string* host, int* port) {
   const size_t colon = text.rfind(':');
   if (colon == std::string::npos || colon == 0) return false;
@@ -405,11 +414,9 @@ Result<std::unique_ptr<Service>> Service::Create(const ServiceOptions& o) {
   auto impl = std::make_unique<Impl>();
   impl->o = o;
   if (!o.token_file.empty()) {
-    std::ifstream in(o.token_file);
-    if (!in) return Status::NotFound("cannot read token file " + o.token_file);
-    std::getline(in, impl->token);
-    while (!impl->token.empty() && std::isspace(static_cast<unsigned char>(impl->token.back())))
-      impl->token.pop_back();
+    Result<std::string> token = ReadTokenFile(o.token_file);
+    if (!token.ok()) return token.status();
+    impl->token = *token;
     if (impl->token.size() < 16)
       return Status::InvalidArgument("token in " + o.token_file + " is shorter than 16 characters");
   }

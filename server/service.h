@@ -73,6 +73,10 @@ class Service {
   std::unique_ptr<Impl> impl_;
 };
 
+// The bearer token in a file: its first line, trailing white space removed. kNotFound when the
+// file cannot be read.
+Result<std::string> ReadTokenFile(const std::string& path);
+
 // "host:port" -> parts; false when malformed.
 bool SplitHostPort(const std::string& text, std::string* host, int* port);
 
