@@ -295,6 +295,37 @@ TEST_F(ServiceTest, ClientReconnectsAfterTheServerClosedAnIdleConnection) {
   EXPECT_TRUE(again.ok()) << again.status().ToString();
 }
 
+TEST_F(ServiceTest, HealthAndMetricsOnTheHttpPort) {
+  ASSERT_TRUE(Start(ServiceOptions{}));
+  auto c = Connect();
+  ASSERT_TRUE(c->Locate(Query(6), 20000).ok());
+  ASSERT_EQ(c->Call("Fly", "", 5000)->code, v1::Status::UNIMPLEMENTED);
+  auto get = [&](const std::string& path) {
+    tcp::socket s(io_);
+    s.connect(
+        {asio::ip::make_address("127.0.0.1"), static_cast<unsigned short>(service_->http_port())});
+    asio::write(s, asio::buffer("GET " + path + " HTTP/1.1\r\nHost: x\r\n\r\n"));
+    std::string out;
+    boost::system::error_code ec;
+    char buf[4096];
+    for (size_t n; (n = s.read_some(asio::buffer(buf), ec)) > 0 || !ec;) out.append(buf, n);
+    return out;
+  };
+  const std::string health = get("/healthz");
+  EXPECT_NE(health.find("200 OK"), std::string::npos) << health;
+  const std::string metrics = get("/metrics");
+  // Prometheus text exposition format: counters by label, a histogram, gauges.
+  for (const char* want :
+       {"# TYPE sightfix_calls_total counter",
+        "sightfix_calls_total{method=\"Locate\",status=\"OK\"} 1",
+        "sightfix_calls_total{method=\"Fly\",status=\"UNIMPLEMENTED\"} 1",
+        "# TYPE sightfix_locate_seconds histogram", "sightfix_locate_seconds_bucket{le=\"+Inf\"} 1",
+        "sightfix_locate_seconds_count 1", "sightfix_queue_depth 0", "sightfix_tiles_cached",
+        "sightfix_map_version 1"})
+    EXPECT_NE(metrics.find(want), std::string::npos) << want << "\n" << metrics;
+  EXPECT_NE(get("/nowhere").find("404"), std::string::npos);
+}
+
 TEST_F(ServiceTest, ConfigurationSafety) {
   ServiceOptions o;
   o.map_dir = DataDir() + "/map";
