@@ -12,6 +12,7 @@
 #include <thread>
 
 #include "indexer/parallel.h"
+#include "indexer/rotation.h"
 
 namespace sightfix {
 namespace {
@@ -20,11 +21,6 @@ constexpr double kDegToRad = M_PI / 180.0;
 
 double SecondsSince(std::chrono::steady_clock::time_point t0) {
   return std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
-}
-
-double HeadingOf(const cv::Matx33d& enu_from_camera) {
-  // The optical axis (camera z) in ENU, heading clockwise from north.
-  return std::atan2(enu_from_camera(0, 2), enu_from_camera(1, 2)) / kDegToRad;
 }
 
 struct ViewPair {
@@ -42,10 +38,9 @@ std::vector<ViewPair> NeighbourPairs(const std::vector<SurveyView>& views,
                         taken < o.max_neighbours;
          ++b) {
       if (cv::norm(views[a].center_enu - views[b].center_enu) > o.max_neighbour_m) continue;
-      double dh =
-          std::fabs(HeadingOf(views[a].enu_from_camera) - HeadingOf(views[b].enu_from_camera));
-      dh = std::min(dh, 360.0 - dh);
-      if (dh > o.max_heading_diff_deg) continue;
+      const double dh = WrapDeg180(AttitudeFromEnuFromCamera(views[a].enu_from_camera).heading_deg -
+                                   AttitudeFromEnuFromCamera(views[b].enu_from_camera).heading_deg);
+      if (std::fabs(dh) > o.max_heading_diff_deg) continue;
       pairs.push_back({a, b});
       ++taken;
     }

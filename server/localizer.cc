@@ -148,6 +148,17 @@ const Catalog& Localizer::catalog() const { return impl_->catalog; }
 const LocalizerOptions& Localizer::options() const { return impl_->o; }
 int Localizer::tiles_cached() const { return impl_->cache->cached_tiles(); }
 
+std::optional<CameraModel> Localizer::TileCamera(const std::string& tile, int index) const {
+  for (size_t i = 0; i < impl_->catalog.tiles.size(); ++i) {
+    if (impl_->catalog.tiles[i].key.ToString() != tile) continue;
+    auto loaded = impl_->cache->Get(static_cast<int>(i));
+    if (!loaded.ok() || index < 0 || index >= static_cast<int>((*loaded)->data.cameras.size()))
+      return std::nullopt;
+    return (*loaded)->data.cameras[index];
+  }
+  return std::nullopt;
+}
+
 Result<std::unique_ptr<Localizer>> Localizer::Open(const std::string& map_dir,
                                                    const LocalizerOptions& options) {
   std::string error;

@@ -135,6 +135,8 @@ class Localizer {
   const Catalog& catalog() const;
   const LocalizerOptions& options() const;
   int tiles_cached() const;  // tiles in memory now
+  // Calibration `index` of the tile "z/x/y", through the tile cache; nullopt when unknown.
+  std::optional<CameraModel> TileCamera(const std::string& tile, int index) const;
 
  private:
   struct Impl;

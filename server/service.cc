@@ -478,19 +478,10 @@ void Service::Impl::Answer(const std::shared_ptr<Session>& s, uint64_t id,
 }
 
 std::optional<CameraModel> Service::Impl::Calibration(const std::string& id) {
+  // Through the engine's tile cache: the tile is read once, not on every call.
   const size_t hash = id.find('#');
   if (hash == std::string::npos) return std::nullopt;
-  std::shared_ptr<const Localizer> loc = Current();
-  const std::string tile = id.substr(0, hash);
-  for (const CatalogTile& t : loc->catalog().tiles) {
-    if (t.key.ToString() != tile) continue;
-    Result<TileData> data = ReadTile(o.map_dir + "/" + t.file);
-    const int index = std::atoi(id.c_str() + hash + 1);
-    if (!data.ok() || index < 0 || index >= static_cast<int>(data->cameras.size()))
-      return std::nullopt;
-    return data->cameras[index];
-  }
-  return std::nullopt;
+  return Current()->TileCamera(id.substr(0, hash), std::atoi(id.c_str() + hash + 1));
 }
 
 std::string Service::Impl::DescribeBody() {

@@ -45,9 +45,8 @@ int TileCache::cached_tiles() const {
 Status TileCache::Failed(int ordinal, const Status& why) {
   // Reported once, on stderr (the service's log), then remembered: the rest keeps serving.
   std::fprintf(stderr, "{\"event\":\"tile_skipped\",\"tile\":\"%s\",\"reason\":\"%s\"}\n",
-               tiles_[ordinal].key.ToString().c_str(), why.code() == StatusCode::kNotFound
-                                                            ? "missing"
-                                                            : "unreadable or inconsistent");
+               tiles_[ordinal].key.ToString().c_str(),
+               why.code() == StatusCode::kNotFound ? "missing" : "unreadable or inconsistent");
   return failed_[ordinal] = why;
 }
 

@@ -199,7 +199,11 @@ TEST_F(ServiceTest, BadRequestsGetClearStatuses) {
   r.clear_calibration();
   r.set_calibration_id("17/1/2#0");
   EXPECT_EQ(code_of("Locate", r), v1::Status::NOT_FOUND);  // unknown calibration id
-  EXPECT_EQ(code_of("Locate", good), v1::Status::OK);      // and the good one still works
+  auto tiles = c->ListTiles(5000);  // a known id: the first tile's first camera
+  ASSERT_TRUE(tiles.ok() && tiles->tiles_size() > 0);
+  r.set_calibration_id(tiles->tiles(0).tile() + "#0");
+  EXPECT_EQ(code_of("Locate", r), v1::Status::OK);
+  EXPECT_EQ(code_of("Locate", good), v1::Status::OK);  // and the good one still works
 }
 
 TEST_F(ServiceTest, SlowAndDeafClientsAreCutOff) {
