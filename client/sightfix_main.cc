@@ -1,6 +1,9 @@
-// sightfix: the command-line client: `locate` (one image against a map, in process) and `pair`
-// (the relative pose of two images).
+// sightfix: the command-line client: `locate` (one image, in process or through the server),
+// `describe`, `replay` (a query drive with truth: metrics and report), `compare` (two replays)
+// and `pair` (the relative pose of two images).
+#include <atomic>
 #include <boost/program_options.hpp>
+#include <csignal>
 #include <cmath>
 #include <cstdio>
 #include <filesystem>
@@ -13,9 +16,13 @@
 #include <string>
 
 #include "client/client.h"
+#include "client/gnss_stream.h"
+#include "client/route_eval.h"
+#include "client/route_report.h"
 #include "indexer/camera_model.h"
 #include "indexer/geo.h"
 #include "indexer/local_features.h"
+#include "indexer/progress.h"
 #include "indexer/threads.h"
 #include "server/localizer.h"
 #include "server/relative_pose.h"
@@ -323,6 +330,220 @@ int Locate(int argc, char** argv) {
   return fix->quality == sightfix::FixQuality::kNone ? 3 : 0;
 }
 
+std::atomic<bool> g_stop{false};
+extern "C" void OnInterrupt(int) {
+  g_stop = true;
+  std::signal(SIGINT, SIG_DFL);  // a second Ctrl-C ends the process at once
+}
+
+// "none", "noisy:R" or "gnss" onto the evaluator's options; false when malformed.
+bool ParsePriorMode(const std::string& text, sightfix::RouteEvalOptions* o) {
+  if (text == "none") {
+    o->prior = sightfix::PriorMode::kNone;
+    return true;
+  }
+  if (text == "gnss") {
+    o->prior = sightfix::PriorMode::kGnss;
+    return true;
+  }
+  std::vector<double> r;
+  if (text.rfind("noisy:", 0) != 0 || !ParseNumbers(text.substr(6), 1, &r) || !(r[0] > 0))
+    return false;
+  o->prior = sightfix::PriorMode::kNoisy;
+  o->prior_radius_m = o->prior_max_offset_m = r[0];  // centre uniformly within R of the truth
+  return true;
+}
+
+// The optional GNSS stream and spoofing truth of a drive; a file given but unreadable is an
+// error, a default one missing is not.
+sightfix::Status LoadGnss(const std::string& gnss_path, bool gnss_given,
+                          const std::string& spoof_path, bool spoof_given,
+                          sightfix::RouteReport* report) {
+  namespace fs = std::filesystem;
+  if (gnss_given || fs::exists(gnss_path)) {
+    auto g = sightfix::ReadGnssCsv(gnss_path);
+    if (!g.ok()) return g.status();
+    report->gnss = std::move(g).value();
+  }
+  if (spoof_given || fs::exists(spoof_path)) {
+    auto t = sightfix::ReadSpoofingCsv(spoof_path);
+    if (!t.ok()) return t.status();
+    report->spoof_truth = std::move(t).value();
+  }
+  return sightfix::Status::Ok();
+}
+
+void PrintReplaySummary(const sightfix::RouteReport& r, const std::string& out) {
+  const sightfix::RouteSummary& s = r.summary;
+  std::printf("%s%d queries, %d fixes (availability %.3f; refined %d, coarse %d, none %d)\n",
+              r.partial ? "PARTIAL (interrupted): " : "", s.queries, s.fixes, s.availability,
+              s.refined, s.coarse, s.none);
+  std::printf("recall@1/5/10 within 25 m: %.3f / %.3f / %.3f\n", s.recall_at_1, s.recall_at_5,
+              s.recall_at_10);
+  std::printf("error over fixes: median %.3f m, p90 %.3f m, p95 %.3f m, max %.3f m; refined: "
+              "median %.3f m, p95 %.3f m; wrong refined %d\n",
+              s.all.median_m, s.all.p90_m, s.all.p95_m, s.all.max_m, s.median_error_m,
+              s.p95_error_m, s.wrong_refined);
+  std::printf("within (0.25 m, 2 deg) %.3f, (0.5 m, 5 deg) %.3f, (5 m, 10 deg) %.3f; heading "
+              "median %.2f deg\n",
+              s.within_0_25m_2deg, s.within_0_5m_5deg, s.within_5m_10deg, s.all.median_heading_deg);
+  std::printf("radius95 coverage %.3f, NEES %.2f; latency p50 %.0f ms, p95 %.0f ms, p99 %.0f ms\n",
+              s.all.radius95_coverage, s.all.nees_mean, s.latency_ms_p50, s.latency_ms_p95,
+              s.latency_ms_p99);
+  if (r.spoofing) {
+    const sightfix::SpoofingScore& sc = r.spoofing->score;
+    std::printf("GNSS spoofing monitor: %zu checks, %d of %d spoofed segments flagged", r.spoofing->steps.size(),
+                sc.segments_flagged, sc.segments_true);
+    if (!sc.detection_delays_s.empty())
+      std::printf(" (median delay %.1f s)", sightfix::Percentile(sc.detection_delays_s, 0.5));
+    std::printf(", %d false alarms\n", sc.false_alarms);
+  }
+  std::printf("report: %s/report.html (summary.json, fixes.csv, route.geojson beside it)\n%s\n",
+              out.c_str(), kSafety);
+}
+
+int Replay(int argc, char** argv) {
+  std::string map_dir, server, token_file, drive, out, prior = "noisy:150", gnss_path, spoof_path;
+  int limit = 0, jobs = 2, deadline_ms = 30000;
+  uint64_t seed = 1;
+  po::options_description desc(
+      "sightfix replay: sends every query image of a drive with ground truth (drive.csv) to a\n"
+      "map (in this process) or a sightfix-server, and measures the answers with the field's\n"
+      "metrics: recall@1/5/10 within 25 m, error percentiles, pose bins (0.25 m, 2 deg) (0.5 m,\n"
+      "5 deg) (5 m, 10 deg), radius95 coverage, NEES, latency; and runs the GNSS spoofing\n"
+      "monitor over the drive's gnss.csv. Writes summary.json, fixes.csv, route.geojson and\n"
+      "report.html into --out. Ctrl-C stops early and still writes what ran, marked partial.\n\n"
+      "Usage: sightfix replay (--server HOST:PORT | --map MAPDIR) --drive QUERYDIR --out "
+      "REPORTDIR\n       [--prior none|noisy:RADIUS_M|gnss] [--gnss FILE] [--limit N] [--seed N]"
+      "\n\nOptions");
+  desc.add_options()("help,h", "show this help")("map", po::value(&map_dir), "map folder")(
+      "server", po::value(&server), "HOST:PORT of a sightfix-server instead of --map")(
+      "token-file", po::value(&token_file), "file holding the server's bearer token")(
+      "drive", po::value(&drive), "query drive folder (drive.csv with truth, images, calibration)")(
+      "out", po::value(&out), "report folder (created; files in it are replaced)")(
+      "prior", po::value(&prior),
+      "none: no prior (global); noisy:R: circle of radius R m centred uniformly within R of the "
+      "truth; gnss: circle from the drive's GNSS stream, 2.45 claimed sigmas (95 %), a query "
+      "left without a refined fix asked again without prior (default noisy:150)")(
+      "gnss", po::value(&gnss_path), "GNSS stream (default QUERYDIR/gnss.csv when present)")(
+      "spoofing", po::value(&spoof_path),
+      "true spoofed spans, to score the monitor (default QUERYDIR/spoofing.csv when present)")(
+      "limit", po::value(&limit), "first N queries only (0: all)")(
+      "seed", po::value(&seed), "seed of the noisy prior's centres (1)")(
+      "jobs", po::value(&jobs), "queries in flight (2)")(
+      "deadline-ms", po::value(&deadline_ms), "deadline of each call to the server (30000)")(
+      "json", "print summary.json on stdout instead of the text summary");
+  po::variables_map vm;
+  if (int rc = ParseFlags(argc, argv, "replay", desc, {}, &vm); rc >= 0) return rc;
+  if (map_dir.empty() == server.empty() || drive.empty() || out.empty())
+    return Fail("replay needs --map or --server, --drive and --out (see sightfix replay --help)",
+                2);
+  sightfix::RouteEvalOptions o;
+  o.drive_dir = drive;
+  o.seed = seed;
+  o.limit = limit;
+  o.jobs = std::max(1, jobs);
+  if (!ParsePriorMode(prior, &o)) return Fail("--prior must be none, noisy:RADIUS_M or gnss", 2);
+  const bool gnss_given = vm.count("gnss") > 0, spoof_given = vm.count("spoofing") > 0;
+  if (!gnss_given) gnss_path = drive + "/gnss.csv";
+  if (!spoof_given) spoof_path = drive + "/spoofing.csv";
+  o.gnss_csv = gnss_path;
+  sightfix::RouteReport report;
+  report.drive_dir = drive;
+  report.prior = prior;
+  report.seed = seed;
+  if (sightfix::Status s = LoadGnss(gnss_path, gnss_given, spoof_path, spoof_given, &report); !s.ok())
+    return Fail(s.ToString(), 2);
+  if (o.prior == sightfix::PriorMode::kGnss && report.gnss.empty())
+    return Fail("--prior gnss needs a GNSS stream: " + gnss_path + " is missing", 2);
+  auto rows = sightfix::ReadDriveManifest(drive + "/drive.csv");
+  if (!rows.ok()) return Fail(rows.status().ToString(), 2);
+  const long total = limit > 0 ? std::min<long>(limit, rows->size()) : rows->size();
+
+  std::unique_ptr<sightfix::Client> client;
+  std::unique_ptr<sightfix::Localizer> localizer;
+  sightfix::LocateFn locate;
+  if (!server.empty()) {
+    auto c = ConnectTo(server, token_file);
+    if (!c.ok()) return Fail(c.status().ToString(), 1);
+    client = std::move(c).value();
+    auto d = client->Describe(5000);
+    if (!d.ok()) return Fail(d.status().ToString(), 1);
+    report.map_version = d->map_version();
+    report.model_id = d->model_id();
+    report.source = "server " + server;
+    locate = [&client, deadline_ms](const sightfix::LocateRequest& req, const std::string& bytes) {
+      return client->Locate(sightfix::RequestToProto(bytes, req.camera, req), deadline_ms);
+    };
+  } else {
+    auto l = sightfix::Localizer::Open(map_dir, sightfix::LocalizerOptions{});
+    if (!l.ok()) return Fail(l.status().ToString(), 2);
+    localizer = std::move(l).value();
+    report.map_version = localizer->catalog().map_version;
+    report.model_id = localizer->catalog().model_id;
+    report.source = "map " + map_dir;
+    locate = sightfix::InProcess(*localizer);
+  }
+  std::signal(SIGINT, OnInterrupt);
+  o.stop = &g_stop;
+  sightfix::Progress progress("queries", total);
+  o.on_query_done = [&progress] { progress.Advance(); };
+  auto results = sightfix::RunDrive(locate, o);
+  progress.Finish();
+  std::signal(SIGINT, SIG_DFL);
+  if (!results.ok()) return Fail(results.status().ToString(), 2);
+  report.partial = g_stop.load();
+  report.results = std::move(results).value();
+  report.summary = sightfix::Summarize(report.results);
+  if (!report.gnss.empty())
+    report.spoofing = sightfix::MonitorDrive(report.results, report.gnss, report.spoof_truth,
+                                             report.monitor);
+  if (sightfix::Status s = sightfix::WriteRouteReport(report, out); !s.ok())
+    return Fail(s.ToString(), 1);
+  if (vm.count("json"))
+    std::cout << sightfix::SummaryJson(report).dump(2) << "\n";
+  else
+    PrintReplaySummary(report, out);
+  if (report.summary.failed_calls > 0)
+    std::fprintf(stderr, "sightfix: %d calls failed (see the reason column of fixes.csv)\n",
+                 report.summary.failed_calls);
+  return report.partial ? 130 : 0;
+}
+
+// summary.json of a report folder (or the file itself).
+sightfix::Result<nlohmann::json> ReadSummary(const std::string& path) {
+  const std::string file =
+      std::filesystem::is_directory(path) ? path + "/summary.json" : path;
+  std::ifstream in(file);
+  if (!in) return sightfix::Status::NotFound("cannot open " + file);
+  try {
+    return nlohmann::json::parse(in);
+  } catch (const std::exception& e) {
+    return sightfix::Status::InvalidArgument(file + ": not JSON: " + e.what());
+  }
+}
+
+int Compare(int argc, char** argv) {
+  std::string a, b;
+  po::options_description desc(
+      "sightfix compare: two replay summaries side by side with their differences (B - A), for\n"
+      "A/B tests of maps and configurations.\n\n"
+      "Usage: sightfix compare REPORTDIR_A REPORTDIR_B\n\nOptions");
+  desc.add_options()("help,h", "show this help")("a", po::value(&a), "report folder A")(
+      "b", po::value(&b), "report folder B");
+  po::positional_options_description pos;
+  pos.add("a", 1).add("b", 1);
+  po::variables_map vm;
+  if (int rc = ParseFlags(argc, argv, "compare", desc, pos, &vm); rc >= 0) return rc;
+  if (a.empty() || b.empty()) return Fail("compare needs two report folders", 2);
+  auto ja = ReadSummary(a), jb = ReadSummary(b);
+  if (!ja.ok()) return Fail(ja.status().ToString(), 2);
+  if (!jb.ok()) return Fail(jb.status().ToString(), 2);
+  std::printf("A: %s\nB: %s\n\n%s", a.c_str(), b.c_str(),
+              sightfix::CompareSummaries(*ja, *jb, "A", "B").c_str());
+  return 0;
+}
+
 void Usage() {
   std::printf(
       "sightfix: visual localization client\n\nUsage: sightfix COMMAND [options]\n\nCommands:\n"
@@ -332,6 +553,11 @@ void Usage() {
       "      the same through sightfix-server\n"
       "  describe --server HOST:PORT [--json]\n"
       "      what a server serves\n"
+      "  replay (--map MAPDIR | --server HOST:PORT) --drive QUERYDIR --out REPORTDIR [--prior "
+      "none|noisy:R|gnss]\n"
+      "      replays a query drive with truth: metrics, GNSS spoofing monitor, report.html\n"
+      "  compare REPORTDIR_A REPORTDIR_B\n"
+      "      two replay summaries side by side\n"
       "  pair IMAGE_A IMAGE_B --camera A.yml [--camera-b B.yml] [--json]\n"
       "      relative pose of two images\n\n"
       "sightfix COMMAND --help tells more.\n%s\n",
@@ -350,6 +576,8 @@ int main(int argc, char** argv) {
   if (command == "pair") return Pair(argc - 1, argv + 1);
   if (command == "locate") return Locate(argc - 1, argv + 1);
   if (command == "describe") return Describe(argc - 1, argv + 1);
+  if (command == "replay") return Replay(argc - 1, argv + 1);
+  if (command == "compare") return Compare(argc - 1, argv + 1);
   Usage();
   return Fail("unknown command '" + command + "'", 2);
 }

@@ -207,7 +207,16 @@ Status WriteDriveFiles(const PlannedDrive& d, const EnuFrame& enu, const fs::pat
                   x.claimed_sigma_h_m, x.course_deg);
     g << buf;
   }
-  return g ? Status::Ok() : Status::IoError("cannot write " + (dir / "gnss.csv").string());
+  if (!g) return Status::IoError("cannot write " + (dir / "gnss.csv").string());
+  // Ground truth of the attacks, for the evaluator (gnss_stream.h has the format).
+  std::ofstream sp(dir / "spoofing.csv");
+  sp << "start,end,rate_mps,bearing_deg\n";
+  for (const SpoofSegment& x : d.spoofing) {
+    std::snprintf(buf, sizeof(buf), "%s,%s,%.3f,%.2f\n", FormatIsoUtc(start + x.start_s).c_str(),
+                  FormatIsoUtc(start + x.start_s + x.length_s).c_str(), x.rate_mps, x.bearing_deg);
+    sp << buf;
+  }
+  return sp ? Status::Ok() : Status::IoError("cannot write " + (dir / "spoofing.csv").string());
 }
 
 nlohmann::json CameraJson(const CameraModel& c) {

@@ -83,17 +83,17 @@ Frame PoseAtTime(const Polyline& route, const std::vector<Pass>& passes, const D
 
 std::vector<SpoofSegment> PlanSpoofing(double duration_s, Rng& rng) {
   // Three attacks, one in each third of the drive, at a slow, a medium and a fast drag rate
-  // (order shuffled), each 8-14 % of the drive long.
+  // (order shuffled), each 15-25 s long (a drag that a monitor can see: 0.4 m/s for 20 s is 8 m)
+  // but at most 60 % of its third, with at least 10 % of the third clean before it.
   double rates[3] = {0.4, 1.2, 3.5};
   for (int i = 2; i > 0; --i) std::swap(rates[i], rates[rng.Int(0, i)]);
   std::vector<SpoofSegment> out;
+  const double slot = duration_s / 3.0;
   for (int k = 0; k < 3; ++k) {
     SpoofSegment s;
-    s.length_s = duration_s * rng.Uniform(0.08, 0.14);
-    const double slot0 = duration_s * k / 3.0, slot1 = duration_s * (k + 1) / 3.0;
-    s.start_s =
-        rng.Uniform(slot0 + 0.05 * duration_s,
-                    std::max(slot0 + 0.05 * duration_s, slot1 - s.length_s - 0.02 * duration_s));
+    s.length_s = std::min(rng.Uniform(15.0, 25.0), 0.6 * slot);
+    const double earliest = k * slot + 0.1 * slot, latest = (k + 1) * slot - s.length_s;
+    s.start_s = rng.Uniform(earliest, std::max(earliest, latest));
     s.rate_mps = rates[k];
     s.bearing_deg = rng.Uniform(0, 360);
     out.push_back(s);

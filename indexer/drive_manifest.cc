@@ -5,6 +5,7 @@
 #include <fstream>
 #include <sstream>
 
+#include "indexer/csv.h"
 #include "indexer/iso_time.h"
 
 namespace sightfix {
@@ -13,22 +14,6 @@ const char kDriveManifestHeader[] =
     "image,timestamp,lat,lon,height,heading_deg,pitch_deg,roll_deg,camera,sigma_h_m";
 
 namespace {
-
-std::vector<std::string> SplitCsvLine(const std::string& line) {
-  std::vector<std::string> out;
-  std::string field;
-  std::istringstream in(line);
-  while (std::getline(in, field, ',')) out.push_back(field);
-  if (!line.empty() && line.back() == ',') out.emplace_back();
-  return out;
-}
-
-bool ParseNumber(const std::string& s, double* v) {
-  if (s.empty()) return false;
-  char* end = nullptr;
-  *v = std::strtod(s.c_str(), &end);
-  return end == s.c_str() + s.size() && std::isfinite(*v);
-}
 
 Status ParseRow(const std::vector<std::string>& f, DriveRow* row) {
   if (f.size() != 10)
@@ -42,7 +27,7 @@ Status ParseRow(const std::vector<std::string>& f, DriveRow* row) {
   double* dst[] = {&row->position.lat_deg,     &row->position.lon_deg,   &row->position.height_m,
                    &row->attitude.heading_deg, &row->attitude.pitch_deg, &row->attitude.roll_deg};
   for (int i = 0; i < 6; ++i) {
-    if (!ParseNumber(f[2 + i], dst[i]))
+    if (!ParseCsvNumber(f[2 + i], dst[i]))
       return Status::InvalidArgument(std::string(names[i]) + " is not a finite number: '" +
                                      f[2 + i] + "'");
   }
@@ -52,7 +37,7 @@ Status ParseRow(const std::vector<std::string>& f, DriveRow* row) {
         "pitch_deg must be within (-90, 90), roll_deg within [-180, 180]");
   row->camera = f[8];
   if (row->camera.empty()) return Status::InvalidArgument("empty camera name");
-  if (!ParseNumber(f[9], &row->sigma_h_m) || row->sigma_h_m < 0)
+  if (!ParseCsvNumber(f[9], &row->sigma_h_m) || row->sigma_h_m < 0)
     return Status::InvalidArgument("sigma_h_m must be a non-negative number");
   return Status::Ok();
 }

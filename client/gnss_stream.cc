@@ -1,0 +1,103 @@
+#include "client/gnss_stream.h"
+
+#include <algorithm>
+#include <cmath>
+#include <fstream>
+
+#include "indexer/csv.h"
+#include "indexer/iso_time.h"
+
+namespace sightfix {
+namespace {
+
+// Reads a CSV with the exact header, handing each row's fields to parse_row (which returns a
+// Status naming what is wrong); the first failure names file and line.
+template <typename Row, typename Parse>
+Result<std::vector<Row>> ReadCsv(const std::string& path, const std::string& header,
+                                 Parse parse_row) {
+  std::ifstream in(path);
+  if (!in) return Status::NotFound("cannot open " + path);
+  std::string line;
+  std::getline(in, line);
+  if (!line.empty() && line.back() == '\r') line.pop_back();
+  if (line != header) return Status::InvalidArgument(path + ":1: header must be '" + header + "'");
+  std::vector<Row> rows;
+  for (int line_no = 2; std::getline(in, line); ++line_no) {
+    if (!line.empty() && line.back() == '\r') line.pop_back();
+    if (line.empty()) continue;
+    Row row;
+    Status s = parse_row(SplitCsvLine(line), &row, rows);
+    if (!s.ok())
+      return Status::InvalidArgument(path + ":" + std::to_string(line_no) + ": " + s.message());
+    rows.push_back(row);
+  }
+  return rows;
+}
+
+Status ParseNumbers(const std::vector<std::string>& f, size_t first,
+                    std::initializer_list<double*> out) {
+  size_t i = first;
+  for (double* v : out)
+    if (!ParseCsvNumber(f[i++], v))
+      return Status::InvalidArgument("column " + std::to_string(i) + " is not a number");
+  return Status::Ok();
+}
+
+}  // namespace
+
+Result<std::vector<GnssFix>> ReadGnssCsv(const std::string& path) {
+  auto parse = [](const std::vector<std::string>& f, GnssFix* r, const std::vector<GnssFix>& prev) {
+    if (f.size() != 6)
+      return Status::InvalidArgument("expected 6 columns, found " + std::to_string(f.size()));
+    Result<double> t = ParseIsoUtc(f[0]);
+    if (!t.ok()) return t.status();
+    r->time_s = *t;
+    Status s = ParseNumbers(f, 1, {&r->lat_deg, &r->lon_deg, &r->height_m, &r->sigma_h_m,
+                                   &r->course_deg});
+    if (!s.ok()) return s;
+    if (std::abs(r->lat_deg) > 90 || std::abs(r->lon_deg) > 180)
+      return Status::InvalidArgument("latitude or longitude out of range");
+    if (!(r->sigma_h_m > 0)) return Status::InvalidArgument("sigma_h_m must be > 0");
+    if (!prev.empty() && r->time_s <= prev.back().time_s)
+      return Status::InvalidArgument("timestamps out of order");
+    return Status::Ok();
+  };
+  return ReadCsv<GnssFix>(path, "timestamp,lat,lon,height,sigma_h_m,course_deg", parse);
+}
+
+Result<std::vector<SpoofedSpan>> ReadSpoofingCsv(const std::string& path) {
+  auto parse = [](const std::vector<std::string>& f, SpoofedSpan* r,
+                  const std::vector<SpoofedSpan>&) {
+    if (f.size() != 4)
+      return Status::InvalidArgument("expected 4 columns, found " + std::to_string(f.size()));
+    Result<double> a = ParseIsoUtc(f[0]), b = ParseIsoUtc(f[1]);
+    if (!a.ok()) return a.status();
+    if (!b.ok()) return b.status();
+    if (*b <= *a) return Status::InvalidArgument("end must come after start");
+    r->span = {*a, *b};
+    return ParseNumbers(f, 2, {&r->rate_mps, &r->bearing_deg});
+  };
+  return ReadCsv<SpoofedSpan>(path, "start,end,rate_mps,bearing_deg", parse);
+}
+
+std::optional<GnssFix> GnssAt(const std::vector<GnssFix>& stream, double t, double max_gap_s) {
+  auto it = std::lower_bound(stream.begin(), stream.end(), t,
+                             [](const GnssFix& g, double time) { return g.time_s < time; });
+  if (it == stream.end()) return std::nullopt;
+  if (it->time_s == t) return *it;
+  if (it == stream.begin()) return std::nullopt;
+  const GnssFix& a = *(it - 1);
+  const GnssFix& b = *it;
+  if (b.time_s - a.time_s > max_gap_s) return std::nullopt;
+  const double u = (t - a.time_s) / (b.time_s - a.time_s);
+  GnssFix out = a;
+  out.time_s = t;
+  out.lat_deg = a.lat_deg + u * (b.lat_deg - a.lat_deg);
+  const double dlon = std::remainder(b.lon_deg - a.lon_deg, 360.0);  // across the antimeridian too
+  out.lon_deg = std::remainder(a.lon_deg + u * dlon, 360.0);
+  out.height_m = a.height_m + u * (b.height_m - a.height_m);
+  out.sigma_h_m = a.sigma_h_m + u * (b.sigma_h_m - a.sigma_h_m);
+  return out;
+}
+
+}  // namespace sightfix
