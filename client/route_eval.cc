@@ -57,24 +57,6 @@ Result<std::vector<std::optional<PriorCircle>>> Priors(const std::vector<DriveRo
   return out;
 }
 
-void Score(QueryResult* q) {
-  const Fix& f = q->fix;
-  for (size_t i = 0; i < f.references.size() && q->first_hit_rank < 0; ++i)
-    if (GeodesicBetween(q->truth.position.lat_deg, q->truth.position.lon_deg,
-                        f.references[i].lat_deg, f.references[i].lon_deg)
-            .distance_m <= kRecallRadiusM)
-      q->first_hit_rank = static_cast<int>(i) + 1;
-  if (f.quality == FixQuality::kNone) return;
-  const GeodesicInverse g =
-      GeodesicBetween(q->truth.position.lat_deg, q->truth.position.lon_deg, f.lat_deg, f.lon_deg);
-  q->error_m = g.distance_m;
-  q->heading_error_deg = std::fabs(WrapDeg180(f.heading_deg - q->truth.attitude.heading_deg));
-  if (cv::determinant(f.covariance_en) <= 0) return;
-  const double az = g.azimuth1_deg * M_PI / 180;  // error vector east/north
-  const cv::Vec2d e(g.distance_m * std::sin(az), g.distance_m * std::cos(az));
-  q->nees = NormalizedInnovationSquared(e, f.covariance_en);
-}
-
 Result<std::string> ReadBytes(const fs::path& path) {
   std::ifstream in(path, std::ios::binary);
   if (!in) return Status::InvalidArgument("cannot read " + path.string());
@@ -114,7 +96,7 @@ void RunQuery(const LocateFn& locate, const RouteEvalOptions& o, const fs::path&
     return;
   }
   q->fix = std::move(fix).value();
-  Score(q);
+  ScoreQuery(q);
 }
 
 ErrorStats Stats(const std::vector<const QueryResult*>& fixes) {
@@ -141,6 +123,24 @@ ErrorStats Stats(const std::vector<const QueryResult*>& fixes) {
 }
 
 }  // namespace
+
+void ScoreQuery(QueryResult* q) {
+  const Fix& f = q->fix;
+  for (size_t i = 0; i < f.references.size() && q->first_hit_rank < 0; ++i)
+    if (GeodesicBetween(q->truth.position.lat_deg, q->truth.position.lon_deg,
+                        f.references[i].lat_deg, f.references[i].lon_deg)
+            .distance_m <= kRecallRadiusM)
+      q->first_hit_rank = static_cast<int>(i) + 1;
+  if (f.quality == FixQuality::kNone) return;
+  const GeodesicInverse g =
+      GeodesicBetween(q->truth.position.lat_deg, q->truth.position.lon_deg, f.lat_deg, f.lon_deg);
+  q->error_m = g.distance_m;
+  q->heading_error_deg = std::fabs(WrapDeg180(f.heading_deg - q->truth.attitude.heading_deg));
+  if (cv::determinant(f.covariance_en) <= 0) return;
+  const double az = g.azimuth1_deg * M_PI / 180;  // error vector east/north
+  const cv::Vec2d e(g.distance_m * std::sin(az), g.distance_m * std::cos(az));
+  q->nees = NormalizedInnovationSquared(e, f.covariance_en);
+}
 
 LocateFn InProcess(const Localizer& localizer) {
   return [&localizer](const LocateRequest& request, const std::string& bytes) -> Result<Fix> {

@@ -107,6 +107,8 @@ double Percentile(std::vector<double> values, double q);
 Result<std::vector<QueryResult>> RunDrive(const LocateFn& locate, const RouteEvalOptions& options);
 Result<std::vector<QueryResult>> RunDrive(const Localizer& localizer,
                                           const RouteEvalOptions& options);
+// Fills error_m, heading_error_deg, nees and first_hit_rank of q from q->truth and q->fix.
+void ScoreQuery(QueryResult* q);
 // Over the queries that ran.
 RouteSummary Summarize(const std::vector<QueryResult>& results);
 // One line: "N queries: refined X %, median ... m, p95 ... m, ...".

@@ -439,8 +439,10 @@ void Localizer::Impl::Finish(const AbsolutePose& pose, const std::vector<PointCo
   fix->lat_deg = g.lat_deg, fix->lon_deg = g.lon_deg, fix->height_m = g.height_m;
   fix->heading_deg = heading;
   fix->enu_to_camera = QuaternionFromRotation(pose.camera_from_world);
-  const cv::Matx22d h(pose.center_covariance(0, 0), pose.center_covariance(0, 1),
-                      pose.center_covariance(1, 0), pose.center_covariance(1, 1));
+  // Symmetric by construction (the solver's product may differ in the last bit; the wire
+  // carries one off-diagonal term).
+  const double en = 0.5 * (pose.center_covariance(0, 1) + pose.center_covariance(1, 0));
+  const cv::Matx22d h(pose.center_covariance(0, 0), en, en, pose.center_covariance(1, 1));
   fix->covariance_en = (h + cv::Matx22d::eye() * survey_var) * o.covariance_scale;
   fix->radius95_m = Radius95(fix->covariance_en);
   fix->pnp_inliers = pose.inliers;

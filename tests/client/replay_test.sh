@@ -1,0 +1,138 @@
+#!/usr/bin/env bash
+# sightfix replay end to end on the service tests' small demo map: in process and through
+# sightfix-server give the same summary (latency aside); compare; the gnss prior mode with the
+# spoofing monitor; Ctrl-C writes a partial report; report.html loads in headless Chromium
+# (Debian's chromium) without errors, its SVG plots are there, and its screenshot is not blank.
+# Usage: replay_test.sh BUILD_DIR SERVICE_DATA_DIR
+set -u
+build="$1" data="$2"
+cli="$build/client/sightfix"
+tmp="$(mktemp -d)"
+server_pid=""
+trap '[ -n "$server_pid" ] && kill "$server_pid" 2>/dev/null; rm -rf "$tmp"' EXIT
+passed=0 failed=0
+ok() { passed=$((passed + 1)); echo "ok   $1"; }
+bad() { failed=$((failed + 1)); echo "FAIL $1"; }
+py=/usr/bin/python3
+drive="$data/town/query-day"
+
+"$cli" replay --map "$data/map" --drive "$drive" --out "$tmp/in" --limit 16 --seed 3 \
+  >"$tmp/in.txt" 2>"$tmp/in.err" && ok "replay in process" || bad "replay in process: $(tail -3 "$tmp/in.err")"
+grep -q "report: $tmp/in/report.html" "$tmp/in.txt" && ok "replay prints the report's path" || bad "report path"
+grep -q "not a certified navigation source" "$tmp/in.txt" && ok "replay prints the safety caution" || bad "safety caution"
+for f in summary.json fixes.csv route.geojson report.html; do
+  [ -s "$tmp/in/$f" ] && ok "writes $f" || bad "writes $f"
+done
+[ "$(wc -l <"$tmp/in/fixes.csv")" -eq 17 ] && ok "fixes.csv: header + 16 rows" || bad "fixes.csv rows"
+
+"$build/server/sightfix-server" --map "$data/map" --listen 127.0.0.1:0 --http "" --workers 2 \
+  2>"$tmp/server.log" &
+server_pid=$!
+port=""
+for _ in $(seq 1 100); do
+  port="$(grep -o '"port": *[0-9]*' "$tmp/server.log" | head -1 | grep -o '[0-9]*$')"
+  [ -n "$port" ] && break
+  sleep 0.1
+done
+"$cli" replay --server "127.0.0.1:$port" --drive "$drive" --out "$tmp/srv" --limit 16 --seed 3 \
+  >/dev/null 2>"$tmp/srv.err" && ok "replay through the server" || bad "replay through the server: $(tail -3 "$tmp/srv.err")"
+kill -TERM "$server_pid"; wait "$server_pid"; server_pid=""
+
+# Same summary both ways, except latency and the source's name.
+"$py" - "$tmp/in/summary.json" "$tmp/srv/summary.json" <<'PY' && ok "in process and server summaries agree" || bad "summaries differ"
+import json, sys
+a, b = (json.load(open(p)) for p in sys.argv[1:3])
+skip = {"latency_ms_p50", "latency_ms_p95", "latency_ms_p99", "source"}
+diff = [k for k in set(a) | set(b) if k not in skip and a.get(k) != b.get(k)]
+if diff:
+    print("differing keys:", diff)
+    sys.exit(1)
+assert a["queries"] == 16 and a["fixes"] > 0, a
+PY
+"$cli" compare "$tmp/in" "$tmp/srv" >"$tmp/cmp.txt" 2>&1 && grep -q "availability" "$tmp/cmp.txt" \
+  && ok "compare prints both summaries" || bad "compare: $(head -3 "$tmp/cmp.txt")"
+"$cli" compare "$tmp/in" "$tmp/none" >/dev/null 2>&1; [ $? -eq 2 ] && ok "compare: missing report is exit 2" || bad "compare missing"
+
+# The gnss prior mode: priors from gnss.csv, the monitor scored against spoofing.csv.
+"$cli" replay --map "$data/map" --drive "$drive" --out "$tmp/gnss" --prior gnss --json \
+  >"$tmp/gnss.json" 2>/dev/null && ok "replay --prior gnss" || bad "replay --prior gnss"
+"$py" - "$tmp/gnss.json" "$tmp/gnss/fixes.csv" <<'PY' && ok "gnss mode: monitor ran, priors from the stream" || bad "gnss mode summary"
+import csv, json, sys
+j = json.load(open(sys.argv[1]))
+s = j["spoofing"]
+assert s["segments_true"] >= 1 and s["observations"] > 0, s
+rows = list(csv.DictReader(open(sys.argv[2])))
+radii = {r["prior_radius_m"] for r in rows}
+assert radii == {"3.67"}, radii  # 2.4477 x the claimed 1.50 m
+PY
+"$cli" replay --map "$data/map" --drive "$drive" --out "$tmp/x" --prior noisy:abc >/dev/null 2>&1
+[ $? -eq 2 ] && ok "bad --prior is exit 2" || bad "bad --prior"
+
+# Ctrl-C: the replay stops taking queries, writes what ran, marked partial, exits 130.
+"$cli" replay --map "$data/map" --drive "$drive" --out "$tmp/part" --jobs 1 >/dev/null 2>"$tmp/part.err" &
+replay_pid=$!
+for _ in $(seq 1 200); do grep -q "queries: [1-9]" "$tmp/part.err" && break; sleep 0.05; done
+kill -INT "$replay_pid"; wait "$replay_pid"; rc=$?
+"$py" - "$tmp/part/summary.json" "$data/town/query-day/drive.csv" <<PY && [ $rc -eq 130 ] && ok "Ctrl-C writes a partial report (exit $rc)" || bad "Ctrl-C partial (exit $rc)"
+import json, sys
+j = json.load(open(sys.argv[1]))
+total = sum(1 for _ in open(sys.argv[2])) - 1
+assert j["partial"] is True and 0 < j["queries"] < total, (j["partial"], j["queries"], total)
+PY
+
+# report.html: self-contained (no src= or href= at all), loads in headless Chromium without
+# errors, six SVG plots, a screenshot that is not blank.
+report="$tmp/in/report.html"
+! grep -Eq '(src|href)=' "$report" && ok "report.html loads nothing from outside" || bad "external references"
+browser="$(command -v chromium || command -v chromium-browser || true)"
+if [ -z "$browser" ]; then
+  bad "chromium not installed (scripts/deps.sh installs it)"
+else
+  flags=(--headless --no-sandbox --disable-gpu --hide-scrollbars --user-data-dir="$tmp/profile")
+  timeout 60 "$browser" "${flags[@]}" --enable-logging=stderr --v=0 --dump-dom "file://$report" \
+    >"$tmp/dom.html" 2>"$tmp/chromium.err"
+  grep -q 'data-check="ok 6 plots"' "$tmp/dom.html" && ok "page script ran: 6 plots, no error" \
+    || bad "page check: $(grep -o 'data-check="[^"]*"' "$tmp/dom.html")"
+  ! grep -q "Uncaught" "$tmp/chromium.err" && ok "no uncaught errors in the console" || bad "console errors"
+  timeout 60 "$browser" "${flags[@]}" --window-size=1100,3400 --screenshot="$tmp/shot.png" \
+    "file://$report" >/dev/null 2>&1
+  "$py" - "$tmp/shot.png" <<'PY' && ok "screenshot is not blank" || bad "screenshot blank or missing"
+import struct, sys, zlib
+data = open(sys.argv[1], "rb").read()
+assert data[:8] == b"\x89PNG\r\n\x1a\n"
+pos, idat, w, h, ctype = 8, b"", 0, 0, 0
+while pos < len(data):
+    n, kind = struct.unpack(">I4s", data[pos:pos + 8])
+    body = data[pos + 8:pos + 8 + n]
+    if kind == b"IHDR":
+        w, h, depth, ctype = struct.unpack(">IIBB", body[:10])
+    elif kind == b"IDAT":
+        idat += body
+    pos += 12 + n
+bpp = {2: 3, 6: 4}[ctype]
+raw, stride = zlib.decompress(idat), w * bpp
+prev, colours, dark = bytearray(stride), set(), 0
+for y in range(h):  # PNG scanline filters (PNG spec, ISO/IEC 15948, section 9)
+    f, line = raw[y * (stride + 1)], bytearray(raw[y * (stride + 1) + 1:(y + 1) * (stride + 1)])
+    for i in range(stride):
+        a = line[i - bpp] if i >= bpp else 0
+        b, c = prev[i], prev[i - bpp] if i >= bpp else 0
+        if f == 1: line[i] = (line[i] + a) & 255
+        elif f == 2: line[i] = (line[i] + b) & 255
+        elif f == 3: line[i] = (line[i] + (a + b) // 2) & 255
+        elif f == 4:
+            p = a + b - c; pa, pb, pc = abs(p - a), abs(p - b), abs(p - c)
+            line[i] = (line[i] + (a if pa <= pb and pa <= pc else b if pb <= pc else c)) & 255
+    if y % 4 == 0:
+        for x in range(0, w, 4):
+            px = bytes(line[x * bpp:x * bpp + 3])
+            colours.add(px)
+            dark += sum(px) < 300
+    prev = line
+print(f"screenshot {w}x{h}: {len(colours)} colours, {dark} dark samples")
+assert len(colours) >= 50 and dark >= 500
+PY
+fi
+
+echo "$passed passed, $failed failed"
+[ "$failed" -eq 0 ]

@@ -1,0 +1,157 @@
+// The evaluator's metrics (client/route_eval.h) against a hand-worked example, and summary.json
+// against the key list of DESIGN.md 7. Every expected value below is worked out by hand in the
+// comments from the table of six queries.
+#include <gtest/gtest.h>
+
+#include "client/route_eval.h"
+#include "client/route_report.h"
+#include "indexer/geo.h"
+
+namespace sightfix {
+namespace {
+
+constexpr double kLat = 44.0, kLon = -40.0, kHeading = 90.0;
+
+// A query whose fix lies (east, north) metres from the truth, heading off by dh degrees, with a
+// diagonal covariance, radius95, references at the given distances north of the truth, latency.
+QueryResult Query(FixQuality quality, double east, double north, double dh, double var_e,
+                  double var_n, double radius95, std::vector<double> ref_distances,
+                  double latency_ms) {
+  QueryResult q;
+  q.ran = true;
+  q.truth.position = {kLat, kLon, 0};
+  q.truth.attitude.heading_deg = kHeading;
+  q.latency_ms = latency_ms;
+  Fix& f = q.fix;
+  f.quality = quality;
+  if (quality != FixQuality::kNone) {
+    const GeodesicDirect p = GeodesicFrom(kLat, kLon, std::atan2(east, north) * 180 / M_PI,
+                                          std::hypot(east, north));
+    f.lat_deg = p.lat_deg, f.lon_deg = p.lon_deg;
+    f.heading_deg = kHeading + dh;
+    f.covariance_en = cv::Matx22d(var_e, 0, 0, var_n);
+    f.radius95_m = radius95;
+  }
+  for (double d : ref_distances) {
+    ReferenceUse u;
+    const GeodesicDirect p = GeodesicFrom(kLat, kLon, 0, d);
+    u.lat_deg = p.lat_deg, u.lon_deg = p.lon_deg;
+    f.references.push_back(u);
+  }
+  ScoreQuery(&q);
+  return q;
+}
+
+std::vector<QueryResult> HandTable() {
+  using Q = FixQuality;
+  return {
+      // 1: refined, 0.1 m east, 1 deg; NEES 0.1^2/0.01 = 1; 0.1 <= 0.3 covered; hit at rank 1.
+      Query(Q::kRefined, 0.1, 0, 1, 0.01, 0.01, 0.3, {10}, 100),
+      // 2: refined, 0.4 m north, 3 deg; NEES 0.16/0.16 = 1; covered (0.5); first hit rank 2.
+      Query(Q::kRefined, 0, 0.4, 3, 0.04, 0.16, 0.5, {40, 5}, 200),
+      // 3: refined, 3 m west, 8 deg; NEES 9/1 = 9; not covered (2.5); first hit rank 7.
+      Query(Q::kRefined, -3, 0, 8, 1, 1, 2.5, {40, 40, 40, 40, 40, 40, 20}, 300),
+      // 4: coarse, 20 m north, 30 deg; NEES 400/400 = 1; covered (50); no hit within 25 m.
+      Query(Q::kCoarse, 0, 20, 30, 400, 400, 50, {60}, 400),
+      // 5: no fix; no candidates.
+      Query(Q::kNone, 0, 0, 0, 0, 0, 0, {}, 500),
+      // 6: refined but 8 m east (wrong), 0 deg; NEES 64/1 = 64; not covered (2.4); hit rank 1.
+      Query(Q::kRefined, 8, 0, 0, 1, 1, 2.4, {3}, 600),
+  };
+}
+
+TEST(RouteMetricsTest, HandWorkedExample) {
+  std::vector<QueryResult> table = HandTable();
+  QueryResult not_run;  // a query an interrupted replay never started: not counted
+  table.push_back(not_run);
+  const RouteSummary s = Summarize(table);
+  EXPECT_EQ(s.queries, 6);
+  EXPECT_EQ(s.fixes, 5);
+  EXPECT_EQ(s.refined, 4);
+  EXPECT_EQ(s.coarse, 1);
+  EXPECT_EQ(s.none, 1);
+  EXPECT_DOUBLE_EQ(s.availability, 5.0 / 6);
+  // Recall@N within 25 m (Arandjelovic et al. 2016): first hits at ranks 1, 2, 7, -, -, 1.
+  EXPECT_DOUBLE_EQ(s.recall_at_1, 2.0 / 6);
+  EXPECT_DOUBLE_EQ(s.recall_at_5, 3.0 / 6);
+  EXPECT_DOUBLE_EQ(s.recall_at_10, 4.0 / 6);
+  // All fixes' errors sorted: 0.1, 0.4, 3, 8, 20. Nearest rank: median = ceil(2.5) = 3rd = 3;
+  // p90 = ceil(4.5) = 5th = 20; p95 = 5th = 20; max 20.
+  EXPECT_NEAR(s.all.median_m, 3, 1e-6);
+  EXPECT_NEAR(s.all.p90_m, 20, 1e-6);
+  EXPECT_NEAR(s.all.p95_m, 20, 1e-6);
+  EXPECT_NEAR(s.all.max_m, 20, 1e-6);
+  // Refined errors sorted: 0.1, 0.4, 3, 8: median = 2nd = 0.4; p90 = ceil(3.6) = 4th = 8.
+  EXPECT_NEAR(s.median_error_m, 0.4, 1e-6);
+  EXPECT_NEAR(s.p90_error_m, 8, 1e-6);
+  EXPECT_NEAR(s.p95_error_m, 8, 1e-6);
+  EXPECT_EQ(s.wrong_refined, 1);
+  // Heading errors of all fixes sorted 0, 1, 3, 8, 30: median 3; refined 0, 1, 3, 8: median 1.
+  EXPECT_NEAR(s.all.median_heading_deg, 3, 1e-9);
+  EXPECT_NEAR(s.median_heading_error_deg, 1, 1e-9);
+  // Pose bins over all six queries (Sattler et al. 2018): (0.25 m, 2 deg) query 1; (0.5 m,
+  // 5 deg) queries 1, 2; (5 m, 10 deg) queries 1, 2, 3.
+  EXPECT_DOUBLE_EQ(s.within_0_25m_2deg, 1.0 / 6);
+  EXPECT_DOUBLE_EQ(s.within_0_5m_5deg, 2.0 / 6);
+  EXPECT_DOUBLE_EQ(s.within_5m_10deg, 3.0 / 6);
+  // Coverage: fixes 1, 2, 4 covered of 5; refined 1, 2 of 4.
+  EXPECT_DOUBLE_EQ(s.all.radius95_coverage, 3.0 / 5);
+  EXPECT_DOUBLE_EQ(s.radius95_coverage, 2.0 / 4);
+  // NEES: all fixes (1 + 1 + 9 + 1 + 64) / 5 = 15.2; refined (1 + 1 + 9 + 64) / 4 = 18.75.
+  EXPECT_NEAR(s.all.nees_mean, 15.2, 1e-6);
+  EXPECT_NEAR(s.nees_mean, 18.75, 1e-6);
+  // Latency 100..600 ms: p50 = 3rd = 300; p95 = ceil(5.7) = 6th = 600; p99 = 600.
+  EXPECT_DOUBLE_EQ(s.latency_ms_p50, 300);
+  EXPECT_DOUBLE_EQ(s.latency_ms_p95, 600);
+  EXPECT_DOUBLE_EQ(s.latency_ms_p99, 600);
+}
+
+TEST(RouteMetricsTest, PercentileIsNearestRank) {
+  // Nearest-rank definition (common practice): the ceil(q n)-th smallest.
+  EXPECT_DOUBLE_EQ(Percentile({15, 20, 35, 40, 50}, 0.3), 20);
+  EXPECT_DOUBLE_EQ(Percentile({15, 20, 35, 40, 50}, 0.4), 20);
+  EXPECT_DOUBLE_EQ(Percentile({15, 20, 35, 40, 50}, 0.5), 35);
+  EXPECT_DOUBLE_EQ(Percentile({15, 20, 35, 40, 50}, 1.0), 50);
+  EXPECT_DOUBLE_EQ(Percentile({}, 0.5), 0);
+}
+
+TEST(RouteMetricsTest, SummaryJsonHasEveryKeyWithSharesInRange) {
+  RouteReport r;
+  r.results = HandTable();
+  r.summary = Summarize(r.results);
+  r.map_version = 3;
+  const nlohmann::json j = SummaryJson(r);
+  for (const char* key :
+       {"queries", "fixes", "availability", "recall_at_1_25m", "recall_at_5_25m",
+        "recall_at_10_25m", "median_error_m", "p90_error_m", "p95_error_m", "max_error_m",
+        "wrong_refined", "median_heading_error_deg", "within_0_25m_2deg", "within_0_5m_5deg",
+        "within_5m_10deg", "radius95_coverage", "nees_mean", "latency_ms_p50", "latency_ms_p95",
+        "latency_ms_p99", "spoofing", "map_version", "partial"})
+    EXPECT_TRUE(j.contains(key)) << key;
+  for (const char* key : {"segments_true", "segments_flagged", "detection_delay_s", "false_alarms"})
+    EXPECT_TRUE(j["spoofing"].contains(key)) << key;
+  for (const char* share : {"availability", "recall_at_1_25m", "recall_at_5_25m",
+                            "recall_at_10_25m", "within_0_25m_2deg", "within_0_5m_5deg",
+                            "within_5m_10deg", "radius95_coverage"}) {
+    EXPECT_GE(j[share].get<double>(), 0) << share;
+    EXPECT_LE(j[share].get<double>(), 1) << share;
+  }
+  EXPECT_EQ(j["queries"], 6);
+  EXPECT_EQ(j["fixes"], 5);
+  EXPECT_NEAR(j["median_error_m"].get<double>(), 3, 1e-6);
+  EXPECT_EQ(j["map_version"], 3);
+  EXPECT_EQ(j["partial"], false);
+}
+
+TEST(RouteMetricsTest, CompareShowsDeltas) {
+  const nlohmann::json a = {{"availability", 0.5}, {"spoofing", {{"false_alarms", 1}}}};
+  const nlohmann::json b = {{"availability", 0.75}, {"spoofing", {{"false_alarms", 0}}}};
+  const std::string t = CompareSummaries(a, b, "A", "B");
+  EXPECT_NE(t.find("availability"), std::string::npos);
+  EXPECT_NE(t.find("+0.2500"), std::string::npos) << t;
+  EXPECT_NE(t.find("spoofing.false_alarms"), std::string::npos) << t;
+  EXPECT_NE(t.find("-1.0000"), std::string::npos) << t;
+}
+
+}  // namespace
+}  // namespace sightfix
