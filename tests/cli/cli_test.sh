@@ -36,6 +36,11 @@ check "pair needs a camera" 2 "needs IMAGE_A IMAGE_B and --camera" -- "$cli" pai
 check "pair missing calibration" 2 "cannot open calibration file" -- "$cli" pair a.jpg b.jpg --camera "$tmp/none.yml"
 printf '%%YAML:1.0\n---\nimage_width: 64\nimage_height: 48\ncamera_matrix: !!opencv-matrix\n   rows: 3\n   cols: 3\n   dt: d\n   data: [ 50., 0., 32., 0., 50., 24., 0., 0., 1. ]\n' > "$tmp/cam.yml"
 check "pair undecodable image" 2 "cannot read or decode image" -- "$cli" pair "$tmp/cam.yml" "$tmp/cam.yml" --camera "$tmp/cam.yml"
+check "replay --help names the prior modes" 0 "noisy:R" -- "$cli" replay --help
+check "replay --help names the safety caution" 0 "not a certified navigation source" -- "$cli" replay --help
+check "replay needs a source" 2 "replay needs --map or --server" -- "$cli" replay --drive "$tmp" --out "$tmp/r"
+check "replay missing drive" 2 "cannot open drive manifest" -- "$cli" replay --map "$tmp" --drive "$tmp/none" --out "$tmp/r"
+check "compare needs two folders" 2 "compare needs two report folders" -- "$cli" compare "$tmp"
 
 indexer="$build/indexer/sightfix-indexer"
 check "indexer --help" 0 "build --drive DIR --map MAPDIR" -- "$indexer" --help
