@@ -264,7 +264,7 @@ std::string RouteMap(const RouteReport& r, const std::vector<const QueryResult*>
     const cv::Vec2d f = frame.At(q.fix.lat_deg, q.fix.lon_deg);
     if (q.error_m > 1) plot.Line({truth[i][0], f[0]}, {truth[i][1], f[1]}, ColourOf(q), 1.0);
     plot.Dot(truth[i][0], truth[i][1], 3.5, ColourOf(q), tip);
-    if (r.spoofing && Spoofed(r, q.truth.timestamp_s)) plot.Ring(truth[i][0], truth[i][1], 6, "#7b3294");
+    if (r.spoofing && Spoofed(r, q.truth.timestamp_s)) plot.Ring(truth[i][0], truth[i][1], 6, "#b08ac4");
   }
   return plot.Render();
 }
@@ -277,7 +277,8 @@ std::string ErrorCdf(const RouteSummary& s, const std::vector<const QueryResult*
   const double hi = std::max(10.0, e.empty() ? 10.0 : e.back() * 1.5);
   SvgPlot plot("cdf", "Error CDF (share of all queries)", {1e-3, hi, true, "horizontal error (m)"},
                {0, 1, false, "share of queries"});
-  for (double m : {0.25, 0.5, 1.0, 5.0}) plot.VerticalMark(m, Fmt("%g m", m), "#7a7a7a");
+  const double marks[] = {0.25, 0.5, 1.0, 5.0};
+  for (int i = 0; i < 4; ++i) plot.VerticalMark(marks[i], Fmt("%g m", marks[i]), "#7a7a7a", i % 2);
   std::vector<double> xs{1e-3}, ys{0};
   for (size_t i = 0; i < e.size(); ++i) {
     xs.push_back(e[i]), ys.push_back(double(i) / s.queries);
@@ -343,7 +344,7 @@ std::string LatencyHistogram(const RouteSummary& s, const std::vector<const Quer
   for (int b = 0; b < bins; ++b)
     if (count[b]) plot.Bar(hi * b / bins, hi * (b + 1) / bins, count[b], "#4f7cac");
   plot.VerticalMark(s.latency_ms_p50, "p50", "#333");
-  plot.VerticalMark(s.latency_ms_p95, "p95", "#b3202e");
+  plot.VerticalMark(s.latency_ms_p95, "p95", "#b3202e", 1);
   return plot.Render();
 }
 

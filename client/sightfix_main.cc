@@ -72,6 +72,14 @@ int ParseFlags(int argc, char** argv, const std::string& command,
   return -1;
 }
 
+// The flags that choose what answers: a map in this process or a server (and its token).
+void AddSourceOptions(po::options_description* desc, std::string* map_dir, std::string* server,
+                      std::string* token_file) {
+  desc->add_options()("map", po::value(map_dir), "map folder")(
+      "server", po::value(server), "HOST:PORT of a sightfix-server instead of --map")(
+      "token-file", po::value(token_file), "file holding the server's bearer token");
+}
+
 int Pair(int argc, char** argv) {
   std::string image_a, image_b, camera_a, camera_b;
   po::options_description desc(
@@ -249,10 +257,9 @@ int Locate(int argc, char** argv) {
       "essential-matrix verification, PnP on the map's 3D points, a 95 % confidence radius.\n\n"
       "Usage: sightfix locate (--map MAPDIR | --server HOST:PORT) --image FILE --camera "
       "CAMERA.yml [--prior LAT,LON,RADIUS_M] [--json]\n\nOptions");
-  desc.add_options()("help,h", "show this help")("map", po::value(&map_dir), "map folder")(
-      "server", po::value(&server), "HOST:PORT of a sightfix-server instead of --map")(
-      "token-file", po::value(&token_file), "file holding the server's bearer token")(
-      "deadline-ms", po::value(&deadline_ms), "deadline of the call to the server (10000)")(
+  desc.add_options()("help,h", "show this help");
+  AddSourceOptions(&desc, &map_dir, &server, &token_file);
+  desc.add_options()("deadline-ms", po::value(&deadline_ms), "deadline of the call to the server (10000)")(
       "image", po::value(&image_path), "query image (JPEG or PNG)")(
       "camera", po::value(&camera_path), "its calibration (OpenCV FileStorage YAML)")(
       "prior", po::value(&prior_text), "coarse prior circle LAT,LON,RADIUS_M (WGS84 degrees, m)")(
@@ -416,10 +423,9 @@ int Replay(int argc, char** argv) {
       "Usage: sightfix replay (--server HOST:PORT | --map MAPDIR) --drive QUERYDIR --out "
       "REPORTDIR\n       [--prior none|noisy:RADIUS_M|gnss] [--gnss FILE] [--limit N] [--seed N]"
       "\n\nOptions");
-  desc.add_options()("help,h", "show this help")("map", po::value(&map_dir), "map folder")(
-      "server", po::value(&server), "HOST:PORT of a sightfix-server instead of --map")(
-      "token-file", po::value(&token_file), "file holding the server's bearer token")(
-      "drive", po::value(&drive), "query drive folder (drive.csv with truth, images, calibration)")(
+  desc.add_options()("help,h", "show this help");
+  AddSourceOptions(&desc, &map_dir, &server, &token_file);
+  desc.add_options()("drive", po::value(&drive), "query drive folder (drive.csv with truth, images, calibration)")(
       "out", po::value(&out), "report folder (created; files in it are replaced)")(
       "prior", po::value(&prior),
       "none: no prior (global); noisy:R: circle of radius R m centred uniformly within R of the "

@@ -116,12 +116,13 @@ void SvgPlot::Bar(double x0, double x1, double y, const std::string& fill) {
                    "\" fill=\"" + fill + "\"/>");
 }
 
-void SvgPlot::VerticalMark(double x, const std::string& label, const std::string& colour) {
+void SvgPlot::VerticalMark(double x, const std::string& label, const std::string& colour,
+                           int row) {
   const double px = X(x);
   marks_.push_back("<line x1=\"" + Num(px) + "\" x2=\"" + Num(px) + "\" y1=\"" + Num(kTop) +
                    "\" y2=\"" + Num(h_ - kBottom) + "\" stroke=\"" + colour +
                    "\" stroke-dasharray=\"4 3\"/><text x=\"" + Num(px + 3) + "\" y=\"" +
-                   Num(kTop + 12) + "\" fill=\"" + colour + "\" font-size=\"11\">" +
+                   Num(kTop + 12 + 12 * row) + "\" fill=\"" + colour + "\" font-size=\"11\">" +
                    EscapeXml(label) + "</text>");
 }
 

@@ -28,7 +28,8 @@ class SvgPlot {
   void Ring(double x, double y, double r, const std::string& stroke);
   void Band(double x0, double x1, const std::string& fill);  // a vertical band over the y range
   void Bar(double x0, double x1, double y, const std::string& fill);
-  void VerticalMark(double x, const std::string& label, const std::string& colour);
+  // row: label line from the top (0, 1, ...), so close marks do not print over each other.
+  void VerticalMark(double x, const std::string& label, const std::string& colour, int row = 0);
   void HorizontalMark(double y, const std::string& label, const std::string& colour);
   void Legend(const std::vector<std::pair<std::string, std::string>>& colour_and_label);
   std::string Render() const;
