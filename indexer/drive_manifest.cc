@@ -60,7 +60,8 @@ Status WriteDriveManifest(const std::string& path, const std::vector<DriveRow>& 
   return out ? Status::Ok() : Status::IoError("write failed for " + path);
 }
 
-Result<std::vector<DriveRow>> ReadDriveManifest(const std::string& path) {
+Result<std::vector<DriveRow>> ReadDriveManifest(const std::string& path,
+                                                std::vector<std::string>* bad_rows) {
   std::ifstream in(path);
   if (!in) return Status::NotFound("cannot open drive manifest " + path);
   std::string line;
@@ -75,8 +76,14 @@ Result<std::vector<DriveRow>> ReadDriveManifest(const std::string& path) {
     if (line.empty()) continue;
     DriveRow row;
     Status s = ParseRow(SplitCsvLine(line), &row);
-    if (!s.ok())
-      return Status::InvalidArgument(path + ":" + std::to_string(line_no) + ": " + s.message());
+    if (s.ok() && !rows.empty() && row.timestamp_s < rows.back().timestamp_s)
+      s = Status::InvalidArgument("timestamp out of order (before the row above)");
+    if (!s.ok()) {
+      const std::string what = path + ":" + std::to_string(line_no) + ": " + s.message();
+      if (!bad_rows) return Status::InvalidArgument(what);
+      bad_rows->push_back(what);
+      continue;
+    }
     rows.push_back(std::move(row));
   }
   return rows;

@@ -30,8 +30,10 @@ struct DriveRow {
 
 // Writes the header and every row (9 decimals for degrees, 4 for metres).
 Status WriteDriveManifest(const std::string& path, const std::vector<DriveRow>& rows);
-// Reads and checks every row (column count, numbers, ranges, time format). The first bad row
-// fails the whole read with "<path>:<line>: <what>".
-Result<std::vector<DriveRow>> ReadDriveManifest(const std::string& path);
+// Reads and checks every row (column count, numbers, ranges, time format, times increasing).
+// The first bad row fails the whole read with "<path>:<line>: <what>"; with bad_rows set, bad
+// rows are left out and their messages appended there instead.
+Result<std::vector<DriveRow>> ReadDriveManifest(const std::string& path,
+                                                std::vector<std::string>* bad_rows = nullptr);
 
 }  // namespace sightfix

@@ -9,6 +9,7 @@
 #include <chrono>
 #include <cmath>
 #include <filesystem>
+#include <fstream>
 #include <map>
 #include <nlohmann/json.hpp>
 #include <opencv2/imgcodecs.hpp>
@@ -39,54 +40,104 @@ void Say(const BuildOptions& o, const std::string& line) {
 
 struct Survey {
   std::vector<DriveRow> rows;
-  std::vector<CameraModel> cameras;  // distinct calibrations
+  std::vector<double> attitude_sigma_deg;  // per row; 0 = the structure's default
+  std::vector<CameraModel> cameras;        // distinct calibrations
   std::vector<int> camera_of_row;
   std::vector<LocalFeatures> features;
 };
 
-Status LoadCameras(const BuildOptions& o, Survey* s) {
-  std::map<std::string, int> by_name;
-  const std::string manifest = (fs::path(o.drive_dir) / "drive.csv").string();
+// Where a row came from, for messages.
+std::string RowName(const BuildOptions& o, const Survey& s, size_t i) {
+  return (fs::path(o.drive_dir) / s.rows[i].image).string();
+}
+
+// Keeps the rows whose status is OK (all of them unless skip_bad); the first bad one fails the
+// build otherwise. Bad rows are listed in *skipped.
+Status DropBadRows(const BuildOptions& o, const std::vector<Status>& status, Survey* s,
+                   std::vector<std::string>* skipped) {
+  Survey kept;
   for (size_t i = 0; i < s->rows.size(); ++i) {
-    const std::string& name = s->rows[i].camera;
-    auto it = by_name.find(name);
-    if (it == by_name.end()) {
-      Result<CameraModel> cam = LoadCameraModel((fs::path(o.drive_dir) / name).string());
-      if (!cam.ok())
-        return Status(cam.status().code(),
-                      manifest + ":" + std::to_string(i + 2) + ": " + cam.status().message());
-      it = by_name.emplace(name, static_cast<int>(s->cameras.size())).first;
-      s->cameras.push_back(*cam);
+    if (!status[i].ok()) {
+      if (!o.skip_bad) return status[i];
+      skipped->push_back(status[i].message());
+      continue;
     }
-    s->camera_of_row.push_back(it->second);
+    kept.rows.push_back(s->rows[i]);
+    kept.attitude_sigma_deg.push_back(s->attitude_sigma_deg[i]);
+    if (!s->camera_of_row.empty()) kept.camera_of_row.push_back(s->camera_of_row[i]);
+    if (!s->features.empty()) kept.features.push_back(std::move(s->features[i]));
   }
+  kept.cameras = std::move(s->cameras);
+  *s = std::move(kept);
   return Status::Ok();
 }
 
-Status ExtractAll(const BuildOptions& o, Survey* s) {
-  const std::string manifest = (fs::path(o.drive_dir) / "drive.csv").string();
+Status LoadCameras(const BuildOptions& o, Survey* s, std::vector<std::string>* skipped) {
+  std::map<std::string, int> by_name;
+  std::map<std::string, Status> failed;
+  std::vector<Status> status(s->rows.size());
+  for (size_t i = 0; i < s->rows.size(); ++i) {
+    const std::string& name = s->rows[i].camera;
+    auto it = by_name.find(name);
+    if (it == by_name.end() && !failed.count(name)) {
+      Result<CameraModel> cam = LoadCameraModel((fs::path(o.drive_dir) / name).string());
+      if (cam.ok()) {
+        it = by_name.emplace(name, static_cast<int>(s->cameras.size())).first;
+        s->cameras.push_back(*cam);
+      } else {
+        failed.emplace(name, cam.status());
+      }
+    }
+    if (it == by_name.end()) {
+      status[i] = Status(failed.at(name).code(), RowName(o, *s, i) + ": " + failed.at(name).message());
+      s->camera_of_row.push_back(-1);
+    } else {
+      s->camera_of_row.push_back(it->second);
+    }
+  }
+  return DropBadRows(o, status, s, skipped);
+}
+
+std::string ReadFileBytes(const std::string& path) {
+  std::ifstream in(path, std::ios::binary);
+  return in ? std::string((std::istreambuf_iterator<char>(in)), {}) : std::string();
+}
+
+Status ExtractAll(const BuildOptions& o, Survey* s, std::vector<std::string>* skipped) {
   s->features.resize(s->rows.size());
   std::vector<Status> status(s->rows.size());
+  std::vector<std::string> digest(s->rows.size());
   std::unique_ptr<Progress> progress;
   if (o.progress) progress = std::make_unique<Progress>("survey images", s->rows.size());
   ParallelFor(static_cast<int>(s->rows.size()), ThreadCount(o.jobs), [&](int i) {
-    const std::string path = (fs::path(o.drive_dir) / s->rows[i].image).string();
-    const std::string where = manifest + ":" + std::to_string(i + 2) + ": ";
-    const cv::Mat img = cv::imread(path, cv::IMREAD_GRAYSCALE);
+    const std::string path = RowName(o, *s, i);
+    const std::string bytes = ReadFileBytes(path);
+    const cv::Mat img =
+        bytes.empty() ? cv::Mat()
+                      : cv::imdecode(cv::Mat(1, static_cast<int>(bytes.size()), CV_8U,
+                                             const_cast<char*>(bytes.data())),
+                                     cv::IMREAD_GRAYSCALE);
     if (img.empty()) {
-      status[i] = Status::InvalidArgument(where + "cannot read or decode image " + path);
+      status[i] = Status::InvalidArgument(path + ": cannot read or decode the image");
     } else {
+      digest[i] = Sha256Hex(bytes.data(), bytes.size());
       Result<LocalFeatures> f = ExtractFeatures(img, &s->cameras[s->camera_of_row[i]], o.features);
       if (f.ok())
         s->features[i] = std::move(f).value();
       else
-        status[i] = Status::InvalidArgument(where + s->rows[i].image + ": " + f.status().message());
+        status[i] = Status::InvalidArgument(path + ": " + f.status().message());
     }
     if (progress) progress->Advance();
   });
-  for (const Status& st : status)
-    if (!st.ok()) return st;  // the first bad row, in file order
-  return Status::Ok();
+  std::map<std::string, size_t> first_of;  // the same bytes twice: the later row is bad
+  for (size_t i = 0; i < s->rows.size(); ++i) {
+    if (!status[i].ok()) continue;
+    auto [it, fresh] = first_of.emplace(digest[i], i);
+    if (!fresh)
+      status[i] = Status::InvalidArgument(RowName(o, *s, i) + ": the same image as " +
+                                          RowName(o, *s, it->second));
+  }
+  return DropBadRows(o, status, s, skipped);
 }
 
 Result<GlobalDescriptor> TrainModel(const BuildOptions& o, const Survey& s, int* vectors) {
@@ -122,6 +173,7 @@ std::vector<SurveyView> Views(const Survey& s, const EnuFrame& enu) {
     v.center_enu = enu.ToEnu(s.rows[i].position);
     v.sigma_h_m = s.rows[i].sigma_h_m;
     v.focal_px = 0.5 * (s.cameras[s.camera_of_row[i]].fx + s.cameras[s.camera_of_row[i]].fy);
+    v.attitude_sigma_deg = s.attitude_sigma_deg[i];
     v.features = &s.features[i];
     views.push_back(v);
   }
@@ -263,6 +315,19 @@ Status Publish(const BuildOptions& o, const Built& b, Catalog& catalog, BuildSum
   return WriteCatalog((fs::path(o.map_dir) / "catalog.sqlite").string(), catalog);
 }
 
+Result<SurveyRows> ReadSurvey(const BuildOptions& o) {
+  SurveySourceOptions so;
+  so.dir = o.drive_dir;
+  so.format = o.format;
+  so.gpx = o.gpx;
+  so.camera = o.camera;
+  so.max_gap_s = o.max_gap_s;
+  so.skip_bad = o.skip_bad;
+  std::unique_ptr<Geoid> geoid;
+  if (Result<std::unique_ptr<Geoid>> g = Geoid::OpenEgm96(); g.ok()) geoid = std::move(g).value();
+  return LoadSurveyRows(so, geoid.get());
+}
+
 Result<int> NextMapVersion(const BuildOptions& o) {
   const std::string path = (fs::path(o.map_dir) / "catalog.sqlite").string();
   if (!fs::exists(path)) return 1;
@@ -281,6 +346,7 @@ bool BuildOptions::Validate(std::string* error) const {
     return false;
   };
   if (drive_dir.empty()) return fail("drive_dir is required");
+  if (!(max_gap_s > 0)) return fail("max_gap_s must be > 0");
   if (map_dir.empty()) return fail("map_dir is required");
   if (zoom < 10 || zoom > 22) return fail("zoom must be within [10, 22]");
   if (jobs < 0) return fail("jobs must be >= 0");
@@ -301,23 +367,25 @@ Result<BuildSummary> BuildMap(const BuildOptions& o) {
   const auto t_start = Clock::now();
   Result<int> version = NextMapVersion(o);
   if (!version.ok()) return version.status();
-  Survey s;
-  Result<std::vector<DriveRow>> rows =
-      ReadDriveManifest((fs::path(o.drive_dir) / "drive.csv").string());
-  if (!rows.ok()) return rows.status();
-  s.rows = std::move(rows).value();
-  if (static_cast<int>(s.rows.size()) <= o.descriptor.pq_subquantizers)
-    return Status::InvalidArgument(
-        "a map needs more than " + std::to_string(o.descriptor.pq_subquantizers) +
-        " survey images, the drive has " + std::to_string(s.rows.size()));
-  if (Status st = LoadCameras(o, &s); !st.ok()) return st;
   BuildSummary summary;
-  summary.images = static_cast<int>(s.rows.size());
+  Survey s;
+  Result<SurveyRows> rows = ReadSurvey(o);
+  if (!rows.ok()) return rows.status();
+  summary.input_format = SurveyFormatName(rows->format);
+  summary.skipped = rows->problems;
+  s.rows = std::move(rows->rows);
+  s.attitude_sigma_deg = std::move(rows->attitude_sigma_deg);
+  if (Status st = LoadCameras(o, &s, &summary.skipped); !st.ok()) return st;
   summary.map_version = *version;
 
   auto t0 = Clock::now();
-  if (Status st = ExtractAll(o, &s); !st.ok()) return st;
+  if (Status st = ExtractAll(o, &s, &summary.skipped); !st.ok()) return st;
   summary.feature_s = SecondsSince(t0);
+  summary.images = static_cast<int>(s.rows.size());
+  if (static_cast<int>(s.rows.size()) <= o.descriptor.pq_subquantizers)
+    return Status::InvalidArgument(
+        "a map needs more than " + std::to_string(o.descriptor.pq_subquantizers) +
+        " survey images, the survey has " + std::to_string(s.rows.size()) + " usable");
 
   t0 = Clock::now();
   Say(o, "training the global descriptor model");

@@ -1,8 +1,11 @@
 // Builds a map from one survey drive: `sightfix-indexer build`.
 //
-// 1. Ingest: drive.csv read and checked row by row (ReadDriveManifest), every calibration loaded,
-//    every image decoded and checked against its calibration's size. The first bad row stops the
-//    build before anything is written, with "<file>:<line>: <what>".
+// 1. Ingest: the survey in any form survey_source.h reads (drive.csv, rig + INS log, EXIF-tagged
+//    JPEGs, JPEGs + GPX track), every row checked: coordinates, times in order, calibration
+//    loaded, image read, decoded and checked against its calibration's size, no image twice
+//    (SHA-256 of its bytes). The first bad row stops the build before anything is written, with
+//    "<file>:<line>: <what>" or the image's path; with skip_bad the bad rows are left out and
+//    counted in the summary.
 // 2. Local features (RootSIFT, keypoints undistorted), `jobs` images at a time.
 // 3. Global descriptor model (global_descriptor.h) trained on the survey, with crop views when the
 //    survey alone is under min_pq_training vectors; every image encoded.
@@ -15,17 +18,24 @@
 #pragma once
 
 #include <string>
+#include <vector>
 
 #include "indexer/global_descriptor.h"
 #include "indexer/local_features.h"
 #include "indexer/status.h"
 #include "indexer/structure.h"
+#include "indexer/survey_source.h"
 #include "indexer/tile_key.h"
 
 namespace sightfix {
 
 struct BuildOptions {
-  std::string drive_dir;  // holds drive.csv and the calibrations it names
+  std::string drive_dir;  // the survey folder (drive.csv, rig.yml, or JPEGs; survey_source.h)
+  SurveyFormat format = SurveyFormat::kAuto;
+  std::string gpx;                    // gpx input: the track (default: the one .gpx in drive_dir)
+  std::string camera = "camera.yml";  // exif and gpx input: the calibration of every image
+  double max_gap_s = 2.0;             // gpx and rig input: widest gap to interpolate across
+  bool skip_bad = false;              // leave bad rows out (counted) instead of stopping
   std::string map_dir;
   int zoom = kDefaultTileZoom;
   int jobs = 0;                 // worker threads; 0 = all cores
@@ -44,6 +54,8 @@ struct BuildOptions {
 
 struct BuildSummary {
   int images = 0, tiles = 0, points = 0, map_version = 0;
+  std::string input_format;
+  std::vector<std::string> skipped;  // skip_bad: each bad row left out, with why
   std::string model_id, codec;
   int training_vectors = 0;  // real images plus crop views
   double seconds = 0, images_per_s = 0;

@@ -1,4 +1,5 @@
-// sightfix-indexer: turns survey drives into a map. So far: `build`.
+// sightfix-indexer: turns surveys into a map (`build`) and shows what a map holds (`inspect`),
+// whether it is whole (`verify`) and where it covers (`coverage`).
 #include <boost/program_options.hpp>
 #include <cstdio>
 #include <iostream>
@@ -7,6 +8,8 @@
 #include <string>
 
 #include "indexer/map_builder.h"
+#include "indexer/map_inspect.h"
+#include <fstream>
 
 namespace po = boost::program_options;
 
@@ -20,6 +23,9 @@ int Fail(const std::string& message, int code = 1) {
 nlohmann::json SummaryJson(const sightfix::BuildSummary& s) {
   const sightfix::StructureSummary& st = s.structure;
   return {{"images", s.images},
+          {"input_format", s.input_format},
+          {"skipped", s.skipped.size()},
+          {"skipped_rows", s.skipped},
           {"tiles", s.tiles},
           {"points", s.points},
           {"map_version", s.map_version},
@@ -51,12 +57,24 @@ nlohmann::json SummaryJson(const sightfix::BuildSummary& s) {
 int Build(int argc, char** argv) {
   sightfix::BuildOptions o;
   po::options_description desc(
-      "sightfix-indexer build: a map from one survey drive (drive.csv with geotagged images and\n"
-      "their calibration). RootSIFT features, VLAD+PCA+PQ global codes, triangulated 3D points\n"
-      "refined by bundle adjustment, one SQLite file per WebMercatorQuad tile and a catalog.\n\n"
+      "sightfix-indexer build: a map from one survey: drive.csv with geotagged images, a rig\n"
+      "(rig.yml + INS log + per-camera image lists), JPEGs with EXIF GPS tags, or JPEGs with a\n"
+      "GPX track. RootSIFT features, VLAD+PCA+PQ global codes, triangulated 3D points refined\n"
+      "by bundle adjustment, one SQLite file per WebMercatorQuad tile and a catalog. A bad row\n"
+      "stops the build before anything is written, unless --skip-bad.\n\n"
       "Usage: sightfix-indexer build --drive DIR --map MAPDIR [options]\n\nOptions");
+  std::string format = "auto";
   desc.add_options()("help,h", "show this help")("drive", po::value(&o.drive_dir),
-                                                 "survey folder holding drive.csv")(
+                                                 "survey folder")(
+      "format", po::value(&format)->default_value("auto"),
+      "survey form: drive (drive.csv), rig (rig.yml), exif (tagged JPEGs), gpx (JPEGs + a .gpx "
+      "track), auto (in that order of what DIR holds)")(
+      "gpx", po::value(&o.gpx), "gpx form: the track (default: the one .gpx file in DIR)")(
+      "camera", po::value(&o.camera)->default_value("camera.yml"),
+      "exif and gpx forms: calibration of every image, in DIR (OpenCV FileStorage YAML)")(
+      "max-gap-s", po::value(&o.max_gap_s)->default_value(2.0),
+      "gpx and rig forms: widest gap between track or INS points to interpolate across")(
+      "skip-bad", "leave bad rows out (each listed, counted) instead of stopping")(
       "map", po::value(&o.map_dir), "map folder to write (catalog.sqlite, tiles/)")(
       "jobs", po::value(&o.jobs)->default_value(0), "worker threads (0 = all cores)")(
       "zoom", po::value(&o.zoom)->default_value(sightfix::kDefaultTileZoom),
@@ -78,6 +96,9 @@ int Build(int argc, char** argv) {
   if (o.drive_dir.empty() || o.map_dir.empty())
     return Fail("build needs --drive DIR and --map MAPDIR (see sightfix-indexer build --help)", 2);
   o.overwrite = vm.count("overwrite") > 0;
+  o.skip_bad = vm.count("skip-bad") > 0;
+  if (!sightfix::ParseSurveyFormat(format, &o.format))
+    return Fail("--format must be auto, drive, rig, exif or gpx", 2);
   o.progress = vm.count("quiet") == 0;
   std::string error;
   if (!o.Validate(&error)) return Fail(error, 2);
@@ -88,10 +109,13 @@ int Build(int argc, char** argv) {
                        s.status().code() == sightfix::StatusCode::kFailedPrecondition;
     return Fail(s.status().ToString() + "\nnothing was written", input ? 2 : 1);
   }
+  for (const std::string& why : s->skipped) std::fprintf(stderr, "skipped: %s\n", why.c_str());
   if (vm.count("json")) {
     std::cout << SummaryJson(*s).dump(2) << "\n";
     return 0;
   }
+  if (!s->skipped.empty())
+    std::printf("%zu bad rows skipped (listed above on stderr)\n", s->skipped.size());
   std::printf(
       "map %s version %d: %d images in %d tiles, %d 3D points, model %s (%s, %d training "
       "vectors)\n"
@@ -106,11 +130,126 @@ int Build(int argc, char** argv) {
   return 0;
 }
 
+// Parses flags for the read-only commands (one map folder). -1: go on; else the exit code.
+int ParseMapFlags(int argc, char** argv, const char* command, po::options_description& desc,
+                  po::variables_map* vm) {
+  try {
+    po::store(po::command_line_parser(argc, argv).options(desc).run(), *vm);
+    po::notify(*vm);
+  } catch (const std::exception& e) {
+    return Fail(std::string(e.what()) + " (see sightfix-indexer " + command + " --help)", 2);
+  }
+  if (vm->count("help")) {
+    std::cout << desc << "\n";
+    return 0;
+  }
+  return -1;
+}
+
+int Inspect(int argc, char** argv) {
+  std::string map_dir;
+  po::options_description desc(
+      "sightfix-indexer inspect: what a map holds: tiles, images, points, drives, model id and\n"
+      "parameters, bytes per image by part, coverage extent, date range.\n\n"
+      "Usage: sightfix-indexer inspect --map MAPDIR [--json]\n\nOptions");
+  desc.add_options()("help,h", "show this help")("map", po::value(&map_dir), "map folder")(
+      "json", "print JSON on stdout");
+  po::variables_map vm;
+  if (int rc = ParseMapFlags(argc, argv, "inspect", desc, &vm); rc >= 0) return rc;
+  if (map_dir.empty()) return Fail("inspect needs --map MAPDIR", 2);
+  auto j = sightfix::InspectMap(map_dir);
+  if (!j.ok()) return Fail(j.status().ToString(), 2);
+  if (vm.count("json")) {
+    std::cout << j->dump(2) << "\n";
+    return 0;
+  }
+  const auto& b = (*j)["bytes_per_image"];
+  std::printf("map %s, version %d (format %d, zoom %d, created %s)\n", map_dir.c_str(),
+              (*j)["map_version"].get<int>(), (*j)["format_version"].get<int>(),
+              (*j)["zoom"].get<int>(), (*j)["created"].get<std::string>().c_str());
+  std::printf("%d tiles, %d images, %d points; model %s: %s\n", (*j)["tiles"].get<int>(),
+              (*j)["images"].get<int>(), (*j)["points"].get<int>(),
+              (*j)["model_id"].get<std::string>().c_str(), (*j)["model"].dump().c_str());
+  std::printf("drives: %s\n", (*j)["drives"].dump().c_str());
+  std::printf("bytes per image: global code %.0f, local features %.0f, points %.0f (tile files %.0f)\n",
+              b["global_code"].get<double>(), b["local_features"].get<double>(),
+              b["points"].get<double>(), b["tile_files"].get<double>());
+  if (j->contains("extent"))
+    std::printf("extent: lat %.6f..%.6f, lon %.6f..%.6f; images dated %s .. %s\n",
+                (*j)["extent"]["south"].get<double>(), (*j)["extent"]["north"].get<double>(),
+                (*j)["extent"]["west"].get<double>(), (*j)["extent"]["east"].get<double>(),
+                (*j)["dates"]["first"].get<std::string>().c_str(),
+                (*j)["dates"]["last"].get<std::string>().c_str());
+  return 0;
+}
+
+int Verify(int argc, char** argv) {
+  std::string map_dir;
+  po::options_description desc(
+      "sightfix-indexer verify: checks a map: catalog, every tile's checksum and schema, counts,\n"
+      "retrieval indexes, model ids, the map-wide index. Names every bad tile; exit 0 only when\n"
+      "the map is whole, 1 when not.\n\n"
+      "Usage: sightfix-indexer verify --map MAPDIR [--json]\n\nOptions");
+  desc.add_options()("help,h", "show this help")("map", po::value(&map_dir), "map folder")(
+      "json", "print JSON on stdout");
+  po::variables_map vm;
+  if (int rc = ParseMapFlags(argc, argv, "verify", desc, &vm); rc >= 0) return rc;
+  if (map_dir.empty()) return Fail("verify needs --map MAPDIR", 2);
+  const sightfix::VerifyReport r = sightfix::VerifyMap(map_dir);
+  if (vm.count("json")) {
+    nlohmann::json problems = nlohmann::json::array();
+    for (const auto& p : r.problems)
+      problems.push_back({{"tile", p.tile}, {"file", p.file}, {"problem", p.what}});
+    std::cout << nlohmann::json{{"whole", r.whole()},
+                                {"tiles", r.tiles},
+                                {"tiles_ok", r.tiles_ok},
+                                {"images", r.images},
+                                {"problems", problems}}
+                     .dump(2)
+              << "\n";
+  } else {
+    for (const auto& p : r.problems)
+      std::printf("BAD %s (%s): %s\n", p.tile.c_str(), p.file.c_str(), p.what.c_str());
+    std::printf("%s: %d of %d tiles whole, %d images%s\n", map_dir.c_str(), r.tiles_ok, r.tiles,
+                r.images, r.whole() ? "; the map is whole" : "; the map is NOT whole");
+  }
+  return r.whole() ? 0 : 1;
+}
+
+int Coverage(int argc, char** argv) {
+  std::string map_dir, out;
+  po::options_description desc(
+      "sightfix-indexer coverage: where a map covers, as RFC 7946 GeoJSON: tile polygons with\n"
+      "image and point counts and point density, survey tracks.\n\n"
+      "Usage: sightfix-indexer coverage --map MAPDIR --out FILE.geojson [--json]\n\nOptions");
+  desc.add_options()("help,h", "show this help")("map", po::value(&map_dir), "map folder")(
+      "out", po::value(&out), "GeoJSON file to write")("json", "print a JSON summary on stdout");
+  po::variables_map vm;
+  if (int rc = ParseMapFlags(argc, argv, "coverage", desc, &vm); rc >= 0) return rc;
+  if (map_dir.empty() || out.empty()) return Fail("coverage needs --map MAPDIR and --out FILE", 2);
+  auto j = sightfix::CoverageGeoJson(map_dir);
+  if (!j.ok()) return Fail(j.status().ToString(), 2);
+  std::ofstream f(out);
+  f << j->dump() << "\n";
+  if (!f.flush()) return Fail("cannot write " + out, 1);
+  int tiles = 0, tracks = 0;
+  for (const auto& feature : (*j)["features"])
+    (feature["properties"]["kind"] == "tile" ? tiles : tracks)++;
+  if (vm.count("json"))
+    std::cout << nlohmann::json{{"out", out}, {"tiles", tiles}, {"tracks", tracks}}.dump(2) << "\n";
+  else
+    std::printf("%s: %d tile polygons, %d survey tracks\n", out.c_str(), tiles, tracks);
+  return 0;
+}
+
 void Usage() {
   std::printf(
       "sightfix-indexer: builds sightfix maps from survey drives\n\n"
       "Usage: sightfix-indexer COMMAND [options]\n\nCommands:\n"
-      "  build --drive DIR --map MAPDIR   a new map from one survey drive\n\n"
+      "  build --drive DIR --map MAPDIR      a new map from one survey (drive.csv, rig, EXIF, GPX)\n"
+      "  inspect --map MAPDIR [--json]       what a map holds\n"
+      "  verify --map MAPDIR [--json]        checks a map; names every bad tile\n"
+      "  coverage --map MAPDIR --out F.geojson   tile polygons and survey tracks\n\n"
       "sightfix-indexer COMMAND --help tells more.\n");
 }
 
@@ -124,6 +263,9 @@ int main(int argc, char** argv) {
   }
   const std::string command = argv[1];
   if (command == "build") return Build(argc - 1, argv + 1);
+  if (command == "inspect") return Inspect(argc - 1, argv + 1);
+  if (command == "verify") return Verify(argc - 1, argv + 1);
+  if (command == "coverage") return Coverage(argc - 1, argv + 1);
   Usage();
   return Fail("unknown command '" + command + "'", 2);
 }

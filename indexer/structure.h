@@ -52,6 +52,9 @@ struct SurveyView {
   cv::Vec3d center_enu;
   double sigma_h_m = 0;   // 1-sigma per axis of the centre; 0 = exact, held fixed
   double focal_px = 500;  // for pixel-scaled thresholds
+  // 1-sigma of the attitude prior; 0 = StructureOptions::attitude_sigma_deg. Larger for inputs
+  // that carry no pitch and roll (EXIF, GPX).
+  double attitude_sigma_deg = 0;
   const LocalFeatures* features = nullptr;
 };
 
