@@ -239,7 +239,9 @@ AdjustResult Adjust(const std::vector<SurveyView>& views, const StructureOptions
   so.linear_solver_type = ceres::SPARSE_SCHUR;
   so.sparse_linear_algebra_library_type = ceres::EIGEN_SPARSE;
   so.max_num_iterations = o.ba_max_iterations;
-  so.num_threads = ThreadCount(o.jobs);
+  // One thread: Ceres sums the Schur complement in thread order, so more threads change the
+  // last bits of the result, and tiles must be byte-identical whatever --jobs is (DESIGN.md 4.6).
+  so.num_threads = 1;
   so.logging_type = ceres::SILENT;
   ceres::Solver::Summary summary;
   ceres::Solve(so, &problem, &summary);
