@@ -84,6 +84,7 @@ SpoofingScore ScoreAlarms(const std::vector<MonitorStep>& steps,
     const double a = std::max(segments[i].start_s, observed.start_s);
     const double b = std::min(segments[i].end_s + grace_s, observed.end_s);
     spoiled_s += std::max(0.0, b - a);
+    score.segment_delay_s.push_back(first_alarm[i] < 0 ? -1 : first_alarm[i] - segments[i].start_s);
     if (first_alarm[i] < 0) continue;
     ++score.segments_flagged;
     score.detection_delays_s.push_back(first_alarm[i] - segments[i].start_s);

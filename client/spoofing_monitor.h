@@ -96,6 +96,7 @@ struct SpoofingScore {
   int segments_true = 0;
   int segments_flagged = 0;              // an alarm raised in [start, end + grace) or already on
   std::vector<double> detection_delays_s;  // per flagged segment: first alarm - start (>= 0)
+  std::vector<double> segment_delay_s;     // per segment in start order: delay, or -1 missed
   int false_alarms = 0;                  // alarms raised outside every [start, end + grace)
   double clean_hours = 0;                // observed time outside every [start, end + grace)
 };

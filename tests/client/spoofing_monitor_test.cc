@@ -89,6 +89,10 @@ TEST(SpoofingMonitorTest, ScoreAlarmsCountsSegmentsDelaysAndFalseAlarms) {
   EXPECT_DOUBLE_EQ(s.detection_delays_s[0], 2.0);
   EXPECT_DOUBLE_EQ(s.detection_delays_s[1], 0.0);
   EXPECT_EQ(s.false_alarms, 2);  // at 100 s and at 190 s
+  ASSERT_EQ(s.segment_delay_s.size(), 3u);  // in start order: [10, 40), [200, 230), [300, 330)
+  EXPECT_DOUBLE_EQ(s.segment_delay_s[0], 2.0);
+  EXPECT_DOUBLE_EQ(s.segment_delay_s[1], 0.0);
+  EXPECT_DOUBLE_EQ(s.segment_delay_s[2], -1.0);
   EXPECT_NEAR(s.clean_hours, (3600 - 3 * 35) / 3600.0, 1e-12);
 }
 
