@@ -15,7 +15,9 @@
 #include "demo_route/drive_plan.h"
 #include "demo_route/town_renderer.h"
 #include "indexer/drive_manifest.h"
+#include "indexer/exif_gps.h"
 #include "indexer/geo.h"
+#include "indexer/geoid.h"
 #include "indexer/iso_time.h"
 #include "indexer/progress.h"
 
@@ -217,6 +219,53 @@ Status WriteDriveFiles(const PlannedDrive& d, const EnuFrame& enu, const fs::pat
     sp << buf;
   }
   return sp ? Status::Ok() : Status::IoError("cannot write " + (dir / "spoofing.csv").string());
+}
+
+
+// The survey as EXIF-tagged JPEGs (photos = true) or as JPEGs with times plus a GPX track.
+Status ExportPhotoSurvey(const PlannedDrive& d, const Town& town, const EnuFrame& enu,
+                         const fs::path& out, bool photos) {
+  Result<std::unique_ptr<Geoid>> geoid = Geoid::OpenEgm96();
+  if (!geoid.ok()) return geoid.status();
+  const fs::path dir = out / (photos ? "survey-exif" : "survey-gpx");
+  fs::remove_all(dir);
+  fs::create_directories(dir / "images");
+  fs::copy_file(out / d.condition.name / "camera.yml", dir / "camera.yml");
+  const double start = kSurveyStartUnix + d.condition.start_offset_s;
+  for (size_t k = 0; k < d.reported.size(); ++k) {
+    char name[32];
+    std::snprintf(name, sizeof(name), "images/%06zu.jpg", k);
+    fs::copy_file(out / d.condition.name / name, dir / name);
+    const Frame& f = d.reported[k];
+    const GeoPoint p = enu.ToGeo(f.position);
+    ExifGps g;
+    g.time_s = start + f.time_s;
+    g.has_position = photos;
+    if (photos) {
+      g.lat_deg = p.lat_deg, g.lon_deg = p.lon_deg;
+      g.altitude_msl_m = (*geoid)->MslFromEllipsoidal(p.lat_deg, p.lon_deg, p.height_m);
+      g.img_direction_deg = std::fmod(f.attitude.heading_deg + 360.0, 360.0);
+      g.h_error_m = 0.02;  // the survey's INS accuracy (drive.csv's sigma_h_m)
+    }
+    if (Status s = WriteExifGps((dir / name).string(), g); !s.ok()) return s;
+  }
+  if (photos) return Status::Ok();
+  std::ofstream gpx(dir / "track.gpx");
+  gpx << "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n<gpx version=\"1.1\" "
+         "creator=\"sightfix-demo-route\" xmlns=\"http://www.topografix.com/GPX/1/1\">\n"
+         "<trk><name>survey</name><trkseg>\n";
+  const double duration = DriveDuration(d.passes, d.plan);
+  char buf[256];
+  for (int i = 0; i * 0.1 <= duration + 0.1; ++i) {
+    const double t = std::min(i * 0.1, duration);
+    const GeoPoint p = enu.ToGeo(PoseAtTime(town.route, d.passes, d.plan, t).position);
+    std::snprintf(buf, sizeof(buf), "<trkpt lat=\"%.9f\" lon=\"%.9f\"><ele>%.3f</ele><time>%s</time></trkpt>\n",
+                  p.lat_deg, p.lon_deg, (*geoid)->MslFromEllipsoidal(p.lat_deg, p.lon_deg, p.height_m),
+                  FormatIsoUtc(start + t).c_str());
+    gpx << buf;
+  }
+  gpx << "</trkseg></trk></gpx>\n";
+  return gpx ? Status::Ok() : Status::IoError("cannot write " + (dir / "track.gpx").string());
 }
 
 nlohmann::json CameraJson(const CameraModel& c) {
@@ -426,6 +475,9 @@ Result<DemoSummary> GenerateDemoTown(const DemoOptions& o) {
     if (!s.ok()) return s;
     summary.drives.push_back({d.condition.name, static_cast<int>(d.truth.size())});
   }
+  for (bool photos : {true, false})
+    if (photos ? o.export_exif : o.export_gpx)
+      if (Status s = ExportPhotoSurvey(drives[0], town, enu, out, photos); !s.ok()) return s;
   std::ofstream(out / "town.json") << TownJson(o, town, drives).dump(2) << "\n";
   WriteContactSheet(out, drives);
   summary.buildings = static_cast<int>(town.buildings.size());

@@ -20,6 +20,10 @@ struct DemoOptions {
   double query_spacing_m = 5.0;
   int supersample = 2;
   int jobs = 0;  // render threads; 0 = all cores
+  // Also write the survey as a mapping team might have it: survey-exif/ (JPEGs with EXIF GPS
+  // tags: position, altitude above sea level, direction, accuracy, time) and survey-gpx/ (JPEGs
+  // with EXIF times only, plus track.gpx: the survey's path at 10 Hz).
+  bool export_exif = false, export_gpx = false;
 
   // Names the bad field in *error.
   bool Validate(std::string* error) const;

@@ -10,6 +10,7 @@ namespace po = boost::program_options;
 
 int main(int argc, char** argv) {
   sightfix::demo::DemoOptions o;
+  std::string exports;
   std::string size = "640x480";
   po::options_description desc(
       "sightfix-demo-route: generate the demo town (an invented place), its survey drive and three "
@@ -31,7 +32,9 @@ int main(int argc, char** argv) {
       "supersample", po::value(&o.supersample)->default_value(o.supersample),
       "anti-aliasing factor 1..4")("jobs", po::value(&o.jobs)->default_value(0),
                                    "render threads (0 = all cores); output does not depend on it")(
-      "json", "print the summary as JSON on stdout");
+      "export", po::value(&exports),
+      "also write the survey as survey-exif/ (EXIF-tagged JPEGs) and/or survey-gpx/ (JPEGs + "
+      "track.gpx): exif, gpx or exif,gpx")("json", "print the summary as JSON on stdout");
   po::variables_map vm;
   try {
     po::store(po::parse_command_line(argc, argv, desc), vm);
@@ -48,6 +51,19 @@ int main(int argc, char** argv) {
     std::fprintf(stderr, "sightfix-demo-route: --image-size must look like 640x480, got '%s'\n",
                  size.c_str());
     return 2;
+  }
+  for (std::string item; !exports.empty();) {
+    const size_t comma = exports.find(',');
+    item = exports.substr(0, comma);
+    exports = comma == std::string::npos ? "" : exports.substr(comma + 1);
+    if (item == "exif")
+      o.export_exif = true;
+    else if (item == "gpx")
+      o.export_gpx = true;
+    else {
+      std::fprintf(stderr, "sightfix-demo-route: --export takes exif, gpx or exif,gpx\n");
+      return 2;
+    }
   }
   std::string error;
   if (!o.Validate(&error)) {

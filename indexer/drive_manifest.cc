@@ -61,7 +61,8 @@ Status WriteDriveManifest(const std::string& path, const std::vector<DriveRow>& 
 }
 
 Result<std::vector<DriveRow>> ReadDriveManifest(const std::string& path,
-                                                std::vector<std::string>* bad_rows) {
+                                                std::vector<std::string>* bad_rows,
+                                                std::vector<int>* line_numbers) {
   std::ifstream in(path);
   if (!in) return Status::NotFound("cannot open drive manifest " + path);
   std::string line;
@@ -85,6 +86,7 @@ Result<std::vector<DriveRow>> ReadDriveManifest(const std::string& path,
       continue;
     }
     rows.push_back(std::move(row));
+    if (line_numbers) line_numbers->push_back(line_no);
   }
   return rows;
 }

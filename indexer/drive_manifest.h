@@ -33,7 +33,9 @@ Status WriteDriveManifest(const std::string& path, const std::vector<DriveRow>& 
 // Reads and checks every row (column count, numbers, ranges, time format, times increasing).
 // The first bad row fails the whole read with "<path>:<line>: <what>"; with bad_rows set, bad
 // rows are left out and their messages appended there instead.
+// line_numbers, when set, gets each returned row's line in the file (1 = the header).
 Result<std::vector<DriveRow>> ReadDriveManifest(const std::string& path,
-                                                std::vector<std::string>* bad_rows = nullptr);
+                                                std::vector<std::string>* bad_rows = nullptr,
+                                                std::vector<int>* line_numbers = nullptr);
 
 }  // namespace sightfix

@@ -84,7 +84,7 @@ Exiv2::URationalValue One(double v, uint32_t denominator) {
 
 }  // namespace
 
-Result<ExifGps> ReadExifGps(const std::string& path) {
+Result<ExifGps> ReadExifGps(const std::string& path, bool require_position) {
   try {
     auto image = Exiv2::ImageFactory::open(path);
     image->readMetadata();
@@ -93,14 +93,18 @@ Result<ExifGps> ReadExifGps(const std::string& path) {
     ExifGps g;
     const auto lat = Coordinate(exif, "Exif.GPSInfo.GPSLatitude", "Exif.GPSInfo.GPSLatitudeRef", 'S');
     const auto lon = Coordinate(exif, "Exif.GPSInfo.GPSLongitude", "Exif.GPSInfo.GPSLongitudeRef", 'W');
-    if (!lat || !lon) return Status::InvalidArgument(path + ": EXIF block without a GPS position");
-    if (std::fabs(*lat) > 90 || std::fabs(*lon) > 180)
-      return Status::InvalidArgument(path + ": GPS position out of range");
-    g.lat_deg = *lat, g.lon_deg = *lon;
-    const auto alt = Rational(exif, "Exif.GPSInfo.GPSAltitude");
-    if (!alt) return Status::InvalidArgument(path + ": EXIF block without GPSAltitude");
-    auto ref = exif.findKey(Exiv2::ExifKey("Exif.GPSInfo.GPSAltitudeRef"));
-    g.altitude_msl_m = (ref != exif.end() && ref->toLong() == 1) ? -*alt : *alt;
+    g.has_position = lat && lon;
+    if (!g.has_position && require_position)
+      return Status::InvalidArgument(path + ": EXIF block without a GPS position");
+    if (g.has_position) {
+      if (std::fabs(*lat) > 90 || std::fabs(*lon) > 180)
+        return Status::InvalidArgument(path + ": GPS position out of range");
+      g.lat_deg = *lat, g.lon_deg = *lon;
+      const auto alt = Rational(exif, "Exif.GPSInfo.GPSAltitude");
+      if (!alt) return Status::InvalidArgument(path + ": EXIF block without GPSAltitude");
+      auto ref = exif.findKey(Exiv2::ExifKey("Exif.GPSInfo.GPSAltitudeRef"));
+      g.altitude_msl_m = (ref != exif.end() && ref->toLong() == 1) ? -*alt : *alt;
+    }
     if (const auto dir = Rational(exif, "Exif.GPSInfo.GPSImgDirection")) {
       const std::string dref = Text(exif, "Exif.GPSInfo.GPSImgDirectionRef");
       if (!dref.empty() && dref[0] == 'M')
@@ -125,12 +129,14 @@ Status WriteExifGps(const std::string& path, const ExifGps& g) {
     image->readMetadata();
     Exiv2::ExifData& exif = image->exifData();
     exif["Exif.GPSInfo.GPSVersionID"] = "2 3 0 0";
-    exif["Exif.GPSInfo.GPSLatitudeRef"] = g.lat_deg < 0 ? "S" : "N";
-    exif["Exif.GPSInfo.GPSLatitude"] = Dms(g.lat_deg);
-    exif["Exif.GPSInfo.GPSLongitudeRef"] = g.lon_deg < 0 ? "W" : "E";
-    exif["Exif.GPSInfo.GPSLongitude"] = Dms(g.lon_deg);
-    exif["Exif.GPSInfo.GPSAltitudeRef"] = std::string(g.altitude_msl_m < 0 ? "1" : "0");
-    exif["Exif.GPSInfo.GPSAltitude"] = One(g.altitude_msl_m, 1000);
+    if (g.has_position) {
+      exif["Exif.GPSInfo.GPSLatitudeRef"] = g.lat_deg < 0 ? "S" : "N";
+      exif["Exif.GPSInfo.GPSLatitude"] = Dms(g.lat_deg);
+      exif["Exif.GPSInfo.GPSLongitudeRef"] = g.lon_deg < 0 ? "W" : "E";
+      exif["Exif.GPSInfo.GPSLongitude"] = Dms(g.lon_deg);
+      exif["Exif.GPSInfo.GPSAltitudeRef"] = std::string(g.altitude_msl_m < 0 ? "1" : "0");
+      exif["Exif.GPSInfo.GPSAltitude"] = One(g.altitude_msl_m, 1000);
+    }
     if (g.img_direction_deg) {
       exif["Exif.GPSInfo.GPSImgDirectionRef"] = "T";
       exif["Exif.GPSInfo.GPSImgDirection"] = One(*g.img_direction_deg, 10000);

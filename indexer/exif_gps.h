@@ -18,6 +18,7 @@
 namespace sightfix {
 
 struct ExifGps {
+  bool has_position = true;  // false only when read with require_position = false
   double lat_deg = 0, lon_deg = 0;
   double altitude_msl_m = 0;               // above mean sea level
   std::optional<double> img_direction_deg;  // true north, clockwise
@@ -25,11 +26,12 @@ struct ExifGps {
   double time_s = 0;                        // Unix seconds, UTC
 };
 
-// kNotFound: cannot open; kInvalidArgument: no EXIF block, EXIF without GPS position, a tag out
-// of range, no usable time; each message names the file.
-Result<ExifGps> ReadExifGps(const std::string& path);
+// kNotFound: cannot open; kInvalidArgument: no EXIF block, EXIF without GPS position (when
+// require_position), a tag out of range, no usable time; each message names the file.
+Result<ExifGps> ReadExifGps(const std::string& path, bool require_position = true);
 // Adds or replaces those tags in the JPEG at path (time as DateTimeOriginal with milliseconds
-// in SubSecTimeOriginal, offset +00:00, and the GPS date/time stamps).
+// in SubSecTimeOriginal, offset +00:00, and the GPS date/time stamps). Without has_position,
+// only the time (and the direction when set) is written.
 Status WriteExifGps(const std::string& path, const ExifGps& gps);
 
 }  // namespace sightfix

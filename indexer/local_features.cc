@@ -4,7 +4,6 @@
 #include <opencv2/imgproc.hpp>
 
 namespace sightfix {
-namespace {
 
 void ToRootSift(cv::Mat& d) {
   for (int i = 0; i < d.rows; ++i) {
@@ -14,8 +13,6 @@ void ToRootSift(cv::Mat& d) {
     cv::sqrt(row, row);
   }
 }
-
-}  // namespace
 
 bool FeatureOptions::Validate(std::string* error) const {
   if (!(min_contrast_std >= 0) || !(max_gain >= 1)) {

@@ -42,6 +42,9 @@ struct LocalFeatures {
 // REQUIRES: image is 8-bit grey or BGR. `camera` (may be null) undistorts the keypoints; with
 // null, normalized = pixels (no calibration). Fails on an empty image or a size that does not
 // match the calibration.
+// SIFT rows (n x 128 CV_32F, non-negative) to RootSIFT in place: L1-normalise, square root.
+void ToRootSift(cv::Mat& descriptors);
+
 Result<LocalFeatures> ExtractFeatures(const cv::Mat& image, const CameraModel* camera,
                                       const FeatureOptions& options);
 

@@ -7,6 +7,9 @@
 #include <omp.h>
 
 #include <chrono>
+#include <csignal>
+#include <cstdlib>
+#include <set>
 #include <cmath>
 #include <filesystem>
 #include <fstream>
@@ -41,15 +44,19 @@ void Say(const BuildOptions& o, const std::string& line) {
 struct Survey {
   std::vector<DriveRow> rows;
   std::vector<double> attitude_sigma_deg;  // per row; 0 = the structure's default
+  std::vector<std::string> origin;         // per row: where it came from, for messages
   std::vector<CameraModel> cameras;        // distinct calibrations
   std::vector<int> camera_of_row;
   std::vector<LocalFeatures> features;
 };
 
-// Where a row came from, for messages.
+// The image file of a row.
 std::string RowName(const BuildOptions& o, const Survey& s, size_t i) {
   return (fs::path(o.drive_dir) / s.rows[i].image).string();
 }
+
+// Where a row came from ("<drive.csv>:<line>", or the image), for messages.
+std::string Where(const Survey& s, size_t i) { return s.origin.empty() ? "" : s.origin[i] + ": "; }
 
 // Keeps the rows whose status is OK (all of them unless skip_bad); the first bad one fails the
 // build otherwise. Bad rows are listed in *skipped.
@@ -64,6 +71,7 @@ Status DropBadRows(const BuildOptions& o, const std::vector<Status>& status, Sur
     }
     kept.rows.push_back(s->rows[i]);
     kept.attitude_sigma_deg.push_back(s->attitude_sigma_deg[i]);
+    if (!s->origin.empty()) kept.origin.push_back(s->origin[i]);
     if (!s->camera_of_row.empty()) kept.camera_of_row.push_back(s->camera_of_row[i]);
     if (!s->features.empty()) kept.features.push_back(std::move(s->features[i]));
   }
@@ -89,7 +97,7 @@ Status LoadCameras(const BuildOptions& o, Survey* s, std::vector<std::string>* s
       }
     }
     if (it == by_name.end()) {
-      status[i] = Status(failed.at(name).code(), RowName(o, *s, i) + ": " + failed.at(name).message());
+      status[i] = Status(failed.at(name).code(), Where(*s, i) + failed.at(name).message());
       s->camera_of_row.push_back(-1);
     } else {
       s->camera_of_row.push_back(it->second);
@@ -118,14 +126,14 @@ Status ExtractAll(const BuildOptions& o, Survey* s, std::vector<std::string>* sk
                                              const_cast<char*>(bytes.data())),
                                      cv::IMREAD_GRAYSCALE);
     if (img.empty()) {
-      status[i] = Status::InvalidArgument(path + ": cannot read or decode the image");
+      status[i] = Status::InvalidArgument(Where(*s, i) + "cannot read or decode image " + path);
     } else {
       digest[i] = Sha256Hex(bytes.data(), bytes.size());
       Result<LocalFeatures> f = ExtractFeatures(img, &s->cameras[s->camera_of_row[i]], o.features);
       if (f.ok())
         s->features[i] = std::move(f).value();
       else
-        status[i] = Status::InvalidArgument(path + ": " + f.status().message());
+        status[i] = Status::InvalidArgument(Where(*s, i) + path + ": " + f.status().message());
     }
     if (progress) progress->Advance();
   });
@@ -134,7 +142,7 @@ Status ExtractAll(const BuildOptions& o, Survey* s, std::vector<std::string>* sk
     if (!status[i].ok()) continue;
     auto [it, fresh] = first_of.emplace(digest[i], i);
     if (!fresh)
-      status[i] = Status::InvalidArgument(RowName(o, *s, i) + ": the same image as " +
+      status[i] = Status::InvalidArgument(Where(*s, i) + RowName(o, *s, i) + " is the same image as " +
                                           RowName(o, *s, it->second));
   }
   return DropBadRows(o, status, s, skipped);
@@ -269,21 +277,48 @@ nlohmann::json ModelParams(const GlobalDescriptor& g, int training_vectors) {
           {"local", "rootsift"}};
 }
 
-// Writes tiles and the catalog; fills the byte counts of *summary.
-Status Publish(const BuildOptions& o, const Built& b, Catalog& catalog, BuildSummary* summary) {
+// A tile an `add` leaves alone: its catalog entry and its images' codes (for the global index).
+struct CarriedTile {
+  CatalogTile entry;
+  cv::Mat codes;  // one row per image, in image id order
+};
+
+// Fault injection for the crash-safety test: SIGHTFIX_KILL_AT=<point> makes the process kill
+// itself with SIGKILL at that point ("tile:N" after the N-th tile file, "catalog" before the
+// catalog is switched, "cleanup" after the switch, before old files go).
+void MaybeKillAt(const std::string& point) {
+  static const char* at = std::getenv("SIGHTFIX_KILL_AT");
+  if (at && point == at) std::raise(SIGKILL);
+}
+
+std::vector<uint8_t> GlobalIndex(const GlobalDescriptor& model, const cv::Mat& codes,
+                                 const std::vector<faiss::Index::idx_t>& ids) {
+  // FAISS wraps only an empty index; the codes go in afterwards, already encoded.
+  faiss::IndexIDMap global(model.MakeIndex(cv::Mat(0, model.code_bytes(), CV_8U)).release());
+  global.own_fields = true;
+  auto* inner = dynamic_cast<faiss::IndexFlatCodes*>(global.index);
+  inner->codes.assign(codes.ptr<uint8_t>(), codes.ptr<uint8_t>() + codes.total());
+  inner->ntotal = global.ntotal = static_cast<faiss::Index::idx_t>(ids.size());
+  global.id_map = ids;
+  return IndexBytes(global);
+}
+
+// Writes the tiles of b's rows (grouped by tile_of_row) under new versioned names, then the
+// catalog listing them and the carried tiles, renamed into place last. Fills the byte counts.
+Status Publish(const BuildOptions& o, const Built& b, const std::vector<TileKey>& tile_of_row,
+               const std::vector<CarriedTile>& carried, Catalog& catalog, BuildSummary* summary) {
   std::map<TileKey, std::vector<int>> by_tile;
-  for (size_t r = 0; r < b.survey->rows.size(); ++r) {
-    const GeoPoint p = b.enu->ToGeo(b.structure->center_enu[r]);
-    by_tile[TileForPoint(p.lat_deg, p.lon_deg, o.zoom)].push_back(static_cast<int>(r));
-  }
+  for (size_t r = 0; r < b.survey->rows.size(); ++r) by_tile[tile_of_row[r]].push_back(static_cast<int>(r));
   cv::Mat all_codes;
   std::vector<faiss::Index::idx_t> ids;
   double local_bytes = 0, point_bytes = 0, file_bytes = 0;
+  int written = 0;
   for (const auto& [key, rows] : by_tile) {
     const TileData tile = MakeTile(b, key, rows);
     const std::string rel = TileFileName(key, b.map_version);
     const std::string path = (fs::path(o.map_dir) / rel).string();
     if (Status s = WriteTile(path, tile); !s.ok()) return s;
+    MaybeKillAt("tile:" + std::to_string(++written));
     Result<std::string> sha = Sha256OfFile(path);
     if (!sha.ok()) return sha.status();
     const int ordinal = static_cast<int>(catalog.tiles.size());
@@ -298,21 +333,46 @@ Status Publish(const BuildOptions& o, const Built& b, Catalog& catalog, BuildSum
     file_bytes += fs::file_size(path);
     summary->points += static_cast<int>(tile.points.size());
   }
-  // FAISS wraps only an empty index; the codes go in afterwards, already encoded.
-  faiss::IndexIDMap global(b.model->MakeIndex(cv::Mat(0, b.codes.cols, CV_8U)).release());
-  global.own_fields = true;
-  auto* inner = dynamic_cast<faiss::IndexFlatCodes*>(global.index);
-  inner->codes.assign(all_codes.ptr<uint8_t>(), all_codes.ptr<uint8_t>() + all_codes.total());
-  inner->ntotal = global.ntotal = static_cast<faiss::Index::idx_t>(ids.size());
-  global.id_map = ids;
-  catalog.global_index = IndexBytes(global);
-  const double n = static_cast<double>(b.survey->rows.size());
+  for (const CarriedTile& c : carried) {
+    const int ordinal = static_cast<int>(catalog.tiles.size());
+    catalog.tiles.push_back(c.entry);
+    for (int i = 0; i < c.codes.rows; ++i) {
+      all_codes.push_back(c.codes.row(i));
+      ids.push_back(GlobalImageId(ordinal, i));
+    }
+  }
+  catalog.global_index = GlobalIndex(*b.model, all_codes, ids);
+  const double n = std::max<double>(1, b.survey->rows.size());
   summary->tiles = static_cast<int>(catalog.tiles.size());
   summary->global_code_bytes = b.codes.cols;
   summary->local_feature_bytes = local_bytes / n;
   summary->point_bytes = point_bytes / n;
   summary->tile_file_bytes = file_bytes / n;
+  MaybeKillAt("catalog");
   return WriteCatalog((fs::path(o.map_dir) / "catalog.sqlite").string(), catalog);
+}
+
+// After the switch: tile files no catalog entry names (the versions it replaced, leftovers of
+// an interrupted run) go.
+void RemoveUnlistedTiles(const std::string& map_dir, const Catalog& catalog) {
+  MaybeKillAt("cleanup");
+  std::set<std::string> listed;
+  for (const CatalogTile& t : catalog.tiles) listed.insert((fs::path(map_dir) / t.file).lexically_normal().string());
+  const fs::path tiles = fs::path(map_dir) / "tiles";
+  if (!fs::exists(tiles)) return;
+  std::vector<fs::path> stale;
+  for (const auto& e : fs::recursive_directory_iterator(tiles))
+    if (e.is_regular_file() && !listed.count(e.path().lexically_normal().string())) stale.push_back(e.path());
+  std::error_code ec;
+  for (const fs::path& p : stale) fs::remove(p, ec);
+}
+
+nlohmann::json DriveRecord(const BuildOptions& o, const BuildSummary& s) {
+  return {{"drive", fs::absolute(o.drive_dir).lexically_normal().string()},
+          {"format", s.input_format},
+          {"images", s.images},
+          {"skipped", s.skipped.size()},
+          {"added", NowIsoUtc()}};
 }
 
 Result<SurveyRows> ReadSurvey(const BuildOptions& o) {
@@ -375,6 +435,7 @@ Result<BuildSummary> BuildMap(const BuildOptions& o) {
   summary.skipped = rows->problems;
   s.rows = std::move(rows->rows);
   s.attitude_sigma_deg = std::move(rows->attitude_sigma_deg);
+  s.origin = std::move(rows->origin);
   if (Status st = LoadCameras(o, &s, &summary.skipped); !st.ok()) return st;
   summary.map_version = *version;
 
@@ -418,13 +479,247 @@ Result<BuildSummary> BuildMap(const BuildOptions& o) {
   catalog.model_params = ModelParams(*model, summary.training_vectors).dump();
   catalog.model_blob = model_blob;
   catalog.created_utc = NowIsoUtc();
-  catalog.provenance = nlohmann::json{
-      {"drive", fs::absolute(o.drive_dir).string()},
-      {"images", summary.images},
-      {"max_features", o.features.max_features},
-      {"zoom", o.zoom}}.dump();
+  catalog.provenance = nlohmann::json{{"drives", {DriveRecord(o, summary)}},
+                                      {"max_features", o.features.max_features},
+                                      {"zoom", o.zoom}}
+                           .dump();
   const Built built{&s, &*model, summary.model_id, codes, &*structure, &enu, *version};
-  if (Status st = Publish(o, built, catalog, &summary); !st.ok()) return st;
+  std::vector<TileKey> tile_of_row;
+  for (const cv::Vec3d& c : structure->center_enu) {
+    const GeoPoint p = enu.ToGeo(c);
+    tile_of_row.push_back(TileForPoint(p.lat_deg, p.lon_deg, o.zoom));
+  }
+  if (Status st = Publish(o, built, tile_of_row, {}, catalog, &summary); !st.ok()) return st;
+  RemoveUnlistedTiles(o.map_dir, catalog);
+  summary.write_s = SecondsSince(t0);
+  summary.seconds = SecondsSince(t_start);
+  summary.images_per_s = summary.images / std::max(summary.seconds, 1e-9);
+  return summary;
+}
+
+namespace {
+
+// Features of a stored image, as the structure step wants them: keypoints back in pixels
+// through its calibration, descriptors from the compact bytes.
+LocalFeatures StoredFeatures(const ReferenceImage& img, const CameraModel& cam) {
+  LocalFeatures f;
+  f.type = FeatureType::kRootSift;
+  img.descriptors.convertTo(f.descriptors, CV_32F, 1.0 / kRootSiftByteScale);
+  for (const cv::Point2f& n : img.normalized) {
+    f.normalized.emplace_back(n.x, n.y);
+    f.keypoints.emplace_back(cam.Project(cv::Vec3d(n.x, n.y, 1)), 1.0f);
+  }
+  return f;
+}
+
+// Appends a tile's images to a survey (rows, cameras, features) and their codes to *codes.
+void AppendTile(const TileData& t, Survey* s, cv::Mat* codes) {
+  const int camera_base = static_cast<int>(s->cameras.size());
+  for (const CameraModel& c : t.cameras) s->cameras.push_back(c);
+  for (const ReferenceImage& img : t.images) {
+    DriveRow r;
+    r.image = img.name;
+    r.timestamp_s = img.timestamp_s;
+    r.position = img.position;
+    r.attitude = img.attitude;
+    r.sigma_h_m = img.sigma_h_m;
+    s->rows.push_back(r);
+    s->attitude_sigma_deg.push_back(0);
+    s->camera_of_row.push_back(camera_base + img.camera_id);
+    s->features.push_back(StoredFeatures(img, t.cameras[img.camera_id]));
+    codes->push_back(cv::Mat(1, static_cast<int>(img.global_code.size()), CV_8U,
+                             const_cast<uint8_t*>(img.global_code.data())).clone());
+  }
+}
+
+Result<Catalog> ExistingCatalog(const BuildOptions& o) {
+  const std::string path = (fs::path(o.map_dir) / "catalog.sqlite").string();
+  if (!fs::exists(path)) return Status::NotFound("no map in " + o.map_dir + " (no catalog.sqlite)");
+  return ReadCatalog(path);
+}
+
+// The survey of one new drive, ingested and checked as `build` does; names prefixed with the
+// drive folder's name so they stay unique across drives.
+Result<Survey> IngestDrive(const BuildOptions& o, BuildSummary* summary) {
+  Survey s;
+  Result<SurveyRows> rows = ReadSurvey(o);
+  if (!rows.ok()) return rows.status();
+  summary->input_format = SurveyFormatName(rows->format);
+  summary->skipped = rows->problems;
+  s.rows = std::move(rows->rows);
+  s.attitude_sigma_deg = std::move(rows->attitude_sigma_deg);
+  s.origin = std::move(rows->origin);
+  if (Status st = LoadCameras(o, &s, &summary->skipped); !st.ok()) return st;
+  if (Status st = ExtractAll(o, &s, &summary->skipped); !st.ok()) return st;
+  if (s.rows.empty()) return Status::InvalidArgument(o.drive_dir + ": no usable survey image");
+  const std::string label = fs::absolute(o.drive_dir).lexically_normal().filename().string();
+  for (DriveRow& r : s.rows) r.image = label + "/" + r.image;
+  return s;
+}
+
+// Appends survey b's rows to a.
+void AppendSurvey(Survey&& b, Survey* a) {
+  const int base = static_cast<int>(a->cameras.size());
+  for (CameraModel& c : b.cameras) a->cameras.push_back(c);
+  for (size_t i = 0; i < b.rows.size(); ++i) {
+    a->rows.push_back(b.rows[i]);
+    a->attitude_sigma_deg.push_back(b.attitude_sigma_deg[i]);
+    a->camera_of_row.push_back(base + b.camera_of_row[i]);
+    a->features.push_back(std::move(b.features[i]));
+  }
+}
+
+std::string TileNameOf(const std::string& map_dir, const CatalogTile& t) {
+  return (fs::path(map_dir) / t.file).string();
+}
+
+}  // namespace
+
+Result<BuildSummary> AddToMap(const BuildOptions& o) {
+  std::string error;
+  if (!o.Validate(&error)) return Status::InvalidArgument(error);
+  PinLibraryThreads();
+  const auto t_start = Clock::now();
+  Result<Catalog> old = ExistingCatalog(o);
+  if (!old.ok()) return old.status();
+  Result<GlobalDescriptor> model = GlobalDescriptor::Deserialize(old->model_blob);
+  if (!model.ok()) return model.status();
+  BuildSummary summary;
+  summary.map_version = old->map_version + 1;
+  summary.model_id = old->model_id;
+  summary.codec = model->codec_name();
+  auto t0 = Clock::now();
+  Result<Survey> fresh = IngestDrive(o, &summary);
+  if (!fresh.ok()) return fresh.status();
+  summary.images = static_cast<int>(fresh->rows.size());
+  summary.feature_s = SecondsSince(t0);
+
+  // Tiles the new drive touches are rebuilt with their old images; the others are carried.
+  std::set<TileKey> touched;
+  for (const DriveRow& r : fresh->rows)
+    touched.insert(TileForPoint(r.position.lat_deg, r.position.lon_deg, old->zoom));
+  Survey all;
+  cv::Mat codes;
+  std::vector<TileKey> tile_of_row;
+  std::vector<CarriedTile> carried;
+  for (const CatalogTile& ct : old->tiles) {
+    Result<TileData> tile = ReadTile(TileNameOf(o.map_dir, ct));
+    if (!tile.ok()) return tile.status();
+    if (!touched.count(ct.key)) {
+      CarriedTile c{ct, cv::Mat()};
+      for (const ReferenceImage& img : tile->images)
+        c.codes.push_back(cv::Mat(1, static_cast<int>(img.global_code.size()), CV_8U,
+                                  const_cast<uint8_t*>(img.global_code.data())).clone());
+      carried.push_back(std::move(c));
+      continue;
+    }
+    AppendTile(*tile, &all, &codes);
+    tile_of_row.resize(all.rows.size(), ct.key);  // old images stay in their tile
+  }
+  std::vector<cv::Mat> descriptors;
+  for (const LocalFeatures& f : fresh->features) descriptors.push_back(f.descriptors);
+  codes.push_back(model->Encode(model->Whiten(model->VladRows(descriptors))));
+  AppendSurvey(std::move(fresh).value(), &all);
+
+  t0 = Clock::now();
+  Say(o, "matching, triangulating and adjusting the touched tiles with the new frames");
+  const EnuFrame enu(all.rows[0].position);
+  StructureOptions so = o.structure;
+  so.jobs = o.jobs;
+  Result<StructureResult> structure = BuildStructure(Views(all, enu), so);
+  if (!structure.ok()) return structure.status();
+  summary.structure = structure->summary;
+  summary.structure_s = SecondsSince(t0);
+  // New images go to the tile of their surveyed position: touched by construction, so no
+  // carried tile ever gets a second version.
+  for (size_t r = tile_of_row.size(); r < all.rows.size(); ++r)
+    tile_of_row.push_back(TileForPoint(all.rows[r].position.lat_deg, all.rows[r].position.lon_deg, old->zoom));
+
+  t0 = Clock::now();
+  Say(o, "writing " + std::to_string(touched.size()) + " touched tiles and the catalog");
+  Catalog catalog = *old;
+  catalog.map_version = summary.map_version;
+  catalog.tiles.clear();
+  nlohmann::json provenance = nlohmann::json::parse(old->provenance, nullptr, false);
+  if (!provenance.is_object()) provenance = nlohmann::json::object();
+  provenance["drives"].push_back(DriveRecord(o, summary));
+  catalog.provenance = provenance.dump();
+  BuildOptions po = o;
+  po.zoom = old->zoom;
+  const Built built{&all, &*model, old->model_id, codes, &*structure, &enu, summary.map_version};
+  if (Status st = Publish(po, built, tile_of_row, carried, catalog, &summary); !st.ok()) return st;
+  RemoveUnlistedTiles(o.map_dir, catalog);
+  summary.write_s = SecondsSince(t0);
+  summary.seconds = SecondsSince(t_start);
+  summary.images_per_s = summary.images / std::max(summary.seconds, 1e-9);
+  return summary;
+}
+
+Result<BuildSummary> RetrainMap(const BuildOptions& o) {
+  PinLibraryThreads();
+  const auto t_start = Clock::now();
+  Result<Catalog> old = ExistingCatalog(o);
+  if (!old.ok()) return old.status();
+  Survey all;
+  cv::Mat old_codes;
+  std::vector<TileData> tiles;
+  for (const CatalogTile& ct : old->tiles) {
+    Result<TileData> tile = ReadTile(TileNameOf(o.map_dir, ct));
+    if (!tile.ok()) return tile.status();
+    AppendTile(*tile, &all, &old_codes);
+    tiles.push_back(std::move(tile).value());
+  }
+  BuildSummary summary;
+  summary.images = static_cast<int>(all.rows.size());
+  summary.map_version = old->map_version + 1;
+  auto t0 = Clock::now();
+  Say(o, "training a new global descriptor model on " + std::to_string(summary.images) + " images");
+  Result<GlobalDescriptor> model = TrainModel(o, all, &summary.training_vectors);
+  if (!model.ok()) return model.status();
+  std::vector<cv::Mat> descriptors;
+  for (const LocalFeatures& f : all.features) descriptors.push_back(f.descriptors);
+  const cv::Mat codes = model->Encode(model->Whiten(model->VladRows(descriptors)));
+  const std::vector<uint8_t> blob = model->Serialize();
+  summary.model_id = Sha256Hex(blob).substr(0, 16);
+  summary.codec = model->codec_name();
+  summary.model_s = SecondsSince(t0);
+
+  t0 = Clock::now();
+  Say(o, "rewriting every tile with the new codes");
+  Catalog catalog = *old;
+  catalog.map_version = summary.map_version;
+  catalog.model_id = summary.model_id;
+  catalog.model_blob = blob;
+  catalog.model_params = ModelParams(*model, summary.training_vectors).dump();
+  catalog.tiles.clear();
+  std::vector<faiss::Index::idx_t> ids;
+  int row = 0, written = 0;
+  for (TileData& t : tiles) {
+    const cv::Mat tile_codes = codes.rowRange(row, row + static_cast<int>(t.images.size()));
+    for (size_t i = 0; i < t.images.size(); ++i) {
+      t.images[i].global_code.assign(tile_codes.ptr<uint8_t>(i), tile_codes.ptr<uint8_t>(i) + codes.cols);
+      ids.push_back(GlobalImageId(static_cast<int>(catalog.tiles.size()), static_cast<int>(i)));
+    }
+    row += static_cast<int>(t.images.size());
+    t.model_id = summary.model_id;
+    t.map_version = summary.map_version;
+    t.retrieval_index = IndexBytes(*model->MakeIndex(tile_codes));
+    const std::string rel = TileFileName(t.key, summary.map_version);
+    const std::string path = (fs::path(o.map_dir) / rel).string();
+    if (Status s = WriteTile(path, t); !s.ok()) return s;
+    MaybeKillAt("tile:" + std::to_string(++written));
+    Result<std::string> sha = Sha256OfFile(path);
+    if (!sha.ok()) return sha.status();
+    catalog.tiles.push_back({t.key, rel, *sha, static_cast<int>(t.images.size()),
+                             static_cast<int>(t.points.size()), summary.model_id});
+    summary.points += static_cast<int>(t.points.size());
+  }
+  summary.tiles = static_cast<int>(catalog.tiles.size());
+  catalog.global_index = GlobalIndex(*model, codes, ids);
+  MaybeKillAt("catalog");
+  if (Status s = WriteCatalog((fs::path(o.map_dir) / "catalog.sqlite").string(), catalog); !s.ok())
+    return s;
+  RemoveUnlistedTiles(o.map_dir, catalog);
   summary.write_s = SecondsSince(t0);
   summary.seconds = SecondsSince(t_start);
   summary.images_per_s = summary.images / std::max(summary.seconds, 1e-9);

@@ -67,4 +67,15 @@ struct BuildSummary {
 
 Result<BuildSummary> BuildMap(const BuildOptions& options);
 
+// `add`: one more survey (options.drive_dir) into the map at options.map_dir with the map's own
+// model and zoom. Tiles the new frames fall in are rebuilt from their stored images plus the
+// new ones (structure re-adjusted together) and written under the next version's names; the
+// other tiles are carried as they are; then one catalog switch, then old files go. A crash at
+// any point leaves the previous map whole (DESIGN.md 4.6).
+Result<BuildSummary> AddToMap(const BuildOptions& options);
+// `retrain`: a new model trained on every stored image's features (the compact descriptors the
+// tiles keep), every tile rewritten with new codes and retrieval index, then the catalog switch;
+// the old model serves until that switch. Only map_dir and the model options are used.
+Result<BuildSummary> RetrainMap(const BuildOptions& options);
+
 }  // namespace sightfix

@@ -54,15 +54,24 @@ nlohmann::json SummaryJson(const sightfix::BuildSummary& s) {
             {"ba_final_rms_px", st.ba_final_rms_px}}}};
 }
 
-int Build(int argc, char** argv) {
+constexpr char kBuildHelp[] =
+    "sightfix-indexer build: a map from one survey: drive.csv with geotagged images, a rig\n"
+    "(rig.yml + INS log + per-camera image lists), JPEGs with EXIF GPS tags, or JPEGs with a\n"
+    "GPX track. RootSIFT features, VLAD+PCA+PQ global codes, triangulated 3D points refined\n"
+    "by bundle adjustment, one SQLite file per WebMercatorQuad tile and a catalog. A bad row\n"
+    "stops the build before anything is written, unless --skip-bad.\n\n"
+    "Usage: sightfix-indexer build --drive DIR --map MAPDIR [options]\n\nOptions";
+constexpr char kAddHelp[] =
+    "sightfix-indexer add: one more survey into an existing map, with the map's model. Only the\n"
+    "tiles its frames fall in are rewritten (their structure re-adjusted with the new frames),\n"
+    "under the next map version's names; then one catalog switch. The previous map stays whole\n"
+    "and servable until that switch, whatever happens.\n\n"
+    "Usage: sightfix-indexer add --drive DIR --map MAPDIR [options]\n\nOptions";
+
+// build and add: one survey in, a map out. add = true: into the existing map.
+int Build(int argc, char** argv, bool add) {
   sightfix::BuildOptions o;
-  po::options_description desc(
-      "sightfix-indexer build: a map from one survey: drive.csv with geotagged images, a rig\n"
-      "(rig.yml + INS log + per-camera image lists), JPEGs with EXIF GPS tags, or JPEGs with a\n"
-      "GPX track. RootSIFT features, VLAD+PCA+PQ global codes, triangulated 3D points refined\n"
-      "by bundle adjustment, one SQLite file per WebMercatorQuad tile and a catalog. A bad row\n"
-      "stops the build before anything is written, unless --skip-bad.\n\n"
-      "Usage: sightfix-indexer build --drive DIR --map MAPDIR [options]\n\nOptions");
+  po::options_description desc(add ? kAddHelp : kBuildHelp);
   std::string format = "auto";
   desc.add_options()("help,h", "show this help")("drive", po::value(&o.drive_dir),
                                                  "survey folder")(
@@ -87,14 +96,14 @@ int Build(int argc, char** argv) {
     po::store(po::command_line_parser(argc, argv).options(desc).run(), vm);
     po::notify(vm);
   } catch (const std::exception& e) {
-    return Fail(std::string(e.what()) + " (see sightfix-indexer build --help)", 2);
+    return Fail(std::string(e.what()) + " (see --help)", 2);
   }
   if (vm.count("help")) {
     std::cout << desc << "\n";
     return 0;
   }
   if (o.drive_dir.empty() || o.map_dir.empty())
-    return Fail("build needs --drive DIR and --map MAPDIR (see sightfix-indexer build --help)", 2);
+    return Fail(std::string(add ? "add" : "build") + " needs --drive DIR and --map MAPDIR (see --help)", 2);
   o.overwrite = vm.count("overwrite") > 0;
   o.skip_bad = vm.count("skip-bad") > 0;
   if (!sightfix::ParseSurveyFormat(format, &o.format))
@@ -102,7 +111,7 @@ int Build(int argc, char** argv) {
   o.progress = vm.count("quiet") == 0;
   std::string error;
   if (!o.Validate(&error)) return Fail(error, 2);
-  sightfix::Result<sightfix::BuildSummary> s = sightfix::BuildMap(o);
+  sightfix::Result<sightfix::BuildSummary> s = add ? sightfix::AddToMap(o) : sightfix::BuildMap(o);
   if (!s.ok()) {
     const bool input = s.status().code() == sightfix::StatusCode::kInvalidArgument ||
                        s.status().code() == sightfix::StatusCode::kNotFound ||
@@ -242,11 +251,40 @@ int Coverage(int argc, char** argv) {
   return 0;
 }
 
+int Retrain(int argc, char** argv) {
+  sightfix::BuildOptions o;
+  po::options_description desc(
+      "sightfix-indexer retrain: a new global descriptor model from every image of the map (the\n"
+      "features its tiles keep), every tile rewritten with new codes under the next version's\n"
+      "names, then one catalog switch; the old model serves until then.\n\n"
+      "Usage: sightfix-indexer retrain --map MAPDIR [--jobs N] [--json]\n\nOptions");
+  desc.add_options()("help,h", "show this help")("map", po::value(&o.map_dir), "map folder")(
+      "jobs", po::value(&o.jobs)->default_value(0), "worker threads (0 = all cores)")(
+      "quiet", "no progress on stderr")("json", "print the summary as JSON on stdout");
+  po::variables_map vm;
+  if (int rc = ParseMapFlags(argc, argv, "retrain", desc, &vm); rc >= 0) return rc;
+  if (o.map_dir.empty()) return Fail("retrain needs --map MAPDIR", 2);
+  o.progress = vm.count("quiet") == 0;
+  sightfix::Result<sightfix::BuildSummary> s = sightfix::RetrainMap(o);
+  if (!s.ok()) return Fail(s.status().ToString() + "\nthe map was not changed", 1);
+  if (vm.count("json")) {
+    std::cout << SummaryJson(*s).dump(2) << "\n";
+    return 0;
+  }
+  std::printf("map %s version %d: new model %s (%s, %d training vectors) over %d images in %d "
+              "tiles; %.1f s\n",
+              o.map_dir.c_str(), s->map_version, s->model_id.c_str(), s->codec.c_str(),
+              s->training_vectors, s->images, s->tiles, s->seconds);
+  return 0;
+}
+
 void Usage() {
   std::printf(
       "sightfix-indexer: builds sightfix maps from survey drives\n\n"
       "Usage: sightfix-indexer COMMAND [options]\n\nCommands:\n"
       "  build --drive DIR --map MAPDIR      a new map from one survey (drive.csv, rig, EXIF, GPX)\n"
+      "  add --drive DIR --map MAPDIR        one more survey into a map (touched tiles only)\n"
+      "  retrain --map MAPDIR                a new model from all of the map's images\n"
       "  inspect --map MAPDIR [--json]       what a map holds\n"
       "  verify --map MAPDIR [--json]        checks a map; names every bad tile\n"
       "  coverage --map MAPDIR --out F.geojson   tile polygons and survey tracks\n\n"
@@ -262,7 +300,9 @@ int main(int argc, char** argv) {
     return argc < 2 ? 2 : 0;
   }
   const std::string command = argv[1];
-  if (command == "build") return Build(argc - 1, argv + 1);
+  if (command == "build") return Build(argc - 1, argv + 1, false);
+  if (command == "add") return Build(argc - 1, argv + 1, true);
+  if (command == "retrain") return Retrain(argc - 1, argv + 1);
   if (command == "inspect") return Inspect(argc - 1, argv + 1);
   if (command == "verify") return Verify(argc - 1, argv + 1);
   if (command == "coverage") return Coverage(argc - 1, argv + 1);

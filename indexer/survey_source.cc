@@ -47,9 +47,8 @@ SurveyFormat Detect(const fs::path& dir) {
 Status PhotoRow(const SurveySourceOptions& o, const Geoid& geoid,
                 const std::vector<TrackPoint>* track, const std::string& image, DriveRow* row) {
   const fs::path path = fs::path(o.dir) / image;
-  Result<ExifGps> exif = ReadExifGps(path.string());
-  if (!exif.ok() && !track) return exif.status();
-  if (!exif.ok()) return Status::InvalidArgument(path.string() + ": " + exif.status().message());
+  Result<ExifGps> exif = ReadExifGps(path.string(), /*require_position=*/track == nullptr);
+  if (!exif.ok()) return exif.status();
   row->image = image;
   row->camera = o.camera;
   row->timestamp_s = exif->time_s;
@@ -103,9 +102,12 @@ Result<SurveyRows> LoadSurveyRows(const SurveySourceOptions& o, const Geoid* geo
   out.format = o.format == SurveyFormat::kAuto ? Detect(dir) : o.format;
   std::vector<std::string>* problems = o.skip_bad ? &out.problems : nullptr;
   if (out.format == SurveyFormat::kDrive) {
-    Result<std::vector<DriveRow>> rows = ReadDriveManifest((dir / "drive.csv").string(), problems);
+    const std::string manifest = (dir / "drive.csv").string();
+    std::vector<int> lines;
+    Result<std::vector<DriveRow>> rows = ReadDriveManifest(manifest, problems, &lines);
     if (!rows.ok()) return rows.status();
     out.rows = std::move(rows).value();
+    for (int line : lines) out.origin.push_back(manifest + ":" + std::to_string(line));
   } else if (out.format == SurveyFormat::kRig) {
     Result<Rig> rig = LoadRig((dir / "rig.yml").string());
     if (!rig.ok()) return rig.status();
@@ -139,6 +141,8 @@ Result<SurveyRows> LoadSurveyRows(const SurveySourceOptions& o, const Geoid* geo
       return a.timestamp_s < b.timestamp_s;
     });
   }
+  for (size_t i = out.origin.size(); i < out.rows.size(); ++i)
+    out.origin.push_back((dir / out.rows[i].image).string());
   const bool photos = out.format == SurveyFormat::kExif || out.format == SurveyFormat::kGpx;
   out.attitude_sigma_deg.assign(out.rows.size(), photos ? o.unknown_attitude_sigma_deg : 0.0);
   return out;

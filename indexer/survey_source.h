@@ -42,6 +42,7 @@ struct SurveyRows {
   SurveyFormat format = SurveyFormat::kDrive;
   std::vector<DriveRow> rows;             // image and camera paths relative to dir
   std::vector<double> attitude_sigma_deg;  // per row; 0 = the structure's default
+  std::vector<std::string> origin;         // per row, for messages: "<drive.csv>:<line>" or the image
   std::vector<std::string> problems;       // skip_bad: what was left out and why
 };
 

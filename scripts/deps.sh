@@ -9,7 +9,7 @@ packages=(
   libboost-all-dev libprotobuf-dev protobuf-compiler
   libsqlite3-dev libgtest-dev libgmock-dev libgeographiclib-dev libexiv2-dev
   libceres-dev libproj-dev proj-data libbenchmark-dev
-  nlohmann-json3-dev opencv-doc python3 python3-protobuf chromium
+  nlohmann-json3-dev opencv-doc python3 python3-protobuf chromium exiv2
 )
 
 missing=()

@@ -47,7 +47,7 @@ check "indexer --help" 0 "build --drive DIR --map MAPDIR" -- "$indexer" --help
 check "indexer build --help" 0 "max-features" -- "$indexer" build --help
 check "indexer unknown command" 2 "unknown command 'fly'" -- "$indexer" fly
 check "indexer build needs flags" 2 "needs --drive DIR and --map MAPDIR" -- "$indexer" build
-check "indexer missing drive" 2 "drive.csv" -- "$indexer" build --drive "$tmp/nodrive" --map "$tmp/map" --quiet
+check "indexer missing drive" 2 "no survey folder" -- "$indexer" build --drive "$tmp/nodrive" --map "$tmp/map" --quiet
 mkdir -p "$tmp/drive"
 cp "$tmp/cam.yml" "$tmp/drive/camera.yml"
 echo "image,timestamp,lat,lon,height,heading_deg,pitch_deg,roll_deg,camera,sigma_h_m" > "$tmp/drive/drive.csv"

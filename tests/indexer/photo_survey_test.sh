@@ -1,0 +1,55 @@
+#!/usr/bin/env bash
+# The demo town's survey exported as a mapping team might have it (sightfix-demo-route --export):
+# EXIF-tagged JPEGs, and JPEGs with times plus a GPX track. Maps built from each answer the day
+# query drive like the drive.csv map does (the service tests' map of the same seed).
+# Usage: photo_survey_test.sh BUILD_DIR SERVICE_DATA_DIR
+set -u
+build="$1" data="$2"
+idx="$build/indexer/sightfix-indexer"
+cli="$build/client/sightfix"
+tmp="$(mktemp -d)"
+trap 'rm -rf "$tmp"' EXIT
+passed=0 failed=0
+ok() { passed=$((passed + 1)); echo "ok   $1"; }
+bad() { failed=$((failed + 1)); echo "FAIL $1"; }
+py=/usr/bin/python3
+
+"$build/demo_route/sightfix-demo-route" --out "$tmp/town" --seed 17 --route-length-m 150 \
+  --export exif,gpx >/dev/null 2>&1 && ok "demo town exported as EXIF and GPX" || bad "export"
+cmp -s "$tmp/town/survey/drive.csv" "$data/town/survey/drive.csv" \
+  && ok "same survey as the service tests' map" || bad "survey differs from the fixture's"
+[ "$(ls "$tmp/town/survey-exif/images" | wc -l)" -eq "$(ls "$tmp/town/survey/images" | wc -l)" ] \
+  && [ -s "$tmp/town/survey-gpx/track.gpx" ] && ok "survey-exif/ and survey-gpx/ written" || bad "export folders"
+
+for form in exif gpx; do
+  "$idx" build --drive "$tmp/town/survey-$form" --map "$tmp/map-$form" --zoom 18 --quiet --json \
+    >"$tmp/build-$form.json" 2>"$tmp/build-$form.err" && ok "build from the $form survey" \
+    || bad "build $form: $(tail -3 "$tmp/build-$form.err")"
+done
+for form in drive exif gpx; do
+  map="$tmp/map-$form"
+  [ "$form" = drive ] && map="$data/map"
+  "$cli" replay --map "$map" --drive "$data/town/query-day" --out "$tmp/rep-$form" --limit 24 \
+    --seed 5 >/dev/null 2>&1 || bad "replay on the $form map"
+done
+"$py" - "$tmp" <<'PY' && ok "EXIF and GPX maps answer like the drive.csv map" || bad "EXIF/GPX maps differ from the drive map"
+import json, sys
+t = sys.argv[1]
+s = {f: json.load(open(f"{t}/rep-{f}/summary.json")) for f in ("drive", "exif", "gpx")}
+for f in ("exif", "gpx"):
+    b = json.load(open(f"{t}/build-{f}.json"))
+    assert b["input_format"] == f and b["skipped"] == 0, b
+for f, j in s.items():
+    r = j["refined_only"]
+    print(f"{f:5s} availability {j['availability']:.3f} refined {j['refined']} median {r['median_error_m']:.3f} m "
+          f"p95 {r['p95_error_m']:.3f} m wrong {j['wrong_refined']} coverage {j['radius95_coverage']:.3f}")
+d = s["drive"]
+for f in ("exif", "gpx"):
+    j = s[f]
+    assert j["wrong_refined"] == 0, f
+    assert j["refined"] >= d["refined"] - 1, (f, j["refined"], d["refined"])
+    # Survey poses without pitch and roll: the adjusted map may differ by centimetres.
+    assert j["refined_only"]["median_error_m"] <= d["refined_only"]["median_error_m"] + 0.05, f
+PY
+echo "$passed passed, $failed failed"
+[ "$failed" -eq 0 ]
