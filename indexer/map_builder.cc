@@ -642,6 +642,11 @@ Result<BuildSummary> AddToMap(const BuildOptions& o) {
   catalog.tiles.clear();
   nlohmann::json provenance = nlohmann::json::parse(old->provenance, nullptr, false);
   if (!provenance.is_object()) provenance = nlohmann::json::object();
+  if (!provenance.contains("drives") && provenance.contains("drive")) {  // maps before `add`
+    provenance["drives"] = {{{"drive", provenance["drive"]}, {"images", provenance["images"]}}};
+    provenance.erase("drive");
+    provenance.erase("images");
+  }
   provenance["drives"].push_back(DriveRecord(o, summary));
   catalog.provenance = provenance.dump();
   BuildOptions po = o;

@@ -31,17 +31,18 @@ cp -r "$data/map" "$tmp/base"
 answers "$tmp/base" >"$tmp/base.answers"
 grep -q refined "$tmp/base.answers" && ok "base map answers" || bad "base map answers: $(cat "$tmp/base.answers")"
 
-# A new drive lying in the west tile only: the query-day rows west of -39.99990.
-mkdir -p "$tmp/west"
-cp "$town/query-day/camera.yml" "$tmp/west/"
-cp -r "$town/query-day/images" "$tmp/west/"
-awk -F, 'NR == 1 || $4 < -39.99990' "$town/query-day/drive.csv" >"$tmp/west/drive.csv"
-rows=$(($(wc -l <"$tmp/west/drive.csv") - 1))
-[ "$rows" -ge 3 ] && ok "west drive has $rows rows" || bad "west drive has $rows rows"
+# A new drive lying in the east tile only (the map has two, split at -39.999847): the query-day
+# rows east of -39.99983.
+mkdir -p "$tmp/east"
+cp "$town/query-day/camera.yml" "$tmp/east/"
+cp -r "$town/query-day/images" "$tmp/east/"
+awk -F, 'NR == 1 || $4 > -39.99983' "$town/query-day/drive.csv" >"$tmp/east/drive.csv"
+rows=$(($(wc -l <"$tmp/east/drive.csv") - 1))
+[ "$rows" -ge 3 ] && ok "east drive has $rows rows" || bad "east drive has $rows rows"
 
 for point in tile:1 catalog cleanup; do
   rm -rf "$tmp/k" && cp -r "$tmp/base" "$tmp/k"
-  SIGHTFIX_KILL_AT="$point" "$idx" add --drive "$tmp/west" --map "$tmp/k" --quiet >/dev/null 2>&1
+  SIGHTFIX_KILL_AT="$point" "$idx" add --drive "$tmp/east" --map "$tmp/k" --quiet >/dev/null 2>&1
   rc=$?
   [ $rc -eq 137 ] && ok "add killed at $point (SIGKILL)" || bad "add at $point exited $rc, not 137"
   "$idx" verify --map "$tmp/k" >"$tmp/verify.txt" 2>&1 && ok "map verifies after a kill at $point" \
@@ -58,7 +59,7 @@ for point in tile:1 catalog cleanup; do
 done
 
 # A whole add: version 2, the new drive listed, only the touched tile rewritten.
-"$idx" add --drive "$tmp/west" --map "$tmp/base" --quiet --json >"$tmp/add.json" 2>"$tmp/add.err" \
+"$idx" add --drive "$tmp/east" --map "$tmp/base" --quiet --json >"$tmp/add.json" 2>"$tmp/add.err" \
   && ok "add" || bad "add: $(tail -3 "$tmp/add.err")"
 "$idx" verify --map "$tmp/base" >/dev/null && ok "map verifies after add" || bad "verify after add"
 "$idx" inspect --map "$tmp/base" --json >"$tmp/inspect.json"
