@@ -1,7 +1,8 @@
 #!/usr/bin/env bash
 # Benchmarks of the map and the engine (figures from one run; compare ratios, not absolute
 # times: this is a shared 2-core machine). Not a test: it prints, it does not judge.
-#  1. index build: images/s, bytes per image (global code, local features, 3D points);
+#  1. index build: images/s, bytes per image (global code, local features, 3D points); the
+#     feature stage against bare OpenCV SIFT with --jobs 1 and 2; map size per km;
 #  2. engine latency per query by stage against the bare OpenCV calls on the same data;
 #  3. retrieval over a synthetic 100 000-image set, map-wide index against the prior's tiles and
 #     against exact search;
@@ -14,7 +15,7 @@ out="${1:-$root/out/bench}"
 bash "$root/scripts/deps.sh"
 cmake -S "$root" -B "$build" -DCMAKE_BUILD_TYPE=RelWithDebInfo >/dev/null
 cmake --build "$build" -j "$(nproc)" --target sightfix-demo-route sightfix-indexer engine_bench \
-  service_bench
+  service_bench indexer_bench
 if [ ! -f "$out/town/town.json" ]; then
   "$build/demo_route/sightfix-demo-route" --out "$out/town" --seed 5 --route-length-m 300 >/dev/null
 fi
@@ -31,6 +32,10 @@ print(f"{s['images']} images in {s['seconds']:.1f} s: {s['images_per_s']:.2f} im
 print(f"bytes per image: global code {b['global_code']:.0f} ({s['codec']}), local features "
       f"{b['local_features']:.0f}, 3D points {b['points']:.0f}; tile files {b['tile_file']:.0f}")
 PY
+echo
+echo "== indexing throughput against bare OpenCV feature extraction; map size per km"
+"$build/tests/indexer_bench" --drive "$out/town/survey" --out "$out/indexer"
+
 echo
 echo "== engine latency against the bare library calls, and retrieval at scale"
 "$build/tests/engine_bench" --map "$out/map" --drive "$out/town/query-day" --limit 40

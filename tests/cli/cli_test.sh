@@ -47,6 +47,13 @@ check "indexer --help" 0 "build --drive DIR --map MAPDIR" -- "$indexer" --help
 check "indexer build --help" 0 "max-features" -- "$indexer" build --help
 check "indexer unknown command" 2 "unknown command 'fly'" -- "$indexer" fly
 check "indexer build needs flags" 2 "needs --drive DIR and --map MAPDIR" -- "$indexer" build
+check "indexer add --help" 0 "tiles its frames fall in" -- "$indexer" add --help
+check "indexer build --help names the forms" 0 "exif" -- "$indexer" build --help
+check "indexer bad --format" 2 "format must be" -- "$indexer" build --drive "$tmp" --map "$tmp/m" --format tiff
+check "indexer inspect without a map" 2 "no map in" -- "$indexer" inspect --map "$tmp/nomap"
+check "indexer verify without a map" 1 "NOT whole" -- "$indexer" verify --map "$tmp/nomap"
+check "indexer retrain without a map" 1 "no map in" -- "$indexer" retrain --map "$tmp/nomap"
+check "indexer coverage needs --out" 2 "needs --map MAPDIR and --out" -- "$indexer" coverage --map "$tmp/nomap"
 check "indexer missing drive" 2 "no survey folder" -- "$indexer" build --drive "$tmp/nodrive" --map "$tmp/map" --quiet
 mkdir -p "$tmp/drive"
 cp "$tmp/cam.yml" "$tmp/drive/camera.yml"
