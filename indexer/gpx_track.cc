@@ -67,6 +67,16 @@ Result<TrackSample> TrackAt(const std::vector<TrackPoint>& track, double t, doub
     return Status::InvalidArgument("time " + FormatIsoUtc(t) + " lies outside the track");
   size_t hi = 1;
   while (track[hi].time_s < t) ++hi;
+  if (track[hi].time_s == t) {  // on a point: its position, the course of a segment beside it
+    if (hi + 1 < track.size() && track[hi + 1].time_s - t <= max_gap_s) {
+      Result<TrackSample> s = TrackAt(track, t + 0.5 * (track[hi + 1].time_s - t), max_gap_s);
+      if (s.ok()) s->lat_deg = track[hi].lat_deg, s->lon_deg = track[hi].lon_deg, s->ele_m = track[hi].ele_m;
+      return s;
+    }
+    if (t - track[hi - 1].time_s > max_gap_s)
+      return Status::InvalidArgument("time " + FormatIsoUtc(t) + " falls on a track point with gaps wider than " +
+                                     std::to_string(max_gap_s) + " s on both sides");
+  }
   const TrackPoint& a = track[hi - 1];
   const TrackPoint& b = track[hi];
   if (b.time_s - a.time_s > max_gap_s)

@@ -114,6 +114,7 @@ Result<InsPose> InsPoseAt(const std::vector<InsPose>& log, double t, double max_
     return Status::InvalidArgument("time " + FormatIsoUtc(t) + " lies outside the INS log");
   size_t hi = 1;
   while (log[hi].time_s < t) ++hi;
+  if (log[hi].time_s == t) return log[hi];  // on a sample: no gap to bridge
   const InsPose& a = log[hi - 1];
   const InsPose& b = log[hi];
   if (b.time_s - a.time_s > max_gap_s)

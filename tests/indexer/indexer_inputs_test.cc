@@ -178,6 +178,11 @@ TEST(GpxTrackTest, InterpolationMatchesHandComputation) {
   ASSERT_FALSE(gap.ok());
   EXPECT_NE(gap.status().message().find("gap of 20"), std::string::npos) << gap.status().message();
   EXPECT_FALSE(TrackAt(*track, t0 - 1, 15).ok());
+  // On a track point the position is that point's, whatever gap follows it.
+  auto on = TrackAt(*track, t0 + 10, 15);
+  ASSERT_TRUE(on.ok()) << on.status().ToString();
+  EXPECT_NEAR(on->lat_deg, 44.001, 1e-12);
+  EXPECT_NEAR(on->ele_m, 20, 1e-12);
 }
 
 TEST(GpxTrackTest, BadTracksNameThePoint) {
@@ -274,6 +279,10 @@ TEST(RigTest, InsInterpolationAndSurveyRows) {
   EXPECT_EQ(problems.size(), 1u);
   EXPECT_NEAR((*rows)[0].attitude.heading_deg, 15, 1e-9);
   EXPECT_EQ((*rows)[0].camera, "front.yml");
+  // A time on a logged pose needs no interpolation, even next to a gap (5 s, after a 4 s gap).
+  auto last = InsPoseAt(*log, *ParseIsoUtc("2026-05-04T09:00:05Z"), 2);
+  ASSERT_TRUE(last.ok()) << last.status().ToString();
+  EXPECT_NEAR(last->position.lat_deg, 44.0002, 1e-12);
 }
 
 TEST(RootSiftTest, EuclideanDistanceIsTheHellingerKernel) {

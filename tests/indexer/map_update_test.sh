@@ -123,21 +123,26 @@ rm -f "$(find "$tmp/d/tiles" -name '*.sqlite' | sort | tail -1)"
 mkdir -p "$tmp/badsurvey"
 cp "$town/survey/camera.yml" "$tmp/badsurvey/"
 cp -r "$town/survey/images" "$tmp/badsurvey/"
-# Row 5: NaN latitude; row 9: row 7's image again; row 11: an image that does not exist.
-awk -F, -v OFS=, 'NR == 7 { img7 = $1 } NR == 5 { $3 = "NaN" } NR == 9 { $1 = img7 }
-                  NR == 11 { $1 = "images/nothere.jpg" } { print }' "$town/survey/drive.csv" \
-  >"$tmp/badsurvey/drive.csv"
+# Row 5: NaN latitude; row 9: row 7's image again; row 11: an image that does not exist;
+# row 13: a calibration of another size (the overcast camera, 720x540); row 15: a time before
+# row 14's.
+cp "$town/query-overcast/camera.yml" "$tmp/badsurvey/other.yml"
+awk -F, -v OFS=, 'NR == 3 { t3 = $2 } NR == 7 { img7 = $1 } NR == 5 { $3 = "NaN" }
+                  NR == 9 { $1 = img7 } NR == 11 { $1 = "images/nothere.jpg" }
+                  NR == 13 { $9 = "other.yml" } NR == 15 { $2 = t3 } { print }' \
+  "$town/survey/drive.csv" >"$tmp/badsurvey/drive.csv"
 "$idx" build --drive "$tmp/badsurvey" --map "$tmp/badmap" --quiet >"$tmp/bad.txt" 2>&1; rc=$?
 [ $rc -eq 2 ] && grep -q "drive.csv:5:" "$tmp/bad.txt" && [ ! -e "$tmp/badmap/catalog.sqlite" ] \
   && ok "a NaN coordinate names drive.csv:5, exit 2, nothing written" || bad "bad row (exit $rc): $(cat "$tmp/bad.txt")"
 "$idx" build --drive "$tmp/badsurvey" --map "$tmp/badmap" --quiet --skip-bad --json >"$tmp/skip.json" 2>"$tmp/skip.err"; rc=$?
-"$py" - "$tmp/skip.json" <<'PY' && [ $rc -eq 0 ] && ok "--skip-bad: 3 bad rows left out and counted" || bad "--skip-bad (exit $rc): $(cat "$tmp/skip.err" | tail -5)"
+"$py" - "$tmp/skip.json" <<'PY' && [ $rc -eq 0 ] && ok "--skip-bad: 5 bad rows (NaN, duplicate, missing image, calibration size, time order) named and counted" || bad "--skip-bad (exit $rc): $(cat "$tmp/skip.err" | tail -5)"
 import json, sys
 j = json.load(open(sys.argv[1]))
-assert j["skipped"] == 3, j["skipped_rows"]
+assert j["skipped"] == 5, j["skipped_rows"]
 text = " ".join(j["skipped_rows"])
-assert "drive.csv:5" in text and "drive.csv:11" in text and "nothere.jpg" in text, text
-assert "drive.csv:9" in text and "the same image as" in text, text
+for line in (5, 9, 11, 13, 15):
+    assert f"drive.csv:{line}:" in text, (line, text)
+assert "nothere.jpg" in text and "the same image as" in text and "out of order" in text, text
 PY
 
 # Determinism: the same survey with --jobs 1 and --jobs 2 gives byte-identical tiles.
