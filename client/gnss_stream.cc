@@ -10,30 +10,6 @@
 namespace sightfix {
 namespace {
 
-// Reads a CSV with the exact header, handing each row's fields to parse_row (which returns a
-// Status naming what is wrong); the first failure names file and line.
-template <typename Row, typename Parse>
-Result<std::vector<Row>> ReadCsv(const std::string& path, const std::string& header,
-                                 Parse parse_row) {
-  std::ifstream in(path);
-  if (!in) return Status::NotFound("cannot open " + path);
-  std::string line;
-  std::getline(in, line);
-  if (!line.empty() && line.back() == '\r') line.pop_back();
-  if (line != header) return Status::InvalidArgument(path + ":1: header must be '" + header + "'");
-  std::vector<Row> rows;
-  for (int line_no = 2; std::getline(in, line); ++line_no) {
-    if (!line.empty() && line.back() == '\r') line.pop_back();
-    if (line.empty()) continue;
-    Row row;
-    Status s = parse_row(SplitCsvLine(line), &row, rows);
-    if (!s.ok())
-      return Status::InvalidArgument(path + ":" + std::to_string(line_no) + ": " + s.message());
-    rows.push_back(row);
-  }
-  return rows;
-}
-
 Status ParseNumbers(const std::vector<std::string>& f, size_t first,
                     std::initializer_list<double*> out) {
   size_t i = first;
@@ -62,7 +38,7 @@ Result<std::vector<GnssFix>> ReadGnssCsv(const std::string& path) {
       return Status::InvalidArgument("timestamps out of order");
     return Status::Ok();
   };
-  return ReadCsv<GnssFix>(path, "timestamp,lat,lon,height,sigma_h_m,course_deg", parse);
+  return ReadCsvRows<GnssFix>(path, "timestamp,lat,lon,height,sigma_h_m,course_deg", parse);
 }
 
 Result<std::vector<SpoofedSpan>> ReadSpoofingCsv(const std::string& path) {
@@ -78,7 +54,7 @@ Result<std::vector<SpoofedSpan>> ReadSpoofingCsv(const std::string& path) {
     return ParseNumbers(f, 2, {&r->rate_mps, &r->bearing_deg});
   };
   Result<std::vector<SpoofedSpan>> spans =
-      ReadCsv<SpoofedSpan>(path, "start,end,rate_mps,bearing_deg", parse);
+      ReadCsvRows<SpoofedSpan>(path, "start,end,rate_mps,bearing_deg", parse);
   if (spans.ok())  // in start order, as the evaluator scores them
     std::sort(spans->begin(), spans->end(), [](const SpoofedSpan& a, const SpoofedSpan& b) {
       return a.span.start_s < b.span.start_s;

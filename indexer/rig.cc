@@ -23,27 +23,6 @@ cv::Matx33d Slerp(const cv::Matx33d& a, const cv::Matx33d& b, double u) {
   return a * step;
 }
 
-// Reads a CSV of known header, one parsed row per line; "<path>:<line>: <what>" on failure.
-template <typename Row, typename Parse>
-Result<std::vector<Row>> ReadRows(const std::string& path, const std::string& header, Parse parse) {
-  std::ifstream in(path);
-  if (!in) return Status::NotFound("cannot open " + path);
-  std::string line;
-  std::getline(in, line);
-  if (!line.empty() && line.back() == '\r') line.pop_back();
-  if (line != header) return Status::InvalidArgument(path + ":1: header must be '" + header + "'");
-  std::vector<Row> rows;
-  for (int n = 2; std::getline(in, line); ++n) {
-    if (!line.empty() && line.back() == '\r') line.pop_back();
-    if (line.empty()) continue;
-    Row r;
-    if (Status s = parse(SplitCsvLine(line), &r, rows); !s.ok())
-      return Status::InvalidArgument(path + ":" + std::to_string(n) + ": " + s.message());
-    rows.push_back(r);
-  }
-  return rows;
-}
-
 Status ParseInsRow(const std::vector<std::string>& f, InsPose* p, const std::vector<InsPose>& prev) {
   if (f.size() != 8) return Status::InvalidArgument("expected 8 columns, found " + std::to_string(f.size()));
   Result<double> t = ParseIsoUtc(f[0]);
@@ -105,7 +84,7 @@ Result<Rig> LoadRig(const std::string& path) {
 }
 
 Result<std::vector<InsPose>> ReadInsLog(const std::string& path) {
-  return ReadRows<InsPose>(path, "timestamp,lat,lon,height,heading_deg,pitch_deg,roll_deg,sigma_h_m",
+  return ReadCsvRows<InsPose>(path, "timestamp,lat,lon,height,heading_deg,pitch_deg,roll_deg,sigma_h_m",
                            ParseInsRow);
 }
 
@@ -160,7 +139,7 @@ Result<std::vector<DriveRow>> RigSurvey(const Rig& rig, double max_gap_s, bool s
       r->image = f[0], r->time_s = *t;
       return f[0].empty() ? Status::InvalidArgument("empty image path") : Status::Ok();
     };
-    Result<std::vector<TimedImage>> images = ReadRows<TimedImage>(list, "image,timestamp", parse);
+    Result<std::vector<TimedImage>> images = ReadCsvRows<TimedImage>(list, "image,timestamp", parse);
     if (!images.ok()) return images.status();
     for (size_t i = 0; i < images->size(); ++i) {
       const TimedImage& im = (*images)[i];

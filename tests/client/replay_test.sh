@@ -7,13 +7,9 @@
 set -u
 build="$1" data="$2"
 cli="$build/client/sightfix"
-tmp="$(mktemp -d)"
 server_pid=""
-trap '[ -n "$server_pid" ] && kill "$server_pid" 2>/dev/null; rm -rf "$tmp"' EXIT
-passed=0 failed=0
-ok() { passed=$((passed + 1)); echo "ok   $1"; }
-bad() { failed=$((failed + 1)); echo "FAIL $1"; }
-py=/usr/bin/python3
+cleanup_extra() { [ -n "$server_pid" ] && kill "$server_pid" 2>/dev/null; }
+source "$(dirname "$0")/../lib/checks.sh"
 drive="$data/town/query-day"
 
 "$cli" replay --map "$data/map" --drive "$drive" --out "$tmp/in" --limit 16 --seed 3 \
@@ -134,5 +130,4 @@ assert len(colours) >= 50 and dark >= 500
 PY
 fi
 
-echo "$passed passed, $failed failed"
-[ "$failed" -eq 0 ]
+finish

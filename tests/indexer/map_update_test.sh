@@ -11,12 +11,7 @@ build="$1" data="$2"
 idx="$build/indexer/sightfix-indexer"
 cli="$build/client/sightfix"
 town="$data/town"
-tmp="$(mktemp -d)"
-trap 'rm -rf "$tmp"' EXIT
-passed=0 failed=0
-ok() { passed=$((passed + 1)); echo "ok   $1"; }
-bad() { failed=$((failed + 1)); echo "FAIL $1"; }
-py=/usr/bin/python3
+source "$(dirname "$0")/../lib/checks.sh"
 
 # Answers of a map to three query images (quality and position, no timings).
 answers() {
@@ -154,5 +149,4 @@ done
   && ok "--jobs 1 and --jobs 2: byte-identical tiles ($(wc -l <"$tmp/jobs1.sum") files)" \
   || bad "tiles differ between --jobs 1 and 2: $(diff "$tmp/jobs1.sum" "$tmp/jobs2.sum" | head -4)"
 
-echo "$passed passed, $failed failed"
-[ "$failed" -eq 0 ]
+finish

@@ -8,12 +8,7 @@ set -u
 build="$1" data="$2"
 idx="$build/indexer/sightfix-indexer"
 cli="$build/client/sightfix"
-tmp="$(mktemp -d)"
-trap 'rm -rf "$tmp"' EXIT
-passed=0 failed=0
-ok() { passed=$((passed + 1)); echo "ok   $1"; }
-bad() { failed=$((failed + 1)); echo "FAIL $1"; }
-py=/usr/bin/python3
+source "$(dirname "$0")/../lib/checks.sh"
 
 "$build/demo_route/sightfix-demo-route" --out "$tmp/town" --seed 17 --route-length-m 150 \
   --export exif,gpx >/dev/null 2>&1 && ok "demo town exported as EXIF and GPX" || bad "export"
@@ -85,5 +80,4 @@ for f in ("exif", "gpx", "rig"):
     # Survey poses without pitch and roll: the adjusted map may differ by centimetres.
     assert j["refined_only"]["median_error_m"] <= d["refined_only"]["median_error_m"] + 0.05, f
 PY
-echo "$passed passed, $failed failed"
-[ "$failed" -eq 0 ]
+finish
