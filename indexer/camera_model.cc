@@ -26,6 +26,14 @@ bool CameraModel::HasDistortion() const {
 }
 
 cv::Point2d CameraModel::Distort(const cv::Point2d& p) const {
+  if (lens == LensModel::kFisheye) {
+    const auto& [k1, k2, k3, k4, unused] = distortion;
+    const double r = std::hypot(p.x, p.y);
+    if (r < 1e-15) return p;
+    const double t = std::atan(r), t2 = t * t;
+    const double td = t * (1 + t2 * (k1 + t2 * (k2 + t2 * (k3 + t2 * k4))));
+    return {p.x * td / r, p.y * td / r};
+  }
   const auto& [k1, k2, p1, p2, k3] = distortion;
   const double x = p.x, y = p.y, r2 = x * x + y * y;
   const double radial = 1 + r2 * (k1 + r2 * (k2 + r2 * k3));
@@ -77,7 +85,19 @@ Result<CameraModel> LoadCameraModel(const std::string& path) {
     cam.fy = k.at<double>(1, 1);
     cam.cx = k.at<double>(0, 2);
     cam.cy = k.at<double>(1, 2);
-    if (!d.empty()) {
+    std::string model;
+    int fisheye_flag = 0;
+    if (!fs["distortion_model"].empty()) fs["distortion_model"] >> model;
+    if (!fs["fisheye_model"].empty()) fs["fisheye_model"] >> fisheye_flag;
+    if (model == "fisheye" || fisheye_flag != 0) {
+      cam.lens = LensModel::kFisheye;
+      d.convertTo(d, CV_64F);
+      if (d.total() != 4)
+        return Status::InvalidArgument(path + ": a fisheye calibration needs 4 distortion_coefficients");
+      for (int i = 0; i < 4; ++i) cam.distortion[i] = d.at<double>(i);
+    } else if (!model.empty() && model != "pinhole") {
+      return Status::InvalidArgument(path + ": distortion_model must be pinhole or fisheye");
+    } else if (!d.empty()) {
       d.convertTo(d, CV_64F);
       const int n = static_cast<int>(d.total());
       if (n != 4 && n != 5 && n != 8)
@@ -101,8 +121,10 @@ Status SaveCameraModel(const CameraModel& cam, const std::string& path) {
     if (!fs.isOpened()) return Status::IoError("cannot write " + path);
     fs << "image_width" << cam.width_px << "image_height" << cam.height_px;
     fs << "camera_matrix" << cv::Mat(cam.K());
+    const bool fisheye = cam.lens == LensModel::kFisheye;
+    if (fisheye) fs << "distortion_model" << "fisheye";
     fs << "distortion_coefficients"
-       << cv::Mat(1, 5, CV_64F, const_cast<double*>(cam.distortion.data()));
+       << cv::Mat(1, fisheye ? 4 : 5, CV_64F, const_cast<double*>(cam.distortion.data()));
     return Status::Ok();
   } catch (const cv::Exception& e) {
     return Status::IoError("cannot write " + path + ": " + e.what());

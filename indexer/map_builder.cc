@@ -107,8 +107,12 @@ Status LoadCameras(const BuildOptions& o, Survey* s, std::vector<std::string>* s
 }
 
 std::string ReadFileBytes(const std::string& path) {
-  std::ifstream in(path, std::ios::binary);
-  return in ? std::string((std::istreambuf_iterator<char>(in)), {}) : std::string();
+  std::ifstream in(path, std::ios::binary | std::ios::ate);
+  if (!in) return {};
+  std::string bytes(static_cast<size_t>(in.tellg()), '\0');
+  in.seekg(0);
+  in.read(bytes.data(), static_cast<std::streamsize>(bytes.size()));
+  return in ? bytes : std::string();
 }
 
 Status ExtractAll(const BuildOptions& o, Survey* s, std::vector<std::string>* skipped) {

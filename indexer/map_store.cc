@@ -130,7 +130,7 @@ Status WriteAtomically(const std::string& path, Fn write) {
 constexpr char kTileSchema[] = R"sql(
 CREATE TABLE meta(key TEXT PRIMARY KEY, value TEXT NOT NULL);
 CREATE TABLE cameras(id INTEGER PRIMARY KEY, width INTEGER, height INTEGER, fx REAL, fy REAL,
-  cx REAL, cy REAL, k1 REAL, k2 REAL, p1 REAL, p2 REAL, k3 REAL);
+  cx REAL, cy REAL, k1 REAL, k2 REAL, p1 REAL, p2 REAL, k3 REAL, lens TEXT NOT NULL);
 CREATE TABLE images(id INTEGER PRIMARY KEY, name TEXT NOT NULL, timestamp REAL, lat REAL,
   lon REAL, height REAL, heading_deg REAL, pitch_deg REAL, roll_deg REAL, sigma_h_m REAL,
   camera_id INTEGER, global_code BLOB, keypoints BLOB, descriptors BLOB, point_ids BLOB);
@@ -166,13 +166,14 @@ Status WriteTileRows(sqlite3* db, const TileData& t) {
                                  {"map_version", std::to_string(t.map_version)}});
       !s.ok())
     return s;
-  Result<Stmt> cam = Prepare(db, "INSERT INTO cameras VALUES(?,?,?,?,?,?,?,?,?,?,?,?)");
+  Result<Stmt> cam = Prepare(db, "INSERT INTO cameras VALUES(?,?,?,?,?,?,?,?,?,?,?,?,?)");
   if (!cam.ok()) return cam.status();
   for (size_t i = 0; i < t.cameras.size(); ++i) {
     const CameraModel& c = t.cameras[i];
     Binder b{cam->get()};
     b << static_cast<int>(i) << c.width_px << c.height_px << c.fx << c.fy << c.cx << c.cy;
     for (double d : c.distortion) b << d;
+    b << std::string(c.lens == LensModel::kFisheye ? "fisheye" : "pinhole");
     if (Status s = StepDone(db, cam->get()); !s.ok()) return s;
   }
   Result<Stmt> img = Prepare(db, "INSERT INTO images VALUES(?,?,?,?,?,?,?,?,?,?,?,?,?,?,?)");
@@ -293,6 +294,11 @@ Status ReadCameras(sqlite3* db, const std::string& path, TileData* t) {
     c.fx = sqlite3_column_double(s, 3), c.fy = sqlite3_column_double(s, 4);
     c.cx = sqlite3_column_double(s, 5), c.cy = sqlite3_column_double(s, 6);
     for (int i = 0; i < 5; ++i) c.distortion[i] = sqlite3_column_double(s, 7 + i);
+    const unsigned char* lens = sqlite3_column_text(s, 12);
+    const std::string lens_name = lens ? reinterpret_cast<const char*>(lens) : "";
+    if (lens_name != "pinhole" && lens_name != "fisheye")
+      return Status::Corrupt(path + ": camera: lens must be pinhole or fisheye");
+    c.lens = lens_name == "fisheye" ? LensModel::kFisheye : LensModel::kPinhole;
     std::string error;
     if (!c.IsValid(&error)) return Status::Corrupt(path + ": camera: " + error);
     t->cameras.push_back(c);

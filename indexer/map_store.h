@@ -25,7 +25,8 @@
 
 namespace sightfix {
 
-constexpr int kMapFormatVersion = 1;
+// 2: cameras carry their lens model (pinhole or fisheye).
+constexpr int kMapFormatVersion = 2;
 
 struct ReferenceImage {
   int id = 0;  // 0..n-1 within the tile; the retrieval index's id

@@ -48,7 +48,9 @@ v1::Calibration CalibrationToProto(const CameraModel& c) {
   p.set_width(c.width_px);
   p.set_height(c.height_px);
   p.set_fx(c.fx), p.set_fy(c.fy), p.set_cx(c.cx), p.set_cy(c.cy);
-  for (double d : c.distortion) p.add_distortion(d);
+  const bool fisheye = c.lens == LensModel::kFisheye;
+  for (int i = 0; i < (fisheye ? 4 : 5); ++i) p.add_distortion(c.distortion[i]);
+  p.set_fisheye(fisheye);
   return p;
 }
 
@@ -57,8 +59,9 @@ Result<CameraModel> CalibrationFromProto(const v1::Calibration& p) {
   c.width_px = static_cast<int>(std::min<uint32_t>(p.width(), 1 << 20));
   c.height_px = static_cast<int>(std::min<uint32_t>(p.height(), 1 << 20));
   c.fx = p.fx(), c.fy = p.fy(), c.cx = p.cx(), c.cy = p.cy();
-  if (p.distortion_size() > 5)
-    return Status::InvalidArgument("calibration: more than 5 distortion coefficients");
+  c.lens = p.fisheye() ? LensModel::kFisheye : LensModel::kPinhole;
+  if (p.distortion_size() > (p.fisheye() ? 4 : 5))
+    return Status::InvalidArgument("calibration: too many distortion coefficients");
   for (int i = 0; i < p.distortion_size(); ++i) c.distortion[i] = p.distortion(i);
   std::string error;
   if (!c.IsValid(&error)) return Status::InvalidArgument("calibration: " + error);

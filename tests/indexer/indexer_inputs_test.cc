@@ -12,6 +12,7 @@
 #include <opencv2/features2d.hpp>
 #include <opencv2/imgcodecs.hpp>
 
+#include "indexer/camera_model.h"
 #include "indexer/exif_gps.h"
 #include "indexer/geoid.h"
 #include "indexer/gpx_track.h"
@@ -306,6 +307,52 @@ TEST(RootSiftTest, EuclideanDistanceIsTheHellingerKernel) {
     const double d2 = std::pow(cv::norm(root.row(i), root.row(i + 1), cv::NORM_L2), 2);
     EXPECT_NEAR(d2, 2 - 2 * hellinger, 1e-5) << i;
   }
+}
+
+TEST(FisheyeTest, ProjectionMatchesCvFisheyeAndFilesLoad) {
+  // Reference implementation: cv::fisheye::projectPoints (OpenCV's equidistant model).
+  CameraModel cam;
+  cam.lens = LensModel::kFisheye;
+  cam.width_px = 1280, cam.height_px = 960;
+  cam.fx = 330, cam.fy = 331, cam.cx = 640.5, cam.cy = 479.5;
+  cam.distortion = {0.02, -0.01, 0.004, -0.001, 0};
+  std::vector<cv::Point3d> pts;
+  for (double x = -2; x <= 2; x += 0.5)
+    for (double y = -1.5; y <= 1.5; y += 0.5) pts.emplace_back(x, y, 1.0 + 0.1 * x * x);
+  std::vector<cv::Point2d> ref;
+  cv::fisheye::projectPoints(pts, ref, cv::Vec3d(0, 0, 0), cv::Vec3d(0, 0, 0), cam.K(),
+                             cv::Vec4d(0.02, -0.01, 0.004, -0.001));
+  for (size_t i = 0; i < pts.size(); ++i) {
+    const cv::Point2d p = cam.Project(cv::Vec3d(pts[i].x, pts[i].y, pts[i].z));
+    EXPECT_NEAR(p.x, ref[i].x, 1e-6) << i;
+    EXPECT_NEAR(p.y, ref[i].y, 1e-6) << i;
+    const cv::Point2d n = cam.PixelToNormalized(p);  // back to the ray
+    EXPECT_NEAR(n.x, pts[i].x / pts[i].z, 1e-8) << i;
+    EXPECT_NEAR(n.y, pts[i].y / pts[i].z, 1e-8) << i;
+  }
+  // Files: our key and OpenCV's sample's key both mean fisheye; 5 coefficients do not.
+  const fs::path dir = TempDir("fisheye");
+  ASSERT_TRUE(SaveCameraModel(cam, (dir / "a.yml").string()).ok());
+  auto a = LoadCameraModel((dir / "a.yml").string());
+  ASSERT_TRUE(a.ok()) << a.status().ToString();
+  EXPECT_EQ(a->lens, LensModel::kFisheye);
+  EXPECT_DOUBLE_EQ(a->distortion[3], -0.001);
+  WriteText(dir / "b.yml",
+            "%YAML:1.0\n---\nimage_width: 1280\nimage_height: 960\nfisheye_model: 1\n"
+            "camera_matrix: !!opencv-matrix\n   rows: 3\n   cols: 3\n   dt: d\n"
+            "   data: [ 330., 0., 640.5, 0., 331., 479.5, 0., 0., 1. ]\n"
+            "distortion_coefficients: !!opencv-matrix\n   rows: 4\n   cols: 1\n   dt: d\n"
+            "   data: [ 0.02, -0.01, 0.004, -0.001 ]\n");
+  auto b = LoadCameraModel((dir / "b.yml").string());
+  ASSERT_TRUE(b.ok()) << b.status().ToString();
+  EXPECT_EQ(b->lens, LensModel::kFisheye);
+  WriteText(dir / "c.yml",
+            "%YAML:1.0\n---\nimage_width: 1280\nimage_height: 960\ndistortion_model: fisheye\n"
+            "camera_matrix: !!opencv-matrix\n   rows: 3\n   cols: 3\n   dt: d\n"
+            "   data: [ 330., 0., 640.5, 0., 331., 479.5, 0., 0., 1. ]\n"
+            "distortion_coefficients: !!opencv-matrix\n   rows: 1\n   cols: 5\n   dt: d\n"
+            "   data: [ 0.02, -0.01, 0.004, -0.001, 0. ]\n");
+  EXPECT_FALSE(LoadCameraModel((dir / "c.yml").string()).ok());
 }
 
 }  // namespace

@@ -19,6 +19,8 @@ TileData SampleTile() {
   t.model_id = "0123456789abcdef";
   t.map_version = 3;
   t.cameras.push_back({640, 480, 500, 501, 319.5, 239.5, {-0.1, 0.01, 0.001, -0.001, 0.0}});
+  t.cameras.push_back({1280, 960, 330, 331, 640.5, 479.5, {0.02, -0.01, 0.004, -0.001, 0.0},
+                       LensModel::kFisheye});
   for (int i = 0; i < 3; ++i) {
     ReferenceImage r;
     r.id = i;
@@ -56,8 +58,11 @@ TEST(MapStoreTest, TileRoundTrip) {
   EXPECT_EQ(t->model_id, want.model_id);
   EXPECT_EQ(t->map_version, 3);
   EXPECT_DOUBLE_EQ(t->origin.lat_deg, 44.0);
-  ASSERT_EQ(t->cameras.size(), 1u);
+  ASSERT_EQ(t->cameras.size(), 2u);
   EXPECT_DOUBLE_EQ(t->cameras[0].distortion[2], 0.001);
+  EXPECT_EQ(t->cameras[0].lens, LensModel::kPinhole);
+  EXPECT_EQ(t->cameras[1].lens, LensModel::kFisheye);  // the lens model survives the tile
+  EXPECT_DOUBLE_EQ(t->cameras[1].distortion[3], -0.001);
   ASSERT_EQ(t->images.size(), 3u);
   for (int i = 0; i < 3; ++i) {
     EXPECT_EQ(t->images[i].name, want.images[i].name);
