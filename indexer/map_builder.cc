@@ -172,6 +172,33 @@ Result<GlobalDescriptor> TrainModel(const BuildOptions& o, const Survey& s, int*
   return GlobalDescriptor::Train(sample, images, crops, o.descriptor);
 }
 
+// Every image's code under a model.
+cv::Mat EncodeAll(const GlobalDescriptor& model, const Survey& s) {
+  std::vector<cv::Mat> descriptors;
+  for (const LocalFeatures& f : s.features) descriptors.push_back(f.descriptors);
+  return model.Encode(model.Whiten(model.VladRows(descriptors)));
+}
+
+struct TrainedModel {
+  GlobalDescriptor model;
+  cv::Mat codes;              // one row per survey row
+  std::vector<uint8_t> blob;  // GlobalDescriptor::Serialize
+};
+
+// Trains a model on the survey and encodes it; fills the summary's model fields.
+Result<TrainedModel> TrainAndEncode(const BuildOptions& o, const Survey& s, BuildSummary* summary) {
+  const auto t0 = Clock::now();
+  Result<GlobalDescriptor> model = TrainModel(o, s, &summary->training_vectors);
+  if (!model.ok()) return model.status();
+  TrainedModel t{std::move(model).value(), cv::Mat(), {}};
+  t.codes = EncodeAll(t.model, s);
+  t.blob = t.model.Serialize();
+  summary->model_id = Sha256Hex(t.blob).substr(0, 16);
+  summary->codec = t.model.codec_name();
+  summary->model_s = SecondsSince(t0);
+  return t;
+}
+
 struct Posed {
   std::vector<cv::Matx33d> enu_from_camera;
   std::vector<cv::Vec3d> center;
@@ -452,17 +479,12 @@ Result<BuildSummary> BuildMap(const BuildOptions& o) {
         "a map needs more than " + std::to_string(o.descriptor.pq_subquantizers) +
         " survey images, the survey has " + std::to_string(s.rows.size()) + " usable");
 
-  t0 = Clock::now();
   Say(o, "training the global descriptor model");
-  Result<GlobalDescriptor> model = TrainModel(o, s, &summary.training_vectors);
-  if (!model.ok()) return model.status();
-  std::vector<cv::Mat> descriptors;
-  for (const LocalFeatures& f : s.features) descriptors.push_back(f.descriptors);
-  const cv::Mat codes = model->Encode(model->Whiten(model->VladRows(descriptors)));
-  const std::vector<uint8_t> model_blob = model->Serialize();
-  summary.model_id = Sha256Hex(model_blob).substr(0, 16);
-  summary.codec = model->codec_name();
-  summary.model_s = SecondsSince(t0);
+  Result<TrainedModel> trained = TrainAndEncode(o, s, &summary);
+  if (!trained.ok()) return trained.status();
+  const GlobalDescriptor* model = &trained->model;
+  const cv::Mat& codes = trained->codes;
+  const std::vector<uint8_t>& model_blob = trained->blob;
 
   t0 = Clock::now();
   Say(o, "matching neighbouring frames, triangulating, bundle adjustment");
@@ -487,7 +509,7 @@ Result<BuildSummary> BuildMap(const BuildOptions& o) {
                                       {"max_features", o.features.max_features},
                                       {"zoom", o.zoom}}
                            .dump();
-  const Built built{&s, &*model, summary.model_id, codes, &*structure, &enu, *version};
+  const Built built{&s, model, summary.model_id, codes, &*structure, &enu, *version};
   std::vector<TileKey> tile_of_row;
   for (const cv::Vec3d& c : structure->center_enu) {
     const GeoPoint p = enu.ToGeo(c);
@@ -620,9 +642,7 @@ Result<BuildSummary> AddToMap(const BuildOptions& o) {
     AppendTile(*tile, &all, &codes);
     tile_of_row.resize(all.rows.size(), ct.key);  // old images stay in their tile
   }
-  std::vector<cv::Mat> descriptors;
-  for (const LocalFeatures& f : fresh->features) descriptors.push_back(f.descriptors);
-  codes.push_back(model->Encode(model->Whiten(model->VladRows(descriptors))));
+  codes.push_back(EncodeAll(*model, *fresh));
   AppendSurvey(std::move(fresh).value(), &all);
 
   t0 = Clock::now();
@@ -681,19 +701,14 @@ Result<BuildSummary> RetrainMap(const BuildOptions& o) {
   BuildSummary summary;
   summary.images = static_cast<int>(all.rows.size());
   summary.map_version = old->map_version + 1;
-  auto t0 = Clock::now();
   Say(o, "training a new global descriptor model on " + std::to_string(summary.images) + " images");
-  Result<GlobalDescriptor> model = TrainModel(o, all, &summary.training_vectors);
-  if (!model.ok()) return model.status();
-  std::vector<cv::Mat> descriptors;
-  for (const LocalFeatures& f : all.features) descriptors.push_back(f.descriptors);
-  const cv::Mat codes = model->Encode(model->Whiten(model->VladRows(descriptors)));
-  const std::vector<uint8_t> blob = model->Serialize();
-  summary.model_id = Sha256Hex(blob).substr(0, 16);
-  summary.codec = model->codec_name();
-  summary.model_s = SecondsSince(t0);
+  Result<TrainedModel> trained = TrainAndEncode(o, all, &summary);
+  if (!trained.ok()) return trained.status();
+  const GlobalDescriptor* model = &trained->model;
+  const cv::Mat& codes = trained->codes;
+  const std::vector<uint8_t>& blob = trained->blob;
 
-  t0 = Clock::now();
+  auto t0 = Clock::now();
   Say(o, "rewriting every tile with the new codes");
   Catalog catalog = *old;
   catalog.map_version = summary.map_version;
