@@ -219,6 +219,20 @@ std::vector<SurveyView> Views(const Survey& s, const EnuFrame& enu) {
   return views;
 }
 
+// Tracks, triangulation and bundle adjustment over a survey; fills the summary's structure
+// figures and time.
+Result<StructureResult> Adjust(const BuildOptions& o, const Survey& s, const EnuFrame& enu,
+                               BuildSummary* summary) {
+  const auto t0 = Clock::now();
+  StructureOptions so = o.structure;
+  so.jobs = o.jobs;
+  Result<StructureResult> structure = BuildStructure(Views(s, enu), so);
+  if (!structure.ok()) return structure.status();
+  summary->structure = structure->summary;
+  summary->structure_s = SecondsSince(t0);
+  return structure;
+}
+
 std::vector<uint8_t> IndexBytes(const faiss::Index& index) {
   faiss::VectorIOWriter w;
   faiss::write_index(&index, &w);
@@ -486,15 +500,10 @@ Result<BuildSummary> BuildMap(const BuildOptions& o) {
   const cv::Mat& codes = trained->codes;
   const std::vector<uint8_t>& model_blob = trained->blob;
 
-  t0 = Clock::now();
   Say(o, "matching neighbouring frames, triangulating, bundle adjustment");
   const EnuFrame enu(s.rows[0].position);
-  StructureOptions so = o.structure;
-  so.jobs = o.jobs;
-  Result<StructureResult> structure = BuildStructure(Views(s, enu), so);
+  Result<StructureResult> structure = Adjust(o, s, enu, &summary);
   if (!structure.ok()) return structure.status();
-  summary.structure = structure->summary;
-  summary.structure_s = SecondsSince(t0);
 
   t0 = Clock::now();
   Say(o, "writing tiles and the catalog");
@@ -645,15 +654,10 @@ Result<BuildSummary> AddToMap(const BuildOptions& o) {
   codes.push_back(EncodeAll(*model, *fresh));
   AppendSurvey(std::move(fresh).value(), &all);
 
-  t0 = Clock::now();
   Say(o, "matching, triangulating and adjusting the touched tiles with the new frames");
   const EnuFrame enu(all.rows[0].position);
-  StructureOptions so = o.structure;
-  so.jobs = o.jobs;
-  Result<StructureResult> structure = BuildStructure(Views(all, enu), so);
+  Result<StructureResult> structure = Adjust(o, all, enu, &summary);
   if (!structure.ok()) return structure.status();
-  summary.structure = structure->summary;
-  summary.structure_s = SecondsSince(t0);
   // New images go to the tile of their surveyed position: touched by construction, so no
   // carried tile ever gets a second version.
   for (size_t r = tile_of_row.size(); r < all.rows.size(); ++r)
