@@ -276,7 +276,13 @@ SpoofingRun MonitorDrive(const std::vector<QueryResult>& results,
                   std::max(observed.end_s, q.truth.timestamp_s)};
   std::vector<TimeSpan> spans;
   for (const SpoofedSpan& s : truth)
-    if (s.span.start_s < observed.end_s && s.span.end_s > observed.start_s) spans.push_back(s.span);
+    if (s.span.start_s < observed.end_s && s.span.end_s > observed.start_s) {
+      run.scored.push_back(s);
+      spans.push_back(s.span);
+    }
+  std::sort(run.scored.begin(), run.scored.end(), [](const SpoofedSpan& a, const SpoofedSpan& b) {
+    return a.span.start_s < b.span.start_s;
+  });
   if (observed.end_s < observed.start_s) observed = {};
   run.score = ScoreAlarms(run.steps, spans, observed);
   return run;

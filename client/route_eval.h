@@ -119,6 +119,7 @@ std::string SummaryLine(const RouteSummary& s);
 struct SpoofingRun {
   std::vector<MonitorStep> steps;
   SpoofingScore score;
+  std::vector<SpoofedSpan> scored;  // the true spans the replay covered, in start order (as scored)
 };
 SpoofingRun MonitorDrive(const std::vector<QueryResult>& results,
                          const std::vector<GnssFix>& gnss, const std::vector<SpoofedSpan>& truth,

@@ -51,14 +51,6 @@ std::vector<const QueryResult*> InTimeOrder(const RouteReport& r) {
   return out;
 }
 
-// Whether the replay's queries overlap a span (MonitorDrive scores only those).
-bool Covered(const RouteReport& r, const TimeSpan& span) {
-  double t0 = HUGE_VAL, t1 = -HUGE_VAL;
-  for (const QueryResult& q : r.results)
-    if (q.ran) t0 = std::min(t0, q.truth.timestamp_s), t1 = std::max(t1, q.truth.timestamp_s);
-  return span.start_s < t1 && span.end_s > t0;
-}
-
 bool Spoofed(const RouteReport& r, double t) {
   for (const SpoofedSpan& s : r.spoof_truth)
     if (t >= s.span.start_s && t < s.span.end_s) return true;
@@ -89,11 +81,9 @@ nlohmann::json SummaryJson(const RouteReport& r) {
     spoof["detection_delays_s"] = sc.detection_delays_s;
     // Per true segment (those the replay covered, in start order): rate, flagged, delay.
     nlohmann::json segs = nlohmann::json::array();
-    size_t k = 0;
-    for (const SpoofedSpan& t : r.spoof_truth) {
-      if (k >= sc.segment_delay_s.size()) break;
-      if (!r.results.empty() && !Covered(r, t.span)) continue;
-      const double d = sc.segment_delay_s[k++];
+    for (size_t k = 0; k < r.spoofing->scored.size() && k < sc.segment_delay_s.size(); ++k) {
+      const SpoofedSpan& t = r.spoofing->scored[k];
+      const double d = sc.segment_delay_s[k];
       segs.push_back({{"start", FormatIsoUtc(t.span.start_s)},
                       {"length_s", t.span.end_s - t.span.start_s},
                       {"rate_mps", t.rate_mps},

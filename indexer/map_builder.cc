@@ -428,9 +428,7 @@ Result<SurveyRows> ReadSurvey(const BuildOptions& o) {
   so.camera = o.camera;
   so.max_gap_s = o.max_gap_s;
   so.skip_bad = o.skip_bad;
-  std::unique_ptr<Geoid> geoid;
-  if (Result<std::unique_ptr<Geoid>> g = Geoid::OpenEgm96(); g.ok()) geoid = std::move(g).value();
-  return LoadSurveyRows(so, geoid.get());
+  return LoadSurveyRows(so);
 }
 
 Result<int> NextMapVersion(const BuildOptions& o) {
@@ -547,6 +545,13 @@ LocalFeatures StoredFeatures(const ReferenceImage& img, const CameraModel& cam) 
   return f;
 }
 
+// A stored image's global code as a 1-row matrix (its own copy).
+cv::Mat CodeRow(const ReferenceImage& img) {
+  return cv::Mat(1, static_cast<int>(img.global_code.size()), CV_8U,
+                 const_cast<uint8_t*>(img.global_code.data()))
+      .clone();
+}
+
 // Appends a tile's images to a survey (rows, cameras, features) and their codes to *codes.
 void AppendTile(const TileData& t, Survey* s, cv::Mat* codes) {
   const int camera_base = static_cast<int>(s->cameras.size());
@@ -562,8 +567,7 @@ void AppendTile(const TileData& t, Survey* s, cv::Mat* codes) {
     s->attitude_sigma_deg.push_back(0);
     s->camera_of_row.push_back(camera_base + img.camera_id);
     s->features.push_back(StoredFeatures(img, t.cameras[img.camera_id]));
-    codes->push_back(cv::Mat(1, static_cast<int>(img.global_code.size()), CV_8U,
-                             const_cast<uint8_t*>(img.global_code.data())).clone());
+    codes->push_back(CodeRow(img));
   }
 }
 
@@ -642,9 +646,7 @@ Result<BuildSummary> AddToMap(const BuildOptions& o) {
     if (!tile.ok()) return tile.status();
     if (!touched.count(ct.key)) {
       CarriedTile c{ct, cv::Mat()};
-      for (const ReferenceImage& img : tile->images)
-        c.codes.push_back(cv::Mat(1, static_cast<int>(img.global_code.size()), CV_8U,
-                                  const_cast<uint8_t*>(img.global_code.data())).clone());
+      for (const ReferenceImage& img : tile->images) c.codes.push_back(CodeRow(img));
       carried.push_back(std::move(c));
       continue;
     }

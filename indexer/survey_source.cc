@@ -4,6 +4,7 @@
 #include <filesystem>
 
 #include "indexer/exif_gps.h"
+#include "indexer/geoid.h"
 #include "indexer/gpx_track.h"
 #include "indexer/rig.h"
 
@@ -60,7 +61,6 @@ Status PhotoRow(const SurveySourceOptions& o, const Geoid& geoid,
     if (!s.ok()) return Status::InvalidArgument(path.string() + ": " + s.status().message());
     lat = s->lat_deg, lon = s->lon_deg, msl = s->ele_m;
     if (!heading) heading = s->course_deg;
-    if (!exif->h_error_m) row->sigma_h_m = o.default_sigma_h_m;
   }
   if (!heading) return Status::InvalidArgument(path.string() + ": no GPSImgDirection (heading)");
   if (!std::isfinite(msl)) return Status::InvalidArgument(path.string() + ": no altitude");
@@ -95,7 +95,7 @@ const char* SurveyFormatName(SurveyFormat f) {
   return "?";
 }
 
-Result<SurveyRows> LoadSurveyRows(const SurveySourceOptions& o, const Geoid* geoid) {
+Result<SurveyRows> LoadSurveyRows(const SurveySourceOptions& o) {
   const fs::path dir(o.dir);
   if (!fs::is_directory(dir)) return Status::NotFound("no survey folder " + o.dir);
   SurveyRows out;
@@ -115,8 +115,8 @@ Result<SurveyRows> LoadSurveyRows(const SurveySourceOptions& o, const Geoid* geo
     if (!rows.ok()) return rows.status();
     out.rows = std::move(rows).value();
   } else {
-    if (!geoid)
-      return Status::NotFound("EXIF and GPX heights need the EGM96 geoid grid (Debian package proj-data)");
+    Result<std::unique_ptr<Geoid>> geoid = Geoid::OpenEgm96();  // only photos need it
+    if (!geoid.ok()) return geoid.status();
     std::vector<TrackPoint> track;
     if (out.format == SurveyFormat::kGpx) {
       Result<std::string> gpx = o.gpx.empty() ? OneGpxIn(dir) : Result<std::string>(o.gpx);
@@ -127,7 +127,7 @@ Result<SurveyRows> LoadSurveyRows(const SurveySourceOptions& o, const Geoid* geo
     }
     for (const std::string& image : JpegsUnder(dir)) {
       DriveRow row;
-      Status s = PhotoRow(o, *geoid, out.format == SurveyFormat::kGpx ? &track : nullptr, image, &row);
+      Status s = PhotoRow(o, **geoid, out.format == SurveyFormat::kGpx ? &track : nullptr, image, &row);
       if (!s.ok()) {
         if (!o.skip_bad) return s;
         out.problems.push_back(s.message());

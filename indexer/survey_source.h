@@ -9,14 +9,13 @@
 // EXIF and GPX carry no pitch or roll: those rows get pitch = roll = 0 and a wide attitude prior
 // (unknown_attitude_sigma_deg) for the bundle adjustment. All images of an exif or gpx survey
 // share one calibration (`camera`).
-// Thread safety: pure functions (the Geoid is shared read-only).
+// Thread safety: pure functions.
 #pragma once
 
 #include <string>
 #include <vector>
 
 #include "indexer/drive_manifest.h"
-#include "indexer/geoid.h"
 #include "indexer/status.h"
 
 namespace sightfix {
@@ -48,6 +47,7 @@ struct SurveyRows {
 
 // kNotFound when dir holds no survey; kInvalidArgument naming file and line (or image) for the
 // first bad row when skip_bad is false.
-Result<SurveyRows> LoadSurveyRows(const SurveySourceOptions& options, const Geoid* geoid);
+// exif and gpx forms open the EGM96 grid (kNotFound without proj-data); the others do not.
+Result<SurveyRows> LoadSurveyRows(const SurveySourceOptions& options);
 
 }  // namespace sightfix
