@@ -236,13 +236,20 @@ int Describe(int argc, char** argv) {
                       {"images", d->images()},
                       {"server_version", d->server_version()},
                       {"uptime_s", d->uptime_s()},
-                      {"tiles_cached", d->tiles_cached()}};
-  if (vm.count("json"))
+                      {"tiles_cached", d->tiles_cached()},
+                      {"tiles_checked", d->tiles_checked()},
+                      {"bad_tiles", nlohmann::json::array()}};
+  for (const auto& b : d->bad_tiles()) j["bad_tiles"].push_back({{"tile", b.tile()}, {"reason", b.reason()}});
+  if (vm.count("json")) {
     std::cout << j.dump(2) << "\n";
-  else
+  } else {
     std::printf("%s: map version %d (model %s), %d tiles, %d images, %d tiles cached, up %.0f s\n",
                 d->server_version().c_str(), d->map_version(), d->model_id().c_str(), d->tiles(),
                 d->images(), d->tiles_cached(), d->uptime_s());
+    std::printf("tiles checked: %d of %d; unusable: %d\n", d->tiles_checked(), d->tiles(),
+                d->bad_tiles_size());
+    for (const auto& b : d->bad_tiles()) std::printf("  %s %s\n", b.tile().c_str(), b.reason().c_str());
+  }
   return 0;
 }
 

@@ -14,12 +14,14 @@
 #include <filesystem>
 #include <fstream>
 #include <map>
+#include <optional>
 #include <nlohmann/json.hpp>
 #include <opencv2/imgcodecs.hpp>
 
 #include "indexer/drive_manifest.h"
 #include "indexer/geo.h"
 #include "indexer/iso_time.h"
+#include "indexer/map_lock.h"
 #include "indexer/map_store.h"
 #include "indexer/parallel.h"
 #include "indexer/progress.h"
@@ -358,14 +360,23 @@ Status Publish(const BuildOptions& o, const Built& b, const std::vector<TileKey>
   std::vector<faiss::Index::idx_t> ids;
   double local_bytes = 0, point_bytes = 0, file_bytes = 0;
   int written = 0;
+  // On a failure (a full disk, say) this run's files go again: the catalog never named them,
+  // and the map stays what it was.
+  std::vector<std::string> new_files;
+  auto undo = [&new_files](Status s) {
+    std::error_code ec;
+    for (const std::string& f : new_files) fs::remove(f, ec);
+    return s;
+  };
   for (const auto& [key, rows] : by_tile) {
     const TileData tile = MakeTile(b, key, rows);
     const std::string rel = TileFileName(key, b.map_version);
     const std::string path = (fs::path(o.map_dir) / rel).string();
-    if (Status s = WriteTile(path, tile); !s.ok()) return s;
+    if (Status s = WriteTile(path, tile); !s.ok()) return undo(s);
+    new_files.push_back(path);
     MaybeKillAt("tile:" + std::to_string(++written));
     Result<std::string> sha = Sha256OfFile(path);
-    if (!sha.ok()) return sha.status();
+    if (!sha.ok()) return undo(sha.status());
     const int ordinal = static_cast<int>(catalog.tiles.size());
     catalog.tiles.push_back({key, rel, *sha, static_cast<int>(tile.images.size()),
                              static_cast<int>(tile.points.size()), b.model_id});
@@ -394,7 +405,8 @@ Status Publish(const BuildOptions& o, const Built& b, const std::vector<TileKey>
   summary->point_bytes = point_bytes / n;
   summary->tile_file_bytes = file_bytes / n;
   MaybeKillAt("catalog");
-  return WriteCatalog((fs::path(o.map_dir) / "catalog.sqlite").string(), catalog);
+  Status s = WriteCatalog((fs::path(o.map_dir) / "catalog.sqlite").string(), catalog);
+  return s.ok() ? s : undo(s);
 }
 
 // After the switch: tile files no catalog entry names (the versions it replaced, leftovers of
@@ -468,6 +480,10 @@ Result<BuildSummary> BuildMap(const BuildOptions& o) {
   if (!o.Validate(&error)) return Status::InvalidArgument(error);
   PinLibraryThreads();  // DEVELOPERS.md, Threads
   const auto t_start = Clock::now();
+  std::error_code ec;
+  fs::create_directories(o.map_dir, ec);
+  Result<MapWriterLock> lock = MapWriterLock::Acquire(o.map_dir);
+  if (!lock.ok()) return lock.status();
   Result<int> version = NextMapVersion(o);
   if (!version.ok()) return version.status();
   BuildSummary summary;
@@ -571,9 +587,13 @@ void AppendTile(const TileData& t, Survey* s, cv::Mat* codes) {
   }
 }
 
-Result<Catalog> ExistingCatalog(const BuildOptions& o) {
+// The map's catalog, read under the writer lock (taken here, held by the caller for its run).
+Result<Catalog> ExistingCatalog(const BuildOptions& o, std::optional<MapWriterLock>* lock) {
   const std::string path = (fs::path(o.map_dir) / "catalog.sqlite").string();
   if (!fs::exists(path)) return Status::NotFound("no map in " + o.map_dir + " (no catalog.sqlite)");
+  Result<MapWriterLock> held = MapWriterLock::Acquire(o.map_dir);
+  if (!held.ok()) return held.status();
+  lock->emplace(std::move(held).value());
   return ReadCatalog(path);
 }
 
@@ -619,7 +639,8 @@ Result<BuildSummary> AddToMap(const BuildOptions& o) {
   if (!o.Validate(&error)) return Status::InvalidArgument(error);
   PinLibraryThreads();
   const auto t_start = Clock::now();
-  Result<Catalog> old = ExistingCatalog(o);
+  std::optional<MapWriterLock> lock;
+  Result<Catalog> old = ExistingCatalog(o, &lock);
   if (!old.ok()) return old.status();
   Result<GlobalDescriptor> model = GlobalDescriptor::Deserialize(old->model_blob);
   if (!model.ok()) return model.status();
@@ -693,7 +714,8 @@ Result<BuildSummary> AddToMap(const BuildOptions& o) {
 Result<BuildSummary> RetrainMap(const BuildOptions& o) {
   PinLibraryThreads();
   const auto t_start = Clock::now();
-  Result<Catalog> old = ExistingCatalog(o);
+  std::optional<MapWriterLock> lock;
+  Result<Catalog> old = ExistingCatalog(o, &lock);
   if (!old.ok()) return old.status();
   Survey all;
   cv::Mat old_codes;

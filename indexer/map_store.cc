@@ -30,6 +30,9 @@ Result<Db> OpenDb(const std::string& path, bool write) {
   if (rc != SQLITE_OK)
     return Status::IoError("cannot open " + path + ": " +
                            (raw ? sqlite3_errmsg(raw) : sqlite3_errstr(rc)));
+  // Another process holding a lock on the file (an operator's sqlite3 shell, say) is waited
+  // for this long, then the call fails with "database is locked".
+  sqlite3_busy_timeout(raw, 3000);
   return db;
 }
 
@@ -44,11 +47,29 @@ Status Exec(sqlite3* db, const std::string& sql) {
   return Status::Ok();
 }
 
+// A failed SQLite call as a Status: another process's lock is an I/O condition (try again
+// later), anything else means the file is not what it should be.
+Status SqliteError(sqlite3* db, int rc, const std::string& what) {
+  const std::string m = std::string("sqlite: ") + sqlite3_errmsg(db) + " in: " + what;
+  const int primary = rc & 0xff;
+  if (primary == SQLITE_BUSY || primary == SQLITE_LOCKED || primary == SQLITE_IOERR ||
+      primary == SQLITE_NOMEM || primary == SQLITE_CANTOPEN)
+    return Status::IoError(m);
+  return Status::Corrupt(m);
+}
+
 Result<Stmt> Prepare(sqlite3* db, const std::string& sql) {
   sqlite3_stmt* s = nullptr;
-  if (sqlite3_prepare_v2(db, sql.c_str(), -1, &s, nullptr) != SQLITE_OK)
-    return Status::Corrupt(std::string("sqlite: ") + sqlite3_errmsg(db) + " in: " + sql);
+  if (int rc = sqlite3_prepare_v2(db, sql.c_str(), -1, &s, nullptr); rc != SQLITE_OK) {
+    sqlite3_finalize(s);
+    return SqliteError(db, rc, sql);
+  }
   return Stmt(s);
+}
+
+// After a `while (step == SQLITE_ROW)` loop: OK only when the table was read to its end.
+Status Finished(sqlite3* db, int rc, const char* table) {
+  return rc == SQLITE_DONE ? Status::Ok() : SqliteError(db, rc, std::string("reading ") + table);
 }
 
 // Binds values by position (1-based) in order; blobs are copied by SQLite.
@@ -121,9 +142,16 @@ Status WriteAtomically(const std::string& path, Fn write) {
       return s;
     }
   }
-  if (Status s = FsyncFile(tmp); !s.ok()) return s;
+  if (Status s = FsyncFile(tmp); !s.ok()) {
+    fs::remove(tmp, ec);
+    return s;
+  }
   fs::rename(tmp, path, ec);
-  if (ec) return Status::IoError("cannot rename " + tmp + ": " + ec.message());
+  if (ec) {
+    const std::string why = ec.message();
+    fs::remove(tmp, ec);
+    return Status::IoError("cannot rename " + tmp + ": " + why);
+  }
   return Status::Ok();
 }
 
@@ -216,8 +244,10 @@ Result<std::vector<std::pair<std::string, std::string>>> ReadMeta(sqlite3* db) {
   Result<Stmt> st = Prepare(db, "SELECT key, value FROM meta");
   if (!st.ok()) return st.status();
   std::vector<std::pair<std::string, std::string>> kv;
-  while (sqlite3_step(st->get()) == SQLITE_ROW)
+  int rc;
+  while ((rc = sqlite3_step(st->get())) == SQLITE_ROW)
     kv.emplace_back(ColumnText(st->get(), 0), ColumnText(st->get(), 1));
+  if (Status f = Finished(db, rc, "meta"); !f.ok()) return f;
   return kv;
 }
 
@@ -232,7 +262,9 @@ Status ReadImages(sqlite3* db, const std::string& path, TileData* t) {
   Result<Stmt> st = Prepare(db, "SELECT * FROM images ORDER BY id");
   if (!st.ok()) return st.status();
   sqlite3_stmt* s = st->get();
-  while (sqlite3_step(s) == SQLITE_ROW) {
+  if (sqlite3_column_count(s) != 15) return Status::Corrupt(path + ": images table has another shape");
+  int rc;
+  while ((rc = sqlite3_step(s)) == SQLITE_ROW) {
     ReferenceImage r;
     r.id = sqlite3_column_int(s, 0);
     r.name = ColumnText(s, 1);
@@ -254,6 +286,7 @@ Status ReadImages(sqlite3* db, const std::string& path, TileData* t) {
     if (!desc.empty()) std::memcpy(r.descriptors.data, desc.data(), desc.size());
     t->images.push_back(std::move(r));
   }
+  if (Status f = Finished(db, rc, "images"); !f.ok()) return f;
   return Status::Ok();
 }
 
@@ -263,7 +296,8 @@ Status ReadPoints(sqlite3* db, const std::string& path, TileData* t) {
                             "ORDER BY id");
   if (!st.ok()) return st.status();
   sqlite3_stmt* s = st->get();
-  while (sqlite3_step(s) == SQLITE_ROW) {
+  int rc;
+  while ((rc = sqlite3_step(s)) == SQLITE_ROW) {
     MapPoint p;
     p.enu = {sqlite3_column_double(s, 0), sqlite3_column_double(s, 1), sqlite3_column_double(s, 2)};
     std::vector<float> c;
@@ -276,6 +310,7 @@ Status ReadPoints(sqlite3* db, const std::string& path, TileData* t) {
     p.observations = sqlite3_column_int(s, 5);
     t->points.push_back(std::move(p));
   }
+  if (Status f = Finished(db, rc, "points"); !f.ok()) return f;
   for (const ReferenceImage& r : t->images)
     for (int32_t id : r.point_ids)
       if (id < -1 || id >= static_cast<int32_t>(t->points.size()))
@@ -287,7 +322,9 @@ Status ReadCameras(sqlite3* db, const std::string& path, TileData* t) {
   Result<Stmt> st = Prepare(db, "SELECT * FROM cameras ORDER BY id");
   if (!st.ok()) return st.status();
   sqlite3_stmt* s = st->get();
-  while (sqlite3_step(s) == SQLITE_ROW) {
+  if (sqlite3_column_count(s) != 13) return Status::Corrupt(path + ": cameras table has another shape");
+  int rc;
+  while ((rc = sqlite3_step(s)) == SQLITE_ROW) {
     CameraModel c;
     c.width_px = sqlite3_column_int(s, 1);
     c.height_px = sqlite3_column_int(s, 2);
@@ -303,6 +340,7 @@ Status ReadCameras(sqlite3* db, const std::string& path, TileData* t) {
     if (!c.IsValid(&error)) return Status::Corrupt(path + ": camera: " + error);
     t->cameras.push_back(c);
   }
+  if (Status f = Finished(db, rc, "cameras"); !f.ok()) return f;
   return Status::Ok();
 }
 
@@ -339,6 +377,8 @@ Result<TileData> ReadTile(const std::string& path) {
   Result<Db> db = OpenDb(path, false);
   if (!db.ok()) return db.status();
   auto meta = ReadMeta(db->get());
+  if (!meta.ok() && meta.status().code() != StatusCode::kCorrupt)
+    return Status(meta.status().code(), path + ": " + meta.status().message());
   if (!meta.ok())
     return Status::Corrupt(path + ": not a sightfix tile (" + meta.status().message() + ")");
   if (MetaValue(*meta, "format_version") != std::to_string(kMapFormatVersion))
@@ -400,7 +440,9 @@ Result<Catalog> ReadCatalog(const std::string& path) {
   Result<Db> db = OpenDb(path, false);
   if (!db.ok()) return db.status();
   auto meta = ReadMeta(db->get());
-  if (!meta.ok()) return Status::Corrupt(path + ": not a sightfix catalog");
+  if (!meta.ok() && meta.status().code() != StatusCode::kCorrupt)
+    return Status(meta.status().code(), path + ": " + meta.status().message());
+  if (!meta.ok()) return Status::Corrupt(path + ": not a sightfix catalog (" + meta.status().message() + ")");
   Catalog c;
   c.format_version = std::atoi(MetaValue(*meta, "format_version").c_str());
   if (c.format_version != kMapFormatVersion)
@@ -423,19 +465,24 @@ Result<Catalog> ReadCatalog(const std::string& path) {
                            "SELECT ordinal, tile, file, sha256, images, points, "
                            "model_id FROM tiles ORDER BY ordinal");
   if (!t.ok()) return t.status();
-  while (sqlite3_step(t->get()) == SQLITE_ROW) {
+  int rc;
+  while ((rc = sqlite3_step(t->get())) == SQLITE_ROW) {
     CatalogTile ct;
     auto key = ParseTileKey(ColumnText(t->get(), 1));
     if (!key.ok() || sqlite3_column_int(t->get(), 0) != static_cast<int>(c.tiles.size()))
       return Status::Corrupt(path + ": bad tile row " + std::to_string(c.tiles.size()));
     ct.key = *key;
     ct.file = ColumnText(t->get(), 2);
+    if (ct.file.rfind("tiles/", 0) != 0 || ct.file.find("..") != std::string::npos)
+      return Status::Corrupt(path + ": tile row " + std::to_string(c.tiles.size()) +
+                             " names a file outside tiles/");
     ct.sha256 = ColumnText(t->get(), 3);
     ct.images = sqlite3_column_int(t->get(), 4);
     ct.points = sqlite3_column_int(t->get(), 5);
     ct.model_id = ColumnText(t->get(), 6);
     c.tiles.push_back(ct);
   }
+  if (Status f = Finished(db->get(), rc, "tiles"); !f.ok()) return f;
   Result<Stmt> g = Prepare(db->get(), "SELECT faiss_index FROM global_index WHERE id = 0");
   if (!g.ok()) return g.status();
   if (sqlite3_step(g->get()) == SQLITE_ROW) c.global_index = ColumnBlob(g->get(), 0);

@@ -147,6 +147,9 @@ Localizer::~Localizer() = default;
 const Catalog& Localizer::catalog() const { return impl_->catalog; }
 const LocalizerOptions& Localizer::options() const { return impl_->o; }
 int Localizer::tiles_cached() const { return impl_->cache->cached_tiles(); }
+Status Localizer::CheckTile(int ordinal) const { return impl_->cache->Check(ordinal); }
+std::vector<TileProblem> Localizer::TileProblems() const { return impl_->cache->Problems(); }
+int Localizer::tiles_checked() const { return impl_->cache->checked_tiles(); }
 
 std::optional<CameraModel> Localizer::TileCamera(const std::string& tile, int index) const {
   for (size_t i = 0; i < impl_->catalog.tiles.size(); ++i) {

@@ -31,6 +31,7 @@
 #include "indexer/map_store.h"
 #include "indexer/rotation.h"
 #include "indexer/status.h"
+#include "server/tile_cache.h"
 
 namespace sightfix {
 
@@ -135,6 +136,11 @@ class Localizer {
   const Catalog& catalog() const;
   const LocalizerOptions& options() const;
   int tiles_cached() const;  // tiles in memory now
+  // Health of the map's files (server/tile_cache.h): checks one tile's file without loading it,
+  // lists the tiles refused so far, counts the tiles checked.
+  Status CheckTile(int ordinal) const;
+  std::vector<TileProblem> TileProblems() const;
+  int tiles_checked() const;
   // Calibration `index` of the tile "z/x/y", through the tile cache; nullopt when unknown.
   std::optional<CameraModel> TileCamera(const std::string& tile, int index) const;
 

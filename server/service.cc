@@ -63,7 +63,8 @@ class Metrics {
     for (size_t i = 0; i < std::size(kLatencyBuckets); ++i)
       if (seconds <= kLatencyBuckets[i]) ++buckets_[i];
   }
-  std::string Text(int queue_depth, int connections, int tiles_cached, int map_version) const {
+  std::string Text(int queue_depth, int connections, int tiles_cached, int tiles_bad,
+                   int map_version) const {
     std::lock_guard<std::mutex> lock(mu_);
     std::string t =
         "# HELP sightfix_calls_total Calls answered, by method and status.\n"
@@ -89,6 +90,7 @@ class Metrics {
     gauge("sightfix_queue_depth", "Calls waiting for a worker.", queue_depth);
     gauge("sightfix_connections", "Open client connections.", connections);
     gauge("sightfix_tiles_cached", "Map tiles in memory.", tiles_cached);
+    gauge("sightfix_tiles_bad", "Map tiles refused: missing, damaged or unreadable.", tiles_bad);
     gauge("sightfix_map_version", "Version of the map being served.", map_version);
     return t;
   }
@@ -134,6 +136,15 @@ struct Service::Impl {
 
   std::atomic<int> connections{0};
   std::atomic<bool> draining{false};
+
+  // The scrub: one background thread checks every tile file of the map being served against
+  // the catalog's SHA-256, so /healthz and Describe name bad tiles before a call needs them.
+  std::mutex scrub_mu;  // guards the three below
+  std::thread scrubber;
+  std::shared_ptr<std::atomic<bool>> scrub_stop;
+  void StartScrub(std::shared_ptr<const Localizer> loc);
+  void StopScrub();
+  std::string HealthText(bool* ok);
 
   std::shared_ptr<const Localizer> Current() {
     std::lock_guard<std::mutex> lock(map_mu);
@@ -289,10 +300,10 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
     res->keep_alive(false);
     const std::string target(request_.target());
     if (target == "/healthz") {
-      const bool ok = !svc_->draining;
+      bool ok = false;
+      res->body() = svc_->HealthText(&ok);
       res->result(ok ? http::status::ok : http::status::service_unavailable);
       res->set(http::field::content_type, "text/plain");
-      res->body() = ok ? "ok\n" : "draining\n";
     } else if (target == "/metrics") {
       std::shared_ptr<const Localizer> loc = svc_->Current();
       int depth;
@@ -303,6 +314,7 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
       res->result(http::status::ok);
       res->set(http::field::content_type, "text/plain; version=0.0.4");
       res->body() = svc_->metrics.Text(depth, svc_->connections, loc->tiles_cached(),
+                                       static_cast<int>(loc->TileProblems().size()),
                                        loc->catalog().map_version);
     } else {
       res->result(http::status::not_found);
@@ -394,6 +406,7 @@ bool ServiceOptions::Validate(std::string* error) const {
 Service::Service(std::unique_ptr<Impl> impl) : impl_(std::move(impl)) {}
 
 Service::~Service() {
+  impl_->StopScrub();
   {
     std::lock_guard<std::mutex> lock(impl_->queue_mu);
     impl_->stopping_workers = true;
@@ -428,6 +441,7 @@ Result<std::unique_ptr<Service>> Service::Create(const ServiceOptions& o) {
   if (!loc.ok()) return loc.status();
   impl->localizer = std::move(loc).value();
   if (Status s = Bind(impl->acceptor, o.listen); !s.ok()) return s;
+  impl->StartScrub(impl->localizer);
   if (!o.http.empty())
     if (Status s = Bind(impl->http_acceptor, o.http); !s.ok()) return s;
   for (int i = 0; i < ThreadCount(o.workers); ++i)
@@ -496,7 +510,53 @@ std::string Service::Impl::DescribeBody() {
   r.set_server_version(kServerVersion);
   r.set_uptime_s(std::chrono::duration<double>(Clock::now() - started).count());
   r.set_tiles_cached(loc->tiles_cached());
+  for (const TileProblem& p : loc->TileProblems()) {
+    v1::TileProblem* b = r.add_bad_tiles();
+    b->set_tile(p.tile);
+    b->set_reason(p.reason);
+  }
+  r.set_tiles_checked(loc->tiles_checked());
   return r.SerializeAsString();
+}
+
+void Service::Impl::StartScrub(std::shared_ptr<const Localizer> loc) {
+  std::lock_guard<std::mutex> lock(scrub_mu);
+  if (scrub_stop) scrub_stop->store(true);
+  if (scrubber.joinable()) scrubber.join();
+  scrub_stop = std::make_shared<std::atomic<bool>>(false);
+  scrubber = std::thread([loc = std::move(loc), stop = scrub_stop] {
+    const int n = static_cast<int>(loc->catalog().tiles.size());
+    for (int i = 0; i < n && !stop->load(); ++i) loc->CheckTile(i);
+  });
+}
+
+void Service::Impl::StopScrub() {
+  std::lock_guard<std::mutex> lock(scrub_mu);
+  if (scrub_stop) scrub_stop->store(true);
+  if (scrubber.joinable()) scrubber.join();
+}
+
+// 200 while the service answers calls from at least one usable tile ("ok", or "degraded" with
+// the bad tiles named, one per line); 503 while draining or when no tile is usable.
+std::string Service::Impl::HealthText(bool* ok) {
+  if (draining) {
+    *ok = false;
+    return "draining\n";
+  }
+  std::shared_ptr<const Localizer> loc = Current();
+  const std::vector<TileProblem> bad = loc->TileProblems();
+  const int tiles = static_cast<int>(loc->catalog().tiles.size());
+  const std::string checked =
+      " (" + std::to_string(loc->tiles_checked()) + " of " + std::to_string(tiles) + " tiles checked)\n";
+  if (bad.empty()) {
+    *ok = true;
+    return "ok" + checked;
+  }
+  *ok = static_cast<int>(bad.size()) < tiles;
+  std::string t = (*ok ? "degraded: " : "failing: ") + std::to_string(bad.size()) + " of " +
+                  std::to_string(tiles) + " tiles unusable" + checked;
+  for (const TileProblem& p : bad) t += p.tile + " " + p.reason + "\n";
+  return t;
 }
 
 std::string Service::Impl::ListTilesBody() {
@@ -657,6 +717,7 @@ Status Service::Reload() {
     std::lock_guard<std::mutex> lock(impl_->map_mu);
     impl_->localizer = fresh;
   }
+  impl_->StartScrub(fresh);
   std::fprintf(stderr, "{\"event\":\"reloaded\",\"map_version\":%d}\n",
                fresh->catalog().map_version);
   return Status::Ok();
