@@ -1,6 +1,7 @@
 #include "client/client.h"
 
 #include <boost/asio.hpp>
+#include <chrono>
 #include <map>
 #include <mutex>
 #include <thread>
@@ -15,6 +16,7 @@ using tcp = asio::ip::tcp;
 
 // One live connection with its reader thread; replaced whole on reconnect.
 struct Connection {
+  uint32_t max_answer_bytes = 0;
   asio::io_context io;
   tcp::socket socket{io};
   std::thread reader;
@@ -43,7 +45,10 @@ struct Connection {
       boost::system::error_code ec;
       asio::read(socket, asio::buffer(header), ec);
       if (ec) return Fail("connection lost: " + ec.message());
-      std::string body(FrameLength(header), '\0');
+      const uint32_t n = FrameLength(header);
+      if (n > max_answer_bytes)
+        return Fail("server sent a frame of " + std::to_string(n) + " bytes, over the cap");
+      std::string body(n, '\0');
       asio::read(socket, asio::buffer(body), ec);
       if (ec) return Fail("connection lost: " + ec.message());
       Result<v1::Envelope> env = ParseEnvelope(body.data(), body.size());
@@ -78,6 +83,7 @@ struct Client::Impl {
       if (!conn->dead) return conn;
     }
     auto c = std::make_shared<Connection>();
+    c->max_answer_bytes = o.max_answer_bytes;
     boost::system::error_code ec;
     tcp::resolver resolver(c->io);
     auto endpoints = resolver.resolve(o.host, std::to_string(o.port), ec);
@@ -132,17 +138,41 @@ struct Client::Impl {
   }
 
   Result<Answer> Call(const std::string& method, const std::string& body, int deadline_ms) {
+    const auto start = std::chrono::steady_clock::now();
+    auto elapsed_ms = [&] {
+      return std::chrono::duration_cast<std::chrono::milliseconds>(std::chrono::steady_clock::now() - start)
+          .count();
+    };
     Result<Answer> last = Status::IoError("no attempt made");
-    for (int attempt = 0; attempt <= o.retries; ++attempt) {
+    int backoff_ms = o.retry_backoff_ms;
+    for (int attempt = 0;; ++attempt) {
       std::shared_ptr<Connection> used;
-      std::future<Result<Answer>> f = Send(method, body, deadline_ms, &used);
+      const int left_ms = std::max<int>(1, deadline_ms - static_cast<int>(elapsed_ms()));
+      std::future<Result<Answer>> f = Send(method, body, left_ms, &used);
       // The server answers DEADLINE_EXCEEDED itself; the margin covers the network.
-      if (f.wait_for(std::chrono::milliseconds(deadline_ms + 2000)) != std::future_status::ready)
+      if (f.wait_for(std::chrono::milliseconds(left_ms + 2000)) != std::future_status::ready)
         return Status::Internal(method + ": no answer within the deadline");
       last = f.get();
-      if (last.ok() || last.status().code() != StatusCode::kIoError) return last;
+      const bool shutting_down = last.ok() && last->code == v1::Status::UNAVAILABLE;
+      if (shutting_down && used) {  // this server is draining: the next attempt reconnects
+        boost::system::error_code ignored;
+        used->socket.shutdown(tcp::socket::shutdown_both, ignored);
+        std::lock_guard<std::mutex> lock(used->mu);
+        used->dead = true;
+      }
+      if (!shutting_down && (last.ok() || last.status().code() != StatusCode::kIoError)) return last;
+      // Lost or refused connection, or a server shutting down: again after a pause, while the
+      // deadline leaves time.
+      if (attempt >= o.retries || elapsed_ms() + backoff_ms >= deadline_ms) {
+        if (shutting_down) return last;  // the server's own answer says why
+        break;
+      }
+      std::this_thread::sleep_for(std::chrono::milliseconds(backoff_ms));
+      backoff_ms = std::min(2 * backoff_ms, 2000);
     }
-    return last;
+    return Status::IoError(method + ": no answer from " + o.host + ":" + std::to_string(o.port) +
+                           " after retrying for " + std::to_string(elapsed_ms()) +
+                           " ms (server down or restarting?): " + last.status().message());
   }
 };
 

@@ -1,0 +1,14 @@
+// libFuzzer target: a calibration file (OpenCV FileStorage YAML, pinhole or fisheye). Invariant:
+// a calibration that loads is valid and projects its own principal ray to the principal point.
+#include <cmath>
+
+#include "indexer/camera_model.h"
+#include "tests/fuzz/fuzz_input.h"
+
+extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
+  using namespace sightfix;
+  auto cam = LoadCameraModel(fuzz::WriteInput("camera.yml", data, size));
+  if (!cam.ok()) return 0;
+  FUZZ_CHECK(cam->IsValid(nullptr));
+  return 0;
+}
