@@ -2,6 +2,8 @@
 
 #include <cmath>
 
+#include "indexer/yaml_file.h"
+
 namespace sightfix {
 
 bool CameraModel::IsValid(std::string* error) const {
@@ -68,49 +70,78 @@ cv::Point2d CameraModel::PixelToNormalized(const cv::Point2d& pixel) const {
   return Undistort({(pixel.x - cx) / fx, (pixel.y - cy) / fy});
 }
 
+namespace {
+
+Result<CameraModel> ReadCalibration(const std::string& path) {
+  // yaml-cpp, not cv::FileStorage: indexer/yaml_file.h says why.
+  Result<YAML::Node> doc = LoadYamlFile(path);
+  if (!doc.ok())
+    return doc.status().code() == StatusCode::kNotFound
+               ? Status::NotFound("cannot open calibration file " + path)
+               : doc.status();
+  const YAML::Node& fs = *doc;
+  auto fail = [&](const Status& s) { return Status::InvalidArgument(path + ": " + s.message()); };
+  CameraModel cam;
+  Result<double> w = YamlNumber(fs["image_width"], "image_width");
+  Result<double> h = YamlNumber(fs["image_height"], "image_height");
+  if (!w.ok()) return fail(w.status());
+  if (!h.ok()) return fail(h.status());
+  if (*w < 1 || *w > 100000 || *h < 1 || *h > 100000 || *w != std::floor(*w) || *h != std::floor(*h))
+    return Status::InvalidArgument(path + ": image_width and image_height must be whole numbers of pixels");
+  cam.width_px = static_cast<int>(*w);
+  cam.height_px = static_cast<int>(*h);
+  int rows = 0, cols = 0;
+  Result<std::vector<double>> k = YamlMatrix(fs["camera_matrix"], "camera_matrix", &rows, &cols);
+  if (!k.ok()) return fail(k.status());
+  if (rows != 3 || cols != 3) return Status::InvalidArgument(path + ": camera_matrix must be 3x3");
+  cam.fx = (*k)[0];
+  cam.fy = (*k)[4];
+  cam.cx = (*k)[2];
+  cam.cy = (*k)[5];
+  std::vector<double> d;
+  if (fs["distortion_coefficients"]) {
+    Result<std::vector<double>> dd = YamlMatrix(fs["distortion_coefficients"], "distortion_coefficients", nullptr, nullptr);
+    if (!dd.ok()) return fail(dd.status());
+    d = *dd;
+  }
+  std::string model;
+  if (fs["distortion_model"]) {
+    Result<std::string> m = YamlText(fs["distortion_model"], "distortion_model");
+    if (!m.ok()) return fail(m.status());
+    model = *m;
+  }
+  double fisheye_flag = 0;
+  if (fs["fisheye_model"]) {
+    Result<double> f = YamlNumber(fs["fisheye_model"], "fisheye_model");
+    if (!f.ok()) return fail(f.status());
+    fisheye_flag = *f;
+  }
+  if (model == "fisheye" || fisheye_flag != 0) {
+    cam.lens = LensModel::kFisheye;
+    if (d.size() != 4)
+      return Status::InvalidArgument(path + ": a fisheye calibration needs 4 distortion_coefficients");
+    for (int i = 0; i < 4; ++i) cam.distortion[i] = d[i];
+  } else if (!model.empty() && model != "pinhole") {
+    return Status::InvalidArgument(path + ": distortion_model must be pinhole or fisheye");
+  } else if (!d.empty()) {
+    const int n = static_cast<int>(d.size());
+    if (n != 4 && n != 5 && n != 8)
+      return Status::InvalidArgument(path + ": distortion_coefficients must have 4, 5 or 8 values");
+    if (n == 8 && (d[5] != 0 || d[6] != 0 || d[7] != 0))
+      return Status::InvalidArgument(path + ": the rational model (k4..k6) is not supported");
+    for (int i = 0; i < std::min(n, 5); ++i) cam.distortion[i] = d[i];
+  }
+  std::string error;
+  if (!cam.IsValid(&error)) return Status::InvalidArgument(path + ": " + error);
+  return cam;
+}
+
+}  // namespace
+
 Result<CameraModel> LoadCameraModel(const std::string& path) {
   try {
-    cv::FileStorage fs(path, cv::FileStorage::READ);
-    if (!fs.isOpened()) return Status::NotFound("cannot open calibration file " + path);
-    cv::Mat k, d;
-    fs["camera_matrix"] >> k;
-    fs["distortion_coefficients"] >> d;
-    CameraModel cam;
-    fs["image_width"] >> cam.width_px;
-    fs["image_height"] >> cam.height_px;
-    if (k.rows != 3 || k.cols != 3)
-      return Status::InvalidArgument(path + ": camera_matrix must be 3x3");
-    k.convertTo(k, CV_64F);
-    cam.fx = k.at<double>(0, 0);
-    cam.fy = k.at<double>(1, 1);
-    cam.cx = k.at<double>(0, 2);
-    cam.cy = k.at<double>(1, 2);
-    std::string model;
-    int fisheye_flag = 0;
-    if (!fs["distortion_model"].empty()) fs["distortion_model"] >> model;
-    if (!fs["fisheye_model"].empty()) fs["fisheye_model"] >> fisheye_flag;
-    if (model == "fisheye" || fisheye_flag != 0) {
-      cam.lens = LensModel::kFisheye;
-      d.convertTo(d, CV_64F);
-      if (d.total() != 4)
-        return Status::InvalidArgument(path + ": a fisheye calibration needs 4 distortion_coefficients");
-      for (int i = 0; i < 4; ++i) cam.distortion[i] = d.at<double>(i);
-    } else if (!model.empty() && model != "pinhole") {
-      return Status::InvalidArgument(path + ": distortion_model must be pinhole or fisheye");
-    } else if (!d.empty()) {
-      d.convertTo(d, CV_64F);
-      const int n = static_cast<int>(d.total());
-      if (n != 4 && n != 5 && n != 8)
-        return Status::InvalidArgument(path +
-                                       ": distortion_coefficients must have 4, 5 or 8 values");
-      if (n == 8 && (d.at<double>(5) != 0 || d.at<double>(6) != 0 || d.at<double>(7) != 0))
-        return Status::InvalidArgument(path + ": the rational model (k4..k6) is not supported");
-      for (int i = 0; i < std::min(n, 5); ++i) cam.distortion[i] = d.at<double>(i);
-    }
-    std::string error;
-    if (!cam.IsValid(&error)) return Status::InvalidArgument(path + ": " + error);
-    return cam;
-  } catch (const cv::Exception& e) {
+    return ReadCalibration(path);
+  } catch (const std::exception& e) {  // a yaml-cpp accessor on a malformed node
     return Status::InvalidArgument(path + ": unreadable calibration: " + e.what());
   }
 }

@@ -118,7 +118,7 @@ Result<ExifGps> ReadExifGps(const std::string& path, bool require_position) {
     if (!t.ok()) return Status::InvalidArgument(path + ": " + t.status().message());
     g.time_s = *t;
     return g;
-  } catch (const Exiv2::Error& e) {
+  } catch (const std::exception& e) {  // Exiv2::Error, or the library's own std:: errors
     return Status::NotFound(path + ": cannot read EXIF: " + e.what());
   }
 }

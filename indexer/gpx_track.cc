@@ -39,6 +39,8 @@ Result<std::vector<TrackPoint>> ReadGpxTrack(const std::string& path) {
     pt::read_xml(in, doc);
   } catch (const pt::xml_parser_error& e) {
     return Status::InvalidArgument(path + ":" + std::to_string(e.line()) + ": " + e.message());
+  } catch (const std::exception& e) {
+    return Status::InvalidArgument(path + ": unreadable GPX: " + e.what());
   }
   const auto gpx = doc.get_child_optional("gpx");
   if (!gpx) return Status::InvalidArgument(path + ": no <gpx> element");

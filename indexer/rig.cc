@@ -9,6 +9,7 @@
 
 #include "indexer/csv.h"
 #include "indexer/iso_time.h"
+#include "indexer/yaml_file.h"
 
 namespace sightfix {
 namespace {
@@ -49,38 +50,59 @@ struct TimedImage {
 
 }  // namespace
 
-Result<Rig> LoadRig(const std::string& path) {
+namespace {
+
+Result<Rig> ReadRig(const std::string& path) {
   Rig rig;
   rig.dir = fs::path(path).parent_path().string();
-  try {
-    cv::FileStorage fsr(path, cv::FileStorage::READ);
-    if (!fsr.isOpened()) return Status::NotFound("cannot open rig file " + path);
-    fsr["ins"] >> rig.ins;
-    if (rig.ins.empty()) return Status::InvalidArgument(path + ": no 'ins' (the INS pose log)");
-    cv::FileNode cams = fsr["cameras"];
-    if (!cams.isSeq() || cams.size() == 0) return Status::InvalidArgument(path + ": no 'cameras' list");
-    for (const cv::FileNode& c : cams) {
-      RigCamera cam;
-      c["name"] >> cam.name;
-      c["calibration"] >> cam.calibration;
-      c["images"] >> cam.images;
-      std::vector<double> arm, bore;
-      c["lever_arm_m"] >> arm;
-      c["boresight_deg"] >> bore;
-      if (!c["time_offset_s"].empty()) c["time_offset_s"] >> cam.time_offset_s;
-      const std::string where = path + ": camera '" + cam.name + "': ";
-      if (cam.name.empty() || cam.calibration.empty() || cam.images.empty())
+  Result<YAML::Node> doc = LoadYamlFile(path);  // not cv::FileStorage: indexer/yaml_file.h
+  if (!doc.ok())
+    return doc.status().code() == StatusCode::kNotFound ? Status::NotFound("cannot open rig file " + path)
+                                                        : doc.status();
+  Result<std::string> ins = YamlText((*doc)["ins"], "ins");
+  if (!ins.ok() || ins->empty()) return Status::InvalidArgument(path + ": no 'ins' (the INS pose log)");
+  rig.ins = *ins;
+  const YAML::Node cams = (*doc)["cameras"];
+  if (!cams || !cams.IsSequence() || cams.size() == 0)
+    return Status::InvalidArgument(path + ": no 'cameras' list");
+  for (size_t i = 0; i < cams.size(); ++i) {
+    const YAML::Node c = cams[i];
+    RigCamera cam;
+    const std::string where = path + ": camera " + std::to_string(i + 1) + ": ";
+    if (!c.IsMap()) return Status::InvalidArgument(where + "must be a mapping");
+    for (auto [key, out] : {std::pair<const char*, std::string*>{"name", &cam.name},
+                            {"calibration", &cam.calibration},
+                            {"images", &cam.images}}) {
+      Result<std::string> v = YamlText(c[key], key);
+      if (!v.ok() || v->empty())
         return Status::InvalidArgument(where + "needs name, calibration and images");
-      if (arm.size() != 3 || bore.size() != 3)
-        return Status::InvalidArgument(where + "lever_arm_m and boresight_deg need 3 numbers");
-      cam.lever_arm_m = {arm[0], arm[1], arm[2]};
-      cam.boresight = {bore[0], bore[1], bore[2]};
-      rig.cameras.push_back(cam);
+      *out = *v;
     }
-  } catch (const cv::Exception& e) {
-    return Status::InvalidArgument(path + ": " + e.what());
+    int rows = 0, cols = 0;
+    Result<std::vector<double>> arm = YamlMatrix(c["lever_arm_m"], "lever_arm_m", &rows, &cols);
+    Result<std::vector<double>> bore = YamlMatrix(c["boresight_deg"], "boresight_deg", &rows, &cols);
+    if (!arm.ok() || !bore.ok() || arm->size() != 3 || bore->size() != 3)
+      return Status::InvalidArgument(where + "lever_arm_m and boresight_deg need 3 numbers");
+    if (c["time_offset_s"]) {
+      Result<double> t = YamlNumber(c["time_offset_s"], "time_offset_s");
+      if (!t.ok()) return Status::InvalidArgument(where + t.status().message());
+      cam.time_offset_s = *t;
+    }
+    cam.lever_arm_m = {(*arm)[0], (*arm)[1], (*arm)[2]};
+    cam.boresight = {(*bore)[0], (*bore)[1], (*bore)[2]};
+    rig.cameras.push_back(cam);
   }
   return rig;
+}
+
+}  // namespace
+
+Result<Rig> LoadRig(const std::string& path) {
+  try {
+    return ReadRig(path);
+  } catch (const std::exception& e) {  // a yaml-cpp accessor on a malformed node
+    return Status::InvalidArgument(path + ": unreadable rig file: " + e.what());
+  }
 }
 
 Result<std::vector<InsPose>> ReadInsLog(const std::string& path) {

@@ -8,8 +8,9 @@ packages=(
   libopencv-dev libfaiss-dev libopenblas-dev
   libboost-all-dev libprotobuf-dev protobuf-compiler
   libsqlite3-dev libgtest-dev libgmock-dev libgeographiclib-dev libexiv2-dev
-  libceres-dev libproj-dev proj-data libbenchmark-dev
+  libceres-dev libproj-dev proj-data libbenchmark-dev libyaml-cpp-dev
   nlohmann-json3-dev opencv-doc python3 python3-protobuf chromium exiv2
+  clang-14 libclang-rt-14-dev
 )
 
 missing=()

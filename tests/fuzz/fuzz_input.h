@@ -6,21 +6,28 @@
 
 #include <cstdint>
 #include <cstdio>
-#include <cstdlib>
 #include <filesystem>
 #include <string>
 
 namespace sightfix::fuzz {
 
+// The folder, removed again when the process exits normally.
+struct InputDir {
+  std::string path;
+  InputDir() {
+    const std::string base = std::filesystem::exists("/dev/shm") ? "/dev/shm" : "/tmp";
+    path = base + "/sightfix-fuzz-" + std::to_string(::getpid());
+    std::filesystem::create_directories(path);
+  }
+  ~InputDir() {
+    std::error_code ec;
+    std::filesystem::remove_all(path, ec);
+  }
+};
+
 inline const std::string& Dir() {
-  static const std::string dir = [] {
-    std::string base = std::filesystem::exists("/dev/shm") ? "/dev/shm" : "/tmp";
-    std::string d = base + "/sightfix-fuzz-" + std::to_string(::getpid());
-    std::filesystem::create_directories(d);
-    std::atexit([] { std::error_code ec; std::filesystem::remove_all(Dir(), ec); });
-    return d;
-  }();
-  return dir;
+  static const InputDir dir;
+  return dir.path;
 }
 
 // Writes bytes to Dir()/name and returns the path.
