@@ -520,6 +520,7 @@ std::string Service::Impl::DescribeBody() {
 }
 
 void Service::Impl::StartScrub(std::shared_ptr<const Localizer> loc) {
+  if (!o.scrub) return;
   std::lock_guard<std::mutex> lock(scrub_mu);
   if (scrub_stop) scrub_stop->store(true);
   if (scrubber.joinable()) scrubber.join();

@@ -45,6 +45,10 @@ struct ServiceOptions {
   size_t max_pending_write_bytes = size_t(32) << 20;
   std::string token_file;
   bool allow_open = false;  // listen beyond loopback without a token
+  // Check every tile file against the catalog's SHA-256 in the background after start (and
+  // after a reload), so /healthz names bad tiles early. Off: tiles are still checked before
+  // their first use.
+  bool scrub = true;
   LocalizerOptions engine;
   bool Validate(std::string* error) const;
 };

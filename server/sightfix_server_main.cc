@@ -33,6 +33,8 @@ int main(int argc, char** argv) {
       "deadline of calls that set none")("token-file", po::value(&o.token_file),
                                          "file holding the bearer token calls must carry")(
       "allow-open", "listen beyond loopback without a token (not advised)")(
+      "no-scrub", "skip the background check of every tile file at start (tiles are still "
+                  "checked against the catalog before first use)")(
       "tile-cache-mb", po::value(&cache_mb)->default_value(cache_mb), "memory for loaded tiles");
   po::variables_map vm;
   try {
@@ -47,6 +49,7 @@ int main(int argc, char** argv) {
     return 0;
   }
   o.allow_open = vm.count("allow-open") > 0;
+  o.scrub = vm.count("no-scrub") == 0;
   o.engine.tile_cache_bytes = cache_mb << 20;
   if (o.map_dir.empty()) {
     std::fprintf(stderr, "sightfix-server: --map MAPDIR is required (see --help)\n");
