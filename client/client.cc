@@ -26,10 +26,12 @@ struct Connection {
   std::mutex write_mu;
 
   ~Connection() {
+    // shutdown wakes the reader's blocking read; close only once it has returned (closing under
+    // a read is a data race on the socket, ThreadSanitizer found).
     boost::system::error_code ec;
     socket.shutdown(tcp::socket::shutdown_both, ec);
-    socket.close(ec);
     if (reader.joinable()) reader.join();
+    socket.close(ec);
   }
 
   void Fail(const std::string& why) {

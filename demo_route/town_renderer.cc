@@ -384,6 +384,9 @@ bool ScanlineSpan(const QuadRaster& q, double my, double fx, double cx, double n
   keep((q.cu + q.nn) * na - q.h * ua, (q.cu + q.nn) * nb - q.h * ub);  // u <= 1
   keep(q.h * va - q.cv * na, q.h * vb - q.cv * nb);                    // v >= 0
   keep((q.cv + q.nn) * na - q.h * va, (q.cv + q.nn) * nb - q.h * vb);  // v <= 1
+  // Empty span: say so before converting, since lo may be any far root (5.5e16 was seen by
+  // UBSan) and a double outside int's range is undefined behaviour to convert.
+  if (!(lo <= hi)) return false;
   const int a = static_cast<int>(std::ceil(lo)), b = static_cast<int>(std::floor(hi));
   *x0 = std::max(*x0, a);
   *x1 = std::min(*x1, b);

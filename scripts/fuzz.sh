@@ -2,7 +2,7 @@
 # Runs a libFuzzer target (clang-14, AddressSanitizer + UndefinedBehaviorSanitizer) for a while,
 # starting from its checked-in seed corpus (tests/fuzz/corpus/TARGET) and a working corpus kept
 # in the build folder between runs.
-# Usage: scripts/fuzz.sh TARGET|all SECONDS      (BUILD_DIR overrides ./build-san)
+# Usage: scripts/fuzz.sh TARGET|all SECONDS   (BUILD_DIR overrides ./build-san; JOBS targets at once)
 # Targets: frame drive_csv gpx calibration rig tile.
 # A crash leaves its input in BUILD_DIR/fuzz/crashes/TARGET/ and exits 1: fix the bug, then copy
 # the input into tests/fuzz/regressions/TARGET/ so every build replays it from then on.
@@ -36,23 +36,36 @@ cmake --build "$build" -j "$(nproc)" --target "${selected[@]/#/fuzz_}"
 export ASAN_OPTIONS="${ASAN_OPTIONS:-detect_leaks=1:allocator_may_return_null=1:max_allocation_size_mb=2048}"
 export UBSAN_OPTIONS="${UBSAN_OPTIONS:-print_stacktrace=1:halt_on_error=1}"
 export OPENBLAS_NUM_THREADS=1 OMP_NUM_THREADS=1
-status=0
-for t in "${selected[@]}"; do
-  work="$build/fuzz/corpus/$t" crashes="$build/fuzz/crashes/$t"
+# One target: its summary line on stdout, 1 on a crash (input kept, first error line shown).
+run_one() {
+  local t="$1" work="$build/fuzz/corpus/$1" crashes="$build/fuzz/crashes/$1" log="$build/fuzz/$1.log"
   mkdir -p "$work" "$crashes"
-  log="$build/fuzz/$t.log"
-  echo "fuzz $t: ${seconds} s (log $log)"
   if "$build/tests/fuzz/fuzz_$t" -max_total_time="$seconds" -timeout=10 -rss_limit_mb=2048 -malloc_limit_mb=4096 \
       -max_len=65536 -print_final_stats=1 -artifact_prefix="$crashes/" \
       "$work" "$root/tests/fuzz/corpus/$t" >"$log" 2>&1; then
+    local runs cov
     runs=$(grep -o 'stat::number_of_executed_units: *[0-9]*' "$log" | grep -o '[0-9]*$' || echo '?')
     cov=$(grep -o 'cov: [0-9]*' "$log" | tail -1 | grep -o '[0-9]*' || echo '?')
     echo "fuzz $t: $runs executions in ${seconds} s, coverage $cov edges, corpus $(ls "$work" | wc -l) inputs, no crash"
   else
-    status=1
-    echo "fuzz $t: CRASH; input kept in $crashes/:" >&2
-    ls -1 "$crashes" >&2
-    grep -m1 -E "ERROR: (AddressSanitizer|libFuzzer)|runtime error|invariant failed" "$log" >&2 || tail -20 "$log" >&2
+    echo "fuzz $t: CRASH; input kept in $crashes/ (log $log):"
+    ls -1 "$crashes"
+    grep -m1 -E "ERROR: (AddressSanitizer|libFuzzer)|runtime error|invariant failed" "$log" || tail -20 "$log"
+    return 1
+  fi
+}
+# As many targets at once as there are cores (JOBS overrides).
+jobs="${JOBS:-$(nproc)}"
+echo "fuzz: ${selected[*]}, ${seconds} s each, $jobs at a time (logs in $build/fuzz/)"
+status=0
+pids=()
+for t in "${selected[@]}"; do
+  run_one "$t" &
+  pids+=($!)
+  if [ ${#pids[@]} -ge "$jobs" ]; then
+    wait "${pids[0]}" || status=1
+    pids=("${pids[@]:1}")
   fi
 done
+for p in "${pids[@]}"; do wait "$p" || status=1; done
 exit $status

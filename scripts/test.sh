@@ -1,5 +1,8 @@
 #!/usr/bin/env bash
-# Installs what is missing, configures, builds and runs every test with CTest.
+# Installs what is missing, configures, builds and runs every test with CTest; then the
+# robustness configuration within CI's budget (scripts/test-sanitizers.sh ci: the suite under
+# AddressSanitizer + UndefinedBehaviorSanitizer without the town-scale accuracy studies, and
+# every fuzz target for 30 s). SIGHTFIX_SANITIZERS=0, or any ctest argument, skips that part.
 # Usage: scripts/test.sh [extra ctest arguments]   (BUILD_DIR overrides ./build)
 set -euo pipefail
 root="$(cd "$(dirname "$0")/.." && pwd)"
@@ -11,3 +14,6 @@ cd "$build"
 # Tests labelled "goal" measure targets not met yet; scripts/goals.sh runs only them.
 if [ "${SIGHTFIX_ONLY_GOALS:-0}" = 1 ]; then labels=(-L goal); else labels=(-LE goal); fi
 ctest --output-on-failure --timeout 1500 "${labels[@]}" "$@"
+if [ "${SIGHTFIX_SANITIZERS:-1}" = 1 ] && [ "${SIGHTFIX_ONLY_GOALS:-0}" != 1 ] && [ $# -eq 0 ]; then
+  bash "$root/scripts/test-sanitizers.sh" ci
+fi

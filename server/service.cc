@@ -441,11 +441,12 @@ Result<std::unique_ptr<Service>> Service::Create(const ServiceOptions& o) {
   if (!loc.ok()) return loc.status();
   impl->localizer = std::move(loc).value();
   if (Status s = Bind(impl->acceptor, o.listen); !s.ok()) return s;
-  impl->StartScrub(impl->localizer);
   if (!o.http.empty())
     if (Status s = Bind(impl->http_acceptor, o.http); !s.ok()) return s;
   for (int i = 0; i < ThreadCount(o.workers); ++i)
     impl->workers.emplace_back([p = impl.get()] { p->WorkerLoop(); });
+  // Threads start last: a failure above returns with none to stop.
+  impl->StartScrub(impl->localizer);
   return std::unique_ptr<Service>(new Service(std::move(impl)));
 }
 

@@ -35,7 +35,11 @@ Views MakeViews(const cv::Vec3d& rvec_ba, const cv::Vec3d& centre_b, double sigm
   const cv::Vec3d tvec = -(v.b_from_a * centre_b);
   const cv::Mat k = (cv::Mat_<double>(3, 3) << kF, 0, kCx, 0, kF, kCy, 0, 0, 1);
   while (static_cast<int>(v.na.size()) < n) {
-    const cv::Point3d p(ux(rng), uy(rng), uz(rng));
+    // Draws in explicit order (gcc's right-to-left argument order, which the bounds below were
+    // set with): arguments of one call are evaluated in an unspecified order, and clang's
+    // left-to-right order gave other data (DEVELOPERS.md, "Robustness").
+    const double z = uz(rng), y = uy(rng), x = ux(rng);
+    const cv::Point3d p(x, y, z);
     const cv::Vec3d pb = v.b_from_a * cv::Vec3d(p.x, p.y, p.z) + tvec;
     if (pb[2] < 1) continue;
     std::vector<cv::Point2d> a, b;
@@ -44,9 +48,13 @@ Views MakeViews(const cv::Vec3d& rvec_ba, const cv::Vec3d& centre_b, double sigm
     cv::projectPoints(std::vector<cv::Point3d>{p}, rvec_ba, tvec, k, cv::noArray(), b);
     if (b[0].x < 0 || b[0].x > 640 || b[0].y < 0 || b[0].y > 480 || a[0].x < 0 || a[0].x > 640)
       continue;
-    cv::Point2d qa(a[0].x + noise(rng), a[0].y + noise(rng)),
-        qb(b[0].x + noise(rng), b[0].y + noise(rng));
-    if (u01(rng) < outliers) qb = cv::Point2d(px(rng), py(rng));
+    const double ay = noise(rng), ax = noise(rng);
+    const double by = noise(rng), bx = noise(rng);
+    cv::Point2d qa(a[0].x + ax, a[0].y + ay), qb(b[0].x + bx, b[0].y + by);
+    if (u01(rng) < outliers) {
+      const double oy = py(rng), ox = px(rng);
+      qb = cv::Point2d(ox, oy);
+    }
     v.na.emplace_back((qa.x - kCx) / kF, (qa.y - kCy) / kF);
     v.nb.emplace_back((qb.x - kCx) / kF, (qb.y - kCy) / kF);
   }
