@@ -34,12 +34,8 @@ fi
   --queue 64 --max-connections 256 2>"$out/server.log" &
 pid=$!
 trap 'kill "$pid" 2>/dev/null || true' EXIT
-port=""
-for _ in $(seq 1 300); do
-  port="$(grep -o '"port":[0-9]*' "$out/server.log" | head -1 | grep -o '[0-9]*$' || true)"
-  [ -n "$port" ] && break
-  sleep 0.1
-done
+source "$root/tests/lib/server_port.sh"
+port="$(serving_port "$out/server.log" "$pid" || true)"
 [ -n "$port" ] || { echo "soak: the server did not start: $(tail -3 "$out/server.log")" >&2; exit 1; }
 echo "soak: $clients clients for $seconds s against pid $pid on port $port"
 rc=0

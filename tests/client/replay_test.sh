@@ -10,6 +10,7 @@ cli="$build/client/sightfix"
 server_pid=""
 cleanup_extra() { [ -n "$server_pid" ] && kill "$server_pid" 2>/dev/null; }
 source "$(dirname "$0")/../lib/checks.sh"
+source "$(dirname "$0")/../lib/server_port.sh"
 drive="$data/town/query-day"
 
 "$cli" replay --map "$data/map" --drive "$drive" --out "$tmp/in" --limit 16 --seed 3 \
@@ -24,12 +25,7 @@ done
 "$build/server/sightfix-server" --map "$data/map" --listen 127.0.0.1:0 --http "" --workers 2 \
   2>"$tmp/server.log" &
 server_pid=$!
-port=""
-for _ in $(seq 1 100); do
-  port="$(grep -o '"port": *[0-9]*' "$tmp/server.log" | head -1 | grep -o '[0-9]*$')"
-  [ -n "$port" ] && break
-  sleep 0.1
-done
+port="$(serving_port "$tmp/server.log" "$server_pid")"
 "$cli" replay --server "127.0.0.1:$port" --drive "$drive" --out "$tmp/srv" --limit 16 --seed 3 \
   >/dev/null 2>"$tmp/srv.err" && ok "replay through the server" || bad "replay through the server: $(tail -3 "$tmp/srv.err")"
 kill -TERM "$server_pid"; wait "$server_pid"; server_pid=""

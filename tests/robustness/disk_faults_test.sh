@@ -25,6 +25,7 @@ cleanup_extra() {
   wait 2>/dev/null
 }
 source "$(dirname "$0")/../lib/checks.sh"
+source "$(dirname "$0")/../lib/server_port.sh"
 west=18/101944/95320 east=18/101945/95320
 q="$town/query-overcast"
 
@@ -32,18 +33,9 @@ start_server() {  # MAPDIR: starts sightfix-server on free ports, sets port/http
   : >"$tmp/server.log"
   "$server_bin" --map "$1" --listen 127.0.0.1:0 --http 127.0.0.1:0 --workers 2 2>"$tmp/server.log" &
   server_pid=$!
-  port="" http_port=""
-  for _ in $(seq 1 200); do
-    line="$(grep '"event":"serving"' "$tmp/server.log" | head -1)"
-    if [ -n "$line" ]; then
-      port="$(echo "$line" | grep -o '"port":[0-9]*' | grep -o '[0-9]*$')"
-      http_port="$(echo "$line" | grep -o '"http_port":[0-9]*' | grep -o '[0-9]*$')"
-      return 0
-    fi
-    kill -0 "$server_pid" 2>/dev/null || return 1
-    sleep 0.1
-  done
-  return 1
+  local ports
+  ports="$(serving_port "$tmp/server.log" "$server_pid")" || return 1
+  read -r port http_port <<<"$ports"
 }
 stop_server() { kill -TERM "$server_pid" 2>/dev/null; wait "$server_pid" 2>/dev/null; server_pid=""; }
 # /healthz once every tile is checked: "CODE\nBODY".
@@ -123,7 +115,9 @@ snapshot() { (cd "$1" && find . -type f ! -name .writer.lock | sort | xargs sha2
 rm -rf "$tmp/m" && cp -r "$tmp/whole" "$tmp/m"
 "$idx" add --drive "$tmp/east" --map "$tmp/m" --quiet >/dev/null 2>&1 &
 holder_pid=$!
-for _ in $(seq 1 100); do grep -q "pid $holder_pid" "$tmp/m/.writer.lock" 2>/dev/null && break; sleep 0.05; done
+# Wait (up to 60 s: a loaded machine starts it slowly) until the first add holds the lock.
+for _ in $(seq 1 1200); do grep -q "pid $holder_pid" "$tmp/m/.writer.lock" 2>/dev/null && break; sleep 0.05; done
+grep -q "pid $holder_pid" "$tmp/m/.writer.lock" && ok "the first add holds the writer lock" || bad "the first add never took the lock"
 t0=$(date +%s%N)
 "$idx" add --drive "$tmp/east" --map "$tmp/m" --quiet >"$tmp/second.txt" 2>&1; rc=$?
 ms=$((($(date +%s%N) - t0) / 1000000))

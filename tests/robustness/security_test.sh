@@ -11,6 +11,7 @@ server_bin="$build/server/sightfix-server"
 server_pid=""
 cleanup_extra() { [ -n "$server_pid" ] && kill "$server_pid" 2>/dev/null; wait 2>/dev/null; }
 source "$(dirname "$0")/../lib/checks.sh"
+source "$(dirname "$0")/../lib/server_port.sh"
 q="$data/town/query-day"
 
 "$server_bin" --help >"$tmp/help.txt"
@@ -34,12 +35,7 @@ printf '%s\n' "$token" >"$tmp/server.token"
 printf '%s\n' "$wrong" >"$tmp/wrong.token"
 "$server_bin" --map "$data/map" --listen 0.0.0.0:0 --http "" --token-file "$tmp/server.token" 2>"$tmp/server.log" &
 server_pid=$!
-port=""
-for _ in $(seq 1 200); do
-  port="$(grep -o '"port":[0-9]*' "$tmp/server.log" | head -1 | grep -o '[0-9]*$')"
-  [ -n "$port" ] && break
-  sleep 0.1
-done
+port="$(serving_port "$tmp/server.log" "$server_pid")"
 [ -n "$port" ] && ok "0.0.0.0 with a token file: serving" || bad "server with token did not start: $(cat "$tmp/server.log")"
 
 "$cli" describe --server "127.0.0.1:$port" --token-file "$tmp/server.token" >"$tmp/out.txt" 2>&1 &&
