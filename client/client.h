@@ -21,7 +21,7 @@ struct ClientOptions {
   int port = 7411;
   std::string token;  // sent with every call when set; never logged
   int connect_timeout_ms = 3000;
-  int retries = 5;  // extra attempts after a lost connection (idempotent calls)
+  int retries = 10;  // extra attempts after a lost connection (idempotent calls), within the deadline
   int retry_backoff_ms = 100;  // before the first retry; doubles each time, 2 s at most
   uint32_t max_answer_bytes = 64u << 20;  // a longer answer frame closes the connection
 };

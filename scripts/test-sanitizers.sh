@@ -9,7 +9,8 @@
 #     server answers a locate in 7-10 s (OpenCV and FAISS are not instrumented and run under
 #     TSan's interceptors), past that test's deadlines.
 #  ci: what scripts/test.sh runs in CI within its time budget: the ASan + UBSan build, the suite
-#     without the town-scale accuracy studies (label heavy), every fuzz target for 30 s.
+#     without the tests that build towns or maps (label heavy; about 7x slower under ASan),
+#     the service tests on the gcc tree's fixture map, every fuzz target for 30 s.
 # Usage: scripts/test-sanitizers.sh [ci|asan|tsan|fuzz|all]   (default all)
 set -euo pipefail
 root="$(cd "$(dirname "$0")/.." && pwd)"
@@ -28,6 +29,9 @@ fi
 if [ "$what" = ci ] || [ "$what" = asan ] || [ "$what" = all ]; then
   labels="goal"
   [ "$what" = ci ] && labels="goal|heavy"
+  # The service tests' town and map: the gcc tree's when it has them (same bytes, no 7x wait).
+  [ -f "$root/build/tests/service_data/map/catalog.sqlite" ] && [ "$what" = ci ] &&
+    export SIGHTFIX_SERVICE_MAP_FROM="$root/build/tests/service_data"
   echo "== the suite under AddressSanitizer + UndefinedBehaviorSanitizer (leaving out labels: $labels)"
   # Leaks are checked at exit of every test program; a report fails the test.
   (cd "$san" && ASAN_OPTIONS="detect_leaks=1:allocator_may_return_null=1:max_allocation_size_mb=2048" \
