@@ -28,7 +28,7 @@ if [ ! -f "$build/CMakeCache.txt" ]; then
   CC=clang-14 CXX=clang++-14 cmake -S "$root" -B "$build" -DCMAKE_BUILD_TYPE=RelWithDebInfo \
     -DCMAKE_CXX_FLAGS_RELWITHDEBINFO="-O2 -g1 -DNDEBUG" -DSIGHTFIX_SANITIZE=ON -DSIGHTFIX_FUZZ=ON >/dev/null
 fi
-cmake --build "$build" -j "$(nproc)" --target "${selected[@]/#/fuzz_}"
+cmake --build "$build" -j "$(env -u OMP_NUM_THREADS -u OMP_THREAD_LIMIT nproc)" --target "${selected[@]/#/fuzz_}"
 
 # An allocation over 2 GiB fails (operator new throws) instead of being granted lazily: OpenCV's
 # YAML parser asks for 16 GiB on some malformed 200-byte files, which plain glibc refuses and
@@ -55,7 +55,7 @@ run_one() {
   fi
 }
 # As many targets at once as there are cores (JOBS overrides).
-jobs="${JOBS:-$(nproc)}"
+jobs="${JOBS:-$(env -u OMP_NUM_THREADS -u OMP_THREAD_LIMIT nproc)}"
 echo "fuzz: ${selected[*]}, ${seconds} s each, $jobs at a time (logs in $build/fuzz/)"
 status=0
 pids=()

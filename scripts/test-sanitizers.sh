@@ -18,13 +18,14 @@ what="${1:-all}"
 case "$what" in ci|asan|tsan|fuzz|all) ;; -h|--help) sed -n '2,13p' "$0" | sed 's/^# \{0,1\}//'; exit 0 ;;
   *) echo "test-sanitizers.sh: unknown stage '$what' (ci, asan, tsan, fuzz or all)" >&2; exit 2 ;; esac
 bash "$root/scripts/deps.sh"
+# (GNU nproc honours OMP_NUM_THREADS, so core counts are taken without it.)
 export OPENBLAS_NUM_THREADS=1 OMP_NUM_THREADS=1
 san="$root/build-san" tsan="$root/build-tsan"
 flags=(-DCMAKE_BUILD_TYPE=RelWithDebInfo "-DCMAKE_CXX_FLAGS_RELWITHDEBINFO=-O2 -g1 -DNDEBUG")
 
 if [ "$what" != tsan ]; then
   CC=clang-14 CXX=clang++-14 cmake -S "$root" -B "$san" "${flags[@]}" -DSIGHTFIX_SANITIZE=ON -DSIGHTFIX_FUZZ=ON >/dev/null
-  cmake --build "$san" -j "$(nproc)"
+  cmake --build "$san" -j "$(env -u OMP_NUM_THREADS -u OMP_THREAD_LIMIT nproc)"
 fi
 if [ "$what" = ci ] || [ "$what" = asan ] || [ "$what" = all ]; then
   labels="goal"
@@ -46,7 +47,7 @@ fi
 if [ "$what" = tsan ] || [ "$what" = all ]; then
   echo "== server concurrency tests under ThreadSanitizer"
   CC=clang-14 CXX=clang++-14 cmake -S "$root" -B "$tsan" "${flags[@]}" -DSIGHTFIX_TSAN=ON >/dev/null
-  cmake --build "$tsan" -j "$(nproc)" --target service_test
+  cmake --build "$tsan" -j "$(env -u OMP_NUM_THREADS -u OMP_THREAD_LIMIT nproc)" --target service_test
   # The fixture map comes from another tree: made under TSan it would take most of an hour.
   data=""
   for d in "$root/build/tests/service_data" "$san/tests/service_data"; do
