@@ -2,7 +2,8 @@
 # Runs a libFuzzer target (clang-14, AddressSanitizer + UndefinedBehaviorSanitizer) for a while,
 # starting from its checked-in seed corpus (tests/fuzz/corpus/TARGET) and a working corpus kept
 # in the build folder between runs.
-# Usage: scripts/fuzz.sh TARGET|all SECONDS   (BUILD_DIR overrides ./build-san; JOBS targets at once)
+# Usage: scripts/fuzz.sh TARGET|all SECONDS   (BUILD_DIR overrides ./build-san; JOBS targets at once;
+#        FUZZ_SEED=N repeats a run's random choices, 0 = a new seed each run)
 # Targets: frame drive_csv gpx calibration rig tile.
 # A crash leaves its input in BUILD_DIR/fuzz/crashes/TARGET/ and exits 1: fix the bug, then copy
 # the input into tests/fuzz/regressions/TARGET/ so every build replays it from then on.
@@ -10,7 +11,7 @@ set -euo pipefail
 root="$(cd "$(dirname "$0")/.." && pwd)"
 build="${BUILD_DIR:-$root/build-san}"
 targets=(frame drive_csv gpx calibration rig tile)
-usage() { sed -n '2,9p' "$0" | sed 's/^# \{0,1\}//'; }
+usage() { sed -n '2,10p' "$0" | sed 's/^# \{0,1\}//'; }
 if [ $# -ne 2 ] || [[ "$1" = -h || "$1" = --help ]]; then usage; [ $# -eq 2 ] && exit 0 || exit 2; fi
 target="$1" seconds="$2"
 if ! [[ "$seconds" =~ ^[0-9]+$ ]] || [ "$seconds" -lt 1 ]; then echo "fuzz.sh: SECONDS must be a positive whole number" >&2; exit 2; fi
@@ -40,7 +41,7 @@ export OPENBLAS_NUM_THREADS=1 OMP_NUM_THREADS=1
 run_one() {
   local t="$1" work="$build/fuzz/corpus/$1" crashes="$build/fuzz/crashes/$1" log="$build/fuzz/$1.log"
   mkdir -p "$work" "$crashes"
-  if "$build/tests/fuzz/fuzz_$t" -max_total_time="$seconds" -timeout=10 -rss_limit_mb=2048 -malloc_limit_mb=4096 \
+  if "$build/tests/fuzz/fuzz_$t" -seed="${FUZZ_SEED:-0}" -max_total_time="$seconds" -timeout=10 -rss_limit_mb=2048 -malloc_limit_mb=4096 \
       -max_len=65536 -print_final_stats=1 -artifact_prefix="$crashes/" \
       "$work" "$root/tests/fuzz/corpus/$t" >"$log" 2>&1; then
     local runs cov
