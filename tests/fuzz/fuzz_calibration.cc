@@ -1,5 +1,5 @@
-// libFuzzer target: a calibration file (OpenCV FileStorage YAML, pinhole or fisheye). Invariant:
-// a calibration that loads is valid and projects its own principal ray to the principal point.
+// libFuzzer target: a calibration file (OpenCV FileStorage YAML, pinhole or fisheye), read as the
+// indexer reads it (indexer/yaml_file.h). Invariant: a calibration that loads is valid.
 #include <cmath>
 
 #include "indexer/camera_model.h"
