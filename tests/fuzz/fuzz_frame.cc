@@ -1,7 +1,8 @@
 // libFuzzer target: a frame as the server reads it off a socket. The 4-byte length against the
 // cap and the rest, the Envelope parse, and for a Locate call the request's checks before any
-// image decode (pixel count from the header, calibration, prior), then the decode itself under
-// a small pixel cap. Invariants: a parsed Envelope re-encodes to a frame that parses again.
+// image decode (pixel count from the JPEG/PNG header under a small cap, calibration, prior).
+// Invariants: a parsed Envelope re-encodes to a frame that parses again; an accepted request
+// carries a valid calibration.
 #include <cstring>
 
 #include "proto/frame_codec.h"
