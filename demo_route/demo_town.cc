@@ -131,7 +131,8 @@ struct PlannedDrive {
 
 Frame NoisyPose(const Frame& f, Rng& rng) {
   Frame g = f;
-  g.position += cv::Vec3d(0.02 * rng.Normal(), 0.02 * rng.Normal(), 0.03 * rng.Normal());
+  const double nu = 0.03 * rng.Normal(), nn = 0.02 * rng.Normal(), ne = 0.02 * rng.Normal();
+  g.position += cv::Vec3d(ne, nn, nu);
   g.attitude.heading_deg = std::fmod(g.attitude.heading_deg + 0.05 * rng.Normal() + 360, 360);
   g.attitude.pitch_deg += 0.03 * rng.Normal();
   g.attitude.roll_deg += 0.03 * rng.Normal();

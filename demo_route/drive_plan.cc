@@ -107,7 +107,9 @@ std::vector<GnssSample> SimulateGnss(const Polyline& route, const std::vector<Pa
   const double dt = 1.0 / o.rate_hz, duration = DriveDuration(passes, drive);
   const double phi = std::exp(-dt / o.tau_s), q = std::sqrt(1 - phi * phi);
   // First-order Gauss-Markov error per axis, started from its stationary distribution.
-  cv::Vec3d err(o.sigma_h_m * rng.Normal(), o.sigma_h_m * rng.Normal(), o.sigma_v_m * rng.Normal());
+  const double eu = o.sigma_v_m * rng.Normal(), en = o.sigma_h_m * rng.Normal(),
+               ee = o.sigma_h_m * rng.Normal();
+  cv::Vec3d err(ee, en, eu);
   std::vector<GnssSample> out;
   for (double t = 0; t <= duration + 1e-9; t += dt) {
     const Frame truth = PoseAtTime(route, passes, drive, t);
@@ -125,8 +127,9 @@ std::vector<GnssSample> SimulateGnss(const Polyline& route, const std::vector<Pa
     s.course_deg = std::fmod(truth.attitude.heading_deg + 0.8 * rng.Normal() + 360.0, 360.0);
     s.claimed_sigma_h_m = o.claimed_sigma_h_m;
     out.push_back(s);
-    err = phi * err + q * cv::Vec3d(o.sigma_h_m * rng.Normal(), o.sigma_h_m * rng.Normal(),
-                                    o.sigma_v_m * rng.Normal());
+    const double wu = o.sigma_v_m * rng.Normal(), wn = o.sigma_h_m * rng.Normal(),
+                 we = o.sigma_h_m * rng.Normal();
+    err = phi * err + q * cv::Vec3d(we, wn, wu);
   }
   return out;
 }

@@ -139,7 +139,8 @@ class Placer {
     b.footprint = fp;
     b.front_edge = front_edge;
     b.floors = rng.Int(4, 7);
-    b.height_m = b.floors * rng.Uniform(3.0, 3.5) + rng.Uniform(0.3, 1.2);
+    const double storey_m = rng.Uniform(3.0, 3.5), roof_m = rng.Uniform(0.3, 1.2);
+    b.height_m = b.floors * storey_m + roof_m;
     b.seed = rng.Next();
     town_->buildings.push_back(b);
     return true;

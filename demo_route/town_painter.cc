@@ -19,7 +19,8 @@ cv::Scalar Hsv(double h, double s, double v) {
 
 cv::Scalar RandomColour(Rng& r, double smin = 0.2, double smax = 0.9, double vmin = 0.3,
                         double vmax = 0.95) {
-  return Hsv(r.Uniform(0, 180), r.Uniform(smin, smax), r.Uniform(vmin, vmax));
+  const double v = r.Uniform(vmin, vmax), s = r.Uniform(smin, smax), h = r.Uniform(0, 180);
+  return Hsv(h, s, v);
 }
 
 cv::Scalar Shade(const cv::Scalar& c, double f) { return cv::Scalar(c[0] * f, c[1] * f, c[2] * f); }
@@ -44,7 +45,8 @@ void AddNoise(cv::Mat& img, Rng& r, double feature_px, double amplitude) {
 
 void Speckle(cv::Mat& img, Rng& r, int count, double max_r, double strength) {
   for (int i = 0; i < count; ++i) {
-    const cv::Point p(r.Int(0, img.cols - 1), r.Int(0, img.rows - 1));
+    const int y = r.Int(0, img.rows - 1), x = r.Int(0, img.cols - 1);
+    const cv::Point p(x, y);
     const double f = 1.0 + r.Uniform(-strength, strength);
     const cv::Vec3b c = img.at<cv::Vec3b>(p);
     cv::circle(img, p, std::max(1, static_cast<int>(r.Uniform(0.5, max_r))),
@@ -79,7 +81,8 @@ void Panels(cv::Mat& img, Rng& r, const cv::Scalar& base, double ppm) {
 }
 
 void Window(cv::Mat& img, Rng& r, cv::Rect2d w, const cv::Scalar& frame, double ppm) {
-  const cv::Scalar glass = Hsv(r.Uniform(95, 125), r.Uniform(0.1, 0.45), r.Uniform(0.12, 0.4));
+  const double gv = r.Uniform(0.12, 0.4), gs = r.Uniform(0.1, 0.45), gh = r.Uniform(95, 125);
+  const cv::Scalar glass = Hsv(gh, gs, gv);
   cv::rectangle(img, w, frame, -1);
   const double b = 0.07 * ppm;
   cv::Rect2d pane(w.x + b, w.y + b, w.width - 2 * b, w.height - 2 * b);
@@ -105,27 +108,30 @@ void Window(cv::Mat& img, Rng& r, cv::Rect2d w, const cv::Scalar& frame, double 
     }
     case 1: {  // blinds down to a random height
       const double h = pane.height * r.Uniform(0.2, 0.9);
-      const cv::Scalar c = Hsv(r.Uniform(0, 180), 0.15, r.Uniform(0.6, 0.95));
+      const double cv_ = r.Uniform(0.6, 0.95), ch = r.Uniform(0, 180);
+      const cv::Scalar c = Hsv(ch, 0.15, cv_);
       for (double y = pane.y; y < pane.y + h; y += 0.05 * ppm)
         cv::line(img, cv::Point2d(pane.x, y), cv::Point2d(pane.x + pane.width, y), c, 1,
                  cv::LINE_AA);
       break;
     }
     case 2: {  // a plant on the sill
-      for (int i = 0; i < 12; ++i)
-        cv::ellipse(img,
-                    cv::Point2d(pane.x + pane.width * r.Uniform(0.2, 0.8),
-                                pane.y + pane.height * r.Uniform(0.6, 0.95)),
-                    cv::Size2d(r.Uniform(2, 6), r.Uniform(1, 4)), r.Uniform(0, 180), 0, 360,
-                    Hsv(r.Uniform(35, 75), 0.7, r.Uniform(0.25, 0.6)), -1, cv::LINE_AA);
+      for (int i = 0; i < 12; ++i) {
+        const double lv = r.Uniform(0.25, 0.6), lh = r.Uniform(35, 75), angle = r.Uniform(0, 180);
+        const double sh = r.Uniform(1, 4), sw = r.Uniform(2, 6);
+        const double fy = r.Uniform(0.6, 0.95), fx = r.Uniform(0.2, 0.8);
+        cv::ellipse(img, cv::Point2d(pane.x + pane.width * fx, pane.y + pane.height * fy),
+                    cv::Size2d(sw, sh), angle, 0, 360, Hsv(lh, 0.7, lv), -1, cv::LINE_AA);
+      }
       break;
     }
     case 3:  // lit lamp inside
-      cv::circle(img,
-                 cv::Point2d(pane.x + pane.width * r.Uniform(0.2, 0.8),
-                             pane.y + pane.height * r.Uniform(0.15, 0.4)),
-                 static_cast<int>(r.Uniform(2, 5)), cv::Scalar(170, 230, 250), -1, cv::LINE_AA);
+    {
+      const double lamp_r = r.Uniform(2, 5), fy = r.Uniform(0.15, 0.4), fx = r.Uniform(0.2, 0.8);
+      cv::circle(img, cv::Point2d(pane.x + pane.width * fx, pane.y + pane.height * fy),
+                 static_cast<int>(lamp_r), cv::Scalar(170, 230, 250), -1, cv::LINE_AA);
       break;
+    }
     default:
       break;
   }
@@ -146,8 +152,8 @@ void Poster(cv::Mat& img, Rng& r, cv::Rect2d p, const GlyphSet& glyphs) {
   cv::rectangle(img, p, bg, -1);
   for (int i = 0, n = r.Int(2, 5); i < n; ++i) {
     const cv::Scalar c = RandomColour(r);
-    const cv::Point2d centre(p.x + p.width * r.Uniform(0.15, 0.85),
-                             p.y + p.height * r.Uniform(0.2, 0.8));
+    const double fy = r.Uniform(0.2, 0.8), fx = r.Uniform(0.15, 0.85);
+    const cv::Point2d centre(p.x + p.width * fx, p.y + p.height * fy);
     const double rad = p.width * r.Uniform(0.08, 0.3);
     if (r.Chance(0.5)) {
       cv::circle(img, centre, static_cast<int>(rad), c, -1, cv::LINE_AA);
@@ -159,8 +165,11 @@ void Poster(cv::Mat& img, Rng& r, cv::Rect2d p, const GlyphSet& glyphs) {
       cv::fillConvexPoly(img, tri, c, cv::LINE_AA);
     }
   }
-  glyphs.DrawText(img, {p.x + p.width * 0.08, p.y + p.height * 0.06}, p.height * 0.12, r.Int(3, 6),
-                  r.Next(), RandomColour(r, 0.5, 1.0, 0.05, 0.4), 2);
+  const cv::Scalar ink = RandomColour(r, 0.5, 1.0, 0.05, 0.4);
+  const uint64_t text_seed = r.Next();
+  const int letters = r.Int(3, 6);
+  glyphs.DrawText(img, {p.x + p.width * 0.08, p.y + p.height * 0.06}, p.height * 0.12, letters,
+                  text_seed, ink, 2);
   cv::rectangle(img, p, Shade(bg, 0.5), 1);
 }
 
@@ -172,8 +181,11 @@ void ShopFront(cv::Mat& img, Rng& r, double x0, double x1, double floor_h, doubl
   const cv::Rect2d board(x0 + 0.2 * ppm, top + 0.15 * ppm, (x1 - x0) - 0.4 * ppm, 0.6 * ppm);
   const cv::Scalar board_c = RandomColour(r, 0.3, 1.0, 0.2, 0.9);
   cv::rectangle(img, board, board_c, -1);
-  glyphs.DrawText(img, {board.x + r.Uniform(0.1, 0.6) * ppm, board.y + 0.1 * ppm}, 0.4 * ppm,
-                  r.Int(4, 9), r.Next(),
+  const uint64_t sign_seed = r.Next();
+  const int sign_letters = r.Int(4, 9);
+  const double sign_x = r.Uniform(0.1, 0.6);
+  glyphs.DrawText(img, {board.x + sign_x * ppm, board.y + 0.1 * ppm}, 0.4 * ppm, sign_letters,
+                  sign_seed,
                   board_c[0] + board_c[1] + board_c[2] > 380 ? cv::Scalar(30, 30, 30)
                                                              : cv::Scalar(240, 240, 240),
                   std::max(2, int(0.05 * ppm)));
@@ -184,13 +196,14 @@ void ShopFront(cv::Mat& img, Rng& r, double x0, double x1, double floor_h, doubl
                 frame, -1);
   const cv::Rect2d glass(x0 + 0.3 * ppm, win_top + 0.1 * ppm, (x1 - x0) - 0.6 * ppm,
                          bottom - win_top - 0.2 * ppm);
-  cv::rectangle(img, glass, Hsv(r.Uniform(90, 130), 0.3, r.Uniform(0.15, 0.35)), -1);
+  const double glass_v = r.Uniform(0.15, 0.35), glass_h = r.Uniform(90, 130);
+  cv::rectangle(img, glass, Hsv(glass_h, 0.3, glass_v), -1);
   for (int i = 0, n = r.Int(6, 18); i < n; ++i) {
-    const cv::Point2d c(glass.x + glass.width * r.Unit(),
-                        glass.y + glass.height * r.Uniform(0.3, 1.0));
-    cv::rectangle(
-        img, cv::Rect2d(c.x, c.y, r.Uniform(0.1, 0.5) * ppm, -r.Uniform(0.1, 0.6) * ppm) & glass,
-        RandomColour(r, 0.3, 1.0, 0.3, 1.0), -1);
+    const double fy = r.Uniform(0.3, 1.0), fx = r.Unit();
+    const cv::Point2d c(glass.x + glass.width * fx, glass.y + glass.height * fy);
+    const cv::Scalar goods = RandomColour(r, 0.3, 1.0, 0.3, 1.0);
+    const double gh = r.Uniform(0.1, 0.6), gw = r.Uniform(0.1, 0.5);
+    cv::rectangle(img, cv::Rect2d(c.x, c.y, gw * ppm, -gh * ppm) & glass, goods, -1);
   }
   cv::rectangle(img,
                 cv::Rect2d(door_x, win_top - 0.2 * ppm, door_w, img.rows - win_top + 0.2 * ppm),
@@ -210,8 +223,10 @@ GlyphSet::GlyphSet(uint64_t seed, int count) {
     std::vector<std::vector<cv::Point2d>> strokes;
     for (int s = 0, n = r.Int(2, 4); s < n; ++s) {
       std::vector<cv::Point2d> pts;
-      for (int k = 0, m = r.Int(2, 3); k < m; ++k)
-        pts.emplace_back(r.Int(0, 2) / 2.0, r.Int(0, 3) / 3.0);
+      for (int k = 0, m = r.Int(2, 3); k < m; ++k) {
+        const double py = r.Int(0, 3) / 3.0, px = r.Int(0, 2) / 2.0;
+        pts.emplace_back(px, py);
+      }
       strokes.push_back(pts);
     }
     glyphs_.push_back(strokes);
@@ -262,7 +277,8 @@ cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs) {
   Rng r(spec.seed);
   const double ppm = kFacadeTexelsPerM;
   cv::Mat img(std::max(8, int(spec.height_m * ppm)), std::max(8, int(spec.width_m * ppm)), CV_8UC3);
-  const cv::Scalar wall = Hsv(r.Uniform(0, 180), r.Uniform(0.1, 0.55), r.Uniform(0.45, 0.88));
+  const double wv = r.Uniform(0.45, 0.88), ws = r.Uniform(0.1, 0.55), wh = r.Uniform(0, 180);
+  const cv::Scalar wall = Hsv(wh, ws, wv);
   switch (r.Int(0, 2)) {
     case 0:
       img.setTo(wall);
@@ -271,16 +287,21 @@ cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs) {
       Speckle(img, r, img.total() / 120, 3.5, 0.2);
       break;
     case 1:
-      Brick(img, r, Hsv(r.Uniform(0, 20), r.Uniform(0.4, 0.7), r.Uniform(0.4, 0.75)), ppm);
+    {
+      const double bv = r.Uniform(0.4, 0.75), bs = r.Uniform(0.4, 0.7), bh = r.Uniform(0, 20);
+      Brick(img, r, Hsv(bh, bs, bv), ppm);
       AddNoise(img, r, 1.5 * ppm, 8);
       for (int i = 0, n = int(spec.width_m * spec.height_m / 12); i < n;
            ++i)  // plaster patches over the brick
-        cv::ellipse(img, cv::Point2d(r.Uniform(0, img.cols), r.Uniform(0, img.rows)),
-                    cv::Size2d(r.Uniform(0.1, 0.5) * ppm, r.Uniform(0.08, 0.3) * ppm),
-                    r.Uniform(0, 180), 0, 360,
-                    Hsv(r.Uniform(10, 30), r.Uniform(0.05, 0.3), r.Uniform(0.55, 0.85)), -1,
-                    cv::LINE_AA);
+      {
+        const double pv = r.Uniform(0.55, 0.85), ps = r.Uniform(0.05, 0.3), ph = r.Uniform(10, 30);
+        const double angle = r.Uniform(0, 180), eh = r.Uniform(0.08, 0.3), ew = r.Uniform(0.1, 0.5);
+        const double y = r.Uniform(0, img.rows), x = r.Uniform(0, img.cols);
+        cv::ellipse(img, cv::Point2d(x, y), cv::Size2d(ew * ppm, eh * ppm), angle, 0, 360,
+                    Hsv(ph, ps, pv), -1, cv::LINE_AA);
+      }
       break;
+    }
     default:
       Panels(img, r, wall, ppm);
       AddNoise(img, r, 1.0 * ppm, 7);
@@ -369,10 +390,8 @@ cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs) {
   // Posters low on the wall, a drainpipe, graffiti, grime at the foot of the wall.
   for (int i = 0, n = r.Int(1, 5); i < n; ++i) {
     const double pw = r.Uniform(0.5, 0.9) * ppm;
-    Poster(
-        img, r,
-        cv::Rect2d(r.Uniform(0, img.cols - pw), img.rows - r.Uniform(1.4, 2.4) * ppm, pw, pw * 1.4),
-        glyphs);
+    const double up = r.Uniform(1.4, 2.4), px = r.Uniform(0, img.cols - pw);
+    Poster(img, r, cv::Rect2d(px, img.rows - up * ppm, pw, pw * 1.4), glyphs);
   }
   if (r.Chance(0.6)) {
     const double x = r.Chance(0.5) ? 0.15 * ppm : img.cols - 0.2 * ppm;
@@ -387,14 +406,19 @@ cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs) {
       pts.emplace_back(int(x), int(y));
     cv::polylines(img, pts, false, c, 3, cv::LINE_AA);
   }
-  for (int i = 0, n = int(spec.width_m * spec.height_m / 4); i < n; ++i)  // weathering stains
-    cv::ellipse(img, cv::Point2d(r.Uniform(0, img.cols), r.Uniform(0, img.rows)),
-                cv::Size2d(r.Uniform(3, 14), r.Uniform(2, 10)), r.Uniform(0, 180), 0, 360,
-                Shade(wall, r.Uniform(0.6, 1.25)), -1, cv::LINE_AA);
-  for (int i = 0; i < 20; ++i)
-    cv::ellipse(img, cv::Point2d(r.Uniform(0, img.cols), img.rows - r.Uniform(0, 0.4) * ppm),
-                cv::Size2d(r.Uniform(4, 20), r.Uniform(2, 8)), 0, 0, 360,
-                Shade(wall, r.Uniform(0.5, 0.8)), -1, cv::LINE_AA);
+  for (int i = 0, n = int(spec.width_m * spec.height_m / 4); i < n; ++i) {  // weathering stains
+    const double shade = r.Uniform(0.6, 1.25), angle = r.Uniform(0, 180);
+    const double h = r.Uniform(2, 10), w = r.Uniform(3, 14);
+    const double y = r.Uniform(0, img.rows), x = r.Uniform(0, img.cols);
+    cv::ellipse(img, cv::Point2d(x, y), cv::Size2d(w, h), angle, 0, 360, Shade(wall, shade), -1,
+                cv::LINE_AA);
+  }
+  for (int i = 0; i < 20; ++i) {
+    const double shade = r.Uniform(0.5, 0.8), h = r.Uniform(2, 8), w = r.Uniform(4, 20);
+    const double up = r.Uniform(0, 0.4), x = r.Uniform(0, img.cols);
+    cv::ellipse(img, cv::Point2d(x, img.rows - up * ppm), cv::Size2d(w, h), 0, 0, 360,
+                Shade(wall, shade), -1, cv::LINE_AA);
+  }
   return img;
 }
 
@@ -402,7 +426,8 @@ cv::Mat PaintPlainWall(double width_m, double height_m, uint64_t seed) {
   Rng r(seed);
   cv::Mat img(std::max(4, int(height_m * kPlainTexelsPerM)),
               std::max(4, int(width_m * kPlainTexelsPerM)), CV_8UC3);
-  img.setTo(Hsv(r.Uniform(0, 180), r.Uniform(0.05, 0.3), r.Uniform(0.45, 0.75)));
+  const double v = r.Uniform(0.45, 0.75), s = r.Uniform(0.05, 0.3), h = r.Uniform(0, 180);
+  img.setTo(Hsv(h, s, v));
   AddNoise(img, r, 0.7 * kPlainTexelsPerM, 9);
   Speckle(img, r, img.total() / 80, 1.5, 0.15);
   return img;
@@ -434,8 +459,10 @@ cv::Mat PaintVehicle(double length_m, double height_m, uint64_t seed, int face,
       const cv::Scalar c = RandomColour(rf, 0.6, 1.0, 0.3, 1.0);
       cv::rectangle(
           img, cv::Rect2d(0.1 * img.cols, 0.55 * img.rows, 0.8 * img.cols, 0.12 * img.rows), c, -1);
-      glyphs.DrawText(img, {0.25 * img.cols, 0.7 * img.rows}, 0.14 * img.rows, rf.Int(3, 6),
-                      rf.Next(), Shade(c, 0.4), 2);
+      const uint64_t text_seed = rf.Next();
+      const int letters = rf.Int(3, 6);
+      glyphs.DrawText(img, {0.25 * img.cols, 0.7 * img.rows}, 0.14 * img.rows, letters, text_seed,
+                      Shade(c, 0.4), 2);
     }
   } else {  // ends: window, lights, plate
     cv::rectangle(img,
@@ -456,7 +483,8 @@ cv::Mat PaintVehicle(double length_m, double height_m, uint64_t seed, int face,
 
 cv::Mat PaintMetal(uint64_t seed) {
   Rng r(seed);
-  cv::Mat img(64, 8, CV_8UC3, Hsv(r.Uniform(0, 180), r.Uniform(0.0, 0.3), r.Uniform(0.2, 0.45)));
+  const double v = r.Uniform(0.2, 0.45), s = r.Uniform(0.0, 0.3), h = r.Uniform(0, 180);
+  cv::Mat img(64, 8, CV_8UC3, Hsv(h, s, v));
   AddNoise(img, r, 6, 10);
   return img;
 }
@@ -487,16 +515,19 @@ cv::Mat PaintCanopy(uint64_t seed) {
   for (int i = 0; i < 900; ++i) {
     const double a = r.Uniform(0, 2 * M_PI), d = std::sqrt(r.Unit()) * n * 0.46;
     const cv::Point2d p(n / 2 + d * std::cos(a), n / 2 + d * std::sin(a) * 0.9);
-    const cv::Scalar c = Hsv(hue + r.Uniform(-8, 8), r.Uniform(0.5, 0.9), r.Uniform(0.15, 0.6));
-    cv::ellipse(img, p, cv::Size2d(r.Uniform(1.5, 4), r.Uniform(1, 2.5)), r.Uniform(0, 180), 0, 360,
-                cv::Scalar(c[0], c[1], c[2], 255), -1, cv::LINE_8);
+    const double cv_ = r.Uniform(0.15, 0.6), cs = r.Uniform(0.5, 0.9), ch = hue + r.Uniform(-8, 8);
+    const cv::Scalar c = Hsv(ch, cs, cv_);
+    const double angle = r.Uniform(0, 180), h = r.Uniform(1, 2.5), w = r.Uniform(1.5, 4);
+    cv::ellipse(img, p, cv::Size2d(w, h), angle, 0, 360, cv::Scalar(c[0], c[1], c[2], 255), -1,
+                cv::LINE_8);
   }
   return img;
 }
 
 cv::Mat PaintBark(uint64_t seed) {
   Rng r(seed);
-  cv::Mat img(96, 16, CV_8UC3, Hsv(r.Uniform(5, 20), 0.5, r.Uniform(0.2, 0.35)));
+  const double v = r.Uniform(0.2, 0.35), h = r.Uniform(5, 20);
+  cv::Mat img(96, 16, CV_8UC3, Hsv(h, 0.5, v));
   AddNoise(img, r, 3, 14);
   return img;
 }
