@@ -142,7 +142,8 @@ struct Client::Impl {
   Result<Answer> Call(const std::string& method, const std::string& body, int deadline_ms) {
     const auto start = std::chrono::steady_clock::now();
     auto elapsed_ms = [&] {
-      return std::chrono::duration_cast<std::chrono::milliseconds>(std::chrono::steady_clock::now() - start)
+      return std::chrono::duration_cast<std::chrono::milliseconds>(
+                 std::chrono::steady_clock::now() - start)
           .count();
     };
     Result<Answer> last = Status::IoError("no attempt made");
@@ -162,7 +163,8 @@ struct Client::Impl {
         std::lock_guard<std::mutex> lock(used->mu);
         used->dead = true;
       }
-      if (!shutting_down && (last.ok() || last.status().code() != StatusCode::kIoError)) return last;
+      if (!shutting_down && (last.ok() || last.status().code() != StatusCode::kIoError))
+        return last;
       // Lost or refused connection, or a server shutting down: again after a pause, while the
       // deadline leaves time.
       if (attempt >= o.retries || elapsed_ms() + backoff_ms >= deadline_ms) {

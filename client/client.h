@@ -1,8 +1,8 @@
 // The client library for sightfix-server: one connection, many calls in flight on it, a
 // deadline per call. When the connection is lost (the server restarted, say) or the server
 // answers UNAVAILABLE (shutting down), a call is sent again on a new connection, with backoff,
-// as long as its deadline leaves time: all three methods are reads, safe to repeat. A call that cannot be answered gets a kIoError saying so.
-// Async calls return a future; sync calls wait on it.
+// as long as its deadline leaves time: all three methods are reads, safe to repeat. A call that
+// cannot be answered gets a kIoError saying so. Async calls return a future; sync calls wait on it.
 // Thread safety: every method may be called from any thread concurrently.
 #pragma once
 
@@ -21,8 +21,9 @@ struct ClientOptions {
   int port = 7411;
   std::string token;  // sent with every call when set; never logged
   int connect_timeout_ms = 3000;
-  int retries = 10;  // extra attempts after a lost connection (idempotent calls), within the deadline
-  int retry_backoff_ms = 100;  // before the first retry; doubles each time, 2 s at most
+  int retries =
+      10;  // extra attempts after a lost connection (idempotent calls), within the deadline
+  int retry_backoff_ms = 100;             // before the first retry; doubles each time, 2 s at most
   uint32_t max_answer_bytes = 64u << 20;  // a longer answer frame closes the connection
 };
 

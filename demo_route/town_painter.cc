@@ -286,8 +286,7 @@ cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs) {
       AddNoise(img, r, 0.08 * ppm, 16);  // stucco grain
       Speckle(img, r, img.total() / 120, 3.5, 0.2);
       break;
-    case 1:
-    {
+    case 1: {
       const double bv = r.Uniform(0.4, 0.75), bs = r.Uniform(0.4, 0.7), bh = r.Uniform(0, 20);
       Brick(img, r, Hsv(bh, bs, bv), ppm);
       AddNoise(img, r, 1.5 * ppm, 8);

@@ -21,7 +21,8 @@ Result<MapWriterLock> MapWriterLock::Acquire(const std::string& map_dir) {
     char holder[256] = {};
     const ssize_t n = ::pread(fd, holder, sizeof(holder) - 1, 0);
     ::close(fd);
-    if (err != EWOULDBLOCK) return Status::IoError("cannot lock " + path + ": " + std::strerror(err));
+    if (err != EWOULDBLOCK)
+      return Status::IoError("cannot lock " + path + ": " + std::strerror(err));
     std::string who(holder, n > 0 ? static_cast<size_t>(n) : 0);
     while (!who.empty() && (who.back() == '\n' || who.back() == ' ')) who.pop_back();
     return Status(StatusCode::kFailedPrecondition,
@@ -35,7 +36,8 @@ Result<MapWriterLock> MapWriterLock::Acquire(const std::string& map_dir) {
   gmtime_r(&now, &utc);
   char when[32];
   std::strftime(when, sizeof(when), "%Y-%m-%dT%H:%M:%SZ", &utc);
-  const int len = std::snprintf(line, sizeof(line), "pid %d since %s\n", static_cast<int>(::getpid()), when);
+  const int len =
+      std::snprintf(line, sizeof(line), "pid %d since %s\n", static_cast<int>(::getpid()), when);
   if (::ftruncate(fd, 0) == 0 && len > 0) {
     const ssize_t w = ::pwrite(fd, line, static_cast<size_t>(len), 0);
     (void)w;  // the note is informative; the lock is what counts

@@ -262,7 +262,8 @@ Status ReadImages(sqlite3* db, const std::string& path, TileData* t) {
   Result<Stmt> st = Prepare(db, "SELECT * FROM images ORDER BY id");
   if (!st.ok()) return st.status();
   sqlite3_stmt* s = st->get();
-  if (sqlite3_column_count(s) != 15) return Status::Corrupt(path + ": images table has another shape");
+  if (sqlite3_column_count(s) != 15)
+    return Status::Corrupt(path + ": images table has another shape");
   int rc;
   while ((rc = sqlite3_step(s)) == SQLITE_ROW) {
     ReferenceImage r;
@@ -322,7 +323,8 @@ Status ReadCameras(sqlite3* db, const std::string& path, TileData* t) {
   Result<Stmt> st = Prepare(db, "SELECT * FROM cameras ORDER BY id");
   if (!st.ok()) return st.status();
   sqlite3_stmt* s = st->get();
-  if (sqlite3_column_count(s) != 13) return Status::Corrupt(path + ": cameras table has another shape");
+  if (sqlite3_column_count(s) != 13)
+    return Status::Corrupt(path + ": cameras table has another shape");
   int rc;
   while ((rc = sqlite3_step(s)) == SQLITE_ROW) {
     CameraModel c;
@@ -442,7 +444,8 @@ Result<Catalog> ReadCatalog(const std::string& path) {
   auto meta = ReadMeta(db->get());
   if (!meta.ok() && meta.status().code() != StatusCode::kCorrupt)
     return Status(meta.status().code(), path + ": " + meta.status().message());
-  if (!meta.ok()) return Status::Corrupt(path + ": not a sightfix catalog (" + meta.status().message() + ")");
+  if (!meta.ok())
+    return Status::Corrupt(path + ": not a sightfix catalog (" + meta.status().message() + ")");
   Catalog c;
   c.format_version = std::atoi(MetaValue(*meta, "format_version").c_str());
   if (c.format_version != kMapFormatVersion)

@@ -41,7 +41,8 @@ Result<YAML::Node> LoadYamlFile(const std::string& path) {
   text.resize(kMaxBytes + 1);
   in.read(text.data(), static_cast<std::streamsize>(text.size()));
   text.resize(static_cast<size_t>(in.gcount()));
-  if (text.size() > kMaxBytes) return Status::InvalidArgument(path + ": over 1 MiB, not a calibration or rig file");
+  if (text.size() > kMaxBytes)
+    return Status::InvalidArgument(path + ": over 1 MiB, not a calibration or rig file");
   // OpenCV writes "%YAML:1.0", which is not a YAML 1.2 directive: dropped.
   if (text.rfind("%YAML:", 0) == 0) text.erase(0, std::min(text.find('\n'), text.size()));
   if (TooDeep(text)) return Status::InvalidArgument(path + ": nested too deeply");
@@ -81,13 +82,15 @@ Result<std::vector<double>> YamlMatrix(const YAML::Node& node, const std::string
     Result<double> cc = YamlNumber(node["cols"], what + ": cols");
     if (!rr.ok()) return rr.status();
     if (!cc.ok()) return cc.status();
-    if (*rr < 0 || *rr > 64 || *cc < 0 || *cc > 64 || *rr != std::floor(*rr) || *cc != std::floor(*cc))
+    if (*rr < 0 || *rr > 64 || *cc < 0 || *cc > 64 || *rr != std::floor(*rr) ||
+        *cc != std::floor(*cc))
       return Status::InvalidArgument(what + ": rows and cols must be whole numbers up to 64");
     r = static_cast<int>(*rr), c = static_cast<int>(*cc);
   }
   // No Node assignment: in yaml-cpp it rebinds content and throws on a missing key.
   const YAML::Node data = node.IsMap() ? node["data"] : node;
-  if (!data || !data.IsSequence()) return Status::InvalidArgument(what + ": data must be a list of numbers");
+  if (!data || !data.IsSequence())
+    return Status::InvalidArgument(what + ": data must be a list of numbers");
   std::vector<double> values;
   for (size_t i = 0; i < data.size(); ++i) {
     Result<double> v = YamlNumber(data[i], what + ": data[" + std::to_string(i) + "]");

@@ -7,10 +7,10 @@
 // (yaml-cpp recurses per level). Thread safety: pure functions.
 #pragma once
 
+#include <yaml-cpp/yaml.h>
+
 #include <string>
 #include <vector>
-
-#include <yaml-cpp/yaml.h>
 
 #include "indexer/status.h"
 

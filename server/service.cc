@@ -548,8 +548,8 @@ std::string Service::Impl::HealthText(bool* ok) {
   std::shared_ptr<const Localizer> loc = Current();
   const std::vector<TileProblem> bad = loc->TileProblems();
   const int tiles = static_cast<int>(loc->catalog().tiles.size());
-  const std::string checked =
-      " (" + std::to_string(loc->tiles_checked()) + " of " + std::to_string(tiles) + " tiles checked)\n";
+  const std::string checked = " (" + std::to_string(loc->tiles_checked()) + " of " +
+                              std::to_string(tiles) + " tiles checked)\n";
   if (bad.empty()) {
     *ok = true;
     return "ok" + checked;

@@ -1,7 +1,5 @@
 #include "server/tile_cache.h"
 
-#include "indexer/sha256.h"
-
 #include <faiss/Index.h>
 #include <faiss/impl/FaissException.h>
 #include <faiss/impl/io.h>
@@ -10,6 +8,8 @@
 #include <algorithm>
 #include <cstdio>
 #include <filesystem>
+
+#include "indexer/sha256.h"
 
 namespace sightfix {
 
@@ -53,7 +53,7 @@ Status TileCache::Failed(int ordinal, const Status& why) {
   checked_[ordinal] = true;
   std::fprintf(stderr, "{\"event\":\"tile_skipped\",\"tile\":\"%s\",\"reason\":\"%s\"}\n",
                tiles_[ordinal].key.ToString().c_str(),
-               why.code() == StatusCode::kNotFound ? "missing"
+               why.code() == StatusCode::kNotFound  ? "missing"
                : why.code() == StatusCode::kCorrupt ? "damaged"
                                                     : "unreadable");
   return failed_[ordinal] = why;
@@ -69,7 +69,8 @@ Status TileCache::VerifyFile(int ordinal) const {
   }
   if (*sha != tiles_[ordinal].sha256)
     return Status::Corrupt(path + ": damaged: SHA-256 " + sha->substr(0, 12) +
-                           "... is not the catalog's " + tiles_[ordinal].sha256.substr(0, 12) + "...");
+                           "... is not the catalog's " + tiles_[ordinal].sha256.substr(0, 12) +
+                           "...");
   return Status::Ok();
 }
 

@@ -2,10 +2,10 @@
 // bad calls mixed, while the server's memory, descriptors and latency are watched through
 // /proc. Prints one line per window and a JSON verdict; exit 0 only when the verdict passes.
 // scripts/soak.sh starts the server and runs this; see README "Limits and guarantees".
-#include <boost/asio.hpp>
-#include <boost/program_options.hpp>
 #include <algorithm>
 #include <atomic>
+#include <boost/asio.hpp>
+#include <boost/program_options.hpp>
 #include <chrono>
 #include <cmath>
 #include <cstdio>
@@ -81,7 +81,8 @@ int main(int argc, char** argv) {
       "seconds", po::value(&seconds)->default_value(seconds), "length of the run")(
       "warmup", po::value(&warmup_s)->default_value(warmup_s), "seconds before the RSS baseline")(
       "window", po::value(&window_s)->default_value(window_s), "seconds per report line")(
-      "think-ms", po::value(&think_ms)->default_value(think_ms), "mean pause between a client's calls")(
+      "think-ms", po::value(&think_ms)->default_value(think_ms),
+      "mean pause between a client's calls")(
       "max-rss-growth", po::value(&max_rss_growth)->default_value(max_rss_growth),
       "largest RSS growth after warm-up that passes (fraction)");
   po::variables_map vm;
@@ -94,8 +95,11 @@ int main(int argc, char** argv) {
   }
   if (vm.count("help")) return std::cout << desc << "\n", 0;
   const size_t colon = server.rfind(':');
-  if (server.empty() || colon == std::string::npos || pid <= 0 || drive.empty() || warmup_s >= seconds) {
-    std::fprintf(stderr, "soak_load: --server HOST:PORT, --pid and --drive are required; warmup < seconds\n");
+  if (server.empty() || colon == std::string::npos || pid <= 0 || drive.empty() ||
+      warmup_s >= seconds) {
+    std::fprintf(
+        stderr,
+        "soak_load: --server HOST:PORT, --pid and --drive are required; warmup < seconds\n");
     return 2;
   }
   const std::string host = server.substr(0, colon);
@@ -148,7 +152,8 @@ int main(int argc, char** argv) {
       auto client = sightfix::Client::Connect(co);
       asio::io_context io;
       while (!stop) {
-        std::this_thread::sleep_for(std::chrono::milliseconds(static_cast<int>(think_ms * (0.5 + u(rng)))));
+        std::this_thread::sleep_for(
+            std::chrono::milliseconds(static_cast<int>(think_ms * (0.5 + u(rng)))));
         if (stop) break;
         const double pick = u(rng);
         if (!client.ok()) {
@@ -208,7 +213,9 @@ int main(int argc, char** argv) {
   int fds_peak = 0;
   bool died = false;
   size_t reported = 0;
-  std::printf("window   good  refused  shed  unexpected  abuse  locate_p50_ms  locate_p99_ms  rss_mb  fds\n");
+  std::printf(
+      "window   good  refused  shed  unexpected  abuse  locate_p50_ms  locate_p99_ms  rss_mb  "
+      "fds\n");
   while (true) {
     std::this_thread::sleep_for(std::chrono::milliseconds(500));
     const double t = std::chrono::duration<double>(Clock::now() - start).count();
@@ -223,10 +230,10 @@ int main(int argc, char** argv) {
     while (reported < done && reported < windows.size()) {
       std::lock_guard<std::mutex> lock(mu);
       const Window& w = windows[reported];
-      std::printf("%3zu-%3zus %6ld %8ld %5ld %11ld %6ld %14.0f %14.0f %7.1f %4d\n", reported * window_s,
-                  (reported + 1) * window_s, w.good, w.refused_as_expected, w.shed, w.unexpected, w.abuse,
-                  Percentile(w.locate_ms, 0.5), Percentile(w.locate_ms, 0.99), RssKb(pid) / 1024.0,
-                  OpenFds(pid));
+      std::printf("%3zu-%3zus %6ld %8ld %5ld %11ld %6ld %14.0f %14.0f %7.1f %4d\n",
+                  reported * window_s, (reported + 1) * window_s, w.good, w.refused_as_expected,
+                  w.shed, w.unexpected, w.abuse, Percentile(w.locate_ms, 0.5),
+                  Percentile(w.locate_ms, 0.99), RssKb(pid) / 1024.0, OpenFds(pid));
       std::fflush(stdout);
       ++reported;
     }
@@ -240,7 +247,9 @@ int main(int argc, char** argv) {
   died = died || !Alive(pid);
 
   long unexpected = 0, total_good = 0, shed = 0, refused = 0;
-  for (const Window& w : windows) unexpected += w.unexpected, total_good += w.good, shed += w.shed, refused += w.refused_as_expected;
+  for (const Window& w : windows)
+    unexpected += w.unexpected, total_good += w.good, shed += w.shed,
+        refused += w.refused_as_expected;
   // p99 stability: the windows after warm-up, last full one against the first.
   const size_t first = static_cast<size_t>((warmup_s + window_s - 1) / window_s);
   const size_t last = static_cast<size_t>(seconds / window_s) - 1;
@@ -249,7 +258,8 @@ int main(int argc, char** argv) {
   const double growth = rss_warm > 0 ? double(rss_end - rss_warm) / rss_warm : NAN;
   const bool rss_ok = std::isfinite(growth) && growth <= max_rss_growth;
   const bool fds_ok = fds_after >= 0 && fds_after <= fds_before;
-  const bool p99_ok = std::isfinite(p99_first) && std::isfinite(p99_last) && p99_last <= 1.5 * p99_first;
+  const bool p99_ok =
+      std::isfinite(p99_first) && std::isfinite(p99_last) && p99_last <= 1.5 * p99_first;
   const bool pass = !died && rss_ok && fds_ok && p99_ok && unexpected == 0;
   std::printf(
       "{\"clients\":%d,\"seconds\":%d,\"good\":%ld,\"refused_as_expected\":%ld,\"shed\":%ld,"

@@ -1,5 +1,6 @@
 // libFuzzer target: drive.csv, strict and with bad rows skipped. Invariants: every row returned
-// has finite coordinates in range and times that never go back (cameras of a rig may share one); line numbers match the rows.
+// has finite coordinates in range and times that never go back (cameras of a rig may share one);
+// line numbers match the rows.
 #include <cmath>
 
 #include "indexer/drive_manifest.h"

@@ -21,7 +21,8 @@ extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
   FUZZ_CHECK(again.size() >= kFrameHeaderBytes);
   FUZZ_CHECK(FrameLength(reinterpret_cast<const uint8_t*>(again.data())) ==
              again.size() - kFrameHeaderBytes);
-  FUZZ_CHECK(ParseEnvelope(again.data() + kFrameHeaderBytes, again.size() - kFrameHeaderBytes).ok());
+  FUZZ_CHECK(
+      ParseEnvelope(again.data() + kFrameHeaderBytes, again.size() - kFrameHeaderBytes).ok());
   if (env->method() != "Locate") return 0;
   v1::LocateRequest r;
   if (!r.ParseFromString(env->body())) return 0;

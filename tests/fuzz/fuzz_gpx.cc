@@ -9,7 +9,8 @@ extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
   using namespace sightfix;
   auto track = ReadGpxTrack(fuzz::WriteInput("track.gpx", data, size));
   if (!track.ok() || track->empty()) return 0;
-  for (size_t i = 1; i < track->size(); ++i) FUZZ_CHECK((*track)[i].time_s > (*track)[i - 1].time_s);
+  for (size_t i = 1; i < track->size(); ++i)
+    FUZZ_CHECK((*track)[i].time_s > (*track)[i - 1].time_s);
   const double t0 = track->front().time_s, t1 = track->back().time_s;
   for (double t : {t0, 0.5 * (t0 + t1), t1 + 1}) {
     auto s = TrackAt(*track, t, 60);

@@ -45,12 +45,12 @@ inline std::string WriteText(const std::string& name, const std::string& text) {
 }
 
 // An invariant of the code under test broke: a crash for the fuzzer.
-#define FUZZ_CHECK(cond)                                                   \
-  do {                                                                     \
-    if (!(cond)) {                                                         \
+#define FUZZ_CHECK(cond)                                                                 \
+  do {                                                                                   \
+    if (!(cond)) {                                                                       \
       std::fprintf(stderr, "invariant failed: %s (%s:%d)\n", #cond, __FILE__, __LINE__); \
-      std::abort();                                                        \
-    }                                                                      \
+      std::abort();                                                                      \
+    }                                                                                    \
   } while (0)
 
 }  // namespace sightfix::fuzz

@@ -15,7 +15,8 @@ extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
     FUZZ_CHECK(r.descriptors.rows == static_cast<int>(r.normalized.size()));
     FUZZ_CHECK(r.point_ids.size() == r.normalized.size());
     FUZZ_CHECK(r.camera_id >= 0 && r.camera_id < static_cast<int>(tile->cameras.size()));
-    for (int32_t id : r.point_ids) FUZZ_CHECK(id >= -1 && id < static_cast<int32_t>(tile->points.size()));
+    for (int32_t id : r.point_ids)
+      FUZZ_CHECK(id >= -1 && id < static_cast<int32_t>(tile->points.size()));
   }
   return 0;
 }

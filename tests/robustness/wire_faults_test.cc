@@ -52,7 +52,8 @@ class ServerProcess {
   explicit ServerProcess(int port) : port_(port) {}
   ~ServerProcess() { Stop(SIGKILL); }
   bool Start() {
-    log_ = ::testing::TempDir() + "/server-" + std::to_string(port_) + "-" + std::to_string(starts_++) + ".log";
+    log_ = ::testing::TempDir() + "/server-" + std::to_string(port_) + "-" +
+           std::to_string(starts_++) + ".log";
     const std::string bin = Env("SIGHTFIX_SERVER_BIN", "sightfix-server");
     const std::string map = Env("SIGHTFIX_SERVICE_DATA", "service_data") + "/map";
     const std::string listen = "127.0.0.1:" + std::to_string(port_);
@@ -60,8 +61,8 @@ class ServerProcess {
     if (pid_ == 0) {
       FILE* f = std::freopen(log_.c_str(), "w", stderr);
       (void)f;
-      ::execl(bin.c_str(), bin.c_str(), "--map", map.c_str(), "--listen", listen.c_str(), "--http", "",
-              "--workers", "2", static_cast<char*>(nullptr));
+      ::execl(bin.c_str(), bin.c_str(), "--map", map.c_str(), "--listen", listen.c_str(), "--http",
+              "", "--workers", "2", static_cast<char*>(nullptr));
       std::_Exit(127);
     }
     for (int i = 0; i < 300; ++i) {  // up to 30 s for the map to open
@@ -197,9 +198,11 @@ TEST(WireFaults, ServerRestartedUnderLoad) {
   std::this_thread::sleep_for(std::chrono::seconds(4));
   stop = true;
   for (std::thread& t : clients) t.join();
-  std::printf("answered %d / %d / %d, failed %d / %d / %d (before kill / after kill / after graceful stop)\n",
-              answered[0].load(), answered[1].load(), answered[2].load(), failed[0].load(),
-              failed[1].load(), failed[2].load());
+  std::printf(
+      "answered %d / %d / %d, failed %d / %d / %d (before kill / after kill / after graceful "
+      "stop)\n",
+      answered[0].load(), answered[1].load(), answered[2].load(), failed[0].load(),
+      failed[1].load(), failed[2].load());
   for (const std::string& e : errors) std::printf("  error: %s\n", e.c_str());
   EXPECT_GT(before_kill, 0);
   EXPECT_EQ(failed[0], 0);
