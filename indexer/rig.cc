@@ -48,10 +48,6 @@ struct TimedImage {
   double time_s = 0;
 };
 
-}  // namespace
-
-namespace {
-
 Result<Rig> ReadRig(const std::string& path) {
   Rig rig;
   rig.dir = fs::path(path).parent_path().string();

@@ -57,24 +57,20 @@ Result<YAML::Node> LoadYamlFile(const std::string& path) {
   }
 }
 
-Result<double> YamlNumber(const YAML::Node& node, const std::string& what) try {
+Result<double> YamlNumber(const YAML::Node& node, const std::string& what) {
   double v = 0;
   if (!node || !node.IsScalar() || !YAML::convert<double>::decode(node, v) || !std::isfinite(v))
     return Status::InvalidArgument(what + " must be a number");
   return v;
-} catch (const std::exception& e) {
-  return Status::InvalidArgument(what + ": " + e.what());
 }
 
-Result<std::string> YamlText(const YAML::Node& node, const std::string& what) try {
+Result<std::string> YamlText(const YAML::Node& node, const std::string& what) {
   if (!node || !node.IsScalar()) return Status::InvalidArgument(what + " must be text");
   return node.Scalar();
-} catch (const std::exception& e) {
-  return Status::InvalidArgument(what + ": " + e.what());
 }
 
 Result<std::vector<double>> YamlMatrix(const YAML::Node& node, const std::string& what, int* rows,
-                                       int* cols) try {
+                                       int* cols) {
   if (!node) return Status::InvalidArgument(what + " is missing");
   int r = -1, c = -1;
   if (node.IsMap()) {
@@ -104,8 +100,6 @@ Result<std::vector<double>> YamlMatrix(const YAML::Node& node, const std::string
   if (rows) *rows = r;
   if (cols) *cols = c;
   return values;
-} catch (const std::exception& e) {  // YAML::Exception from an accessor: a malformed node
-  return Status::InvalidArgument(what + ": " + e.what());
 }
 
 }  // namespace sightfix

@@ -25,7 +25,9 @@ Result<YAML::Node> LoadYamlFile(const std::string& path);
 Result<std::vector<double>> YamlMatrix(const YAML::Node& node, const std::string& what, int* rows,
                                        int* cols);
 
-// Scalars: nullopt-like failures come back as kInvalidArgument naming `what`.
+// Scalars: failures come back as kInvalidArgument naming `what`. yaml-cpp accessors may still
+// throw YAML::Exception on malformed nodes: callers read a whole file inside one try
+// (LoadCameraModel, LoadRig).
 Result<double> YamlNumber(const YAML::Node& node, const std::string& what);
 Result<std::string> YamlText(const YAML::Node& node, const std::string& what);
 
