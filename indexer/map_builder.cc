@@ -1,5 +1,7 @@
 #include "indexer/map_builder.h"
 
+#include "indexer/build_internal.h"
+
 #include <faiss/IndexFlatCodes.h>
 #include <faiss/IndexIDMap.h>
 #include <faiss/impl/io.h>
@@ -30,10 +32,9 @@
 #include "indexer/threads.h"
 
 namespace sightfix {
-namespace {
+namespace build_internal {
 
 namespace fs = std::filesystem;
-using Clock = std::chrono::steady_clock;
 
 double SecondsSince(Clock::time_point t0) {
   return std::chrono::duration<double>(Clock::now() - t0).count();
@@ -43,14 +44,6 @@ void Say(const BuildOptions& o, const std::string& line) {
   if (o.progress) std::fprintf(stderr, "indexer: %s\n", line.c_str());
 }
 
-struct Survey {
-  std::vector<DriveRow> rows;
-  std::vector<double> attitude_sigma_deg;  // per row; 0 = the structure's default
-  std::vector<std::string> origin;         // per row: where it came from, for messages
-  std::vector<CameraModel> cameras;        // distinct calibrations
-  std::vector<int> camera_of_row;
-  std::vector<LocalFeatures> features;
-};
 
 // The image file of a row.
 std::string RowName(const BuildOptions& o, const Survey& s, size_t i) {
@@ -241,16 +234,6 @@ std::vector<uint8_t> IndexBytes(const faiss::Index& index) {
   return std::move(w.data);
 }
 
-// Everything the tiles are cut from.
-struct Built {
-  const Survey* survey;
-  const GlobalDescriptor* model;
-  std::string model_id;
-  cv::Mat codes;  // one row per image
-  const StructureResult* structure;
-  const EnuFrame* enu;
-  int map_version;
-};
 
 TileData MakeTile(const Built& b, const TileKey& key, const std::vector<int>& rows) {
   TileData t;
@@ -308,6 +291,13 @@ TileData MakeTile(const Built& b, const TileKey& key, const std::vector<int>& ro
 }
 
 std::string NowIsoUtc() {
+  // SOURCE_DATE_EPOCH (reproducible-builds.org): a fixed clock makes two builds of one survey
+  // byte-identical, catalog included.
+  if (const char* fixed = std::getenv("SOURCE_DATE_EPOCH")) {
+    char* end = nullptr;
+    const long long t = std::strtoll(fixed, &end, 10);
+    if (end != fixed && *end == '\0' && t >= 0) return FormatIsoUtc(static_cast<double>(t));
+  }
   return FormatIsoUtc(static_cast<double>(std::chrono::duration_cast<std::chrono::seconds>(
                                               std::chrono::system_clock::now().time_since_epoch())
                                               .count()));
@@ -453,7 +443,9 @@ Result<int> NextMapVersion(const BuildOptions& o) {
   return old.ok() ? old->map_version + 1 : 1;
 }
 
-}  // namespace
+}  // namespace build_internal
+
+using namespace build_internal;
 
 bool BuildOptions::Validate(std::string* error) const {
   auto fail = [&](const std::string& m) {
@@ -473,77 +465,6 @@ bool BuildOptions::Validate(std::string* error) const {
   if (!descriptor.Validate(&e)) return fail("descriptor: " + e);
   if (!structure.Validate(&e)) return fail("structure: " + e);
   return true;
-}
-
-Result<BuildSummary> BuildMap(const BuildOptions& o) {
-  std::string error;
-  if (!o.Validate(&error)) return Status::InvalidArgument(error);
-  PinLibraryThreads();  // DEVELOPERS.md, Threads
-  const auto t_start = Clock::now();
-  std::error_code ec;
-  fs::create_directories(o.map_dir, ec);
-  Result<MapWriterLock> lock = MapWriterLock::Acquire(o.map_dir);
-  if (!lock.ok()) return lock.status();
-  Result<int> version = NextMapVersion(o);
-  if (!version.ok()) return version.status();
-  BuildSummary summary;
-  Survey s;
-  Result<SurveyRows> rows = ReadSurvey(o);
-  if (!rows.ok()) return rows.status();
-  summary.input_format = SurveyFormatName(rows->format);
-  summary.skipped = rows->problems;
-  s.rows = std::move(rows->rows);
-  s.attitude_sigma_deg = std::move(rows->attitude_sigma_deg);
-  s.origin = std::move(rows->origin);
-  if (Status st = LoadCameras(o, &s, &summary.skipped); !st.ok()) return st;
-  summary.map_version = *version;
-
-  auto t0 = Clock::now();
-  if (Status st = ExtractAll(o, &s, &summary.skipped); !st.ok()) return st;
-  summary.feature_s = SecondsSince(t0);
-  summary.images = static_cast<int>(s.rows.size());
-  if (static_cast<int>(s.rows.size()) <= o.descriptor.pq_subquantizers)
-    return Status::InvalidArgument(
-        "a map needs more than " + std::to_string(o.descriptor.pq_subquantizers) +
-        " survey images, the survey has " + std::to_string(s.rows.size()) + " usable");
-
-  Say(o, "training the global descriptor model");
-  Result<TrainedModel> trained = TrainAndEncode(o, s, &summary);
-  if (!trained.ok()) return trained.status();
-  const GlobalDescriptor* model = &trained->model;
-  const cv::Mat& codes = trained->codes;
-  const std::vector<uint8_t>& model_blob = trained->blob;
-
-  Say(o, "matching neighbouring frames, triangulating, bundle adjustment");
-  const EnuFrame enu(s.rows[0].position);
-  Result<StructureResult> structure = Adjust(o, s, enu, &summary);
-  if (!structure.ok()) return structure.status();
-
-  t0 = Clock::now();
-  Say(o, "writing tiles and the catalog");
-  Catalog catalog;
-  catalog.map_version = *version;
-  catalog.zoom = o.zoom;
-  catalog.model_id = summary.model_id;
-  catalog.model_params = ModelParams(*model, summary.training_vectors).dump();
-  catalog.model_blob = model_blob;
-  catalog.created_utc = NowIsoUtc();
-  catalog.provenance = nlohmann::json{{"drives", {DriveRecord(o, summary)}},
-                                      {"max_features", o.features.max_features},
-                                      {"zoom", o.zoom}}
-                           .dump();
-  const Built built{&s, model, summary.model_id, codes, &*structure, &enu, *version};
-  std::vector<TileKey> tile_of_row;
-  for (const cv::Vec3d& c : structure->center_enu) {
-    const GeoPoint p = enu.ToGeo(c);
-    tile_of_row.push_back(TileForPoint(p.lat_deg, p.lon_deg, o.zoom));
-  }
-  if (Status st = Publish(o, built, tile_of_row, {}, catalog, &summary); !st.ok()) return st;
-  RemoveUnlistedTiles(o.map_dir, catalog);
-  summary.write_s = SecondsSince(t0);
-  summary.seconds = SecondsSince(t_start);
-  summary.images_per_s = summary.images / std::max(summary.seconds, 1e-9);
-  return summary;
 }
 
 namespace {

@@ -44,6 +44,12 @@ struct BuildOptions {
   // Crop views per image, only while under min_pq_training (DESIGN.md 4.3): 40 lets surveys of
   // 244 images or more reach the 9 984 vectors of an 8-bit PQ; smaller ones get SQ8 codes.
   int max_crop_views = 40;
+  // train: at most this many survey images (evenly spaced) train the model; features of that
+  // many images are held in memory at once (about 1 MB each at 2 000 keypoints).
+  int train_images = 5000;
+  // Structure is solved per tile on its own frames plus the frames within margin_m of its
+  // bounds (DEVELOPERS.md, "Scale-out"); 40 m covers the 3 neighbours x 12 m a track can span.
+  double margin_m = 40.0;
   bool progress = true;  // progress on stderr
   FeatureOptions features;
   GlobalDescriptorOptions descriptor;
@@ -63,9 +69,56 @@ struct BuildSummary {
   // Bytes per image on disk, by part (averages over the map).
   double global_code_bytes = 0, local_feature_bytes = 0, point_bytes = 0, tile_file_bytes = 0;
   StructureSummary structure;
+  bool already_published = false;  // publish: the catalog already is this plan's
 };
 
+// `build`: plan (one shard), train, build-tiles, publish, in one process; staging files go
+// again at the end, whatever happens. Byte for byte the map the four steps make on a cluster.
 Result<BuildSummary> BuildMap(const BuildOptions& options);
+
+// The build as four steps a batch scheduler can run (DEVELOPERS.md, "Scale-out"). Staging files
+// live in MAPDIR/staging/; the live map is touched only by publish, under the writer lock.
+//
+// train: the global descriptor model from at most train_images evenly spaced survey images,
+// written to MAPDIR/staging/model.bin (+ model.json). Same survey, same model bytes.
+struct TrainSummary {
+  int survey_images = 0, sampled_images = 0, training_vectors = 0;
+  std::string model_id, codec, model_file;
+  std::vector<std::string> skipped;
+  double seconds = 0;
+};
+Result<TrainSummary> TrainStep(const BuildOptions& options);
+
+// plan: every survey row checked (coordinates, calibration, image readable, no image twice by
+// SHA-256), rows grouped by tile, each tile's context frames (within margin_m), tiles dealt to
+// `shards` shards by work (largest first). Writes the plan file (JSON) at plan_path.
+struct PlanSummary {
+  std::string plan_file, plan_id;
+  int images = 0, tiles = 0, shards = 0, map_version = 0;
+  std::vector<int> images_per_shard;  // own plus context frames
+  std::vector<std::string> skipped;
+};
+std::string DefaultPlanPath(const std::string& map_dir);
+Result<PlanSummary> PlanStep(const BuildOptions& options, const std::string& plan_path, int shards);
+
+// build-tiles: shard `shard` (1..shards) of a plan: features, codes, structure and the tile file
+// of each of its tiles, under MAPDIR/staging/<plan id>/, then the shard's manifest (written
+// last, atomically). Deterministic and idempotent: a repeat writes the same bytes; a shard that
+// died left no manifest and is simply run again.
+struct ShardSummary {
+  int shard = 0, shards = 0, tiles = 0, images = 0, points = 0;
+  std::string manifest;
+  std::vector<std::string> skipped;
+  double seconds = 0;
+};
+Result<ShardSummary> BuildTilesStep(const std::string& plan_path, int shard, int shards, int jobs,
+                                    bool progress);
+
+// publish: checks the plan's every shard (manifest present, same plan, same model, each tile
+// file's SHA-256), moves the tiles into the map and switches the catalog in one transaction.
+// kFailedPrecondition naming each missing shard; a publish already done says so and changes
+// nothing (summary.already_published).
+Result<BuildSummary> PublishStep(const std::string& plan_path, bool progress);
 
 // `add`: one more survey (options.drive_dir) into the map at options.map_dir with the map's own
 // model and zoom. Tiles the new frames fall in are rebuilt from their stored images plus the

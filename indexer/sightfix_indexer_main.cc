@@ -68,13 +68,9 @@ constexpr char kAddHelp[] =
     "and servable until that switch, whatever happens.\n\n"
     "Usage: sightfix-indexer add --drive DIR --map MAPDIR [options]\n\nOptions";
 
-// build and add: one survey in, a map out. add = true: into the existing map.
-int Build(int argc, char** argv, bool add) {
-  sightfix::BuildOptions o;
-  po::options_description desc(add ? kAddHelp : kBuildHelp);
-  std::string format = "auto";
-  desc.add_options()("help,h", "show this help")("drive", po::value(&o.drive_dir),
-                                                 "survey folder")(
+// Flags every command reading a survey shares (build, add, train, plan).
+void AddSurveyFlags(po::options_description& desc, sightfix::BuildOptions& o, std::string& format) {
+  desc.add_options()("help,h", "show this help")("drive", po::value(&o.drive_dir), "survey folder")(
       "format", po::value(&format)->default_value("auto"),
       "survey form: drive (drive.csv), rig (rig.yml), exif (tagged JPEGs), gpx (JPEGs + a .gpx "
       "track), auto (in that order of what DIR holds)")(
@@ -84,40 +80,66 @@ int Build(int argc, char** argv, bool add) {
       "max-gap-s", po::value(&o.max_gap_s)->default_value(2.0),
       "gpx and rig forms: widest gap between track or INS points to interpolate across")(
       "skip-bad", "leave bad rows out (each listed, counted) instead of stopping")(
-      "map", po::value(&o.map_dir), "map folder to write (catalog.sqlite, tiles/)")(
+      "map", po::value(&o.map_dir), "map folder (catalog.sqlite, tiles/, staging/)")(
       "jobs", po::value(&o.jobs)->default_value(0), "worker threads (0 = all cores)")(
-      "zoom", po::value(&o.zoom)->default_value(sightfix::kDefaultTileZoom),
-      "WebMercatorQuad zoom of the tiles")(
-      "max-features", po::value(&o.features.max_features)->default_value(2000),
-      "RootSIFT keypoints kept per image")("overwrite", "replace a map already in MAPDIR")(
       "quiet", "no progress on stderr")("json", "print the summary as JSON on stdout");
-  po::variables_map vm;
+}
+
+// Parses argv into vm; -1: go on, else the exit code (help printed, or a bad flag).
+int ParseFlags(int argc, char** argv, const std::string& command, po::options_description& desc,
+               po::variables_map* vm) {
   try {
-    po::store(po::command_line_parser(argc, argv).options(desc).run(), vm);
-    po::notify(vm);
+    po::store(po::command_line_parser(argc, argv).options(desc).run(), *vm);
+    po::notify(*vm);
   } catch (const std::exception& e) {
-    return Fail(std::string(e.what()) + " (see --help)", 2);
+    return Fail(std::string(e.what()) + " (see sightfix-indexer " + command + " --help)", 2);
   }
-  if (vm.count("help")) {
+  if (vm->count("help")) {
     std::cout << desc << "\n";
     return 0;
   }
+  return -1;
+}
+
+// The survey flags' values into o; -1: go on, else the exit code.
+int TakeSurveyFlags(const po::variables_map& vm, const std::string& command, const std::string& format,
+                    sightfix::BuildOptions& o) {
   if (o.drive_dir.empty() || o.map_dir.empty())
-    return Fail(std::string(add ? "add" : "build") + " needs --drive DIR and --map MAPDIR (see --help)", 2);
+    return Fail(command + " needs --drive DIR and --map MAPDIR (see --help)", 2);
   o.overwrite = vm.count("overwrite") > 0;
   o.skip_bad = vm.count("skip-bad") > 0;
+  o.progress = vm.count("quiet") == 0;
   if (!sightfix::ParseSurveyFormat(format, &o.format))
     return Fail("--format must be auto, drive, rig, exif or gpx", 2);
-  o.progress = vm.count("quiet") == 0;
   std::string error;
   if (!o.Validate(&error)) return Fail(error, 2);
+  return -1;
+}
+
+// Exit code of a failed step: 2 for bad input or state the user can fix, 1 otherwise.
+int FailStatus(const sightfix::Status& s, const std::string& tail) {
+  const bool input = s.code() == sightfix::StatusCode::kInvalidArgument ||
+                     s.code() == sightfix::StatusCode::kNotFound ||
+                     s.code() == sightfix::StatusCode::kFailedPrecondition;
+  return Fail(s.ToString() + tail, input ? 2 : 1);
+}
+
+// build and add: one survey in, a map out. add = true: into the existing map.
+int Build(int argc, char** argv, bool add) {
+  sightfix::BuildOptions o;
+  po::options_description desc(add ? kAddHelp : kBuildHelp);
+  std::string format = "auto";
+  AddSurveyFlags(desc, o, format);
+  desc.add_options()("zoom", po::value(&o.zoom)->default_value(sightfix::kDefaultTileZoom),
+                     "WebMercatorQuad zoom of the tiles")(
+      "max-features", po::value(&o.features.max_features)->default_value(2000),
+      "RootSIFT keypoints kept per image")("overwrite", "replace a map already in MAPDIR");
+  po::variables_map vm;
+  const std::string command = add ? "add" : "build";
+  if (int rc = ParseFlags(argc, argv, command, desc, &vm); rc >= 0) return rc;
+  if (int rc = TakeSurveyFlags(vm, command, format, o); rc >= 0) return rc;
   sightfix::Result<sightfix::BuildSummary> s = add ? sightfix::AddToMap(o) : sightfix::BuildMap(o);
-  if (!s.ok()) {
-    const bool input = s.status().code() == sightfix::StatusCode::kInvalidArgument ||
-                       s.status().code() == sightfix::StatusCode::kNotFound ||
-                       s.status().code() == sightfix::StatusCode::kFailedPrecondition;
-    return Fail(s.status().ToString() + "\nnothing was written", input ? 2 : 1);
-  }
+  if (!s.ok()) return FailStatus(s.status(), "\nnothing was written");
   for (const std::string& why : s->skipped) std::fprintf(stderr, "skipped: %s\n", why.c_str());
   if (vm.count("json")) {
     std::cout << SummaryJson(*s).dump(2) << "\n";
@@ -136,6 +158,158 @@ int Build(int argc, char** argv, bool add) {
       s->structure_s, s->write_s, s->global_code_bytes, s->local_feature_bytes, s->point_bytes,
       s->tile_file_bytes, s->structure.observations, s->structure.ba_initial_rms_px,
       s->structure.ba_final_rms_px);
+  return 0;
+}
+
+// --- The build as scheduler steps: train, plan, build-tiles, publish (README, "Scaling out").
+
+int Train(int argc, char** argv) {
+  sightfix::BuildOptions o;
+  std::string format;
+  po::options_description desc(
+      "sightfix-indexer train: the global descriptor model (VLAD vocabulary, PCA whitening,\n"
+      "product quantizer) from at most --train-images evenly spaced survey images, written to\n"
+      "MAPDIR/staging/model.bin. One job; the same survey gives the same model bytes.\n\n"
+      "Usage: sightfix-indexer train --drive DIR --map MAPDIR [options]\n\nOptions");
+  AddSurveyFlags(desc, o, format);
+  desc.add_options()("max-features", po::value(&o.features.max_features)->default_value(2000),
+                     "RootSIFT keypoints kept per image")(
+      "train-images", po::value(&o.train_images)->default_value(o.train_images),
+      "survey images the model is trained on, at most (about 1 MB of memory each)");
+  po::variables_map vm;
+  if (int rc = ParseFlags(argc, argv, "train", desc, &vm); rc >= 0) return rc;
+  if (int rc = TakeSurveyFlags(vm, "train", format, o); rc >= 0) return rc;
+  auto s = sightfix::TrainStep(o);
+  if (!s.ok()) return FailStatus(s.status(), "");
+  for (const std::string& why : s->skipped) std::fprintf(stderr, "skipped: %s\n", why.c_str());
+  if (vm.count("json")) {
+    std::cout << nlohmann::json{{"model_id", s->model_id}, {"codec", s->codec},
+                                {"model_file", s->model_file}, {"survey_images", s->survey_images},
+                                {"sampled_images", s->sampled_images},
+                                {"training_vectors", s->training_vectors},
+                                {"skipped", s->skipped.size()}, {"seconds", s->seconds}}
+                     .dump(2)
+              << "\n";
+    return 0;
+  }
+  std::printf("model %s (%s, %d training vectors) from %d of %d survey images in %.1f s: %s\n",
+              s->model_id.c_str(), s->codec.c_str(), s->training_vectors, s->sampled_images,
+              s->survey_images, s->seconds, s->model_file.c_str());
+  return 0;
+}
+
+int Plan(int argc, char** argv) {
+  sightfix::BuildOptions o;
+  std::string format, plan;
+  int shards = 1;
+  po::options_description desc(
+      "sightfix-indexer plan: checks every survey row (coordinates, calibration, image readable,\n"
+      "no image twice), groups the frames by tile with the context frames each tile's structure\n"
+      "needs, and deals the tiles to N shards by work. Writes the plan (JSON) that build-tiles and\n"
+      "publish read.\n\n"
+      "Usage: sightfix-indexer plan --drive DIR --map MAPDIR --shards N [--plan FILE] [options]\n\n"
+      "Options");
+  AddSurveyFlags(desc, o, format);
+  desc.add_options()("shards", po::value(&shards)->default_value(1), "number of tile shards (jobs)")(
+      "plan", po::value(&plan), "plan file to write (default MAPDIR/staging/plan.json)")(
+      "zoom", po::value(&o.zoom)->default_value(sightfix::kDefaultTileZoom),
+      "WebMercatorQuad zoom of the tiles")(
+      "max-features", po::value(&o.features.max_features)->default_value(2000),
+      "RootSIFT keypoints kept per image")(
+      "margin-m", po::value(&o.margin_m)->default_value(o.margin_m),
+      "context frames: those within this distance of a tile's bounds join its structure")(
+      "overwrite", "the plan replaces the map already in MAPDIR when published");
+  po::variables_map vm;
+  if (int rc = ParseFlags(argc, argv, "plan", desc, &vm); rc >= 0) return rc;
+  if (int rc = TakeSurveyFlags(vm, "plan", format, o); rc >= 0) return rc;
+  if (shards < 1) return Fail("--shards must be >= 1", 2);
+  if (plan.empty()) plan = sightfix::DefaultPlanPath(o.map_dir);
+  auto s = sightfix::PlanStep(o, plan, shards);
+  if (!s.ok()) return FailStatus(s.status(), "");
+  for (const std::string& why : s->skipped) std::fprintf(stderr, "skipped: %s\n", why.c_str());
+  if (vm.count("json")) {
+    std::cout << nlohmann::json{{"plan", s->plan_file}, {"plan_id", s->plan_id},
+                                {"images", s->images}, {"tiles", s->tiles}, {"shards", s->shards},
+                                {"map_version", s->map_version},
+                                {"frames_per_shard", s->images_per_shard},
+                                {"skipped", s->skipped.size()}}
+                     .dump(2)
+              << "\n";
+    return 0;
+  }
+  std::printf("plan %s (%s): %d images in %d tiles, %d shards, map version %d\n",
+              s->plan_file.c_str(), s->plan_id.c_str(), s->images, s->tiles, s->shards,
+              s->map_version);
+  std::printf("frames per shard (own + context):");
+  for (int n : s->images_per_shard) std::printf(" %d", n);
+  std::printf("\nnext: sightfix-indexer build-tiles --plan %s --shard I/%d, for I = 1..%d\n",
+              s->plan_file.c_str(), s->shards, s->shards);
+  return 0;
+}
+
+int BuildTiles(int argc, char** argv) {
+  std::string plan, shard;
+  int jobs = 0;
+  po::options_description desc(
+      "sightfix-indexer build-tiles: one shard of a plan: features, global codes, structure and\n"
+      "the tile file of each of its tiles, in MAPDIR/staging/, then the shard's manifest.\n"
+      "Deterministic and safe to repeat; a shard that died is simply run again.\n\n"
+      "Usage: sightfix-indexer build-tiles --plan FILE --shard I/N [--jobs N]\n\nOptions");
+  desc.add_options()("help,h", "show this help")("plan", po::value(&plan), "the plan file")(
+      "shard", po::value(&shard), "which shard, as I/N with I in 1..N (N as planned)")(
+      "jobs", po::value(&jobs)->default_value(0), "worker threads (0 = all cores)")(
+      "quiet", "no progress on stderr")("json", "print the summary as JSON on stdout");
+  po::variables_map vm;
+  if (int rc = ParseFlags(argc, argv, "build-tiles", desc, &vm); rc >= 0) return rc;
+  int i = 0, n = 0;
+  char tail = 0;
+  if (plan.empty() || std::sscanf(shard.c_str(), "%d/%d%c", &i, &n, &tail) != 2)
+    return Fail("build-tiles needs --plan FILE and --shard I/N (see --help)", 2);
+  if (jobs < 0) return Fail("--jobs must be >= 0", 2);
+  auto s = sightfix::BuildTilesStep(plan, i, n, jobs, vm.count("quiet") == 0);
+  if (!s.ok()) return FailStatus(s.status(), "\nthe shard left no manifest; run it again");
+  for (const std::string& why : s->skipped) std::fprintf(stderr, "skipped: %s\n", why.c_str());
+  if (vm.count("json")) {
+    std::cout << nlohmann::json{{"shard", s->shard}, {"shards", s->shards}, {"tiles", s->tiles},
+                                {"images", s->images}, {"points", s->points},
+                                {"manifest", s->manifest}, {"skipped", s->skipped.size()},
+                                {"seconds", s->seconds}}
+                     .dump(2)
+              << "\n";
+    return 0;
+  }
+  std::printf("shard %d/%d: %d tiles, %d images, %d 3D points in %.1f s; %s\n", s->shard,
+              s->shards, s->tiles, s->images, s->points, s->seconds, s->manifest.c_str());
+  return 0;
+}
+
+int Publish(int argc, char** argv) {
+  std::string plan;
+  po::options_description desc(
+      "sightfix-indexer publish: checks every shard of a plan (manifest present, same plan and\n"
+      "model, every tile file's SHA-256), moves the tiles into the map and switches the catalog\n"
+      "in one transaction. Refuses a plan with a missing shard and names it. Safe to repeat.\n\n"
+      "Usage: sightfix-indexer publish --plan FILE [--json]\n\nOptions");
+  desc.add_options()("help,h", "show this help")("plan", po::value(&plan), "the plan file")(
+      "quiet", "no progress on stderr")("json", "print the summary as JSON on stdout");
+  po::variables_map vm;
+  if (int rc = ParseFlags(argc, argv, "publish", desc, &vm); rc >= 0) return rc;
+  if (plan.empty()) return Fail("publish needs --plan FILE (see --help)", 2);
+  auto s = sightfix::PublishStep(plan, vm.count("quiet") == 0);
+  if (!s.ok()) return FailStatus(s.status(), "\nthe map was not changed");
+  if (vm.count("json")) {
+    nlohmann::json j = SummaryJson(*s);
+    j["already_published"] = s->already_published;
+    std::cout << j.dump(2) << "\n";
+    return 0;
+  }
+  if (s->already_published) {
+    std::printf("plan %s is already published (map version %d, %d tiles); nothing to do\n",
+                plan.c_str(), s->map_version, s->tiles);
+    return 0;
+  }
+  std::printf("published map version %d: %d images in %d tiles, %d 3D points, model %s (%s)\n",
+              s->map_version, s->images, s->tiles, s->points, s->model_id.c_str(), s->codec.c_str());
   return 0;
 }
 
@@ -285,6 +459,10 @@ void Usage() {
       "  build --drive DIR --map MAPDIR      a new map from one survey (drive.csv, rig, EXIF, GPX)\n"
       "  add --drive DIR --map MAPDIR        one more survey into a map (touched tiles only)\n"
       "  retrain --map MAPDIR                a new model from all of the map's images\n"
+      "  train --drive DIR --map MAPDIR      build, step 1 of 4 on a cluster: the model\n"
+      "  plan --drive DIR --map MAPDIR --shards N   step 2: the tile jobs, dealt to N shards\n"
+      "  build-tiles --plan FILE --shard I/N step 3: one shard's tiles (independent jobs)\n"
+      "  publish --plan FILE                 step 4: checks every shard, switches the catalog\n"
       "  inspect --map MAPDIR [--json]       what a map holds\n"
       "  verify --map MAPDIR [--json]        checks a map; names every bad tile\n"
       "  coverage --map MAPDIR --out F.geojson   tile polygons and survey tracks\n\n"
@@ -303,6 +481,10 @@ int main(int argc, char** argv) {
   if (command == "build") return Build(argc - 1, argv + 1, false);
   if (command == "add") return Build(argc - 1, argv + 1, true);
   if (command == "retrain") return Retrain(argc - 1, argv + 1);
+  if (command == "train") return Train(argc - 1, argv + 1);
+  if (command == "plan") return Plan(argc - 1, argv + 1);
+  if (command == "build-tiles") return BuildTiles(argc - 1, argv + 1);
+  if (command == "publish") return Publish(argc - 1, argv + 1);
   if (command == "inspect") return Inspect(argc - 1, argv + 1);
   if (command == "verify") return Verify(argc - 1, argv + 1);
   if (command == "coverage") return Coverage(argc - 1, argv + 1);
