@@ -1,5 +1,6 @@
 #include "client/client.h"
 
+#include <atomic>
 #include <boost/asio.hpp>
 #include <chrono>
 #include <map>
@@ -7,6 +8,7 @@
 #include <thread>
 
 #include "proto/frame_codec.h"
+#include "server/service.h"
 #include "server/wire.h"
 
 namespace sightfix {
@@ -74,29 +76,51 @@ struct Connection {
 
 struct Client::Impl {
   ClientOptions o;
-  std::mutex mu;  // guards conn and next_id
+  std::vector<std::pair<std::string, int>> endpoints;  // host, port
+  std::mutex mu;  // guards conn, current, failovers and next_id
   std::shared_ptr<Connection> conn;
+  size_t current = 0;  // the endpoint conn is (or was last) connected to
   uint64_t next_id = 1;
+  std::atomic<uint64_t> resent{0};
 
+  std::string Label(size_t i) const {
+    return endpoints[i].first + ":" + std::to_string(endpoints[i].second);
+  }
+  std::string AllLabels() const {
+    std::string s;
+    for (size_t i = 0; i < endpoints.size(); ++i) s += (i ? ", " : "") + Label(i);
+    return s;
+  }
+
+  // The live connection, or a new one: after a lost connection, from the next endpoint on.
   Result<std::shared_ptr<Connection>> Live() {
     std::lock_guard<std::mutex> lock(mu);
     if (conn) {
       std::lock_guard<std::mutex> l2(conn->mu);
       if (!conn->dead) return conn;
     }
-    auto c = std::make_shared<Connection>();
-    c->max_answer_bytes = o.max_answer_bytes;
-    boost::system::error_code ec;
-    tcp::resolver resolver(c->io);
-    auto endpoints = resolver.resolve(o.host, std::to_string(o.port), ec);
-    if (!ec) asio::connect(c->socket, endpoints, ec);
-    if (ec)
-      return Status::IoError("cannot connect to " + o.host + ":" + std::to_string(o.port) + ": " +
-                             ec.message());
-    c->socket.set_option(tcp::no_delay(true), ec);
-    c->reader = std::thread([raw = c.get()] { raw->ReadLoop(); });
-    conn = c;
-    return c;
+    const size_t n = endpoints.size();
+    const size_t first = conn ? (current + 1) % n : current;
+    std::string why;
+    for (size_t k = 0; k < n; ++k) {
+      const size_t i = (first + k) % n;
+      auto c = std::make_shared<Connection>();
+      c->max_answer_bytes = o.max_answer_bytes;
+      boost::system::error_code ec;
+      tcp::resolver resolver(c->io);
+      auto resolved = resolver.resolve(endpoints[i].first, std::to_string(endpoints[i].second), ec);
+      if (!ec) asio::connect(c->socket, resolved, ec);
+      if (ec) {
+        why += (why.empty() ? "" : "; ") + Label(i) + ": " + ec.message();
+        continue;
+      }
+      c->socket.set_option(tcp::no_delay(true), ec);
+      c->reader = std::thread([raw = c.get()] { raw->ReadLoop(); });
+      conn = c;
+      current = i;
+      return c;
+    }
+    return Status::IoError("cannot connect to " + (n == 1 ? why : "any of " + AllLabels() + " (" + why + ")"));
   }
 
   std::future<Result<Answer>> Send(const std::string& method, const std::string& body,
@@ -173,19 +197,35 @@ struct Client::Impl {
       }
       std::this_thread::sleep_for(std::chrono::milliseconds(backoff_ms));
       backoff_ms = std::min(2 * backoff_ms, 2000);
+      ++resent;
     }
-    return Status::IoError(method + ": no answer from " + o.host + ":" + std::to_string(o.port) +
+    return Status::IoError(method + ": no answer from " + AllLabels() +
                            " after retrying for " + std::to_string(elapsed_ms()) +
                            " ms (server down or restarting?): " + last.status().message());
   }
 };
 
 Client::Client(std::unique_ptr<Impl> impl) : impl_(std::move(impl)) {}
+
+uint64_t Client::resent_calls() const { return impl_->resent.load(); }
+
+std::string Client::endpoint() const {
+  std::lock_guard<std::mutex> lock(impl_->mu);
+  return impl_->Label(impl_->current);
+}
 Client::~Client() = default;
 
 Result<std::unique_ptr<Client>> Client::Connect(const ClientOptions& options) {
   auto impl = std::make_unique<Impl>();
   impl->o = options;
+  if (options.endpoints.empty()) impl->endpoints.emplace_back(options.host, options.port);
+  for (const std::string& e : options.endpoints) {
+    std::string host;
+    int port = 0;
+    if (!SplitHostPort(e, &host, &port))
+      return Status::InvalidArgument("endpoint '" + e + "' does not look like HOST:PORT");
+    impl->endpoints.emplace_back(host, port);
+  }
   Result<std::shared_ptr<Connection>> c = impl->Live();
   if (!c.ok()) return c.status();
   return std::unique_ptr<Client>(new Client(std::move(impl)));

@@ -2,13 +2,17 @@
 // deadline per call. When the connection is lost (the server restarted, say) or the server
 // answers UNAVAILABLE (shutting down), a call is sent again on a new connection, with backoff,
 // as long as its deadline leaves time: all three methods are reads, safe to repeat. A call that
-// cannot be answered gets a kIoError saying so. Async calls return a future; sync calls wait on it.
+// cannot be answered gets a kIoError saying so.
+// Several endpoints (replicas of one map, or load balancers): the client stays on one while it
+// answers and moves to the next in the list when its connection is lost, refused or the server
+// is draining; a new connection tries each endpoint in turn from there. Async calls return a future; sync calls wait on it.
 // Thread safety: every method may be called from any thread concurrently.
 #pragma once
 
 #include <future>
 #include <memory>
 #include <string>
+#include <vector>
 
 #include "indexer/status.h"
 #include "proto/sightfix.pb.h"
@@ -19,6 +23,8 @@ namespace sightfix {
 struct ClientOptions {
   std::string host = "127.0.0.1";
   int port = 7411;
+  // When not empty: HOST:PORT of each replica, in order of preference (host and port unused).
+  std::vector<std::string> endpoints;
   std::string token;  // sent with every call when set; never logged
   int connect_timeout_ms = 3000;
   int retries =
@@ -50,6 +56,11 @@ class Client {
   Result<Fix> Locate(const v1::LocateRequest& request, int deadline_ms);
   Result<v1::DescribeResponse> Describe(int deadline_ms);
   Result<v1::ListTilesResponse> ListTiles(int deadline_ms);
+
+  // Calls sent again so far (after a lost connection or an UNAVAILABLE answer).
+  uint64_t resent_calls() const;
+  // The endpoint ("HOST:PORT") the client is or was last connected to.
+  std::string endpoint() const;
 
  private:
   struct Impl;

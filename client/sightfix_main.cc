@@ -76,7 +76,8 @@ int ParseFlags(int argc, char** argv, const std::string& command,
 void AddSourceOptions(po::options_description* desc, std::string* map_dir, std::string* server,
                       std::string* token_file) {
   desc->add_options()("map", po::value(map_dir), "map folder")(
-      "server", po::value(server), "HOST:PORT of a sightfix-server instead of --map")(
+      "server", po::value(server), "HOST:PORT of a sightfix-server instead of --map; several, comma-separated, to fail over "
+      "between replicas")(
       "token-file", po::value(token_file), "file holding the server's bearer token");
 }
 
@@ -205,8 +206,18 @@ nlohmann::json FixJson(const sightfix::Fix& f) {
 sightfix::Result<std::unique_ptr<sightfix::Client>> ConnectTo(const std::string& server,
                                                               const std::string& token_file) {
   sightfix::ClientOptions co;
-  if (!sightfix::SplitHostPort(server, &co.host, &co.port))
-    return sightfix::Status::InvalidArgument("--server must look like HOST:PORT");
+  // One HOST:PORT, or several separated by commas: replicas to fail over between.
+  size_t start = 0;
+  while (start <= server.size()) {
+    const size_t comma = std::min(server.find(',', start), server.size());
+    const std::string one = server.substr(start, comma - start);
+    std::string host;
+    int port = 0;
+    if (!sightfix::SplitHostPort(one, &host, &port))
+      return sightfix::Status::InvalidArgument("--server must look like HOST:PORT[,HOST:PORT...]");
+    co.endpoints.push_back(one);
+    start = comma + 1;
+  }
   if (!token_file.empty()) {
     auto token = sightfix::ReadTokenFile(token_file);
     if (!token.ok()) return token.status();
@@ -220,7 +231,7 @@ int Describe(int argc, char** argv) {
   po::options_description desc(
       "sightfix describe: what a sightfix-server serves (map version, model, tiles, uptime).\n\n"
       "Usage: sightfix describe --server HOST:PORT [--token-file F] [--json]\n\nOptions");
-  desc.add_options()("help,h", "show this help")("server", po::value(&server), "HOST:PORT")(
+  desc.add_options()("help,h", "show this help")("server", po::value(&server), "HOST:PORT[,HOST:PORT...]")(
       "token-file", po::value(&token_file), "file holding the server's bearer token")(
       "json", "print JSON on stdout");
   po::variables_map vm;

@@ -175,7 +175,10 @@ int Train(int argc, char** argv) {
   desc.add_options()("max-features", po::value(&o.features.max_features)->default_value(2000),
                      "RootSIFT keypoints kept per image")(
       "train-images", po::value(&o.train_images)->default_value(o.train_images),
-      "survey images the model is trained on, at most (about 1 MB of memory each)");
+      "survey images the model is trained on, at most (about 1 MB of memory each)")(
+      "zoom", po::value(&o.zoom)->default_value(sightfix::kDefaultTileZoom),
+      "accepted so train and plan take the same flags; the model does not depend on it")(
+      "overwrite", "accepted so train and plan take the same flags; train writes only to staging");
   po::variables_map vm;
   if (int rc = ParseFlags(argc, argv, "train", desc, &vm); rc >= 0) return rc;
   if (int rc = TakeSurveyFlags(vm, "train", format, o); rc >= 0) return rc;

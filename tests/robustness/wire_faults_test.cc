@@ -22,6 +22,7 @@
 #include "indexer/drive_manifest.h"
 #include "proto/frame_codec.h"
 #include "server/wire.h"
+#include "tests/lib/processes.h"
 
 namespace sightfix {
 namespace {
@@ -30,80 +31,7 @@ namespace asio = boost::asio;
 using tcp = asio::ip::tcp;
 using Clock = std::chrono::steady_clock;
 
-std::string Env(const char* name, const char* fallback) {
-  const char* v = std::getenv(name);
-  return v ? v : fallback;
-}
-
-std::string ReadFile(const std::string& path) {
-  std::ifstream in(path, std::ios::binary);
-  return std::string((std::istreambuf_iterator<char>(in)), {});
-}
-
-int FreePort() {
-  asio::io_context io;
-  tcp::acceptor a(io, {asio::ip::make_address("127.0.0.1"), 0});
-  return a.local_endpoint().port();
-}
-
-// sightfix-server as a child process on a fixed port, its log in a file.
-class ServerProcess {
- public:
-  explicit ServerProcess(int port) : port_(port) {}
-  ~ServerProcess() { Stop(SIGKILL); }
-  bool Start() {
-    log_ = ::testing::TempDir() + "/server-" + std::to_string(port_) + "-" +
-           std::to_string(starts_++) + ".log";
-    const std::string bin = Env("SIGHTFIX_SERVER_BIN", "sightfix-server");
-    const std::string map = Env("SIGHTFIX_SERVICE_DATA", "service_data") + "/map";
-    const std::string listen = "127.0.0.1:" + std::to_string(port_);
-    pid_ = ::fork();
-    if (pid_ == 0) {
-      FILE* f = std::freopen(log_.c_str(), "w", stderr);
-      (void)f;
-      ::execl(bin.c_str(), bin.c_str(), "--map", map.c_str(), "--listen", listen.c_str(), "--http",
-              "", "--workers", "2", static_cast<char*>(nullptr));
-      std::_Exit(127);
-    }
-    for (int i = 0; i < 300; ++i) {  // up to 30 s for the map to open
-      if (ReadFile(log_).find("\"event\":\"serving\"") != std::string::npos) return true;
-      int status;
-      if (::waitpid(pid_, &status, WNOHANG) == pid_) {
-        pid_ = -1;
-        return false;
-      }
-      std::this_thread::sleep_for(std::chrono::milliseconds(100));
-    }
-    return false;
-  }
-  // Sends sig and waits for the process; its exit status.
-  int Stop(int sig) {
-    if (pid_ <= 0) return -1;
-    ::kill(pid_, sig);
-    int status = 0;
-    ::waitpid(pid_, &status, 0);
-    pid_ = -1;
-    return status;
-  }
-  bool Alive() const { return pid_ > 0 && ::kill(pid_, 0) == 0; }
-  std::string Log() const { return ReadFile(log_); }
-
- private:
-  int port_;
-  pid_t pid_ = -1;
-  int starts_ = 0;
-  std::string log_;
-};
-
-v1::LocateRequest Query(int row) {
-  const std::string dir = Env("SIGHTFIX_SERVICE_DATA", "service_data") + "/town/query-day";
-  auto rows = ReadDriveManifest(dir + "/drive.csv");
-  auto cam = LoadCameraModel(dir + "/camera.yml");
-  LocateRequest fields;
-  const DriveRow& r = (*rows)[row % rows->size()];
-  fields.prior = PriorCircle{r.position.lat_deg, r.position.lon_deg, 60};
-  return RequestToProto(ReadFile(dir + "/" + r.image), *cam, fields);
-}
+using namespace testing_processes;
 
 std::string Frame(const std::string& method, const std::string& body, uint64_t id) {
   v1::Envelope e;
