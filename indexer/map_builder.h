@@ -103,13 +103,13 @@ Result<PlanSummary> PlanStep(const BuildOptions& options, const std::string& pla
 
 // build-tiles: shard `shard` (1..shards) of a plan: features, codes, structure and the tile file
 // of each of its tiles, under MAPDIR/staging/<plan id>/, then the shard's manifest (written
-// last, atomically). Deterministic and idempotent: a repeat writes the same bytes; a shard that
-// died left no manifest and is simply run again.
+// last, atomically). Deterministic and idempotent: a repeat writes the same bytes (tiles and
+// manifest); a shard that died left no manifest and is simply run again.
 struct ShardSummary {
   int shard = 0, shards = 0, tiles = 0, images = 0, points = 0;
   std::string manifest;
   std::vector<std::string> skipped;
-  double seconds = 0;
+  double seconds = 0, feature_s = 0, structure_s = 0;  // not in the manifest: it stays the same
 };
 Result<ShardSummary> BuildTilesStep(const std::string& plan_path, int shard, int shards, int jobs,
                                     bool progress);

@@ -608,8 +608,6 @@ Result<ShardSummary> BuildTilesImpl(const Plan& plan, int shard, int shards, int
                   {"local_feature_bytes", local_bytes},
                   {"point_bytes", tile.points.size() * (3 * 8 + 6 * 4 + 128 + 4.0)},
                   {"file_bytes", fs::file_size(path)},
-                  {"feature_s", feature_s},
-                  {"structure_s", tile_summary.structure_s},
                   {"structure",
                    {{"pairs", st.pairs},
                     {"matches", st.matches},
@@ -622,6 +620,8 @@ Result<ShardSummary> BuildTilesImpl(const Plan& plan, int shard, int shards, int
     summary.tiles++;
     summary.images += static_cast<int>(own_local.size());
     summary.points += static_cast<int>(tile.points.size());
+    summary.feature_s += feature_s;
+    summary.structure_s += tile_summary.structure_s;
   }
   const json manifest{{"plan_id", plan.id},   {"shard", shard},      {"shards", shards},
                       {"model_id", staged->id}, {"tiles", tiles},   {"skipped", summary.skipped}};
@@ -756,8 +756,6 @@ Result<BuildSummary> PublishImpl(const Plan& plan, const std::string& plan_path,
     local_bytes += e.at("local_feature_bytes").get<double>();
     point_bytes += e.at("point_bytes").get<double>();
     file_bytes += e.at("file_bytes").get<double>();
-    summary.feature_s += e.at("feature_s").get<double>();
-    summary.structure_s += e.at("structure_s").get<double>();
     const json& st = e.at("structure");
     StructureSummary& sum = summary.structure;
     sum.pairs += st.at("pairs").get<int>();
@@ -895,7 +893,9 @@ Result<BuildSummary> BuildMap(const BuildOptions& o) {
   Result<BuildSummary> published = PublishImpl(plan, plan_path, o.progress, true);
   if (!published.ok()) return clean(published);
   BuildSummary summary = std::move(published).value();
-  summary.model_s = trained->seconds;
+  summary.model_s = trained->seconds;  // features of the training sample included
+  summary.feature_s = shard->feature_s;
+  summary.structure_s = shard->structure_s;
   summary.seconds = SecondsSince(t_start);
   summary.images_per_s = summary.images / std::max(summary.seconds, 1e-9);
   return clean(Result<BuildSummary>(summary));

@@ -74,10 +74,13 @@ rc=$?
 echo "$out" | grep -q "shard 1/2 (no " && ! echo "$out" | grep -q "shard 2/2" && [ "$rc" = 2 ] &&
   ok "publish names only shard 1/2 now" || bad "publish, one missing: exit $rc: $out"
 "$idx" build-tiles --plan "$plan" --shard 1/2 --quiet >/dev/null && ok "shard 1/2 run again" || bad "shard 1/2 rerun"
-m2=$(sha256sum "$m/staging/"*/shard-2-of-2.json | cut -d' ' -f1)
+staged() { (cd "$m/staging" && find . -type f -path './*/*' | sort | xargs sha256sum); }
+staged >"$tmp/staged.before"
 "$idx" build-tiles --plan "$plan" --shard 2/2 --quiet >/dev/null
-[ "$m2" = "$(sha256sum "$m/staging/"*/shard-2-of-2.json | cut -d' ' -f1)" ] &&
-  ok "shard 2/2 run twice: the same manifest bytes" || bad "repeated shard differs"
+staged >"$tmp/staged.after"
+cmp -s "$tmp/staged.before" "$tmp/staged.after" &&
+  ok "shard 2/2 run twice: every staged file (tiles, manifests) the same bytes" ||
+  { bad "repeated shard differs"; diff "$tmp/staged.before" "$tmp/staged.after"; }
 "$idx" publish --plan "$plan" --quiet >"$tmp/publish.out" 2>&1 && ok "publish" ||
   { bad "publish"; cat "$tmp/publish.out"; }
 tree "$m" >"$tmp/fault.tree"
