@@ -6,7 +6,11 @@
 #  2. engine latency per query by stage against the bare OpenCV calls on the same data;
 #  3. retrieval over a synthetic 100 000-image set, map-wide index against the prior's tiles and
 #     against exact search;
-#  4. the service: p50 through the socket against in process, throughput with 1 and 2 workers.
+#  4. the service: p50 through the socket against in process, throughput with 1 and 2 workers;
+#  5. the map-wide IVF-PQ index at 1 000 000 images (the town's descriptors plus seeded
+#     distractors) against exact search: recall@1, ms per query by nprobe, memory, bytes per
+#     image (tests/bench/ivf_bench_main.cc says how). Takes about 15 minutes and 3 GB of memory
+#     on 2 cores; SIGHTFIX_BENCH_IVF=0 skips it, SIGHTFIX_BENCH_IVF_N sets the size.
 # Usage: scripts/bench.sh [OUT_DIR]   (default out/bench; the 300 m town of seed 5 is made once)
 set -euo pipefail
 root="$(cd "$(dirname "$0")/.." && pwd)"
@@ -15,7 +19,7 @@ out="${1:-$root/out/bench}"
 bash "$root/scripts/deps.sh"
 cmake -S "$root" -B "$build" -DCMAKE_BUILD_TYPE=RelWithDebInfo >/dev/null
 cmake --build "$build" -j "$(nproc)" --target sightfix-demo-route sightfix-indexer engine_bench \
-  service_bench indexer_bench
+  service_bench indexer_bench ivf_bench
 if [ ! -f "$out/town/town.json" ]; then
   "$build/demo_route/sightfix-demo-route" --out "$out/town" --seed 5 --route-length-m 300 >/dev/null
 fi
@@ -44,3 +48,11 @@ echo
 echo "== the service: socket against in process, throughput"
 "$build/tests/service_bench" --map "$out/map" --drive "$out/town/query-day" --limit 20 \
   --seconds 15 2> >(grep -v '^{' >&2)
+
+if [ "${SIGHTFIX_BENCH_IVF:-1}" = 1 ]; then
+  echo
+  echo "== the map-wide IVF-PQ index against exact search (distractors up to ${SIGHTFIX_BENCH_IVF_N:-1000000})"
+  "$build/tests/ivf_bench" --map "$out/map" --out "$out/ivf" --n "${SIGHTFIX_BENCH_IVF_N:-1000000}" \
+    --queries "$out/town/query-day,$out/town/query-dusk,$out/town/query-overcast" \
+    --nlist 4096 --pq-bytes 32 --rerank 100 2> >(grep -v '^resizing' >&2)
+fi
