@@ -120,7 +120,8 @@ struct Client::Impl {
       current = i;
       return c;
     }
-    return Status::IoError("cannot connect to " + (n == 1 ? why : "any of " + AllLabels() + " (" + why + ")"));
+    return Status::IoError("cannot connect to " +
+                           (n == 1 ? why : "any of " + AllLabels() + " (" + why + ")"));
   }
 
   std::future<Result<Answer>> Send(const std::string& method, const std::string& body,
@@ -199,8 +200,8 @@ struct Client::Impl {
       backoff_ms = std::min(2 * backoff_ms, 2000);
       ++resent;
     }
-    return Status::IoError(method + ": no answer from " + AllLabels() +
-                           " after retrying for " + std::to_string(elapsed_ms()) +
+    return Status::IoError(method + ": no answer from " + AllLabels() + " after retrying for " +
+                           std::to_string(elapsed_ms()) +
                            " ms (server down or restarting?): " + last.status().message());
   }
 };

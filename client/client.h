@@ -5,8 +5,9 @@
 // cannot be answered gets a kIoError saying so.
 // Several endpoints (replicas of one map, or load balancers): the client stays on one while it
 // answers and moves to the next in the list when its connection is lost, refused or the server
-// is draining; a new connection tries each endpoint in turn from there. Async calls return a future; sync calls wait on it.
-// Thread safety: every method may be called from any thread concurrently.
+// is draining; a new connection tries each endpoint in turn from there. Async calls return a
+// future; sync calls wait on it. Thread safety: every method may be called from any thread
+// concurrently.
 #pragma once
 
 #include <future>

@@ -3,8 +3,8 @@
 // and `pair` (the relative pose of two images).
 #include <atomic>
 #include <boost/program_options.hpp>
-#include <csignal>
 #include <cmath>
+#include <csignal>
 #include <cstdio>
 #include <filesystem>
 #include <fstream>
@@ -76,9 +76,10 @@ int ParseFlags(int argc, char** argv, const std::string& command,
 void AddSourceOptions(po::options_description* desc, std::string* map_dir, std::string* server,
                       std::string* token_file) {
   desc->add_options()("map", po::value(map_dir), "map folder")(
-      "server", po::value(server), "HOST:PORT of a sightfix-server instead of --map; several, comma-separated, to fail over "
-      "between replicas")(
-      "token-file", po::value(token_file), "file holding the server's bearer token");
+      "server", po::value(server),
+      "HOST:PORT of a sightfix-server instead of --map; several, comma-separated, to fail over "
+      "between replicas")("token-file", po::value(token_file),
+                          "file holding the server's bearer token");
 }
 
 int Pair(int argc, char** argv) {
@@ -231,7 +232,8 @@ int Describe(int argc, char** argv) {
   po::options_description desc(
       "sightfix describe: what a sightfix-server serves (map version, model, tiles, uptime).\n\n"
       "Usage: sightfix describe --server HOST:PORT [--token-file F] [--json]\n\nOptions");
-  desc.add_options()("help,h", "show this help")("server", po::value(&server), "HOST:PORT[,HOST:PORT...]")(
+  desc.add_options()("help,h", "show this help")("server", po::value(&server),
+                                                 "HOST:PORT[,HOST:PORT...]")(
       "token-file", po::value(&token_file), "file holding the server's bearer token")(
       "json", "print JSON on stdout");
   po::variables_map vm;
@@ -250,7 +252,8 @@ int Describe(int argc, char** argv) {
                       {"tiles_cached", d->tiles_cached()},
                       {"tiles_checked", d->tiles_checked()},
                       {"bad_tiles", nlohmann::json::array()}};
-  for (const auto& b : d->bad_tiles()) j["bad_tiles"].push_back({{"tile", b.tile()}, {"reason", b.reason()}});
+  for (const auto& b : d->bad_tiles())
+    j["bad_tiles"].push_back({{"tile", b.tile()}, {"reason", b.reason()}});
   if (vm.count("json")) {
     std::cout << j.dump(2) << "\n";
   } else {
@@ -259,7 +262,8 @@ int Describe(int argc, char** argv) {
                 d->images(), d->tiles_cached(), d->uptime_s());
     std::printf("tiles checked: %d of %d; unusable: %d\n", d->tiles_checked(), d->tiles(),
                 d->bad_tiles_size());
-    for (const auto& b : d->bad_tiles()) std::printf("  %s %s\n", b.tile().c_str(), b.reason().c_str());
+    for (const auto& b : d->bad_tiles())
+      std::printf("  %s %s\n", b.tile().c_str(), b.reason().c_str());
   }
   return 0;
 }
@@ -277,8 +281,9 @@ int Locate(int argc, char** argv) {
       "CAMERA.yml [--prior LAT,LON,RADIUS_M] [--json]\n\nOptions");
   desc.add_options()("help,h", "show this help");
   AddSourceOptions(&desc, &map_dir, &server, &token_file);
-  desc.add_options()("deadline-ms", po::value(&deadline_ms), "deadline of the call to the server (10000)")(
-      "image", po::value(&image_path), "query image (JPEG or PNG)")(
+  desc.add_options()("deadline-ms", po::value(&deadline_ms),
+                     "deadline of the call to the server (10000)")("image", po::value(&image_path),
+                                                                   "query image (JPEG or PNG)")(
       "camera", po::value(&camera_path), "its calibration (OpenCV FileStorage YAML)")(
       "prior", po::value(&prior_text), "coarse prior circle LAT,LON,RADIUS_M (WGS84 degrees, m)")(
       "heading", po::value(&heading), "coarse heading prior, degrees from north")(
@@ -405,20 +410,22 @@ void PrintReplaySummary(const sightfix::RouteReport& r, const std::string& out) 
               s.refined, s.coarse, s.none);
   std::printf("recall@1/5/10 within 25 m: %.3f / %.3f / %.3f\n", s.recall_at_1, s.recall_at_5,
               s.recall_at_10);
-  std::printf("error over fixes: median %.3f m, p90 %.3f m, p95 %.3f m, max %.3f m; refined: "
-              "median %.3f m, p95 %.3f m; wrong refined %d\n",
-              s.all.median_m, s.all.p90_m, s.all.p95_m, s.all.max_m, s.median_error_m,
-              s.p95_error_m, s.wrong_refined);
-  std::printf("within (0.25 m, 2 deg) %.3f, (0.5 m, 5 deg) %.3f, (5 m, 10 deg) %.3f; heading "
-              "median %.2f deg\n",
-              s.within_0_25m_2deg, s.within_0_5m_5deg, s.within_5m_10deg, s.all.median_heading_deg);
+  std::printf(
+      "error over fixes: median %.3f m, p90 %.3f m, p95 %.3f m, max %.3f m; refined: "
+      "median %.3f m, p95 %.3f m; wrong refined %d\n",
+      s.all.median_m, s.all.p90_m, s.all.p95_m, s.all.max_m, s.median_error_m, s.p95_error_m,
+      s.wrong_refined);
+  std::printf(
+      "within (0.25 m, 2 deg) %.3f, (0.5 m, 5 deg) %.3f, (5 m, 10 deg) %.3f; heading "
+      "median %.2f deg\n",
+      s.within_0_25m_2deg, s.within_0_5m_5deg, s.within_5m_10deg, s.all.median_heading_deg);
   std::printf("radius95 coverage %.3f, NEES %.2f; latency p50 %.0f ms, p95 %.0f ms, p99 %.0f ms\n",
               s.all.radius95_coverage, s.all.nees_mean, s.latency_ms_p50, s.latency_ms_p95,
               s.latency_ms_p99);
   if (r.spoofing) {
     const sightfix::SpoofingScore& sc = r.spoofing->score;
-    std::printf("GNSS spoofing monitor: %zu checks, %d of %d spoofed segments flagged", r.spoofing->steps.size(),
-                sc.segments_flagged, sc.segments_true);
+    std::printf("GNSS spoofing monitor: %zu checks, %d of %d spoofed segments flagged",
+                r.spoofing->steps.size(), sc.segments_flagged, sc.segments_true);
     if (!sc.detection_delays_s.empty())
       std::printf(" (median delay %.1f s)", sightfix::Percentile(sc.detection_delays_s, 0.5));
     std::printf(", %d false alarms\n", sc.false_alarms);
@@ -443,7 +450,8 @@ int Replay(int argc, char** argv) {
       "\n\nOptions");
   desc.add_options()("help,h", "show this help");
   AddSourceOptions(&desc, &map_dir, &server, &token_file);
-  desc.add_options()("drive", po::value(&drive), "query drive folder (drive.csv with truth, images, calibration)")(
+  desc.add_options()("drive", po::value(&drive),
+                     "query drive folder (drive.csv with truth, images, calibration)")(
       "out", po::value(&out), "report folder (created; files in it are replaced)")(
       "prior", po::value(&prior),
       "none: no prior (global); noisy:R: circle of radius R m centred uniformly within R of the "
@@ -453,8 +461,8 @@ int Replay(int argc, char** argv) {
       "spoofing", po::value(&spoof_path),
       "true spoofed spans, to score the monitor (default QUERYDIR/spoofing.csv when present)")(
       "limit", po::value(&limit), "first N queries only (0: all)")(
-      "seed", po::value(&seed), "seed of the noisy prior's centres (1)")(
-      "jobs", po::value(&jobs), "queries in flight (2)")(
+      "seed", po::value(&seed), "seed of the noisy prior's centres (1)")("jobs", po::value(&jobs),
+                                                                         "queries in flight (2)")(
       "deadline-ms", po::value(&deadline_ms), "deadline of each call to the server (30000)")(
       "json", "print summary.json on stdout instead of the text summary");
   po::variables_map vm;
@@ -476,7 +484,8 @@ int Replay(int argc, char** argv) {
   report.drive_dir = drive;
   report.prior = prior;
   report.seed = seed;
-  if (sightfix::Status s = LoadGnss(gnss_path, gnss_given, spoof_path, spoof_given, &report); !s.ok())
+  if (sightfix::Status s = LoadGnss(gnss_path, gnss_given, spoof_path, spoof_given, &report);
+      !s.ok())
     return Fail(s.ToString(), 2);
   if (o.prior == sightfix::PriorMode::kGnss && report.gnss.empty())
     return Fail("--prior gnss needs a GNSS stream: " + gnss_path + " is missing", 2);
@@ -520,8 +529,8 @@ int Replay(int argc, char** argv) {
   report.results = std::move(results).value();
   report.summary = sightfix::Summarize(report.results);
   if (!report.gnss.empty())
-    report.spoofing = sightfix::MonitorDrive(report.results, report.gnss, report.spoof_truth,
-                                             report.monitor);
+    report.spoofing =
+        sightfix::MonitorDrive(report.results, report.gnss, report.spoof_truth, report.monitor);
   if (sightfix::Status s = sightfix::WriteRouteReport(report, out); !s.ok())
     return Fail(s.ToString(), 1);
   if (vm.count("json"))
@@ -536,8 +545,7 @@ int Replay(int argc, char** argv) {
 
 // summary.json of a report folder (or the file itself).
 sightfix::Result<nlohmann::json> ReadSummary(const std::string& path) {
-  const std::string file =
-      std::filesystem::is_directory(path) ? path + "/summary.json" : path;
+  const std::string file = std::filesystem::is_directory(path) ? path + "/summary.json" : path;
   std::ifstream in(file);
   if (!in) return sightfix::Status::NotFound("cannot open " + file);
   try {

@@ -3,7 +3,6 @@
 #include <faiss/IndexFlat.h>
 #include <faiss/index_io.h>
 #include <faiss/invlists/OnDiskInvertedLists.h>
-
 #include <fcntl.h>
 #include <sys/mman.h>
 #include <unistd.h>
@@ -142,7 +141,8 @@ Status MergeIvfShards(const std::string& trained_path, const std::vector<std::st
   int64_t last = -1;
   std::string last_shard;
   {
-    std::ofstream vec(index_path + ".vec.tmp", std::ios::binary), idf(index_path + ".ids.tmp", std::ios::binary);
+    std::ofstream vec(index_path + ".vec.tmp", std::ios::binary),
+        idf(index_path + ".ids.tmp", std::ios::binary);
     const size_t row_bytes = (*index)->d * sizeof(float);
     for (size_t i : order) {
       if (shard_ids[i].empty()) continue;
@@ -211,8 +211,9 @@ Result<std::unique_ptr<IvfSearcher>> IvfSearcher::Open(const std::string& index_
   s->n_ = s->ids_bytes_ / sizeof(int64_t);
   if (!s->vectors_ || !s->ids_ || s->n_ != static_cast<size_t>(s->index_->ntotal) ||
       s->vec_bytes_ != s->n_ * s->index_->d * sizeof(float))
-    return Status(StatusCode::kCorrupt, index_path + ": its .vec and .ids files are missing or do "
-                                                     "not match the index");
+    return Status(StatusCode::kCorrupt, index_path +
+                                            ": its .vec and .ids files are missing or do "
+                                            "not match the index");
   return s;
 }
 

@@ -31,8 +31,8 @@
 namespace sightfix {
 
 struct IvfOptions {
-  int nlist = 4096;       // coarse cells; FAISS guideline 4..16 x sqrt(N) (common practice)
-  int pq_bytes = 32;      // PQ sub-quantizers of 8 bits: bytes per vector in the lists
+  int nlist = 4096;         // coarse cells; FAISS guideline 4..16 x sqrt(N) (common practice)
+  int pq_bytes = 32;        // PQ sub-quantizers of 8 bits: bytes per vector in the lists
   int train_size = 200000;  // vectors the quantizers are trained on (>= 39 x nlist)
   bool Validate(int dims, std::string* error) const;
 };

@@ -1,7 +1,5 @@
 #include "indexer/map_builder.h"
 
-#include "indexer/build_internal.h"
-
 #include <faiss/IndexFlatCodes.h>
 #include <faiss/IndexIDMap.h>
 #include <faiss/impl/io.h>
@@ -9,17 +7,18 @@
 #include <omp.h>
 
 #include <chrono>
+#include <cmath>
 #include <csignal>
 #include <cstdlib>
-#include <set>
-#include <cmath>
 #include <filesystem>
 #include <fstream>
 #include <map>
-#include <optional>
 #include <nlohmann/json.hpp>
 #include <opencv2/imgcodecs.hpp>
+#include <optional>
+#include <set>
 
+#include "indexer/build_internal.h"
 #include "indexer/drive_manifest.h"
 #include "indexer/geo.h"
 #include "indexer/iso_time.h"
@@ -43,7 +42,6 @@ double SecondsSince(Clock::time_point t0) {
 void Say(const BuildOptions& o, const std::string& line) {
   if (o.progress) std::fprintf(stderr, "indexer: %s\n", line.c_str());
 }
-
 
 // The image file of a row.
 std::string RowName(const BuildOptions& o, const Survey& s, size_t i) {
@@ -119,11 +117,11 @@ Status ExtractAll(const BuildOptions& o, Survey* s, std::vector<std::string>* sk
   ParallelFor(static_cast<int>(s->rows.size()), ThreadCount(o.jobs), [&](int i) {
     const std::string path = RowName(o, *s, i);
     const std::string bytes = ReadFileBytes(path);
-    const cv::Mat img =
-        bytes.empty() ? cv::Mat()
-                      : cv::imdecode(cv::Mat(1, static_cast<int>(bytes.size()), CV_8U,
-                                             const_cast<char*>(bytes.data())),
-                                     cv::IMREAD_GRAYSCALE);
+    const cv::Mat img = bytes.empty()
+                            ? cv::Mat()
+                            : cv::imdecode(cv::Mat(1, static_cast<int>(bytes.size()), CV_8U,
+                                                   const_cast<char*>(bytes.data())),
+                                           cv::IMREAD_GRAYSCALE);
     if (img.empty()) {
       status[i] = Status::InvalidArgument(Where(*s, i) + "cannot read or decode image " + path);
     } else {
@@ -141,8 +139,8 @@ Status ExtractAll(const BuildOptions& o, Survey* s, std::vector<std::string>* sk
     if (!status[i].ok()) continue;
     auto [it, fresh] = first_of.emplace(digest[i], i);
     if (!fresh)
-      status[i] = Status::InvalidArgument(Where(*s, i) + RowName(o, *s, i) + " is the same image as " +
-                                          RowName(o, *s, it->second));
+      status[i] = Status::InvalidArgument(Where(*s, i) + RowName(o, *s, i) +
+                                          " is the same image as " + RowName(o, *s, it->second));
   }
   return DropBadRows(o, status, s, skipped);
 }
@@ -233,7 +231,6 @@ std::vector<uint8_t> IndexBytes(const faiss::Index& index) {
   faiss::write_index(&index, &w);
   return std::move(w.data);
 }
-
 
 TileData MakeTile(const Built& b, const TileKey& key, const std::vector<int>& rows) {
   TileData t;
@@ -345,7 +342,8 @@ std::vector<uint8_t> GlobalIndex(const GlobalDescriptor& model, const cv::Mat& c
 Status Publish(const BuildOptions& o, const Built& b, const std::vector<TileKey>& tile_of_row,
                const std::vector<CarriedTile>& carried, Catalog& catalog, BuildSummary* summary) {
   std::map<TileKey, std::vector<int>> by_tile;
-  for (size_t r = 0; r < b.survey->rows.size(); ++r) by_tile[tile_of_row[r]].push_back(static_cast<int>(r));
+  for (size_t r = 0; r < b.survey->rows.size(); ++r)
+    by_tile[tile_of_row[r]].push_back(static_cast<int>(r));
   cv::Mat all_codes;
   std::vector<faiss::Index::idx_t> ids;
   double local_bytes = 0, point_bytes = 0, file_bytes = 0;
@@ -404,12 +402,14 @@ Status Publish(const BuildOptions& o, const Built& b, const std::vector<TileKey>
 void RemoveUnlistedTiles(const std::string& map_dir, const Catalog& catalog) {
   MaybeKillAt("cleanup");
   std::set<std::string> listed;
-  for (const CatalogTile& t : catalog.tiles) listed.insert((fs::path(map_dir) / t.file).lexically_normal().string());
+  for (const CatalogTile& t : catalog.tiles)
+    listed.insert((fs::path(map_dir) / t.file).lexically_normal().string());
   const fs::path tiles = fs::path(map_dir) / "tiles";
   if (!fs::exists(tiles)) return;
   std::vector<fs::path> stale;
   for (const auto& e : fs::recursive_directory_iterator(tiles))
-    if (e.is_regular_file() && !listed.count(e.path().lexically_normal().string())) stale.push_back(e.path());
+    if (e.is_regular_file() && !listed.count(e.path().lexically_normal().string()))
+      stale.push_back(e.path());
   std::error_code ec;
   for (const fs::path& p : stale) fs::remove(p, ec);
 }
@@ -605,7 +605,8 @@ Result<BuildSummary> AddToMap(const BuildOptions& o) {
   // New images go to the tile of their surveyed position: touched by construction, so no
   // carried tile ever gets a second version.
   for (size_t r = tile_of_row.size(); r < all.rows.size(); ++r)
-    tile_of_row.push_back(TileForPoint(all.rows[r].position.lat_deg, all.rows[r].position.lon_deg, old->zoom));
+    tile_of_row.push_back(
+        TileForPoint(all.rows[r].position.lat_deg, all.rows[r].position.lon_deg, old->zoom));
 
   t0 = Clock::now();
   Say(o, "writing " + std::to_string(touched.size()) + " touched tiles and the catalog");
@@ -670,7 +671,8 @@ Result<BuildSummary> RetrainMap(const BuildOptions& o) {
   for (TileData& t : tiles) {
     const cv::Mat tile_codes = codes.rowRange(row, row + static_cast<int>(t.images.size()));
     for (size_t i = 0; i < t.images.size(); ++i) {
-      t.images[i].global_code.assign(tile_codes.ptr<uint8_t>(i), tile_codes.ptr<uint8_t>(i) + codes.cols);
+      t.images[i].global_code.assign(tile_codes.ptr<uint8_t>(i),
+                                     tile_codes.ptr<uint8_t>(i) + codes.cols);
       ids.push_back(GlobalImageId(static_cast<int>(catalog.tiles.size()), static_cast<int>(i)));
     }
     row += static_cast<int>(t.images.size());

@@ -2,6 +2,7 @@
 // whether it is whole (`verify`) and where it covers (`coverage`).
 #include <boost/program_options.hpp>
 #include <cstdio>
+#include <fstream>
 #include <iostream>
 #include <nlohmann/json.hpp>
 #include <opencv2/core/utility.hpp>
@@ -9,7 +10,6 @@
 
 #include "indexer/map_builder.h"
 #include "indexer/map_inspect.h"
-#include <fstream>
 
 namespace po = boost::program_options;
 
@@ -102,8 +102,8 @@ int ParseFlags(int argc, char** argv, const std::string& command, po::options_de
 }
 
 // The survey flags' values into o; -1: go on, else the exit code.
-int TakeSurveyFlags(const po::variables_map& vm, const std::string& command, const std::string& format,
-                    sightfix::BuildOptions& o) {
+int TakeSurveyFlags(const po::variables_map& vm, const std::string& command,
+                    const std::string& format, sightfix::BuildOptions& o) {
   if (o.drive_dir.empty() || o.map_dir.empty())
     return Fail(command + " needs --drive DIR and --map MAPDIR (see --help)", 2);
   o.overwrite = vm.count("overwrite") > 0;
@@ -186,11 +186,14 @@ int Train(int argc, char** argv) {
   if (!s.ok()) return FailStatus(s.status(), "");
   for (const std::string& why : s->skipped) std::fprintf(stderr, "skipped: %s\n", why.c_str());
   if (vm.count("json")) {
-    std::cout << nlohmann::json{{"model_id", s->model_id}, {"codec", s->codec},
-                                {"model_file", s->model_file}, {"survey_images", s->survey_images},
+    std::cout << nlohmann::json{{"model_id", s->model_id},
+                                {"codec", s->codec},
+                                {"model_file", s->model_file},
+                                {"survey_images", s->survey_images},
                                 {"sampled_images", s->sampled_images},
                                 {"training_vectors", s->training_vectors},
-                                {"skipped", s->skipped.size()}, {"seconds", s->seconds}}
+                                {"skipped", s->skipped.size()},
+                                {"seconds", s->seconds}}
                      .dump(2)
               << "\n";
     return 0;
@@ -208,17 +211,19 @@ int Plan(int argc, char** argv) {
   po::options_description desc(
       "sightfix-indexer plan: checks every survey row (coordinates, calibration, image readable,\n"
       "no image twice), groups the frames by tile with the context frames each tile's structure\n"
-      "needs, and deals the tiles to N shards by work. Writes the plan (JSON) that build-tiles and\n"
+      "needs, and deals the tiles to N shards by work. Writes the plan (JSON) that build-tiles "
+      "and\n"
       "publish read.\n\n"
       "Usage: sightfix-indexer plan --drive DIR --map MAPDIR --shards N [--plan FILE] [options]\n\n"
       "Options");
   AddSurveyFlags(desc, o, format);
-  desc.add_options()("shards", po::value(&shards)->default_value(1), "number of tile shards (jobs)")(
+  desc.add_options()("shards", po::value(&shards)->default_value(1),
+                     "number of tile shards (jobs)")(
       "plan", po::value(&plan), "plan file to write (default MAPDIR/staging/plan.json)")(
       "zoom", po::value(&o.zoom)->default_value(sightfix::kDefaultTileZoom),
-      "WebMercatorQuad zoom of the tiles")(
-      "max-features", po::value(&o.features.max_features)->default_value(2000),
-      "RootSIFT keypoints kept per image")(
+      "WebMercatorQuad zoom of the tiles")("max-features",
+                                           po::value(&o.features.max_features)->default_value(2000),
+                                           "RootSIFT keypoints kept per image")(
       "margin-m", po::value(&o.margin_m)->default_value(o.margin_m),
       "context frames: those within this distance of a tile's bounds join its structure")(
       "overwrite", "the plan replaces the map already in MAPDIR when published");
@@ -231,8 +236,11 @@ int Plan(int argc, char** argv) {
   if (!s.ok()) return FailStatus(s.status(), "");
   for (const std::string& why : s->skipped) std::fprintf(stderr, "skipped: %s\n", why.c_str());
   if (vm.count("json")) {
-    std::cout << nlohmann::json{{"plan", s->plan_file}, {"plan_id", s->plan_id},
-                                {"images", s->images}, {"tiles", s->tiles}, {"shards", s->shards},
+    std::cout << nlohmann::json{{"plan", s->plan_file},
+                                {"plan_id", s->plan_id},
+                                {"images", s->images},
+                                {"tiles", s->tiles},
+                                {"shards", s->shards},
                                 {"map_version", s->map_version},
                                 {"frames_per_shard", s->images_per_shard},
                                 {"skipped", s->skipped.size()}}
@@ -273,16 +281,20 @@ int BuildTiles(int argc, char** argv) {
   if (!s.ok()) return FailStatus(s.status(), "\nthe shard left no manifest; run it again");
   for (const std::string& why : s->skipped) std::fprintf(stderr, "skipped: %s\n", why.c_str());
   if (vm.count("json")) {
-    std::cout << nlohmann::json{{"shard", s->shard}, {"shards", s->shards}, {"tiles", s->tiles},
-                                {"images", s->images}, {"points", s->points},
-                                {"manifest", s->manifest}, {"skipped", s->skipped.size()},
+    std::cout << nlohmann::json{{"shard", s->shard},
+                                {"shards", s->shards},
+                                {"tiles", s->tiles},
+                                {"images", s->images},
+                                {"points", s->points},
+                                {"manifest", s->manifest},
+                                {"skipped", s->skipped.size()},
                                 {"seconds", s->seconds}}
                      .dump(2)
               << "\n";
     return 0;
   }
-  std::printf("shard %d/%d: %d tiles, %d images, %d 3D points in %.1f s; %s\n", s->shard,
-              s->shards, s->tiles, s->images, s->points, s->seconds, s->manifest.c_str());
+  std::printf("shard %d/%d: %d tiles, %d images, %d 3D points in %.1f s; %s\n", s->shard, s->shards,
+              s->tiles, s->images, s->points, s->seconds, s->manifest.c_str());
   return 0;
 }
 
@@ -312,7 +324,8 @@ int Publish(int argc, char** argv) {
     return 0;
   }
   std::printf("published map version %d: %d images in %d tiles, %d 3D points, model %s (%s)\n",
-              s->map_version, s->images, s->tiles, s->points, s->model_id.c_str(), s->codec.c_str());
+              s->map_version, s->images, s->tiles, s->points, s->model_id.c_str(),
+              s->codec.c_str());
   return 0;
 }
 
@@ -357,9 +370,10 @@ int Inspect(int argc, char** argv) {
               (*j)["images"].get<int>(), (*j)["points"].get<int>(),
               (*j)["model_id"].get<std::string>().c_str(), (*j)["model"].dump().c_str());
   std::printf("drives: %s\n", (*j)["drives"].dump().c_str());
-  std::printf("bytes per image: global code %.0f, local features %.0f, points %.0f (tile files %.0f)\n",
-              b["global_code"].get<double>(), b["local_features"].get<double>(),
-              b["points"].get<double>(), b["tile_files"].get<double>());
+  std::printf(
+      "bytes per image: global code %.0f, local features %.0f, points %.0f (tile files %.0f)\n",
+      b["global_code"].get<double>(), b["local_features"].get<double>(), b["points"].get<double>(),
+      b["tile_files"].get<double>());
   if (j->contains("extent"))
     std::printf("extent: lat %.6f..%.6f, lon %.6f..%.6f; images dated %s .. %s\n",
                 (*j)["extent"]["south"].get<double>(), (*j)["extent"]["north"].get<double>(),
@@ -448,10 +462,11 @@ int Retrain(int argc, char** argv) {
     std::cout << SummaryJson(*s).dump(2) << "\n";
     return 0;
   }
-  std::printf("map %s version %d: new model %s (%s, %d training vectors) over %d images in %d "
-              "tiles; %.1f s\n",
-              o.map_dir.c_str(), s->map_version, s->model_id.c_str(), s->codec.c_str(),
-              s->training_vectors, s->images, s->tiles, s->seconds);
+  std::printf(
+      "map %s version %d: new model %s (%s, %d training vectors) over %d images in %d "
+      "tiles; %.1f s\n",
+      o.map_dir.c_str(), s->map_version, s->model_id.c_str(), s->codec.c_str(), s->training_vectors,
+      s->images, s->tiles, s->seconds);
   return 0;
 }
 
@@ -459,7 +474,8 @@ void Usage() {
   std::printf(
       "sightfix-indexer: builds sightfix maps from survey drives\n\n"
       "Usage: sightfix-indexer COMMAND [options]\n\nCommands:\n"
-      "  build --drive DIR --map MAPDIR      a new map from one survey (drive.csv, rig, EXIF, GPX)\n"
+      "  build --drive DIR --map MAPDIR      a new map from one survey (drive.csv, rig, EXIF, "
+      "GPX)\n"
       "  add --drive DIR --map MAPDIR        one more survey into a map (touched tiles only)\n"
       "  retrain --map MAPDIR                a new model from all of the map's images\n"
       "  train --drive DIR --map MAPDIR      build, step 1 of 4 on a cluster: the model\n"

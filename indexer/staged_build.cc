@@ -8,8 +8,8 @@
 // Every file is written to a temporary name, fsynced and renamed, so a reader sees it whole or
 // not at all. The plan id is the SHA-256 of the plan's content: a new plan never mixes with the
 // shards of an old one.
-#include <fcntl.h>
 #include <faiss/index_io.h>
+#include <fcntl.h>
 #include <unistd.h>
 
 #include <algorithm>
@@ -18,8 +18,8 @@
 #include <cstring>
 #include <filesystem>
 #include <map>
-#include <optional>
 #include <opencv2/imgcodecs.hpp>
+#include <optional>
 #include <set>
 
 #include "indexer/build_internal.h"
@@ -311,10 +311,13 @@ Result<json> PlanImpl(const BuildOptions& o, int shards, PlanSummary* summary) {
   for (size_t i = 0; i < s->rows.size(); ++i) {
     const GeoPoint& p = s->rows[i].position;
     const double dlat = o.margin_m / kMetresPerDegree;
-    const double dlon = o.margin_m / (kMetresPerDegree * std::max(0.01, std::cos(p.lat_deg * M_PI / 180)));
+    const double dlon =
+        o.margin_m / (kMetresPerDegree * std::max(0.01, std::cos(p.lat_deg * M_PI / 180)));
     const TileKey mine = TileForPoint(p.lat_deg, p.lon_deg, o.zoom);
-    const TileKey nw = TileForPoint(std::min(85.0, p.lat_deg + dlat), std::max(-180.0, p.lon_deg - dlon), o.zoom);
-    const TileKey se = TileForPoint(std::max(-85.0, p.lat_deg - dlat), std::min(180.0, p.lon_deg + dlon), o.zoom);
+    const TileKey nw =
+        TileForPoint(std::min(85.0, p.lat_deg + dlat), std::max(-180.0, p.lon_deg - dlon), o.zoom);
+    const TileKey se =
+        TileForPoint(std::max(-85.0, p.lat_deg - dlat), std::min(180.0, p.lon_deg + dlon), o.zoom);
     for (uint32_t x = nw.x; x <= se.x; ++x)
       for (uint32_t y = nw.y; y <= se.y; ++y) {
         const TileKey k{o.zoom, x, y};
@@ -348,10 +351,8 @@ Result<json> PlanImpl(const BuildOptions& o, int shards, PlanSummary* summary) {
   for (size_t i = 0; i < s->rows.size(); ++i) rows.push_back(RowJson(*s, i, kept_sha[i]));
   json jobs = json::array();
   for (const TileKey& k : keys)
-    jobs.push_back({{"tile", KeyJson(k)},
-                    {"shard", shard_of[k]},
-                    {"rows", own[k]},
-                    {"context", context[k]}});
+    jobs.push_back(
+        {{"tile", KeyJson(k)}, {"shard", shard_of[k]}, {"rows", own[k]}, {"context", context[k]}});
   json plan{{"format", kPlanFormat},
             {"format_version", kPlanFormatVersion},
             {"map_dir", fs::absolute(o.map_dir).lexically_normal().string()},
@@ -441,17 +442,20 @@ Result<StagedModel> LoadStagedModel(const std::string& map_dir) {
   StagedModel m{std::move(model).value(), Sha256Hex(blob).substr(0, 16), std::move(info).value(),
                 std::move(blob)};
   if (m.info.value("model_id", "") != m.id)
-    return Status(StatusCode::kFailedPrecondition,
-                  ModelInfoFile(map_dir).string() + " does not describe " + ModelFile(map_dir).string());
+    return Status(
+        StatusCode::kFailedPrecondition,
+        ModelInfoFile(map_dir).string() + " does not describe " + ModelFile(map_dir).string());
   return m;
 }
 
-DriveRow RowOf(const json& r, std::string* sha, double* attitude_sigma, std::string* origin, int* camera) {
+DriveRow RowOf(const json& r, std::string* sha, double* attitude_sigma, std::string* origin,
+               int* camera) {
   DriveRow d;
   d.image = r.at("image").get<std::string>();
   d.timestamp_s = r.at("t").get<double>();
   d.position = {r.at("lat").get<double>(), r.at("lon").get<double>(), r.at("h").get<double>()};
-  d.attitude = {r.at("heading").get<double>(), r.at("pitch").get<double>(), r.at("roll").get<double>()};
+  d.attitude = {r.at("heading").get<double>(), r.at("pitch").get<double>(),
+                r.at("roll").get<double>()};
   d.sigma_h_m = r.at("sigma_h").get<double>();
   *sha = r.at("sha256").get<std::string>();
   *attitude_sigma = r.at("attitude_sigma").get<double>();
@@ -507,8 +511,8 @@ Result<ShardSummary> BuildTilesImpl(const Plan& plan, int shard, int shards, int
     std::vector<std::string> sha(all.size());
     for (size_t i = 0; i < all.size(); ++i) {
       if (all[i] < 0 || static_cast<size_t>(all[i]) >= rows.size())
-        return Status::InvalidArgument("the plan names row " + std::to_string(all[i]) + ", it has " +
-                                       std::to_string(rows.size()));
+        return Status::InvalidArgument("the plan names row " + std::to_string(all[i]) +
+                                       ", it has " + std::to_string(rows.size()));
       double sigma = 0;
       std::string origin;
       int camera = 0;
@@ -623,8 +627,8 @@ Result<ShardSummary> BuildTilesImpl(const Plan& plan, int shard, int shards, int
     summary.feature_s += feature_s;
     summary.structure_s += tile_summary.structure_s;
   }
-  const json manifest{{"plan_id", plan.id},   {"shard", shard},      {"shards", shards},
-                      {"model_id", staged->id}, {"tiles", tiles},   {"skipped", summary.skipped}};
+  const json manifest{{"plan_id", plan.id},     {"shard", shard}, {"shards", shards},
+                      {"model_id", staged->id}, {"tiles", tiles}, {"skipped", summary.skipped}};
   summary.manifest = (stage / ShardName(shard, shards)).string();
   if (Status st = WriteJson(summary.manifest, manifest); !st.ok()) return st;
   summary.seconds = SecondsSince(t0);
@@ -742,8 +746,8 @@ Result<BuildSummary> PublishImpl(const Plan& plan, const std::string& plan_path,
     const json& codes = e.at("codes");
     if (static_cast<int>(codes.size()) != images)
       return Status(StatusCode::kCorrupt, "the manifest of tile " + tk.ToString() + " lists " +
-                                               std::to_string(codes.size()) + " codes for " +
-                                               std::to_string(images) + " images");
+                                              std::to_string(codes.size()) + " codes for " +
+                                              std::to_string(images) + " images");
     for (int i = 0; i < images; ++i) {
       cv::Mat row(1, code_bytes, CV_8U);
       if (!BytesOfHex(codes[i].get<std::string>(), row.ptr<uint8_t>(), code_bytes))
@@ -782,10 +786,8 @@ Result<BuildSummary> PublishImpl(const Plan& plan, const std::string& plan_path,
                    {"images", summary.images},
                    {"skipped", skipped.size()},
                    {"added", catalog.created_utc}};
-  catalog.provenance = json{{"drives", {drive}},
-                            {"max_features", o.features.max_features},
-                            {"zoom", o.zoom}}
-                           .dump();
+  catalog.provenance =
+      json{{"drives", {drive}}, {"max_features", o.features.max_features}, {"zoom", o.zoom}}.dump();
   catalog.global_index = GlobalIndex(staged->model, all_codes, ids);
   const double n = std::max(1, summary.images);
   summary.global_code_bytes = code_bytes;
@@ -795,9 +797,8 @@ Result<BuildSummary> PublishImpl(const Plan& plan, const std::string& plan_path,
 
   // Tiles into the map (renames on one file system), then the one catalog switch. On a failure
   // the tiles go back to staging and the map is as it was.
-  Say(o, "publish: " + std::to_string(summary.tiles) + " tiles, " +
-             std::to_string(summary.images) + " images, map version " +
-             std::to_string(plan.map_version));
+  Say(o, "publish: " + std::to_string(summary.tiles) + " tiles, " + std::to_string(summary.images) +
+             " images, map version " + std::to_string(plan.map_version));
   std::vector<std::pair<fs::path, fs::path>> done;
   auto undo = [&](Status s) {
     std::error_code ec;
@@ -808,8 +809,9 @@ Result<BuildSummary> PublishImpl(const Plan& plan, const std::string& plan_path,
     std::error_code ec;
     fs::create_directories(to.parent_path(), ec);
     fs::rename(from, to, ec);
-    if (ec) return undo(Status::IoError("cannot move " + from.string() + " to " + to.string() +
-                                        ": " + ec.message()));
+    if (ec)
+      return undo(Status::IoError("cannot move " + from.string() + " to " + to.string() + ": " +
+                                  ec.message()));
     done.emplace_back(from, to);
   }
   MaybeKillAt("catalog");
@@ -830,7 +832,8 @@ std::string DefaultPlanPath(const std::string& map_dir) {
 
 Result<TrainSummary> TrainStep(const BuildOptions& options) { return TrainImpl(options, nullptr); }
 
-Result<PlanSummary> PlanStep(const BuildOptions& options, const std::string& plan_path, int shards) {
+Result<PlanSummary> PlanStep(const BuildOptions& options, const std::string& plan_path,
+                             int shards) {
   PlanSummary summary;
   Result<json> plan = PlanImpl(options, shards, &summary);
   if (!plan.ok()) return plan.status();
@@ -879,9 +882,14 @@ Result<BuildSummary> BuildMap(const BuildOptions& o) {
   if (!plan_json.ok()) return clean(Result<BuildSummary>(plan_json.status()));
   plan_id = planned.plan_id;
   const std::string plan_path = (staging / "build-plan.json").string();
-  if (Status st = WriteJson(plan_path, *plan_json); !st.ok()) return clean(Result<BuildSummary>(st));
-  Plan plan{std::move(plan_json).value(), planned.plan_id, fs::absolute(o.map_dir).lexically_normal().string(),
-            fs::absolute(o.drive_dir).lexically_normal().string(), 1, planned.map_version};
+  if (Status st = WriteJson(plan_path, *plan_json); !st.ok())
+    return clean(Result<BuildSummary>(st));
+  Plan plan{std::move(plan_json).value(),
+            planned.plan_id,
+            fs::absolute(o.map_dir).lexically_normal().string(),
+            fs::absolute(o.drive_dir).lexically_normal().string(),
+            1,
+            planned.map_version};
 
   FeatureCache cache;
   Result<TrainSummary> trained = TrainImpl(o, &cache);

@@ -19,9 +19,9 @@
 // region shards, merged into on-disk lists (OnDiskInvertedLists), loaded memory-mapped; per
 // nprobe: recall@1, its ratio to exact, top-1 agreement with exact, ms per query (one query at a
 // time, one thread: latency), with and without re-ranking --rerank PQ candidates by their exact
-// distances (vectors memory-mapped from disk), and memory (the process's anonymous and file-backed resident
-// bytes before and after loading and querying). Also the flat PQ index the catalog holds today
-// (exhaustive asymmetric distance over every code) at the same size, for comparison.
+// distances (vectors memory-mapped from disk), and memory (the process's anonymous and file-backed
+// resident bytes before and after loading and querying). Also the flat PQ index the catalog holds
+// today (exhaustive asymmetric distance over every code) at the same size, for comparison.
 //
 // Usage: ivf_bench --map MAPDIR --queries DIR[,DIR...] --out DIR [--n 1000000] [--nlist 4096]
 //                  [--pq-bytes 32] [--shards 4] [--seed 1]
@@ -210,24 +210,26 @@ int Serve(const std::string& index_file, const std::string& query_file, int dims
   json figures = json::array();
   std::ofstream ids_out(out + "/served_ids.bin", std::ios::binary);
   for (int nprobe : kNprobes)
-  for (int r : {0, rerank}) {
-    if (nprobe > static_cast<int>((*index)->index().nlist)) break;
-    std::vector<int64_t> top10(nq * 10);
-    std::vector<float> d10(nq * 10);
-    std::vector<double> ms(nq);
-    for (int i = 0; i < nq; ++i) {
-      const auto tq = Clock::now();
-      (*index)->Search(q + static_cast<size_t>(i) * dims, 10, nprobe, r, top10.data() + i * 10,
-                       d10.data() + i * 10);
-      ms[i] = 1000 * Seconds(tq);
+    for (int r : {0, rerank}) {
+      if (nprobe > static_cast<int>((*index)->index().nlist)) break;
+      std::vector<int64_t> top10(nq * 10);
+      std::vector<float> d10(nq * 10);
+      std::vector<double> ms(nq);
+      for (int i = 0; i < nq; ++i) {
+        const auto tq = Clock::now();
+        (*index)->Search(q + static_cast<size_t>(i) * dims, 10, nprobe, r, top10.data() + i * 10,
+                         d10.data() + i * 10);
+        ms[i] = 1000 * Seconds(tq);
+      }
+      ids_out.write(reinterpret_cast<const char*>(top10.data()), top10.size() * sizeof(top10[0]));
+      std::vector<double> sorted = ms;
+      std::sort(sorted.begin(), sorted.end());
+      figures.push_back(
+          {{"nprobe", nprobe},
+           {"rerank", r},
+           {"ms_per_query", std::accumulate(ms.begin(), ms.end(), 0.0) / nq},
+           {"p99_ms", sorted[std::min<size_t>(nq - 1, static_cast<size_t>(0.99 * nq))]}});
     }
-    ids_out.write(reinterpret_cast<const char*>(top10.data()), top10.size() * sizeof(top10[0]));
-    std::vector<double> sorted = ms;
-    std::sort(sorted.begin(), sorted.end());
-    figures.push_back({{"nprobe", nprobe}, {"rerank", r},
-                       {"ms_per_query", std::accumulate(ms.begin(), ms.end(), 0.0) / nq},
-                       {"p99_ms", sorted[std::min<size_t>(nq - 1, static_cast<size_t>(0.99 * nq))]}});
-  }
   const auto queried = ResidentMb();
   std::ofstream(out + "/served.json")
       << json{{"per_nprobe", figures},
@@ -259,7 +261,8 @@ int main(int argc, char** argv) {
       "shards", po::value(&shards)->default_value(shards), "region shards merged on disk")(
       "seed", po::value(&seed)->default_value(seed), "distractor seed")(
       "rerank", po::value(&rerank)->default_value(rerank),
-      "PQ candidates re-ranked with the exact vectors")("serve", po::value(&serve), "internal: load this index and answer --query-file")(
+      "PQ candidates re-ranked with the exact vectors")(
+      "serve", po::value(&serve), "internal: load this index and answer --query-file")(
       "query-file", po::value(&query_file), "internal")("dims", po::value(&serve_dims), "internal");
   po::variables_map vm;
   po::store(po::parse_command_line(argc, argv, desc), vm);
@@ -317,25 +320,30 @@ int main(int argc, char** argv) {
     town.search(nq, queries.vectors.ptr<float>(), 1, dist.data(), top1.data());
     alone = RecallAt1(top1, survey, queries);
   }
-  std::printf("exact (IndexFlatL2, %d B/image): recall@1 %.3f, recall@10 %.3f, %.1f ms/query "
-              "(batched); recall@1 over the survey alone %.3f\n",
-              dims * 4, exact_recall, exact_recall10, exact_ms, alone);
-  report["exact"] = {{"recall_at_1", exact_recall}, {"recall_at_10", exact_recall10},
-                     {"recall_at_1_survey_alone", alone}, {"ms_per_query_batched", exact_ms},
+  std::printf(
+      "exact (IndexFlatL2, %d B/image): recall@1 %.3f, recall@10 %.3f, %.1f ms/query "
+      "(batched); recall@1 over the survey alone %.3f\n",
+      dims * 4, exact_recall, exact_recall10, exact_ms, alone);
+  report["exact"] = {{"recall_at_1", exact_recall},
+                     {"recall_at_10", exact_recall10},
+                     {"recall_at_1_survey_alone", alone},
+                     {"ms_per_query_batched", exact_ms},
                      {"bytes_per_image", dims * 4}};
-  report["database"] = {{"n", n}, {"survey", survey.vectors.rows}, {"queries", nq}, {"dims", dims},
-                        {"seed", seed}};
+  report["database"] = {
+      {"n", n}, {"survey", survey.vectors.rows}, {"queries", nq}, {"dims", dims}, {"seed", seed}};
 
   // The flat PQ index the catalog holds today, at this size (exhaustive ADC).
   {
     t0 = Clock::now();
-    std::unique_ptr<faiss::Index> flat_pq = model->MakeIndex(cv::Mat(0, model->code_bytes(), CV_8U));
+    std::unique_ptr<faiss::Index> flat_pq =
+        model->MakeIndex(cv::Mat(0, model->code_bytes(), CV_8U));
     for (int64_t i = 0; i < n; i += 100000) {
       const int rows = static_cast<int>(std::min<int64_t>(100000, n - i));
       cv::Mat block(rows, dims, CV_32F, const_cast<float*>(db.data() + i * dims));
       const cv::Mat codes = model->Encode(block);
       auto* flat = dynamic_cast<faiss::IndexFlatCodes*>(flat_pq.get());
-      flat->codes.insert(flat->codes.end(), codes.ptr<uint8_t>(), codes.ptr<uint8_t>() + codes.total());
+      flat->codes.insert(flat->codes.end(), codes.ptr<uint8_t>(),
+                         codes.ptr<uint8_t>() + codes.total());
       flat->ntotal += rows;
     }
     const double encode_s = Seconds(t0);
@@ -348,11 +356,14 @@ int main(int argc, char** argv) {
     const double ms = 1000 * Seconds(t0) / timed;
     flat_pq->search(nq, queries.vectors.ptr<float>(), 1, d1.data(), top1.data());
     const double recall = RecallAt1(top1, survey, queries);
-    std::printf("flat PQ (the catalog's index today, %s, %d B/image): recall@1 %.3f, %.1f ms/query "
-                "(encoded in %.1f s)\n",
-                model->codec_name().c_str(), model->code_bytes(), recall, ms, encode_s);
-    report["flat_pq"] = {{"recall_at_1", recall}, {"ms_per_query", ms},
-                         {"bytes_per_image", model->code_bytes()}, {"codec", model->codec_name()}};
+    std::printf(
+        "flat PQ (the catalog's index today, %s, %d B/image): recall@1 %.3f, %.1f ms/query "
+        "(encoded in %.1f s)\n",
+        model->codec_name().c_str(), model->code_bytes(), recall, ms, encode_s);
+    report["flat_pq"] = {{"recall_at_1", recall},
+                         {"ms_per_query", ms},
+                         {"bytes_per_image", model->code_bytes()},
+                         {"codec", model->codec_name()}};
   }
 
   // IVF-PQ: train (one job), region shards (independent), merge on disk (one job).
@@ -368,7 +379,8 @@ int main(int argc, char** argv) {
   for (int s = 0; s < shards; ++s) {
     const int64_t a = n * s / shards, b = n * (s + 1) / shards;
     shard_files.push_back(out + "/region-" + std::to_string(s + 1) + ".index");
-    st = sightfix::AddIvfShard(trained, db.data() + a * dims, ids.data() + a, b - a, shard_files.back());
+    st = sightfix::AddIvfShard(trained, db.data() + a * dims, ids.data() + a, b - a,
+                               shard_files.back());
     if (!st.ok()) return std::fprintf(stderr, "%s\n", st.ToString().c_str()), 1;
   }
   const double add_s = Seconds(t0);
@@ -377,11 +389,13 @@ int main(int argc, char** argv) {
   st = sightfix::MergeIvfShards(trained, shard_files, index_file, lists_file);
   if (!st.ok()) return std::fprintf(stderr, "%s\n", st.ToString().c_str()), 1;
   const double merge_s = Seconds(t0);
-  const double lists_mb = fs::file_size(lists_file) / 1e6, index_mb = fs::file_size(index_file) / 1e6;
-  std::printf("IVF%d,PQ%dx8: trained in %.1f s, %d region shards added in %.1f s, merged in %.1f s; "
-              "on disk: lists %.1f MB (%.1f B/image), index %.1f MB\n",
-              ivf.nlist, ivf.pq_bytes, train_s, shards, add_s, merge_s, lists_mb, lists_mb * 1e6 / n,
-              index_mb);
+  const double lists_mb = fs::file_size(lists_file) / 1e6,
+               index_mb = fs::file_size(index_file) / 1e6;
+  std::printf(
+      "IVF%d,PQ%dx8: trained in %.1f s, %d region shards added in %.1f s, merged in %.1f s; "
+      "on disk: lists %.1f MB (%.1f B/image), index %.1f MB\n",
+      ivf.nlist, ivf.pq_bytes, train_s, shards, add_s, merge_s, lists_mb, lists_mb * 1e6 / n,
+      index_mb);
   for (const std::string& f : shard_files)
     for (const char* ext : {"", ".vec", ".ids"}) fs::remove(f + ext);
 
@@ -394,19 +408,26 @@ int main(int argc, char** argv) {
   }
   const std::string self = fs::read_symlink("/proc/self/exe").string();
   const std::string cmd = self + " --serve " + index_file + " --query-file " + qfile + " --dims " +
-                          std::to_string(dims) + " --rerank " + std::to_string(rerank) + " --out " + out;
+                          std::to_string(dims) + " --rerank " + std::to_string(rerank) + " --out " +
+                          out;
   if (std::system(cmd.c_str()) != 0) return std::fprintf(stderr, "the serving process failed\n"), 1;
   std::ifstream served_in(out + "/served.json");
   const json served = json::parse(served_in);
   std::ifstream ids_in(out + "/served_ids.bin", std::ios::binary);
-  report["ivf"] = {{"nlist", ivf.nlist}, {"pq_bytes", ivf.pq_bytes}, {"shards", shards},
-                   {"train_s", train_s}, {"add_s", add_s}, {"merge_s", merge_s},
-                   {"lists_mb", lists_mb}, {"index_mb", index_mb},
+  report["ivf"] = {{"nlist", ivf.nlist},
+                   {"pq_bytes", ivf.pq_bytes},
+                   {"shards", shards},
+                   {"train_s", train_s},
+                   {"add_s", add_s},
+                   {"merge_s", merge_s},
+                   {"lists_mb", lists_mb},
+                   {"index_mb", index_mb},
                    {"lists_bytes_per_image", lists_mb * 1e6 / n},
                    {"quantizer_mb", ivf.nlist * dims * 4 / 1e6},
                    {"serving_process", served}};
   json rows = json::array();
-  std::printf("nprobe  rerank  recall@1  of exact  agrees  recall@10  ms/query  p99 ms  codes scanned\n");
+  std::printf(
+      "nprobe  rerank  recall@1  of exact  agrees  recall@10  ms/query  p99 ms  codes scanned\n");
   for (const json& f : served.at("per_nprobe")) {
     const int nprobe = f.at("nprobe").get<int>(), r = f.at("rerank").get<int>();
     std::vector<faiss::Index::idx_t> top10(nq * 10), top1(nq);
@@ -422,19 +443,25 @@ int main(int argc, char** argv) {
     std::printf("%6d  %6d  %8.3f  %8.3f  %6.3f  %9.3f  %8.3f  %6.3f  %.0f\n", nprobe, r, recall,
                 exact_recall > 0 ? recall / exact_recall : 0, double(agree) / nq, recall10, mean,
                 p99, scanned);
-    rows.push_back({{"nprobe", nprobe}, {"rerank", r}, {"recall_at_1", recall},
+    rows.push_back({{"nprobe", nprobe},
+                    {"rerank", r},
+                    {"recall_at_1", recall},
                     {"of_exact", exact_recall > 0 ? recall / exact_recall : 0},
-                    {"agrees_with_exact", double(agree) / nq}, {"recall_at_10", recall10},
-                    {"ms_per_query", mean}, {"p99_ms", p99}, {"codes_scanned", scanned}});
+                    {"agrees_with_exact", double(agree) / nq},
+                    {"recall_at_10", recall10},
+                    {"ms_per_query", mean},
+                    {"p99_ms", p99},
+                    {"codes_scanned", scanned}});
   }
   report["ivf"]["per_nprobe"] = rows;
-  std::printf("the serving process: %.1f MB private after load, %.1f MB private and %.1f MB of "
-              "mapped lists resident after all queries, %.1f MB resident in all (coarse quantizer "
-              "%.1f MB)\n",
-              served.at("rss_anon_mb_loaded").get<double>(),
-              served.at("rss_anon_mb_after_queries").get<double>(),
-              served.at("rss_file_mb_after_queries").get<double>(),
-              served.at("rss_total_mb_after_queries").get<double>(), ivf.nlist * dims * 4 / 1e6);
+  std::printf(
+      "the serving process: %.1f MB private after load, %.1f MB private and %.1f MB of "
+      "mapped lists resident after all queries, %.1f MB resident in all (coarse quantizer "
+      "%.1f MB)\n",
+      served.at("rss_anon_mb_loaded").get<double>(),
+      served.at("rss_anon_mb_after_queries").get<double>(),
+      served.at("rss_file_mb_after_queries").get<double>(),
+      served.at("rss_total_mb_after_queries").get<double>(), ivf.nlist * dims * 4 / 1e6);
   std::ofstream(out + "/ivf_bench.json") << report.dump(2) << "\n";
   std::printf("figures: %s/ivf_bench.json\n", out.c_str());
   return 0;

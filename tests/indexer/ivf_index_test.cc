@@ -61,7 +61,8 @@ TEST_F(IvfIndexTest, ShardsMergedOnDiskEqualOneIndex) {
   ASSERT_TRUE(MergeIvfShards(P("trained.index"), {P("b.shard"), P("a.shard")}, P("merged.index"),
                              P("merged.ivfdata"))
                   .ok());
-  ASSERT_TRUE(MergeIvfShards(P("trained.index"), {P("all.shard")}, P("one.index"), P("one.ivfdata")).ok());
+  ASSERT_TRUE(
+      MergeIvfShards(P("trained.index"), {P("all.shard")}, P("one.index"), P("one.ivfdata")).ok());
   auto merged = LoadIvf(P("merged.index"));
   auto one = LoadIvf(P("one.index"));
   ASSERT_TRUE(merged.ok()) << merged.status().ToString();
@@ -84,7 +85,8 @@ TEST_F(IvfIndexTest, ShardsMergedOnDiskEqualOneIndex) {
 
 TEST_F(IvfIndexTest, FindsTheExactNeighbourWhenProbingEveryList) {
   ASSERT_TRUE(AddIvfShard(P("trained.index"), x_.data(), ids_.data(), kN, P("all.shard")).ok());
-  ASSERT_TRUE(MergeIvfShards(P("trained.index"), {P("all.shard")}, P("m.index"), P("m.ivfdata")).ok());
+  ASSERT_TRUE(
+      MergeIvfShards(P("trained.index"), {P("all.shard")}, P("m.index"), P("m.ivfdata")).ok());
   auto ivf = LoadIvf(P("m.index"));
   ASSERT_TRUE(ivf.ok());
   faiss::IndexFlatL2 exact(kDims);  // the reference

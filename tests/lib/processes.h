@@ -3,11 +3,10 @@
 // HTTP GET, and query requests from the town's query-day drive.
 #pragma once
 
+#include <gtest/gtest.h>
 #include <signal.h>
 #include <sys/wait.h>
 #include <unistd.h>
-
-#include <gtest/gtest.h>
 
 #include <boost/asio.hpp>
 #include <chrono>

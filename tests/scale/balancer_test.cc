@@ -68,7 +68,8 @@ struct Load {
     for (auto& a : answered) std::printf(" %d", a.load());
     std::printf(", failed");
     for (auto& f : failed) std::printf(" %d", f.load());
-    std::printf(" (by phase); calls sent again %llu (", static_cast<unsigned long long>(resent.load()));
+    std::printf(" (by phase); calls sent again %llu (",
+                static_cast<unsigned long long>(resent.load()));
     for (auto& r : resent_in) std::printf(" %d", r.load());
     std::printf(" by phase)\n");
     for (const std::string& e : errors) std::printf("  error: %s\n", e.c_str());
@@ -124,7 +125,8 @@ bool WaitForState(const std::string& socket, const std::string& server, const st
 // scripts/haproxy/sightfix.cfg with the test's ports and a stats socket.
 std::string HaproxyConfig(int lb_port, const ServerProcess& r1, const ServerProcess& r2,
                           const std::string& socket) {
-  const std::string sample = ReadFile(std::string(SIGHTFIX_SOURCE_DIR) + "/scripts/haproxy/sightfix.cfg");
+  const std::string sample =
+      ReadFile(std::string(SIGHTFIX_SOURCE_DIR) + "/scripts/haproxy/sightfix.cfg");
   std::string c = sample;
   auto replace = [&c](const std::string& from, const std::string& to) {
     const size_t at = c.find(from);
@@ -134,10 +136,12 @@ std::string HaproxyConfig(int lb_port, const ServerProcess& r1, const ServerProc
   };
   const auto addr = [](int port) { return "127.0.0.1:" + std::to_string(port); };
   EXPECT_TRUE(replace("bind 127.0.0.1:7400", "bind " + addr(lb_port)));
-  EXPECT_TRUE(replace("server replica1 127.0.0.1:7411 check port 7412",
-                      "server replica1 " + addr(r1.port()) + " check port " + std::to_string(r1.http_port())));
-  EXPECT_TRUE(replace("server replica2 127.0.0.1:7421 check port 7422",
-                      "server replica2 " + addr(r2.port()) + " check port " + std::to_string(r2.http_port())));
+  EXPECT_TRUE(replace(
+      "server replica1 127.0.0.1:7411 check port 7412",
+      "server replica1 " + addr(r1.port()) + " check port " + std::to_string(r1.http_port())));
+  EXPECT_TRUE(replace(
+      "server replica2 127.0.0.1:7421 check port 7422",
+      "server replica2 " + addr(r2.port()) + " check port " + std::to_string(r2.http_port())));
   EXPECT_TRUE(replace("global\n", "global\n    stats socket " + socket + " level admin\n"));
   return c;
 }
@@ -176,9 +180,10 @@ TEST(BalancerTest, HaproxyLosesNoCallWhenAReplicaDies) {
   const int served1_after = LocatesServed(r1);
   load.Finish();
   load.Print("through HAProxy");
-  std::printf("replica1 answered %d and replica2 %d locates before the kill; replica1 answered %d "
-              "after its restart\n",
-              served1, served2, served1_after);
+  std::printf(
+      "replica1 answered %d and replica2 %d locates before the kill; replica1 answered %d "
+      "after its restart\n",
+      served1, served2, served1_after);
   EXPECT_GT(served1, 0) << "HAProxy sent no call to replica1";
   EXPECT_GT(served2, 0) << "HAProxy sent no call to replica2";
   EXPECT_GT(served1_after, 0) << "the restarted replica got no call";
@@ -199,7 +204,8 @@ TEST(BalancerTest, ClientFailsOverBetweenEndpoints) {
   ASSERT_TRUE(r1.Start()) << r1.Log();
   ASSERT_TRUE(r2.Start()) << r2.Log();
   ClientOptions co;
-  co.endpoints = {"127.0.0.1:" + std::to_string(r1.port()), "127.0.0.1:" + std::to_string(r2.port())};
+  co.endpoints = {"127.0.0.1:" + std::to_string(r1.port()),
+                  "127.0.0.1:" + std::to_string(r2.port())};
   Load load;
   load.Start(4, co);
   std::this_thread::sleep_for(std::chrono::seconds(3));
