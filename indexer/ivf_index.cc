@@ -189,14 +189,18 @@ Result<std::unique_ptr<faiss::IndexIVFPQ>> LoadIvf(const std::string& index_path
 
 namespace {
 
-// Maps a whole file read-only; nullptr on failure.
-const void* MapFile(const std::string& path, size_t* size) {
+// Maps a whole file read-only; nullptr on failure. `advice` as madvise(2): MADV_RANDOM for the
+// vectors (a query touches ~100 scattered rows: readahead would only evict), MADV_WILLNEED for
+// the ids (8 bytes an image, binary-searched on every candidate).
+const void* MapFile(const std::string& path, size_t* size, int advice) {
   const int fd = ::open(path.c_str(), O_RDONLY | O_CLOEXEC);
   if (fd < 0) return nullptr;
   *size = static_cast<size_t>(::lseek(fd, 0, SEEK_END));
   void* p = *size ? ::mmap(nullptr, *size, PROT_READ, MAP_SHARED, fd, 0) : nullptr;
   ::close(fd);
-  return p == MAP_FAILED ? nullptr : p;
+  if (p == MAP_FAILED) return nullptr;
+  if (p) ::madvise(p, *size, advice);
+  return p;
 }
 
 }  // namespace
@@ -206,8 +210,8 @@ Result<std::unique_ptr<IvfSearcher>> IvfSearcher::Open(const std::string& index_
   if (!index.ok()) return index.status();
   std::unique_ptr<IvfSearcher> s(new IvfSearcher());
   s->index_ = std::move(index).value();
-  s->vectors_ = static_cast<const float*>(MapFile(index_path + ".vec", &s->vec_bytes_));
-  s->ids_ = static_cast<const int64_t*>(MapFile(index_path + ".ids", &s->ids_bytes_));
+  s->vectors_ = static_cast<const float*>(MapFile(index_path + ".vec", &s->vec_bytes_, MADV_RANDOM));
+  s->ids_ = static_cast<const int64_t*>(MapFile(index_path + ".ids", &s->ids_bytes_, MADV_WILLNEED));
   s->n_ = s->ids_bytes_ / sizeof(int64_t);
   if (!s->vectors_ || !s->ids_ || s->n_ != static_cast<size_t>(s->index_->ntotal) ||
       s->vec_bytes_ != s->n_ * s->index_->d * sizeof(float))
