@@ -49,12 +49,14 @@ munged --force --key-file="$dir/munge/munge.key" --socket="$dir/munge/munge.sock
   --pid-file="$dir/munge/munged.pid" --log-file="$dir/log/munged.log" \
   --seed-file="$dir/munge/munged.seed"
 
-node="$(slurmd -C | head -1)"   # this machine as Slurm sees it: NodeName=... CPUs=... RealMemory=...
+# This machine as Slurm sees it (NodeName=<short hostname> CPUs=... RealMemory=...), reached on
+# loopback whether or not its name resolves.
+node="$(slurmd -C | head -1)"
 host="$(hostname -s)"
 user="$(id -un)"
 cat >"$dir/slurm.conf" <<CONF
 ClusterName=sightfix-test
-SlurmctldHost=$host
+SlurmctldHost=$host(127.0.0.1)
 SlurmctldPort=$ctld_port
 SlurmdPort=$slurmd_port
 AuthType=auth/munge
@@ -83,7 +85,7 @@ SlurmctldTimeout=30
 SlurmdTimeout=30
 InactiveLimit=0
 KillWait=5
-$node State=UNKNOWN
+$node NodeAddr=127.0.0.1 State=UNKNOWN
 PartitionName=main Nodes=ALL Default=YES MaxTime=INFINITE State=UP
 CONF
 export SLURM_CONF="$dir/slurm.conf"
