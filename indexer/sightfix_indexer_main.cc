@@ -278,7 +278,13 @@ int BuildTiles(int argc, char** argv) {
     return Fail("build-tiles needs --plan FILE and --shard I/N (see --help)", 2);
   if (jobs < 0) return Fail("--jobs must be >= 0", 2);
   auto s = sightfix::BuildTilesStep(plan, i, n, jobs, vm.count("quiet") == 0);
-  if (!s.ok()) return FailStatus(s.status(), "\nthe shard left no manifest; run it again");
+  if (!s.ok()) {
+    const sightfix::StatusCode c = s.status().code();
+    const bool input = c == sightfix::StatusCode::kInvalidArgument ||
+                       c == sightfix::StatusCode::kNotFound ||
+                       c == sightfix::StatusCode::kFailedPrecondition;
+    return FailStatus(s.status(), input ? "" : "\nthe shard left no manifest; run it again");
+  }
   for (const std::string& why : s->skipped) std::fprintf(stderr, "skipped: %s\n", why.c_str());
   if (vm.count("json")) {
     std::cout << nlohmann::json{{"shard", s->shard},
