@@ -38,6 +38,10 @@ struct Survey {
   std::vector<LocalFeatures> features;
 };
 
+// Keeps the rows whose status is OK; the first bad one fails the step unless o.skip_bad, then
+// each is listed in *skipped.
+Status DropBadRows(const BuildOptions& o, const std::vector<Status>& status, Survey* s,
+                   std::vector<std::string>* skipped);
 // Loads each row's calibration (drive_dir/camera); bad rows fail or, with skip_bad, go to *skipped.
 Status LoadCameras(const BuildOptions& o, Survey* s, std::vector<std::string>* skipped);
 // Reads, decodes and checks every row's image and extracts its features; the same image twice

@@ -447,6 +447,16 @@ Result<int> NextMapVersion(const BuildOptions& o) {
 
 using namespace build_internal;
 
+nlohmann::json StructureSummaryJson(const StructureSummary& st) {
+  return {{"pairs", st.pairs},
+          {"matches", st.matches},
+          {"epipolar_matches", st.epipolar_matches},
+          {"tracks", st.tracks},
+          {"observations", st.observations},
+          {"ba_initial_rms_px", st.ba_initial_rms_px},
+          {"ba_final_rms_px", st.ba_final_rms_px}};
+}
+
 bool BuildOptions::Validate(std::string* error) const {
   auto fail = [&](const std::string& m) {
     if (error) *error = m;

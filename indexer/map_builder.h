@@ -17,6 +17,7 @@
 // Thread safety: one build per map folder at a time.
 #pragma once
 
+#include <nlohmann/json.hpp>
 #include <string>
 #include <vector>
 
@@ -75,6 +76,8 @@ struct BuildSummary {
 // `build`: plan (one shard), train, build-tiles, publish, in one process; staging files go
 // again at the end, whatever happens. Byte for byte the map the four steps make on a cluster.
 Result<BuildSummary> BuildMap(const BuildOptions& options);
+// The structure figures as JSON (pairs, matches, tracks, observations, bundle adjustment rms).
+nlohmann::json StructureSummaryJson(const StructureSummary& s);
 
 // The build as four steps a batch scheduler can run (DEVELOPERS.md, "Scale-out"). Staging files
 // live in MAPDIR/staging/; the live map is touched only by publish, under the writer lock.
@@ -85,7 +88,7 @@ struct TrainSummary {
   int survey_images = 0, sampled_images = 0, training_vectors = 0;
   std::string model_id, codec, model_file;
   std::vector<std::string> skipped;
-  double seconds = 0;
+  double seconds = 0, feature_s = 0;  // feature_s: of it, extracting the sample's features
 };
 Result<TrainSummary> TrainStep(const BuildOptions& options);
 

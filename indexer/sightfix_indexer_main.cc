@@ -21,7 +21,6 @@ int Fail(const std::string& message, int code = 1) {
 }
 
 nlohmann::json SummaryJson(const sightfix::BuildSummary& s) {
-  const sightfix::StructureSummary& st = s.structure;
   return {{"images", s.images},
           {"input_format", s.input_format},
           {"skipped", s.skipped.size()},
@@ -44,14 +43,7 @@ nlohmann::json SummaryJson(const sightfix::BuildSummary& s) {
             {"local_features", s.local_feature_bytes},
             {"points", s.point_bytes},
             {"tile_file", s.tile_file_bytes}}},
-          {"structure",
-           {{"pairs", st.pairs},
-            {"matches", st.matches},
-            {"epipolar_matches", st.epipolar_matches},
-            {"tracks", st.tracks},
-            {"observations", st.observations},
-            {"ba_initial_rms_px", st.ba_initial_rms_px},
-            {"ba_final_rms_px", st.ba_final_rms_px}}}};
+          {"structure", sightfix::StructureSummaryJson(s.structure)}};
 }
 
 constexpr char kBuildHelp[] =

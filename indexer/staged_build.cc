@@ -121,26 +121,6 @@ bool BytesOfHex(const std::string& s, uint8_t* out, size_t n) {
   return true;
 }
 
-// Keeps the rows whose status is OK; the first bad one fails unless skip_bad (then listed).
-Status KeepGoodRows(const BuildOptions& o, const std::vector<Status>& status, Survey* s,
-                    std::vector<std::string>* skipped) {
-  Survey kept;
-  kept.cameras = std::move(s->cameras);
-  for (size_t i = 0; i < s->rows.size(); ++i) {
-    if (!status[i].ok()) {
-      if (!o.skip_bad) return status[i];
-      skipped->push_back(status[i].message());
-      continue;
-    }
-    kept.rows.push_back(s->rows[i]);
-    kept.attitude_sigma_deg.push_back(s->attitude_sigma_deg[i]);
-    kept.origin.push_back(s->origin.empty() ? std::string() : s->origin[i]);
-    kept.camera_of_row.push_back(s->camera_of_row[i]);
-  }
-  *s = std::move(kept);
-  return Status::Ok();
-}
-
 // The survey's rows with their calibrations loaded (bad ones out or fatal, as o.skip_bad says).
 Result<Survey> ReadRows(const BuildOptions& o, std::string* input_format,
                         std::vector<std::string>* skipped) {
@@ -189,7 +169,9 @@ Result<TrainSummary> TrainImpl(const BuildOptions& o, FeatureCache* cache) {
   }
   Say(o, "train: features of " + std::to_string(sample.rows.size()) + " of " + std::to_string(n) +
              " survey images");
+  const auto t_features = Clock::now();
   if (Status st = ExtractAll(o, &sample, &summary.skipped); !st.ok()) return st;
+  summary.feature_s = SecondsSince(t_features);
   summary.sampled_images = static_cast<int>(sample.rows.size());
   if (summary.sampled_images <= o.descriptor.pq_subquantizers)
     return Status::InvalidArgument(
@@ -287,7 +269,7 @@ Result<json> PlanImpl(const BuildOptions& o, int shards, PlanSummary* summary) {
   std::vector<std::string> kept_sha;
   for (size_t i = 0; i < n; ++i)
     if (status[i].ok()) kept_sha.push_back(sha[i]);
-  if (Status st = KeepGoodRows(o, status, s, &summary->skipped); !st.ok()) return st;
+  if (Status st = DropBadRows(o, status, s, &summary->skipped); !st.ok()) return st;
   if (s->rows.empty()) return Status::InvalidArgument(o.drive_dir + ": no usable survey image");
 
   // The calibration files, in the order LoadCameras numbered them.
@@ -604,7 +586,6 @@ Result<ShardSummary> BuildTilesImpl(const Plan& plan, int shard, int shards, int
       image_codes.push_back(HexOf(img.global_code.data(), img.global_code.size()));
       local_bytes += img.normalized.size() * (sizeof(cv::Point2f) + 128 + sizeof(int32_t));
     }
-    const StructureSummary& st = tile_summary.structure;
     entry.update({{"file", rel},
                   {"sha256", *file_sha},
                   {"points", tile.points.size()},
@@ -612,14 +593,7 @@ Result<ShardSummary> BuildTilesImpl(const Plan& plan, int shard, int shards, int
                   {"local_feature_bytes", local_bytes},
                   {"point_bytes", tile.points.size() * (3 * 8 + 6 * 4 + 128 + 4.0)},
                   {"file_bytes", fs::file_size(path)},
-                  {"structure",
-                   {{"pairs", st.pairs},
-                    {"matches", st.matches},
-                    {"epipolar_matches", st.epipolar_matches},
-                    {"tracks", st.tracks},
-                    {"observations", st.observations},
-                    {"ba_initial_rms_px", st.ba_initial_rms_px},
-                    {"ba_final_rms_px", st.ba_final_rms_px}}}});
+                  {"structure", StructureSummaryJson(tile_summary.structure)}});
     tiles.push_back(entry);
     summary.tiles++;
     summary.images += static_cast<int>(own_local.size());
@@ -901,8 +875,8 @@ Result<BuildSummary> BuildMap(const BuildOptions& o) {
   Result<BuildSummary> published = PublishImpl(plan, plan_path, o.progress, true);
   if (!published.ok()) return clean(published);
   BuildSummary summary = std::move(published).value();
-  summary.model_s = trained->seconds;  // features of the training sample included
-  summary.feature_s = shard->feature_s;
+  summary.model_s = trained->seconds - trained->feature_s;
+  summary.feature_s = trained->feature_s + shard->feature_s;  // the shard reuses the sample's
   summary.structure_s = shard->structure_s;
   summary.seconds = SecondsSince(t_start);
   summary.images_per_s = summary.images / std::max(summary.seconds, 1e-9);

@@ -115,6 +115,19 @@ class ServerProcess {
   ChildProcess child_;
 };
 
+// Everything a socket gives until the peer closes it.
+template <typename Socket>
+std::string ReadToEnd(Socket& s) {
+  std::string out;
+  boost::system::error_code ec;
+  char buf[4096];
+  for (;;) {
+    const size_t n = s.read_some(boost::asio::buffer(buf), ec);
+    out.append(buf, n);
+    if (ec) return out;
+  }
+}
+
 // GET http://127.0.0.1:port/path; the whole response (status line, headers, body), or "".
 inline std::string HttpGet(int port, const std::string& path) {
   namespace asio = boost::asio;
@@ -124,15 +137,7 @@ inline std::string HttpGet(int port, const std::string& path) {
     s.connect({asio::ip::make_address("127.0.0.1"), static_cast<unsigned short>(port)});
     const std::string req = "GET " + path + " HTTP/1.0\r\nHost: 127.0.0.1\r\n\r\n";
     asio::write(s, asio::buffer(req));
-    std::string out;
-    boost::system::error_code ec;
-    char buf[4096];
-    for (;;) {
-      const size_t n = s.read_some(asio::buffer(buf), ec);
-      out.append(buf, n);
-      if (ec) break;
-    }
-    return out;
+    return ReadToEnd(s);
   } catch (const std::exception&) {
     return "";
   }

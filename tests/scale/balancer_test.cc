@@ -92,14 +92,7 @@ std::string ServerState(const std::string& socket, const std::string& server) {
     asio::local::stream_protocol::socket s(io);
     s.connect(asio::local::stream_protocol::endpoint(socket));
     asio::write(s, asio::buffer(std::string("show stat\n")));
-    std::string out;
-    boost::system::error_code ec;
-    char buf[4096];
-    for (;;) {
-      const size_t n = s.read_some(asio::buffer(buf), ec);
-      out.append(buf, n);
-      if (ec) break;
-    }
+    const std::string out = ReadToEnd(s);
     // CSV: pxname,svname,...; status is the 18th field.
     std::istringstream lines(out);
     for (std::string line; std::getline(lines, line);) {
