@@ -14,6 +14,7 @@
 
 #include "indexer/geo.h"
 #include "indexer/global_descriptor.h"
+#include "indexer/parallel.h"
 #include "indexer/structure.h"
 #include "indexer/threads.h"
 #include "indexer/tile_key.h"
@@ -167,6 +168,8 @@ Result<std::unique_ptr<Localizer>> Localizer::Open(const std::string& map_dir,
   std::string error;
   if (!options.Validate(&error)) return Status::InvalidArgument(error);
   PinLibraryThreads();
+  // Callers run Locate from several threads at once (the service's workers, replay jobs).
+  MakeOpenCvExpressionSingletons();
   auto impl = std::make_unique<Impl>();
   impl->o = options;
   Result<Catalog> catalog = ReadCatalog(map_dir + "/catalog.sqlite");
