@@ -11,8 +11,9 @@ bash "$root/scripts/deps.sh"
 cmake -S "$root" -B "$build" -DCMAKE_BUILD_TYPE=RelWithDebInfo >/dev/null
 cmake --build "$build" -j "$(nproc)"
 cd "$build"
-# Tests labelled "goal" measure targets not met yet; scripts/goals.sh runs only them.
-if [ "${SIGHTFIX_ONLY_GOALS:-0}" = 1 ]; then labels=(-L goal); else labels=(-LE goal); fi
+# Tests labelled "goal" measure targets not met yet; scripts/goals.sh runs only them. The
+# Slurm test (label slurm, about 5 minutes) runs in scripts/test-scale.sh, outside CI's budget.
+if [ "${SIGHTFIX_ONLY_GOALS:-0}" = 1 ]; then labels=(-L goal); else labels=(-LE "goal|slurm"); fi
 ctest --output-on-failure --timeout 1500 "${labels[@]}" "$@"
 if [ "${SIGHTFIX_SANITIZERS:-1}" = 1 ] && [ "${SIGHTFIX_ONLY_GOALS:-0}" != 1 ] && [ $# -eq 0 ]; then
   bash "$root/scripts/test-sanitizers.sh" ci
