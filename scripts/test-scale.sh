@@ -1,5 +1,5 @@
 #!/usr/bin/env bash
-# The scale-out tests alone (they also run in scripts/test.sh): the map build on a single-node
+# The scale-out tests (scripts/test.sh runs only the balancer one): the map build on a single-node
 # Slurm cluster this machine starts and stops (tests/scale/slurm_test.sh), two server replicas
 # behind HAProxy with one killed and restarted under load, and the client failing over between
 # endpoints (tests/scale/balancer_test.cc). Installs what is missing (slurm-wlm, munge,
