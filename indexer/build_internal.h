@@ -38,6 +38,8 @@ struct Survey {
   std::vector<LocalFeatures> features;
 };
 
+// Where row i came from, as a message prefix ("<drive.csv>:<line>: "), or "".
+std::string Where(const Survey& s, size_t i);
 // Keeps the rows whose status is OK; the first bad one fails the step unless o.skip_bad, then
 // each is listed in *skipped.
 Status DropBadRows(const BuildOptions& o, const std::vector<Status>& status, Survey* s,

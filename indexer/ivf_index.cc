@@ -12,6 +12,8 @@
 #include <fstream>
 #include <numeric>
 
+#include "indexer/map_store.h"
+
 namespace sightfix {
 namespace {
 
@@ -79,17 +81,6 @@ Status TrainIvf(const float* x, int64_t n, int dims, const IvfOptions& o,
   });
 }
 
-Status WriteBytes(const std::string& path, const void* data, size_t size) {
-  const std::string tmp = path + ".tmp";
-  std::ofstream out(tmp, std::ios::binary);
-  out.write(static_cast<const char*>(data), static_cast<std::streamsize>(size));
-  if (!out.flush()) return Status::IoError("cannot write " + tmp);
-  out.close();
-  std::error_code ec;
-  fs::rename(tmp, path, ec);
-  return ec ? Status::IoError("cannot rename " + tmp) : Status::Ok();
-}
-
 Status AddIvfShard(const std::string& trained_path, const float* x, const int64_t* ids, int64_t n,
                    const std::string& shard_path) {
   for (int64_t i = 1; i < n; ++i)
@@ -98,8 +89,10 @@ Status AddIvfShard(const std::string& trained_path, const float* x, const int64_
   Result<std::unique_ptr<faiss::IndexIVFPQ>> index = ReadIvf(trained_path, 0);
   if (!index.ok()) return index.status();
   const size_t d = (*index)->d;
-  if (Status s = WriteBytes(shard_path + ".vec", x, n * d * sizeof(float)); !s.ok()) return s;
-  if (Status s = WriteBytes(shard_path + ".ids", ids, n * sizeof(int64_t)); !s.ok()) return s;
+  if (Status s = WriteFileAtomically(shard_path + ".vec", x, n * d * sizeof(float)); !s.ok())
+    return s;
+  if (Status s = WriteFileAtomically(shard_path + ".ids", ids, n * sizeof(int64_t)); !s.ok())
+    return s;
   return Guard("IVF shard " + shard_path, [&] {
     (*index)->add_with_ids(n, x, ids);
     const std::string tmp = shard_path + ".tmp";
@@ -210,8 +203,10 @@ Result<std::unique_ptr<IvfSearcher>> IvfSearcher::Open(const std::string& index_
   if (!index.ok()) return index.status();
   std::unique_ptr<IvfSearcher> s(new IvfSearcher());
   s->index_ = std::move(index).value();
-  s->vectors_ = static_cast<const float*>(MapFile(index_path + ".vec", &s->vec_bytes_, MADV_RANDOM));
-  s->ids_ = static_cast<const int64_t*>(MapFile(index_path + ".ids", &s->ids_bytes_, MADV_WILLNEED));
+  s->vectors_ =
+      static_cast<const float*>(MapFile(index_path + ".vec", &s->vec_bytes_, MADV_RANDOM));
+  s->ids_ =
+      static_cast<const int64_t*>(MapFile(index_path + ".ids", &s->ids_bytes_, MADV_WILLNEED));
   s->n_ = s->ids_bytes_ / sizeof(int64_t);
   if (!s->vectors_ || !s->ids_ || s->n_ != static_cast<size_t>(s->index_->ntotal) ||
       s->vec_bytes_ != s->n_ * s->index_->d * sizeof(float))

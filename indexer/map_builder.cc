@@ -49,7 +49,9 @@ std::string RowName(const BuildOptions& o, const Survey& s, size_t i) {
 }
 
 // Where a row came from ("<drive.csv>:<line>", or the image), for messages.
-std::string Where(const Survey& s, size_t i) { return s.origin.empty() ? "" : s.origin[i] + ": "; }
+std::string Where(const Survey& s, size_t i) {
+  return s.origin.size() > i && !s.origin[i].empty() ? s.origin[i] + ": " : "";
+}
 
 // Keeps the rows whose status is OK (all of them unless skip_bad); the first bad one fails the
 // build otherwise. Bad rows are listed in *skipped.

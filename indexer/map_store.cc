@@ -6,6 +6,7 @@
 
 #include <cstring>
 #include <filesystem>
+#include <fstream>
 #include <memory>
 
 namespace sightfix {
@@ -154,6 +155,36 @@ Status WriteAtomically(const std::string& path, Fn write) {
   }
   return Status::Ok();
 }
+
+}  // namespace
+
+Status WriteFileAtomically(const std::string& path, const void* data, size_t size) {
+  std::error_code ec;
+  fs::create_directories(fs::path(path).parent_path(), ec);
+  const std::string tmp = path + ".tmp." + std::to_string(::getpid());
+  {
+    std::ofstream out(tmp, std::ios::binary | std::ios::trunc);
+    out.write(static_cast<const char*>(data), static_cast<std::streamsize>(size));
+    if (!out.flush()) {
+      out.close();
+      fs::remove(tmp, ec);
+      return Status::IoError("cannot write " + tmp);
+    }
+  }
+  if (Status s = FsyncFile(tmp); !s.ok()) {
+    fs::remove(tmp, ec);
+    return s;
+  }
+  fs::rename(tmp, path, ec);
+  if (ec) {
+    const std::string why = ec.message();
+    fs::remove(tmp, ec);
+    return Status::IoError("cannot rename " + tmp + ": " + why);
+  }
+  return Status::Ok();
+}
+
+namespace {
 
 constexpr char kTileSchema[] = R"sql(
 CREATE TABLE meta(key TEXT PRIMARY KEY, value TEXT NOT NULL);

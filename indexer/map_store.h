@@ -62,6 +62,9 @@ struct TileData {
 
 // Writes a whole tile (PATH.tmp, fsync, rename). Creates parent folders.
 Status WriteTile(const std::string& path, const TileData& tile);
+// Any file whole or not at all: written to PATH.tmp.<pid>, fsynced, renamed onto PATH (parent
+// folders made). Staging files, plans, manifests and index parts use it.
+Status WriteFileAtomically(const std::string& path, const void* data, size_t size);
 // Reads and checks a tile (schema version, counts, blob sizes); kCorrupt names what is wrong.
 Result<TileData> ReadTile(const std::string& path);
 

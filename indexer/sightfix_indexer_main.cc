@@ -108,12 +108,15 @@ int TakeSurveyFlags(const po::variables_map& vm, const std::string& command,
   return -1;
 }
 
-// Exit code of a failed step: 2 for bad input or state the user can fix, 1 otherwise.
+// Bad input or a state the user can fix (exit 2), not a failure on the way (exit 1).
+bool IsInputError(const sightfix::Status& s) {
+  return s.code() == sightfix::StatusCode::kInvalidArgument ||
+         s.code() == sightfix::StatusCode::kNotFound ||
+         s.code() == sightfix::StatusCode::kFailedPrecondition;
+}
+
 int FailStatus(const sightfix::Status& s, const std::string& tail) {
-  const bool input = s.code() == sightfix::StatusCode::kInvalidArgument ||
-                     s.code() == sightfix::StatusCode::kNotFound ||
-                     s.code() == sightfix::StatusCode::kFailedPrecondition;
-  return Fail(s.ToString() + tail, input ? 2 : 1);
+  return Fail(s.ToString() + tail, IsInputError(s) ? 2 : 1);
 }
 
 // build and add: one survey in, a map out. add = true: into the existing map.
@@ -270,13 +273,9 @@ int BuildTiles(int argc, char** argv) {
     return Fail("build-tiles needs --plan FILE and --shard I/N (see --help)", 2);
   if (jobs < 0) return Fail("--jobs must be >= 0", 2);
   auto s = sightfix::BuildTilesStep(plan, i, n, jobs, vm.count("quiet") == 0);
-  if (!s.ok()) {
-    const sightfix::StatusCode c = s.status().code();
-    const bool input = c == sightfix::StatusCode::kInvalidArgument ||
-                       c == sightfix::StatusCode::kNotFound ||
-                       c == sightfix::StatusCode::kFailedPrecondition;
-    return FailStatus(s.status(), input ? "" : "\nthe shard left no manifest; run it again");
-  }
+  if (!s.ok())
+    return FailStatus(s.status(),
+                      IsInputError(s.status()) ? "" : "\nthe shard left no manifest; run it again");
   for (const std::string& why : s->skipped) std::fprintf(stderr, "skipped: %s\n", why.c_str());
   if (vm.count("json")) {
     std::cout << nlohmann::json{{"shard", s->shard},
@@ -327,22 +326,6 @@ int Publish(int argc, char** argv) {
   return 0;
 }
 
-// Parses flags for the read-only commands (one map folder). -1: go on; else the exit code.
-int ParseMapFlags(int argc, char** argv, const char* command, po::options_description& desc,
-                  po::variables_map* vm) {
-  try {
-    po::store(po::command_line_parser(argc, argv).options(desc).run(), *vm);
-    po::notify(*vm);
-  } catch (const std::exception& e) {
-    return Fail(std::string(e.what()) + " (see sightfix-indexer " + command + " --help)", 2);
-  }
-  if (vm->count("help")) {
-    std::cout << desc << "\n";
-    return 0;
-  }
-  return -1;
-}
-
 int Inspect(int argc, char** argv) {
   std::string map_dir;
   po::options_description desc(
@@ -352,7 +335,7 @@ int Inspect(int argc, char** argv) {
   desc.add_options()("help,h", "show this help")("map", po::value(&map_dir), "map folder")(
       "json", "print JSON on stdout");
   po::variables_map vm;
-  if (int rc = ParseMapFlags(argc, argv, "inspect", desc, &vm); rc >= 0) return rc;
+  if (int rc = ParseFlags(argc, argv, "inspect", desc, &vm); rc >= 0) return rc;
   if (map_dir.empty()) return Fail("inspect needs --map MAPDIR", 2);
   auto j = sightfix::InspectMap(map_dir);
   if (!j.ok()) return Fail(j.status().ToString(), 2);
@@ -391,7 +374,7 @@ int Verify(int argc, char** argv) {
   desc.add_options()("help,h", "show this help")("map", po::value(&map_dir), "map folder")(
       "json", "print JSON on stdout");
   po::variables_map vm;
-  if (int rc = ParseMapFlags(argc, argv, "verify", desc, &vm); rc >= 0) return rc;
+  if (int rc = ParseFlags(argc, argv, "verify", desc, &vm); rc >= 0) return rc;
   if (map_dir.empty()) return Fail("verify needs --map MAPDIR", 2);
   const sightfix::VerifyReport r = sightfix::VerifyMap(map_dir);
   if (vm.count("json")) {
@@ -423,7 +406,7 @@ int Coverage(int argc, char** argv) {
   desc.add_options()("help,h", "show this help")("map", po::value(&map_dir), "map folder")(
       "out", po::value(&out), "GeoJSON file to write")("json", "print a JSON summary on stdout");
   po::variables_map vm;
-  if (int rc = ParseMapFlags(argc, argv, "coverage", desc, &vm); rc >= 0) return rc;
+  if (int rc = ParseFlags(argc, argv, "coverage", desc, &vm); rc >= 0) return rc;
   if (map_dir.empty() || out.empty()) return Fail("coverage needs --map MAPDIR and --out FILE", 2);
   auto j = sightfix::CoverageGeoJson(map_dir);
   if (!j.ok()) return Fail(j.status().ToString(), 2);
@@ -451,7 +434,7 @@ int Retrain(int argc, char** argv) {
       "jobs", po::value(&o.jobs)->default_value(0), "worker threads (0 = all cores)")(
       "quiet", "no progress on stderr")("json", "print the summary as JSON on stdout");
   po::variables_map vm;
-  if (int rc = ParseMapFlags(argc, argv, "retrain", desc, &vm); rc >= 0) return rc;
+  if (int rc = ParseFlags(argc, argv, "retrain", desc, &vm); rc >= 0) return rc;
   if (o.map_dir.empty()) return Fail("retrain needs --map MAPDIR", 2);
   o.progress = vm.count("quiet") == 0;
   sightfix::Result<sightfix::BuildSummary> s = sightfix::RetrainMap(o);

@@ -9,13 +9,9 @@
 // not at all. The plan id is the SHA-256 of the plan's content: a new plan never mixes with the
 // shards of an old one.
 #include <faiss/index_io.h>
-#include <fcntl.h>
-#include <unistd.h>
 
 #include <algorithm>
-#include <cerrno>
 #include <cmath>
-#include <cstring>
 #include <filesystem>
 #include <map>
 #include <opencv2/imgcodecs.hpp>
@@ -49,44 +45,9 @@ std::string ShardName(int shard, int shards) {
   return "shard-" + std::to_string(shard) + "-of-" + std::to_string(shards) + ".json";
 }
 
-// Writes bytes to path through a temporary file, fsync and rename.
-Status WriteFileAtomically(const fs::path& path, const void* data, size_t size) {
-  std::error_code ec;
-  fs::create_directories(path.parent_path(), ec);
-  const std::string tmp = path.string() + ".tmp." + std::to_string(::getpid());
-  const int fd = ::open(tmp.c_str(), O_WRONLY | O_CREAT | O_TRUNC | O_CLOEXEC, 0644);
-  if (fd < 0) return Status::IoError("cannot create " + tmp + ": " + std::strerror(errno));
-  const char* p = static_cast<const char*>(data);
-  size_t left = size;
-  while (left > 0) {
-    const ssize_t n = ::write(fd, p, left);
-    if (n < 0 && errno == EINTR) continue;
-    if (n <= 0) {
-      const std::string why = std::strerror(errno);
-      ::close(fd);
-      fs::remove(tmp, ec);
-      return Status::IoError("cannot write " + tmp + ": " + why);
-    }
-    p += n;
-    left -= static_cast<size_t>(n);
-  }
-  const bool synced = ::fsync(fd) == 0;
-  ::close(fd);
-  if (!synced) {
-    fs::remove(tmp, ec);
-    return Status::IoError("fsync failed on " + tmp);
-  }
-  fs::rename(tmp, path, ec);
-  if (ec) {
-    fs::remove(tmp, ec);
-    return Status::IoError("cannot rename " + tmp + " to " + path.string());
-  }
-  return Status::Ok();
-}
-
 Status WriteJson(const fs::path& path, const json& j) {
   const std::string text = j.dump(1) + "\n";
-  return WriteFileAtomically(path, text.data(), text.size());
+  return WriteFileAtomically(path.string(), text.data(), text.size());
 }
 
 Result<json> ReadJson(const fs::path& path, const std::string& what) {
@@ -136,10 +97,6 @@ Result<Survey> ReadRows(const BuildOptions& o, std::string* input_format,
   return s;
 }
 
-std::string Where(const Survey& s, size_t i) {
-  return s.origin.size() > i && !s.origin[i].empty() ? s.origin[i] + ": " : "";
-}
-
 // Features already extracted in this process (BuildMap), by image name.
 using FeatureCache = std::map<std::string, LocalFeatures>;
 
@@ -184,7 +141,8 @@ Result<TrainSummary> TrainImpl(const BuildOptions& o, FeatureCache* cache) {
   summary.model_id = Sha256Hex(blob).substr(0, 16);
   summary.codec = model->codec_name();
   summary.model_file = ModelFile(o.map_dir).string();
-  if (Status st = WriteFileAtomically(ModelFile(o.map_dir), blob.data(), blob.size()); !st.ok())
+  if (Status st = WriteFileAtomically(ModelFile(o.map_dir).string(), blob.data(), blob.size());
+      !st.ok())
     return st;
   const json info{{"model_id", summary.model_id},
                   {"codec", summary.codec},
@@ -351,7 +309,8 @@ Result<json> PlanImpl(const BuildOptions& o, int shards, PlanSummary* summary) {
             {"rows", rows},
             {"skipped", summary->skipped},
             {"jobs", jobs}};
-  summary->plan_id = Sha256Hex(plan.dump().data(), plan.dump().size()).substr(0, 16);
+  const std::string content = plan.dump();
+  summary->plan_id = Sha256Hex(content.data(), content.size()).substr(0, 16);
   plan["plan_id"] = summary->plan_id;
   summary->images = static_cast<int>(s->rows.size());
   summary->tiles = static_cast<int>(keys.size());
@@ -565,6 +524,8 @@ Result<ShardSummary> BuildTilesImpl(const Plan& plan, int shard, int shards, int
       tiles.push_back(entry);
       continue;
     }
+    // Every row is encoded, context frames too: FAISS's PCA runs one sgemm over the batch and
+    // its last bits depend on the batch, so encoding only the tile's own rows changes its codes.
     const cv::Mat codes = EncodeAll(staged->model, s);
     const EnuFrame enu(s.rows[0].position);
     BuildSummary tile_summary;
