@@ -20,6 +20,7 @@
 #include "indexer/geoid.h"
 #include "indexer/iso_time.h"
 #include "indexer/progress.h"
+#include "indexer/threads.h"
 
 namespace sightfix::demo {
 namespace fs = std::filesystem;
@@ -408,7 +409,7 @@ Result<DemoSummary> GenerateDemoTown(const DemoOptions& o) {
   std::string error;
   if (!o.Validate(&error)) return Status::InvalidArgument(error);
   const auto t_start = std::chrono::steady_clock::now();
-  cv::setNumThreads(1);  // we parallelise across images ourselves
+  PinLibraryThreads();  // we parallelise across images ourselves
   TownOptions town_options;
   town_options.seed = o.seed;
   town_options.route_length_m = o.route_length_m;

@@ -5,11 +5,11 @@
 #include <fstream>
 #include <iostream>
 #include <nlohmann/json.hpp>
-#include <opencv2/core/utility.hpp>
 #include <string>
 
 #include "indexer/map_builder.h"
 #include "indexer/map_inspect.h"
+#include "indexer/threads.h"
 
 namespace po = boost::program_options;
 
@@ -472,7 +472,7 @@ void Usage() {
 }  // namespace
 
 int main(int argc, char** argv) {
-  cv::setNumThreads(1);  // DEVELOPERS.md, Threads: we parallelise across images ourselves
+  sightfix::PinLibraryThreads();  // DEVELOPERS.md, Threads: we parallelise across images ourselves
   if (argc < 2 || std::string(argv[1]) == "--help" || std::string(argv[1]) == "-h") {
     Usage();
     return argc < 2 ? 2 : 0;
