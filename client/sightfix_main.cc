@@ -20,6 +20,7 @@
 #include "client/route_eval.h"
 #include "client/route_report.h"
 #include "indexer/camera_model.h"
+#include "indexer/crash_report.h"
 #include "indexer/geo.h"
 #include "indexer/local_features.h"
 #include "indexer/progress.h"
@@ -599,6 +600,7 @@ void Usage() {
 }  // namespace
 
 int main(int argc, char** argv) {
+  sightfix::InstallCrashReport("sightfix");
   sightfix::PinLibraryThreads();
   if (argc < 2 || std::string(argv[1]) == "--help" || std::string(argv[1]) == "-h") {
     Usage();

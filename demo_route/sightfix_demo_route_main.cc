@@ -5,10 +5,12 @@
 #include <nlohmann/json.hpp>
 
 #include "demo_route/demo_town.h"
+#include "indexer/crash_report.h"
 
 namespace po = boost::program_options;
 
 int main(int argc, char** argv) {
+  sightfix::InstallCrashReport("sightfix-demo-route");
   sightfix::demo::DemoOptions o;
   std::string exports;
   std::string size = "640x480";

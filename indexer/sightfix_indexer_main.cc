@@ -7,6 +7,7 @@
 #include <nlohmann/json.hpp>
 #include <string>
 
+#include "indexer/crash_report.h"
 #include "indexer/map_builder.h"
 #include "indexer/map_inspect.h"
 #include "indexer/threads.h"
@@ -472,6 +473,7 @@ void Usage() {
 }  // namespace
 
 int main(int argc, char** argv) {
+  sightfix::InstallCrashReport("sightfix-indexer");
   sightfix::PinLibraryThreads();  // DEVELOPERS.md, Threads: we parallelise across images ourselves
   if (argc < 2 || std::string(argv[1]) == "--help" || std::string(argv[1]) == "-h") {
     Usage();

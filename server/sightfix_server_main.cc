@@ -3,12 +3,14 @@
 #include <cstdio>
 #include <iostream>
 
+#include "indexer/crash_report.h"
 #include "indexer/threads.h"
 #include "server/service.h"
 
 namespace po = boost::program_options;
 
 int main(int argc, char** argv) {
+  sightfix::InstallCrashReport("sightfix-server");
   sightfix::PinLibraryThreads();
   sightfix::ServiceOptions o;
   size_t cache_mb = o.engine.tile_cache_bytes >> 20;
