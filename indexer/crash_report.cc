@@ -16,6 +16,7 @@
 #endif
 
 namespace sightfix {
+#ifndef SIGHTFIX_SANITIZED
 namespace {
 
 const char* g_program = "sightfix";
@@ -70,6 +71,7 @@ void OnFatalSignal(int sig) {
 }
 
 }  // namespace
+#endif
 
 void InstallCrashReport(const char* program) {
 #ifndef SIGHTFIX_SANITIZED
