@@ -406,10 +406,19 @@ int main(int argc, char** argv) {
     qout.write(reinterpret_cast<const char*>(queries.vectors.ptr<float>()),
                static_cast<std::streamsize>(queries.vectors.total() * sizeof(float)));
   }
-  const std::string self = fs::read_symlink("/proc/self/exe").string();
-  const std::string cmd = self + " --serve " + index_file + " --query-file " + qfile + " --dims " +
-                          std::to_string(dims) + " --rerank " + std::to_string(rerank) + " --out " +
-                          out;
+  std::string self = fs::read_symlink("/proc/self/exe").string();
+  // Rebuilt while this ran: the kernel names the old file "... (deleted)"; the new one serves.
+  const std::string deleted = " (deleted)";
+  if (self.size() > deleted.size() && self.rfind(deleted) == self.size() - deleted.size())
+    self.resize(self.size() - deleted.size());
+  auto quoted = [](const std::string& s) {  // for /bin/sh: '...' with ' written as '\''
+    std::string q = "'";
+    for (char c : s) q += c == '\'' ? std::string("'\\''") : std::string(1, c);
+    return q + "'";
+  };
+  const std::string cmd = quoted(self) + " --serve " + quoted(index_file) + " --query-file " +
+                          quoted(qfile) + " --dims " + std::to_string(dims) + " --rerank " +
+                          std::to_string(rerank) + " --out " + quoted(out);
   if (std::system(cmd.c_str()) != 0) return std::fprintf(stderr, "the serving process failed\n"), 1;
   std::ifstream served_in(out + "/served.json");
   const json served = json::parse(served_in);
