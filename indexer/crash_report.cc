@@ -7,14 +7,6 @@
 #include <cstring>
 #include <initializer_list>
 
-#if defined(__SANITIZE_ADDRESS__) || defined(__SANITIZE_THREAD__)
-#define SIGHTFIX_SANITIZED 1
-#elif defined(__has_feature)
-#if __has_feature(address_sanitizer) || __has_feature(thread_sanitizer)
-#define SIGHTFIX_SANITIZED 1
-#endif
-#endif
-
 namespace sightfix {
 #ifndef SIGHTFIX_SANITIZED
 namespace {

@@ -7,6 +7,15 @@
 // reports are better.
 #pragma once
 
+// Defined in AddressSanitizer and ThreadSanitizer builds (gcc and clang spell it differently).
+#if defined(__SANITIZE_ADDRESS__) || defined(__SANITIZE_THREAD__)
+#define SIGHTFIX_SANITIZED 1
+#elif defined(__has_feature)
+#if __has_feature(address_sanitizer) || __has_feature(thread_sanitizer)
+#define SIGHTFIX_SANITIZED 1
+#endif
+#endif
+
 namespace sightfix {
 
 void InstallCrashReport(const char* program);

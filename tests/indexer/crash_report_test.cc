@@ -18,14 +18,6 @@ volatile uintptr_t g_nowhere = 0;  // opaque to the optimiser: a real fault, not
 
 namespace {
 
-#if defined(__SANITIZE_ADDRESS__) || defined(__SANITIZE_THREAD__)
-#define SIGHTFIX_SANITIZED 1
-#elif defined(__has_feature)
-#if __has_feature(address_sanitizer) || __has_feature(thread_sanitizer)
-#define SIGHTFIX_SANITIZED 1
-#endif
-#endif
-
 TEST(CrashReport, NamesTheSignalAndTheStackThenDiesOfIt) {
 #ifdef SIGHTFIX_SANITIZED
   GTEST_SKIP() << "sanitizer builds keep the sanitizer's own report";
