@@ -44,6 +44,10 @@ class ChildProcess {
   ~ChildProcess() { Stop(SIGKILL); }
   bool Start(const std::vector<std::string>& argv, const std::string& log) {
     log_ = log;
+    // Emptied before the fork: the child truncates it too, but only after the parent may have
+    // read it, and a log left in the temp folder by an earlier run with the same name would
+    // then pass for this child's (a CI run read a stale "serving" line that way).
+    std::ofstream(log_, std::ios::trunc).flush();
     pid_ = ::fork();
     if (pid_ == 0) {
       FILE* f = std::freopen(log_.c_str(), "w", stderr);
