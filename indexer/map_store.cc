@@ -124,6 +124,23 @@ Status FsyncFile(const std::string& path) {
   return rc == 0 ? Status::Ok() : Status::IoError("fsync failed on " + path);
 }
 
+// The last step of both atomic writers: TMP made durable, then renamed onto PATH (TMP removed
+// on failure).
+Status FsyncAndRename(const std::string& tmp, const std::string& path) {
+  std::error_code ec;
+  if (Status s = FsyncFile(tmp); !s.ok()) {
+    fs::remove(tmp, ec);
+    return s;
+  }
+  fs::rename(tmp, path, ec);
+  if (ec) {
+    const std::string why = ec.message();
+    fs::remove(tmp, ec);
+    return Status::IoError("cannot rename " + tmp + ": " + why);
+  }
+  return Status::Ok();
+}
+
 // Runs write(db) on PATH.tmp inside one transaction, then fsync and rename onto PATH.
 template <typename Fn>
 Status WriteAtomically(const std::string& path, Fn write) {
@@ -143,17 +160,7 @@ Status WriteAtomically(const std::string& path, Fn write) {
       return s;
     }
   }
-  if (Status s = FsyncFile(tmp); !s.ok()) {
-    fs::remove(tmp, ec);
-    return s;
-  }
-  fs::rename(tmp, path, ec);
-  if (ec) {
-    const std::string why = ec.message();
-    fs::remove(tmp, ec);
-    return Status::IoError("cannot rename " + tmp + ": " + why);
-  }
-  return Status::Ok();
+  return FsyncAndRename(tmp, path);
 }
 
 }  // namespace
@@ -171,17 +178,7 @@ Status WriteFileAtomically(const std::string& path, const void* data, size_t siz
       return Status::IoError("cannot write " + tmp);
     }
   }
-  if (Status s = FsyncFile(tmp); !s.ok()) {
-    fs::remove(tmp, ec);
-    return s;
-  }
-  fs::rename(tmp, path, ec);
-  if (ec) {
-    const std::string why = ec.message();
-    fs::remove(tmp, ec);
-    return Status::IoError("cannot rename " + tmp + ": " + why);
-  }
-  return Status::Ok();
+  return FsyncAndRename(tmp, path);
 }
 
 namespace {
