@@ -14,13 +14,13 @@
 
 #include "demo_route/drive_plan.h"
 #include "demo_route/town_renderer.h"
-#include "indexer/drive_manifest.h"
-#include "indexer/exif_gps.h"
-#include "indexer/geo.h"
-#include "indexer/geoid.h"
-#include "indexer/iso_time.h"
-#include "indexer/progress.h"
-#include "indexer/threads.h"
+#include "indexer/map/drive_manifest.h"
+#include "indexer/builder/exif_gps.h"
+#include "indexer/base/geo.h"
+#include "indexer/builder/geoid.h"
+#include "indexer/base/iso_time.h"
+#include "indexer/base/progress.h"
+#include "indexer/base/threads.h"
 
 namespace sightfix::demo {
 namespace fs = std::filesystem;

@@ -7,7 +7,7 @@
 #include <string>
 #include <vector>
 
-#include "indexer/status.h"
+#include "indexer/base/status.h"
 
 namespace sightfix::demo {
 

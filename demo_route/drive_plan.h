@@ -11,7 +11,7 @@
 
 #include "demo_route/random.h"
 #include "demo_route/town_layout.h"
-#include "indexer/rotation.h"
+#include "indexer/base/rotation.h"
 
 namespace sightfix::demo {
 

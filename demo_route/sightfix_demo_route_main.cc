@@ -5,7 +5,7 @@
 #include <nlohmann/json.hpp>
 
 #include "demo_route/demo_town.h"
-#include "indexer/crash_report.h"
+#include "indexer/base/crash_report.h"
 
 namespace po = boost::program_options;
 

@@ -15,7 +15,7 @@
 
 #include "demo_route/town_layout.h"
 #include "demo_route/town_painter.h"
-#include "indexer/camera_model.h"
+#include "indexer/map/camera_model.h"
 
 namespace sightfix::demo {
 

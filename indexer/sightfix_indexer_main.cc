@@ -7,10 +7,10 @@
 #include <nlohmann/json.hpp>
 #include <string>
 
-#include "indexer/crash_report.h"
-#include "indexer/map_builder.h"
-#include "indexer/map_inspect.h"
-#include "indexer/threads.h"
+#include "indexer/base/crash_report.h"
+#include "indexer/builder/map_builder.h"
+#include "indexer/map/map_inspect.h"
+#include "indexer/base/threads.h"
 
 namespace po = boost::program_options;
 

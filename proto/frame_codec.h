@@ -7,7 +7,7 @@
 #include <cstdint>
 #include <string>
 
-#include "indexer/status.h"
+#include "indexer/base/status.h"
 #include "proto/sightfix.pb.h"
 
 namespace sightfix {

@@ -1,11 +1,11 @@
-// sightfix-server: the localization engine behind a socket (server/service.h).
+// sightfix-server: the localization engine behind a socket (server/service/service.h).
 #include <boost/program_options.hpp>
 #include <cstdio>
 #include <iostream>
 
-#include "indexer/crash_report.h"
-#include "indexer/threads.h"
-#include "server/service.h"
+#include "indexer/base/crash_report.h"
+#include "indexer/base/threads.h"
+#include "server/service/service.h"
 
 namespace po = boost::program_options;
 

@@ -25,10 +25,10 @@
 #include <opencv2/imgcodecs.hpp>
 #include <random>
 
-#include "client/route_eval.h"
-#include "indexer/global_descriptor.h"
-#include "indexer/map_store.h"
-#include "indexer/threads.h"
+#include "client/eval/route_eval.h"
+#include "indexer/vision/global_descriptor.h"
+#include "indexer/map/map_store.h"
+#include "indexer/base/threads.h"
 
 namespace po = boost::program_options;
 namespace fs = std::filesystem;

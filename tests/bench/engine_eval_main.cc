@@ -1,5 +1,5 @@
 // engine_eval: replays query drives through the in-process engine and prints the route metrics
-// (client/route_eval.h). A developer tool for calibration, the structure-versus-pair comparison
+// (client/eval/route_eval.h). A developer tool for calibration, the structure-versus-pair comparison
 // and scripts/bench.sh; evaluators get `sightfix replay` (the evaluator issue).
 //
 // Usage: engine_eval --map MAPDIR --drive QUERYDIR [--drive ...] [--prior none|noisy]
@@ -10,8 +10,8 @@
 #include <fstream>
 #include <iostream>
 
-#include "client/route_eval.h"
-#include "indexer/threads.h"
+#include "client/eval/route_eval.h"
+#include "indexer/base/threads.h"
 
 namespace po = boost::program_options;
 

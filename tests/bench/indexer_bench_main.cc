@@ -20,10 +20,10 @@
 #include <opencv2/imgcodecs.hpp>
 #include <opencv2/core.hpp>
 
-#include "indexer/drive_manifest.h"
-#include "indexer/geo.h"
-#include "indexer/map_builder.h"
-#include "indexer/threads.h"
+#include "indexer/map/drive_manifest.h"
+#include "indexer/base/geo.h"
+#include "indexer/builder/map_builder.h"
+#include "indexer/base/threads.h"
 
 namespace po = boost::program_options;
 namespace fs = std::filesystem;

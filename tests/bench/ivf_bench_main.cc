@@ -1,4 +1,4 @@
-// ivf_bench: the map-wide IVF-PQ index (indexer/ivf_index.h) at a million images, against exact
+// ivf_bench: the map-wide IVF-PQ index (indexer/map/ivf_index.h) at a million images, against exact
 // search, on descriptors of the demo town (scripts/bench.sh; not a test, it prints).
 //
 // Data. Database: the whitened global descriptors (VLAD over RootSIFT, PCA-whitened, the map's
@@ -43,14 +43,14 @@
 #include <random>
 #include <sstream>
 
-#include "indexer/drive_manifest.h"
-#include "indexer/geo.h"
-#include "indexer/global_descriptor.h"
-#include "indexer/ivf_index.h"
-#include "indexer/local_features.h"
-#include "indexer/map_store.h"
-#include "indexer/parallel.h"
-#include "indexer/threads.h"
+#include "indexer/map/drive_manifest.h"
+#include "indexer/base/geo.h"
+#include "indexer/vision/global_descriptor.h"
+#include "indexer/map/ivf_index.h"
+#include "indexer/vision/local_features.h"
+#include "indexer/map/map_store.h"
+#include "indexer/base/parallel.h"
+#include "indexer/base/threads.h"
 
 namespace po = boost::program_options;
 namespace fs = std::filesystem;

@@ -9,12 +9,12 @@
 #include <iostream>
 #include <thread>
 
-#include "client/client.h"
-#include "client/route_eval.h"
-#include "indexer/drive_manifest.h"
-#include "indexer/threads.h"
-#include "server/service.h"
-#include "server/wire.h"
+#include "client/api/client.h"
+#include "client/eval/route_eval.h"
+#include "indexer/map/drive_manifest.h"
+#include "indexer/base/threads.h"
+#include "server/service/service.h"
+#include "server/wire/wire.h"
 
 namespace po = boost::program_options;
 using Clock = std::chrono::steady_clock;

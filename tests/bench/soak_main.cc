@@ -16,10 +16,10 @@
 #include <random>
 #include <thread>
 
-#include "client/client.h"
-#include "indexer/drive_manifest.h"
+#include "client/api/client.h"
+#include "indexer/map/drive_manifest.h"
 #include "proto/frame_codec.h"
-#include "server/wire.h"
+#include "server/wire/wire.h"
 
 namespace po = boost::program_options;
 namespace asio = boost::asio;

@@ -1,11 +1,11 @@
-// The evaluator's metrics (client/route_eval.h) against a hand-worked example, and summary.json
+// The evaluator's metrics (client/eval/route_eval.h) against a hand-worked example, and summary.json
 // against the key list of DESIGN.md 7. Every expected value below is worked out by hand in the
 // comments from the table of six queries.
 #include <gtest/gtest.h>
 
-#include "client/route_eval.h"
-#include "client/route_report.h"
-#include "indexer/geo.h"
+#include "client/eval/route_eval.h"
+#include "client/eval/route_report.h"
+#include "indexer/base/geo.h"
 
 namespace sightfix {
 namespace {

@@ -1,6 +1,6 @@
-// The GNSS spoofing monitor (client/spoofing_monitor.h): the NIS and the CUSUM rule against hand
+// The GNSS spoofing monitor (client/monitor/spoofing_monitor.h): the NIS and the CUSUM rule against hand
 // computations, alarm scoring, and the detection study over seeded synthetic drives.
-#include "client/spoofing_monitor.h"
+#include "client/monitor/spoofing_monitor.h"
 
 #include <gtest/gtest.h>
 
@@ -8,7 +8,7 @@
 #include <cstdio>
 #include <random>
 
-#include "indexer/geo.h"
+#include "indexer/base/geo.h"
 
 namespace sightfix {
 namespace {

@@ -7,7 +7,7 @@
 
 #include "demo_route/town_layout.h"
 #include "demo_route/town_renderer.h"
-#include "indexer/rotation.h"
+#include "indexer/base/rotation.h"
 
 namespace sightfix::demo {
 namespace {

@@ -1,8 +1,8 @@
 // libFuzzer target: a calibration file (OpenCV FileStorage YAML, pinhole or fisheye), read as the
-// indexer reads it (indexer/yaml_file.h). Invariant: a calibration that loads is valid.
+// indexer reads it (indexer/map/yaml_file.h). Invariant: a calibration that loads is valid.
 #include <cmath>
 
-#include "indexer/camera_model.h"
+#include "indexer/map/camera_model.h"
 #include "tests/fuzz/fuzz_input.h"
 
 extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {

@@ -3,7 +3,7 @@
 // line numbers match the rows.
 #include <cmath>
 
-#include "indexer/drive_manifest.h"
+#include "indexer/map/drive_manifest.h"
 #include "tests/fuzz/fuzz_input.h"
 
 extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {

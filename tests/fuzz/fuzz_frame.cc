@@ -6,7 +6,7 @@
 #include <cstring>
 
 #include "proto/frame_codec.h"
-#include "server/wire.h"
+#include "server/wire/wire.h"
 #include "tests/fuzz/fuzz_input.h"
 
 extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {

@@ -2,7 +2,7 @@
 // just past its end. Invariants: times increase; a sample is finite and in range.
 #include <cmath>
 
-#include "indexer/gpx_track.h"
+#include "indexer/builder/gpx_track.h"
 #include "tests/fuzz/fuzz_input.h"
 
 extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {

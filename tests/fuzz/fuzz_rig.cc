@@ -4,7 +4,7 @@
 // positions in range.
 #include <cmath>
 
-#include "indexer/rig.h"
+#include "indexer/builder/rig.h"
 #include "tests/fuzz/fuzz_input.h"
 
 namespace {

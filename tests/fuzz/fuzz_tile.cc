@@ -3,8 +3,8 @@
 // per point id, point ids within the points, camera ids within the cameras).
 // The retrieval index blob is not parsed here: FAISS's reader is not hardened against hostile
 // bytes, so the server and the indexer only hand it files whose SHA-256 matches the catalog
-// (server/tile_cache.h, indexer/map_builder.cc).
-#include "indexer/map_store.h"
+// (server/engine/tile_cache.h, indexer/builder/map_builder.cc).
+#include "indexer/map/map_store.h"
 #include "tests/fuzz/fuzz_input.h"
 
 extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {

@@ -9,7 +9,7 @@
 #include <fstream>
 #include <opencv2/imgcodecs.hpp>
 
-#include "indexer/map_store.h"
+#include "indexer/map/map_store.h"
 #include "proto/frame_codec.h"
 
 namespace fs = std::filesystem;

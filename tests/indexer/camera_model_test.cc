@@ -1,4 +1,4 @@
-#include "indexer/camera_model.h"
+#include "indexer/map/camera_model.h"
 
 #include <gtest/gtest.h>
 

@@ -1,6 +1,6 @@
 // A fatal signal prints the program, the signal and a stack, then still ends the process by that
 // signal (so CTest, shells and core dumps see what they would without the report).
-#include "indexer/crash_report.h"
+#include "indexer/base/crash_report.h"
 
 #include <gtest/gtest.h>
 #include <signal.h>

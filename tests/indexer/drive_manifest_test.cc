@@ -1,10 +1,10 @@
-#include "indexer/drive_manifest.h"
+#include "indexer/map/drive_manifest.h"
 
 #include <gtest/gtest.h>
 
 #include <fstream>
 
-#include "indexer/iso_time.h"
+#include "indexer/base/iso_time.h"
 
 namespace sightfix {
 namespace {

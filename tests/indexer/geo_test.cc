@@ -1,4 +1,4 @@
-#include "indexer/geo.h"
+#include "indexer/base/geo.h"
 
 #include <gtest/gtest.h>
 

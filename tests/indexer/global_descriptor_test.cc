@@ -3,7 +3,7 @@
 // drive images (never trained on) as queries. Recall@1: the top-ranked survey frame lies within
 // 25 m of the query's true position (Arandjelovic et al., NetVLAD, CVPR 2016; Torii et al. 2013).
 // Goal (map-and-engine issue): PQ recall@1 >= 0.95 of exact.
-#include "indexer/global_descriptor.h"
+#include "indexer/vision/global_descriptor.h"
 
 #include <faiss/IndexFlat.h>
 #include <gtest/gtest.h>
@@ -12,9 +12,9 @@
 #include <opencv2/imgcodecs.hpp>
 
 #include "demo_route/demo_town.h"
-#include "indexer/drive_manifest.h"
-#include "indexer/geo.h"
-#include "indexer/local_features.h"
+#include "indexer/map/drive_manifest.h"
+#include "indexer/base/geo.h"
+#include "indexer/vision/local_features.h"
 
 namespace sightfix {
 namespace {

@@ -12,14 +12,14 @@
 #include <opencv2/features2d.hpp>
 #include <opencv2/imgcodecs.hpp>
 
-#include "indexer/camera_model.h"
-#include "indexer/exif_gps.h"
-#include "indexer/geoid.h"
-#include "indexer/gpx_track.h"
-#include "indexer/iso_time.h"
-#include "indexer/local_features.h"
-#include "indexer/rig.h"
-#include "indexer/survey_source.h"
+#include "indexer/map/camera_model.h"
+#include "indexer/builder/exif_gps.h"
+#include "indexer/builder/geoid.h"
+#include "indexer/builder/gpx_track.h"
+#include "indexer/base/iso_time.h"
+#include "indexer/vision/local_features.h"
+#include "indexer/builder/rig.h"
+#include "indexer/builder/survey_source.h"
 
 namespace sightfix {
 namespace {

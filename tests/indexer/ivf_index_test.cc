@@ -1,7 +1,7 @@
 // The map-wide IVF-PQ index (ivf_index.h): shards merged into on-disk lists give exactly the
 // index one process would build; its answers against exact search (FAISS IndexFlatL2, the
 // reference); errors name what is wrong.
-#include "indexer/ivf_index.h"
+#include "indexer/map/ivf_index.h"
 
 #include <faiss/IndexFlat.h>
 #include <gtest/gtest.h>

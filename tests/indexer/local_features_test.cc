@@ -1,4 +1,4 @@
-#include "indexer/local_features.h"
+#include "indexer/vision/local_features.h"
 
 #include <gtest/gtest.h>
 

@@ -1,6 +1,6 @@
 // Tile and catalog files: what is written is read back whole; damaged files are refused with a
 // message naming the file; writes leave no temporary file behind.
-#include "indexer/map_store.h"
+#include "indexer/map/map_store.h"
 
 #include <gtest/gtest.h>
 

@@ -1,4 +1,4 @@
-#include "indexer/rotation.h"
+#include "indexer/base/rotation.h"
 
 #include <gtest/gtest.h>
 

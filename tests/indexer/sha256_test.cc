@@ -1,6 +1,6 @@
 // SHA-256 against the FIPS 180-2 appendix examples (also NIST's "SHA256.pdf" example values):
 // "abc", the 448-bit two-block message, and one million 'a'.
-#include "indexer/sha256.h"
+#include "indexer/base/sha256.h"
 
 #include <gtest/gtest.h>
 

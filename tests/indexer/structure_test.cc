@@ -5,14 +5,14 @@
 // the chi-square 3 dof 95 % point of the NIST/SEMATECH e-Handbook table 1.3.6.7.4); with
 // survey poses perturbed by 2 cm / 0.05 deg (RTK-grade, common practice), bundle adjustment
 // brings the camera centres closer to the truth than the priors were.
-#include "indexer/structure.h"
+#include "indexer/builder/structure.h"
 
 #include <gtest/gtest.h>
 
 #include <opencv2/calib3d.hpp>
 #include <random>
 
-#include "indexer/rotation.h"
+#include "indexer/base/rotation.h"
 
 namespace sightfix {
 namespace {

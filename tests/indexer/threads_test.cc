@@ -3,7 +3,7 @@
 // re-initialises one global tbb::task_arena without a lock (OpenCV modules/core/src/parallel.cpp),
 // so calling it from four threads at once crashed a test process every time here (5 of 5 runs,
 // SIGSEGV); a service test died that way once in CI. PinLibraryThreads must survive it.
-#include "indexer/threads.h"
+#include "indexer/base/threads.h"
 
 #include <gtest/gtest.h>
 #include <omp.h>
@@ -15,7 +15,7 @@
 #include <thread>
 #include <vector>
 
-#include "indexer/parallel.h"
+#include "indexer/base/parallel.h"
 
 namespace sightfix {
 namespace {

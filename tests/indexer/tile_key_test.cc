@@ -1,10 +1,10 @@
-#include "indexer/tile_key.h"
+#include "indexer/map/tile_key.h"
 
 #include <gtest/gtest.h>
 
 #include <set>
 
-#include "indexer/geo.h"
+#include "indexer/base/geo.h"
 
 namespace sightfix {
 namespace {

@@ -16,9 +16,9 @@
 #include <thread>
 #include <vector>
 
-#include "indexer/camera_model.h"
-#include "indexer/drive_manifest.h"
-#include "server/wire.h"
+#include "indexer/map/camera_model.h"
+#include "indexer/map/drive_manifest.h"
+#include "server/wire/wire.h"
 
 namespace sightfix::testing_processes {
 

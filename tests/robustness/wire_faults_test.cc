@@ -18,10 +18,10 @@
 #include <mutex>
 #include <thread>
 
-#include "client/client.h"
-#include "indexer/drive_manifest.h"
+#include "client/api/client.h"
+#include "indexer/map/drive_manifest.h"
 #include "proto/frame_codec.h"
-#include "server/wire.h"
+#include "server/wire/wire.h"
 #include "tests/lib/processes.h"
 
 namespace sightfix {

@@ -13,7 +13,7 @@
 #include <mutex>
 #include <regex>
 
-#include "client/client.h"
+#include "client/api/client.h"
 #include "tests/lib/processes.h"
 
 namespace sightfix {
@@ -46,7 +46,7 @@ struct Load {
         for (int i = 0; !stop; ++i) {
           const int p = phase;
           const uint64_t sent_before = (*client)->resent_calls();
-          Result<Fix> r = (*client)->Locate(Query(t * 7 + i), 20000);
+          Result<v1::Fix> r = (*client)->Locate(Query(t * 7 + i), 20000);
           resent_in[p] += static_cast<int>((*client)->resent_calls() - sent_before);
           if (r.ok()) {
             ++answered[p];

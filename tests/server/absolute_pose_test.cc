@@ -3,14 +3,14 @@
 // reported centre covariance is consistent over 200 seeded trials: mean NEES of 3 dof about 3
 // and about 95 % of trials under 7.815 (chi-square 3 dof, 95 %: NIST/SEMATECH e-Handbook
 // table 1.3.6.7.4).
-#include "server/absolute_pose.h"
+#include "server/engine/absolute_pose.h"
 
 #include <gtest/gtest.h>
 
 #include <opencv2/calib3d.hpp>
 #include <random>
 
-#include "indexer/rotation.h"
+#include "indexer/base/rotation.h"
 
 namespace sightfix {
 namespace {

@@ -1,5 +1,5 @@
 // radius95 against published tables and a simulation.
-#include "server/confidence.h"
+#include "server/engine/confidence.h"
 
 #include <gtest/gtest.h>
 

@@ -16,10 +16,10 @@
 #include <fstream>
 #include <opencv2/imgcodecs.hpp>
 
-#include "client/route_eval.h"
+#include "client/eval/route_eval.h"
 #include "demo_route/demo_town.h"
-#include "indexer/map_builder.h"
-#include "server/localizer.h"
+#include "indexer/builder/map_builder.h"
+#include "server/engine/localizer.h"
 
 namespace sightfix {
 namespace {

@@ -1,12 +1,12 @@
 // Two-view geometry against cv::projectPoints as reference: known scene, known poses.
-#include "server/relative_pose.h"
+#include "server/engine/relative_pose.h"
 
 #include <gtest/gtest.h>
 
 #include <opencv2/calib3d.hpp>
 #include <random>
 
-#include "indexer/rotation.h"
+#include "indexer/base/rotation.h"
 
 namespace sightfix {
 namespace {

@@ -5,9 +5,9 @@
 
 #include "demo_route/town_layout.h"
 #include "demo_route/town_renderer.h"
-#include "indexer/local_features.h"
-#include "indexer/rotation.h"
-#include "server/relative_pose.h"
+#include "indexer/vision/local_features.h"
+#include "indexer/base/rotation.h"
+#include "server/engine/relative_pose.h"
 
 namespace sightfix {
 namespace {

@@ -1,7 +1,7 @@
 // sightfix-server's service on loopback against a demo map (fixture: make_map.sh): the same fixes
 // as the in-process engine, and every kind of bad input answered with a clear status or the one
 // connection closed, while another client keeps being served.
-#include "server/service.h"
+#include "server/service/service.h"
 
 #include <gtest/gtest.h>
 
@@ -12,10 +12,10 @@
 #include <fstream>
 #include <thread>
 
-#include "client/client.h"
-#include "indexer/drive_manifest.h"
-#include "indexer/map_store.h"
-#include "server/wire.h"
+#include "client/api/client.h"
+#include "indexer/map/drive_manifest.h"
+#include "indexer/map/map_store.h"
+#include "server/wire/wire.h"
 
 namespace sightfix {
 namespace {
@@ -110,7 +110,7 @@ TEST_F(ServiceTest, SameFixesAsTheInProcessEngine) {
   int refined = 0;
   for (int row : {3, 10, 20}) {
     const v1::LocateRequest req = Query(row);
-    auto remote = client->Locate(req, 20000);
+    auto remote = FixFromProto(client->Locate(req, 20000));
     ASSERT_TRUE(remote.ok()) << remote.status().ToString();
     auto in_process_req = RequestFromProto(
         req, [](const std::string&) { return std::nullopt; }, 1 << 30);
@@ -387,7 +387,7 @@ TEST_F(ServiceTest, BadTileIsSkippedAndTheRestServes) {
   auto c = Connect();
   int answered = 0, refined = 0;
   for (int row : {2, 8, 14, 20, 26}) {
-    auto fix = c->Locate(Query(row), 20000);
+    auto fix = FixFromProto(c->Locate(Query(row), 20000));
     ASSERT_TRUE(fix.ok()) << fix.status().ToString();  // an answer, never a failure
     ++answered;
     refined += fix->quality == FixQuality::kRefined;

@@ -1,0 +1,73 @@
+// The client library for sightfix-server: one connection, many calls in flight on it, a
+// deadline per call. When the connection is lost (the server restarted, say) or the server
+// answers UNAVAILABLE (shutting down), a call is sent again on a new connection, with backoff,
+// as long as its deadline leaves time: all three methods are reads, safe to repeat. A call that
+// cannot be answered gets a kIoError saying so.
+// Several endpoints (replicas of one map, or load balancers): the client stays on one while it
+// answers and moves to the next in the list when its connection is lost, refused or the server
+// is draining; a new connection tries each endpoint in turn from there. Async calls return a
+// future; sync calls wait on it. Thread safety: every method may be called from any thread
+// concurrently.
+#pragma once
+
+#include <future>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "indexer/base/status.h"
+#include "proto/sightfix.pb.h"
+
+namespace sightfix {
+
+struct ClientOptions {
+  std::string host = "127.0.0.1";
+  int port = 7411;
+  // When not empty: HOST:PORT of each replica, in order of preference (host and port unused).
+  std::vector<std::string> endpoints;
+  std::string token;  // sent with every call when set; never logged
+  int connect_timeout_ms = 3000;
+  int retries =
+      10;  // extra attempts after a lost connection (idempotent calls), within the deadline
+  int retry_backoff_ms = 100;             // before the first retry; doubles each time, 2 s at most
+  uint32_t max_answer_bytes = 64u << 20;  // a longer answer frame closes the connection
+};
+
+// A call's answer: the envelope's status decides; the body is the method's response.
+struct Answer {
+  v1::Status::Code code = v1::Status::OK;
+  std::string message;
+  std::string body;
+};
+
+class Client {
+ public:
+  static Result<std::unique_ptr<Client>> Connect(const ClientOptions& options);
+  ~Client();
+
+  // The raw call. Result not OK only for transport failures (kIoError: cannot connect, lost
+  // connection after the retries; kInternal: deadline passed with no answer); a server's
+  // refusal comes back as an Answer with its code.
+  std::future<Result<Answer>> CallAsync(const std::string& method, const std::string& body,
+                                        int deadline_ms);
+  Result<Answer> Call(const std::string& method, const std::string& body, int deadline_ms);
+
+  // Typed forms: a non-OK answer becomes a Status naming the server's code and message. The fix
+  // comes as the wire's message (proto/sightfix.proto); an engine embedder converts it with
+  // FixFromProto (server/wire/wire.h).
+  Result<v1::Fix> Locate(const v1::LocateRequest& request, int deadline_ms);
+  Result<v1::DescribeResponse> Describe(int deadline_ms);
+  Result<v1::ListTilesResponse> ListTiles(int deadline_ms);
+
+  // Calls sent again so far (after a lost connection or an UNAVAILABLE answer).
+  uint64_t resent_calls() const;
+  // The endpoint ("HOST:PORT") the client is or was last connected to.
+  std::string endpoint() const;
+
+ private:
+  struct Impl;
+  explicit Client(std::unique_ptr<Impl> impl);
+  std::shared_ptr<Impl> impl_;
+};
+
+}  // namespace sightfix

@@ -1,0 +1,291 @@
+#include "client/eval/route_eval.h"
+
+#include <algorithm>
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+#include <filesystem>
+#include <fstream>
+#include <map>
+#include <numeric>
+#include <opencv2/imgcodecs.hpp>
+#include <random>
+
+#include "indexer/base/geo.h"
+#include "indexer/base/parallel.h"
+
+namespace sightfix {
+namespace {
+
+namespace fs = std::filesystem;
+
+// Recall@N's radius (Arandjelovic et al. 2016; Torii et al. 2013).
+constexpr double kRecallRadiusM = 25.0;
+// A refined fix further off than this is wrong (the map-and-engine issue's bound).
+constexpr double kWrongRefinedM = 5.0;
+
+// Prior circle centres, drawn before any query runs so they do not depend on thread timing.
+std::vector<PriorCircle> NoisyPriors(const std::vector<DriveRow>& rows, const RouteEvalOptions& o) {
+  std::mt19937_64 rng(o.seed);
+  auto uniform = [&] { return static_cast<double>(rng() >> 11) * 0x1.0p-53; };
+  std::vector<PriorCircle> priors;
+  for (const DriveRow& r : rows) {
+    const double dist = o.prior_max_offset_m * std::sqrt(uniform());  // uniform over the disc
+    const double azimuth = 360.0 * uniform();
+    const GeodesicDirect c = GeodesicFrom(r.position.lat_deg, r.position.lon_deg, azimuth, dist);
+    priors.push_back({c.lat_deg, c.lon_deg, o.prior_radius_m});
+  }
+  return priors;
+}
+
+// The prior of every query under the chosen mode (nullopt: none).
+Result<std::vector<std::optional<PriorCircle>>> Priors(const std::vector<DriveRow>& rows,
+                                                       const RouteEvalOptions& o) {
+  std::vector<std::optional<PriorCircle>> out(rows.size());
+  if (o.prior == PriorMode::kNoisy) {
+    const std::vector<PriorCircle> p = NoisyPriors(rows, o);
+    for (size_t i = 0; i < rows.size(); ++i) out[i] = p[i];
+  } else if (o.prior == PriorMode::kGnss) {
+    const std::string path =
+        o.gnss_csv.empty() ? (fs::path(o.drive_dir) / "gnss.csv").string() : o.gnss_csv;
+    Result<std::vector<GnssFix>> gnss = ReadGnssCsv(path);
+    if (!gnss.ok()) return gnss.status();
+    for (size_t i = 0; i < rows.size(); ++i)
+      if (std::optional<GnssFix> g = GnssAt(*gnss, rows[i].timestamp_s))
+        out[i] = PriorCircle{g->lat_deg, g->lon_deg, o.gnss_sigmas * g->sigma_h_m};
+  }
+  return out;
+}
+
+Result<std::string> ReadBytes(const fs::path& path) {
+  std::ifstream in(path, std::ios::binary);
+  if (!in) return Status::InvalidArgument("cannot read " + path.string());
+  return std::string((std::istreambuf_iterator<char>(in)), {});
+}
+
+// One query: the call, the gnss-mode retry, timing and scoring.
+void RunQuery(const LocateFn& locate, const RouteEvalOptions& o, const fs::path& dir,
+              const CameraModel& camera, const std::optional<PriorCircle>& prior,
+              QueryResult* q) {
+  q->ran = true;
+  q->prior = prior;
+  Result<std::string> bytes = ReadBytes(dir / q->truth.image);
+  if (!bytes.ok()) {
+    q->error = bytes.status().ToString();
+    return;
+  }
+  LocateRequest req;
+  req.camera = camera;
+  req.capture_time_s = q->truth.timestamp_s;
+  req.prior = prior;
+  const auto t0 = std::chrono::steady_clock::now();
+  Result<Fix> fix = locate(req, *bytes);
+  if (fix.ok() && fix->quality != FixQuality::kRefined && o.prior == PriorMode::kGnss &&
+      o.retry_without_prior && prior) {
+    req.prior.reset();
+    Result<Fix> again = locate(req, *bytes);
+    if (again.ok() && again->quality == FixQuality::kRefined) {
+      fix = std::move(again);
+      q->retried_without_prior = true;
+    }
+  }
+  q->latency_ms =
+      std::chrono::duration<double, std::milli>(std::chrono::steady_clock::now() - t0).count();
+  if (!fix.ok()) {
+    q->error = fix.status().ToString();
+    return;
+  }
+  q->fix = std::move(fix).value();
+  ScoreQuery(q);
+}
+
+ErrorStats Stats(const std::vector<const QueryResult*>& fixes) {
+  ErrorStats s;
+  s.n = static_cast<int>(fixes.size());
+  if (fixes.empty()) return s;
+  std::vector<double> errors, headings;
+  int covered = 0, with_nees = 0;
+  double nees = 0;
+  for (const QueryResult* q : fixes) {
+    errors.push_back(q->error_m);
+    headings.push_back(q->heading_error_deg);
+    covered += q->error_m <= q->fix.radius95_m;
+    if (q->nees >= 0) nees += q->nees, ++with_nees;
+  }
+  s.median_m = Percentile(errors, 0.5);
+  s.p90_m = Percentile(errors, 0.9);
+  s.p95_m = Percentile(errors, 0.95);
+  s.max_m = Percentile(errors, 1.0);
+  s.median_heading_deg = Percentile(headings, 0.5);
+  s.radius95_coverage = static_cast<double>(covered) / s.n;
+  s.nees_mean = with_nees ? nees / with_nees : 0;
+  return s;
+}
+
+}  // namespace
+
+void ScoreQuery(QueryResult* q) {
+  const Fix& f = q->fix;
+  for (size_t i = 0; i < f.references.size() && q->first_hit_rank < 0; ++i)
+    if (GeodesicBetween(q->truth.position.lat_deg, q->truth.position.lon_deg,
+                        f.references[i].lat_deg, f.references[i].lon_deg)
+            .distance_m <= kRecallRadiusM)
+      q->first_hit_rank = static_cast<int>(i) + 1;
+  if (f.quality == FixQuality::kNone) return;
+  const GeodesicInverse g =
+      GeodesicBetween(q->truth.position.lat_deg, q->truth.position.lon_deg, f.lat_deg, f.lon_deg);
+  q->error_m = g.distance_m;
+  q->heading_error_deg = std::fabs(WrapDeg180(f.heading_deg - q->truth.attitude.heading_deg));
+  if (cv::determinant(f.covariance_en) <= 0) return;
+  const double az = g.azimuth1_deg * M_PI / 180;  // error vector east/north
+  const cv::Vec2d e(g.distance_m * std::sin(az), g.distance_m * std::cos(az));
+  q->nees = NormalizedInnovationSquared(e, f.covariance_en);
+}
+
+LocateFn InProcess(const Localizer& localizer) {
+  return [&localizer](const LocateRequest& request, const std::string& bytes) -> Result<Fix> {
+    LocateRequest req = request;
+    req.image = cv::imdecode(cv::Mat(1, static_cast<int>(bytes.size()), CV_8U,
+                                     const_cast<char*>(bytes.data())),
+                             cv::IMREAD_GRAYSCALE);
+    if (req.image.empty()) return Status::InvalidArgument("cannot decode the image");
+    return localizer.Locate(req);
+  };
+}
+
+double Percentile(std::vector<double> v, double q) {
+  if (v.empty()) return 0;
+  std::sort(v.begin(), v.end());
+  const size_t rank = static_cast<size_t>(std::ceil(q * v.size()));
+  return v[std::clamp<size_t>(rank, 1, v.size()) - 1];
+}
+
+Result<std::vector<QueryResult>> RunDrive(const LocateFn& locate, const RouteEvalOptions& o) {
+  const fs::path dir(o.drive_dir);
+  Result<std::vector<DriveRow>> rows = ReadDriveManifest((dir / "drive.csv").string());
+  if (!rows.ok()) return rows.status();
+  std::vector<DriveRow> truth = std::move(rows).value();
+  if (o.limit > 0 && static_cast<int>(truth.size()) > o.limit) truth.resize(o.limit);
+  std::map<std::string, CameraModel> cameras;
+  for (const DriveRow& r : truth)
+    if (!cameras.count(r.camera)) {
+      Result<CameraModel> c = LoadCameraModel((dir / r.camera).string());
+      if (!c.ok()) return c.status();
+      cameras[r.camera] = *c;
+    }
+  Result<std::vector<std::optional<PriorCircle>>> priors = Priors(truth, o);
+  if (!priors.ok()) return priors.status();
+  std::vector<QueryResult> out(truth.size());
+  ParallelFor(static_cast<int>(truth.size()), ThreadCount(o.jobs), [&](int i) {
+    if (o.stop && o.stop->load()) return;
+    out[i].truth = truth[i];
+    RunQuery(locate, o, dir, cameras.at(truth[i].camera), (*priors)[i], &out[i]);
+    if (o.on_query_done) o.on_query_done();
+  });
+  return out;
+}
+
+Result<std::vector<QueryResult>> RunDrive(const Localizer& localizer, const RouteEvalOptions& o) {
+  return RunDrive(InProcess(localizer), o);
+}
+
+RouteSummary Summarize(const std::vector<QueryResult>& results) {
+  RouteSummary s;
+  std::vector<double> latency;
+  std::vector<const QueryResult*> fixes, refined;
+  int r1 = 0, r5 = 0, r10 = 0, b1 = 0, b2 = 0, b3 = 0;
+  for (const QueryResult& q : results) {
+    if (!q.ran) continue;
+    ++s.queries;
+    latency.push_back(q.latency_ms);
+    if (!q.error.empty()) ++s.failed_calls;
+    r1 += q.first_hit_rank >= 1 && q.first_hit_rank <= 1;
+    r5 += q.first_hit_rank >= 1 && q.first_hit_rank <= 5;
+    r10 += q.first_hit_rank >= 1 && q.first_hit_rank <= 10;
+    const FixQuality quality = q.fix.quality;
+    s.none += quality == FixQuality::kNone;
+    if (quality == FixQuality::kNone) continue;
+    fixes.push_back(&q);
+    b1 += q.error_m <= 0.25 && q.heading_error_deg <= 2;
+    b2 += q.error_m <= 0.5 && q.heading_error_deg <= 5;
+    b3 += q.error_m <= 5 && q.heading_error_deg <= 10;
+    if (quality == FixQuality::kCoarse) {
+      ++s.coarse;
+      continue;
+    }
+    refined.push_back(&q);
+    s.wrong_refined += q.error_m > kWrongRefinedM;
+  }
+  if (s.queries == 0) return s;
+  s.fixes = static_cast<int>(fixes.size());
+  s.refined = static_cast<int>(refined.size());
+  const double n = s.queries;
+  s.refined_share = s.refined / n;
+  s.availability = s.fixes / n;
+  s.recall_at_1 = r1 / n, s.recall_at_5 = r5 / n, s.recall_at_10 = r10 / n;
+  s.all = Stats(fixes);
+  const ErrorStats r = Stats(refined);
+  s.median_error_m = r.median_m, s.p90_error_m = r.p90_m, s.p95_error_m = r.p95_m;
+  s.max_error_m = r.max_m, s.median_heading_error_deg = r.median_heading_deg;
+  s.radius95_coverage = r.radius95_coverage, s.nees_mean = r.nees_mean;
+  s.within_0_25m_2deg = b1 / n, s.within_0_5m_5deg = b2 / n, s.within_5m_10deg = b3 / n;
+  s.latency_ms_p50 = Percentile(latency, 0.5);
+  s.latency_ms_p95 = Percentile(latency, 0.95);
+  s.latency_ms_p99 = Percentile(latency, 0.99);
+  return s;
+}
+
+std::string SummaryLine(const RouteSummary& s) {
+  char buf[512];
+  std::snprintf(buf, sizeof(buf),
+                "%d queries: refined %.1f %% (coarse %d, none %d); error median %.3f m, p90 %.3f "
+                "m, p95 %.3f m, max %.3f m; wrong refined %d; heading median %.2f deg; recall@1/5 "
+                "%.3f/%.3f; bins %.3f/%.3f/%.3f; radius95 coverage %.3f, NEES %.2f; latency p50 "
+                "%.0f ms, p95 %.0f ms",
+                s.queries, 100 * s.refined_share, s.coarse, s.none, s.median_error_m, s.p90_error_m,
+                s.p95_error_m, s.max_error_m, s.wrong_refined, s.median_heading_error_deg,
+                s.recall_at_1, s.recall_at_5, s.within_0_25m_2deg, s.within_0_5m_5deg,
+                s.within_5m_10deg, s.radius95_coverage, s.nees_mean, s.latency_ms_p50,
+                s.latency_ms_p95);
+  return buf;
+}
+
+SpoofingRun MonitorDrive(const std::vector<QueryResult>& results,
+                         const std::vector<GnssFix>& gnss, const std::vector<SpoofedSpan>& truth,
+                         const SpoofingMonitorOptions& options) {
+  std::vector<const QueryResult*> order;
+  for (const QueryResult& q : results)
+    if (q.ran && q.fix.quality == FixQuality::kRefined) order.push_back(&q);
+  std::sort(order.begin(), order.end(), [](const QueryResult* a, const QueryResult* b) {
+    return a->truth.timestamp_s < b->truth.timestamp_s;
+  });
+  SpoofingMonitor monitor(options);
+  SpoofingRun run;
+  for (const QueryResult* q : order) {
+    const std::optional<GnssFix> g = GnssAt(gnss, q->truth.timestamp_s);
+    if (!g) continue;
+    run.steps.push_back(monitor.Observe({g->time_s, g->lat_deg, g->lon_deg, g->sigma_h_m},
+                                        {q->truth.timestamp_s, q->fix.lat_deg, q->fix.lon_deg,
+                                         q->fix.covariance_en}));
+  }
+  // The replay may cover part of the drive (--limit, Ctrl-C): score the span it covered.
+  TimeSpan observed{HUGE_VAL, -HUGE_VAL};
+  for (const QueryResult& q : results)
+    if (q.ran)
+      observed = {std::min(observed.start_s, q.truth.timestamp_s),
+                  std::max(observed.end_s, q.truth.timestamp_s)};
+  std::vector<TimeSpan> spans;
+  for (const SpoofedSpan& s : truth)
+    if (s.span.start_s < observed.end_s && s.span.end_s > observed.start_s) {
+      run.scored.push_back(s);
+      spans.push_back(s.span);
+    }
+  std::sort(run.scored.begin(), run.scored.end(), [](const SpoofedSpan& a, const SpoofedSpan& b) {
+    return a.span.start_s < b.span.start_s;
+  });
+  if (observed.end_s < observed.start_s) observed = {};
+  run.score = ScoreAlarms(run.steps, spans, observed);
+  return run;
+}
+
+}  // namespace sightfix

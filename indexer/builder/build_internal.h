@@ -1,0 +1,90 @@
+// Pieces of the map builder shared by map_builder.cc (add, retrain) and staged_build.cc (build
+// and its scheduler steps). Not a public interface: only the indexer's own files include it.
+#pragma once
+
+#include <faiss/Index.h>
+
+#include <chrono>
+#include <nlohmann/json.hpp>
+#include <opencv2/core.hpp>
+#include <string>
+#include <vector>
+
+#include "indexer/map/camera_model.h"
+#include "indexer/map/drive_manifest.h"
+#include "indexer/base/geo.h"
+#include "indexer/vision/global_descriptor.h"
+#include "indexer/vision/local_features.h"
+#include "indexer/builder/map_builder.h"
+#include "indexer/map/map_store.h"
+#include "indexer/base/status.h"
+#include "indexer/builder/structure.h"
+#include "indexer/builder/survey_source.h"
+#include "indexer/map/tile_key.h"
+
+namespace sightfix::build_internal {
+
+using Clock = std::chrono::steady_clock;
+double SecondsSince(Clock::time_point t0);
+// A progress line on stderr when o.progress.
+void Say(const BuildOptions& o, const std::string& line);
+
+struct Survey {
+  std::vector<DriveRow> rows;
+  std::vector<double> attitude_sigma_deg;  // per row; 0 = the structure's default
+  std::vector<std::string> origin;         // per row: where it came from, for messages
+  std::vector<CameraModel> cameras;        // distinct calibrations
+  std::vector<int> camera_of_row;
+  std::vector<LocalFeatures> features;
+};
+
+// Where row i came from, as a message prefix ("<drive.csv>:<line>: "), or "".
+std::string Where(const Survey& s, size_t i);
+// Keeps the rows whose status is OK; the first bad one fails the step unless o.skip_bad, then
+// each is listed in *skipped.
+Status DropBadRows(const BuildOptions& o, const std::vector<Status>& status, Survey* s,
+                   std::vector<std::string>* skipped);
+// Loads each row's calibration (drive_dir/camera); bad rows fail or, with skip_bad, go to *skipped.
+Status LoadCameras(const BuildOptions& o, Survey* s, std::vector<std::string>* skipped);
+// Reads, decodes and checks every row's image and extracts its features; the same image twice
+// is a bad row. Bad rows as LoadCameras.
+Status ExtractAll(const BuildOptions& o, Survey* s, std::vector<std::string>* skipped);
+std::string ReadFileBytes(const std::string& path);
+// The model from a survey's features (crop views while under min_pq_training); *vectors gets
+// the number of training vectors.
+Result<GlobalDescriptor> TrainModel(const BuildOptions& o, const Survey& s, int* vectors);
+// Every row's code under a model.
+cv::Mat EncodeAll(const GlobalDescriptor& model, const Survey& s);
+// Tracks, triangulation and bundle adjustment; fills the summary's structure figures and time.
+Result<StructureResult> Adjust(const BuildOptions& o, const Survey& s, const EnuFrame& enu,
+                               BuildSummary* summary);
+std::vector<uint8_t> IndexBytes(const faiss::Index& index);
+
+// Everything a tile is cut from.
+struct Built {
+  const Survey* survey;
+  const GlobalDescriptor* model;
+  std::string model_id;
+  cv::Mat codes;  // one row per survey row
+  const StructureResult* structure;
+  const EnuFrame* enu;  // the structure's frame
+  int map_version;
+};
+// The tile of the survey rows `rows` (in that order), with the points they observe.
+TileData MakeTile(const Built& b, const TileKey& key, const std::vector<int>& rows);
+
+// Now as ISO 8601 UTC, or SOURCE_DATE_EPOCH when set.
+std::string NowIsoUtc();
+nlohmann::json ModelParams(const GlobalDescriptor& g, int training_vectors);
+// SIGHTFIX_KILL_AT=<point>: SIGKILL here (crash-safety tests).
+void MaybeKillAt(const std::string& point);
+// The map-wide index over codes (one row per image) with the given ids.
+std::vector<uint8_t> GlobalIndex(const GlobalDescriptor& model, const cv::Mat& codes,
+                                 const std::vector<faiss::Index::idx_t>& ids);
+// Tile files under map_dir/tiles no catalog entry names go.
+void RemoveUnlistedTiles(const std::string& map_dir, const Catalog& catalog);
+Result<SurveyRows> ReadSurvey(const BuildOptions& o);
+// 1 for a new map; the next version with overwrite; kFailedPrecondition otherwise.
+Result<int> NextMapVersion(const BuildOptions& o);
+
+}  // namespace sightfix::build_internal

@@ -1,0 +1,56 @@
+// Metric camera pose from 2D-3D correspondences, and how sure it is.
+//
+// PnP in RANSAC (cv::solvePnPRansac: EPnP hypotheses, Lepetit et al., IJCV 2009), then
+// Levenberg-Marquardt on the inliers (cv::solvePnPRefineLM), inliers recounted and refined once
+// more. Covariance of the camera centre: first-order propagation through the pose Jacobian
+// (cv::projectPoints), each residual weighted by its own covariance, keypoint noise plus the
+// 3D point's covariance seen through the camera, then scaled by the a-posteriori variance
+// factor (chi-square of the residuals over their degrees of freedom, common practice in
+// least-squares adjustment), so a sharp day image and a noisy dusk one get the covariance their
+// residuals show. The factor is floored at min_variance_factor: a handful of lucky residuals must
+// not make a fix over-confident. Frames: world is a local ENU (metres), camera as rotation.h.
+// Thread-safe.
+#pragma once
+
+#include <opencv2/core.hpp>
+#include <vector>
+
+#include "indexer/base/status.h"
+
+namespace sightfix {
+
+struct PointCorrespondence {
+  cv::Vec3d world;         // metres
+  cv::Matx33d covariance;  // of `world`, m^2
+  cv::Point2d normalized;  // undistorted (x/z, y/z) in the query image
+  int survey_frames = 2;   // survey frames whose poses pinned `world` (for the survey term)
+};
+
+struct AbsolutePoseOptions {
+  double threshold_px = 3.0;  // RANSAC and inlier threshold, pixels at focal_px
+  double focal_px = 500;
+  int min_inliers = 25;
+  int iterations = 2000;
+  double confidence = 0.9999;
+  double pixel_sigma_px = 1.0;  // keypoint noise assumed before the variance factor
+  // Floor of the variance factor: 0.25 keeps the effective keypoint noise >= 0.5 px.
+  double min_variance_factor = 0.25;
+  bool Validate(std::string* error) const;
+};
+
+struct AbsolutePose {
+  cv::Matx33d camera_from_world = cv::Matx33d::eye();
+  cv::Vec3d center;               // camera centre in world
+  cv::Matx33d center_covariance;  // m^2
+  int inliers = 0;
+  std::vector<bool> inlier_mask;  // per correspondence
+  double rms_px = 0;              // of the inliers
+  double variance_factor = 1;     // applied to center_covariance
+  int points_in_front = 0;        // inliers with positive depth
+};
+
+// kFailedPrecondition with a reason when there are too few correspondences or inliers.
+Result<AbsolutePose> EstimateAbsolutePose(const std::vector<PointCorrespondence>& points,
+                                          const AbsolutePoseOptions& options);
+
+}  // namespace sightfix

@@ -1,0 +1,153 @@
+// The localization engine: one camera image (and perhaps a coarse prior) in, a fix out.
+//
+// Stages (DESIGN.md 5; the methods and their sources are in the .cc):
+//  1. features: RootSIFT of the query, keypoints undistorted with its calibration;
+//  2. candidates: with a prior, the images of the tiles its circle (grown by the viewing range)
+//     touches, ranked by each tile's retrieval index; without, the map-wide index; top_k kept;
+//  3. verification: query <-> reference matches, five-point essential matrix in USAC_MAGSAC;
+//     a reference with min_verified_inliers inliers is verified; at most max_verified;
+//  4. metric pose: the verified references' inlier matches whose keypoint observes a map point
+//     give 2D-3D correspondences; PnP RANSAC + LM (absolute_pose.h). When those are too few
+//     (or PoseMethod::kPair), two verified references are matched with each other and their
+//     matches triangulated with their known poses at query time, then the same PnP;
+//  5. confidence: the centre's covariance from the solver with the points' covariance
+//     propagated, plus the references' survey sigma, times covariance_scale (calibrated on a
+//     demo seed the tests do not use; DEVELOPERS.md "Confidence calibration"); radius95 numeric;
+//  6. checks: enough inliers, points in front, near its references, heading consistent;
+//     a failed check turns the fix coarse with the reason. A fix outside the prior is reported
+//     (outside_prior), not dropped: the prior may come from a spoofed receiver.
+//
+// Thread safety: Locate may be called concurrently from any number of threads; tiles are
+// shared through a thread-safe cache. Library thread pools are pinned per calling thread.
+#pragma once
+
+#include <memory>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "indexer/map/camera_model.h"
+#include "indexer/vision/local_features.h"
+#include "indexer/map/map_store.h"
+#include "indexer/base/rotation.h"
+#include "indexer/base/status.h"
+#include "server/engine/tile_cache.h"
+
+namespace sightfix {
+
+enum class PoseMethod {
+  kAuto,    // 3D points, then the query-time pair when the points are too few
+  kPoints,  // 3D points only
+  kPair,    // query-time triangulation of two references only
+};
+
+struct LocalizerOptions {
+  int top_k = 8;         // retrieval candidates verified at most
+  int max_verified = 3;  // stop verifying after this many pass
+  // Essential-matrix inliers of a verified reference. Low on purpose: a wrong reference still
+  // has to give min_pnp_inliers consistent 2D-3D correspondences, a far stronger test (the
+  // foreign-town test holds it to zero wrong fixes).
+  int min_verified_inliers = 20;
+  double viewing_range_m = 50;  // a camera sees what lies this far ahead (candidate margin)
+  PoseMethod method = PoseMethod::kAuto;
+  double pnp_threshold_px = 3.0;
+  int min_pnp_inliers = 25;
+  double pixel_sigma_px = 1.0;
+  // Multiplies the horizontal covariance (solver plus survey term). Calibrated on demo seed 5,
+  // which no test uses: over its 172 refined fixes, the 95th percentile of (error / radius95)^2
+  // at scale 1 was 1.86 (day 65 fixes, dusk 37, overcast 70; mean 0.52 / 0.51 / 0.55, so one
+  // scale fits all three). DEVELOPERS.md "Confidence calibration" has the command.
+  double covariance_scale = 1.9;
+  double max_fix_to_reference_m = 30;  // check: a fix this far from every reference is suspect
+  double max_heading_diff_deg = 60;    // check: against the nearest verified reference
+  double min_pair_baseline_m = 1.5;    // pair fallback: references closer give weak geometry
+  double coarse_radius_m = 50;         // radius95 of a coarse (retrieval-only) fix
+  double time_budget_ms = 0;           // > 0: stop verifying new candidates past this
+  size_t tile_cache_bytes = size_t(2) << 30;
+  FeatureOptions features;
+  bool Validate(std::string* error) const;
+};
+
+struct PriorCircle {
+  double lat_deg = 0, lon_deg = 0, radius_m = 0;
+};
+
+struct LocateRequest {
+  // One of: a decoded 8-bit image, encoded JPEG/PNG bytes, or precomputed RootSIFT features
+  // (keypoints' `normalized` must be undistorted with `camera`).
+  cv::Mat image;
+  std::vector<uint8_t> image_bytes;
+  std::shared_ptr<const LocalFeatures> features;
+  CameraModel camera;
+  double capture_time_s = 0;  // Unix seconds, echoed in the fix
+  std::optional<PriorCircle> prior;
+  std::optional<double> heading_deg;  // coarse heading prior: candidates facing away are skipped
+};
+
+enum class FixQuality { kNone, kCoarse, kRefined };
+const char* FixQualityName(FixQuality q);  // "none", "coarse", "refined"
+
+struct ReferenceUse {
+  std::string tile;  // "z/x/y"
+  int image_id = 0;
+  std::string name;
+  double lat_deg = 0, lon_deg = 0;  // the reference's camera centre
+  float retrieval_distance = 0;     // rank order: candidates are listed best first
+  bool checked = false;             // verification ran on it (false: ranked, not needed)
+  int matches = 0, inliers = 0;     // essential-matrix verification
+  int points = 0;                   // 2D-3D correspondences it gave
+  bool verified = false;
+  double distance_m = 0;  // from the fix (or -1 without one)
+};
+
+struct StageTimings {
+  double decode_ms = 0, features_ms = 0, retrieval_ms = 0, verify_ms = 0, pose_ms = 0, total_ms = 0;
+};
+
+struct Fix {
+  FixQuality quality = FixQuality::kNone;
+  double capture_time_s = 0;
+  double lat_deg = 0, lon_deg = 0, height_m = 0;     // WGS84, ellipsoidal height
+  double heading_deg = 0;                            // clockwise from true north
+  Quaternion enu_to_camera;                          // rotates ENU vectors into the camera frame
+  cv::Matx22d covariance_en = cv::Matx22d::zeros();  // east/north, m^2
+  double radius95_m = 0;
+  std::string method;  // "points", "pair", "retrieval" or empty
+  int correspondences = 0, pnp_inliers = 0;
+  double rms_px = 0;
+  std::vector<ReferenceUse> references;  // every retrieval candidate, best first
+  StageTimings timings;
+  std::string reason;  // why not refined (empty when refined)
+  bool outside_prior = false;
+  double prior_distance_m = -1;  // fix to prior centre, when a prior was given
+};
+
+class Localizer {
+ public:
+  // Opens the map (catalog, model, global index); tiles load on first use.
+  static Result<std::unique_ptr<Localizer>> Open(const std::string& map_dir,
+                                                 const LocalizerOptions& options);
+  ~Localizer();
+
+  // kInvalidArgument for bad input (no image, undecodable, size not the calibration's, bad
+  // prior); otherwise a Fix, whose quality says how far it got.
+  Result<Fix> Locate(const LocateRequest& request) const;
+
+  const Catalog& catalog() const;
+  const LocalizerOptions& options() const;
+  int tiles_cached() const;  // tiles in memory now
+  // Health of the map's files (server/engine/tile_cache.h): checks one tile's file without loading it,
+  // lists the tiles refused so far, counts the tiles checked.
+  Status CheckTile(int ordinal) const;
+  std::vector<TileProblem> TileProblems() const;
+  int tiles_checked() const;
+  // Calibration `index` of the tile "z/x/y", through the tile cache; nullopt when unknown.
+  std::optional<CameraModel> TileCamera(const std::string& tile, int index) const;
+
+ private:
+  struct Impl;
+  explicit Localizer(std::unique_ptr<Impl> impl);
+  std::unique_ptr<Impl> impl_;
+};
+
+}  // namespace sightfix

@@ -1,0 +1,81 @@
+// The localization service: the engine behind a TCP socket (Boost.Asio), speaking the framed
+// protobuf of proto/sightfix.proto, plus an HTTP side port (Boost.Beast) with /healthz and
+// /metrics (Prometheus text exposition format).
+//
+// One I/O thread runs every socket asynchronously; the engine runs on a fixed pool of `workers`
+// threads fed by a bounded queue (full: the call is answered OVERLOADED at once). Each call has a
+// deadline (the envelope's, else default_deadline_ms): a call whose deadline passes in the queue
+// is answered DEADLINE_EXCEEDED without running. Checked before any allocation or decode: the
+// frame length against max_frame_bytes, the image header's pixel count against max_pixels.
+// Connections: at most max_connections; a started frame must arrive within read_timeout_ms (a
+// client sending a byte a second is cut off), an idle one is closed after idle_timeout_ms, and a
+// client that does not read its answers is closed once max_pending_write_bytes pile up. A
+// malformed frame (zero length, over the cap, not an Envelope) is answered when possible and
+// that one connection is closed; nothing else is disturbed.
+// Security: binds loopback by default; with a token file every call must carry that token
+// (compared in constant time); a non-loopback address without a token is refused unless
+// allow_open. Logs: one JSON line per call on stderr (id, method, status, ms, quality, peer),
+// never image data or the token.
+// Lifecycle: Create binds; Run serves until Shutdown (or SIGTERM/SIGINT when handle_signals),
+// then drains: no new calls, every queued and running call answered, then returns. SIGHUP (or
+// Reload) reopens the map; calls in flight finish on the old one.
+#pragma once
+
+#include <memory>
+#include <string>
+
+#include "indexer/base/status.h"
+#include "indexer/base/endpoint.h"
+#include "proto/frame_codec.h"
+#include "server/engine/localizer.h"
+
+namespace sightfix {
+
+struct ServiceOptions {
+  std::string map_dir;
+  std::string listen = "127.0.0.1:7411";
+  std::string http = "127.0.0.1:7412";  // empty: no HTTP side port
+  int workers = 0;                      // engine threads; 0 = all cores
+  int queue = 64;                       // calls waiting for a worker
+  uint32_t max_frame_bytes = kDefaultMaxFrameBytes;
+  int64_t max_pixels = 40000000;  // about 7 300 x 5 500; a 60000x60000 header is refused
+  int max_connections = 256;
+  int read_timeout_ms = 10000;
+  int idle_timeout_ms = 120000;
+  int default_deadline_ms = 10000;
+  size_t max_pending_write_bytes = size_t(32) << 20;
+  std::string token_file;
+  bool allow_open = false;  // listen beyond loopback without a token
+  // Check every tile file against the catalog's SHA-256 in the background after start (and
+  // after a reload), so /healthz names bad tiles early. Off: tiles are still checked before
+  // their first use.
+  bool scrub = true;
+  LocalizerOptions engine;
+  bool Validate(std::string* error) const;
+};
+
+class Service {
+ public:
+  // Opens the map and binds the ports (0 picks a free one). Fails with the reason (bad options,
+  // map, token file, address in use, open address without token).
+  static Result<std::unique_ptr<Service>> Create(const ServiceOptions& options);
+  ~Service();
+
+  // Serves on the calling thread until Shutdown, then drains and returns OK.
+  Status Run(bool handle_signals);
+  // Thread-safe; Run returns once every accepted call is answered.
+  void Shutdown();
+  // Thread-safe: reopens the map folder; on failure the old map keeps serving.
+  Status Reload();
+
+  int port() const;       // bound TCP port
+  int http_port() const;  // bound HTTP port, 0 without one
+
+  struct Impl;  // opaque: defined in service.cc, where connections use it
+
+ private:
+  explicit Service(std::unique_ptr<Impl> impl);
+  std::unique_ptr<Impl> impl_;
+};
+
+}  // namespace sightfix
