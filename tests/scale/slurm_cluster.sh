@@ -1,5 +1,5 @@
 #!/usr/bin/env bash
-# A single-node Slurm cluster on this machine, for tests: munged, slurmctld and slurmd with
+# A single-node Slurm cluster on the host that runs it, for tests: munged, slurmctld and slurmd with
 # their own configuration, key, sockets, ports and state under DIR (nothing in /etc is changed).
 #   tests/scale/slurm_cluster.sh start DIR   prints "export SLURM_CONF=DIR/slurm.conf"
 #   tests/scale/slurm_cluster.sh stop DIR    stops the three daemons
@@ -49,7 +49,7 @@ munged --force --key-file="$dir/munge/munge.key" --socket="$dir/munge/munge.sock
   --pid-file="$dir/munge/munged.pid" --log-file="$dir/log/munged.log" \
   --seed-file="$dir/munge/munged.seed"
 
-# This machine as Slurm sees it (NodeName=<short hostname> CPUs=... RealMemory=...), reached on
+# The host as Slurm sees it (NodeName=<short hostname> CPUs=... RealMemory=...), reached on
 # loopback whether or not its name resolves.
 node="$(slurmd -C | head -1)"
 host="$(hostname -s)"
