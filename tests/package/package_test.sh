@@ -60,7 +60,7 @@ port="$(serving_port "$tmp/server.log" "$server_pid")"
 tile="$("$py" -c 'import sqlite3,sys; print(sqlite3.connect(sys.argv[1]).execute("select tile from tiles order by ordinal limit 1").fetchone()[0])' "$data/map/catalog.sqlite")"
 drive="$data/town/query-day"
 row="$(sed -n 6p "$drive/drive.csv")"
-image="$drive/images/$(echo "$row" | cut -d, -f1)"
+image="$drive/$(echo "$row" | cut -d, -f1)"
 "$tmp/consumer/where_am_i" "127.0.0.1:$port" "$image" "$tile#0" >"$tmp/fix.txt" 2>"$tmp/fix.err" \
   && ok "consumer got an answer: $(cat "$tmp/fix.txt")" || bad "consumer: $(cat "$tmp/fix.err")"
 "$py" - "$tmp/fix.txt" "$row" "$drive/drive.csv" <<'PY' && ok "the consumer's fix lies within 5 m of the truth" || bad "consumer fix far from truth"
