@@ -8,20 +8,20 @@
 #include <algorithm>
 #include <chrono>
 #include <cmath>
-#include <map>
 #include <opencv2/imgcodecs.hpp>
 #include <set>
 
 #include "indexer/base/geo.h"
-#include "indexer/vision/global_descriptor.h"
 #include "indexer/base/parallel.h"
-#include "indexer/vision/triangulation.h"
 #include "indexer/base/threads.h"
 #include "indexer/map/tile_key.h"
+#include "indexer/vision/global_descriptor.h"
 #include "server/engine/absolute_pose.h"
 #include "server/engine/confidence.h"
+#include "server/engine/reference_pair.h"
 #include "server/engine/relative_pose.h"
 #include "server/engine/tile_cache.h"
+#include "server/engine/verified_reference.h"
 
 namespace sightfix {
 namespace {
@@ -34,28 +34,6 @@ double MsSince(Clock::time_point t0) {
 // sqrt(5.991): chi-square 2 dof, 95 % (NIST/SEMATECH e-Handbook 1.3.6.7.4); a round Gaussian
 // with sigma = r / this has radius95 r.
 constexpr double kRound95 = 2.447746830680816;
-
-struct Candidate {
-  std::shared_ptr<const LoadedTile> tile;
-  int ordinal = 0;
-  int image = 0;
-  float distance = 0;
-};
-
-// A verified reference: its candidate and the query <-> reference inlier matches.
-struct Verified {
-  Candidate c;
-  std::vector<std::pair<int, int>> matches;  // (query keypoint, reference keypoint), ratio test
-  cv::Matx33d camera_from_frame;             // reference pose in the query's frame
-  cv::Vec3d center;
-};
-
-LocalFeatures ReferenceFeatures(const ReferenceImage& r) {
-  LocalFeatures f;
-  f.descriptors = ExpandDescriptors(r.descriptors);
-  f.normalized.assign(r.normalized.begin(), r.normalized.end());
-  return f;
-}
 
 // ENU of tile `from` -> ENU of `frame`, through WGS84.
 cv::Vec3d ToFrame(const EnuFrame& frame, const LoadedTile& from, const cv::Vec3d& p) {
@@ -111,6 +89,7 @@ bool LocalizerOptions::Validate(std::string* error) const {
   if (!(covariance_scale > 0)) return fail("covariance_scale must be > 0");
   if (!(coarse_radius_m > 0)) return fail("coarse_radius_m must be > 0");
   if (!(time_budget_ms >= 0)) return fail("time_budget_ms must be >= 0");
+  if (env == nullptr) return fail("env must not be null");
   std::string e;
   if (features.type != FeatureType::kRootSift) return fail("features: maps hold RootSIFT");
   if (!features.Validate(&e)) return fail("features: " + e);
@@ -136,11 +115,13 @@ struct Localizer::Impl {
   std::vector<PointCorrespondence> FromPoints(const LocalFeatures& q,
                                               const std::vector<Verified>& v, const EnuFrame& f,
                                               std::vector<ReferenceUse>* uses) const;
-  std::vector<PointCorrespondence> FromPair(const LocalFeatures& q,
-                                            const std::vector<Verified>& v) const;
   void Finish(const AbsolutePose& pose, const std::vector<PointCorrespondence>& pts,
               const std::vector<Verified>& v, const EnuFrame& frame, Fix* fix) const;
   void Coarse(const std::vector<Verified>& v, const std::string& reason, Fix* fix) const;
+  // REQUIRES: !verified->empty(). Sets each reference's centre and rotation in the frame of
+  // the first, then the fix.
+  void Pose(const LocalFeatures& q, const CameraModel& camera, const std::string& note,
+            std::vector<Verified>* verified, Fix* fix) const;
 };
 
 Localizer::Localizer(std::unique_ptr<Impl> impl) : impl_(std::move(impl)) {}
@@ -185,7 +166,8 @@ Result<std::unique_ptr<Localizer>> Localizer::Open(const std::string& map_dir,
   } catch (const faiss::FaissException& e) {
     return Status::Corrupt(map_dir + ": global index unreadable: " + e.what());
   }
-  impl->cache = std::make_unique<TileCache>(map_dir, impl->catalog.tiles, options.tile_cache_bytes);
+  impl->cache = std::make_unique<TileCache>(map_dir, impl->catalog.tiles, options.tile_cache_bytes,
+                                            options.env);
   return std::unique_ptr<Localizer>(new Localizer(std::move(impl)));
 }
 
@@ -337,48 +319,6 @@ std::vector<PointCorrespondence> Localizer::Impl::FromPoints(
   return out;
 }
 
-// Two verified references, matched with each other and triangulated with their known poses.
-std::vector<PointCorrespondence> Localizer::Impl::FromPair(
-    const LocalFeatures& q, const std::vector<Verified>& verified) const {
-  int ia = -1, ib = -1;
-  double best = 0;
-  for (size_t i = 0; i < verified.size(); ++i)
-    for (size_t j = i + 1; j < verified.size(); ++j) {
-      const double d = cv::norm(verified[i].center - verified[j].center);
-      if (d >= o.min_pair_baseline_m && d > best) best = d, ia = int(i), ib = int(j);
-    }
-  std::vector<PointCorrespondence> out;
-  if (ia < 0) return out;
-  const Verified &a = verified[ia], &b = verified[ib];
-  const ReferenceImage &ra = a.c.tile->data.images[a.c.image],
-                       &rb = b.c.tile->data.images[b.c.image];
-  const LocalFeatures fa = ReferenceFeatures(ra), fb = ReferenceFeatures(rb);
-  const double fa_px = a.c.tile->data.cameras[ra.camera_id].fx;
-  const double fb_px = b.c.tile->data.cameras[rb.camera_id].fx;
-  const std::vector<cv::Matx33d> rot{a.camera_from_frame, b.camera_from_frame};
-  const std::vector<cv::Vec3d> ctr{a.center, b.center};
-  std::map<int, int> b_of_a;  // reference A keypoint -> reference B keypoint
-  for (const cv::DMatch& d : MatchFeatures(fa, fb, MatchOptions{})) b_of_a[d.queryIdx] = d.trainIdx;
-  std::map<int, int> a_of_query;
-  for (auto [qk, rk] : a.matches) a_of_query[qk] = rk;
-  for (auto [qk, ak] : a_of_query) {
-    auto it = b_of_a.find(ak);
-    if (it == b_of_a.end()) continue;
-    const std::vector<cv::Point2d> obs{fa.normalized[ak], fb.normalized[it->second]};
-    const cv::Vec3d x = TriangulateLinear(rot, ctr, obs);
-    bool good = MaxRayAngleDeg(ctr, x) >= 2.0;  // DESIGN.md 5.3: shallow rays put points metres off
-    for (int k = 0; k < 2 && good; ++k) {
-      const cv::Vec3d p = rot[k] * (x - ctr[k]);
-      const double f = k == 0 ? fa_px : fb_px;
-      good = p[2] > 0 && f * cv::norm(cv::Point2d(p[0] / p[2], p[1] / p[2]) - obs[k]) <= 2.0;
-    }
-    if (!good) continue;
-    const cv::Matx33d cov = TriangulationCovariance(rot, ctr, {fa_px, fb_px}, x, o.pixel_sigma_px);
-    out.push_back({x, cov, q.normalized[qk]});
-  }
-  return out;
-}
-
 void Localizer::Impl::Coarse(const std::vector<Verified>& v, const std::string& reason,
                              Fix* fix) const {
   fix->reason = reason;
@@ -455,6 +395,47 @@ void Localizer::Impl::Finish(const AbsolutePose& pose, const std::vector<PointCo
   fix->rms_px = pose.rms_px;
 }
 
+// Stage 4 and on: the metric pose from the map's points, else from a reference pair (as
+// o.method allows), then the checks; coarse with the reasons when no pose passes.
+void Localizer::Impl::Pose(const LocalFeatures& q, const CameraModel& camera,
+                           const std::string& note, std::vector<Verified>* verified,
+                           Fix* fix) const {
+  const EnuFrame& frame = verified->front().c.tile->enu;
+  for (Verified& v : *verified) {
+    const ReferenceImage& ref = v.c.tile->data.images[v.c.image];
+    v.center = ToFrame(frame, *v.c.tile, v.c.tile->image_centers[v.c.image]);
+    v.camera_from_frame = EnuFromCamera(ref.attitude).t();
+  }
+  AbsolutePoseOptions po;
+  po.focal_px = 0.5 * (camera.fx + camera.fy);
+  po.threshold_px = o.pnp_threshold_px;
+  po.min_inliers = o.min_pnp_inliers;
+  po.pixel_sigma_px = o.pixel_sigma_px;
+  Result<AbsolutePose> pose = Status(StatusCode::kFailedPrecondition, "no pose method ran");
+  std::vector<PointCorrespondence> pts;
+  std::string why;
+  if (o.method != PoseMethod::kPair) {
+    pts = FromPoints(q, *verified, frame, &fix->references);
+    fix->correspondences = static_cast<int>(pts.size());
+    pose = EstimateAbsolutePose(pts, po);
+    fix->method = "points";
+    if (!pose.ok()) why = "map points: " + pose.status().message();
+  }
+  if (!pose.ok() && o.method != PoseMethod::kPoints) {
+    pts = PairCorrespondences(q, *verified, o.min_pair_baseline_m, o.pixel_sigma_px);
+    fix->correspondences = static_cast<int>(pts.size());
+    pose = EstimateAbsolutePose(pts, po);
+    fix->method = "pair";
+    if (!pose.ok())
+      why += (why.empty() ? "" : "; ") + std::string("reference pair: ") +
+             (verified->size() < 2 ? "one verified reference" : pose.status().message());
+  }
+  if (pose.ok())
+    Finish(*pose, pts, *verified, frame, fix);
+  else
+    Coarse(*verified, note + why, fix);
+}
+
 Result<Fix> Localizer::Locate(const LocateRequest& r) const {
   const Impl& m = *impl_;
   const auto start = Clock::now();
@@ -479,40 +460,7 @@ Result<Fix> Localizer::Locate(const LocateRequest& r) const {
                                    : "no candidate passed geometric verification"),
              &fix);
   } else {
-    const EnuFrame& frame = verified.front().c.tile->enu;
-    for (Verified& v : verified) {
-      const ReferenceImage& ref = v.c.tile->data.images[v.c.image];
-      v.center = ToFrame(frame, *v.c.tile, v.c.tile->image_centers[v.c.image]);
-      v.camera_from_frame = EnuFromCamera(ref.attitude).t();
-    }
-    AbsolutePoseOptions po;
-    po.focal_px = 0.5 * (r.camera.fx + r.camera.fy);
-    po.threshold_px = m.o.pnp_threshold_px;
-    po.min_inliers = m.o.min_pnp_inliers;
-    po.pixel_sigma_px = m.o.pixel_sigma_px;
-    Result<AbsolutePose> pose = Status(StatusCode::kFailedPrecondition, "no pose method ran");
-    std::vector<PointCorrespondence> pts;
-    std::string why;
-    if (m.o.method != PoseMethod::kPair) {
-      pts = m.FromPoints(*q, verified, frame, &fix.references);
-      fix.correspondences = static_cast<int>(pts.size());
-      pose = EstimateAbsolutePose(pts, po);
-      fix.method = "points";
-      if (!pose.ok()) why = "map points: " + pose.status().message();
-    }
-    if (!pose.ok() && m.o.method != PoseMethod::kPoints) {
-      pts = m.FromPair(*q, verified);
-      fix.correspondences = static_cast<int>(pts.size());
-      pose = EstimateAbsolutePose(pts, po);
-      fix.method = "pair";
-      if (!pose.ok())
-        why += (why.empty() ? "" : "; ") + std::string("reference pair: ") +
-               (verified.size() < 2 ? "one verified reference" : pose.status().message());
-    }
-    if (pose.ok())
-      m.Finish(*pose, pts, verified, frame, &fix);
-    else
-      m.Coarse(verified, note + why, &fix);
+    m.Pose(*q, r.camera, note, &verified, &fix);
   }
   fix.timings.pose_ms = MsSince(t0);
   if (r.prior && fix.quality != FixQuality::kNone) {

@@ -26,11 +26,12 @@
 #include <string>
 #include <vector>
 
-#include "indexer/map/camera_model.h"
-#include "indexer/vision/local_features.h"
-#include "indexer/map/map_store.h"
+#include "indexer/base/env.h"
 #include "indexer/base/rotation.h"
 #include "indexer/base/status.h"
+#include "indexer/map/camera_model.h"
+#include "indexer/map/map_store.h"
+#include "indexer/vision/local_features.h"
 #include "server/engine/tile_cache.h"
 
 namespace sightfix {
@@ -64,6 +65,9 @@ struct LocalizerOptions {
   double coarse_radius_m = 50;         // radius95 of a coarse (retrieval-only) fix
   double time_budget_ms = 0;           // > 0: stop verifying new candidates past this
   size_t tile_cache_bytes = size_t(2) << 30;
+  // Reads the tile files for their SHA-256 check (tile_cache.h). Borrowed, not owned: must
+  // outlive every Localizer opened with these options. Default: the real file system.
+  Env* env = Env::Default();
   FeatureOptions features;
   bool Validate(std::string* error) const;
 };
@@ -136,12 +140,14 @@ class Localizer {
   const Catalog& catalog() const;
   const LocalizerOptions& options() const;
   int tiles_cached() const;  // tiles in memory now
-  // Health of the map's files (server/engine/tile_cache.h): checks one tile's file without loading it,
-  // lists the tiles refused so far, counts the tiles checked.
+  // Health of the map's files (server/engine/tile_cache.h): checks one tile's file without loading
+  // it, lists the tiles refused so far, counts the tiles checked.
   Status CheckTile(int ordinal) const;
   std::vector<TileProblem> TileProblems() const;
   int tiles_checked() const;
   // Calibration `index` of the tile "z/x/y", through the tile cache; nullopt when unknown.
+  // Loads the tile when it is not in memory (blocks for the file's read and check, like
+  // Locate): call it from a worker thread, not from an event loop's.
   std::optional<CameraModel> TileCamera(const std::string& tile, int index) const;
 
  private:

@@ -25,13 +25,24 @@ LoadedTile::LoadedTile(TileData d, std::unique_ptr<faiss::Index> i)
 
 LoadedTile::~LoadedTile() = default;
 
-TileCache::TileCache(std::string map_dir, std::vector<CatalogTile> tiles, size_t budget_bytes)
+// One load in flight. Written under mu_ by the loading thread; read under mu_ by its waiters.
+struct TileCache::PendingLoad {
+  bool done = false;
+  Status status;  // the load's failure, when it failed
+  TilePtr tile;   // the loaded tile, when it did not
+};
+
+TileCache::TileCache(std::string map_dir, std::vector<CatalogTile> tiles, size_t budget_bytes,
+                     Env* env)
     : map_dir_(std::move(map_dir)),
       tiles_(std::move(tiles)),
       budget_bytes_(budget_bytes),
+      env_(env),
       checked_(tiles_.size(), false) {
   for (size_t i = 0; i < tiles_.size(); ++i) ordinal_[tiles_[i].key] = static_cast<int>(i);
 }
+
+TileCache::~TileCache() = default;
 
 int TileCache::OrdinalOf(const TileKey& key) const {
   auto it = ordinal_.find(key);
@@ -48,7 +59,13 @@ int TileCache::cached_tiles() const {
   return static_cast<int>(cache_.size());
 }
 
+std::string TileCache::PathOf(int ordinal) const {
+  return (std::filesystem::path(map_dir_) / tiles_[ordinal].file).string();
+}
+
 Status TileCache::Failed(int ordinal, const Status& why) {
+  // A scrub and a load may fail the same file at once: the first report stands.
+  if (auto f = failed_.find(ordinal); f != failed_.end()) return f->second;
   // Reported once, on stderr (the service's log), then remembered: the rest keeps serving.
   checked_[ordinal] = true;
   std::fprintf(stderr, "{\"event\":\"tile_skipped\",\"tile\":\"%s\",\"reason\":\"%s\"}\n",
@@ -60,15 +77,15 @@ Status TileCache::Failed(int ordinal, const Status& why) {
 }
 
 Status TileCache::VerifyFile(int ordinal) const {
-  const std::string path = (std::filesystem::path(map_dir_) / tiles_[ordinal].file).string();
-  Result<std::string> sha = Sha256OfFile(path);
-  if (!sha.ok()) {
-    std::error_code ec;
-    if (!std::filesystem::exists(path, ec)) return Status::NotFound(path + ": missing");
-    return Status::IoError(path + ": unreadable: " + sha.status().message());
+  const std::string path = PathOf(ordinal);
+  Result<std::string> bytes = env_->ReadFile(path);
+  if (!bytes.ok()) {
+    if (!env_->FileExists(path)) return Status::NotFound(path + ": missing");
+    return Status::IoError(path + ": unreadable: " + bytes.status().message());
   }
-  if (*sha != tiles_[ordinal].sha256)
-    return Status::Corrupt(path + ": damaged: SHA-256 " + sha->substr(0, 12) +
+  const std::string sha = Sha256Hex(bytes->data(), bytes->size());
+  if (sha != tiles_[ordinal].sha256)
+    return Status::Corrupt(path + ": damaged: SHA-256 " + sha.substr(0, 12) +
                            "... is not the catalog's " + tiles_[ordinal].sha256.substr(0, 12) +
                            "...");
   return Status::Ok();
@@ -110,43 +127,86 @@ int TileCache::checked_tiles() const {
   return static_cast<int>(std::count(checked_.begin(), checked_.end(), true));
 }
 
-Result<std::shared_ptr<const LoadedTile>> TileCache::Get(int ordinal) {
+Result<TileCache::TilePtr> TileCache::Get(int ordinal) {
   if (ordinal < 0 || ordinal >= static_cast<int>(tiles_.size()))
     return Status::NotFound("no tile with ordinal " + std::to_string(ordinal));
-  std::lock_guard<std::mutex> lock(mu_);  // loads are serialized: simple, and tiles are few
-  if (auto it = cache_.find(ordinal); it != cache_.end()) {
-    lru_.splice(lru_.begin(), lru_, it->second.second);
-    return it->second.first;
-  }
+  std::unique_lock<std::mutex> lock(mu_);
+  if (TilePtr hit = Lookup(ordinal)) return hit;
   if (auto f = failed_.find(ordinal); f != failed_.end()) return f->second;
-  if (!checked_[ordinal]) {
-    if (Status s = VerifyFile(ordinal); !s.ok()) return Failed(ordinal, s);
+  if (auto l = loading_.find(ordinal); l != loading_.end()) {  // wait for that load
+    const std::shared_ptr<PendingLoad> pending = l->second;
+    load_finished_.wait(lock, [&] { return pending->done; });
+    if (!pending->status.ok()) return pending->status;
+    return pending->tile;
+  }
+  auto pending = std::make_shared<PendingLoad>();
+  loading_[ordinal] = pending;
+  const bool verified = checked_[ordinal];
+  lock.unlock();
+  return LoadAndPublish(ordinal, pending, verified);
+}
+
+TileCache::TilePtr TileCache::Lookup(int ordinal) {
+  auto it = cache_.find(ordinal);
+  if (it == cache_.end()) return nullptr;
+  lru_.splice(lru_.begin(), lru_, it->second.second);
+  return it->second.first;
+}
+
+Result<TileCache::TilePtr> TileCache::LoadAndPublish(int ordinal,
+                                                     const std::shared_ptr<PendingLoad>& pending,
+                                                     bool verified) {
+  Result<TilePtr> tile = Load(ordinal, verified);
+  std::vector<TilePtr> evicted;  // declared before the lock: freed after it is released
+  std::lock_guard<std::mutex> lock(mu_);
+  loading_.erase(ordinal);
+  pending->done = true;
+  if (tile.ok()) {
     checked_[ordinal] = true;
+    pending->tile = *tile;
+    Insert(ordinal, *tile, &evicted);
+  } else {
+    pending->status = Failed(ordinal, tile.status());
   }
-  const std::string path = (std::filesystem::path(map_dir_) / tiles_[ordinal].file).string();
-  Result<TileData> data = ReadTile(path);
-  if (!data.ok()) return Failed(ordinal, data.status());
-  std::unique_ptr<faiss::Index> index;
-  try {
-    faiss::VectorIOReader reader;
-    reader.data = data->retrieval_index;
-    index.reset(faiss::read_index(&reader));
-  } catch (const faiss::FaissException& e) {
-    return Failed(ordinal, Status::Corrupt(path + ": retrieval index unreadable"));
-  }
-  if (index->ntotal != static_cast<faiss::Index::idx_t>(data->images.size()))
-    return Failed(ordinal, Status::Corrupt(path + ": retrieval index and images disagree"));
-  auto tile = std::make_shared<const LoadedTile>(std::move(data).value(), std::move(index));
-  lru_.push_front(ordinal);
-  cache_[ordinal] = {tile, lru_.begin()};
+  load_finished_.notify_all();
+  if (!pending->status.ok()) return pending->status;
+  return tile;
+}
+
+void TileCache::Insert(int ordinal, TilePtr tile, std::vector<TilePtr>* evicted) {
   bytes_ += tile->bytes;
+  lru_.push_front(ordinal);
+  cache_[ordinal] = {std::move(tile), lru_.begin()};
   while (bytes_ > budget_bytes_ && lru_.size() > 1) {  // keep at least the tile just loaded
-    const int victim = lru_.back();
+    const auto victim = cache_.find(lru_.back());
     lru_.pop_back();
-    bytes_ -= cache_[victim].first->bytes;
+    bytes_ -= victim->second.first->bytes;
+    evicted->push_back(std::move(victim->second.first));
     cache_.erase(victim);
   }
-  return std::shared_ptr<const LoadedTile>(tile);
+}
+
+Result<TileCache::TilePtr> TileCache::Load(int ordinal, bool verified) const {
+  if (!verified)
+    if (Status s = VerifyFile(ordinal); !s.ok()) return s;
+  const std::string path = PathOf(ordinal);
+  try {  // nothing may escape: callers are waiting for this load's result
+    Result<TileData> data = ReadTile(path);
+    if (!data.ok()) return data.status();
+    std::unique_ptr<faiss::Index> index;
+    try {
+      faiss::VectorIOReader reader;
+      reader.data = data->retrieval_index;
+      index.reset(faiss::read_index(&reader));
+    } catch (const faiss::FaissException& e) {
+      return Status::Corrupt(path + ": retrieval index unreadable");
+    }
+    if (index->ntotal != static_cast<faiss::Index::idx_t>(data->images.size()))
+      return Status::Corrupt(path + ": retrieval index and images disagree");
+    return TilePtr(std::make_shared<const LoadedTile>(std::move(data).value(), std::move(index)));
+  } catch (const std::exception& e) {  // std::bad_alloc, mostly
+    return Status::IoError(path + ": unreadable: " + e.what());
+  }
 }
 
 }  // namespace sightfix
