@@ -8,9 +8,9 @@
 #include <string>
 
 #include "indexer/base/crash_report.h"
+#include "indexer/base/threads.h"
 #include "indexer/builder/map_builder.h"
 #include "indexer/map/map_inspect.h"
-#include "indexer/base/threads.h"
 
 namespace po = boost::program_options;
 
@@ -273,7 +273,10 @@ int BuildTiles(int argc, char** argv) {
   if (plan.empty() || std::sscanf(shard.c_str(), "%d/%d%c", &i, &n, &tail) != 2)
     return Fail("build-tiles needs --plan FILE and --shard I/N (see --help)", 2);
   if (jobs < 0) return Fail("--jobs must be >= 0", 2);
-  auto s = sightfix::BuildTilesStep(plan, i, n, jobs, vm.count("quiet") == 0);
+  sightfix::StepOptions step;
+  step.jobs = jobs;
+  step.progress = vm.count("quiet") == 0;
+  auto s = sightfix::BuildTilesStep(plan, i, n, step);
   if (!s.ok())
     return FailStatus(s.status(),
                       IsInputError(s.status()) ? "" : "\nthe shard left no manifest; run it again");
@@ -308,7 +311,9 @@ int Publish(int argc, char** argv) {
   po::variables_map vm;
   if (int rc = ParseFlags(argc, argv, "publish", desc, &vm); rc >= 0) return rc;
   if (plan.empty()) return Fail("publish needs --plan FILE (see --help)", 2);
-  auto s = sightfix::PublishStep(plan, vm.count("quiet") == 0);
+  sightfix::StepOptions step;
+  step.progress = vm.count("quiet") == 0;
+  auto s = sightfix::PublishStep(plan, step);
   if (!s.ok()) return FailStatus(s.status(), "\nthe map was not changed");
   if (vm.count("json")) {
     nlohmann::json j = SummaryJson(*s);

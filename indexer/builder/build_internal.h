@@ -1,31 +1,40 @@
-// Pieces of the map builder shared by map_builder.cc (add, retrain) and staged_build.cc (build
-// and its scheduler steps). Not a public interface: only the indexer's own files include it.
+// Pieces of the map builder shared by map_update.cc (add, retrain) and the staged build (build and
+// its scheduler steps: staging.h). Not a public interface: only the builder's own files include
+// it. Every OS call goes through the Env of the options or the one passed.
 #pragma once
 
 #include <faiss/Index.h>
 
-#include <chrono>
 #include <nlohmann/json.hpp>
 #include <opencv2/core.hpp>
 #include <string>
 #include <vector>
 
-#include "indexer/map/camera_model.h"
-#include "indexer/map/drive_manifest.h"
+#include "indexer/base/env.h"
 #include "indexer/base/geo.h"
-#include "indexer/vision/global_descriptor.h"
-#include "indexer/vision/local_features.h"
-#include "indexer/builder/map_builder.h"
-#include "indexer/map/map_store.h"
 #include "indexer/base/status.h"
+#include "indexer/builder/map_builder.h"
 #include "indexer/builder/structure.h"
 #include "indexer/builder/survey_source.h"
+#include "indexer/map/camera_model.h"
+#include "indexer/map/drive_manifest.h"
+#include "indexer/map/map_store.h"
 #include "indexer/map/tile_key.h"
+#include "indexer/vision/global_descriptor.h"
+#include "indexer/vision/local_features.h"
 
 namespace sightfix::build_internal {
 
-using Clock = std::chrono::steady_clock;
-double SecondsSince(Clock::time_point t0);
+// Seconds since construction, on the Env's monotonic clock.
+class Stopwatch {
+ public:
+  explicit Stopwatch(Env* env) : env_(env), start_us_(env->NowMicros()) {}
+  double Seconds() const { return (env_->NowMicros() - start_us_) * 1e-6; }
+
+ private:
+  Env* env_;
+  int64_t start_us_;
+};
 // A progress line on stderr when o.progress.
 void Say(const BuildOptions& o, const std::string& line);
 
@@ -73,16 +82,19 @@ struct Built {
 // The tile of the survey rows `rows` (in that order), with the points they observe.
 TileData MakeTile(const Built& b, const TileKey& key, const std::vector<int>& rows);
 
-// Now as ISO 8601 UTC, or SOURCE_DATE_EPOCH when set.
-std::string NowIsoUtc();
+// The Env's wall clock as ISO 8601 UTC, or SOURCE_DATE_EPOCH when set.
+std::string NowIsoUtc(Env* env);
 nlohmann::json ModelParams(const GlobalDescriptor& g, int training_vectors);
-// SIGHTFIX_KILL_AT=<point>: SIGKILL here (crash-safety tests).
-void MaybeKillAt(const std::string& point);
 // The map-wide index over codes (one row per image) with the given ids.
 std::vector<uint8_t> GlobalIndex(const GlobalDescriptor& model, const cv::Mat& codes,
                                  const std::vector<faiss::Index::idx_t>& ids);
-// Tile files under map_dir/tiles no catalog entry names go.
-void RemoveUnlistedTiles(const std::string& map_dir, const Catalog& catalog);
+// Bytes a tile's local features (keypoint, descriptor, point id) and its points take on disk, as
+// the summaries report them.
+double LocalFeatureBytes(const TileData& t);
+double PointBytes(const TileData& t);
+// Tile files under map_dir/tiles no catalog entry names go (after a switch: the versions it
+// replaced, leftovers of an interrupted run). Best effort: a file that will not go stays.
+void RemoveUnlistedTiles(Env* env, const std::string& map_dir, const Catalog& catalog);
 Result<SurveyRows> ReadSurvey(const BuildOptions& o);
 // 1 for a new map; the next version with overwrite; kFailedPrecondition otherwise.
 Result<int> NextMapVersion(const BuildOptions& o);

@@ -6,38 +6,30 @@
 #include <faiss/index_io.h>
 #include <omp.h>
 
-#include <chrono>
 #include <cmath>
-#include <csignal>
 #include <cstdlib>
 #include <filesystem>
 #include <fstream>
 #include <map>
 #include <nlohmann/json.hpp>
 #include <opencv2/imgcodecs.hpp>
-#include <optional>
 #include <set>
 
-#include "indexer/builder/build_internal.h"
-#include "indexer/map/drive_manifest.h"
 #include "indexer/base/geo.h"
 #include "indexer/base/iso_time.h"
-#include "indexer/map/map_lock.h"
-#include "indexer/map/map_store.h"
 #include "indexer/base/parallel.h"
 #include "indexer/base/progress.h"
 #include "indexer/base/rotation.h"
 #include "indexer/base/sha256.h"
 #include "indexer/base/threads.h"
+#include "indexer/builder/build_internal.h"
+#include "indexer/map/drive_manifest.h"
+#include "indexer/map/map_store.h"
 
 namespace sightfix {
 namespace build_internal {
 
 namespace fs = std::filesystem;
-
-double SecondsSince(Clock::time_point t0) {
-  return std::chrono::duration<double>(Clock::now() - t0).count();
-}
 
 void Say(const BuildOptions& o, const std::string& line) {
   if (o.progress) std::fprintf(stderr, "indexer: %s\n", line.c_str());
@@ -174,31 +166,6 @@ cv::Mat EncodeAll(const GlobalDescriptor& model, const Survey& s) {
   return model.Encode(model.Whiten(model.VladRows(descriptors)));
 }
 
-struct TrainedModel {
-  GlobalDescriptor model;
-  cv::Mat codes;              // one row per survey row
-  std::vector<uint8_t> blob;  // GlobalDescriptor::Serialize
-};
-
-// Trains a model on the survey and encodes it; fills the summary's model fields.
-Result<TrainedModel> TrainAndEncode(const BuildOptions& o, const Survey& s, BuildSummary* summary) {
-  const auto t0 = Clock::now();
-  Result<GlobalDescriptor> model = TrainModel(o, s, &summary->training_vectors);
-  if (!model.ok()) return model.status();
-  TrainedModel t{std::move(model).value(), cv::Mat(), {}};
-  t.codes = EncodeAll(t.model, s);
-  t.blob = t.model.Serialize();
-  summary->model_id = Sha256Hex(t.blob).substr(0, 16);
-  summary->codec = t.model.codec_name();
-  summary->model_s = SecondsSince(t0);
-  return t;
-}
-
-struct Posed {
-  std::vector<cv::Matx33d> enu_from_camera;
-  std::vector<cv::Vec3d> center;
-};
-
 std::vector<SurveyView> Views(const Survey& s, const EnuFrame& enu) {
   std::vector<SurveyView> views;
   for (size_t i = 0; i < s.rows.size(); ++i) {
@@ -218,13 +185,13 @@ std::vector<SurveyView> Views(const Survey& s, const EnuFrame& enu) {
 // figures and time.
 Result<StructureResult> Adjust(const BuildOptions& o, const Survey& s, const EnuFrame& enu,
                                BuildSummary* summary) {
-  const auto t0 = Clock::now();
+  const Stopwatch watch(o.env);
   StructureOptions so = o.structure;
   so.jobs = o.jobs;
   Result<StructureResult> structure = BuildStructure(Views(s, enu), so);
   if (!structure.ok()) return structure.status();
   summary->structure = structure->summary;
-  summary->structure_s = SecondsSince(t0);
+  summary->structure_s = watch.Seconds();
   return structure;
 }
 
@@ -289,7 +256,16 @@ TileData MakeTile(const Built& b, const TileKey& key, const std::vector<int>& ro
   return t;
 }
 
-std::string NowIsoUtc() {
+double LocalFeatureBytes(const TileData& t) {
+  double bytes = 0;
+  for (const ReferenceImage& img : t.images)
+    bytes += img.normalized.size() * (sizeof(cv::Point2f) + 128 + sizeof(int32_t));
+  return bytes;
+}
+
+double PointBytes(const TileData& t) { return t.points.size() * (3 * 8 + 6 * 4 + 128 + 4.0); }
+
+std::string NowIsoUtc(Env* env) {
   // SOURCE_DATE_EPOCH (reproducible-builds.org): a fixed clock makes two builds of one survey
   // byte-identical, catalog included.
   if (const char* fixed = std::getenv("SOURCE_DATE_EPOCH")) {
@@ -297,9 +273,7 @@ std::string NowIsoUtc() {
     const long long t = std::strtoll(fixed, &end, 10);
     if (end != fixed && *end == '\0' && t >= 0) return FormatIsoUtc(static_cast<double>(t));
   }
-  return FormatIsoUtc(static_cast<double>(std::chrono::duration_cast<std::chrono::seconds>(
-                                              std::chrono::system_clock::now().time_since_epoch())
-                                              .count()));
+  return FormatIsoUtc(static_cast<double>(env->NowUnixSeconds()));
 }
 
 nlohmann::json ModelParams(const GlobalDescriptor& g, int training_vectors) {
@@ -311,20 +285,6 @@ nlohmann::json ModelParams(const GlobalDescriptor& g, int training_vectors) {
           {"code_bytes", g.code_bytes()},
           {"training_vectors", training_vectors},
           {"local", "rootsift"}};
-}
-
-// A tile an `add` leaves alone: its catalog entry and its images' codes (for the global index).
-struct CarriedTile {
-  CatalogTile entry;
-  cv::Mat codes;  // one row per image, in image id order
-};
-
-// Fault injection for the crash-safety test: SIGHTFIX_KILL_AT=<point> makes the process kill
-// itself with SIGKILL at that point ("tile:N" after the N-th tile file, "catalog" before the
-// catalog is switched, "cleanup" after the switch, before old files go).
-void MaybeKillAt(const std::string& point) {
-  static const char* at = std::getenv("SIGHTFIX_KILL_AT");
-  if (at && point == at) std::raise(SIGKILL);
 }
 
 std::vector<uint8_t> GlobalIndex(const GlobalDescriptor& model, const cv::Mat& codes,
@@ -339,89 +299,17 @@ std::vector<uint8_t> GlobalIndex(const GlobalDescriptor& model, const cv::Mat& c
   return IndexBytes(global);
 }
 
-// Writes the tiles of b's rows (grouped by tile_of_row) under new versioned names, then the
-// catalog listing them and the carried tiles, renamed into place last. Fills the byte counts.
-Status Publish(const BuildOptions& o, const Built& b, const std::vector<TileKey>& tile_of_row,
-               const std::vector<CarriedTile>& carried, Catalog& catalog, BuildSummary* summary) {
-  std::map<TileKey, std::vector<int>> by_tile;
-  for (size_t r = 0; r < b.survey->rows.size(); ++r)
-    by_tile[tile_of_row[r]].push_back(static_cast<int>(r));
-  cv::Mat all_codes;
-  std::vector<faiss::Index::idx_t> ids;
-  double local_bytes = 0, point_bytes = 0, file_bytes = 0;
-  int written = 0;
-  // On a failure (a full disk, say) this run's files go again: the catalog never named them,
-  // and the map stays what it was.
-  std::vector<std::string> new_files;
-  auto undo = [&new_files](Status s) {
-    std::error_code ec;
-    for (const std::string& f : new_files) fs::remove(f, ec);
-    return s;
-  };
-  for (const auto& [key, rows] : by_tile) {
-    const TileData tile = MakeTile(b, key, rows);
-    const std::string rel = TileFileName(key, b.map_version);
-    const std::string path = (fs::path(o.map_dir) / rel).string();
-    if (Status s = WriteTile(path, tile); !s.ok()) return undo(s);
-    new_files.push_back(path);
-    MaybeKillAt("tile:" + std::to_string(++written));
-    Result<std::string> sha = Sha256OfFile(path);
-    if (!sha.ok()) return undo(sha.status());
-    const int ordinal = static_cast<int>(catalog.tiles.size());
-    catalog.tiles.push_back({key, rel, *sha, static_cast<int>(tile.images.size()),
-                             static_cast<int>(tile.points.size()), b.model_id});
-    for (const ReferenceImage& img : tile.images) {
-      all_codes.push_back(b.codes.row(rows[img.id]));
-      ids.push_back(GlobalImageId(ordinal, img.id));
-      local_bytes += img.normalized.size() * (sizeof(cv::Point2f) + 128 + sizeof(int32_t));
-    }
-    point_bytes += tile.points.size() * (3 * 8 + 6 * 4 + 128 + 4);
-    file_bytes += fs::file_size(path);
-    summary->points += static_cast<int>(tile.points.size());
-  }
-  for (const CarriedTile& c : carried) {
-    const int ordinal = static_cast<int>(catalog.tiles.size());
-    catalog.tiles.push_back(c.entry);
-    for (int i = 0; i < c.codes.rows; ++i) {
-      all_codes.push_back(c.codes.row(i));
-      ids.push_back(GlobalImageId(ordinal, i));
-    }
-  }
-  catalog.global_index = GlobalIndex(*b.model, all_codes, ids);
-  const double n = std::max<double>(1, b.survey->rows.size());
-  summary->tiles = static_cast<int>(catalog.tiles.size());
-  summary->global_code_bytes = b.codes.cols;
-  summary->local_feature_bytes = local_bytes / n;
-  summary->point_bytes = point_bytes / n;
-  summary->tile_file_bytes = file_bytes / n;
-  MaybeKillAt("catalog");
-  Status s = WriteCatalog((fs::path(o.map_dir) / "catalog.sqlite").string(), catalog);
-  return s.ok() ? s : undo(s);
-}
-
-// After the switch: tile files no catalog entry names (the versions it replaced, leftovers of
-// an interrupted run) go.
-void RemoveUnlistedTiles(const std::string& map_dir, const Catalog& catalog) {
-  MaybeKillAt("cleanup");
-  std::set<std::string> listed;
+void RemoveUnlistedTiles(Env* env, const std::string& map_dir, const Catalog& catalog) {
+  std::set<std::string> listed;  // relative to map_dir
   for (const CatalogTile& t : catalog.tiles)
-    listed.insert((fs::path(map_dir) / t.file).lexically_normal().string());
+    listed.insert(fs::path(t.file).lexically_normal().string());
   const fs::path tiles = fs::path(map_dir) / "tiles";
-  if (!fs::exists(tiles)) return;
-  std::vector<fs::path> stale;
-  for (const auto& e : fs::recursive_directory_iterator(tiles))
-    if (e.is_regular_file() && !listed.count(e.path().lexically_normal().string()))
-      stale.push_back(e.path());
-  std::error_code ec;
-  for (const fs::path& p : stale) fs::remove(p, ec);
-}
-
-nlohmann::json DriveRecord(const BuildOptions& o, const BuildSummary& s) {
-  return {{"drive", fs::absolute(o.drive_dir).lexically_normal().string()},
-          {"format", s.input_format},
-          {"images", s.images},
-          {"skipped", s.skipped.size()},
-          {"added", NowIsoUtc()}};
+  if (!env->FileExists(tiles.string())) return;
+  Result<std::vector<std::string>> files = env->ListDirectory(tiles.string(), true);
+  if (!files.ok()) return;
+  for (const std::string& f : *files)
+    if (!listed.count((fs::path("tiles") / f).lexically_normal().string()))
+      env->RemoveFile((tiles / f).string());
 }
 
 Result<SurveyRows> ReadSurvey(const BuildOptions& o) {
@@ -437,7 +325,7 @@ Result<SurveyRows> ReadSurvey(const BuildOptions& o) {
 
 Result<int> NextMapVersion(const BuildOptions& o) {
   const std::string path = (fs::path(o.map_dir) / "catalog.sqlite").string();
-  if (!fs::exists(path)) return 1;
+  if (!o.env->FileExists(path)) return 1;
   if (!o.overwrite)
     return Status(StatusCode::kFailedPrecondition,
                   o.map_dir + " already holds a map; pass --overwrite to replace it");
@@ -465,6 +353,7 @@ bool BuildOptions::Validate(std::string* error) const {
     return false;
   };
   if (drive_dir.empty()) return fail("drive_dir is required");
+  if (env == nullptr) return fail("env must not be null");
   if (!(max_gap_s > 0)) return fail("max_gap_s must be > 0");
   if (map_dir.empty()) return fail("map_dir is required");
   if (zoom < 10 || zoom > 22) return fail("zoom must be within [10, 22]");
@@ -477,240 +366,6 @@ bool BuildOptions::Validate(std::string* error) const {
   if (!descriptor.Validate(&e)) return fail("descriptor: " + e);
   if (!structure.Validate(&e)) return fail("structure: " + e);
   return true;
-}
-
-namespace {
-
-// Features of a stored image, as the structure step wants them: keypoints back in pixels
-// through its calibration, descriptors from the compact bytes.
-LocalFeatures StoredFeatures(const ReferenceImage& img, const CameraModel& cam) {
-  LocalFeatures f;
-  f.type = FeatureType::kRootSift;
-  img.descriptors.convertTo(f.descriptors, CV_32F, 1.0 / kRootSiftByteScale);
-  for (const cv::Point2f& n : img.normalized) {
-    f.normalized.emplace_back(n.x, n.y);
-    f.keypoints.emplace_back(cam.Project(cv::Vec3d(n.x, n.y, 1)), 1.0f);
-  }
-  return f;
-}
-
-// A stored image's global code as a 1-row matrix (its own copy).
-cv::Mat CodeRow(const ReferenceImage& img) {
-  return cv::Mat(1, static_cast<int>(img.global_code.size()), CV_8U,
-                 const_cast<uint8_t*>(img.global_code.data()))
-      .clone();
-}
-
-// Appends a tile's images to a survey (rows, cameras, features) and their codes to *codes.
-void AppendTile(const TileData& t, Survey* s, cv::Mat* codes) {
-  const int camera_base = static_cast<int>(s->cameras.size());
-  for (const CameraModel& c : t.cameras) s->cameras.push_back(c);
-  for (const ReferenceImage& img : t.images) {
-    DriveRow r;
-    r.image = img.name;
-    r.timestamp_s = img.timestamp_s;
-    r.position = img.position;
-    r.attitude = img.attitude;
-    r.sigma_h_m = img.sigma_h_m;
-    s->rows.push_back(r);
-    s->attitude_sigma_deg.push_back(0);
-    s->camera_of_row.push_back(camera_base + img.camera_id);
-    s->features.push_back(StoredFeatures(img, t.cameras[img.camera_id]));
-    codes->push_back(CodeRow(img));
-  }
-}
-
-// The map's catalog, read under the writer lock (taken here, held by the caller for its run).
-Result<Catalog> ExistingCatalog(const BuildOptions& o, std::optional<MapWriterLock>* lock) {
-  const std::string path = (fs::path(o.map_dir) / "catalog.sqlite").string();
-  if (!fs::exists(path)) return Status::NotFound("no map in " + o.map_dir + " (no catalog.sqlite)");
-  Result<MapWriterLock> held = MapWriterLock::Acquire(o.map_dir);
-  if (!held.ok()) return held.status();
-  lock->emplace(std::move(held).value());
-  return ReadCatalog(path);
-}
-
-// The survey of one new drive, ingested and checked as `build` does; names prefixed with the
-// drive folder's name so they stay unique across drives.
-Result<Survey> IngestDrive(const BuildOptions& o, BuildSummary* summary) {
-  Survey s;
-  Result<SurveyRows> rows = ReadSurvey(o);
-  if (!rows.ok()) return rows.status();
-  summary->input_format = SurveyFormatName(rows->format);
-  summary->skipped = rows->problems;
-  s.rows = std::move(rows->rows);
-  s.attitude_sigma_deg = std::move(rows->attitude_sigma_deg);
-  s.origin = std::move(rows->origin);
-  if (Status st = LoadCameras(o, &s, &summary->skipped); !st.ok()) return st;
-  if (Status st = ExtractAll(o, &s, &summary->skipped); !st.ok()) return st;
-  if (s.rows.empty()) return Status::InvalidArgument(o.drive_dir + ": no usable survey image");
-  const std::string label = fs::absolute(o.drive_dir).lexically_normal().filename().string();
-  for (DriveRow& r : s.rows) r.image = label + "/" + r.image;
-  return s;
-}
-
-// Appends survey b's rows to a.
-void AppendSurvey(Survey&& b, Survey* a) {
-  const int base = static_cast<int>(a->cameras.size());
-  for (CameraModel& c : b.cameras) a->cameras.push_back(c);
-  for (size_t i = 0; i < b.rows.size(); ++i) {
-    a->rows.push_back(b.rows[i]);
-    a->attitude_sigma_deg.push_back(b.attitude_sigma_deg[i]);
-    a->camera_of_row.push_back(base + b.camera_of_row[i]);
-    a->features.push_back(std::move(b.features[i]));
-  }
-}
-
-std::string TileNameOf(const std::string& map_dir, const CatalogTile& t) {
-  return (fs::path(map_dir) / t.file).string();
-}
-
-}  // namespace
-
-Result<BuildSummary> AddToMap(const BuildOptions& o) {
-  std::string error;
-  if (!o.Validate(&error)) return Status::InvalidArgument(error);
-  PinLibraryThreads();
-  const auto t_start = Clock::now();
-  std::optional<MapWriterLock> lock;
-  Result<Catalog> old = ExistingCatalog(o, &lock);
-  if (!old.ok()) return old.status();
-  Result<GlobalDescriptor> model = GlobalDescriptor::Deserialize(old->model_blob);
-  if (!model.ok()) return model.status();
-  BuildSummary summary;
-  summary.map_version = old->map_version + 1;
-  summary.model_id = old->model_id;
-  summary.codec = model->codec_name();
-  auto t0 = Clock::now();
-  Result<Survey> fresh = IngestDrive(o, &summary);
-  if (!fresh.ok()) return fresh.status();
-  summary.images = static_cast<int>(fresh->rows.size());
-  summary.feature_s = SecondsSince(t0);
-
-  // Tiles the new drive touches are rebuilt with their old images; the others are carried.
-  std::set<TileKey> touched;
-  for (const DriveRow& r : fresh->rows)
-    touched.insert(TileForPoint(r.position.lat_deg, r.position.lon_deg, old->zoom));
-  Survey all;
-  cv::Mat codes;
-  std::vector<TileKey> tile_of_row;
-  std::vector<CarriedTile> carried;
-  for (const CatalogTile& ct : old->tiles) {
-    Result<TileData> tile = ReadTile(TileNameOf(o.map_dir, ct));
-    if (!tile.ok()) return tile.status();
-    if (!touched.count(ct.key)) {
-      CarriedTile c{ct, cv::Mat()};
-      for (const ReferenceImage& img : tile->images) c.codes.push_back(CodeRow(img));
-      carried.push_back(std::move(c));
-      continue;
-    }
-    AppendTile(*tile, &all, &codes);
-    tile_of_row.resize(all.rows.size(), ct.key);  // old images stay in their tile
-  }
-  codes.push_back(EncodeAll(*model, *fresh));
-  AppendSurvey(std::move(fresh).value(), &all);
-
-  Say(o, "matching, triangulating and adjusting the touched tiles with the new frames");
-  const EnuFrame enu(all.rows[0].position);
-  Result<StructureResult> structure = Adjust(o, all, enu, &summary);
-  if (!structure.ok()) return structure.status();
-  // New images go to the tile of their surveyed position: touched by construction, so no
-  // carried tile ever gets a second version.
-  for (size_t r = tile_of_row.size(); r < all.rows.size(); ++r)
-    tile_of_row.push_back(
-        TileForPoint(all.rows[r].position.lat_deg, all.rows[r].position.lon_deg, old->zoom));
-
-  t0 = Clock::now();
-  Say(o, "writing " + std::to_string(touched.size()) + " touched tiles and the catalog");
-  Catalog catalog = *old;
-  catalog.map_version = summary.map_version;
-  catalog.tiles.clear();
-  nlohmann::json provenance = nlohmann::json::parse(old->provenance, nullptr, false);
-  if (!provenance.is_object()) provenance = nlohmann::json::object();
-  if (!provenance.contains("drives") && provenance.contains("drive")) {  // maps before `add`
-    provenance["drives"] = {{{"drive", provenance["drive"]}, {"images", provenance["images"]}}};
-    provenance.erase("drive");
-    provenance.erase("images");
-  }
-  provenance["drives"].push_back(DriveRecord(o, summary));
-  catalog.provenance = provenance.dump();
-  BuildOptions po = o;
-  po.zoom = old->zoom;
-  const Built built{&all, &*model, old->model_id, codes, &*structure, &enu, summary.map_version};
-  if (Status st = Publish(po, built, tile_of_row, carried, catalog, &summary); !st.ok()) return st;
-  RemoveUnlistedTiles(o.map_dir, catalog);
-  summary.write_s = SecondsSince(t0);
-  summary.seconds = SecondsSince(t_start);
-  summary.images_per_s = summary.images / std::max(summary.seconds, 1e-9);
-  return summary;
-}
-
-Result<BuildSummary> RetrainMap(const BuildOptions& o) {
-  PinLibraryThreads();
-  const auto t_start = Clock::now();
-  std::optional<MapWriterLock> lock;
-  Result<Catalog> old = ExistingCatalog(o, &lock);
-  if (!old.ok()) return old.status();
-  Survey all;
-  cv::Mat old_codes;
-  std::vector<TileData> tiles;
-  for (const CatalogTile& ct : old->tiles) {
-    Result<TileData> tile = ReadTile(TileNameOf(o.map_dir, ct));
-    if (!tile.ok()) return tile.status();
-    AppendTile(*tile, &all, &old_codes);
-    tiles.push_back(std::move(tile).value());
-  }
-  BuildSummary summary;
-  summary.images = static_cast<int>(all.rows.size());
-  summary.map_version = old->map_version + 1;
-  Say(o, "training a new global descriptor model on " + std::to_string(summary.images) + " images");
-  Result<TrainedModel> trained = TrainAndEncode(o, all, &summary);
-  if (!trained.ok()) return trained.status();
-  const GlobalDescriptor* model = &trained->model;
-  const cv::Mat& codes = trained->codes;
-  const std::vector<uint8_t>& blob = trained->blob;
-
-  auto t0 = Clock::now();
-  Say(o, "rewriting every tile with the new codes");
-  Catalog catalog = *old;
-  catalog.map_version = summary.map_version;
-  catalog.model_id = summary.model_id;
-  catalog.model_blob = blob;
-  catalog.model_params = ModelParams(*model, summary.training_vectors).dump();
-  catalog.tiles.clear();
-  std::vector<faiss::Index::idx_t> ids;
-  int row = 0, written = 0;
-  for (TileData& t : tiles) {
-    const cv::Mat tile_codes = codes.rowRange(row, row + static_cast<int>(t.images.size()));
-    for (size_t i = 0; i < t.images.size(); ++i) {
-      t.images[i].global_code.assign(tile_codes.ptr<uint8_t>(i),
-                                     tile_codes.ptr<uint8_t>(i) + codes.cols);
-      ids.push_back(GlobalImageId(static_cast<int>(catalog.tiles.size()), static_cast<int>(i)));
-    }
-    row += static_cast<int>(t.images.size());
-    t.model_id = summary.model_id;
-    t.map_version = summary.map_version;
-    t.retrieval_index = IndexBytes(*model->MakeIndex(tile_codes));
-    const std::string rel = TileFileName(t.key, summary.map_version);
-    const std::string path = (fs::path(o.map_dir) / rel).string();
-    if (Status s = WriteTile(path, t); !s.ok()) return s;
-    MaybeKillAt("tile:" + std::to_string(++written));
-    Result<std::string> sha = Sha256OfFile(path);
-    if (!sha.ok()) return sha.status();
-    catalog.tiles.push_back({t.key, rel, *sha, static_cast<int>(t.images.size()),
-                             static_cast<int>(t.points.size()), summary.model_id});
-    summary.points += static_cast<int>(t.points.size());
-  }
-  summary.tiles = static_cast<int>(catalog.tiles.size());
-  catalog.global_index = GlobalIndex(*model, codes, ids);
-  MaybeKillAt("catalog");
-  if (Status s = WriteCatalog((fs::path(o.map_dir) / "catalog.sqlite").string(), catalog); !s.ok())
-    return s;
-  RemoveUnlistedTiles(o.map_dir, catalog);
-  summary.write_s = SecondsSince(t0);
-  summary.seconds = SecondsSince(t_start);
-  summary.images_per_s = summary.images / std::max(summary.seconds, 1e-9);
-  return summary;
 }
 
 }  // namespace sightfix

@@ -21,12 +21,13 @@
 #include <string>
 #include <vector>
 
-#include "indexer/vision/global_descriptor.h"
-#include "indexer/vision/local_features.h"
+#include "indexer/base/env.h"
 #include "indexer/base/status.h"
 #include "indexer/builder/structure.h"
 #include "indexer/builder/survey_source.h"
 #include "indexer/map/tile_key.h"
+#include "indexer/vision/global_descriptor.h"
+#include "indexer/vision/local_features.h"
 
 namespace sightfix {
 
@@ -52,6 +53,10 @@ struct BuildOptions {
   // bounds (DEVELOPERS.md, "Scale-out"); 40 m covers the 3 neighbours x 12 m a track can span.
   double margin_m = 40.0;
   bool progress = true;  // progress on stderr
+  // Every file the build creates, syncs, renames, lists or removes, and the wall clock it records,
+  // go through this Env (borrowed; must outlive the call). SQLite opens its own files. Tests wrap
+  // it to inject crashes and I/O errors.
+  Env* env = Env::Default();
   FeatureOptions features;
   GlobalDescriptorOptions descriptor;
   StructureOptions structure;
@@ -114,14 +119,20 @@ struct ShardSummary {
   std::vector<std::string> skipped;
   double seconds = 0, feature_s = 0, structure_s = 0;  // not in the manifest: it stays the same
 };
-Result<ShardSummary> BuildTilesStep(const std::string& plan_path, int shard, int shards, int jobs,
-                                    bool progress);
+// What build-tiles and publish take besides the plan (the plan fixes everything else).
+struct StepOptions {
+  int jobs = 0;               // worker threads; 0 = all cores
+  bool progress = true;       // progress on stderr
+  Env* env = Env::Default();  // as BuildOptions::env
+};
+Result<ShardSummary> BuildTilesStep(const std::string& plan_path, int shard, int shards,
+                                    const StepOptions& options);
 
 // publish: checks the plan's every shard (manifest present, same plan, same model, each tile
 // file's SHA-256), moves the tiles into the map and switches the catalog in one transaction.
 // kFailedPrecondition naming each missing shard; a publish already done says so and changes
 // nothing (summary.already_published).
-Result<BuildSummary> PublishStep(const std::string& plan_path, bool progress);
+Result<BuildSummary> PublishStep(const std::string& plan_path, const StepOptions& options);
 
 // `add`: one more survey (options.drive_dir) into the map at options.map_dir with the map's own
 // model and zoom. Tiles the new frames fall in are rebuilt from their stored images plus the

@@ -12,6 +12,7 @@
 #include <fstream>
 #include <numeric>
 
+#include "indexer/base/env.h"
 #include "indexer/map/map_store.h"
 
 namespace sightfix {
@@ -89,9 +90,11 @@ Status AddIvfShard(const std::string& trained_path, const float* x, const int64_
   Result<std::unique_ptr<faiss::IndexIVFPQ>> index = ReadIvf(trained_path, 0);
   if (!index.ok()) return index.status();
   const size_t d = (*index)->d;
-  if (Status s = WriteFileAtomically(shard_path + ".vec", x, n * d * sizeof(float)); !s.ok())
+  if (Status s = WriteFileAtomically(Env::Default(), shard_path + ".vec", x, n * d * sizeof(float));
+      !s.ok())
     return s;
-  if (Status s = WriteFileAtomically(shard_path + ".ids", ids, n * sizeof(int64_t)); !s.ok())
+  if (Status s = WriteFileAtomically(Env::Default(), shard_path + ".ids", ids, n * sizeof(int64_t));
+      !s.ok())
     return s;
   return Guard("IVF shard " + shard_path, [&] {
     (*index)->add_with_ids(n, x, ids);

@@ -1,106 +1,12 @@
-// The map on disk: one SQLite file per WebMercatorQuad tile and a catalog.
+// The map on disk, in one include: tile files (tile_store.h) and the catalog (catalog.h).
 //
 //   MAPDIR/catalog.sqlite                 model, tile list with SHA-256s, map version, global index
 //   MAPDIR/tiles/Z/X/Y-vN.sqlite          one tile, version N (self-contained: copy it and it
-//   serves)
+//                                         serves)
 //
-// A tile holds its reference images (pose, calibration, global code, compact local features and
-// which 3D point each keypoint observes), its 3D points (ENU of the tile's origin, covariance,
-// representative descriptor) and its retrieval index (a FAISS index over the images' global codes,
-// ids = image ids, serialized with faiss::write_index). Schemas: DEVELOPERS.md "Map format".
-//
-// Writes go to PATH.tmp, are fsynced, then renamed onto PATH, so a reader sees a whole file or
-// none. Thread safety: functions are reentrant; SQLite handles are not shared.
+// Every writer goes PATH.tmp, fsync, rename through an Env (indexer/base/env.h), so a reader sees
+// a whole file or none, and tests can inject faults. Schemas: DEVELOPERS.md "Map format".
 #pragma once
 
-#include <cstdint>
-#include <string>
-#include <vector>
-
-#include "indexer/map/camera_model.h"
-#include "indexer/base/geo.h"
-#include "indexer/base/rotation.h"
-#include "indexer/base/status.h"
-#include "indexer/map/tile_key.h"
-
-namespace sightfix {
-
-// 2: cameras carry their lens model (pinhole or fisheye).
-constexpr int kMapFormatVersion = 2;
-
-struct ReferenceImage {
-  int id = 0;  // 0..n-1 within the tile; the retrieval index's id
-  std::string name;
-  double timestamp_s = 0;
-  GeoPoint position;  // adjusted survey pose
-  Attitude attitude;
-  double sigma_h_m = 0;  // 1-sigma per horizontal axis of the survey pose
-  int camera_id = 0;     // index into TileData::cameras
-  std::vector<uint8_t> global_code;
-  std::vector<cv::Point2f> normalized;  // undistorted (x/z, y/z) per keypoint
-  cv::Mat descriptors;                  // n x 128 CV_8U (CompactDescriptors)
-  std::vector<int32_t> point_ids;       // per keypoint: index into TileData::points, or -1
-};
-
-struct MapPoint {
-  cv::Vec3d enu;           // metres, ENU of the tile's origin
-  cv::Matx33d covariance;  // m^2, triangulation given the adjusted poses
-  cv::Mat descriptor;      // 1 x 128 CV_8U, the medoid of its observations
-  int observations = 0;
-};
-
-struct TileData {
-  TileKey key;
-  GeoPoint origin;  // ENU origin of the points
-  std::string model_id;
-  int map_version = 0;
-  std::vector<CameraModel> cameras;
-  std::vector<ReferenceImage> images;
-  std::vector<MapPoint> points;
-  std::vector<uint8_t> retrieval_index;  // faiss::write_index bytes
-};
-
-// Writes a whole tile (PATH.tmp, fsync, rename). Creates parent folders.
-Status WriteTile(const std::string& path, const TileData& tile);
-// Any file whole or not at all: written to PATH.tmp.<pid>, fsynced, renamed onto PATH (parent
-// folders made). Staging files, plans, manifests and index parts use it.
-Status WriteFileAtomically(const std::string& path, const void* data, size_t size);
-// Reads and checks a tile (schema version, counts, blob sizes); kCorrupt names what is wrong.
-Result<TileData> ReadTile(const std::string& path);
-
-struct CatalogTile {
-  TileKey key;
-  std::string file;  // relative to the map folder
-  std::string sha256;
-  int images = 0, points = 0;
-  std::string model_id;
-};
-
-struct Catalog {
-  int format_version = kMapFormatVersion;
-  int map_version = 0;
-  int zoom = kDefaultTileZoom;
-  std::string model_id;             // SHA-256 of model_blob, first 16 hex digits
-  std::string model_params;         // JSON: what the model was trained with
-  std::vector<uint8_t> model_blob;  // GlobalDescriptor::Serialize
-  std::string feature_type = "rootsift";
-  std::vector<CatalogTile> tiles;
-  // FAISS index over every image's code; id = GlobalImageId(tile ordinal, image id).
-  std::vector<uint8_t> global_index;
-  std::string created_utc;  // ISO 8601
-  std::string provenance;   // JSON: inputs and options of the build
-};
-
-inline int64_t GlobalImageId(int tile_ordinal, int image_id) {
-  return (static_cast<int64_t>(tile_ordinal) << 32) | static_cast<uint32_t>(image_id);
-}
-inline int TileOrdinalOf(int64_t global_id) { return static_cast<int>(global_id >> 32); }
-inline int ImageIdOf(int64_t global_id) { return static_cast<int>(global_id & 0xffffffff); }
-
-Status WriteCatalog(const std::string& path, const Catalog& catalog);
-Result<Catalog> ReadCatalog(const std::string& path);
-
-// "tiles/Z/X/Y-vN.sqlite"
-std::string TileFileName(const TileKey& key, int map_version);
-
-}  // namespace sightfix
+#include "indexer/map/catalog.h"
+#include "indexer/map/tile_store.h"

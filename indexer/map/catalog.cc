@@ -1,0 +1,133 @@
+#include "indexer/map/catalog.h"
+
+#include <cstdlib>
+#include <filesystem>
+
+#include "indexer/map/sqlite_rows.h"
+
+namespace sightfix {
+namespace {
+
+using namespace sqlite_rows;
+
+constexpr char kCatalogSchema[] = R"sql(
+CREATE TABLE meta(key TEXT PRIMARY KEY, value TEXT NOT NULL);
+CREATE TABLE model(id TEXT PRIMARY KEY, params TEXT NOT NULL, blob BLOB NOT NULL);
+CREATE TABLE tiles(ordinal INTEGER PRIMARY KEY, tile TEXT NOT NULL UNIQUE, file TEXT NOT NULL,
+  sha256 TEXT NOT NULL, images INTEGER, points INTEGER, model_id TEXT NOT NULL);
+CREATE TABLE global_index(id INTEGER PRIMARY KEY, faiss_index BLOB NOT NULL);
+)sql";
+
+Status WriteTileRows(sqlite3* db, const Catalog& c) {
+  Result<Stmt> t = Prepare(db, "INSERT INTO tiles VALUES(?,?,?,?,?,?,?)");
+  if (!t.ok()) return t.status();
+  for (size_t i = 0; i < c.tiles.size(); ++i) {
+    const CatalogTile& ct = c.tiles[i];
+    Binder{t->get()} << static_cast<int>(i) << ct.key.ToString() << ct.file << ct.sha256
+                     << ct.images << ct.points << ct.model_id;
+    if (Status s = StepDone(db, t->get()); !s.ok()) return s;
+  }
+  return Status::Ok();
+}
+
+Status WriteCatalogRows(sqlite3* db, const Catalog& c) {
+  if (Status s = Exec(db, kCatalogSchema); !s.ok()) return s;
+  if (Status s = InsertMeta(db, {{"format_version", std::to_string(c.format_version)},
+                                 {"map_version", std::to_string(c.map_version)},
+                                 {"zoom", std::to_string(c.zoom)},
+                                 {"model_id", c.model_id},
+                                 {"feature_type", c.feature_type},
+                                 {"created_utc", c.created_utc},
+                                 {"provenance", c.provenance}});
+      !s.ok())
+    return s;
+  Result<Stmt> m = Prepare(db, "INSERT INTO model VALUES(?,?,?)");
+  if (!m.ok()) return m.status();
+  (Binder{m->get()} << c.model_id << c.model_params).Blob(c.model_blob.data(), c.model_blob.size());
+  if (Status s = StepDone(db, m->get()); !s.ok()) return s;
+  if (Status s = WriteTileRows(db, c); !s.ok()) return s;
+  Result<Stmt> g = Prepare(db, "INSERT INTO global_index VALUES(0,?)");
+  if (!g.ok()) return g.status();
+  Binder{g->get()}.Blob(c.global_index.data(), c.global_index.size());
+  return StepDone(db, g->get());
+}
+
+// The meta table into *c; the format version checked.
+Status ReadCatalogMeta(sqlite3* db, const std::string& path, Catalog* c) {
+  Result<MetaRows> meta = ReadMetaOf(db, path, "catalog");
+  if (!meta.ok()) return meta.status();
+  c->format_version = std::atoi(MetaValue(*meta, "format_version").c_str());
+  if (c->format_version != kMapFormatVersion)
+    return Status::Corrupt(path + ": map format version " + std::to_string(c->format_version) +
+                           ", this build reads " + std::to_string(kMapFormatVersion));
+  c->map_version = std::atoi(MetaValue(*meta, "map_version").c_str());
+  c->zoom = std::atoi(MetaValue(*meta, "zoom").c_str());
+  c->model_id = MetaValue(*meta, "model_id");
+  c->feature_type = MetaValue(*meta, "feature_type");
+  c->created_utc = MetaValue(*meta, "created_utc");
+  c->provenance = MetaValue(*meta, "provenance");
+  return Status::Ok();
+}
+
+Status ReadModel(sqlite3* db, const std::string& path, Catalog* c) {
+  Result<Stmt> m = Prepare(db, "SELECT params, blob FROM model WHERE id = ?");
+  if (!m.ok()) return m.status();
+  Binder{m->get()} << c->model_id;
+  if (sqlite3_step(m->get()) != SQLITE_ROW)
+    return Status::Corrupt(path + ": model " + c->model_id + " is missing");
+  c->model_params = ColumnText(m->get(), 0);
+  c->model_blob = ColumnBlob(m->get(), 1);
+  return Status::Ok();
+}
+
+Status ReadTileRow(sqlite3_stmt* s, const std::string& path, Catalog* c) {
+  const std::string row = std::to_string(c->tiles.size());
+  CatalogTile ct;
+  Result<TileKey> key = ParseTileKey(ColumnText(s, 1));
+  if (!key.ok() || sqlite3_column_int(s, 0) != static_cast<int>(c->tiles.size()))
+    return Status::Corrupt(path + ": bad tile row " + row);
+  ct.key = *key;
+  ct.file = ColumnText(s, 2);
+  if (ct.file.rfind("tiles/", 0) != 0 || ct.file.find("..") != std::string::npos)
+    return Status::Corrupt(path + ": tile row " + row + " names a file outside tiles/");
+  ct.sha256 = ColumnText(s, 3);
+  ct.images = sqlite3_column_int(s, 4);
+  ct.points = sqlite3_column_int(s, 5);
+  ct.model_id = ColumnText(s, 6);
+  c->tiles.push_back(ct);
+  return Status::Ok();
+}
+
+Status ReadTiles(sqlite3* db, const std::string& path, Catalog* c) {
+  Result<Stmt> t = Prepare(db,
+                           "SELECT ordinal, tile, file, sha256, images, points, "
+                           "model_id FROM tiles ORDER BY ordinal");
+  if (!t.ok()) return t.status();
+  int rc;
+  while ((rc = sqlite3_step(t->get())) == SQLITE_ROW)
+    if (Status s = ReadTileRow(t->get(), path, c); !s.ok()) return s;
+  return Finished(db, rc, "tiles");
+}
+
+}  // namespace
+
+Status WriteCatalog(const std::string& path, const Catalog& catalog, Env* env) {
+  return WriteSqliteAtomically(env, path,
+                               [&](sqlite3* db) { return WriteCatalogRows(db, catalog); });
+}
+
+Result<Catalog> ReadCatalog(const std::string& path) {
+  if (!std::filesystem::exists(path)) return Status::NotFound("no map catalog " + path);
+  Result<Db> db = OpenDb(path, false);
+  if (!db.ok()) return db.status();
+  Catalog c;
+  if (Status s = ReadCatalogMeta(db->get(), path, &c); !s.ok()) return s;
+  if (Status s = ReadModel(db->get(), path, &c); !s.ok()) return s;
+  if (Status s = ReadTiles(db->get(), path, &c); !s.ok()) return s;
+  Result<Stmt> g = Prepare(db->get(), "SELECT faiss_index FROM global_index WHERE id = 0");
+  if (!g.ok()) return g.status();
+  if (sqlite3_step(g->get()) == SQLITE_ROW) c.global_index = ColumnBlob(g->get(), 0);
+  return c;
+}
+
+}  // namespace sightfix
