@@ -1,6 +1,7 @@
 #include "client/eval/route_eval.h"
 
 #include <algorithm>
+#include <array>
 #include <chrono>
 #include <cmath>
 #include <cstdio>
@@ -65,8 +66,7 @@ Result<std::string> ReadBytes(const fs::path& path) {
 
 // One query: the call, the gnss-mode retry, timing and scoring.
 void RunQuery(const LocateFn& locate, const RouteEvalOptions& o, const fs::path& dir,
-              const CameraModel& camera, const std::optional<PriorCircle>& prior,
-              QueryResult* q) {
+              const CameraModel& camera, const std::optional<PriorCircle>& prior, QueryResult* q) {
   q->ran = true;
   q->prior = prior;
   Result<std::string> bytes = ReadBytes(dir / q->truth.image);
@@ -145,9 +145,9 @@ void ScoreQuery(QueryResult* q) {
 LocateFn InProcess(const Localizer& localizer) {
   return [&localizer](const LocateRequest& request, const std::string& bytes) -> Result<Fix> {
     LocateRequest req = request;
-    req.image = cv::imdecode(cv::Mat(1, static_cast<int>(bytes.size()), CV_8U,
-                                     const_cast<char*>(bytes.data())),
-                             cv::IMREAD_GRAYSCALE);
+    req.image = cv::imdecode(
+        cv::Mat(1, static_cast<int>(bytes.size()), CV_8U, const_cast<char*>(bytes.data())),
+        cv::IMREAD_GRAYSCALE);
     if (req.image.empty()) return Status::InvalidArgument("cannot decode the image");
     return localizer.Locate(req);
   };
@@ -193,7 +193,8 @@ RouteSummary Summarize(const std::vector<QueryResult>& results) {
   RouteSummary s;
   std::vector<double> latency;
   std::vector<const QueryResult*> fixes, refined;
-  int r1 = 0, r5 = 0, r10 = 0, b1 = 0, b2 = 0, b3 = 0;
+  int r1 = 0, r5 = 0, r10 = 0;
+  std::array<int, 3> in_bin{};
   for (const QueryResult& q : results) {
     if (!q.ran) continue;
     ++s.queries;
@@ -206,9 +207,9 @@ RouteSummary Summarize(const std::vector<QueryResult>& results) {
     s.none += quality == FixQuality::kNone;
     if (quality == FixQuality::kNone) continue;
     fixes.push_back(&q);
-    b1 += q.error_m <= 0.25 && q.heading_error_deg <= 2;
-    b2 += q.error_m <= 0.5 && q.heading_error_deg <= 5;
-    b3 += q.error_m <= 5 && q.heading_error_deg <= 10;
+    for (size_t k = 0; k < in_bin.size(); ++k)
+      in_bin[k] += q.error_m <= kPoseBins[k].max_error_m &&
+                   q.heading_error_deg <= kPoseBins[k].max_heading_error_deg;
     if (quality == FixQuality::kCoarse) {
       ++s.coarse;
       continue;
@@ -228,30 +229,43 @@ RouteSummary Summarize(const std::vector<QueryResult>& results) {
   s.median_error_m = r.median_m, s.p90_error_m = r.p90_m, s.p95_error_m = r.p95_m;
   s.max_error_m = r.max_m, s.median_heading_error_deg = r.median_heading_deg;
   s.radius95_coverage = r.radius95_coverage, s.nees_mean = r.nees_mean;
-  s.within_0_25m_2deg = b1 / n, s.within_0_5m_5deg = b2 / n, s.within_5m_10deg = b3 / n;
+  s.within_0_25m_2deg = in_bin[0] / n, s.within_0_5m_5deg = in_bin[1] / n;
+  s.within_5m_10deg = in_bin[2] / n;
   s.latency_ms_p50 = Percentile(latency, 0.5);
   s.latency_ms_p95 = Percentile(latency, 0.95);
   s.latency_ms_p99 = Percentile(latency, 0.99);
   return s;
 }
 
-std::string SummaryLine(const RouteSummary& s) {
-  char buf[512];
-  std::snprintf(buf, sizeof(buf),
-                "%d queries: refined %.1f %% (coarse %d, none %d); error median %.3f m, p90 %.3f "
-                "m, p95 %.3f m, max %.3f m; wrong refined %d; heading median %.2f deg; recall@1/5 "
-                "%.3f/%.3f; bins %.3f/%.3f/%.3f; radius95 coverage %.3f, NEES %.2f; latency p50 "
-                "%.0f ms, p95 %.0f ms",
-                s.queries, 100 * s.refined_share, s.coarse, s.none, s.median_error_m, s.p90_error_m,
-                s.p95_error_m, s.max_error_m, s.wrong_refined, s.median_heading_error_deg,
-                s.recall_at_1, s.recall_at_5, s.within_0_25m_2deg, s.within_0_5m_5deg,
-                s.within_5m_10deg, s.radius95_coverage, s.nees_mean, s.latency_ms_p50,
-                s.latency_ms_p95);
+std::string PoseBinLabel(const PoseBin& bin) {
+  char buf[64];
+  std::snprintf(buf, sizeof(buf), "%s (%g m, %g deg)", bin.name, bin.max_error_m,
+                bin.max_heading_error_deg);
   return buf;
 }
 
-SpoofingRun MonitorDrive(const std::vector<QueryResult>& results,
-                         const std::vector<GnssFix>& gnss, const std::vector<SpoofedSpan>& truth,
+std::array<double, 3> PoseBinShares(const RouteSummary& s) {
+  return {s.within_0_25m_2deg, s.within_0_5m_5deg, s.within_5m_10deg};
+}
+
+std::string SummaryLine(const RouteSummary& s) {
+  const std::array<double, 3> bins = PoseBinShares(s);
+  char buf[640];
+  std::snprintf(buf, sizeof(buf),
+                "%d queries: refined %.1f %% (coarse %d, none %d); error median %.3f m, p90 %.3f "
+                "m, p95 %.3f m, max %.3f m; wrong refined %d; heading median %.2f deg; recall@1/5 "
+                "%.3f/%.3f; pose %s %.3f, %s %.3f, %s %.3f; radius95 coverage %.3f, NEES %.2f; "
+                "latency p50 %.0f ms, p95 %.0f ms",
+                s.queries, 100 * s.refined_share, s.coarse, s.none, s.median_error_m, s.p90_error_m,
+                s.p95_error_m, s.max_error_m, s.wrong_refined, s.median_heading_error_deg,
+                s.recall_at_1, s.recall_at_5, PoseBinLabel(kPoseBins[0]).c_str(), bins[0],
+                PoseBinLabel(kPoseBins[1]).c_str(), bins[1], PoseBinLabel(kPoseBins[2]).c_str(),
+                bins[2], s.radius95_coverage, s.nees_mean, s.latency_ms_p50, s.latency_ms_p95);
+  return buf;
+}
+
+SpoofingRun MonitorDrive(const std::vector<QueryResult>& results, const std::vector<GnssFix>& gnss,
+                         const std::vector<SpoofedSpan>& truth,
                          const SpoofingMonitorOptions& options) {
   std::vector<const QueryResult*> order;
   for (const QueryResult& q : results)
@@ -264,9 +278,9 @@ SpoofingRun MonitorDrive(const std::vector<QueryResult>& results,
   for (const QueryResult* q : order) {
     const std::optional<GnssFix> g = GnssAt(gnss, q->truth.timestamp_s);
     if (!g) continue;
-    run.steps.push_back(monitor.Observe({g->time_s, g->lat_deg, g->lon_deg, g->sigma_h_m},
-                                        {q->truth.timestamp_s, q->fix.lat_deg, q->fix.lon_deg,
-                                         q->fix.covariance_en}));
+    run.steps.push_back(monitor.Observe(
+        {g->time_s, g->lat_deg, g->lon_deg, g->sigma_h_m},
+        {q->truth.timestamp_s, q->fix.lat_deg, q->fix.lon_deg, q->fix.covariance_en}));
   }
   // The replay may cover part of the drive (--limit, Ctrl-C): score the span it covered.
   TimeSpan observed{HUGE_VAL, -HUGE_VAL};

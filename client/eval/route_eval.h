@@ -12,12 +12,13 @@
 //    all fixes (`all`) and over refined fixes only (`refined_only`);
 //  - wrong refined: refined fixes more than 5 m off (must be 0);
 //  - pose bins (0.25 m, 2 deg), (0.5 m, 5 deg), (5 m, 10 deg): share of all queries (Sattler et
-//    al., CVPR 2018);
+//    al., CVPR 2018), named fine, medium and rough here (kPoseBins);
 //  - latency: wall time of each call as the caller saw it, p50 / p95 / p99.
 // Thread safety: RunDrive runs `jobs` threads of its own over the LocateFn, which must be
 // thread-safe (Localizer::Locate and Client::Locate are).
 #pragma once
 
+#include <array>
 #include <atomic>
 #include <cstdint>
 #include <functional>
@@ -27,8 +28,8 @@
 
 #include "client/monitor/gnss_stream.h"
 #include "client/monitor/spoofing_monitor.h"
-#include "indexer/map/drive_manifest.h"
 #include "indexer/base/status.h"
+#include "indexer/map/drive_manifest.h"
 #include "server/engine/localizer.h"
 
 namespace sightfix {
@@ -60,8 +61,8 @@ struct RouteEvalOptions {
   // as a vehicle stack would when its receiver may be lying.
   bool retry_without_prior = true;
   uint64_t seed = 1;
-  int limit = 0;  // first N queries only; 0 = all
-  int jobs = 0;   // queries in flight; 0 = all cores
+  int limit = 0;                            // first N queries only; 0 = all
+  int jobs = 0;                             // queries in flight; 0 = all cores
   const std::atomic<bool>* stop = nullptr;  // when set to true, no new query starts
   std::function<void()> on_query_done;      // called after each query (any thread)
 };
@@ -70,7 +71,7 @@ struct QueryResult {
   bool ran = false;  // false: stopped before this query started
   DriveRow truth;
   Fix fix;
-  double latency_ms = 0;     // wall time of the call(s), as the caller saw it
+  double latency_ms = 0;  // wall time of the call(s), as the caller saw it
   std::optional<PriorCircle> prior;
   bool retried_without_prior = false;  // gnss mode: the answer is the retry's
   double error_m = -1;                 // horizontal, when a fix came back
@@ -101,6 +102,23 @@ struct RouteSummary {
   double latency_ms_p50 = 0, latency_ms_p95 = 0, latency_ms_p99 = 0;
 };
 
+// The three pose bins of Sattler et al. (CVPR 2018) under names of our own, finest first: a
+// query counts in a bin when its fix lies within both bounds of the truth. Text outputs name a
+// bin by its label; summary.json keeps the key.
+struct PoseBin {
+  const char* name;         // "fine", "medium", "rough"
+  const char* summary_key;  // e.g. "within_0_25m_2deg"
+  double max_error_m;       // horizontal
+  double max_heading_error_deg;
+};
+inline constexpr PoseBin kPoseBins[3] = {{"fine", "within_0_25m_2deg", 0.25, 2},
+                                         {"medium", "within_0_5m_5deg", 0.5, 5},
+                                         {"rough", "within_5m_10deg", 5, 10}};
+// "fine (0.25 m, 2 deg)": the name and the bounds.
+std::string PoseBinLabel(const PoseBin& bin);
+// The shares of all queries in each bin of s, in kPoseBins' order.
+std::array<double, 3> PoseBinShares(const RouteSummary& s);
+
 // Nearest-rank percentile (0 < q <= 1) of values; 0 for none.
 double Percentile(std::vector<double> values, double q);
 
@@ -111,7 +129,8 @@ Result<std::vector<QueryResult>> RunDrive(const Localizer& localizer,
 void ScoreQuery(QueryResult* q);
 // Over the queries that ran.
 RouteSummary Summarize(const std::vector<QueryResult>& results);
-// One line: "N queries: refined X %, median ... m, p95 ... m, ...".
+// One line: "N queries: refined X %, median ... m, p95 ... m, ...; pose fine (0.25 m, 2 deg) X,
+// medium (0.5 m, 5 deg) X, rough (5 m, 10 deg) X; ...".
 std::string SummaryLine(const RouteSummary& s);
 
 // The spoofing monitor over a replayed drive: each refined fix against the GNSS fix of its
@@ -121,8 +140,8 @@ struct SpoofingRun {
   SpoofingScore score;
   std::vector<SpoofedSpan> scored;  // the true spans the replay covered, in start order (as scored)
 };
-SpoofingRun MonitorDrive(const std::vector<QueryResult>& results,
-                         const std::vector<GnssFix>& gnss, const std::vector<SpoofedSpan>& truth,
+SpoofingRun MonitorDrive(const std::vector<QueryResult>& results, const std::vector<GnssFix>& gnss,
+                         const std::vector<SpoofedSpan>& truth,
                          const SpoofingMonitorOptions& options = {});
 
 }  // namespace sightfix

@@ -11,23 +11,23 @@
 #include <string>
 #include <vector>
 
-#include "client/monitor/gnss_stream.h"
 #include "client/eval/route_eval.h"
+#include "client/monitor/gnss_stream.h"
 #include "indexer/base/status.h"
 
 namespace sightfix {
 
 struct RouteReport {
   std::string drive_dir;
-  std::string source;       // "server HOST:PORT" or "map DIR"
-  std::string prior;        // the replay's --prior text, e.g. "noisy:150"
+  std::string source;  // "server HOST:PORT" or "map DIR"
+  std::string prior;   // the replay's --prior text, e.g. "noisy:150"
   uint64_t seed = 0;
   int map_version = 0;
   std::string model_id;
-  bool partial = false;     // interrupted: results hold the queries that ran
+  bool partial = false;  // interrupted: results hold the queries that ran
   std::vector<QueryResult> results;
   RouteSummary summary;
-  std::vector<GnssFix> gnss;            // empty without a stream
+  std::vector<GnssFix> gnss;             // empty without a stream
   std::vector<SpoofedSpan> spoof_truth;  // empty without spoofing.csv
   std::optional<SpoofingRun> spoofing;   // set when the stream was monitored
   SpoofingMonitorOptions monitor;
@@ -43,7 +43,8 @@ std::string ReportHtml(const RouteReport& r);
 Status WriteRouteReport(const RouteReport& r, const std::string& out_dir);
 
 // A table of two summary.json objects: key, A, B, B - A; numbers only, nested objects
-// flattened with '.', keys of either side.
+// flattened with '.', keys of either side. A pose bin's key carries its name (route_eval.h):
+// "within_0_25m_2deg (pose fine)".
 std::string CompareSummaries(const nlohmann::json& a, const nlohmann::json& b,
                              const std::string& name_a, const std::string& name_b);
 

@@ -1,7 +1,9 @@
-// The evaluator's metrics (client/eval/route_eval.h) against a hand-worked example, and summary.json
-// against the key list of DESIGN.md 7. Every expected value below is worked out by hand in the
-// comments from the table of six queries.
+// The evaluator's metrics (client/eval/route_eval.h) against a hand-worked example, and
+// summary.json against the key list of DESIGN.md 7. Every expected value below is worked out by
+// hand in the comments from the table of six queries.
 #include <gtest/gtest.h>
+
+#include <map>
 
 #include "client/eval/route_eval.h"
 #include "client/eval/route_report.h"
@@ -25,8 +27,8 @@ QueryResult Query(FixQuality quality, double east, double north, double dh, doub
   Fix& f = q.fix;
   f.quality = quality;
   if (quality != FixQuality::kNone) {
-    const GeodesicDirect p = GeodesicFrom(kLat, kLon, std::atan2(east, north) * 180 / M_PI,
-                                          std::hypot(east, north));
+    const GeodesicDirect p =
+        GeodesicFrom(kLat, kLon, std::atan2(east, north) * 180 / M_PI, std::hypot(east, north));
     f.lat_deg = p.lat_deg, f.lon_deg = p.lon_deg;
     f.heading_deg = kHeading + dh;
     f.covariance_en = cv::Matx22d(var_e, 0, 0, var_n);
@@ -121,18 +123,35 @@ TEST(RouteMetricsTest, SummaryJsonHasEveryKeyWithSharesInRange) {
   r.summary = Summarize(r.results);
   r.map_version = 3;
   const nlohmann::json j = SummaryJson(r);
-  for (const char* key :
-       {"queries", "fixes", "availability", "recall_at_1_25m", "recall_at_5_25m",
-        "recall_at_10_25m", "median_error_m", "p90_error_m", "p95_error_m", "max_error_m",
-        "wrong_refined", "median_heading_error_deg", "within_0_25m_2deg", "within_0_5m_5deg",
-        "within_5m_10deg", "radius95_coverage", "nees_mean", "latency_ms_p50", "latency_ms_p95",
-        "latency_ms_p99", "spoofing", "map_version", "partial"})
+  for (const char* key : {"queries",
+                          "fixes",
+                          "availability",
+                          "recall_at_1_25m",
+                          "recall_at_5_25m",
+                          "recall_at_10_25m",
+                          "median_error_m",
+                          "p90_error_m",
+                          "p95_error_m",
+                          "max_error_m",
+                          "wrong_refined",
+                          "median_heading_error_deg",
+                          "within_0_25m_2deg",
+                          "within_0_5m_5deg",
+                          "within_5m_10deg",
+                          "radius95_coverage",
+                          "nees_mean",
+                          "latency_ms_p50",
+                          "latency_ms_p95",
+                          "latency_ms_p99",
+                          "spoofing",
+                          "map_version",
+                          "partial"})
     EXPECT_TRUE(j.contains(key)) << key;
   for (const char* key : {"segments_true", "segments_flagged", "detection_delay_s", "false_alarms"})
     EXPECT_TRUE(j["spoofing"].contains(key)) << key;
-  for (const char* share : {"availability", "recall_at_1_25m", "recall_at_5_25m",
-                            "recall_at_10_25m", "within_0_25m_2deg", "within_0_5m_5deg",
-                            "within_5m_10deg", "radius95_coverage"}) {
+  for (const char* share :
+       {"availability", "recall_at_1_25m", "recall_at_5_25m", "recall_at_10_25m",
+        "within_0_25m_2deg", "within_0_5m_5deg", "within_5m_10deg", "radius95_coverage"}) {
     EXPECT_GE(j[share].get<double>(), 0) << share;
     EXPECT_LE(j[share].get<double>(), 1) << share;
   }
@@ -151,6 +170,54 @@ TEST(RouteMetricsTest, CompareShowsDeltas) {
   EXPECT_NE(t.find("+0.2500"), std::string::npos) << t;
   EXPECT_NE(t.find("spoofing.false_alarms"), std::string::npos) << t;
   EXPECT_NE(t.find("-1.0000"), std::string::npos) << t;
+}
+
+TEST(RouteMetricsTest, TextOutputsNameThePoseBins) {
+  RouteReport r;
+  r.results = HandTable();
+  r.summary = Summarize(r.results);
+  // The shares of the hand-worked example above: 1/6, 2/6, 3/6.
+  const std::string line = SummaryLine(r.summary);
+  EXPECT_NE(line.find("pose fine (0.25 m, 2 deg) 0.167, medium (0.5 m, 5 deg) 0.333, "
+                      "rough (5 m, 10 deg) 0.500;"),
+            std::string::npos)
+      << line;
+  const std::string html = ReportHtml(r);
+  EXPECT_NE(html.find("<th>pose fine (0.25 m, 2 deg)</th><td>0.167</td>"), std::string::npos);
+  EXPECT_NE(html.find("<th>pose medium (0.5 m, 5 deg)</th><td>0.333</td>"), std::string::npos);
+  EXPECT_NE(html.find("<th>pose rough (5 m, 10 deg)</th><td>0.500</td>"), std::string::npos);
+  const nlohmann::json a = {{"within_0_5m_5deg", 0.25}}, b = {{"within_0_5m_5deg", 0.5}};
+  const std::string t = CompareSummaries(a, b, "A", "B");
+  EXPECT_NE(t.find("within_0_5m_5deg (pose medium)"), std::string::npos) << t;
+  EXPECT_NE(t.find("+0.2500"), std::string::npos) << t;
+}
+
+TEST(RouteMetricsTest, GeoJsonHasTrackFixesErrorsAndAlarms) {
+  RouteReport r;
+  r.results = HandTable();
+  for (size_t i = 0; i < r.results.size(); ++i) r.results[i].truth.timestamp_s = 100.0 + i;
+  r.summary = Summarize(r.results);
+  r.spoof_truth = {SpoofedSpan{{101.5, 102.5}, 3, 0}};
+  r.spoofing = SpoofingRun{};
+  MonitorStep raised;
+  raised.time_s = 102, raised.alarm = raised.alarm_raised = true, raised.nis = 40;
+  MonitorStep held = raised;
+  held.time_s = 103, held.alarm_raised = false;  // still in alarm: no new feature
+  r.spoofing->steps = {raised, held};
+  const nlohmann::json g = RouteGeoJson(r);
+  std::map<std::string, int> kinds;
+  for (const nlohmann::json& f : g["features"]) ++kinds[f["properties"]["kind"]];
+  // One track; a point and an error segment for each of the five fixes; one alarm.
+  EXPECT_EQ(kinds,
+            (std::map<std::string, int>{
+                {"truth_track", 1}, {"fix", 5}, {"error_segment", 5}, {"spoofing_alarm", 1}}));
+  const nlohmann::json& alarm = g["features"].back();
+  EXPECT_EQ(alarm["geometry"]["coordinates"], (nlohmann::json{kLon, kLat}));
+  EXPECT_EQ(alarm["properties"]["during_true_spoofing"], true);
+  EXPECT_EQ(g["features"][0]["geometry"]["coordinates"].size(), 6u);
+  const nlohmann::json& segment = g["features"][2];
+  EXPECT_EQ(segment["geometry"]["type"], "LineString");
+  EXPECT_EQ(segment["geometry"]["coordinates"][0], (nlohmann::json{kLon, kLat}));
 }
 
 }  // namespace

@@ -1,0 +1,129 @@
+// report.html: one self-contained page with the summary table, inline SVG plots and the safety
+// caution.
+#include <array>
+#include <filesystem>
+#include <string>
+#include <vector>
+
+#include "client/eval/report_plots.h"
+#include "client/eval/route_report.h"
+#include "client/eval/route_view.h"
+#include "client/eval/svg_plot.h"
+
+namespace sightfix {
+namespace {
+
+namespace fs = std::filesystem;
+
+constexpr char kSafety[] =
+    "sightfix is a fallback aid, not a certified navigation source. Its positions must not be "
+    "used as the sole means of navigation; defer to the vehicle's safety case and local "
+    "regulations.";
+
+std::string Row(const std::string& name, const std::string& value, const std::string& note = "") {
+  return "<tr><th>" + EscapeXml(name) + "</th><td>" + EscapeXml(value) + "</td><td>" +
+         EscapeXml(note) + "</td></tr>\n";
+}
+
+// "a / b / c", each number printed with `format`.
+std::string Slashed(const std::vector<double>& values, const char* format) {
+  std::string out;
+  for (size_t i = 0; i < values.size(); ++i)
+    out += (i ? " / " : "") + FormatNumber(format, values[i]);
+  return out;
+}
+
+std::string ErrorRows(const RouteSummary& s) {
+  std::string t =
+      Row("error median / p90 / p95 / max (m)",
+          Slashed({s.all.median_m, s.all.p90_m, s.all.p95_m, s.all.max_m}, "%.3f"), "all fixes");
+  t += Row("refined error median / p95 (m)", Slashed({s.median_error_m, s.p95_error_m}, "%.3f"),
+           "refined fixes");
+  t += Row("wrong refined (> 5 m)", std::to_string(s.wrong_refined), "must be 0");
+  t += Row("heading error median (deg)", FormatNumber("%.2f", s.all.median_heading_deg));
+  const std::array<double, 3> shares = PoseBinShares(s);
+  for (size_t k = 0; k < shares.size(); ++k)
+    t += Row("pose " + PoseBinLabel(kPoseBins[k]), FormatNumber("%.3f", shares[k]),
+             "share of queries; Sattler et al. 2018");
+  return t;
+}
+
+std::string SpoofingRows(const SpoofingScore& sc) {
+  const std::string delay =
+      sc.detection_delays_s.empty()
+          ? ""
+          : "median delay " + FormatNumber("%.1f s", Percentile(sc.detection_delays_s, 0.5));
+  return Row("spoofed segments flagged",
+             std::to_string(sc.segments_flagged) + " of " + std::to_string(sc.segments_true),
+             delay) +
+         Row("spoofing false alarms", std::to_string(sc.false_alarms));
+}
+
+std::string SummaryTable(const RouteReport& r) {
+  const RouteSummary& s = r.summary;
+  std::string t = "<table class=\"summary\"><tr><th>metric</th><th>value</th><th>note</th></tr>\n";
+  t += Row("queries", std::to_string(s.queries), r.partial ? "partial: interrupted" : "");
+  t += Row("availability", FormatNumber("%.3f", s.availability),
+           std::to_string(s.refined) + " refined, " + std::to_string(s.coarse) + " coarse, " +
+               std::to_string(s.none) + " none");
+  t += Row("recall@1 / 5 / 10 (25 m)",
+           Slashed({s.recall_at_1, s.recall_at_5, s.recall_at_10}, "%.3f"),
+           "Arandjelovic et al. 2016");
+  t += ErrorRows(s);
+  t += Row("radius95 coverage", FormatNumber("%.3f", s.all.radius95_coverage),
+           "about 0.95 when calibrated");
+  t += Row("NEES mean", FormatNumber("%.2f", s.all.nees_mean), "about 2 when calibrated (2 dof)");
+  t += Row("latency p50 / p95 / p99 (ms)",
+           Slashed({s.latency_ms_p50, s.latency_ms_p95, s.latency_ms_p99}, "%.0f"));
+  if (r.spoofing) t += SpoofingRows(r.spoofing->score);
+  return t + "</table>\n";
+}
+
+constexpr char kStyle[] = R"(
+body { font-family: sans-serif; margin: 24px; color: #1d1d1b; background: #fff; max-width: 1000px; }
+h1 { font-size: 22px; margin-bottom: 4px; }
+.meta { color: #555; font-size: 13px; }
+.caution { border: 2px solid #b3202e; background: #fbeeee; padding: 10px 14px; margin: 14px 0; }
+.partial { border: 2px solid #c9a227; background: #fbf6e6; padding: 8px 14px; }
+table.summary { border-collapse: collapse; font-size: 13px; margin: 10px 0 20px; }
+table.summary th, table.summary td { border: 1px solid #ccc; padding: 4px 8px; text-align: left; }
+svg.plot { display: block; margin: 10px 0 22px; font-family: sans-serif; }
+.caption { font-size: 12px; color: #555; margin-top: -16px; margin-bottom: 18px; }
+)";
+
+}  // namespace
+
+std::string ReportHtml(const RouteReport& r) {
+  const std::vector<const QueryResult*> qs = InTimeOrder(r);
+  std::string h =
+      "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
+      "<title>sightfix replay report</title><style>" +
+      std::string(kStyle) + "</style></head><body data-check=\"pending\">\n";
+  h += "<h1>sightfix replay: " + EscapeXml(fs::path(r.drive_dir).filename().string()) + "</h1>\n";
+  h += "<div class=\"meta\">drive " + EscapeXml(r.drive_dir) + " &middot; " + EscapeXml(r.source) +
+       " &middot; map version " + std::to_string(r.map_version) + " &middot; prior " +
+       EscapeXml(r.prior) + " &middot; seed " + std::to_string(r.seed) + "</div>\n";
+  h += "<div class=\"caution\"><b>Caution.</b> " + std::string(kSafety) + "</div>\n";
+  if (r.partial)
+    h += "<div class=\"partial\">Partial replay: interrupted before every query ran.</div>\n";
+  h += SummaryTable(r);
+  if (qs.empty()) return h + "<p>No query ran.</p></body></html>\n";
+  h += RouteMapPlot(r, qs);
+  h += "<div class=\"caption\">Dots: true positions of the queries, coloured by the error of "
+       "their fix (grey rings: no fix; thin lines: the error, drawn when over 1 m; purple rings: "
+       "the GNSS was spoofed then). Pale dots: survey images the retrieval returned.</div>\n";
+  h += ErrorCdfPlot(r.summary, qs);
+  h += ErrorAlongRoutePlot(r, qs);
+  h += CalibrationPlot(qs);
+  h += LatencyHistogramPlot(r.summary, qs);
+  if (r.spoofing) h += SpoofingPlot(r);
+  // The page checks itself: headless tests read data-check from the DOM.
+  h += "<script>\n"
+       "window.addEventListener('error', function () { document.body.dataset.check = 'error'; });\n"
+       "document.body.dataset.check = 'ok ' + document.querySelectorAll('svg.plot').length + ' "
+       "plots';\n"
+       "</script>\n</body></html>\n";
+  return h;
+}
+
+}  // namespace sightfix
