@@ -1,0 +1,142 @@
+#include "client/cli/command_support.h"
+
+#include <cmath>
+#include <cstdio>
+#include <cstdlib>
+#include <iostream>
+#include <sstream>
+
+#include "indexer/base/endpoint.h"
+
+namespace sightfix::cli {
+
+const char kSafety[] =
+    "sightfix is a fallback aid, not a certified navigation source; defer to the vehicle's safety "
+    "case and local regulations.";
+
+int Fail(const std::string& message, int code) {
+  std::fprintf(stderr, "sightfix: %s\n", message.c_str());
+  return code;
+}
+
+int ParseFlags(int argc, char** argv, const std::string& command,
+               const po::options_description& desc, const po::positional_options_description& pos,
+               po::variables_map* vm) {
+  try {
+    po::store(po::command_line_parser(argc, argv).options(desc).positional(pos).run(), *vm);
+    po::notify(*vm);
+  } catch (const std::exception& e) {
+    return Fail(std::string(e.what()) + " (see sightfix " + command + " --help)", 2);
+  }
+  if (vm->count("help")) {
+    std::cout << desc << "\n" << kSafety << "\n";
+    return 0;
+  }
+  return kGoOn;
+}
+
+bool ParseNumbers(const std::string& text, size_t n, std::vector<double>* out) {
+  out->clear();
+  std::stringstream ss(text);
+  std::string item;
+  while (std::getline(ss, item, ',')) {
+    char* end = nullptr;
+    const double v = std::strtod(item.c_str(), &end);
+    if (item.empty() || *end != '\0' || !std::isfinite(v)) return false;
+    out->push_back(v);
+  }
+  return out->size() == n;
+}
+
+void AddSourceOptions(po::options_description* desc, SourceFlags* flags) {
+  desc->add_options()("map", po::value(&flags->map_dir), "map folder")(
+      "server", po::value(&flags->server),
+      "HOST:PORT of a sightfix-server instead of --map; several, comma-separated, to fail over "
+      "between replicas")("token-file", po::value(&flags->token_file),
+                          "file holding the server's bearer token");
+}
+
+int RefuseServerFlagsWithMap(const SourceFlags& flags, const po::variables_map& vm) {
+  if (flags.map_dir.empty()) return kGoOn;
+  for (const char* flag : {"token-file", "deadline-ms"})
+    if (vm.count(flag))
+      return Fail(std::string("--") + flag +
+                      " applies to --server only: a map in this process has no server to call",
+                  2);
+  return kGoOn;
+}
+
+Result<std::unique_ptr<Client>> ConnectTo(const std::string& server,
+                                          const std::string& token_file) {
+  ClientOptions options;
+  size_t start = 0;
+  while (start <= server.size()) {
+    const size_t comma = std::min(server.find(',', start), server.size());
+    const std::string one = server.substr(start, comma - start);
+    std::string host;
+    int port = 0;
+    if (!SplitHostPort(one, &host, &port))
+      return Status::InvalidArgument("--server must look like HOST:PORT[,HOST:PORT...]");
+    options.endpoints.push_back(one);
+    start = comma + 1;
+  }
+  if (!token_file.empty()) {
+    Result<std::string> token = ReadTokenFile(token_file);
+    if (!token.ok()) return token.status();
+    options.token = *token;
+  }
+  return Client::Connect(options);
+}
+
+namespace {
+
+nlohmann::json ReferencesJson(const std::vector<ReferenceUse>& references) {
+  nlohmann::json refs = nlohmann::json::array();
+  for (const ReferenceUse& u : references)
+    refs.push_back({{"tile", u.tile},
+                    {"image", u.name},
+                    {"retrieval_distance", u.retrieval_distance},
+                    {"matches", u.matches},
+                    {"inliers", u.inliers},
+                    {"points", u.points},
+                    {"verified", u.verified}});
+  return refs;
+}
+
+nlohmann::json TimingsJson(const StageTimings& t) {
+  return {{"decode", t.decode_ms}, {"features", t.features_ms}, {"retrieval", t.retrieval_ms},
+          {"verify", t.verify_ms}, {"pose", t.pose_ms},         {"total", t.total_ms}};
+}
+
+// The fields of a fix with a position.
+void AddPosition(const Fix& f, nlohmann::json* j) {
+  (*j)["lat"] = f.lat_deg;
+  (*j)["lon"] = f.lon_deg;
+  (*j)["height"] = f.height_m;
+  (*j)["heading_deg"] = f.heading_deg;
+  (*j)["enu_to_camera"] = {f.enu_to_camera.w, f.enu_to_camera.x, f.enu_to_camera.y,
+                           f.enu_to_camera.z};
+  (*j)["covariance_en_m2"] = {f.covariance_en(0, 0), f.covariance_en(0, 1), f.covariance_en(1, 1)};
+  (*j)["radius95_m"] = f.radius95_m;
+}
+
+}  // namespace
+
+nlohmann::json FixJson(const Fix& f) {
+  nlohmann::json j = {{"quality", FixQualityName(f.quality)},
+                      {"capture_time_s", f.capture_time_s},
+                      {"method", f.method},
+                      {"references", ReferencesJson(f.references)},
+                      {"correspondences", f.correspondences},
+                      {"pnp_inliers", f.pnp_inliers},
+                      {"timings_ms", TimingsJson(f.timings)}};
+  if (f.quality != FixQuality::kNone) AddPosition(f, &j);
+  if (!f.reason.empty()) j["reason"] = f.reason;
+  if (f.prior_distance_m >= 0) {
+    j["prior_distance_m"] = f.prior_distance_m;
+    j["outside_prior"] = f.outside_prior;
+  }
+  return j;
+}
+
+}  // namespace sightfix::cli

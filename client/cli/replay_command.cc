@@ -1,0 +1,246 @@
+// sightfix replay: a query drive with ground truth through a map or a server, measured, with a
+// report folder.
+#include <algorithm>
+#include <array>
+#include <atomic>
+#include <csignal>
+#include <cstdio>
+#include <filesystem>
+#include <iostream>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "client/cli/command_support.h"
+#include "client/cli/commands.h"
+#include "client/eval/route_eval.h"
+#include "client/eval/route_report.h"
+#include "client/monitor/gnss_stream.h"
+#include "indexer/base/progress.h"
+#include "server/wire/wire.h"
+
+namespace sightfix::cli {
+namespace {
+
+struct ReplayFlags {
+  SourceFlags source;
+  std::string drive, out, prior = "noisy:150", gnss_path, spoof_path;
+  int limit = 0, jobs = 2;
+  uint64_t seed = 1;
+};
+
+po::options_description ReplayOptions(ReplayFlags* f) {
+  f->source.deadline_ms = 30000;
+  po::options_description desc(
+      "sightfix replay: sends every query image of a drive with ground truth (drive.csv) to a\n"
+      "map (in this process) or a sightfix-server, and measures the answers with the field's\n"
+      "metrics: recall@1/5/10 within 25 m, error percentiles, pose bins (0.25 m, 2 deg) (0.5 m,\n"
+      "5 deg) (5 m, 10 deg), radius95 coverage, NEES, latency; and runs the GNSS spoofing\n"
+      "monitor over the drive's gnss.csv. Writes summary.json, fixes.csv, route.geojson and\n"
+      "report.html into --out. Ctrl-C stops early and still writes what ran, marked partial.\n\n"
+      "Usage: sightfix replay (--server HOST:PORT | --map MAPDIR) --drive QUERYDIR --out "
+      "REPORTDIR\n       [--prior none|noisy:RADIUS_M|gnss] [--gnss FILE] [--limit N] [--seed N]"
+      "\n\nOptions");
+  desc.add_options()("help,h", "show this help");
+  AddSourceOptions(&desc, &f->source);
+  desc.add_options()("drive", po::value(&f->drive),
+                     "query drive folder (drive.csv with truth, images, calibration)")(
+      "out", po::value(&f->out), "report folder (created; files in it are replaced)")(
+      "prior", po::value(&f->prior),
+      "none: no prior (global); noisy:R: circle of radius R m centred uniformly within R of the "
+      "truth; gnss: circle from the drive's GNSS stream, 2.45 claimed sigmas (95 %), a query "
+      "left without a refined fix asked again without prior (default noisy:150)")(
+      "gnss", po::value(&f->gnss_path), "GNSS stream (default QUERYDIR/gnss.csv when present)")(
+      "spoofing", po::value(&f->spoof_path),
+      "true spoofed spans, to score the monitor (default QUERYDIR/spoofing.csv when present)")(
+      "limit", po::value(&f->limit), "first N queries only (0: all)")(
+      "seed", po::value(&f->seed), "seed of the noisy prior's centres (1)")(
+      "jobs", po::value(&f->jobs), "queries in flight (2)")(
+      "deadline-ms", po::value(&f->source.deadline_ms),
+      "deadline of each call to the server (30000)")(
+      "json", "print summary.json on stdout instead of the text summary");
+  return desc;
+}
+
+// "none", "noisy:R" or "gnss" onto the evaluator's options; false when malformed.
+bool ParsePriorMode(const std::string& text, RouteEvalOptions* o) {
+  if (text == "none" || text == "gnss") {
+    o->prior = text == "none" ? PriorMode::kNone : PriorMode::kGnss;
+    return true;
+  }
+  std::vector<double> r;
+  if (text.rfind("noisy:", 0) != 0 || !ParseNumbers(text.substr(6), 1, &r) || !(r[0] > 0))
+    return false;
+  o->prior = PriorMode::kNoisy;
+  o->prior_radius_m = o->prior_max_offset_m = r[0];  // centre uniformly within R of the truth
+  return true;
+}
+
+// The optional GNSS stream and spoofing truth of a drive; a file given but unreadable is an
+// error, a default one missing is not.
+Status LoadGnss(const ReplayFlags& f, const po::variables_map& vm, RouteReport* report) {
+  namespace fs = std::filesystem;
+  if (vm.count("gnss") || fs::exists(f.gnss_path)) {
+    Result<std::vector<GnssFix>> g = ReadGnssCsv(f.gnss_path);
+    if (!g.ok()) return g.status();
+    report->gnss = std::move(g).value();
+  }
+  if (vm.count("spoofing") || fs::exists(f.spoof_path)) {
+    Result<std::vector<SpoofedSpan>> t = ReadSpoofingCsv(f.spoof_path);
+    if (!t.ok()) return t.status();
+    report->spoof_truth = std::move(t).value();
+  }
+  return Status::Ok();
+}
+
+// The evaluator's options and the report's header from the flags; the drive's GNSS files and
+// the number of queries to run. Returns kGoOn or 2.
+int PrepareReplay(ReplayFlags* f, const po::variables_map& vm, RouteEvalOptions* o,
+                  RouteReport* report, long* total) {
+  if (!ParsePriorMode(f->prior, o)) return Fail("--prior must be none, noisy:RADIUS_M or gnss", 2);
+  if (vm.count("seed") && o->prior != PriorMode::kNoisy)
+    return Fail("--seed applies to --prior noisy:R only: the other modes draw nothing", 2);
+  o->drive_dir = report->drive_dir = f->drive;
+  o->seed = report->seed = f->seed;
+  o->limit = f->limit;
+  o->jobs = std::max(1, f->jobs);
+  report->prior = f->prior;
+  if (!vm.count("gnss")) f->gnss_path = f->drive + "/gnss.csv";
+  if (!vm.count("spoofing")) f->spoof_path = f->drive + "/spoofing.csv";
+  o->gnss_csv = f->gnss_path;
+  if (Status s = LoadGnss(*f, vm, report); !s.ok()) return Fail(s.ToString(), 2);
+  if (o->prior == PriorMode::kGnss && report->gnss.empty())
+    return Fail("--prior gnss needs a GNSS stream: " + f->gnss_path + " is missing", 2);
+  Result<std::vector<DriveRow>> rows = ReadDriveManifest(f->drive + "/drive.csv");
+  if (!rows.ok()) return Fail(rows.status().ToString(), 2);
+  const long n = static_cast<long>(rows->size());
+  *total = f->limit > 0 ? std::min<long>(f->limit, n) : n;
+  return kGoOn;
+}
+
+// What answers the queries: a server's client or a map's localizer, and the call to it.
+struct ReplaySource {
+  std::unique_ptr<Client> client;
+  std::unique_ptr<Localizer> localizer;
+  LocateFn locate;
+};
+
+int OpenServer(const SourceFlags& flags, ReplaySource* source, RouteReport* report) {
+  auto c = ConnectTo(flags.server, flags.token_file);
+  if (!c.ok()) return Fail(c.status().ToString(), 1);
+  source->client = std::move(c).value();
+  Result<v1::DescribeResponse> d = source->client->Describe(5000);
+  if (!d.ok()) return Fail(d.status().ToString(), 1);
+  report->map_version = d->map_version();
+  report->model_id = d->model_id();
+  report->source = "server " + flags.server;
+  source->locate = [client = source->client.get(), deadline_ms = flags.deadline_ms](
+                       const LocateRequest& req, const std::string& bytes) {
+    return FixFromProto(client->Locate(RequestToProto(bytes, req.camera, req), deadline_ms));
+  };
+  return kGoOn;
+}
+
+int OpenMap(const SourceFlags& flags, ReplaySource* source, RouteReport* report) {
+  auto l = Localizer::Open(flags.map_dir, LocalizerOptions{});
+  if (!l.ok()) return Fail(l.status().ToString(), 2);
+  source->localizer = std::move(l).value();
+  report->map_version = source->localizer->catalog().map_version;
+  report->model_id = source->localizer->catalog().model_id;
+  report->source = "map " + flags.map_dir;
+  source->locate = InProcess(*source->localizer);
+  return kGoOn;
+}
+
+std::atomic<bool> g_stop{false};
+extern "C" void OnInterrupt(int) {
+  g_stop = true;
+  std::signal(SIGINT, SIG_DFL);  // a second Ctrl-C ends the process at once
+}
+
+// Runs the drive with progress on stderr (Ctrl-C stops taking queries), then scores it and runs
+// the spoofing monitor. Returns kGoOn or 2.
+int RunReplay(const LocateFn& locate, long total, RouteEvalOptions* o, RouteReport* report) {
+  std::signal(SIGINT, OnInterrupt);
+  o->stop = &g_stop;
+  Progress progress("queries", total);
+  o->on_query_done = [&progress] { progress.Advance(); };
+  Result<std::vector<QueryResult>> results = RunDrive(locate, *o);
+  progress.Finish();
+  std::signal(SIGINT, SIG_DFL);
+  if (!results.ok()) return Fail(results.status().ToString(), 2);
+  report->partial = g_stop.load();
+  report->results = std::move(results).value();
+  report->summary = Summarize(report->results);
+  if (!report->gnss.empty())
+    report->spoofing =
+        MonitorDrive(report->results, report->gnss, report->spoof_truth, report->monitor);
+  return kGoOn;
+}
+
+void PrintSpoofing(const SpoofingRun& run) {
+  const SpoofingScore& sc = run.score;
+  std::printf("GNSS spoofing monitor: %zu checks, %d of %d spoofed segments flagged",
+              run.steps.size(), sc.segments_flagged, sc.segments_true);
+  if (!sc.detection_delays_s.empty())
+    std::printf(" (median delay %.1f s)", Percentile(sc.detection_delays_s, 0.5));
+  std::printf(", %d false alarms\n", sc.false_alarms);
+}
+
+void PrintReplaySummary(const RouteReport& r, const std::string& out) {
+  const RouteSummary& s = r.summary;
+  std::printf("%s%d queries, %d fixes (availability %.3f; refined %d, coarse %d, none %d)\n",
+              r.partial ? "PARTIAL (interrupted): " : "", s.queries, s.fixes, s.availability,
+              s.refined, s.coarse, s.none);
+  std::printf("recall@1/5/10 within 25 m: %.3f / %.3f / %.3f\n", s.recall_at_1, s.recall_at_5,
+              s.recall_at_10);
+  std::printf(
+      "error over fixes: median %.3f m, p90 %.3f m, p95 %.3f m, max %.3f m; refined: "
+      "median %.3f m, p95 %.3f m; wrong refined %d\n",
+      s.all.median_m, s.all.p90_m, s.all.p95_m, s.all.max_m, s.median_error_m, s.p95_error_m,
+      s.wrong_refined);
+  const std::array<double, 3> shares = PoseBinShares(s);
+  for (size_t k = 0; k < shares.size(); ++k)
+    std::printf("pose %s: %.3f of queries\n", PoseBinLabel(kPoseBins[k]).c_str(), shares[k]);
+  std::printf("heading error median %.2f deg\n", s.all.median_heading_deg);
+  std::printf("radius95 coverage %.3f, NEES %.2f; latency p50 %.0f ms, p95 %.0f ms, p99 %.0f ms\n",
+              s.all.radius95_coverage, s.all.nees_mean, s.latency_ms_p50, s.latency_ms_p95,
+              s.latency_ms_p99);
+  if (r.spoofing) PrintSpoofing(*r.spoofing);
+  std::printf("report: %s/report.html (summary.json, fixes.csv, route.geojson beside it)\n%s\n",
+              out.c_str(), kSafety);
+}
+
+}  // namespace
+
+int Replay(int argc, char** argv) {
+  ReplayFlags f;
+  const po::options_description desc = ReplayOptions(&f);
+  po::variables_map vm;
+  if (int rc = ParseFlags(argc, argv, "replay", desc, {}, &vm); rc != kGoOn) return rc;
+  if (f.source.map_dir.empty() == f.source.server.empty() || f.drive.empty() || f.out.empty())
+    return Fail("replay needs --map or --server, --drive and --out (see sightfix replay --help)",
+                2);
+  if (int rc = RefuseServerFlagsWithMap(f.source, vm); rc != kGoOn) return rc;
+  RouteEvalOptions o;
+  RouteReport report;
+  long total = 0;
+  if (int rc = PrepareReplay(&f, vm, &o, &report, &total); rc != kGoOn) return rc;
+  ReplaySource source;
+  if (int rc = f.source.server.empty() ? OpenMap(f.source, &source, &report)
+                                       : OpenServer(f.source, &source, &report);
+      rc != kGoOn)
+    return rc;
+  if (int rc = RunReplay(source.locate, total, &o, &report); rc != kGoOn) return rc;
+  if (Status s = WriteRouteReport(report, f.out); !s.ok()) return Fail(s.ToString(), 1);
+  if (vm.count("json"))
+    std::cout << SummaryJson(report).dump(2) << "\n";
+  else
+    PrintReplaySummary(report, f.out);
+  if (report.summary.failed_calls > 0)
+    std::fprintf(stderr, "sightfix: %d calls failed (see the reason column of fixes.csv)\n",
+                 report.summary.failed_calls);
+  return report.partial ? 130 : 0;
+}
+
+}  // namespace sightfix::cli
