@@ -2,11 +2,14 @@
 // protobuf of proto/sightfix.proto, plus an HTTP side port (Boost.Beast) with /healthz and
 // /metrics (Prometheus text exposition format).
 //
-// One I/O thread runs every socket asynchronously; the engine runs on a fixed pool of `workers`
-// threads fed by a bounded queue (full: the call is answered OVERLOADED at once). Each call has a
-// deadline (the envelope's, else default_deadline_ms): a call whose deadline passes in the queue
-// is answered DEADLINE_EXCEEDED without running. Checked before any allocation or decode: the
-// frame length against max_frame_bytes, the image header's pixel count against max_pixels.
+// One I/O thread runs every socket asynchronously and only frames, authenticates and routes
+// calls (it never touches the disk); a Locate runs on a fixed pool of `workers` threads fed by a
+// bounded queue (full: the call is answered OVERLOADED at once). The worker parses the request,
+// resolves its calibration_id (which may load a tile) and runs the engine, so a malformed or
+// unknown-calibration Locate is answered by a worker too. Each call has a deadline (the
+// envelope's, else default_deadline_ms): a call whose deadline passes in the queue is answered
+// DEADLINE_EXCEEDED without running. Checked before any allocation or decode: the frame length
+// against max_frame_bytes, the image header's pixel count against max_pixels.
 // Connections: at most max_connections; a started frame must arrive within read_timeout_ms (a
 // client sending a byte a second is cut off), an idle one is closed after idle_timeout_ms, and a
 // client that does not read its answers is closed once max_pending_write_bytes pile up. A
@@ -24,8 +27,8 @@
 #include <memory>
 #include <string>
 
-#include "indexer/base/status.h"
 #include "indexer/base/endpoint.h"
+#include "indexer/base/status.h"
 #include "proto/frame_codec.h"
 #include "server/engine/localizer.h"
 
@@ -71,7 +74,7 @@ class Service {
   int port() const;       // bound TCP port
   int http_port() const;  // bound HTTP port, 0 without one
 
-  struct Impl;  // opaque: defined in service.cc, where connections use it
+  struct Impl;  // opaque: defined in service_impl.h, shared by the service's parts
 
  private:
   explicit Service(std::unique_ptr<Impl> impl);

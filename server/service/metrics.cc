@@ -1,0 +1,50 @@
+#include "server/service/metrics.h"
+
+#include <cstdio>
+
+namespace sightfix::service_internal {
+
+const char* CodeName(v1::Status::Code c) { return v1::Status::Code_Name(c).c_str(); }
+
+void Metrics::Record(const std::string& method, v1::Status::Code code, double seconds) {
+  std::lock_guard<std::mutex> lock(mu_);
+  ++calls_[{method, CodeName(code)}];
+  if (method != "Locate") return;
+  ++latency_count_;
+  latency_sum_ += seconds;
+  for (size_t i = 0; i < std::size(kLatencyBuckets); ++i)
+    if (seconds <= kLatencyBuckets[i]) ++buckets_[i];
+}
+
+std::string Metrics::Text(const Gauges& g) const {
+  std::lock_guard<std::mutex> lock(mu_);
+  std::string t =
+      "# HELP sightfix_calls_total Calls answered, by method and status.\n"
+      "# TYPE sightfix_calls_total counter\n";
+  for (const auto& [k, n] : calls_)
+    t += "sightfix_calls_total{method=\"" + k.first + "\",status=\"" + k.second + "\"} " +
+         std::to_string(n) + "\n";
+  t += "# HELP sightfix_locate_seconds Locate latency from receipt to answer.\n"
+       "# TYPE sightfix_locate_seconds histogram\n";
+  for (size_t i = 0; i < std::size(kLatencyBuckets); ++i) {
+    char le[32];
+    std::snprintf(le, sizeof(le), "%g", kLatencyBuckets[i]);
+    t += "sightfix_locate_seconds_bucket{le=\"" + std::string(le) + "\"} " +
+         std::to_string(buckets_[i]) + "\n";
+  }
+  t += "sightfix_locate_seconds_bucket{le=\"+Inf\"} " + std::to_string(latency_count_) + "\n";
+  t += "sightfix_locate_seconds_sum " + std::to_string(latency_sum_) + "\n";
+  t += "sightfix_locate_seconds_count " + std::to_string(latency_count_) + "\n";
+  auto gauge = [&](const char* name, const char* help, long v) {
+    t += std::string("# HELP ") + name + " " + help + "\n# TYPE " + name + " gauge\n" + name + " " +
+         std::to_string(v) + "\n";
+  };
+  gauge("sightfix_queue_depth", "Calls waiting for a worker.", g.queue_depth);
+  gauge("sightfix_connections", "Open client connections.", g.connections);
+  gauge("sightfix_tiles_cached", "Map tiles in memory.", g.tiles_cached);
+  gauge("sightfix_tiles_bad", "Map tiles refused: missing, damaged or unreadable.", g.tiles_bad);
+  gauge("sightfix_map_version", "Version of the map being served.", g.map_version);
+  return t;
+}
+
+}  // namespace sightfix::service_internal

@@ -1,0 +1,104 @@
+// Inside the service (not installed): the state the service's parts share. service.h says what
+// the service does; each part defines its own methods of Service::Impl:
+//   session.cc    one client connection (framing, timeouts, write queue)  [Session]
+//   dispatch.cc   the method table, the call queue, workers and deadlines [Dispatch, WorkerLoop]
+//   http_port.cc  the HTTP side port: /healthz and /metrics               [AcceptHttp]
+//   service.cc    lifecycle: create, run, drain, reload, the tile scrub   [Accept, BeginDrain]
+//
+// Threads: one I/O thread runs io (sockets, timers, Dispatch); `workers` threads run
+// WorkerLoop; one scrub thread at most; Reload on a thread of its own.
+#pragma once
+
+#include <atomic>
+#include <boost/asio.hpp>
+#include <chrono>
+#include <condition_variable>
+#include <deque>
+#include <memory>
+#include <mutex>
+#include <string>
+#include <thread>
+#include <vector>
+
+#include "proto/sightfix.pb.h"
+#include "server/service/metrics.h"
+#include "server/service/service.h"
+
+namespace sightfix {
+namespace service_internal {
+
+using Clock = std::chrono::steady_clock;
+class Session;
+
+// A Locate call waiting for a worker. Its body is parsed on the worker: the parse copies the
+// image, and the calibration lookup may load a tile.
+struct Job {
+  std::shared_ptr<Session> session;
+  uint64_t call_id = 0;
+  std::string body;  // the envelope's body: a serialized v1::LocateRequest
+  Clock::time_point received, deadline;
+};
+
+}  // namespace service_internal
+
+struct Service::Impl {
+  using Clock = service_internal::Clock;
+  using Session = service_internal::Session;
+
+  ServiceOptions o;
+  std::string token;
+  boost::asio::io_context io;
+  boost::asio::ip::tcp::acceptor acceptor{io};
+  boost::asio::ip::tcp::acceptor http_acceptor{io};
+  boost::asio::signal_set signals{io};
+  boost::asio::steady_timer drain_timer{io};
+  std::mutex map_mu;  // guards `localizer` (the pointer; a Localizer is thread-safe)
+  std::shared_ptr<const Localizer> localizer;  // swapped by Reload
+  service_internal::Metrics metrics;
+  Clock::time_point started = Clock::now();
+
+  std::mutex queue_mu;  // guards the four below; held for a push, a pop or a count
+  std::condition_variable queue_cv;
+  std::deque<service_internal::Job> jobs;
+  int running = 0;  // jobs taken by workers, not yet answered
+  bool stopping_workers = false;
+  std::vector<std::thread> workers;
+
+  std::atomic<int> connections{0};
+  std::atomic<bool> draining{false};
+
+  // The scrub: one background thread checks every tile file of the map being served against
+  // the catalog's SHA-256, so /healthz and Describe name bad tiles before a call needs them.
+  std::mutex scrub_mu;  // guards the two below; held while a scrub is stopped (joined)
+  std::thread scrubber;
+  std::shared_ptr<std::atomic<bool>> scrub_stop;
+
+  std::shared_ptr<const Localizer> Current() {
+    std::lock_guard<std::mutex> lock(map_mu);
+    return localizer;
+  }
+
+  // service.cc
+  void Accept();
+  void StartScrub(std::shared_ptr<const Localizer> loc);
+  void StopScrub();
+  void BeginDrain();
+  void CheckDrained();
+  // http_port.cc
+  void AcceptHttp();
+  // The /healthz text; *ok: whether the answer is 200.
+  std::string HealthText(bool* ok);
+  // dispatch.cc. I/O thread: authenticates and routes one call; a Locate is queued.
+  void Dispatch(const std::shared_ptr<Session>& s, v1::Envelope env, Clock::time_point received);
+  // Any thread: logs and counts the answer, then posts its frame to the I/O thread.
+  void Answer(const std::shared_ptr<Session>& s, uint64_t id, const std::string& method,
+              v1::Status::Code code, const std::string& message, const std::string& body,
+              Clock::time_point received, const char* quality = "");
+  void WorkerLoop();
+  // A worker's Locate job: deadline, parse, calibration lookup, engine, answer.
+  void RunLocate(const service_internal::Job& job);
+  std::string DescribeBody();
+  std::string ListTilesBody();
+};
+
+}  // namespace sightfix
