@@ -48,7 +48,7 @@ fi
 if [ "$what" = tsan ] || [ "$what" = all ]; then
   echo "== server concurrency tests under ThreadSanitizer"
   CC=clang-14 CXX=clang++-14 cmake -S "$root" -B "$tsan" "${flags[@]}" -DSIGHTFIX_TSAN=ON >/dev/null
-  cmake --build "$tsan" -j "$(env -u OMP_NUM_THREADS -u OMP_THREAD_LIMIT nproc)" --target service_test
+  cmake --build "$tsan" -j "$(env -u OMP_NUM_THREADS -u OMP_THREAD_LIMIT nproc)" --target service_test tile_cache_test
   # The fixture map comes from another tree: made under TSan it would take most of an hour.
   data=""
   for d in "$root/build/tests/service_data" "$san/tests/service_data"; do
@@ -61,5 +61,5 @@ if [ "$what" = tsan ] || [ "$what" = all ]; then
   fi
   (cd "$tsan" && SIGHTFIX_SERVICE_DATA="$data" \
     TSAN_OPTIONS="halt_on_error=1:second_deadlock_stack=1:suppressions=$root/tests/robustness/tsan.supp" \
-    tests/service_test)
+    tests/service_test && tests/tile_cache_test)
 fi
