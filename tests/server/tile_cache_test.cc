@@ -118,9 +118,7 @@ class SlowEnv : public EnvWrapper {
     {
       std::lock_guard<std::mutex> lock(mu_);
       for (const auto& [file, r] : rules_)
-        if (EndsWith(path, file)) rule = r;
-      for (const auto& [file, r] : rules_)
-        if (EndsWith(path, file)) ++reads_[file];
+        if (EndsWith(path, file)) rule = r, ++reads_[file];
       read_started_.notify_all();
     }
     std::this_thread::sleep_for(rule.delay);
