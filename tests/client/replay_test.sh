@@ -21,6 +21,15 @@ for f in summary.json fixes.csv route.geojson report.html; do
   [ -s "$tmp/in/$f" ] && ok "writes $f" || bad "writes $f"
 done
 [ "$(wc -l <"$tmp/in/fixes.csv")" -eq 17 ] && ok "fixes.csv: header + 16 rows" || bad "fixes.csv rows"
+"$py" - "$tmp/in.txt" "$tmp/in/summary.json" <<'PY' && ok "the pose bins: three labelled rows with summary.json's shares" || bad "pose bin rows"
+import json, re, sys
+text, j = open(sys.argv[1]).read(), json.load(open(sys.argv[2]))
+for label, key in (("fine (0.25 m, 2 deg)", "within_0_25m_2deg"),
+                   ("medium (0.5 m, 5 deg)", "within_0_5m_5deg"),
+                   ("rough (5 m, 10 deg)", "within_5m_10deg")):
+    m = re.search(r"^pose %s: ([0-9.]+) of queries$" % re.escape(label), text, re.M)
+    assert m and m.group(1) == "%.3f" % j[key], (label, m and m.group(1), j[key])
+PY
 
 "$build/server/sightfix-server" --map "$data/map" --listen 127.0.0.1:0 --http "" --workers 2 \
   2>"$tmp/server.log" &
