@@ -62,9 +62,12 @@ struct FacadeSpec {
   uint64_t seed = 0;
 };
 
+// The street front of a building (facade_painter.cc): wall material, floors of windows, a
+// shop or residential ground floor, posters and weathering. BGR, kFacadeTexelsPerM.
 cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs);
 cv::Mat PaintPlainWall(double width_m, double height_m, uint64_t seed);
-// side: a long side (true) or an end (front/back) of a vehicle.
+// One face of a vehicle's box, length_m x height_m: 0 and 1 the long sides, 2 the front (white
+// lights), 3 the back (red lights), 4 the roof. One body colour per seed on every face.
 cv::Mat PaintVehicle(double length_m, double height_m, uint64_t seed, int face,
                      const GlyphSet& glyphs);
 cv::Mat PaintMetal(uint64_t seed);
