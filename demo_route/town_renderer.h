@@ -8,7 +8,7 @@
 // textures, which are guarded; Render may run concurrently on one scene.
 #pragma once
 
-#include <map>
+#include <array>
 #include <memory>
 #include <opencv2/core.hpp>
 #include <vector>
@@ -18,6 +18,8 @@
 #include "indexer/map/camera_model.h"
 
 namespace sightfix::demo {
+
+class GroundSurface;  // ground_surface.h
 
 // A textured parallelogram: origin + u * u_axis + v * v_axis for u, v in [0, 1]; texture row 0
 // at v = 0. Metres, ENU.
@@ -70,7 +72,13 @@ class TownScene {
   size_t quad_count() const { return quads_.size(); }
 
  private:
-  struct Ground;
+  // The scene's quads and their textures, by kind of object (the constructor's parts).
+  void AddBuildings(const Town& town);
+  void AddPoles(const Town& town);
+  void AddTrees(const Town& town);
+  void AddVehicles(const Town& town, const std::vector<std::vector<Vehicle>>& variants);
+  // Walls of a box on a counter-clockwise footprint, textured from the outside; textures[4] is
+  // the top (none when negative).
   void AddBox(const std::array<cv::Vec2d, 4>& fp, double z0, double z1,
               const std::array<int, 5>& textures, double brightness, std::vector<Quad>* out);
   // Renders ss x ss samples per output pixel on the high-resolution canvas (k, size) and returns
@@ -83,7 +91,7 @@ class TownScene {
   TextureBank textures_;
   std::vector<Quad> quads_;                       // buildings, poles, trees, markers
   std::vector<std::vector<Quad>> vehicle_quads_;  // per variant
-  std::unique_ptr<Ground> ground_;
+  std::unique_ptr<GroundSurface> ground_;
 };
 
 Quad MakeQuad(const cv::Vec3d& origin, const cv::Vec3d& u_axis, const cv::Vec3d& v_axis,
