@@ -1,0 +1,54 @@
+// The four drives of the demo town (demo_town.h): the survey and three query drives, each with
+// its light, camera, passes, poses (truth and as reported), GNSS stream and spoofed segments,
+// and the camera post-processing that turns a rendered image into a JPEG's pixels. Everything
+// follows from the options' seed.
+#pragma once
+
+#include <string>
+#include <vector>
+
+#include "demo_route/demo_town.h"
+#include "demo_route/drive_plan.h"
+#include "demo_route/town_layout.h"
+#include "demo_route/town_renderer.h"
+#include "indexer/base/geo.h"
+#include "indexer/map/camera_model.h"
+
+namespace sightfix::demo {
+
+// The invented site: open water in no country, an arbitrary datum for the demo (not a place).
+inline const GeoPoint kTownOrigin{44.0, -40.0, 40.0};
+// 2026-05-04T09:00:00Z, the survey's start; query drives start later the same day.
+constexpr double kSurveyStartUnix = 1777885200.0;
+
+// One drive's look and its camera's post-processing.
+struct Condition {
+  std::string name;
+  int variant = 0;  // which parked vehicles are present
+  Appearance look;
+  double exposure = 1.0, contrast = 1.0, tone_gamma = 1.0;
+  cv::Vec3d tint{1, 1, 1};  // BGR gain
+  double noise_sigma = 1.0, blur_sigma = 0.0;
+  int jpeg_quality = 92;
+  double start_offset_s = 0;  // after the survey's start
+};
+
+struct PlannedDrive {
+  Condition condition;
+  CameraModel camera;
+  std::vector<Pass> passes;
+  DrivePlanOptions plan;
+  std::vector<Frame> truth;
+  std::vector<Frame> reported;  // survey: INS-reported poses; queries: the truth itself
+  std::vector<SpoofSegment> spoofing;
+  std::vector<GnssSample> gnss;
+};
+
+// survey, query-day, query-dusk, query-overcast, in this order (index = vehicle variant).
+std::vector<PlannedDrive> PlanDrives(const Town& town, const DemoOptions& options);
+
+// The camera's post-processing of a linear render (CV_32FC3, 0..1): exposure, contrast, tint,
+// tone curve, blur and sensor noise (seeded), to BGR CV_8UC3.
+cv::Mat FinishImage(const cv::Mat& linear, const Condition& c, uint64_t seed);
+
+}  // namespace sightfix::demo

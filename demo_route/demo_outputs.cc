@@ -1,0 +1,268 @@
+#include "demo_route/demo_outputs.h"
+
+#include <algorithm>
+#include <cmath>
+#include <cstdio>
+#include <fstream>
+#include <memory>
+#include <opencv2/imgcodecs.hpp>
+#include <opencv2/imgproc.hpp>
+
+#include "indexer/base/iso_time.h"
+#include "indexer/builder/exif_gps.h"
+#include "indexer/builder/geoid.h"
+#include "indexer/map/drive_manifest.h"
+
+namespace sightfix::demo {
+namespace fs = std::filesystem;
+namespace {
+
+std::vector<DriveRow> ManifestRows(const PlannedDrive& d, const EnuFrame& enu, double start) {
+  std::vector<DriveRow> rows;
+  for (size_t k = 0; k < d.reported.size(); ++k) {
+    const Frame& f = d.reported[k];
+    DriveRow r;
+    r.image = DriveImageName(k);
+    r.timestamp_s = start + f.time_s;
+    r.position = enu.ToGeo(f.position);
+    r.attitude = f.attitude;
+    r.camera = "camera.yml";
+    r.sigma_h_m = d.condition.variant == 0 ? 0.02 : 0.0;
+    rows.push_back(r);
+  }
+  return rows;
+}
+
+Status WriteGnssCsv(const PlannedDrive& d, const EnuFrame& enu, double start, const fs::path& dir) {
+  std::ofstream g(dir / "gnss.csv");
+  g << "timestamp,lat,lon,height,sigma_h_m,course_deg\n";
+  char buf[256];
+  for (const GnssSample& x : d.gnss) {
+    const GeoPoint p = enu.ToGeo(x.position);
+    std::snprintf(buf, sizeof(buf), "%s,%.9f,%.9f,%.3f,%.2f,%.2f\n",
+                  FormatIsoUtc(start + x.time_s).c_str(), p.lat_deg, p.lon_deg, p.height_m,
+                  x.claimed_sigma_h_m, x.course_deg);
+    g << buf;
+  }
+  return g ? Status::Ok() : Status::IoError("cannot write " + (dir / "gnss.csv").string());
+}
+
+// Ground truth of the attacks, for the evaluator (gnss_stream.h has the format).
+Status WriteSpoofingCsv(const PlannedDrive& d, double start, const fs::path& dir) {
+  std::ofstream sp(dir / "spoofing.csv");
+  sp << "start,end,rate_mps,bearing_deg\n";
+  char buf[256];
+  for (const SpoofSegment& x : d.spoofing) {
+    std::snprintf(buf, sizeof(buf), "%s,%s,%.3f,%.2f\n", FormatIsoUtc(start + x.start_s).c_str(),
+                  FormatIsoUtc(start + x.start_s + x.length_s).c_str(), x.rate_mps, x.bearing_deg);
+    sp << buf;
+  }
+  return sp ? Status::Ok() : Status::IoError("cannot write " + (dir / "spoofing.csv").string());
+}
+
+// Copies the survey's images into dir and tags each with its time and, for photos, its pose.
+Status TagSurveyImages(const PlannedDrive& d, const EnuFrame& enu, const Geoid& geoid,
+                       const fs::path& out, const fs::path& dir, bool photos) {
+  const double start = kSurveyStartUnix + d.condition.start_offset_s;
+  for (size_t k = 0; k < d.reported.size(); ++k) {
+    const std::string name = DriveImageName(k);
+    fs::copy_file(out / d.condition.name / name, dir / name);
+    const Frame& f = d.reported[k];
+    const GeoPoint p = enu.ToGeo(f.position);
+    ExifGps g;
+    g.time_s = start + f.time_s;
+    g.has_position = photos;
+    if (photos) {
+      g.lat_deg = p.lat_deg, g.lon_deg = p.lon_deg;
+      g.altitude_msl_m = geoid.MslFromEllipsoidal(p.lat_deg, p.lon_deg, p.height_m);
+      g.img_direction_deg = std::fmod(f.attitude.heading_deg + 360.0, 360.0);
+      g.h_error_m = 0.02;  // the survey's INS accuracy (drive.csv's sigma_h_m)
+    }
+    if (Status s = WriteExifGps((dir / name).string(), g); !s.ok()) return s;
+  }
+  return Status::Ok();
+}
+
+// dir/track.gpx: the survey's true path at 10 Hz, heights above sea level.
+Status WriteGpxTrack(const PlannedDrive& d, const Town& town, const EnuFrame& enu,
+                     const Geoid& geoid, const fs::path& dir) {
+  const double start = kSurveyStartUnix + d.condition.start_offset_s;
+  std::ofstream gpx(dir / "track.gpx");
+  gpx << "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n<gpx version=\"1.1\" "
+         "creator=\"sightfix-demo-route\" xmlns=\"http://www.topografix.com/GPX/1/1\">\n"
+         "<trk><name>survey</name><trkseg>\n";
+  const double duration = DriveDuration(d.passes, d.plan);
+  char buf[256];
+  for (int i = 0; i * 0.1 <= duration + 0.1; ++i) {
+    const double t = std::min(i * 0.1, duration);
+    const GeoPoint p = enu.ToGeo(PoseAtTime(town.route, d.passes, d.plan, t).position);
+    std::snprintf(buf, sizeof(buf),
+                  "<trkpt lat=\"%.9f\" lon=\"%.9f\"><ele>%.3f</ele><time>%s</time></trkpt>\n",
+                  p.lat_deg, p.lon_deg, geoid.MslFromEllipsoidal(p.lat_deg, p.lon_deg, p.height_m),
+                  FormatIsoUtc(start + t).c_str());
+    gpx << buf;
+  }
+  gpx << "</trkseg></trk></gpx>\n";
+  return gpx ? Status::Ok() : Status::IoError("cannot write " + (dir / "track.gpx").string());
+}
+
+nlohmann::json CameraJson(const CameraModel& c) {
+  return {{"image_width", c.width_px},
+          {"image_height", c.height_px},
+          {"fx", c.fx},
+          {"fy", c.fy},
+          {"cx", c.cx},
+          {"cy", c.cy},
+          {"distortion_k1_k2_p1_p2_k3", c.distortion}};
+}
+
+nlohmann::json LayoutJson(const Town& town) {
+  return {{"turn_radius_m", town.options.turn_radius_m},
+          {"stub_length_m", town.options.stub_length_m},
+          {"curve_length_m", town.options.curve_length_m},
+          {"curve_offset_m", town.options.curve_offset_m},
+          {"streets", town.streets.size()},
+          {"buildings", town.buildings.size()},
+          {"vehicles", town.vehicles.size()},
+          {"poles", town.poles.size()},
+          {"trees", town.trees.size()},
+          {"lane_width_m", StreetSection::kLaneWidthM},
+          {"facade_offset_min_m", StreetSection::kFacadeM},
+          {"survey_lane_offset_m", StreetSection::kSurveyLaneM}};
+}
+
+nlohmann::json AppearanceJson(const Condition& c) {
+  return {{"vehicle_variant", c.variant},
+          {"exposure", c.exposure},
+          {"contrast", c.contrast},
+          {"tone_gamma", c.tone_gamma},
+          {"tint_bgr", {c.tint[0], c.tint[1], c.tint[2]}},
+          {"noise_sigma", c.noise_sigma},
+          {"blur_sigma_px", c.blur_sigma},
+          {"jpeg_quality", c.jpeg_quality},
+          {"sun", c.look.sun},
+          {"ambient", c.look.ambient}};
+}
+
+// The GNSS model and the spoofed segments of a query drive, into its drive object dj.
+void AddGnssJson(const PlannedDrive& d, nlohmann::json* dj) {
+  const GnssOptions gnss;
+  (*dj)["gnss"] = {{"file", "gnss.csv"},
+                   {"rate_hz", gnss.rate_hz},
+                   {"model", "first-order Gauss-Markov per axis"},
+                   {"sigma_h_m_per_axis", gnss.sigma_h_m},
+                   {"sigma_v_m", gnss.sigma_v_m},
+                   {"tau_s", gnss.tau_s},
+                   {"claimed_sigma_h_m", gnss.claimed_sigma_h_m}};
+  const double start = kSurveyStartUnix + d.condition.start_offset_s;
+  for (const SpoofSegment& s : d.spoofing)
+    (*dj)["spoofed_segments"].push_back(
+        {{"start", FormatIsoUtc(start + s.start_s)},
+         {"start_s", s.start_s},
+         {"length_s", s.length_s},
+         {"rate_mps", s.rate_mps},
+         {"bearing_deg", s.bearing_deg},
+         {"model", "offset grows linearly at rate_mps along bearing_deg, then snaps back"}});
+}
+
+nlohmann::json DriveJson(const PlannedDrive& d) {
+  nlohmann::json dj;
+  dj["images"] = d.truth.size();
+  dj["camera"] = CameraJson(d.camera);
+  dj["camera_height_m"] = d.plan.camera_height_m;
+  dj["speed_mps"] = d.plan.speed_mps;
+  dj["spacing_m"] = d.plan.spacing_m;
+  dj["spacing_jitter_m"] = d.plan.spacing_jitter_m;
+  dj["attitude_jitter_sigma_deg"] = {d.plan.heading_jitter_deg, d.plan.pitch_jitter_deg,
+                                     d.plan.roll_jitter_deg};
+  dj["start"] = FormatIsoUtc(kSurveyStartUnix + d.condition.start_offset_s);
+  for (const Pass& p : d.passes)
+    dj["passes"].push_back({{"s_from_m", p.s_from_m},
+                            {"s_to_m", p.s_to_m},
+                            {"lane_offset_right_m", p.lane_offset_m},
+                            {"wander_m", p.wander_m}});
+  dj["appearance"] = AppearanceJson(d.condition);
+  if (!d.gnss.empty()) AddGnssJson(d, &dj);
+  return dj;
+}
+
+}  // namespace
+
+std::string DriveImageName(size_t k) {
+  char name[32];
+  std::snprintf(name, sizeof(name), "images/%06zu.jpg", k);
+  return name;
+}
+
+Status WriteDriveFiles(const PlannedDrive& d, const EnuFrame& enu, const fs::path& dir) {
+  Status s = SaveCameraModel(d.camera, (dir / "camera.yml").string());
+  if (!s.ok()) return s;
+  const double start = kSurveyStartUnix + d.condition.start_offset_s;
+  s = WriteDriveManifest((dir / "drive.csv").string(), ManifestRows(d, enu, start));
+  if (!s.ok() || d.gnss.empty()) return s;
+  s = WriteGnssCsv(d, enu, start, dir);
+  if (!s.ok()) return s;
+  return WriteSpoofingCsv(d, start, dir);
+}
+
+Status ExportPhotoSurvey(const PlannedDrive& d, const Town& town, const EnuFrame& enu,
+                         const fs::path& out, bool photos) {
+  Result<std::unique_ptr<Geoid>> geoid = Geoid::OpenEgm96();
+  if (!geoid.ok()) return geoid.status();
+  const fs::path dir = out / (photos ? "survey-exif" : "survey-gpx");
+  fs::remove_all(dir);
+  fs::create_directories(dir / "images");
+  fs::copy_file(out / d.condition.name / "camera.yml", dir / "camera.yml");
+  if (Status s = TagSurveyImages(d, enu, **geoid, out, dir, photos); !s.ok()) return s;
+  if (photos) return Status::Ok();
+  return WriteGpxTrack(d, town, enu, **geoid, dir);
+}
+
+nlohmann::json TownJson(const DemoOptions& o, const Town& town,
+                        const std::vector<PlannedDrive>& drives) {
+  nlohmann::json j;
+  j["generator"] = "sightfix-demo-route 1";
+  j["seed"] = o.seed;
+  j["options"] = {{"route_length_m", o.route_length_m},
+                  {"image_size", {o.image_width, o.image_height}},
+                  {"survey_spacing_m", o.survey_spacing_m},
+                  {"query_spacing_m", o.query_spacing_m},
+                  {"supersample", o.supersample}};
+  j["origin"] = {
+      {"lat_deg", kTownOrigin.lat_deg},
+      {"lon_deg", kTownOrigin.lon_deg},
+      {"height_m", kTownOrigin.height_m},
+      {"frame",
+       "ENU tangent at origin (GeographicLib LocalCartesian, WGS84); road surface at z = 0"}};
+  j["layout"] = LayoutJson(town);
+  j["survey_pose_noise"] = {
+      {"horizontal_sigma_m_per_axis", 0.02},
+      {"vertical_sigma_m", 0.03},
+      {"heading_sigma_deg", 0.05},
+      {"pitch_roll_sigma_deg", 0.03},
+      {"note",
+       "drive.csv of the survey holds truth plus this noise; images are rendered at truth"}};
+  for (const PlannedDrive& d : drives) j["drives"][d.condition.name] = DriveJson(d);
+  return j;
+}
+
+void WriteContactSheet(const fs::path& out, const std::vector<PlannedDrive>& drives) {
+  const int cols = 4, tw = 240, th = 180, label = 22;
+  cv::Mat sheet(int(drives.size()) * (th + label), cols * tw, CV_8UC3, cv::Scalar(30, 30, 30));
+  for (size_t r = 0; r < drives.size(); ++r) {
+    const size_t n = drives[r].truth.size();
+    for (int c = 0; c < cols && n > 0; ++c) {
+      const size_t k = (n - 1) * (2 * c + 1) / (2 * cols);
+      cv::Mat img = cv::imread((out / drives[r].condition.name / DriveImageName(k)).string());
+      if (img.empty()) continue;
+      cv::resize(img, img, cv::Size(tw, th), 0, 0, cv::INTER_AREA);
+      img.copyTo(sheet(cv::Rect(c * tw, int(r) * (th + label) + label, tw, th)));
+      cv::putText(sheet, drives[r].condition.name + " #" + std::to_string(k),
+                  {c * tw + 6, int(r) * (th + label) + 16}, cv::FONT_HERSHEY_SIMPLEX, 0.45,
+                  cv::Scalar(235, 235, 235), 1, cv::LINE_AA);
+    }
+  }
+  cv::imwrite((out / "contact_sheet.png").string(), sheet);
+}
+
+}  // namespace sightfix::demo

@@ -1,0 +1,41 @@
+// The files the demo town writes besides its images (demo_town.h has the folder layout): each
+// drive's camera.yml, drive.csv, gnss.csv and spoofing.csv; the survey re-exported as
+// EXIF-tagged photos or as photos plus a GPX track; town.json (every parameter of the world);
+// and the contact sheet. Formats are fixed: same inputs, same bytes.
+#pragma once
+
+#include <filesystem>
+#include <nlohmann/json.hpp>
+#include <string>
+#include <vector>
+
+#include "demo_route/demo_drives.h"
+#include "indexer/base/geo.h"
+#include "indexer/base/status.h"
+
+namespace sightfix::demo {
+
+// "images/000017.jpg": the k-th image of a drive, relative to the drive's folder.
+std::string DriveImageName(size_t k);
+
+// camera.yml and drive.csv (reported poses) in dir; for query drives also gnss.csv and
+// spoofing.csv (the attacks' ground truth, format in gnss_stream.h). IoError on a failed write.
+Status WriteDriveFiles(const PlannedDrive& d, const EnuFrame& enu,
+                       const std::filesystem::path& dir);
+
+// The survey d (its images already in out/<name>/images) as out/survey-exif (photos = true:
+// JPEGs with EXIF position, altitude above sea level, direction, accuracy and time) or
+// out/survey-gpx (JPEGs with EXIF times only, and track.gpx, the path at 10 Hz). Replaces the
+// folder. Fails if the EGM96 geoid cannot be opened or a write fails.
+Status ExportPhotoSurvey(const PlannedDrive& d, const Town& town, const EnuFrame& enu,
+                         const std::filesystem::path& out, bool photos);
+
+// town.json: the generator, seed, options, origin, layout and, per drive, camera, plan,
+// appearance, GNSS model and spoofed segments.
+nlohmann::json TownJson(const DemoOptions& o, const Town& town,
+                        const std::vector<PlannedDrive>& drives);
+
+// out/contact_sheet.png: four images of each drive, evenly spread, 240 x 180 each, labelled.
+void WriteContactSheet(const std::filesystem::path& out, const std::vector<PlannedDrive>& drives);
+
+}  // namespace sightfix::demo
