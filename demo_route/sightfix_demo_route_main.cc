@@ -3,17 +3,20 @@
 #include <cstdio>
 #include <iostream>
 #include <nlohmann/json.hpp>
+#include <optional>
 
 #include "demo_route/demo_town.h"
 #include "indexer/base/crash_report.h"
 
 namespace po = boost::program_options;
 
-int main(int argc, char** argv) {
-  sightfix::InstallCrashReport("sightfix-demo-route");
-  sightfix::demo::DemoOptions o;
-  std::string exports;
-  std::string size = "640x480";
+namespace {
+
+using sightfix::demo::DemoOptions;
+using sightfix::demo::DemoSummary;
+
+// The flags, bound to *o, the image size text *size and the export list *exports.
+po::options_description Describe(DemoOptions* o, std::string* size, std::string* exports) {
   po::options_description desc(
       "sightfix-demo-route: generate the demo town (an invented place), its survey drive and three "
       "query drives\n"
@@ -21,22 +24,47 @@ int main(int argc, char** argv) {
       "sheet.\n\n"
       "Usage: sightfix-demo-route --out DIR [options]\n\nOptions");
   desc.add_options()("help,h", "show this help")(
-      "out", po::value(&o.out_dir),
+      "out", po::value(&o->out_dir),
       "output folder (its survey/ and query-*/ folders are replaced)")(
-      "seed", po::value(&o.seed)->default_value(o.seed), "world seed: same seed, same bytes")(
-      "route-length-m", po::value(&o.route_length_m)->default_value(o.route_length_m),
-      "survey route length, metres")("image-size", po::value(&size)->default_value(size),
+      "seed", po::value(&o->seed)->default_value(o->seed), "world seed: same seed, same bytes")(
+      "route-length-m", po::value(&o->route_length_m)->default_value(o->route_length_m),
+      "survey route length, metres")("image-size", po::value(size)->default_value(*size),
                                      "survey camera image size WxH")(
-      "survey-spacing-m", po::value(&o.survey_spacing_m)->default_value(o.survey_spacing_m),
+      "survey-spacing-m", po::value(&o->survey_spacing_m)->default_value(o->survey_spacing_m),
       "survey frame spacing")("query-spacing-m",
-                              po::value(&o.query_spacing_m)->default_value(o.query_spacing_m),
+                              po::value(&o->query_spacing_m)->default_value(o->query_spacing_m),
                               "query frame spacing (jittered)")(
-      "supersample", po::value(&o.supersample)->default_value(o.supersample),
-      "anti-aliasing factor 1..4")("jobs", po::value(&o.jobs)->default_value(0),
+      "supersample", po::value(&o->supersample)->default_value(o->supersample),
+      "anti-aliasing factor 1..4")("jobs", po::value(&o->jobs)->default_value(0),
                                    "render threads (0 = all cores); output does not depend on it")(
-      "export", po::value(&exports),
+      "export", po::value(exports),
       "also write the survey as survey-exif/ (EXIF-tagged JPEGs) and/or survey-gpx/ (JPEGs + "
       "track.gpx): exif, gpx or exif,gpx")("json", "print the summary as JSON on stdout");
+  return desc;
+}
+
+// Sets the export flags of *o from "exif", "gpx" or "exif,gpx"; false on any other item.
+bool ParseExports(std::string exports, DemoOptions* o) {
+  for (std::string item; !exports.empty();) {
+    const size_t comma = exports.find(',');
+    item = exports.substr(0, comma);
+    exports = comma == std::string::npos ? "" : exports.substr(comma + 1);
+    if (item == "exif")
+      o->export_exif = true;
+    else if (item == "gpx")
+      o->export_gpx = true;
+    else
+      return false;
+  }
+  return true;
+}
+
+// Fills *o and *json from the command line; an exit code if the program should stop here
+// (help shown: 0; bad flags, reported on stderr: 2).
+std::optional<int> ParseCommandLine(int argc, char** argv, DemoOptions* o, bool* json) {
+  std::string exports;
+  std::string size = "640x480";
+  const po::options_description desc = Describe(o, &size, &exports);
   po::variables_map vm;
   try {
     po::store(po::parse_command_line(argc, argv, desc), vm);
@@ -49,50 +77,35 @@ int main(int argc, char** argv) {
     std::cout << desc << "\n";
     return 0;
   }
-  if (std::sscanf(size.c_str(), "%dx%d", &o.image_width, &o.image_height) != 2) {
+  if (std::sscanf(size.c_str(), "%dx%d", &o->image_width, &o->image_height) != 2) {
     std::fprintf(stderr, "sightfix-demo-route: --image-size must look like 640x480, got '%s'\n",
                  size.c_str());
     return 2;
   }
-  for (std::string item; !exports.empty();) {
-    const size_t comma = exports.find(',');
-    item = exports.substr(0, comma);
-    exports = comma == std::string::npos ? "" : exports.substr(comma + 1);
-    if (item == "exif")
-      o.export_exif = true;
-    else if (item == "gpx")
-      o.export_gpx = true;
-    else {
-      std::fprintf(stderr, "sightfix-demo-route: --export takes exif, gpx or exif,gpx\n");
-      return 2;
-    }
-  }
-  std::string error;
-  if (!o.Validate(&error)) {
-    std::fprintf(stderr, "sightfix-demo-route: %s (see --help)\n", error.c_str());
+  if (!ParseExports(exports, o)) {
+    std::fprintf(stderr, "sightfix-demo-route: --export takes exif, gpx or exif,gpx\n");
     return 2;
   }
-  sightfix::Result<sightfix::demo::DemoSummary> r = sightfix::demo::GenerateDemoTown(o);
-  if (!r.ok()) {
-    std::fprintf(stderr, "sightfix-demo-route: %s\n", r.status().ToString().c_str());
-    return 1;
-  }
-  const auto& s = *r;
-  if (vm.count("json")) {
-    nlohmann::json j = {{"out", o.out_dir},
-                        {"seed", o.seed},
-                        {"route_length_m", o.route_length_m},
-                        {"buildings", s.buildings},
-                        {"vehicles", s.vehicles},
-                        {"poles", s.poles},
-                        {"trees", s.trees},
-                        {"render_s", s.render_s},
-                        {"total_s", s.total_s},
-                        {"contact_sheet", s.contact_sheet}};
-    for (const auto& d : s.drives) j["drives"][d.name] = d.images;
-    std::cout << j.dump(2) << "\n";
-    return 0;
-  }
+  *json = vm.count("json") > 0;
+  return std::nullopt;
+}
+
+void PrintJson(const DemoOptions& o, const DemoSummary& s) {
+  nlohmann::json j = {{"out", o.out_dir},
+                      {"seed", o.seed},
+                      {"route_length_m", o.route_length_m},
+                      {"buildings", s.buildings},
+                      {"vehicles", s.vehicles},
+                      {"poles", s.poles},
+                      {"trees", s.trees},
+                      {"render_s", s.render_s},
+                      {"total_s", s.total_s},
+                      {"contact_sheet", s.contact_sheet}};
+  for (const auto& d : s.drives) j["drives"][d.name] = d.images;
+  std::cout << j.dump(2) << "\n";
+}
+
+void PrintText(const DemoOptions& o, const DemoSummary& s) {
   std::printf("demo town (seed %llu, route %.0f m) written to %s\n",
               static_cast<unsigned long long>(o.seed), o.route_length_m, o.out_dir.c_str());
   std::printf("  %d buildings, %d parked vehicles, %d poles, %d trees\n", s.buildings, s.vehicles,
@@ -104,5 +117,28 @@ int main(int argc, char** argv) {
   }
   std::printf("  %d images rendered in %.1f s (%.1f s in all)\n", total, s.render_s, s.total_s);
   std::printf("  contact sheet: %s\n", s.contact_sheet.c_str());
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  sightfix::InstallCrashReport("sightfix-demo-route");
+  DemoOptions o;
+  bool json = false;
+  if (std::optional<int> exit_code = ParseCommandLine(argc, argv, &o, &json)) return *exit_code;
+  std::string error;
+  if (!o.Validate(&error)) {
+    std::fprintf(stderr, "sightfix-demo-route: %s (see --help)\n", error.c_str());
+    return 2;
+  }
+  sightfix::Result<DemoSummary> r = sightfix::demo::GenerateDemoTown(o);
+  if (!r.ok()) {
+    std::fprintf(stderr, "sightfix-demo-route: %s\n", r.status().ToString().c_str());
+    return 1;
+  }
+  if (json)
+    PrintJson(o, *r);
+  else
+    PrintText(o, *r);
   return 0;
 }
