@@ -223,74 +223,95 @@ bool ClearOfCarriageways(const Town& town, const std::vector<cv::Vec2d>& pts, do
   return true;
 }
 
+// One side of a street: +1 the right of travel along the centreline, -1 the left.
+struct StreetSide {
+  const Polyline& centre;
+  int side;
+  // The point off metres from the centreline at arc length s, on this side; *t gets the
+  // street's direction there.
+  cv::Vec2d At(double s, double off, cv::Vec2d* t) const {
+    const cv::Vec2d p = centre.At(s, t);
+    return cv::Vec2d(p - side * off * Perp(*t));
+  }
+};
+
+// Cars and vans parked in the strip along one side, a slot every 5.4-7.6 m, about half taken;
+// a vehicle that would reach into the carriageway is left out.
+void ParkVehicles(Town* town, const StreetSide& street, Rng& rng, int* vehicle_id) {
+  for (double s = rng.Uniform(2, 6); s < street.centre.length() - 3; s += rng.Uniform(5.4, 7.6)) {
+    if (!rng.Chance(0.55)) continue;
+    cv::Vec2d t;
+    Vehicle v;
+    v.centre = street.At(s, 7.0, &t);
+    const bool van = rng.Chance(0.15);
+    v.length_m = van ? rng.Uniform(5.0, 5.6) : rng.Uniform(3.9, 4.8);
+    v.width_m = van ? 2.0 : rng.Uniform(1.72, 1.9);
+    v.height_m = van ? rng.Uniform(2.0, 2.4) : rng.Uniform(1.4, 1.65);
+    v.yaw_rad = std::atan2(t[1], t[0]) + (street.side < 0 ? M_PI : 0.0);
+    const cv::Vec2d ax = t * (v.length_m / 2), ay = Perp(t) * (v.width_m / 2);
+    if (!ClearOfCarriageways(
+            *town, {v.centre + ax + ay, v.centre + ax - ay, v.centre - ax + ay, v.centre - ax - ay},
+            StreetSection::kCarriagewayM + 0.05))
+      continue;
+    v.id = (*vehicle_id)++;
+    v.seed = rng.Next();
+    town->vehicles.push_back(v);
+  }
+}
+
+// A row of poles on one side: the first at U(first), then every U(step) metres; metres.
+struct PoleRow {
+  Pole::Kind kind;
+  double first_lo, first_hi, step_lo, step_hi, offset_m, height_lo, height_hi;
+};
+
+// Lamps: the arm reaches over the road. Signs: they face the traffic on their side. Poles that
+// would stand too near a street (at a junction) are left out.
+void PlacePoleRow(Town* town, const StreetSide& street, const PoleRow& row, Rng& rng) {
+  for (double s = rng.Uniform(row.first_lo, row.first_hi); s < street.centre.length() - 2;
+       s += rng.Uniform(row.step_lo, row.step_hi)) {
+    cv::Vec2d t;
+    Pole p;
+    p.kind = row.kind;
+    p.base = street.At(s, row.offset_m, &t);
+    p.height_m = rng.Uniform(row.height_lo, row.height_hi);
+    const cv::Vec2d f =
+        row.kind == Pole::kLamp ? cv::Vec2d(street.side * Perp(t)) : cv::Vec2d(-street.side * t);
+    p.facing_rad = std::atan2(f[1], f[0]);
+    p.seed = rng.Next();
+    if (DistanceToStreets(*town, p.base) > 8.3) town->poles.push_back(p);
+  }
+}
+
+// Street trees along one side, every 11-17 m, clear of poles, streets and buildings.
+void PlantTrees(Town* town, const Placer& placer, const StreetSide& street, Rng& rng) {
+  for (double s = rng.Uniform(4, 10); s < street.centre.length() - 2; s += rng.Uniform(11, 17)) {
+    cv::Vec2d t;
+    Tree tr;
+    tr.base = street.At(s, 9.4, &t);
+    tr.trunk_height_m = rng.Uniform(2.2, 3.2);
+    tr.canopy_radius_m = rng.Uniform(1.6, 2.4);
+    tr.seed = rng.Next();
+    bool near_pole = false;
+    for (const Pole& p : town->poles) near_pole |= cv::norm(p.base - tr.base) < 1.8;
+    if (!near_pole && DistanceToStreets(*town, tr.base) > 9.0 && !placer.InsideBuilding(tr.base))
+      town->trees.push_back(tr);
+  }
+}
+
+// Per street, on each side in turn: parked vehicles, lamps, signs and (on avenues, about two
+// streets in three) trees.
 void PlaceStreetFurniture(Town* town, Placer* placer, Rng& rng) {
   int vehicle_id = 0;
   for (size_t si = 0; si < town->streets.size(); ++si) {
     const Polyline& c = town->streets[si].centre;
     const bool avenue = rng.Chance(0.65);  // trees on this street
     for (int side : {+1, -1}) {
-      auto place = [&](double s, double off, cv::Vec2d* t) {
-        const cv::Vec2d p = c.At(s, t);
-        return cv::Vec2d(p - side * off * Perp(*t));
-      };
-      for (double s = rng.Uniform(2, 6); s < c.length() - 3; s += rng.Uniform(5.4, 7.6)) {
-        if (!rng.Chance(0.55)) continue;
-        cv::Vec2d t;
-        Vehicle v;
-        v.centre = place(s, 7.0, &t);
-        const bool van = rng.Chance(0.15);
-        v.length_m = van ? rng.Uniform(5.0, 5.6) : rng.Uniform(3.9, 4.8);
-        v.width_m = van ? 2.0 : rng.Uniform(1.72, 1.9);
-        v.height_m = van ? rng.Uniform(2.0, 2.4) : rng.Uniform(1.4, 1.65);
-        v.yaw_rad = std::atan2(t[1], t[0]) + (side < 0 ? M_PI : 0.0);
-        const cv::Vec2d ax = t * (v.length_m / 2), ay = Perp(t) * (v.width_m / 2);
-        if (!ClearOfCarriageways(
-                *town,
-                {v.centre + ax + ay, v.centre + ax - ay, v.centre - ax + ay, v.centre - ax - ay},
-                StreetSection::kCarriagewayM + 0.05))
-          continue;
-        v.id = vehicle_id++;
-        v.seed = rng.Next();
-        town->vehicles.push_back(v);
-      }
-      // A row of poles on this side: the first at U(first), then every U(step) metres.
-      struct PoleRow {
-        Pole::Kind kind;
-        double first_lo, first_hi, step_lo, step_hi, offset_m, height_lo, height_hi;
-      };
-      auto add_row = [&](const PoleRow& row, auto facing) {
-        for (double s = rng.Uniform(row.first_lo, row.first_hi); s < c.length() - 2;
-             s += rng.Uniform(row.step_lo, row.step_hi)) {
-          cv::Vec2d t;
-          Pole p;
-          p.kind = row.kind;
-          p.base = place(s, row.offset_m, &t);
-          p.height_m = rng.Uniform(row.height_lo, row.height_hi);
-          const cv::Vec2d f = facing(t);
-          p.facing_rad = std::atan2(f[1], f[0]);
-          p.seed = rng.Next();
-          if (DistanceToStreets(*town, p.base) > 8.3) town->poles.push_back(p);
-        }
-      };
-      // Lamps: the arm reaches over the road. Signs: they face the traffic on their side.
-      add_row({Pole::kLamp, 3, 15, 24, 32, 8.6, 5.5, 7.0},
-              [&](const cv::Vec2d& t) { return cv::Vec2d(side * Perp(t)); });
-      add_row({Pole::kSign, 10, 40, 30, 55, 8.9, 2.4, 3.0},
-              [&](const cv::Vec2d& t) { return cv::Vec2d(-side * t); });
-      if (!avenue) continue;
-      for (double s = rng.Uniform(4, 10); s < c.length() - 2; s += rng.Uniform(11, 17)) {
-        cv::Vec2d t;
-        Tree tr;
-        tr.base = place(s, 9.4, &t);
-        tr.trunk_height_m = rng.Uniform(2.2, 3.2);
-        tr.canopy_radius_m = rng.Uniform(1.6, 2.4);
-        tr.seed = rng.Next();
-        bool near_pole = false;
-        for (const Pole& p : town->poles) near_pole |= cv::norm(p.base - tr.base) < 1.8;
-        if (!near_pole && DistanceToStreets(*town, tr.base) > 9.0 &&
-            !placer->InsideBuilding(tr.base))
-          town->trees.push_back(tr);
-      }
+      const StreetSide street{c, side};
+      ParkVehicles(town, street, rng, &vehicle_id);
+      PlacePoleRow(town, street, {Pole::kLamp, 3, 15, 24, 32, 8.6, 5.5, 7.0}, rng);
+      PlacePoleRow(town, street, {Pole::kSign, 10, 40, 30, 55, 8.9, 2.4, 3.0}, rng);
+      if (avenue) PlantTrees(town, *placer, street, rng);
     }
   }
 }
