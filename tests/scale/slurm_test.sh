@@ -57,9 +57,20 @@ plan="$m/staging/plan.json"
 "$idx" plan --drive "$drive" --map "$m" --zoom 18 --shards 2 --quiet >/dev/null &&
   "$idx" train --drive "$drive" --map "$m" --quiet >/dev/null && ok "plan (2 shards) and train" ||
   bad "plan and train"
-SIGHTFIX_KILL_AT=tile:1 "$idx" build-tiles --plan "$plan" --shard 1/2 --quiet >/dev/null 2>&1
+# Shard 1/2 killed from outside (SIGKILL) as soon as its first tile file is in place (renamed:
+# a *.sqlite, not a *.sqlite.tmp), before its manifest. A tight builtin glob loop: the shard still
+# has the tile's SHA-256 and the manifest to write, tens of milliseconds at least.
+"$idx" build-tiles --plan "$plan" --shard 1/2 --quiet >/dev/null 2>&1 &
+pid=$!
+tiles_glob="$m/staging/*/tiles/*/*/*-v*.sqlite"
+while kill -0 "$pid" 2>/dev/null && ! compgen -G "$tiles_glob" >/dev/null; do :; done
+kill -KILL "$pid" 2>/dev/null
+wait "$pid"
 rc=$?
-[ "$rc" = 137 ] && ok "shard 1/2 killed (SIGKILL) after writing its first tile" || bad "kill: exit $rc"
+manifests=$(compgen -G "$m/staging/*/shard-1-of-2.json" | wc -l)
+[ "$rc" = 137 ] && compgen -G "$tiles_glob" >/dev/null && [ "$manifests" = 0 ] &&
+  ok "shard 1/2 killed (SIGKILL) after writing its first tile, before its manifest" ||
+  bad "kill: exit $rc, manifests $manifests"
 out=$("$idx" publish --plan "$plan" 2>&1)
 rc=$?
 if [ "$rc" = 2 ] && echo "$out" | grep -q "shard 1/2 (no " && echo "$out" | grep -q "shard 2/2 (no "; then
