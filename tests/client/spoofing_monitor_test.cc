@@ -1,12 +1,14 @@
-// The GNSS spoofing monitor (client/monitor/spoofing_monitor.h): the NIS and the CUSUM rule against hand
-// computations, alarm scoring, and the detection study over seeded synthetic drives.
+// The GNSS spoofing monitor (client/monitor/spoofing_monitor.h): the NIS and the CUSUM rule against
+// hand computations, alarm scoring, and the detection study over seeded synthetic drives.
 #include "client/monitor/spoofing_monitor.h"
 
 #include <gtest/gtest.h>
 
+#include <algorithm>
 #include <cmath>
 #include <cstdio>
 #include <random>
+#include <vector>
 
 #include "indexer/base/geo.h"
 
@@ -52,7 +54,8 @@ TEST(SpoofingMonitorTest, CusumFollowsTheWrittenRule) {
   const double g[] = {6.184, 16.184, 21.184, 8.184, 0};
   const bool alarm[] = {false, false, true, true, false};
   for (int i = 0; i < 5; ++i) {
-    const MonitorStep s = m.Observe(GnssAt(times[i], std::sqrt(nis[i]), 0, 1.0), VisualAt(times[i]));
+    const MonitorStep s =
+        m.Observe(GnssAt(times[i], std::sqrt(nis[i]), 0, 1.0), VisualAt(times[i]));
     EXPECT_NEAR(s.nis, nis[i], 1e-6) << i;
     EXPECT_NEAR(s.cusum, g[i], 1e-6) << i;
     EXPECT_EQ(s.alarm, alarm[i]) << i;
@@ -81,14 +84,13 @@ TEST(SpoofingMonitorTest, ScoreAlarmsCountsSegmentsDelaysAndFalseAlarms) {
   step(5, false, false), step(12, true, true), step(30, false, false), step(44, true, true);
   step(50, false, false), step(100, true, true), step(110, false, false), step(190, true, true);
   step(210, false, true), step(260, false, false), step(310, false, false);
-  const SpoofingScore s =
-      ScoreAlarms(steps, {{300, 330}, {10, 40}, {200, 230}}, {0, 3600}, 5.0);
+  const SpoofingScore s = ScoreAlarms(steps, {{300, 330}, {10, 40}, {200, 230}}, {0, 3600}, 5.0);
   EXPECT_EQ(s.segments_true, 3);
   EXPECT_EQ(s.segments_flagged, 2);
   ASSERT_EQ(s.detection_delays_s.size(), 2u);
   EXPECT_DOUBLE_EQ(s.detection_delays_s[0], 2.0);
   EXPECT_DOUBLE_EQ(s.detection_delays_s[1], 0.0);
-  EXPECT_EQ(s.false_alarms, 2);  // at 100 s and at 190 s
+  EXPECT_EQ(s.false_alarms, 2);             // at 100 s and at 190 s
   ASSERT_EQ(s.segment_delay_s.size(), 3u);  // in start order: [10, 40), [200, 230), [300, 330)
   EXPECT_DOUBLE_EQ(s.segment_delay_s[0], 2.0);
   EXPECT_DOUBLE_EQ(s.segment_delay_s[1], 0.0);
@@ -161,19 +163,36 @@ std::vector<MonitorStep> SimulateDrive(uint64_t seed, double duration_s, const S
   return steps;
 }
 
-TEST(SpoofingMonitorTest, DetectsSeededSpoofingWithinThirtySecondsAndRarelyFalseAlarms) {
-  // Clean driving: 20 drives of one hour. Goal: at most 1 false alarm per hour.
-  int false_alarms = 0;
+TEST(SpoofingMonitorTest, ReferenceIsTheChiSquareTwoDofQuantile) {
+  // NIST/SEMATECH e-Handbook of Statistical Methods, table 1.3.6.7.4: the chi-square upper
+  // 0.001 point for 2 degrees of freedom is 13.816.
+  const double reference = SpoofingMonitorOptions{}.reference_nis;
+  EXPECT_NEAR(reference, 13.816, 5e-4);
+  // Independently: chi-square with 2 dof is the exponential law of mean 2, P(X > x) = exp(-x/2),
+  // so the upper 0.001 point is -2 ln(0.001) = 13.8155 (closed form; scipy.stats.chi2.ppf(0.999,
+  // 2) gives the same where python3-scipy is installed).
+  EXPECT_NEAR(reference, -2 * std::log(0.001), 5e-4);
+  EXPECT_NEAR(std::exp(-reference / 2), 0.001, 1e-6);
+}
+
+struct StudyResult {
+  int segments = 0, flagged = 0, within_30 = 0, false_alarms = 0;
+  std::vector<double> delays_s;  // of the flagged segments
   double clean_hours = 0;
+};
+
+// Clean driving: 20 drives of one hour (seeds 1-20).
+void RunCleanDrives(StudyResult* r) {
   for (uint64_t seed = 1; seed <= 20; ++seed) {
     const std::vector<MonitorStep> steps = SimulateDrive(seed, 3600, {});
     const SpoofingScore s = ScoreAlarms(steps, {}, {0, 3600});
-    false_alarms += s.false_alarms, clean_hours += s.clean_hours;
+    r->false_alarms += s.false_alarms, r->clean_hours += s.clean_hours;
   }
-  // Attacks: 40 drives of 10 minutes, each with one segment starting at 300-420 s and lasting
-  // to the end. Goal: 95 % flagged within 30 s of their start.
-  int within_30 = 0, flagged = 0, segments = 0;
-  std::vector<double> delays;
+}
+
+// Attacks: 40 drives of 10 minutes (seeds 101-140; segments drawn from seed 2026), each with
+// one segment starting at 300-420 s and lasting to the end.
+void RunAttackDrives(StudyResult* r) {
   std::mt19937_64 rng(2026);
   std::uniform_real_distribution<double> u(0, 1);
   for (uint64_t seed = 101; seed <= 140; ++seed) {
@@ -183,27 +202,46 @@ TEST(SpoofingMonitorTest, DetectsSeededSpoofingWithinThirtySecondsAndRarelyFalse
     spoof.bearing_rad = 2 * M_PI * u(rng);
     const std::vector<MonitorStep> steps = SimulateDrive(seed, 600, spoof);
     const SpoofingScore s = ScoreAlarms(steps, {{spoof.start_s, 600}}, {0, 600});
-    ++segments;
-    false_alarms += s.false_alarms, clean_hours += s.clean_hours;
+    ++r->segments;
+    r->false_alarms += s.false_alarms, r->clean_hours += s.clean_hours;
     if (s.segments_flagged == 0) {
       std::printf("  segment at %.2f m/s not flagged\n", spoof.rate_mps);
       continue;
     }
-    ++flagged;
-    delays.push_back(s.detection_delays_s[0]);
-    within_30 += s.detection_delays_s[0] <= 30;
-    if (s.detection_delays_s[0] > 30)
-      std::printf("  segment at %.2f m/s flagged late: %.1f s\n", spoof.rate_mps,
-                  s.detection_delays_s[0]);
+    ASSERT_EQ(s.detection_delays_s.size(), 1u) << "seed " << seed;
+    const double delay_s = s.detection_delays_s[0];
+    ++r->flagged;
+    r->delays_s.push_back(delay_s);
+    r->within_30 += delay_s <= 30;
+    if (delay_s > 30)
+      std::printf("  segment at %.2f m/s flagged late: %.1f s\n", spoof.rate_mps, delay_s);
   }
-  std::sort(delays.begin(), delays.end());
-  const double rate = double(within_30) / segments, per_hour = false_alarms / clean_hours;
-  std::printf("spoofing study: %d segments, %d flagged, %d within 30 s (%.1f %%); delay median "
-              "%.1f s, max %.1f s; %d false alarms in %.1f clean hours (%.2f per hour)\n",
-              segments, flagged, within_30, 100 * rate, delays[delays.size() / 2], delays.back(),
-              false_alarms, clean_hours, per_hour);
-  EXPECT_GE(segments, 20);
-  EXPECT_GE(rate, 0.95);
+}
+
+TEST(SpoofingMonitorTest, DetectsSeededSpoofingWithinThirtySecondsAndRarelyFalseAlarms) {
+  StudyResult r;
+  RunCleanDrives(&r);
+  ASSERT_NO_FATAL_FAILURE(RunAttackDrives(&r));
+  ASSERT_EQ(r.segments, 40);
+  ASSERT_FALSE(r.delays_s.empty()) << "no segment flagged";
+  std::sort(r.delays_s.begin(), r.delays_s.end());
+  const double median_s = r.delays_s[r.delays_s.size() / 2], max_s = r.delays_s.back();
+  const double per_hour = r.false_alarms / r.clean_hours;
+  std::printf(
+      "spoofing study: %d segments, %d flagged, %d within 30 s; delay median %.1f s, "
+      "max %.1f s; %d false alarms in %.1f clean hours (%.2f per hour)\n",
+      r.segments, r.flagged, r.within_30, median_s, max_s, r.false_alarms, r.clean_hours, per_hour);
+  // Goals (DEVELOPERS.md "GNSS spoofing monitor"): >= 95 % of attacks flagged within 30 s, at
+  // most 1 false alarm per hour. Measured on these seeds (gcc 12, libstdc++): 40 of 40 flagged,
+  // all 40 within 30 s, delay median 8.1 s, max 24.0 s; 2 false alarms in 24.1 clean hours
+  // (0.08 per hour), as the README states. The bounds keep what was measured: every attack
+  // flagged within 30 s, the median delay at most 12 s, at most 2 false alarms.
+  EXPECT_EQ(r.flagged, 40);
+  EXPECT_EQ(r.within_30, 40);
+  EXPECT_LE(max_s, 30.0);
+  EXPECT_LE(median_s, 12.0);
+  EXPECT_GE(r.clean_hours, 24.0);  // 20 clean hours plus the attack drives' clean minutes
+  EXPECT_LE(r.false_alarms, 2);
   EXPECT_LE(per_hour, 1.0);
 }
 
