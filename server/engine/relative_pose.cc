@@ -41,6 +41,33 @@ cv::Mat SampsonInliers(const cv::Mat& e, const std::vector<cv::Point2d>& na,
   return mask;
 }
 
+// cv::recoverPose's cheirality test also drops points triangulated farther than distance_thresh
+// baselines (50 by default). Near pure rotation nearly every point is that far, so the count
+// falls to the few that noise brings nearer (often under min_inliers, and a rotation from those
+// few is poor) although the rotation is well determined by all of them. So the test is repeated
+// with points at any distance counted, and that pose replaces the default one when it keeps more
+// inliers and its median parallax is under min_parallax_deg: a near pure rotation, whose
+// rotation holds and whose translation EstimateRelativePose flags unreliable. A pair with
+// parallax keeps the default test.
+constexpr double kAnyDistance = 1e12;  // baselines
+
+int RecoverPose(const cv::Mat& e, const std::vector<cv::Point2d>& na,
+                const std::vector<cv::Point2d>& nb, const RelativePoseOptions& options,
+                const cv::Mat& sampson_mask, cv::Mat* r, cv::Mat* t, cv::Mat* mask) {
+  const cv::Mat k = cv::Mat::eye(3, 3, CV_64F);
+  *mask = sampson_mask.clone();
+  const int inliers = cv::recoverPose(e, na, nb, k, *r, *t, *mask);
+  cv::Mat far_r, far_t, far_mask = sampson_mask.clone();
+  const int far_inliers = cv::recoverPose(e, na, nb, k, far_r, far_t, kAnyDistance, far_mask);
+  if (far_inliers <= inliers) return inliers;
+  std::vector<bool> keep(na.size());
+  for (size_t i = 0; i < na.size(); ++i) keep[i] = far_mask.at<uchar>(static_cast<int>(i)) != 0;
+  if (MedianParallaxDeg(na, nb, keep, cv::Matx33d(far_r)) >= options.min_parallax_deg)
+    return inliers;
+  *r = far_r, *t = far_t, *mask = far_mask;
+  return far_inliers;
+}
+
 }  // namespace
 
 bool RelativePoseOptions::Validate(std::string* error) const {
@@ -75,8 +102,8 @@ Result<RelativePose> EstimateRelativePose(const std::vector<cv::Point2d>& na,
     if (e.rows != 3 || e.cols != 3)
       return Status(StatusCode::kFailedPrecondition, "no essential matrix found");
     // MAGSAC's own mask is stricter than its threshold; count inliers by Sampson distance.
-    mask = SampsonInliers(e, na, nb, options.threshold_px / options.focal_px);
-    pose.inliers = cv::recoverPose(e, na, nb, cv::Mat::eye(3, 3, CV_64F), r, t, mask);
+    const cv::Mat sampson = SampsonInliers(e, na, nb, options.threshold_px / options.focal_px);
+    pose.inliers = RecoverPose(e, na, nb, options, sampson, &r, &t, &mask);
   } catch (const cv::Exception& ex) {
     return Status::Internal(std::string("essential matrix estimation failed: ") + ex.what());
   }

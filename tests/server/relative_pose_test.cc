@@ -3,6 +3,7 @@
 
 #include <gtest/gtest.h>
 
+#include <cstdio>
 #include <opencv2/calib3d.hpp>
 #include <random>
 
@@ -92,16 +93,29 @@ TEST(RelativePoseTest, GracefulWithNoiseAndHalfOutliers) {
   }
 }
 
-// Pure rotation (camera 5 mm away): the rotation holds, the translation must not be trusted.
-TEST(RelativePoseTest, NearPureRotationIsNotAConfidentTranslation) {
-  const Views v = MakeViews({0.01, 0.12, -0.02}, {0.005, 0.0, 0.0}, 1.0, 0.2, 300, 5);
-  Result<RelativePose> p = EstimateRelativePose(v.na, v.nb, RelativePoseOptions{});
-  if (!p.ok()) {
-    SUCCEED() << "refused: " << p.status().ToString();
-    return;
+// Pure rotation and near pure rotation (the camera 5 mm away), with 1 px noise and a fifth of
+// the matches wrong. The contract (relative_pose.h): a pose is returned, its rotation valid, and
+// its translation flagged unreliable because the median rotation-compensated parallax is under
+// min_parallax_deg (0.3 deg). Measured (gcc 12, seeds 5, 7, 8, both centres): rotation error
+// 0.060-0.219 deg, median parallax 0.133-0.173 deg, 93-135 inliers. Bound on the rotation:
+// 0.3 deg, between the noise-free goal (0.1 deg) and the noisy two-view bound (0.5 deg).
+TEST(RelativePoseTest, PureRotationKeepsTheRotationAndFlagsTheTranslation) {
+  const cv::Vec3d rotation(0.01, 0.12, -0.02);
+  for (const cv::Vec3d& centre : {cv::Vec3d(0, 0, 0), cv::Vec3d(0.005, 0, 0)}) {
+    for (uint32_t seed : {5u, 7u, 8u}) {
+      const Views v = MakeViews(rotation, centre, 1.0, 0.2, 300, seed);
+      Result<RelativePose> p = EstimateRelativePose(v.na, v.nb, RelativePoseOptions{});
+      ASSERT_TRUE(p.ok()) << "seed " << seed << ": " << p.status().ToString();
+      const double rotation_error_deg = RotationAngleDeg(p->b_from_a, v.b_from_a);
+      std::printf(
+          "centre x %.3f m, seed %u: rotation error %.4f deg, median parallax %.4f deg, "
+          "%d inliers\n",
+          centre[0], seed, rotation_error_deg, p->median_parallax_deg, p->inliers);
+      EXPECT_LT(rotation_error_deg, 0.3) << "seed " << seed;
+      EXPECT_LT(p->median_parallax_deg, RelativePoseOptions{}.min_parallax_deg) << "seed " << seed;
+      EXPECT_FALSE(p->translation_reliable) << "seed " << seed;
+    }
   }
-  EXPECT_LT(RotationAngleDeg(p->b_from_a, v.b_from_a), 0.3);
-  EXPECT_FALSE(p->translation_reliable) << "median parallax " << p->median_parallax_deg << " deg";
 }
 
 TEST(RelativePoseTest, TooFewMatchesAndBadOptions) {
