@@ -219,6 +219,7 @@ Result<ShardSummary> BuildTilesImpl(const Plan& plan, int shard, int shards,
                                    std::to_string(shards));
   if (shard < 1 || shard > shards)
     return Status::InvalidArgument("shard must be within 1.." + std::to_string(shards));
+  if (std::string error; !step.Validate(&error)) return Status::InvalidArgument(error);
   PinLibraryThreads();
   const Stopwatch total(step.env);
   Result<StagedModel> staged = LoadStagedModel(step.env, plan.map_dir);

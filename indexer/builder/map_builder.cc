@@ -368,4 +368,12 @@ bool BuildOptions::Validate(std::string* error) const {
   return true;
 }
 
+bool StepOptions::Validate(std::string* error) const {
+  const char* bad = jobs < 0         ? "jobs must be >= 0"
+                    : env == nullptr ? "env must not be null"
+                                     : nullptr;
+  if (bad && error) *error = bad;
+  return bad == nullptr;
+}
+
 }  // namespace sightfix

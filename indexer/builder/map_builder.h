@@ -124,6 +124,8 @@ struct StepOptions {
   int jobs = 0;               // worker threads; 0 = all cores
   bool progress = true;       // progress on stderr
   Env* env = Env::Default();  // as BuildOptions::env
+  // Names the bad field in *error.
+  bool Validate(std::string* error) const;
 };
 Result<ShardSummary> BuildTilesStep(const std::string& plan_path, int shard, int shards,
                                     const StepOptions& options);

@@ -229,6 +229,7 @@ Status MoveAndSwitch(const PublishContext& c, const Assembly& a) {
 
 Result<BuildSummary> PublishImpl(const Plan& plan, const std::string& plan_path,
                                  const StepOptions& step, bool locked) {
+  if (std::string error; !step.Validate(&error)) return Status::InvalidArgument(error);
   const Stopwatch total(step.env);
   const PublishContext c{&plan, plan_path, OptionsOf(plan, step),
                          StagingDir(plan.map_dir) / plan.id,
