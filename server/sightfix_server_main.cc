@@ -9,35 +9,47 @@
 
 namespace po = boost::program_options;
 
-int main(int argc, char** argv) {
-  sightfix::InstallCrashReport("sightfix-server");
-  sightfix::PinLibraryThreads();
-  sightfix::ServiceOptions o;
-  size_t cache_mb = o.engine.tile_cache_bytes >> 20;
+namespace {
+
+// The command line's options, bound to *o and *cache_mb (the tile cache in MiB).
+po::options_description Flags(sightfix::ServiceOptions* o, size_t* cache_mb) {
   po::options_description desc(
       "sightfix-server: visual localization over TCP (framed protobuf, package sightfix.v1),\n"
       "with /healthz and /metrics on an HTTP side port. SIGTERM drains and exits 0; SIGHUP\n"
       "reloads the map. sightfix is a fallback aid, not a certified navigation source; defer to\n"
       "the vehicle's safety case and local regulations.\n\n"
       "Usage: sightfix-server --map MAPDIR [options]\n\nOptions");
-  desc.add_options()("help,h", "show this help")("map", po::value(&o.map_dir), "map folder")(
-      "listen", po::value(&o.listen)->default_value(o.listen), "HOST:PORT for calls")(
-      "http", po::value(&o.http)->default_value(o.http),
+  desc.add_options()("help,h", "show this help")("map", po::value(&o->map_dir), "map folder")(
+      "listen", po::value(&o->listen)->default_value(o->listen), "HOST:PORT for calls")(
+      "http", po::value(&o->http)->default_value(o->http),
       "HOST:PORT for /healthz and /metrics ('' = none)")(
-      "workers", po::value(&o.workers)->default_value(0), "engine threads (0 = all cores)")(
-      "queue", po::value(&o.queue)->default_value(o.queue), "calls waiting before OVERLOADED")(
-      "max-frame-bytes", po::value(&o.max_frame_bytes)->default_value(o.max_frame_bytes),
-      "largest frame accepted")("max-pixels", po::value(&o.max_pixels)->default_value(o.max_pixels),
+      "workers", po::value(&o->workers)->default_value(0), "engine threads (0 = all cores)")(
+      "queue", po::value(&o->queue)->default_value(o->queue), "calls waiting before OVERLOADED")(
+      "max-frame-bytes", po::value(&o->max_frame_bytes)->default_value(o->max_frame_bytes),
+      "largest frame accepted")("max-pixels",
+                                po::value(&o->max_pixels)->default_value(o->max_pixels),
                                 "largest image (width x height from its header) accepted")(
-      "max-connections", po::value(&o.max_connections)->default_value(o.max_connections),
+      "max-connections", po::value(&o->max_connections)->default_value(o->max_connections),
       "open connections at most")(
-      "deadline-ms", po::value(&o.default_deadline_ms)->default_value(o.default_deadline_ms),
-      "deadline of calls that set none")("token-file", po::value(&o.token_file),
+      "deadline-ms", po::value(&o->default_deadline_ms)->default_value(o->default_deadline_ms),
+      "deadline of calls that set none")("token-file", po::value(&o->token_file),
                                          "file holding the bearer token calls must carry")(
       "allow-open", "listen beyond loopback without a token (not advised)")(
-      "no-scrub", "skip the background check of every tile file at start (tiles are still "
-                  "checked against the catalog before first use)")(
-      "tile-cache-mb", po::value(&cache_mb)->default_value(cache_mb), "memory for loaded tiles");
+      "no-scrub",
+      "skip the background check of every tile file at start (tiles are still "
+      "checked against the catalog before first use)")(
+      "tile-cache-mb", po::value(cache_mb)->default_value(*cache_mb), "memory for loaded tiles");
+  return desc;
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  sightfix::InstallCrashReport("sightfix-server");
+  sightfix::PinLibraryThreads();
+  sightfix::ServiceOptions o;
+  size_t cache_mb = o.engine.tile_cache_bytes >> 20;
+  po::options_description desc = Flags(&o, &cache_mb);
   po::variables_map vm;
   try {
     po::store(po::parse_command_line(argc, argv, desc), vm);
