@@ -8,7 +8,10 @@
 // epipolar constraint, so the essential matrix's inlier count proves nothing about t. We measure
 // the rotation-compensated parallax of the inliers instead: with the estimated R, the ray of a
 // point in A rotated into B meets B's ray at an angle that is zero for pure rotation. A median
-// parallax under min_parallax_deg marks the translation unreliable (rotation still valid).
+// parallax under min_parallax_deg marks the translation unreliable (rotation still valid). As
+// every point of a near pure rotation lies beyond recoverPose's 50-baseline cut, its cheirality
+// test is repeated with far points counted, and that pose taken when it keeps more inliers and
+// its parallax is under min_parallax_deg; a pair with parallax keeps the default test.
 // Thread-safe.
 #pragma once
 
