@@ -65,7 +65,7 @@ pid=$!
 tiles_glob="$m/staging/*/tiles/*/*/*-v*.sqlite"
 while kill -0 "$pid" 2>/dev/null && ! compgen -G "$tiles_glob" >/dev/null; do :; done
 kill -KILL "$pid" 2>/dev/null
-wait "$pid"
+wait "$pid" 2>/dev/null
 rc=$?
 manifests=$(compgen -G "$m/staging/*/shard-1-of-2.json" | wc -l)
 [ "$rc" = 137 ] && compgen -G "$tiles_glob" >/dev/null && [ "$manifests" = 0 ] &&
