@@ -35,6 +35,7 @@ class Stopwatch {
   Env* env_;
   int64_t start_us_;
 };
+
 // A progress line on stderr when o.progress.
 void Say(const BuildOptions& o, const std::string& line);
 
