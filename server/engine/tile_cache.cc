@@ -95,7 +95,10 @@ Status TileCache::Check(int ordinal) {
   if (ordinal < 0 || ordinal >= static_cast<int>(tiles_.size()))
     return Status::NotFound("no tile with ordinal " + std::to_string(ordinal));
   {
-    std::lock_guard<std::mutex> lock(mu_);
+    std::unique_lock<std::mutex> lock(mu_);
+    // Background work yields to calls: no file is read for a check while a load runs (a load
+    // checks its own file; two reads at once slowed a cold start's first calls).
+    load_finished_.wait(lock, [&] { return loading_.empty(); });
     if (auto f = failed_.find(ordinal); f != failed_.end()) return f->second;
     if (checked_[ordinal]) return Status::Ok();
   }

@@ -63,7 +63,8 @@ class TileCache {
   // every call, and every caller waiting on the failed load gets it.
   Result<std::shared_ptr<const LoadedTile>> Get(int ordinal);
   // Checks the file of `ordinal` against the catalog's SHA-256 without loading it (the server's
-  // background scrub; no lock held while reading); a failure is remembered as for Get.
+  // background scrub; no lock held while reading); a failure is remembered as for Get. Yields to
+  // calls: waits until no load is under way before it reads.
   Status Check(int ordinal);
   // Tiles refused so far, in catalog order, and how many have been checked or loaded.
   std::vector<TileProblem> Problems() const;
