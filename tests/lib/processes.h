@@ -22,7 +22,7 @@
 
 namespace sightfix::testing_processes {
 
-inline std::string Env(const char* name, const char* fallback) {
+inline std::string EnvOr(const char* name, const char* fallback) {
   const char* v = std::getenv(name);
   return v ? v : fallback;
 }
@@ -94,9 +94,9 @@ class ServerProcess {
   bool Start() {
     const std::string log = ::testing::TempDir() + "/server-" + std::to_string(port_) + "-" +
                             std::to_string(starts_++) + ".log";
-    const std::string map = Env("SIGHTFIX_SERVICE_DATA", "service_data") + "/map";
+    const std::string map = EnvOr("SIGHTFIX_SERVICE_DATA", "service_data") + "/map";
     const std::string http = http_port_ ? "127.0.0.1:" + std::to_string(http_port_) : "";
-    if (!child_.Start({Env("SIGHTFIX_SERVER_BIN", "sightfix-server"), "--map", map, "--listen",
+    if (!child_.Start({EnvOr("SIGHTFIX_SERVER_BIN", "sightfix-server"), "--map", map, "--listen",
                        "127.0.0.1:" + std::to_string(port_), "--http", http, "--workers", "2"},
                       log))
       return false;
@@ -149,7 +149,7 @@ inline std::string HttpGet(int port, const std::string& path) {
 
 // A locate request for row `row` of the town's query-day drive, with a 60 m prior.
 inline v1::LocateRequest Query(int row) {
-  const std::string dir = Env("SIGHTFIX_SERVICE_DATA", "service_data") + "/town/query-day";
+  const std::string dir = EnvOr("SIGHTFIX_SERVICE_DATA", "service_data") + "/town/query-day";
   auto rows = ReadDriveManifest(dir + "/drive.csv");
   auto cam = LoadCameraModel(dir + "/camera.yml");
   LocateRequest fields;

@@ -148,7 +148,7 @@ TEST(BalancerTest, HaproxyLosesNoCallWhenAReplicaDies) {
   const std::string cfg = ::testing::TempDir() + "/haproxy-" + std::to_string(lb_port) + ".cfg";
   std::ofstream(cfg) << HaproxyConfig(lb_port, r1, r2, socket);
   ChildProcess haproxy;
-  ASSERT_TRUE(haproxy.Start({Env("HAPROXY_BIN", "/usr/sbin/haproxy"), "-db", "-f", cfg},
+  ASSERT_TRUE(haproxy.Start({EnvOr("HAPROXY_BIN", "/usr/sbin/haproxy"), "-db", "-f", cfg},
                             ::testing::TempDir() + "/haproxy.log"));
   ASSERT_TRUE(WaitForState(socket, "replica1", "UP", 10)) << haproxy.Log();
   ASSERT_TRUE(WaitForState(socket, "replica2", "UP", 10)) << haproxy.Log();
