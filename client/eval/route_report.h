@@ -1,5 +1,5 @@
 // The evaluator's outputs for one replayed drive, written into a report folder:
-//   summary.json   the metrics (route_eval.h) under the keys DESIGN.md 7 and README list,
+//   summary.json   the metrics (route_eval.h) under the keys docs/design.md 7 and README list,
 //   fixes.csv      one row per query,
 //   route.geojson  RFC 7946: truth track, fixes, error segments, spoofing alarms,
 //   report.html    one self-contained page with inline SVG plots and the safety caution

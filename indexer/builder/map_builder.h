@@ -43,7 +43,7 @@ struct BuildOptions {
   int jobs = 0;                 // worker threads; 0 = all cores
   bool overwrite = false;       // replace an existing map (its version goes up)
   int vocabulary_sample = 300;  // descriptors per image for the k-means vocabulary
-  // Crop views per image, only while under min_pq_training (DESIGN.md 4.3): 40 lets surveys of
+  // Crop views per image, only while under min_pq_training (docs/design.md 4.3): 40 lets surveys of
   // 244 images or more reach the 9 984 vectors of an 8-bit PQ; smaller ones get SQ8 codes.
   int max_crop_views = 40;
   // train: at most this many survey images (evenly spaced) train the model; features of that
@@ -140,7 +140,7 @@ Result<BuildSummary> PublishStep(const std::string& plan_path, const StepOptions
 // model and zoom. Tiles the new frames fall in are rebuilt from their stored images plus the
 // new ones (structure re-adjusted together) and written under the next version's names; the
 // other tiles are carried as they are; then one catalog switch, then old files go. A crash at
-// any point leaves the previous map whole (DESIGN.md 4.6).
+// any point leaves the previous map whole (docs/design.md 4.6).
 Result<BuildSummary> AddToMap(const BuildOptions& options);
 // `retrain`: a new model trained on every stored image's features (the compact descriptors the
 // tiles keep), every tile rewritten with new codes and retrieval index, then the catalog switch;

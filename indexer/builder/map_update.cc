@@ -1,7 +1,7 @@
 // `add` and `retrain` (map_builder.h): the next version of a live map, written beside it under
 // new versioned tile names, made live by one catalog switch, then the replaced files removed.
 // Until the switch the previous catalog names only previous files, so a crash or an I/O error at
-// any point leaves the previous map whole (DESIGN.md 4.6); after it, the new map is whole.
+// any point leaves the previous map whole (docs/design.md 4.6); after it, the new map is whole.
 #include <faiss/Index.h>
 
 #include <algorithm>

@@ -240,7 +240,8 @@ AdjustResult Adjust(const std::vector<SurveyView>& views, const StructureOptions
   so.sparse_linear_algebra_library_type = ceres::EIGEN_SPARSE;
   so.max_num_iterations = o.ba_max_iterations;
   // One thread: Ceres sums the Schur complement in thread order, so more threads change the
-  // last bits of the result, and tiles must be byte-identical whatever --jobs is (DESIGN.md 4.6).
+  // last bits of the result, and tiles must be byte-identical whatever --jobs is
+  // (docs/design.md 4.6).
   so.num_threads = 1;
   so.logging_type = ceres::SILENT;
   ceres::Solver::Summary summary;

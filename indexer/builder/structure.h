@@ -10,7 +10,8 @@
 // 4. Triangulation: linear multi-view (DLT) in ENU, then observations reprojecting beyond
 //    max_reproj_px are dropped one by one; a point needs two observations whose rays meet at
 //    min_triangulation_deg or more (rays meeting at a shallow angle put points metres off:
-//    DESIGN.md 5.3 measured 2.5 m median error with all points, 0.36 m without those under 2 deg).
+//    docs/design.md 5.3 measured 2.5 m median error with all points, 0.36 m without those under
+//    2 deg).
 // 5. Bundle adjustment (Ceres Solver): frame poses and points, reprojection residuals in pixels
 //    with a Huber loss, and the survey's GNSS/INS poses as priors (sigma_h_m per axis for the
 //    centre, attitude_sigma_deg for the attitude). Frames with sigma_h_m = 0 are held fixed.
@@ -38,7 +39,7 @@ struct StructureOptions {
   double max_neighbour_m = 12.0;       // farther frames share too little at street scale
   double max_heading_diff_deg = 30.0;  // frames looking apart share little
   double epipolar_px = 2.0;            // Sampson distance at the frame's focal length
-  double min_triangulation_deg = 2.0;  // DESIGN.md 5.3
+  double min_triangulation_deg = 2.0;  // docs/design.md 5.3
   double max_reproj_px = 2.0;          // per observation, before and after adjustment
   double pixel_sigma_px = 1.0;         // keypoint noise (SIFT, common practice ~1 px)
   double attitude_sigma_deg = 0.1;     // INS attitude prior; drive.csv carries no column for it

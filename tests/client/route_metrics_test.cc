@@ -1,6 +1,6 @@
 // The evaluator's metrics (client/eval/route_eval.h) against a hand-worked example, and
-// summary.json against the key list of DESIGN.md 7. Every expected value below is worked out by
-// hand in the comments from the table of six queries.
+// summary.json against the key list of docs/design.md 7. Every expected value below is worked out
+// by hand in the comments from the table of six queries.
 #include <gtest/gtest.h>
 
 #include <map>

@@ -59,7 +59,7 @@ TEST(GlobalDescriptorTest, ProductQuantizationKeepsRecallOfExactSearch) {
   for (const cv::Mat& d : survey.descriptors)
     sample.push_back(d.rowRange(0, std::min(d.rows, 300)));
   // As the indexer does for small surveys: up to 40 crop views per image bring the PQ training set
-  // past FAISS's 39 x 256 (DESIGN.md 4.3).
+  // past FAISS's 39 x 256 (docs/design.md 4.3).
   std::vector<cv::Mat> augmented;
   for (size_t i = 0; i < survey.features.size(); ++i)
     for (cv::Mat& v : CropViews(survey.features[i], survey.width, survey.height, 40, i))

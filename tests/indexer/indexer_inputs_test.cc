@@ -131,9 +131,9 @@ TEST(ExifGpsTest, BlocksWithoutGpsOrExifAreNamed) {
 }
 
 TEST(GeoidTest, Egm96AtNgaTestPoints) {
-  // NGA's EGM96 test points (values from memory, as DESIGN.md 9 lists them); the 15-minute grid
-  // with bilinear interpolation is within a few centimetres of the spherical-harmonic values at
-  // these points, so 0.1 m is the tolerance.
+  // NGA's EGM96 test points (values from memory, as docs/design.md 9 lists them); the 15-minute
+  // grid with bilinear interpolation is within a few centimetres of the spherical-harmonic values
+  // at these points, so 0.1 m is the tolerance.
   auto geoid = Geoid::OpenEgm96();
   ASSERT_TRUE(geoid.ok()) << geoid.status().ToString();
   EXPECT_NEAR((*geoid)->Undulation(38.6281550, 269.7791550 - 360), -31.628, 0.1);

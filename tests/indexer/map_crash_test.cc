@@ -1,4 +1,4 @@
-// Crash safety and I/O faults of `add` and `retrain` (map_builder.h, DESIGN.md 4.6), injected
+// Crash safety and I/O faults of `add` and `retrain` (map_builder.h, docs/design.md 4.6), injected
 // through the Env (indexer/base/env.h). A forked child runs the library's add or retrain with an
 // Env that raises SIGKILL at one point of the publication:
 //   - after the N-th new tile file's rename (tile:N),

@@ -15,7 +15,7 @@ void ExpectVec(const cv::Vec3d& got, const cv::Vec3d& want) {
   EXPECT_LT(cv::norm(got - want), 1e-12) << got[0] << "," << got[1] << "," << got[2];
 }
 
-// Conventions of DESIGN.md section 3, checked axis by axis.
+// Conventions of docs/design.md section 3, checked axis by axis.
 TEST(RotationTest, AxesAtZeroAttitudeLookNorthLevel) {
   ExpectVec(Forward({0, 0, 0}), {0, 1, 0});
   ExpectVec(Right({0, 0, 0}), {1, 0, 0});
