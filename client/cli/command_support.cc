@@ -53,7 +53,7 @@ void AddSourceOptions(po::options_description* desc, SourceFlags* flags) {
       "server", po::value(&flags->server),
       "HOST:PORT of a sightfix-server instead of --map; several, comma-separated, to fail over "
       "between replicas")("token-file", po::value(&flags->token_file),
-                          "file holding the server's bearer token");
+                          "file holding the server's bearer token (with --server only)");
 }
 
 int RefuseServerFlagsWithMap(const SourceFlags& flags, const po::variables_map& vm) {

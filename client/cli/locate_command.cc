@@ -37,14 +37,16 @@ po::options_description LocateOptions(LocateFlags* f) {
   desc.add_options()("help,h", "show this help");
   AddSourceOptions(&desc, &f->source);
   desc.add_options()("deadline-ms", po::value(&f->source.deadline_ms),
-                     "deadline of the call to the server (10000)")(
+                     "deadline of the call to the server (10000; with --server only)")(
       "image", po::value(&f->image_path), "query image (JPEG or PNG)")(
       "camera", po::value(&f->camera_path), "its calibration (OpenCV FileStorage YAML)")(
       "prior", po::value(&f->prior_text),
       "coarse prior circle LAT,LON,RADIUS_M (WGS84 degrees, m)")(
       "heading", po::value(&f->heading_deg), "coarse heading prior, degrees from north")(
-      "method", po::value(&f->method), "pose method: auto (points, then pair), points or pair")(
-      "truth", po::value(&f->truth_text), "true LAT,LON: also print the horizontal error")(
+      "method", po::value(&f->method),
+      "pose method: auto (points, then pair), points or pair (with --map only: a "
+      "server chooses its own)")("truth", po::value(&f->truth_text),
+                                 "true LAT,LON: also print the horizontal error")(
       "json", "print JSON on stdout");
   return desc;
 }

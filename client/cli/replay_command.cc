@@ -54,10 +54,11 @@ po::options_description ReplayOptions(ReplayFlags* f) {
       "spoofing", po::value(&f->spoof_path),
       "true spoofed spans, to score the monitor (default QUERYDIR/spoofing.csv when present)")(
       "limit", po::value(&f->limit), "first N queries only (0: all)")(
-      "seed", po::value(&f->seed), "seed of the noisy prior's centres (1)")(
+      "seed", po::value(&f->seed),
+      "seed of the noisy prior's centres (1; with --prior noisy:R only)")(
       "jobs", po::value(&f->jobs), "queries in flight (2)")(
       "deadline-ms", po::value(&f->source.deadline_ms),
-      "deadline of each call to the server (30000)")(
+      "deadline of each call to the server (30000; with --server only)")(
       "json", "print summary.json on stdout instead of the text summary");
   return desc;
 }
