@@ -7,7 +7,6 @@
 #include <chrono>
 #include <filesystem>
 #include <fstream>
-#include <iterator>
 #include <thread>
 
 namespace sightfix {
@@ -18,10 +17,14 @@ namespace fs = std::filesystem;
 class PosixEnv : public Env {
  public:
   Result<std::string> ReadFile(const std::string& path) override {
-    std::ifstream in(path, std::ios::binary);
+    std::ifstream in(path, std::ios::binary | std::ios::ate);
     if (!in) return Status::NotFound("cannot open " + path);
-    std::string bytes((std::istreambuf_iterator<char>(in)), {});
-    if (in.bad()) return Status::IoError("cannot read " + path);
+    // One sized read: a character iterator costs ~6x as much on a tile of tens of megabytes.
+    const std::streamoff size = in.tellg();
+    if (size < 0) return Status::IoError("cannot size " + path);
+    std::string bytes(static_cast<size_t>(size), '\0');
+    in.seekg(0);
+    if (!in.read(bytes.data(), size)) return Status::IoError("cannot read " + path);
     return bytes;
   }
 
