@@ -7,8 +7,8 @@
 #include <mutex>
 #include <thread>
 
-#include "proto/frame_codec.h"
 #include "indexer/base/endpoint.h"
+#include "proto/frame_codec.h"
 
 namespace sightfix {
 

@@ -65,18 +65,32 @@ std::string EscapeXml(const std::string& text) {
   std::string out;
   for (char c : text) {
     switch (c) {
-      case '&': out += "&amp;"; break;
-      case '<': out += "&lt;"; break;
-      case '>': out += "&gt;"; break;
-      case '"': out += "&quot;"; break;
-      default: out += c;
+      case '&':
+        out += "&amp;";
+        break;
+      case '<':
+        out += "&lt;";
+        break;
+      case '>':
+        out += "&gt;";
+        break;
+      case '"':
+        out += "&quot;";
+        break;
+      default:
+        out += c;
     }
   }
   return out;
 }
 
 SvgPlot::SvgPlot(std::string id, std::string title, PlotAxis x, PlotAxis y, int w, int h)
-    : id_(std::move(id)), title_(std::move(title)), x_(std::move(x)), y_(std::move(y)), w_(w), h_(h) {}
+    : id_(std::move(id)),
+      title_(std::move(title)),
+      x_(std::move(x)),
+      y_(std::move(y)),
+      w_(w),
+      h_(h) {}
 
 double SvgPlot::X(double v) const { return kLeft + Fraction(x_, v) * (w_ - kLeft - kRight); }
 double SvgPlot::Y(double v) const { return h_ - kBottom - Fraction(y_, v) * (h_ - kTop - kBottom); }
@@ -94,7 +108,8 @@ void SvgPlot::Line(const std::vector<double>& xs, const std::vector<double>& ys,
 void SvgPlot::Dot(double x, double y, double r, const std::string& fill, const std::string& title) {
   std::string s = "<circle cx=\"" + Num(X(x)) + "\" cy=\"" + Num(Y(y)) + "\" r=\"" + Num(r) +
                   "\" fill=\"" + fill + "\"";
-  marks_.push_back(title.empty() ? s + "/>" : s + "><title>" + EscapeXml(title) + "</title></circle>");
+  marks_.push_back(title.empty() ? s + "/>"
+                                 : s + "><title>" + EscapeXml(title) + "</title></circle>");
 }
 
 void SvgPlot::Ring(double x, double y, double r, const std::string& stroke) {
@@ -112,12 +127,11 @@ void SvgPlot::Band(double x0, double x1, const std::string& fill) {
 void SvgPlot::Bar(double x0, double x1, double y, const std::string& fill) {
   const double a = X(x0), b = X(x1), top = Y(y), base = Y(y_.lo);
   marks_.push_back("<rect x=\"" + Num(a + 0.5) + "\" y=\"" + Num(top) + "\" width=\"" +
-                   Num(std::max(0.5, b - a - 1)) + "\" height=\"" + Num(base - top) +
-                   "\" fill=\"" + fill + "\"/>");
+                   Num(std::max(0.5, b - a - 1)) + "\" height=\"" + Num(base - top) + "\" fill=\"" +
+                   fill + "\"/>");
 }
 
-void SvgPlot::VerticalMark(double x, const std::string& label, const std::string& colour,
-                           int row) {
+void SvgPlot::VerticalMark(double x, const std::string& label, const std::string& colour, int row) {
   const double px = X(x);
   marks_.push_back("<line x1=\"" + Num(px) + "\" x2=\"" + Num(px) + "\" y1=\"" + Num(kTop) +
                    "\" y2=\"" + Num(h_ - kBottom) + "\" stroke=\"" + colour +
@@ -131,15 +145,16 @@ void SvgPlot::HorizontalMark(double y, const std::string& label, const std::stri
   marks_.push_back("<line x1=\"" + Num(kLeft) + "\" x2=\"" + Num(w_ - kRight) + "\" y1=\"" +
                    Num(py) + "\" y2=\"" + Num(py) + "\" stroke=\"" + colour +
                    "\" stroke-dasharray=\"4 3\"/><text x=\"" + Num(w_ - kRight - 4) + "\" y=\"" +
-                   Num(py - 4) + "\" fill=\"" + colour + "\" font-size=\"11\" text-anchor=\"end\">" +
-                   EscapeXml(label) + "</text>");
+                   Num(py - 4) + "\" fill=\"" + colour +
+                   "\" font-size=\"11\" text-anchor=\"end\">" + EscapeXml(label) + "</text>");
 }
 
 void SvgPlot::Legend(const std::vector<std::pair<std::string, std::string>>& items) {
   double x = kLeft + 7.5 * title_.size() + 16;  // after the title, on its line
   for (const auto& [colour, label] : items) {
-    overlay_.push_back("<circle cx=\"" + Num(x + 5) + "\" cy=\"14\" r=\"4\" fill=\"" +
-                       colour + "\"/><text x=\"" + Num(x + 12) + "\" y=\"18\" font-size=\"11\">" + EscapeXml(label) + "</text>");
+    overlay_.push_back("<circle cx=\"" + Num(x + 5) + "\" cy=\"14\" r=\"4\" fill=\"" + colour +
+                       "\"/><text x=\"" + Num(x + 12) + "\" y=\"18\" font-size=\"11\">" +
+                       EscapeXml(label) + "</text>");
     x += 18 + 6.2 * label.size();
   }
 }

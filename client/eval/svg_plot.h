@@ -38,7 +38,7 @@ class SvgPlot {
   std::string id_, title_;
   PlotAxis x_, y_;
   int w_, h_;
-  std::vector<std::string> marks_;  // drawn in order inside the clip
+  std::vector<std::string> marks_;    // drawn in order inside the clip
   std::vector<std::string> overlay_;  // legend, outside the clip
 };
 

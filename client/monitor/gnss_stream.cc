@@ -28,8 +28,8 @@ Result<std::vector<GnssFix>> ReadGnssCsv(const std::string& path) {
     Result<double> t = ParseIsoUtc(f[0]);
     if (!t.ok()) return t.status();
     r->time_s = *t;
-    Status s = ParseNumbers(f, 1, {&r->lat_deg, &r->lon_deg, &r->height_m, &r->sigma_h_m,
-                                   &r->course_deg});
+    Status s =
+        ParseNumbers(f, 1, {&r->lat_deg, &r->lon_deg, &r->height_m, &r->sigma_h_m, &r->course_deg});
     if (!s.ok()) return s;
     if (std::abs(r->lat_deg) > 90 || std::abs(r->lon_deg) > 180)
       return Status::InvalidArgument("latitude or longitude out of range");

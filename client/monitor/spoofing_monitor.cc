@@ -22,8 +22,7 @@ bool SpoofingMonitorOptions::Validate(std::string* error) const {
 double NormalizedInnovationSquared(const cv::Vec2d& d, const cv::Matx22d& s) {
   const double det = s(0, 0) * s(1, 1) - s(0, 1) * s(1, 0);
   // Inverse of a 2x2 written out: the adjugate over the determinant.
-  return (d[0] * d[0] * s(1, 1) - d[0] * d[1] * (s(0, 1) + s(1, 0)) + d[1] * d[1] * s(0, 0)) /
-         det;
+  return (d[0] * d[0] * s(1, 1) - d[0] * d[1] * (s(0, 1) + s(1, 0)) + d[1] * d[1] * s(0, 0)) / det;
 }
 
 SpoofingMonitor::SpoofingMonitor(const SpoofingMonitorOptions& options) : options_(options) {}
@@ -38,8 +37,8 @@ MonitorStep SpoofingMonitor::Observe(const GnssObservation& gnss, const VisualOb
   step.time_s = gnss.time_s;
   step.difference_m = g.distance_m;
   step.nis = NormalizedInnovationSquared(d, s);
-  const double w =
-      started_ ? std::clamp(gnss.time_s - last_time_s_, 0.0, options_.max_step_s) : options_.max_step_s;
+  const double w = started_ ? std::clamp(gnss.time_s - last_time_s_, 0.0, options_.max_step_s)
+                            : options_.max_step_s;
   const double capped = std::min(step.nis, options_.reference_nis + options_.max_excess);
   g_ = std::max(0.0, g_ + w * (capped - options_.reference_nis));
   started_ = true;
@@ -51,9 +50,8 @@ MonitorStep SpoofingMonitor::Observe(const GnssObservation& gnss, const VisualOb
   return step;
 }
 
-SpoofingScore ScoreAlarms(const std::vector<MonitorStep>& steps,
-                          std::vector<TimeSpan> segments, const TimeSpan& observed,
-                          double grace_s) {
+SpoofingScore ScoreAlarms(const std::vector<MonitorStep>& steps, std::vector<TimeSpan> segments,
+                          const TimeSpan& observed, double grace_s) {
   std::sort(segments.begin(), segments.end(),
             [](const TimeSpan& a, const TimeSpan& b) { return a.start_s < b.start_s; });
   SpoofingScore score;

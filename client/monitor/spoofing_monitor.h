@@ -60,10 +60,10 @@ struct VisualObservation {
 struct MonitorStep {
   double time_s = 0;
   double nis = 0;
-  double cusum = 0;             // g after this observation, NIS-seconds
-  bool alarm = false;           // alarm state after this observation
-  bool alarm_raised = false;    // this observation raised it
-  double difference_m = 0;      // |d|, GNSS to visual
+  double cusum = 0;           // g after this observation, NIS-seconds
+  bool alarm = false;         // alarm state after this observation
+  bool alarm_raised = false;  // this observation raised it
+  double difference_m = 0;    // |d|, GNSS to visual
 };
 
 // d^T S^-1 d for a 2-vector d and a symmetric positive definite 2x2 S.
@@ -94,18 +94,17 @@ struct TimeSpan {
 // How a monitor's alarms compare with the true spoofed segments.
 struct SpoofingScore {
   int segments_true = 0;
-  int segments_flagged = 0;              // an alarm raised in [start, end + grace) or already on
+  int segments_flagged = 0;                // an alarm raised in [start, end + grace) or already on
   std::vector<double> detection_delays_s;  // per flagged segment: first alarm - start (>= 0)
   std::vector<double> segment_delay_s;     // per segment in start order: delay, or -1 missed
-  int false_alarms = 0;                  // alarms raised outside every [start, end + grace)
-  double clean_hours = 0;                // observed time outside every [start, end + grace)
+  int false_alarms = 0;                    // alarms raised outside every [start, end + grace)
+  double clean_hours = 0;                  // observed time outside every [start, end + grace)
 };
 
 // steps: the monitor's output in time order; segments: the true spoofed spans (any order);
 // observed: the span the monitor ran over. An alarm raised in [start, end + grace_s) flags that
 // segment; an alarm already on when a segment starts flags it with delay 0.
-SpoofingScore ScoreAlarms(const std::vector<MonitorStep>& steps,
-                          std::vector<TimeSpan> segments, const TimeSpan& observed,
-                          double grace_s = 5.0);
+SpoofingScore ScoreAlarms(const std::vector<MonitorStep>& steps, std::vector<TimeSpan> segments,
+                          const TimeSpan& observed, double grace_s = 5.0);
 
 }  // namespace sightfix

@@ -84,8 +84,7 @@ class PosixEnv : public Env {
     return static_cast<uint64_t>(n);
   }
 
-  Result<std::vector<std::string>> ListDirectory(const std::string& path,
-                                                 bool recursive) override {
+  Result<std::vector<std::string>> ListDirectory(const std::string& path, bool recursive) override {
     std::error_code ec;
     std::vector<std::string> names;
     if (recursive) {

@@ -58,9 +58,7 @@ class EnvWrapper : public Env {
   explicit EnvWrapper(Env* target) : target_(target) {}
   Env* target() const { return target_; }
 
-  Result<std::string> ReadFile(const std::string& path) override {
-    return target_->ReadFile(path);
-  }
+  Result<std::string> ReadFile(const std::string& path) override { return target_->ReadFile(path); }
   Status WriteFile(const std::string& path, const void* data, size_t size) override {
     return target_->WriteFile(path, data, size);
   }
@@ -75,8 +73,7 @@ class EnvWrapper : public Env {
   }
   bool FileExists(const std::string& path) override { return target_->FileExists(path); }
   Result<uint64_t> FileSize(const std::string& path) override { return target_->FileSize(path); }
-  Result<std::vector<std::string>> ListDirectory(const std::string& path,
-                                                 bool recursive) override {
+  Result<std::vector<std::string>> ListDirectory(const std::string& path, bool recursive) override {
     return target_->ListDirectory(path, recursive);
   }
   int64_t NowUnixSeconds() override { return target_->NowUnixSeconds(); }

@@ -1,9 +1,8 @@
 #include "indexer/builder/exif_gps.h"
 
-#include <exiv2/exiv2.hpp>
-
 #include <cmath>
 #include <cstdio>
+#include <exiv2/exiv2.hpp>
 
 #include "indexer/base/iso_time.h"
 
@@ -78,7 +77,8 @@ Exiv2::URationalValue Dms(double deg) {
 
 Exiv2::URationalValue One(double v, uint32_t denominator) {
   Exiv2::URationalValue r;
-  r.value_.push_back({static_cast<uint32_t>(std::llround(std::fabs(v) * denominator)), denominator});
+  r.value_.push_back(
+      {static_cast<uint32_t>(std::llround(std::fabs(v) * denominator)), denominator});
   return r;
 }
 
@@ -91,8 +91,10 @@ Result<ExifGps> ReadExifGps(const std::string& path, bool require_position) {
     const Exiv2::ExifData& exif = image->exifData();
     if (exif.empty()) return Status::InvalidArgument(path + ": no EXIF block");
     ExifGps g;
-    const auto lat = Coordinate(exif, "Exif.GPSInfo.GPSLatitude", "Exif.GPSInfo.GPSLatitudeRef", 'S');
-    const auto lon = Coordinate(exif, "Exif.GPSInfo.GPSLongitude", "Exif.GPSInfo.GPSLongitudeRef", 'W');
+    const auto lat =
+        Coordinate(exif, "Exif.GPSInfo.GPSLatitude", "Exif.GPSInfo.GPSLatitudeRef", 'S');
+    const auto lon =
+        Coordinate(exif, "Exif.GPSInfo.GPSLongitude", "Exif.GPSInfo.GPSLongitudeRef", 'W');
     g.has_position = lat && lon;
     if (!g.has_position && require_position)
       return Status::InvalidArgument(path + ": EXIF block without a GPS position");
@@ -108,9 +110,11 @@ Result<ExifGps> ReadExifGps(const std::string& path, bool require_position) {
     if (const auto dir = Rational(exif, "Exif.GPSInfo.GPSImgDirection")) {
       const std::string dref = Text(exif, "Exif.GPSInfo.GPSImgDirectionRef");
       if (!dref.empty() && dref[0] == 'M')
-        return Status::InvalidArgument(path + ": GPSImgDirection is magnetic (Ref M); true north "
-                                              "is needed");
-      if (*dir < 0 || *dir > 360) return Status::InvalidArgument(path + ": GPSImgDirection out of range");
+        return Status::InvalidArgument(path +
+                                       ": GPSImgDirection is magnetic (Ref M); true north "
+                                       "is needed");
+      if (*dir < 0 || *dir > 360)
+        return Status::InvalidArgument(path + ": GPSImgDirection out of range");
       g.img_direction_deg = *dir;
     }
     g.h_error_m = Rational(exif, "Exif.GPSInfo.0x001f");

@@ -20,7 +20,7 @@ namespace sightfix {
 struct ExifGps {
   bool has_position = true;  // false only when read with require_position = false
   double lat_deg = 0, lon_deg = 0;
-  double altitude_msl_m = 0;               // above mean sea level
+  double altitude_msl_m = 0;                // above mean sea level
   std::optional<double> img_direction_deg;  // true north, clockwise
   std::optional<double> h_error_m;          // GPSHPositioningError
   double time_s = 0;                        // Unix seconds, UTC

@@ -27,8 +27,9 @@ Result<std::unique_ptr<Geoid>> Geoid::OpenEgm96() {
   impl->ctx = proj_context_create();
   proj_log_level(impl->ctx, PJ_LOG_NONE);
   // multiplier -1: z_out = z_in - N (PROJ's vgridshift convention).
-  const std::string pipeline = std::string("+proj=pipeline +step +proj=unitconvert +xy_in=deg "
-                                           "+xy_out=rad +step +proj=vgridshift +grids=") +
+  const std::string pipeline = std::string(
+                                   "+proj=pipeline +step +proj=unitconvert +xy_in=deg "
+                                   "+xy_out=rad +step +proj=vgridshift +grids=") +
                                kEgm96Grid +
                                " +multiplier=-1 +step +proj=unitconvert +xy_in=rad +xy_out=deg";
   impl->shift = proj_create(impl->ctx, pipeline.c_str());

@@ -53,7 +53,8 @@ Result<std::vector<TrackPoint>> ReadGpxTrack(const std::string& path) {
         if (pt_name != "trkpt") continue;
         TrackPoint p;
         const std::string where = path + ": track point " + std::to_string(track.size() + 1) + ": ";
-        if (Status s = ReadPoint(node, &p); !s.ok()) return Status::InvalidArgument(where + s.message());
+        if (Status s = ReadPoint(node, &p); !s.ok())
+          return Status::InvalidArgument(where + s.message());
         if (!track.empty() && p.time_s <= track.back().time_s)
           return Status::InvalidArgument(where + "time does not increase");
         track.push_back(p);
@@ -72,19 +73,21 @@ Result<TrackSample> TrackAt(const std::vector<TrackPoint>& track, double t, doub
   if (track[hi].time_s == t) {  // on a point: its position, the course of a segment beside it
     if (hi + 1 < track.size() && track[hi + 1].time_s - t <= max_gap_s) {
       Result<TrackSample> s = TrackAt(track, t + 0.5 * (track[hi + 1].time_s - t), max_gap_s);
-      if (s.ok()) s->lat_deg = track[hi].lat_deg, s->lon_deg = track[hi].lon_deg, s->ele_m = track[hi].ele_m;
+      if (s.ok())
+        s->lat_deg = track[hi].lat_deg, s->lon_deg = track[hi].lon_deg, s->ele_m = track[hi].ele_m;
       return s;
     }
     if (t - track[hi - 1].time_s > max_gap_s)
-      return Status::InvalidArgument("time " + FormatIsoUtc(t) + " falls on a track point with gaps wider than " +
+      return Status::InvalidArgument("time " + FormatIsoUtc(t) +
+                                     " falls on a track point with gaps wider than " +
                                      std::to_string(max_gap_s) + " s on both sides");
   }
   const TrackPoint& a = track[hi - 1];
   const TrackPoint& b = track[hi];
   if (b.time_s - a.time_s > max_gap_s)
-    return Status::InvalidArgument("time " + FormatIsoUtc(t) + " falls in a gap of " +
-                                   std::to_string(b.time_s - a.time_s) + " s between track points (limit " +
-                                   std::to_string(max_gap_s) + " s)");
+    return Status::InvalidArgument(
+        "time " + FormatIsoUtc(t) + " falls in a gap of " + std::to_string(b.time_s - a.time_s) +
+        " s between track points (limit " + std::to_string(max_gap_s) + " s)");
   const double u = (t - a.time_s) / (b.time_s - a.time_s);
   const GeodesicInverse g = GeodesicBetween(a.lat_deg, a.lon_deg, b.lat_deg, b.lon_deg);
   const GeodesicDirect p = GeodesicFrom(a.lat_deg, a.lon_deg, g.azimuth1_deg, u * g.distance_m);

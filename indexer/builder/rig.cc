@@ -24,13 +24,16 @@ cv::Matx33d Slerp(const cv::Matx33d& a, const cv::Matx33d& b, double u) {
   return a * step;
 }
 
-Status ParseInsRow(const std::vector<std::string>& f, InsPose* p, const std::vector<InsPose>& prev) {
-  if (f.size() != 8) return Status::InvalidArgument("expected 8 columns, found " + std::to_string(f.size()));
+Status ParseInsRow(const std::vector<std::string>& f, InsPose* p,
+                   const std::vector<InsPose>& prev) {
+  if (f.size() != 8)
+    return Status::InvalidArgument("expected 8 columns, found " + std::to_string(f.size()));
   Result<double> t = ParseIsoUtc(f[0]);
   if (!t.ok()) return t.status();
   p->time_s = *t;
-  double* dst[] = {&p->position.lat_deg, &p->position.lon_deg, &p->position.height_m,
-                   &p->attitude.heading_deg, &p->attitude.pitch_deg, &p->attitude.roll_deg,
+  double* dst[] = {&p->position.lat_deg,   &p->position.lon_deg,
+                   &p->position.height_m,  &p->attitude.heading_deg,
+                   &p->attitude.pitch_deg, &p->attitude.roll_deg,
                    &p->sigma_h_m};
   for (int i = 0; i < 7; ++i)
     if (!ParseCsvNumber(f[1 + i], dst[i]))
@@ -53,10 +56,12 @@ Result<Rig> ReadRig(const std::string& path) {
   rig.dir = fs::path(path).parent_path().string();
   Result<YAML::Node> doc = LoadYamlFile(path);  // not cv::FileStorage: indexer/map/yaml_file.h
   if (!doc.ok())
-    return doc.status().code() == StatusCode::kNotFound ? Status::NotFound("cannot open rig file " + path)
-                                                        : doc.status();
+    return doc.status().code() == StatusCode::kNotFound
+               ? Status::NotFound("cannot open rig file " + path)
+               : doc.status();
   Result<std::string> ins = YamlText((*doc)["ins"], "ins");
-  if (!ins.ok() || ins->empty()) return Status::InvalidArgument(path + ": no 'ins' (the INS pose log)");
+  if (!ins.ok() || ins->empty())
+    return Status::InvalidArgument(path + ": no 'ins' (the INS pose log)");
   rig.ins = *ins;
   const YAML::Node cams = (*doc)["cameras"];
   if (!cams || !cams.IsSequence() || cams.size() == 0)
@@ -76,7 +81,8 @@ Result<Rig> ReadRig(const std::string& path) {
     }
     int rows = 0, cols = 0;
     Result<std::vector<double>> arm = YamlMatrix(c["lever_arm_m"], "lever_arm_m", &rows, &cols);
-    Result<std::vector<double>> bore = YamlMatrix(c["boresight_deg"], "boresight_deg", &rows, &cols);
+    Result<std::vector<double>> bore =
+        YamlMatrix(c["boresight_deg"], "boresight_deg", &rows, &cols);
     if (!arm.ok() || !bore.ok() || arm->size() != 3 || bore->size() != 3)
       return Status::InvalidArgument(where + "lever_arm_m and boresight_deg need 3 numbers");
     if (c["time_offset_s"]) {
@@ -102,8 +108,8 @@ Result<Rig> LoadRig(const std::string& path) {
 }
 
 Result<std::vector<InsPose>> ReadInsLog(const std::string& path) {
-  return ReadCsvRows<InsPose>(path, "timestamp,lat,lon,height,heading_deg,pitch_deg,roll_deg,sigma_h_m",
-                           ParseInsRow);
+  return ReadCsvRows<InsPose>(
+      path, "timestamp,lat,lon,height,heading_deg,pitch_deg,roll_deg,sigma_h_m", ParseInsRow);
 }
 
 Result<InsPose> InsPoseAt(const std::vector<InsPose>& log, double t, double max_gap_s) {
@@ -120,14 +126,14 @@ Result<InsPose> InsPoseAt(const std::vector<InsPose>& log, double t, double max_
   const double u = (t - a.time_s) / (b.time_s - a.time_s);
   const GeodesicInverse g = GeodesicBetween(a.position.lat_deg, a.position.lon_deg,
                                             b.position.lat_deg, b.position.lon_deg);
-  const GeodesicDirect p = GeodesicFrom(a.position.lat_deg, a.position.lon_deg, g.azimuth1_deg,
-                                        u * g.distance_m);
+  const GeodesicDirect p =
+      GeodesicFrom(a.position.lat_deg, a.position.lon_deg, g.azimuth1_deg, u * g.distance_m);
   InsPose out;
   out.time_s = t;
   out.position = {p.lat_deg, p.lon_deg,
                   a.position.height_m + u * (b.position.height_m - a.position.height_m)};
-  out.attitude = AttitudeFromEnuFromCamera(
-      Slerp(EnuFromCamera(a.attitude), EnuFromCamera(b.attitude), u));
+  out.attitude =
+      AttitudeFromEnuFromCamera(Slerp(EnuFromCamera(a.attitude), EnuFromCamera(b.attitude), u));
   out.sigma_h_m = std::max(a.sigma_h_m, b.sigma_h_m);
   return out;
 }
@@ -150,20 +156,24 @@ Result<std::vector<DriveRow>> RigSurvey(const Rig& rig, double max_gap_s, bool s
   std::vector<DriveRow> rows;
   for (const RigCamera& cam : rig.cameras) {
     const std::string list = (dir / cam.images).string();
-    auto parse = [](const std::vector<std::string>& f, TimedImage* r, const std::vector<TimedImage>&) {
-      if (f.size() != 2) return Status::InvalidArgument("expected 2 columns, found " + std::to_string(f.size()));
+    auto parse = [](const std::vector<std::string>& f, TimedImage* r,
+                    const std::vector<TimedImage>&) {
+      if (f.size() != 2)
+        return Status::InvalidArgument("expected 2 columns, found " + std::to_string(f.size()));
       Result<double> t = ParseIsoUtc(f[1]);
       if (!t.ok()) return t.status();
       r->image = f[0], r->time_s = *t;
       return f[0].empty() ? Status::InvalidArgument("empty image path") : Status::Ok();
     };
-    Result<std::vector<TimedImage>> images = ReadCsvRows<TimedImage>(list, "image,timestamp", parse);
+    Result<std::vector<TimedImage>> images =
+        ReadCsvRows<TimedImage>(list, "image,timestamp", parse);
     if (!images.ok()) return images.status();
     for (size_t i = 0; i < images->size(); ++i) {
       const TimedImage& im = (*images)[i];
       Result<InsPose> body = InsPoseAt(*log, im.time_s + cam.time_offset_s, max_gap_s);
       if (!body.ok()) {
-        const std::string what = list + ":" + std::to_string(i + 2) + ": " + body.status().message();
+        const std::string what =
+            list + ":" + std::to_string(i + 2) + ": " + body.status().message();
         if (!skip_bad) return Status::InvalidArgument(what);
         problems->push_back(what);
         continue;
@@ -179,8 +189,9 @@ Result<std::vector<DriveRow>> RigSurvey(const Rig& rig, double max_gap_s, bool s
       rows.push_back(r);
     }
   }
-  std::stable_sort(rows.begin(), rows.end(),
-                   [](const DriveRow& a, const DriveRow& b) { return a.timestamp_s < b.timestamp_s; });
+  std::stable_sort(rows.begin(), rows.end(), [](const DriveRow& a, const DriveRow& b) {
+    return a.timestamp_s < b.timestamp_s;
+  });
   return rows;
 }
 

@@ -23,10 +23,10 @@
 #include <string>
 #include <vector>
 
-#include "indexer/map/drive_manifest.h"
 #include "indexer/base/geo.h"
 #include "indexer/base/rotation.h"
 #include "indexer/base/status.h"
+#include "indexer/map/drive_manifest.h"
 
 namespace sightfix {
 

@@ -228,11 +228,10 @@ AdjustResult Adjust(const std::vector<SurveyView>& views, const StructureOptions
       continue;
     }
     problem.AddResidualBlock(
-        new ceres::AutoDiffCostFunction<PosePriorCost, 6, 3, 3>(
-            new PosePriorCost(centers[v], views[v].sigma_h_m,
-                             (views[v].attitude_sigma_deg > 0 ? views[v].attitude_sigma_deg
-                                                               : o.attitude_sigma_deg) *
-                                 kDegToRad)),
+        new ceres::AutoDiffCostFunction<PosePriorCost, 6, 3, 3>(new PosePriorCost(
+            centers[v], views[v].sigma_h_m,
+            (views[v].attitude_sigma_deg > 0 ? views[v].attitude_sigma_deg : o.attitude_sigma_deg) *
+                kDegToRad)),
         nullptr, delta[v].data(), c[v].data());
   }
   ceres::Solver::Options so;

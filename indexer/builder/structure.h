@@ -28,9 +28,9 @@
 #include <utility>
 #include <vector>
 
+#include "indexer/base/status.h"
 #include "indexer/vision/local_features.h"
 #include "indexer/vision/triangulation.h"
-#include "indexer/base/status.h"
 
 namespace sightfix {
 

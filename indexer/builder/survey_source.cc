@@ -86,11 +86,16 @@ bool ParseSurveyFormat(const std::string& t, SurveyFormat* f) {
 
 const char* SurveyFormatName(SurveyFormat f) {
   switch (f) {
-    case SurveyFormat::kAuto: return "auto";
-    case SurveyFormat::kDrive: return "drive";
-    case SurveyFormat::kRig: return "rig";
-    case SurveyFormat::kExif: return "exif";
-    case SurveyFormat::kGpx: return "gpx";
+    case SurveyFormat::kAuto:
+      return "auto";
+    case SurveyFormat::kDrive:
+      return "drive";
+    case SurveyFormat::kRig:
+      return "rig";
+    case SurveyFormat::kExif:
+      return "exif";
+    case SurveyFormat::kGpx:
+      return "gpx";
   }
   return "?";
 }
@@ -127,7 +132,8 @@ Result<SurveyRows> LoadSurveyRows(const SurveySourceOptions& o) {
     }
     for (const std::string& image : JpegsUnder(dir)) {
       DriveRow row;
-      Status s = PhotoRow(o, **geoid, out.format == SurveyFormat::kGpx ? &track : nullptr, image, &row);
+      Status s =
+          PhotoRow(o, **geoid, out.format == SurveyFormat::kGpx ? &track : nullptr, image, &row);
       if (!s.ok()) {
         if (!o.skip_bad) return s;
         out.problems.push_back(s.message());

@@ -15,8 +15,8 @@
 #include <string>
 #include <vector>
 
-#include "indexer/map/drive_manifest.h"
 #include "indexer/base/status.h"
+#include "indexer/map/drive_manifest.h"
 
 namespace sightfix {
 
@@ -26,7 +26,7 @@ bool ParseSurveyFormat(const std::string& text, SurveyFormat* format);
 const char* SurveyFormatName(SurveyFormat format);
 
 struct SurveySourceOptions {
-  std::string dir;                          // the survey folder
+  std::string dir;  // the survey folder
   // auto: drive.csv if present, else rig.yml, else a .gpx file, else EXIF.
   SurveyFormat format = SurveyFormat::kAuto;
   std::string gpx;                          // gpx: the track; default the one *.gpx in dir
@@ -39,10 +39,10 @@ struct SurveySourceOptions {
 
 struct SurveyRows {
   SurveyFormat format = SurveyFormat::kDrive;
-  std::vector<DriveRow> rows;             // image and camera paths relative to dir
+  std::vector<DriveRow> rows;              // image and camera paths relative to dir
   std::vector<double> attitude_sigma_deg;  // per row; 0 = the structure's default
-  std::vector<std::string> origin;         // per row, for messages: "<drive.csv>:<line>" or the image
-  std::vector<std::string> problems;       // skip_bad: what was left out and why
+  std::vector<std::string> origin;    // per row, for messages: "<drive.csv>:<line>" or the image
+  std::vector<std::string> problems;  // skip_bad: what was left out and why
 };
 
 // kNotFound when dir holds no survey; kInvalidArgument naming file and line (or image) for the

@@ -86,8 +86,10 @@ Result<CameraModel> ReadCalibration(const std::string& path) {
   Result<double> h = YamlNumber(fs["image_height"], "image_height");
   if (!w.ok()) return fail(w.status());
   if (!h.ok()) return fail(h.status());
-  if (*w < 1 || *w > 100000 || *h < 1 || *h > 100000 || *w != std::floor(*w) || *h != std::floor(*h))
-    return Status::InvalidArgument(path + ": image_width and image_height must be whole numbers of pixels");
+  if (*w < 1 || *w > 100000 || *h < 1 || *h > 100000 || *w != std::floor(*w) ||
+      *h != std::floor(*h))
+    return Status::InvalidArgument(
+        path + ": image_width and image_height must be whole numbers of pixels");
   cam.width_px = static_cast<int>(*w);
   cam.height_px = static_cast<int>(*h);
   int rows = 0, cols = 0;
@@ -100,7 +102,8 @@ Result<CameraModel> ReadCalibration(const std::string& path) {
   cam.cy = (*k)[5];
   std::vector<double> d;
   if (fs["distortion_coefficients"]) {
-    Result<std::vector<double>> dd = YamlMatrix(fs["distortion_coefficients"], "distortion_coefficients", nullptr, nullptr);
+    Result<std::vector<double>> dd =
+        YamlMatrix(fs["distortion_coefficients"], "distortion_coefficients", nullptr, nullptr);
     if (!dd.ok()) return fail(dd.status());
     d = *dd;
   }
@@ -119,7 +122,8 @@ Result<CameraModel> ReadCalibration(const std::string& path) {
   if (model == "fisheye" || fisheye_flag != 0) {
     cam.lens = LensModel::kFisheye;
     if (d.size() != 4)
-      return Status::InvalidArgument(path + ": a fisheye calibration needs 4 distortion_coefficients");
+      return Status::InvalidArgument(path +
+                                     ": a fisheye calibration needs 4 distortion_coefficients");
     for (int i = 0; i < 4; ++i) cam.distortion[i] = d[i];
   } else if (!model.empty() && model != "pinhole") {
     return Status::InvalidArgument(path + ": distortion_model must be pinhole or fisheye");
@@ -153,7 +157,9 @@ Status SaveCameraModel(const CameraModel& cam, const std::string& path) {
     fs << "image_width" << cam.width_px << "image_height" << cam.height_px;
     fs << "camera_matrix" << cv::Mat(cam.K());
     const bool fisheye = cam.lens == LensModel::kFisheye;
-    if (fisheye) fs << "distortion_model" << "fisheye";
+    if (fisheye)
+      fs << "distortion_model"
+         << "fisheye";
     fs << "distortion_coefficients"
        << cv::Mat(1, fisheye ? 4 : 5, CV_64F, const_cast<double*>(cam.distortion.data()));
     return Status::Ok();

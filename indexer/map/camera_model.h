@@ -24,7 +24,7 @@ enum class LensModel { kPinhole, kFisheye };
 struct CameraModel {
   int width_px = 0;
   int height_px = 0;
-  double fx = 0, fy = 0, cx = 0, cy = 0;            // pixels
+  double fx = 0, fy = 0, cx = 0, cy = 0;  // pixels
   // Pinhole: k1, k2, p1, p2, k3. Fisheye: k1, k2, k3, k4, (unused 0).
   std::array<double, 5> distortion{0, 0, 0, 0, 0};
   LensModel lens = LensModel::kPinhole;

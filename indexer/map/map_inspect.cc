@@ -12,8 +12,8 @@
 
 #include "indexer/base/geo.h"
 #include "indexer/base/iso_time.h"
-#include "indexer/map/map_store.h"
 #include "indexer/base/sha256.h"
+#include "indexer/map/map_store.h"
 
 namespace sightfix {
 namespace {
@@ -69,23 +69,22 @@ Result<nlohmann::json> InspectMap(const std::string& map_dir) {
     }
   }
   const double n = std::max(images, 1);
-  nlohmann::json j = {
-      {"map", map_dir},
-      {"format_version", catalog->format_version},
-      {"map_version", catalog->map_version},
-      {"zoom", catalog->zoom},
-      {"created", catalog->created_utc},
-      {"tiles", catalog->tiles.size()},
-      {"images", images},
-      {"points", points},
-      {"model_id", catalog->model_id},
-      {"model", nlohmann::json::parse(catalog->model_params, nullptr, false)},
-      {"drives", nlohmann::json::parse(catalog->provenance, nullptr, false)},
-      {"bytes_per_image",
-       {{"global_code", code_bytes / n},
-        {"local_features", local_bytes / n},
-        {"points", point_bytes / n},
-        {"tile_files", file_bytes / n}}}};
+  nlohmann::json j = {{"map", map_dir},
+                      {"format_version", catalog->format_version},
+                      {"map_version", catalog->map_version},
+                      {"zoom", catalog->zoom},
+                      {"created", catalog->created_utc},
+                      {"tiles", catalog->tiles.size()},
+                      {"images", images},
+                      {"points", points},
+                      {"model_id", catalog->model_id},
+                      {"model", nlohmann::json::parse(catalog->model_params, nullptr, false)},
+                      {"drives", nlohmann::json::parse(catalog->provenance, nullptr, false)},
+                      {"bytes_per_image",
+                       {{"global_code", code_bytes / n},
+                        {"local_features", local_bytes / n},
+                        {"points", point_bytes / n},
+                        {"tile_files", file_bytes / n}}}};
   if (images > 0) {
     j["extent"] = {{"south", south}, {"west", west}, {"north", north}, {"east", east}};
     j["dates"] = {{"first", FormatIsoUtc(t0)}, {"last", FormatIsoUtc(t1)}};
@@ -112,7 +111,8 @@ VerifyReport VerifyMap(const std::string& map_dir) {
       continue;
     }
     Result<std::string> sha = Sha256OfFile(path);
-    if (!sha.ok() || *sha != ct.sha256) bad("SHA-256 differs from the catalog's (damaged or replaced)");
+    if (!sha.ok() || *sha != ct.sha256)
+      bad("SHA-256 differs from the catalog's (damaged or replaced)");
     Result<TileData> tile = ReadTile(path);
     if (!tile.ok()) {
       bad(tile.status().message());
@@ -135,13 +135,12 @@ VerifyReport VerifyMap(const std::string& map_dir) {
     r.data = catalog->global_index;
     std::unique_ptr<faiss::Index> index(faiss::read_index(&r));
     if (index->ntotal != report.images)
-      report.problems.push_back({"catalog", "catalog.sqlite", "global index holds " +
-                                                                  std::to_string(index->ntotal) +
-                                                                  " entries for " +
-                                                                  std::to_string(report.images) +
-                                                                  " images"});
+      report.problems.push_back({"catalog", "catalog.sqlite",
+                                 "global index holds " + std::to_string(index->ntotal) +
+                                     " entries for " + std::to_string(report.images) + " images"});
   } catch (const std::exception& e) {
-    report.problems.push_back({"catalog", "catalog.sqlite", std::string("global index: ") + e.what()});
+    report.problems.push_back(
+        {"catalog", "catalog.sqlite", std::string("global index: ") + e.what()});
   }
   return report;
 }
@@ -160,8 +159,10 @@ Result<nlohmann::json> CoverageGeoJson(const std::string& map_dir) {
     const TileBounds b = BoundsOfTile(ct.key);
     const double w = GeodesicBetween(b.south_deg, b.west_deg, b.south_deg, b.east_deg).distance_m;
     const double h = GeodesicBetween(b.south_deg, b.west_deg, b.north_deg, b.west_deg).distance_m;
-    const nlohmann::json ring = {{b.west_deg, b.south_deg}, {b.east_deg, b.south_deg},
-                                 {b.east_deg, b.north_deg}, {b.west_deg, b.north_deg},
+    const nlohmann::json ring = {{b.west_deg, b.south_deg},
+                                 {b.east_deg, b.south_deg},
+                                 {b.east_deg, b.north_deg},
+                                 {b.west_deg, b.north_deg},
                                  {b.west_deg, b.south_deg}};  // counterclockwise (RFC 7946 3.1.6)
     features.push_back({{"type", "Feature"},
                         {"geometry", {{"type", "Polygon"}, {"coordinates", {ring}}}},

@@ -22,8 +22,8 @@
 #include <string>
 #include <vector>
 
-#include "indexer/vision/local_features.h"
 #include "indexer/base/status.h"
+#include "indexer/vision/local_features.h"
 
 namespace faiss {
 struct Index;

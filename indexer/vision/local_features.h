@@ -11,8 +11,8 @@
 #include <string>
 #include <vector>
 
-#include "indexer/map/camera_model.h"
 #include "indexer/base/status.h"
+#include "indexer/map/camera_model.h"
 
 namespace sightfix {
 

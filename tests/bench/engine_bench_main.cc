@@ -26,9 +26,9 @@
 #include <random>
 
 #include "client/eval/route_eval.h"
-#include "indexer/vision/global_descriptor.h"
-#include "indexer/map/map_store.h"
 #include "indexer/base/threads.h"
+#include "indexer/map/map_store.h"
+#include "indexer/vision/global_descriptor.h"
 
 namespace po = boost::program_options;
 namespace fs = std::filesystem;

@@ -1,6 +1,6 @@
 // engine_eval: replays query drives through the in-process engine and prints the route metrics
-// (client/eval/route_eval.h). A developer tool for calibration, the structure-versus-pair comparison
-// and scripts/bench.sh; evaluators get `sightfix replay` (the evaluator issue).
+// (client/eval/route_eval.h). A developer tool for calibration, the structure-versus-pair
+// comparison and scripts/bench.sh; evaluators get `sightfix replay` (the evaluator issue).
 //
 // Usage: engine_eval --map MAPDIR --drive QUERYDIR [--drive ...] [--prior none|noisy]
 //          [--method auto|points|pair] [--covariance-scale X] [--limit N] [--seed N] [--jobs N]

@@ -16,14 +16,14 @@
 #include <chrono>
 #include <cstdio>
 #include <filesystem>
+#include <opencv2/core.hpp>
 #include <opencv2/features2d.hpp>
 #include <opencv2/imgcodecs.hpp>
-#include <opencv2/core.hpp>
 
-#include "indexer/map/drive_manifest.h"
 #include "indexer/base/geo.h"
-#include "indexer/builder/map_builder.h"
 #include "indexer/base/threads.h"
+#include "indexer/builder/map_builder.h"
+#include "indexer/map/drive_manifest.h"
 
 namespace po = boost::program_options;
 namespace fs = std::filesystem;
@@ -35,7 +35,8 @@ int main(int argc, char** argv) {
   po::variables_map vm;
   po::store(po::parse_command_line(argc, argv, desc), vm);
   po::notify(vm);
-  if (drive.empty() || out.empty()) return std::fprintf(stderr, "%s\n", "need --drive and --out"), 2;
+  if (drive.empty() || out.empty())
+    return std::fprintf(stderr, "%s\n", "need --drive and --out"), 2;
   sightfix::PinLibraryThreads();
   auto rows = sightfix::ReadDriveManifest(drive + "/drive.csv");
   if (!rows.ok()) return std::fprintf(stderr, "%s\n", rows.status().ToString().c_str()), 1;
@@ -81,30 +82,37 @@ int main(int argc, char** argv) {
     auto s = sightfix::BuildMap(o);
     if (!s.ok()) return std::fprintf(stderr, "%s\n", s.status().ToString().c_str()), 1;
     rate[jobs] = n / s->feature_s;
-    std::printf("sightfix-indexer --jobs %d: features %.1f s (%.2f images/s), model %.1f s, "
-                "structure %.1f s, write %.1f s; whole build %.2f images/s\n",
-                jobs, s->feature_s, rate[jobs], s->model_s, s->structure_s, s->write_s,
-                s->images_per_s);
+    std::printf(
+        "sightfix-indexer --jobs %d: features %.1f s (%.2f images/s), model %.1f s, "
+        "structure %.1f s, write %.1f s; whole build %.2f images/s\n",
+        jobs, s->feature_s, rate[jobs], s->model_s, s->structure_s, s->write_s, s->images_per_s);
     last = *s;
   }
   const double bare_after = bare();
   const double bare_rate = 2 * n / (bare_before + bare_after);
-  std::printf("bare OpenCV (imread, stretch, SIFT, RootSIFT; 1 thread): %.1f s before the builds, %.1f s after: "
-              "%.2f images/s\n", bare_before, bare_after, bare_rate);
-  std::printf("features: jobs 1 / bare = %.3f (goal >= 0.8); jobs 2 / jobs 1 = %.3f (goal >= 1.5)\n",
-              rate[1] / bare_rate, rate[2] / rate[1]);
+  std::printf(
+      "bare OpenCV (imread, stretch, SIFT, RootSIFT; 1 thread): %.1f s before the builds, %.1f s "
+      "after: "
+      "%.2f images/s\n",
+      bare_before, bare_after, bare_rate);
+  std::printf(
+      "features: jobs 1 / bare = %.3f (goal >= 0.8); jobs 2 / jobs 1 = %.3f (goal >= 1.5)\n",
+      rate[1] / bare_rate, rate[2] / rate[1]);
   double km = 0;
   for (size_t i = 1; i < rows->size(); ++i)
-    km += sightfix::GeodesicBetween((*rows)[i - 1].position.lat_deg, (*rows)[i - 1].position.lon_deg,
-                                    (*rows)[i].position.lat_deg, (*rows)[i].position.lon_deg)
-              .distance_m / 1000;
+    km +=
+        sightfix::GeodesicBetween((*rows)[i - 1].position.lat_deg, (*rows)[i - 1].position.lon_deg,
+                                  (*rows)[i].position.lat_deg, (*rows)[i].position.lon_deg)
+            .distance_m /
+        1000;
   const double per_km = n / km;
-  std::printf("survey path %.3f km, %.0f images/km; per image: global code %.0f B, local features "
-              "%.0f B, points %.0f B, tile files %.0f B; per km: %.2f MB (codes %.3f MB, local "
-              "features %.2f MB, points %.2f MB)\n",
-              km, per_km, last.global_code_bytes, last.local_feature_bytes, last.point_bytes,
-              last.tile_file_bytes, last.tile_file_bytes * per_km / 1e6,
-              last.global_code_bytes * per_km / 1e6, last.local_feature_bytes * per_km / 1e6,
-              last.point_bytes * per_km / 1e6);
+  std::printf(
+      "survey path %.3f km, %.0f images/km; per image: global code %.0f B, local features "
+      "%.0f B, points %.0f B, tile files %.0f B; per km: %.2f MB (codes %.3f MB, local "
+      "features %.2f MB, points %.2f MB)\n",
+      km, per_km, last.global_code_bytes, last.local_feature_bytes, last.point_bytes,
+      last.tile_file_bytes, last.tile_file_bytes * per_km / 1e6,
+      last.global_code_bytes * per_km / 1e6, last.local_feature_bytes * per_km / 1e6,
+      last.point_bytes * per_km / 1e6);
   return 0;
 }

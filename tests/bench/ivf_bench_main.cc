@@ -43,14 +43,14 @@
 #include <random>
 #include <sstream>
 
-#include "indexer/map/drive_manifest.h"
 #include "indexer/base/geo.h"
-#include "indexer/vision/global_descriptor.h"
-#include "indexer/map/ivf_index.h"
-#include "indexer/vision/local_features.h"
-#include "indexer/map/map_store.h"
 #include "indexer/base/parallel.h"
 #include "indexer/base/threads.h"
+#include "indexer/map/drive_manifest.h"
+#include "indexer/map/ivf_index.h"
+#include "indexer/map/map_store.h"
+#include "indexer/vision/global_descriptor.h"
+#include "indexer/vision/local_features.h"
 
 namespace po = boost::program_options;
 namespace fs = std::filesystem;

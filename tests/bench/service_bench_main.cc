@@ -11,8 +11,8 @@
 
 #include "client/api/client.h"
 #include "client/eval/route_eval.h"
-#include "indexer/map/drive_manifest.h"
 #include "indexer/base/threads.h"
+#include "indexer/map/drive_manifest.h"
 #include "server/service/service.h"
 #include "server/wire/wire.h"
 

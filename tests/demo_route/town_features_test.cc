@@ -17,10 +17,10 @@
 
 #include "demo_route/demo_town.h"
 #include "demo_route/random.h"
-#include "indexer/map/camera_model.h"
-#include "indexer/map/drive_manifest.h"
 #include "indexer/base/geo.h"
 #include "indexer/base/rotation.h"
+#include "indexer/map/camera_model.h"
+#include "indexer/map/drive_manifest.h"
 
 namespace sightfix::demo {
 namespace {

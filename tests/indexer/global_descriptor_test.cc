@@ -12,8 +12,8 @@
 #include <opencv2/imgcodecs.hpp>
 
 #include "demo_route/demo_town.h"
-#include "indexer/map/drive_manifest.h"
 #include "indexer/base/geo.h"
+#include "indexer/map/drive_manifest.h"
 #include "indexer/vision/local_features.h"
 
 namespace sightfix {

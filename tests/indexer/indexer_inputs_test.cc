@@ -12,14 +12,14 @@
 #include <opencv2/features2d.hpp>
 #include <opencv2/imgcodecs.hpp>
 
-#include "indexer/map/camera_model.h"
+#include "indexer/base/iso_time.h"
 #include "indexer/builder/exif_gps.h"
 #include "indexer/builder/geoid.h"
 #include "indexer/builder/gpx_track.h"
-#include "indexer/base/iso_time.h"
-#include "indexer/vision/local_features.h"
 #include "indexer/builder/rig.h"
 #include "indexer/builder/survey_source.h"
+#include "indexer/map/camera_model.h"
+#include "indexer/vision/local_features.h"
 
 namespace sightfix {
 namespace {
@@ -42,29 +42,31 @@ void WriteJpeg(const fs::path& p) {
   ASSERT_TRUE(cv::imwrite(p.string(), img));
 }
 
-int Shell(const std::string& command) { return std::system((command + " >/dev/null 2>&1").c_str()); }
+int Shell(const std::string& command) {
+  return std::system((command + " >/dev/null 2>&1").c_str());
+}
 
 TEST(ExifGpsTest, ReadsWhatTheExiv2ToolWrote) {
   // Tags set with the exiv2 command-line tool (the reference writer), then read back.
   const fs::path dir = TempDir("exif"), jpg = dir / "a.jpg";
   WriteJpeg(jpg);
   ASSERT_EQ(Shell("exiv2 -M'set Exif.GPSInfo.GPSLatitudeRef N' "
-                "-M'set Exif.GPSInfo.GPSLatitude 44/1 0/1 1234567/1000000' "
-                "-M'set Exif.GPSInfo.GPSLongitudeRef W' "
-                "-M'set Exif.GPSInfo.GPSLongitude 39/1 59/1 58765432/1000000' "
-                "-M'set Exif.GPSInfo.GPSAltitudeRef 0' "
-                "-M'set Exif.GPSInfo.GPSAltitude 3812/100' "
-                "-M'set Exif.GPSInfo.GPSImgDirectionRef T' "
-                "-M'set Exif.GPSInfo.GPSImgDirection 27125/100' "
-                "-M'set Exif.Photo.DateTimeOriginal 2026:05:04 09:00:01' "
-                "-M'set Exif.Photo.SubSecTimeOriginal 250' "
-                "-M'set Exif.Photo.OffsetTimeOriginal +02:00' " +
-                jpg.string()),
+                  "-M'set Exif.GPSInfo.GPSLatitude 44/1 0/1 1234567/1000000' "
+                  "-M'set Exif.GPSInfo.GPSLongitudeRef W' "
+                  "-M'set Exif.GPSInfo.GPSLongitude 39/1 59/1 58765432/1000000' "
+                  "-M'set Exif.GPSInfo.GPSAltitudeRef 0' "
+                  "-M'set Exif.GPSInfo.GPSAltitude 3812/100' "
+                  "-M'set Exif.GPSInfo.GPSImgDirectionRef T' "
+                  "-M'set Exif.GPSInfo.GPSImgDirection 27125/100' "
+                  "-M'set Exif.Photo.DateTimeOriginal 2026:05:04 09:00:01' "
+                  "-M'set Exif.Photo.SubSecTimeOriginal 250' "
+                  "-M'set Exif.Photo.OffsetTimeOriginal +02:00' " +
+                  jpg.string()),
             0)
       << "exiv2 command-line tool missing (scripts/deps.sh installs it)";
   Result<ExifGps> g = ReadExifGps(jpg.string());
   ASSERT_TRUE(g.ok()) << g.status().ToString();
-  EXPECT_NEAR(g->lat_deg, 44 + 1.234567 / 3600, 1e-10);        // 44 deg 0 min 1.234567 s N
+  EXPECT_NEAR(g->lat_deg, 44 + 1.234567 / 3600, 1e-10);  // 44 deg 0 min 1.234567 s N
   EXPECT_NEAR(g->lon_deg, -(39 + 59 / 60.0 + 58.765432 / 3600), 1e-10);  // W is negative
   EXPECT_NEAR(g->altitude_msl_m, 38.12, 1e-9);
   ASSERT_TRUE(g->img_direction_deg.has_value());
@@ -74,9 +76,10 @@ TEST(ExifGpsTest, ReadsWhatTheExiv2ToolWrote) {
 
   // Below sea level (GPSAltitudeRef 1), and the time from the GPS stamps alone (UTC).
   ASSERT_EQ(Shell("exiv2 -M'set Exif.GPSInfo.GPSAltitudeRef 1' "
-                "-M'del Exif.Photo.OffsetTimeOriginal' "
-                "-M'set Exif.GPSInfo.GPSDateStamp 2026:05:04' "
-                "-M'set Exif.GPSInfo.GPSTimeStamp 7/1 0/1 2/1' " + jpg.string()),
+                  "-M'del Exif.Photo.OffsetTimeOriginal' "
+                  "-M'set Exif.GPSInfo.GPSDateStamp 2026:05:04' "
+                  "-M'set Exif.GPSInfo.GPSTimeStamp 7/1 0/1 2/1' " +
+                  jpg.string()),
             0);
   g = ReadExifGps(jpg.string());
   ASSERT_TRUE(g.ok()) << g.status().ToString();
@@ -110,7 +113,8 @@ TEST(ExifGpsTest, OurWriterRoundTripsAndTheToolAgrees) {
   // The exiv2 tool reads the same latitude reference and altitude back.
   const fs::path dump = dir / "dump.txt";
   ASSERT_EQ(std::system(("exiv2 -pt -K Exif.GPSInfo.GPSLatitudeRef -K Exif.GPSInfo.GPSAltitude " +
-                         jpg.string() + " > " + dump.string()).c_str()),
+                         jpg.string() + " > " + dump.string())
+                            .c_str()),
             0);
   std::ifstream f(dump);
   const std::string text((std::istreambuf_iterator<char>(f)), {});
@@ -123,8 +127,10 @@ TEST(ExifGpsTest, BlocksWithoutGpsOrExifAreNamed) {
   WriteJpeg(jpg);
   Result<ExifGps> g = ReadExifGps(jpg.string());
   ASSERT_FALSE(g.ok());
-  EXPECT_NE(g.status().message().find("c.jpg: no EXIF block"), std::string::npos) << g.status().message();
-  ASSERT_EQ(Shell("exiv2 -M'set Exif.Photo.DateTimeOriginal 2026:05:04 09:00:01' " + jpg.string()), 0);
+  EXPECT_NE(g.status().message().find("c.jpg: no EXIF block"), std::string::npos)
+      << g.status().message();
+  ASSERT_EQ(Shell("exiv2 -M'set Exif.Photo.DateTimeOriginal 2026:05:04 09:00:01' " + jpg.string()),
+            0);
   g = ReadExifGps(jpg.string());
   ASSERT_FALSE(g.ok());
   EXPECT_NE(g.status().message().find("without a GPS position"), std::string::npos);
@@ -188,14 +194,16 @@ TEST(GpxTrackTest, InterpolationMatchesHandComputation) {
 
 TEST(GpxTrackTest, BadTracksNameThePoint) {
   const fs::path dir = TempDir("gpx_bad");
-  WriteText(dir / "order.gpx", std::string(kGpxHead) +
-                                   "<trkpt lat=\"44\" lon=\"-40\"><time>2026-05-04T09:00:10Z</time></trkpt>\n"
-                                   "<trkpt lat=\"44\" lon=\"-40\"><time>2026-05-04T09:00:05Z</time></trkpt>\n"
-                                   "</trkseg></trk></gpx>\n");
+  WriteText(dir / "order.gpx",
+            std::string(kGpxHead) +
+                "<trkpt lat=\"44\" lon=\"-40\"><time>2026-05-04T09:00:10Z</time></trkpt>\n"
+                "<trkpt lat=\"44\" lon=\"-40\"><time>2026-05-04T09:00:05Z</time></trkpt>\n"
+                "</trkseg></trk></gpx>\n");
   auto t = ReadGpxTrack((dir / "order.gpx").string());
   ASSERT_FALSE(t.ok());
   EXPECT_NE(t.status().message().find("track point 2: time does not increase"), std::string::npos);
-  WriteText(dir / "notime.gpx", std::string(kGpxHead) + "<trkpt lat=\"44\" lon=\"-40\"/>\n</trkseg></trk></gpx>\n");
+  WriteText(dir / "notime.gpx",
+            std::string(kGpxHead) + "<trkpt lat=\"44\" lon=\"-40\"/>\n</trkseg></trk></gpx>\n");
   t = ReadGpxTrack((dir / "notime.gpx").string());
   ASSERT_FALSE(t.ok());
   EXPECT_NE(t.status().message().find("track point 1: no <time>"), std::string::npos);
@@ -230,7 +238,8 @@ TEST(RigTest, PointsSeenByTwoCamerasLandWhereProjectPointsPutsThem) {
     cv::Rodrigues(cam_from_enu, rvec);
     const cv::Vec3d tvec = -(cam_from_enu * centre);
     std::vector<cv::Point2d> px;
-    cv::projectPoints(std::vector<cv::Point3d>{cv::Point3d(point)}, rvec, tvec, k, cv::noArray(), px);
+    cv::projectPoints(std::vector<cv::Point3d>{cv::Point3d(point)}, rvec, tvec, k, cv::noArray(),
+                      px);
     EXPECT_NEAR(px[0].x, expected_u[i], 1e-6) << cam->name;
     EXPECT_NEAR(px[0].y, 240, 1e-6) << cam->name;
     ++i;
@@ -253,7 +262,8 @@ TEST(RigTest, InsInterpolationAndSurveyRows) {
             "2026-05-04T09:00:00Z,44.0000,-40.0,50,10,0,0,0.02\n"
             "2026-05-04T09:00:01Z,44.0001,-40.0,52,20,0,0,0.02\n"
             "2026-05-04T09:00:05Z,44.0002,-40.0,52,20,0,0,0.02\n");
-  WriteText(dir / "front.csv", "image,timestamp\nf0.jpg,2026-05-04T09:00:00.400Z\nf1.jpg,2026-05-04T09:00:03Z\n");
+  WriteText(dir / "front.csv",
+            "image,timestamp\nf0.jpg,2026-05-04T09:00:00.400Z\nf1.jpg,2026-05-04T09:00:03Z\n");
   WriteText(dir / "rig.yml",
             "%YAML:1.0\n---\nins: ins.csv\ncameras:\n"
             "  - name: front\n    calibration: front.yml\n    images: front.csv\n"
@@ -272,7 +282,8 @@ TEST(RigTest, InsInterpolationAndSurveyRows) {
   // f1 at 3.1 s falls in the 4 s gap of the log: an error naming the list and its line...
   auto rows = RigSurvey(*rig, 2.0, false, &problems);
   ASSERT_FALSE(rows.ok());
-  EXPECT_NE(rows.status().message().find("front.csv:3"), std::string::npos) << rows.status().message();
+  EXPECT_NE(rows.status().message().find("front.csv:3"), std::string::npos)
+      << rows.status().message();
   // ...or, skipping bad rows, one row at 0.5 s INS time (0.4 s camera time + 0.1 s offset).
   rows = RigSurvey(*rig, 2.0, true, &problems);
   ASSERT_TRUE(rows.ok());
@@ -290,7 +301,8 @@ TEST(RootSiftTest, EuclideanDistanceIsTheHellingerKernel) {
   // Arandjelovic & Zisserman (CVPR 2012), section 3: for L1-normalised SIFT x, y and RootSIFT
   // r = sqrt(x), ||r(x) - r(y)||^2 = 2 - 2 H(x, y), H the Hellinger kernel sum_i sqrt(x_i y_i).
   // Real SIFT descriptors of the graffiti image (Debian opencv-doc).
-  const cv::Mat img = cv::imread("/usr/share/doc/opencv-doc/examples/data/graf1.png", cv::IMREAD_GRAYSCALE);
+  const cv::Mat img =
+      cv::imread("/usr/share/doc/opencv-doc/examples/data/graf1.png", cv::IMREAD_GRAYSCALE);
   ASSERT_FALSE(img.empty()) << "opencv-doc missing (scripts/deps.sh installs it)";
   std::vector<cv::KeyPoint> kp;
   cv::Mat sift;

@@ -1,5 +1,6 @@
-// main() of every test executable: GoogleTest's, plus the crash report (indexer/base/crash_report.h),
-// so a test that dies of a signal once in CI leaves the stack that died in the log.
+// main() of every test executable: GoogleTest's, plus the crash report
+// (indexer/base/crash_report.h), so a test that dies of a signal once in CI leaves the stack that
+// died in the log.
 #include <gtest/gtest.h>
 
 #include "indexer/base/crash_report.h"

@@ -5,8 +5,8 @@
 
 #include "demo_route/town_layout.h"
 #include "demo_route/town_renderer.h"
-#include "indexer/vision/local_features.h"
 #include "indexer/base/rotation.h"
+#include "indexer/vision/local_features.h"
 #include "server/engine/relative_pose.h"
 
 namespace sightfix {
