@@ -57,6 +57,8 @@ int RecoverPose(const cv::Mat& e, const std::vector<cv::Point2d>& na,
   const cv::Mat k = cv::Mat::eye(3, 3, CV_64F);
   *mask = sampson_mask.clone();
   const int inliers = cv::recoverPose(e, na, nb, k, *r, *t, *mask);
+  // Counting far points cannot keep more than the Sampson inliers: nothing to gain past them.
+  if (inliers >= cv::countNonZero(sampson_mask)) return inliers;
   cv::Mat far_r, far_t, far_mask = sampson_mask.clone();
   const int far_inliers = cv::recoverPose(e, na, nb, k, far_r, far_t, kAnyDistance, far_mask);
   if (far_inliers <= inliers) return inliers;
