@@ -2,6 +2,9 @@
 
 #include <gtest/gtest.h>
 
+#include <GeographicLib/Geodesic.hpp>
+#include <algorithm>
+#include <cmath>
 #include <set>
 
 #include "indexer/base/geo.h"
@@ -21,12 +24,51 @@ TEST(WebMercatorQuadTest, OgcTileMatrixSetConstants) {
   EXPECT_NEAR(y, 20037508.3427892, 1e-6);
 }
 
-// The XYZ worked example: lon 159.31, lat -42, zoom 4 -> tile x 15, y 10.
+// Reference tile of a point, written out here rather than taken from TileForPoint: the
+// OpenStreetMap wiki's "Slippy map tilenames" formula for the WebMercatorQuad tiling of
+// OGC 17-083r2 (x east from 180 W, y south from 85.05 N), with n = 2^zoom:
+//   x = floor((lon + 180) / 360 * n),  y = floor((1 - asinh(tan(lat)) / pi) / 2 * n).
+// Longitude is wrapped to [-180, 180) first, so 180 E is column 0.
+TileKey SlippyMapTile(double lat_deg, double lon_deg, int zoom) {
+  const double n = std::pow(2.0, zoom);
+  const double lon = lon_deg - 360.0 * std::floor((lon_deg + 180.0) / 360.0);
+  const double lat_rad = lat_deg * M_PI / 180.0;
+  TileKey k;
+  k.zoom = zoom;
+  k.x = static_cast<uint32_t>(std::floor((lon + 180.0) / 360.0 * n));
+  k.y = static_cast<uint32_t>(std::floor((1.0 - std::asinh(std::tan(lat_rad)) / M_PI) / 2.0 * n));
+  return k;
+}
+
+// Worked by hand (Python's math module for the transcendental steps) with the slippy-map
+// formula above (OpenStreetMap wiki "Slippy map tilenames"; OGC 17-083r2 WebMercatorQuad):
+// lon 159.31, lat -42, zoom 4 (n = 16):
+//   x = floor((159.31 + 180) / 360 * 16) = floor(15.0804) = 15
+//   tan(-42 deg) = -0.900404, asinh(-0.900404) = -0.809167, / pi = -0.257566
+//   y = floor((1 + 0.257566) / 2 * 16) = floor(0.628783 * 16) = floor(10.0605) = 10
 TEST(WebMercatorQuadTest, WorkedTileExample) {
   const TileKey k = TileForPoint(-42.0, 159.31, 4);
   EXPECT_EQ(k.x, 15u);
   EXPECT_EQ(k.y, 10u);
   EXPECT_EQ(k.ToString(), "4/15/10");
+  // A point on a column's west edge belongs to that column (floor): at zoom 4, lon 0 gives
+  // x = floor(180 / 360 * 16) = floor(8.0) = 8 and lon 22.5 gives floor(202.5 / 360 * 16) =
+  // floor(9.0) = 9, both quotients exact in binary.
+  EXPECT_EQ(TileForPoint(-42.0, 0.0, 4).x, 8u);
+  EXPECT_EQ(TileForPoint(-42.0, 22.5, 4).x, 9u);
+}
+
+// The library agrees with the slippy-map formula away from tile edges (where the two forms of
+// y, log(tan + sec) and asinh(tan), could round differently).
+TEST(WebMercatorQuadTest, MatchesTheSlippyMapFormula) {
+  for (double lat : {-60.0, -1.0, 0.3, 44.0003, 70.0}) {
+    for (double lon : {-179.99, -40.0001, 0.0001, 12.5001, 179.99}) {
+      for (int zoom : {0, 4, 12, 17}) {
+        EXPECT_EQ(TileForPoint(lat, lon, zoom), SlippyMapTile(lat, lon, zoom))
+            << lat << " " << lon << " z" << zoom;
+      }
+    }
+  }
 }
 
 TEST(WebMercatorQuadTest, PointLiesInItsTileBounds) {
@@ -43,13 +85,17 @@ TEST(WebMercatorQuadTest, PointLiesInItsTileBounds) {
 }
 
 // Independent reference for the circle cover: every tile holding a point of a dense sample of
-// the disc (GeographicLib direct problems along 720 azimuths and 60 radii).
+// the disc. The sample points are geodesic direct problems on the WGS84 ellipsoid along 720
+// azimuths and 60 radii, solved by GeographicLib's Geodesic::Direct itself (Karney 2013), and
+// each point's tile comes from the slippy-map formula above: no code under test is involved.
 std::set<TileKey> SampledCover(double lat, double lon, double radius_m, int zoom) {
+  const GeographicLib::Geodesic& wgs84 = GeographicLib::Geodesic::WGS84();
   std::set<TileKey> out;
   for (int ir = 0; ir <= 60; ++ir) {
     for (int ia = 0; ia < 720; ++ia) {
-      const GeodesicDirect d = GeodesicFrom(lat, lon, ia * 0.5, radius_m * ir / 60.0);
-      out.insert(TileForPoint(d.lat_deg, d.lon_deg, zoom));
+      double lat2 = 0, lon2 = 0;
+      wgs84.Direct(lat, lon, ia * 0.5, radius_m * ir / 60.0, lat2, lon2);
+      out.insert(SlippyMapTile(lat2, lon2, zoom));
     }
   }
   return out;
