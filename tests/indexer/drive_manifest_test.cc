@@ -3,6 +3,8 @@
 #include <gtest/gtest.h>
 
 #include <fstream>
+#include <iterator>
+#include <string>
 
 #include "indexer/base/iso_time.h"
 
@@ -10,11 +12,16 @@ namespace sightfix {
 namespace {
 
 TEST(IsoTimeTest, FormatAndParse) {
-  // 2026-05-04T09:00:00Z is 1777885200 s after the Unix epoch (computed with date -u, from memory
-  // of the format; checked here both ways).
+  // 2026-05-04T09:00:00Z is 1777885200 s after the Unix epoch: python3 datetime
+  // (datetime.fromisoformat("2026-05-04T09:00:00+00:00").timestamp() = 1777885200.0) and GNU date
+  // (date -u -d 2026-05-04T09:00:00Z +%s = 1777885200) agree. 11:00:01.25 at +02:00 is
+  // 1777885201.25 by python3 datetime.
   Result<double> t = ParseIsoUtc("2026-05-04T09:00:00Z");
   ASSERT_TRUE(t.ok());
+  EXPECT_EQ(*t, 1777885200.0);
   EXPECT_EQ(FormatIsoUtc(*t), "2026-05-04T09:00:00.000Z");
+  EXPECT_EQ(FormatIsoUtc(1777885200.0), "2026-05-04T09:00:00.000Z");
+  EXPECT_NEAR(*ParseIsoUtc("2026-05-04T11:00:01.25+02:00"), 1777885201.25, 1e-6);
   EXPECT_NEAR(*ParseIsoUtc("2026-05-04T11:00:01.25+02:00") - *t, 1.25, 1e-9);
   EXPECT_EQ(FormatIsoUtc(*t + 0.0004), "2026-05-04T09:00:00.000Z");
   EXPECT_EQ(FormatIsoUtc(0), "1970-01-01T00:00:00.000Z");
@@ -39,6 +46,11 @@ TEST(DriveManifestTest, RoundTrip) {
   EXPECT_NEAR((*rows)[1].position.lat_deg, row.position.lat_deg, 1e-9);
   EXPECT_NEAR((*rows)[1].attitude.heading_deg, 271.25, 1e-9);
   EXPECT_NEAR((*rows)[1].timestamp_s, row.timestamp_s, 1e-6);
+  // The file holds the time as ISO 8601 UTC: 1777885200.5 s is 2026-05-04T09:00:00.500Z
+  // (python3 datetime.fromtimestamp(1777885200.5, timezone.utc)).
+  std::ifstream f(path);
+  const std::string text((std::istreambuf_iterator<char>(f)), {});
+  EXPECT_NE(text.find(",2026-05-04T09:00:00.500Z,"), std::string::npos) << text;
 }
 
 TEST(DriveManifestTest, BadRowNamesFileAndLine) {
