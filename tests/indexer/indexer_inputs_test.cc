@@ -71,8 +71,10 @@ TEST(ExifGpsTest, ReadsWhatTheExiv2ToolWrote) {
   EXPECT_NEAR(g->altitude_msl_m, 38.12, 1e-9);
   ASSERT_TRUE(g->img_direction_deg.has_value());
   EXPECT_NEAR(*g->img_direction_deg, 271.25, 1e-9);
-  // 09:00:01.250 at +02:00 is 07:00:01.250 UTC.
-  EXPECT_NEAR(g->time_s, *ParseIsoUtc("2026-05-04T07:00:01.250Z"), 1e-6);
+  // 09:00:01.250 at +02:00 is 07:00:01.250 UTC, 1777878001.25 s after the Unix epoch (python3
+  // datetime.fromisoformat("2026-05-04T09:00:01.250+02:00").timestamp(); GNU date -u -d
+  // 2026-05-04T07:00:01Z +%s gives 1777878001).
+  EXPECT_NEAR(g->time_s, 1777878001.25, 1e-6);
 
   // Below sea level (GPSAltitudeRef 1), and the time from the GPS stamps alone (UTC).
   ASSERT_EQ(Shell("exiv2 -M'set Exif.GPSInfo.GPSAltitudeRef 1' "
@@ -84,7 +86,8 @@ TEST(ExifGpsTest, ReadsWhatTheExiv2ToolWrote) {
   g = ReadExifGps(jpg.string());
   ASSERT_TRUE(g.ok()) << g.status().ToString();
   EXPECT_NEAR(g->altitude_msl_m, -38.12, 1e-9);
-  EXPECT_NEAR(g->time_s, *ParseIsoUtc("2026-05-04T07:00:02Z"), 1e-6);
+  // 2026-05-04T07:00:02Z is 1777878002 s (python3 datetime; GNU date -u -d ... +%s agrees).
+  EXPECT_NEAR(g->time_s, 1777878002.0, 1e-6);
 
   // Magnetic direction is refused: its declination is not known here.
   ASSERT_EQ(Shell("exiv2 -M'set Exif.GPSInfo.GPSImgDirectionRef M' " + jpg.string()), 0);
@@ -100,7 +103,8 @@ TEST(ExifGpsTest, OurWriterRoundTripsAndTheToolAgrees) {
   in.lat_deg = -33.8567844, in.lon_deg = 151.2152967, in.altitude_msl_m = 12.345;
   in.img_direction_deg = 359.5;
   in.h_error_m = 0.02;
-  in.time_s = *ParseIsoUtc("2026-05-04T12:34:56.789Z");
+  // 2026-05-04T12:34:56.789Z (python3 datetime.fromtimestamp(1777898096.789, timezone.utc)).
+  in.time_s = 1777898096.789;
   ASSERT_TRUE(WriteExifGps(jpg.string(), in).ok());
   Result<ExifGps> out = ReadExifGps(jpg.string());
   ASSERT_TRUE(out.ok()) << out.status().ToString();
@@ -109,10 +113,11 @@ TEST(ExifGpsTest, OurWriterRoundTripsAndTheToolAgrees) {
   EXPECT_NEAR(out->altitude_msl_m, in.altitude_msl_m, 1e-3);
   EXPECT_NEAR(*out->img_direction_deg, 359.5, 1e-4);
   EXPECT_NEAR(*out->h_error_m, 0.02, 1e-3);
-  EXPECT_NEAR(out->time_s, in.time_s, 1e-3);
-  // The exiv2 tool reads the same latitude reference and altitude back.
+  EXPECT_NEAR(out->time_s, 1777898096.789, 1e-3);
+  // The exiv2 tool reads the same latitude reference, altitude and UTC wall time back.
   const fs::path dump = dir / "dump.txt";
-  ASSERT_EQ(std::system(("exiv2 -pt -K Exif.GPSInfo.GPSLatitudeRef -K Exif.GPSInfo.GPSAltitude " +
+  ASSERT_EQ(std::system(("exiv2 -pt -K Exif.GPSInfo.GPSLatitudeRef -K Exif.GPSInfo.GPSAltitude "
+                         "-K Exif.Photo.DateTimeOriginal -K Exif.Photo.SubSecTimeOriginal " +
                          jpg.string() + " > " + dump.string())
                             .c_str()),
             0);
@@ -120,6 +125,8 @@ TEST(ExifGpsTest, OurWriterRoundTripsAndTheToolAgrees) {
   const std::string text((std::istreambuf_iterator<char>(f)), {});
   EXPECT_NE(text.find("South"), std::string::npos) << text;
   EXPECT_NE(text.find("12.3 m"), std::string::npos) << text;
+  EXPECT_NE(text.find("2026:05:04 12:34:56"), std::string::npos) << text;
+  EXPECT_NE(text.find("  789\n"), std::string::npos) << text;  // SubSecTimeOriginal
 }
 
 TEST(ExifGpsTest, BlocksWithoutGpsOrExifAreNamed) {
