@@ -80,6 +80,39 @@ TEST(MapStoreTest, TileRoundTrip) {
   EXPECT_EQ(t->retrieval_index, want.retrieval_index);
 }
 
+// Every scalar of an image row comes back in its own field: each value is distinct from every
+// other (latitude -33.86 against longitude 151.22, heading, pitch and roll of different sizes
+// and signs), so two columns written or read in each other's place cannot pass unnoticed.
+TEST(MapStoreTest, ImageRowFieldsKeepTheirColumns) {
+  TileData tile = SampleTile();
+  ReferenceImage& r = tile.images[2];
+  r.timestamp_s = 1777885200.25;
+  r.position = {-33.8567844, 151.2152967, 12.345};
+  r.attitude = {271.25, -3.5, 1.75};
+  r.sigma_h_m = 0.035;
+  r.camera_id = 1;
+  const std::string path = ::testing::TempDir() + "/store/row_fields.sqlite";
+  ASSERT_TRUE(WriteTile(path, tile).ok());
+  auto t = ReadTile(path);
+  ASSERT_TRUE(t.ok()) << t.status().ToString();
+  ASSERT_EQ(t->images.size(), 3u);
+  for (int i = 0; i < 3; ++i) {
+    const ReferenceImage& got = t->images[i];
+    const ReferenceImage& want = tile.images[i];
+    EXPECT_EQ(got.id, want.id) << i;
+    EXPECT_EQ(got.name, want.name) << i;
+    EXPECT_DOUBLE_EQ(got.timestamp_s, want.timestamp_s) << i;
+    EXPECT_DOUBLE_EQ(got.position.lat_deg, want.position.lat_deg) << i;
+    EXPECT_DOUBLE_EQ(got.position.lon_deg, want.position.lon_deg) << i;
+    EXPECT_DOUBLE_EQ(got.position.height_m, want.position.height_m) << i;
+    EXPECT_DOUBLE_EQ(got.attitude.heading_deg, want.attitude.heading_deg) << i;
+    EXPECT_DOUBLE_EQ(got.attitude.pitch_deg, want.attitude.pitch_deg) << i;
+    EXPECT_DOUBLE_EQ(got.attitude.roll_deg, want.attitude.roll_deg) << i;
+    EXPECT_DOUBLE_EQ(got.sigma_h_m, want.sigma_h_m) << i;
+    EXPECT_EQ(got.camera_id, want.camera_id) << i;
+  }
+}
+
 TEST(MapStoreTest, CatalogRoundTrip) {
   Catalog c;
   c.map_version = 2;
