@@ -82,6 +82,17 @@ class ServiceTest : public ::testing::Test {
     asio::read(s, asio::buffer(body));
     return *ParseEnvelope(body.data(), body.size());
   }
+  // A Describe call as call `id` whose envelope is exactly `bytes` long (the frame's N): its body,
+  // which Describe ignores, padded.
+  static std::string DescribeFrameOfSize(uint64_t id, size_t bytes) {
+    v1::Envelope e;
+    e.set_call_id(id);
+    e.set_method("Describe");
+    for (size_t pad = bytes; pad > 0 && e.ByteSizeLong() != bytes; --pad)
+      e.set_body(std::string(pad, 'x'));
+    EXPECT_EQ(e.ByteSizeLong(), bytes);
+    return EncodeFrame(e);
+  }
   static bool ClosedByPeer(tcp::socket& s) {
     boost::system::error_code ec;
     char c;
@@ -157,6 +168,34 @@ TEST_F(ServiceTest, BadFramesCloseOnlyTheirConnection) {
     const uint8_t f[6] = {0, 0, 0, 100, 1, 2};
     asio::write(s, asio::buffer(f));
   }
+  ExpectStillServing();
+}
+
+// The cap holds N up to max_frame_bytes inclusive (README "Wire", server/service/session.h): a
+// frame of exactly the cap is read and answered, and its connection keeps serving; one byte more
+// is refused at its header, before its body is read (call id 0, INVALID_ARGUMENT), and that
+// connection closed.
+TEST_F(ServiceTest, FrameOfExactlyTheCapIsReadOneByteMoreIsRefused) {
+  ServiceOptions o;
+  o.max_frame_bytes = 4096;
+  o.read_timeout_ms = 1000;  // a server waiting for the refused frame's body gives up quickly
+  ASSERT_TRUE(Start(o));
+  tcp::socket s = Raw();
+  asio::write(s, asio::buffer(DescribeFrameOfSize(7, o.max_frame_bytes)));
+  const v1::Envelope at_cap = ReadAnswer(s);
+  EXPECT_EQ(at_cap.call_id(), 7u);
+  EXPECT_EQ(at_cap.status().code(), v1::Status::OK) << at_cap.status().message();
+  asio::write(s, asio::buffer(DescribeFrameOfSize(8, 100)));  // still open: answered too
+  EXPECT_EQ(ReadAnswer(s).call_id(), 8u);
+  const std::string over = DescribeFrameOfSize(9, o.max_frame_bytes + 1);
+  asio::write(s, asio::buffer(over.data(), kFrameHeaderBytes));  // its header alone
+  const v1::Envelope refused = ReadAnswer(s);
+  EXPECT_EQ(refused.call_id(), 0u);
+  EXPECT_EQ(refused.status().code(), v1::Status::INVALID_ARGUMENT);
+  EXPECT_NE(refused.status().message().find("4097 bytes is over the 4096-byte cap"),
+            std::string::npos)
+      << refused.status().message();
+  EXPECT_TRUE(ClosedByPeer(s));
   ExpectStillServing();
 }
 
