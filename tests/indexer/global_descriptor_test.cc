@@ -8,6 +8,8 @@
 #include <faiss/IndexFlat.h>
 #include <gtest/gtest.h>
 
+#include <cstdio>
+#include <cstdlib>
 #include <filesystem>
 #include <opencv2/imgcodecs.hpp>
 
@@ -44,10 +46,19 @@ Drive LoadDrive(const fs::path& dir) {
   return d;
 }
 
+// The demo town's seed: SIGHTFIX_RECALL_SEED, 31 when unset (CI's). Another seed checks that the
+// recall floors below were not fitted to seed 31's draws.
+int TownSeed() {
+  const char* s = std::getenv("SIGHTFIX_RECALL_SEED");
+  return s != nullptr && *s != '\0' ? std::atoi(s) : 31;
+}
+
 TEST(GlobalDescriptorTest, ProductQuantizationKeepsRecallOfExactSearch) {
   demo::DemoOptions o;
   o.out_dir = (fs::path(::testing::TempDir()) / "global_town").string();
-  o.seed = 31;
+  fs::remove_all(o.out_dir);  // no drive of another seed's town left behind
+  o.seed = TownSeed();
+  std::printf("demo town seed %d\n", static_cast<int>(o.seed));
   o.route_length_m = 300;
   ASSERT_TRUE(demo::GenerateDemoTown(o).ok());
   const Drive survey = LoadDrive(fs::path(o.out_dir) / "survey");
@@ -106,7 +117,10 @@ TEST(GlobalDescriptorTest, ProductQuantizationKeepsRecallOfExactSearch) {
       "%.3f "
       "(ratio %.3f), %d bytes per image\n",
       n, db.rows, r_exact, r_pq, r_pq / r_exact, g->code_bytes());
-  EXPECT_GT(r_exact, 0.3);  // retrieval works at all
+  // Regression floors: exact recall@1 measured 0.582 on seed 31, 0.741 on seed 37, floor 0.55;
+  // PQ recall@1 measured 0.655 on seed 31, 0.811 on seed 37, floor 0.62.
+  EXPECT_GE(r_exact, 0.55);
+  EXPECT_GE(r_pq, 0.62);
   EXPECT_GE(r_pq, 0.95 * r_exact);
 }
 
