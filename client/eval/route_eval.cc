@@ -4,14 +4,17 @@
 #include <array>
 #include <chrono>
 #include <cmath>
+#include <cstddef>
 #include <cstdio>
 #include <filesystem>
 #include <fstream>
 #include <map>
 #include <numeric>
 #include <opencv2/imgcodecs.hpp>
+#include <optional>
 #include <random>
 
+#include "client/eval/route_view.h"
 #include "indexer/base/geo.h"
 #include "indexer/base/parallel.h"
 
@@ -99,7 +102,41 @@ void RunQuery(const LocateFn& locate, const RouteEvalOptions& o, const fs::path&
   ScoreQuery(q);
 }
 
-ErrorStats Stats(const std::vector<const QueryResult*>& fixes) {
+// The block bootstrap's blocks for error percentiles: runs of this many consecutive queries.
+// Neighbouring frames see the same street and share their errors; 10 frames span a few tens of
+// metres of a drive at the demo's frame spacing, long enough to hold most of that correlation.
+constexpr int kIntervalBlockQueries = 10;
+
+// Wilson 95 % interval of k of n; nullopt for n = 0.
+std::optional<Interval> RateCi95(int k, int n) {
+  Result<Interval> ci = WilsonInterval(k, n);
+  return ci.ok() ? std::optional<Interval>(*ci) : std::nullopt;
+}
+
+// Block bootstrap 95 % interval of the nearest-rank q-th percentile; nullopt for no blocks.
+std::optional<Interval> PercentileCi95(const std::vector<std::vector<double>>& blocks, double q) {
+  Result<Interval> ci = BlockBootstrapInterval(
+      blocks, [q](const std::vector<double>& sample) { return Percentile(sample, q); });
+  return ci.ok() ? std::optional<Interval>(*ci) : std::nullopt;
+}
+
+// The errors of `fixes` (pointers into results, in its order), one block per run of
+// kIntervalBlockQueries consecutive entries of results that holds a fix.
+std::vector<std::vector<double>> ErrorBlocks(const std::vector<QueryResult>& results,
+                                             const std::vector<const QueryResult*>& fixes) {
+  std::vector<std::vector<double>> blocks;
+  std::ptrdiff_t current = -1;
+  for (const QueryResult* q : fixes) {
+    const std::ptrdiff_t block = (q - results.data()) / kIntervalBlockQueries;
+    if (block != current) blocks.emplace_back(), current = block;
+    blocks.back().push_back(q->error_m);
+  }
+  return blocks;
+}
+
+// REQUIRES: fixes point into results, in its order.
+ErrorStats Stats(const std::vector<QueryResult>& results,
+                 const std::vector<const QueryResult*>& fixes) {
   ErrorStats s;
   s.n = static_cast<int>(fixes.size());
   if (fixes.empty()) return s;
@@ -119,6 +156,10 @@ ErrorStats Stats(const std::vector<const QueryResult*>& fixes) {
   s.median_heading_deg = Percentile(headings, 0.5);
   s.radius95_coverage = static_cast<double>(covered) / s.n;
   s.nees_mean = with_nees ? nees / with_nees : 0;
+  const std::vector<std::vector<double>> blocks = ErrorBlocks(results, fixes);
+  s.median_m_ci95 = PercentileCi95(blocks, 0.5);
+  s.p95_m_ci95 = PercentileCi95(blocks, 0.95);
+  s.radius95_coverage_ci95 = RateCi95(covered, s.n);
   return s;
 }
 
@@ -155,9 +196,10 @@ LocateFn InProcess(const Localizer& localizer) {
 
 double Percentile(std::vector<double> v, double q) {
   if (v.empty()) return 0;
-  std::sort(v.begin(), v.end());
-  const size_t rank = static_cast<size_t>(std::ceil(q * v.size()));
-  return v[std::clamp<size_t>(rank, 1, v.size()) - 1];
+  // The rank-th smallest; nth_element keeps the bootstrap's thousands of calls linear.
+  const size_t rank = std::clamp<size_t>(static_cast<size_t>(std::ceil(q * v.size())), 1, v.size());
+  std::nth_element(v.begin(), v.begin() + static_cast<std::ptrdiff_t>(rank - 1), v.end());
+  return v[rank - 1];
 }
 
 Result<std::vector<QueryResult>> RunDrive(const LocateFn& locate, const RouteEvalOptions& o) {
@@ -224,11 +266,16 @@ RouteSummary Summarize(const std::vector<QueryResult>& results) {
   s.refined_share = s.refined / n;
   s.availability = s.fixes / n;
   s.recall_at_1 = r1 / n, s.recall_at_5 = r5 / n, s.recall_at_10 = r10 / n;
-  s.all = Stats(fixes);
-  const ErrorStats r = Stats(refined);
+  s.refined_share_ci95 = RateCi95(s.refined, s.queries);
+  s.availability_ci95 = RateCi95(s.fixes, s.queries);
+  s.recall_at_5_ci95 = RateCi95(r5, s.queries);
+  s.all = Stats(results, fixes);
+  const ErrorStats r = Stats(results, refined);
   s.median_error_m = r.median_m, s.p90_error_m = r.p90_m, s.p95_error_m = r.p95_m;
   s.max_error_m = r.max_m, s.median_heading_error_deg = r.median_heading_deg;
   s.radius95_coverage = r.radius95_coverage, s.nees_mean = r.nees_mean;
+  s.median_error_m_ci95 = r.median_m_ci95, s.p95_error_m_ci95 = r.p95_m_ci95;
+  s.radius95_coverage_ci95 = r.radius95_coverage_ci95;
   s.within_0_25m_2deg = in_bin[0] / n, s.within_0_5m_5deg = in_bin[1] / n;
   s.within_5m_10deg = in_bin[2] / n;
   s.latency_ms_p50 = Percentile(latency, 0.5);
@@ -248,19 +295,35 @@ std::array<double, 3> PoseBinShares(const RouteSummary& s) {
   return {s.within_0_25m_2deg, s.within_0_5m_5deg, s.within_5m_10deg};
 }
 
+namespace {
+
+// " [lo, hi]" with both ends times scale in format (e.g. "%.1f"); " [-]" for no interval.
+std::string Bracketed(const std::optional<Interval>& ci, double scale, const char* format) {
+  if (!ci) return " [-]";
+  return " [" + FormatNumber(format, scale * ci->low) + ", " +
+         FormatNumber(format, scale * ci->high) + "]";
+}
+
+}  // namespace
+
 std::string SummaryLine(const RouteSummary& s) {
   const std::array<double, 3> bins = PoseBinShares(s);
-  char buf[640];
-  std::snprintf(buf, sizeof(buf),
-                "%d queries: refined %.1f %% (coarse %d, none %d); error median %.3f m, p90 %.3f "
-                "m, p95 %.3f m, max %.3f m; wrong refined %d; heading median %.2f deg; recall@1/5 "
-                "%.3f/%.3f; pose %s %.3f, %s %.3f, %s %.3f; radius95 coverage %.3f, NEES %.2f; "
-                "latency p50 %.0f ms, p95 %.0f ms",
-                s.queries, 100 * s.refined_share, s.coarse, s.none, s.median_error_m, s.p90_error_m,
-                s.p95_error_m, s.max_error_m, s.wrong_refined, s.median_heading_error_deg,
-                s.recall_at_1, s.recall_at_5, PoseBinLabel(kPoseBins[0]).c_str(), bins[0],
-                PoseBinLabel(kPoseBins[1]).c_str(), bins[1], PoseBinLabel(kPoseBins[2]).c_str(),
-                bins[2], s.radius95_coverage, s.nees_mean, s.latency_ms_p50, s.latency_ms_p95);
+  char buf[1024];
+  std::snprintf(
+      buf, sizeof(buf),
+      "%d queries: refined %.1f %%%s (coarse %d, none %d), availability %.1f %%%s; error median "
+      "%.3f m%s, p90 %.3f m, p95 %.3f m%s, max %.3f m; wrong refined %d; heading median %.2f "
+      "deg; recall@1/5 %.3f/%.3f%s; pose %s %.3f, %s %.3f, %s %.3f; radius95 coverage %.3f%s, "
+      "NEES %.2f; latency p50 %.0f ms, p95 %.0f ms; [lo, hi]: 95 %% intervals",
+      s.queries, 100 * s.refined_share, Bracketed(s.refined_share_ci95, 100, "%.1f").c_str(),
+      s.coarse, s.none, 100 * s.availability, Bracketed(s.availability_ci95, 100, "%.1f").c_str(),
+      s.median_error_m, Bracketed(s.median_error_m_ci95, 1, "%.3f").c_str(), s.p90_error_m,
+      s.p95_error_m, Bracketed(s.p95_error_m_ci95, 1, "%.3f").c_str(), s.max_error_m,
+      s.wrong_refined, s.median_heading_error_deg, s.recall_at_1, s.recall_at_5,
+      Bracketed(s.recall_at_5_ci95, 1, "%.3f").c_str(), PoseBinLabel(kPoseBins[0]).c_str(), bins[0],
+      PoseBinLabel(kPoseBins[1]).c_str(), bins[1], PoseBinLabel(kPoseBins[2]).c_str(), bins[2],
+      s.radius95_coverage, Bracketed(s.radius95_coverage_ci95, 1, "%.3f").c_str(), s.nees_mean,
+      s.latency_ms_p50, s.latency_ms_p95);
   return buf;
 }
 

@@ -13,7 +13,13 @@
 //  - wrong refined: refined fixes more than 5 m off (must be 0);
 //  - pose bins (0.25 m, 2 deg), (0.5 m, 5 deg), (5 m, 10 deg): share of all queries (Sattler et
 //    al., CVPR 2018), named fine, medium and rough here (kPoseBins);
-//  - latency: wall time of each call as the caller saw it, p50 / p95 / p99.
+//  - latency: wall time of each call as the caller saw it, p50 / p95 / p99;
+//  - 95 % intervals (interval_stats.h; nullopt when a figure has no data): Wilson score
+//    intervals for refined share, availability, recall@5 and radius95 coverage, reading the
+//    queries (fixes) as independent trials, which neighbouring frames are not, so these are
+//    optimistic (too narrow); block bootstrap percentile intervals (B = 2000, seed 1) for the
+//    median and p95 error, a block being the fixes among a run of 10 consecutive queries in
+//    the results' order (drive.csv's), so a drive of fewer than 10 queries gets a zero-width one.
 // Thread safety: RunDrive runs `jobs` threads of its own over the LocateFn, which must be
 // thread-safe (Localizer::Locate and Client::Locate are).
 #pragma once
@@ -26,6 +32,7 @@
 #include <string>
 #include <vector>
 
+#include "client/eval/interval_stats.h"
 #include "client/monitor/gnss_stream.h"
 #include "client/monitor/spoofing_monitor.h"
 #include "indexer/base/status.h"
@@ -86,6 +93,8 @@ struct ErrorStats {
   double median_m = 0, p90_m = 0, p95_m = 0, max_m = 0;
   double median_heading_deg = 0;
   double radius95_coverage = 0, nees_mean = 0;
+  // 95 % intervals: median and p95 by block bootstrap, radius95 coverage by Wilson.
+  std::optional<Interval> median_m_ci95, p95_m_ci95, radius95_coverage_ci95;
 };
 
 struct RouteSummary {
@@ -100,6 +109,9 @@ struct RouteSummary {
   int wrong_refined = 0;
   double within_0_25m_2deg = 0, within_0_5m_5deg = 0, within_5m_10deg = 0;
   double latency_ms_p50 = 0, latency_ms_p95 = 0, latency_ms_p99 = 0;
+  // 95 % intervals of the rates (Wilson) and of the refined fixes' figures (as ErrorStats').
+  std::optional<Interval> refined_share_ci95, availability_ci95, recall_at_5_ci95;
+  std::optional<Interval> median_error_m_ci95, p95_error_m_ci95, radius95_coverage_ci95;
 };
 
 // The three pose bins of Sattler et al. (CVPR 2018) under names of our own, finest first: a
@@ -129,8 +141,10 @@ Result<std::vector<QueryResult>> RunDrive(const Localizer& localizer,
 void ScoreQuery(QueryResult* q);
 // Over the queries that ran.
 RouteSummary Summarize(const std::vector<QueryResult>& results);
-// One line: "N queries: refined X %, median ... m, p95 ... m, ...; pose fine (0.25 m, 2 deg) X,
-// medium (0.5 m, 5 deg) X, rough (5 m, 10 deg) X; ...".
+// One line: "N queries: refined X % [lo, hi] (coarse N, none N), availability X % [lo, hi];
+// error median X m [lo, hi], p90 ... m, p95 X m [lo, hi], ...; pose fine (0.25 m, 2 deg) X,
+// medium (0.5 m, 5 deg) X, rough (5 m, 10 deg) X; ...; [lo, hi]: 95 % intervals", an interval
+// "[-]" when its figure has no data.
 std::string SummaryLine(const RouteSummary& s);
 
 // The spoofing monitor over a replayed drive: each refined fix against the GNSS fix of its

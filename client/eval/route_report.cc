@@ -6,6 +6,7 @@
 #include <filesystem>
 #include <fstream>
 #include <map>
+#include <optional>
 #include <sstream>
 
 #include "client/eval/route_view.h"
@@ -59,6 +60,11 @@ nlohmann::json SpoofingJson(const RouteReport& r) {
   return spoof;
 }
 
+// A 95 % interval as [low, high]; null when its figure has no data.
+nlohmann::json IntervalJson(const std::optional<Interval>& ci) {
+  return ci ? nlohmann::json::array({ci->low, ci->high}) : nlohmann::json(nullptr);
+}
+
 nlohmann::json RefinedOnlyJson(const RouteSummary& s) {
   return {{"fixes", s.refined},
           {"median_error_m", s.median_error_m},
@@ -67,7 +73,20 @@ nlohmann::json RefinedOnlyJson(const RouteSummary& s) {
           {"max_error_m", s.max_error_m},
           {"median_heading_error_deg", s.median_heading_error_deg},
           {"radius95_coverage", s.radius95_coverage},
-          {"nees_mean", s.nees_mean}};
+          {"nees_mean", s.nees_mean},
+          {"median_error_m_ci95", IntervalJson(s.median_error_m_ci95)},
+          {"p95_error_m_ci95", IntervalJson(s.p95_error_m_ci95)},
+          {"radius95_coverage_ci95", IntervalJson(s.radius95_coverage_ci95)}};
+}
+
+// The 95 % intervals of the top-level figures, under each figure's key + "_ci95".
+void AddIntervals(const RouteSummary& s, nlohmann::json* j) {
+  (*j)["refined_share_ci95"] = IntervalJson(s.refined_share_ci95);
+  (*j)["availability_ci95"] = IntervalJson(s.availability_ci95);
+  (*j)["recall_at_5_25m_ci95"] = IntervalJson(s.recall_at_5_ci95);
+  (*j)["median_error_m_ci95"] = IntervalJson(s.all.median_m_ci95);
+  (*j)["p95_error_m_ci95"] = IntervalJson(s.all.p95_m_ci95);
+  (*j)["radius95_coverage_ci95"] = IntervalJson(s.all.radius95_coverage_ci95);
 }
 
 }  // namespace
@@ -106,6 +125,7 @@ nlohmann::json SummaryJson(const RouteReport& r) {
                       {"seed", r.seed}};
   const std::array<double, 3> shares = PoseBinShares(s);
   for (size_t k = 0; k < shares.size(); ++k) j[kPoseBins[k].summary_key] = shares[k];
+  AddIntervals(s, &j);
   return j;
 }
 

@@ -4,7 +4,9 @@
 #include <gtest/gtest.h>
 
 #include <map>
+#include <optional>
 
+#include "client/eval/interval_stats.h"
 #include "client/eval/route_eval.h"
 #include "client/eval/route_report.h"
 #include "indexer/base/geo.h"
@@ -218,6 +220,90 @@ TEST(RouteMetricsTest, GeoJsonHasTrackFixesErrorsAndAlarms) {
   const nlohmann::json& segment = g["features"][2];
   EXPECT_EQ(segment["geometry"]["type"], "LineString");
   EXPECT_EQ(segment["geometry"]["coordinates"][0], (nlohmann::json{kLon, kLat}));
+}
+
+void ExpectInterval(const std::optional<Interval>& ci, double low, double high, double tol) {
+  ASSERT_TRUE(ci.has_value());
+  EXPECT_NEAR(ci->low, low, tol);
+  EXPECT_NEAR(ci->high, high, tol);
+}
+
+// The hand table's 95 % intervals. Wilson figures from SciPy 1.10.1 (/usr/bin/python3):
+//   python3 -c 'from scipy.stats import binomtest as B; r = B(k, n).proportion_ci(
+//     method="wilson"); print("%.12f %.12f" % (r.low, r.high))'
+// The six queries form one block of 10 consecutive queries, so every bootstrap resample is the
+// table itself and the error intervals have zero width at the estimate.
+TEST(RouteMetricsTest, HandTableIntervals) {
+  const RouteSummary s = Summarize(HandTable());
+  ExpectInterval(s.refined_share_ci95, 0.299993315138, 0.903228588894, 1e-9);          // 4 of 6
+  ExpectInterval(s.availability_ci95, 0.436497177814, 0.969946630252, 1e-9);           // 5 of 6
+  ExpectInterval(s.recall_at_5_ci95, 0.187616306483, 0.812383693517, 1e-9);            // 3 of 6
+  ExpectInterval(s.radius95_coverage_ci95, 0.150038989152, 0.849961010848, 1e-9);      // 2 of 4
+  ExpectInterval(s.all.radius95_coverage_ci95, 0.230724281276, 0.882379225767, 1e-9);  // 3 of 5
+  ExpectInterval(s.median_error_m_ci95, 0.4, 0.4, 1e-6);
+  ExpectInterval(s.p95_error_m_ci95, 8, 8, 1e-6);
+  ExpectInterval(s.all.median_m_ci95, 3, 3, 1e-6);
+  ExpectInterval(s.all.p95_m_ci95, 20, 20, 1e-6);
+  // No queries: no intervals.
+  const RouteSummary none = Summarize({});
+  EXPECT_FALSE(none.refined_share_ci95 || none.availability_ci95 || none.median_error_m_ci95);
+
+  RouteReport r;
+  r.results = HandTable();
+  r.summary = s;
+  const nlohmann::json j = SummaryJson(r);
+  EXPECT_NEAR(j["refined_share_ci95"][0].get<double>(), 0.299993315138, 1e-9);
+  EXPECT_NEAR(j["refined_share_ci95"][1].get<double>(), 0.903228588894, 1e-9);
+  EXPECT_NEAR(j["availability_ci95"][0].get<double>(), 0.436497177814, 1e-9);
+  EXPECT_NEAR(j["recall_at_5_25m_ci95"][1].get<double>(), 0.812383693517, 1e-9);
+  EXPECT_NEAR(j["radius95_coverage_ci95"][0].get<double>(), 0.230724281276, 1e-9);  // all fixes
+  EXPECT_NEAR(j["median_error_m_ci95"][0].get<double>(), 3, 1e-6);                  // all fixes
+  EXPECT_NEAR(j["p95_error_m_ci95"][1].get<double>(), 20, 1e-6);
+  const nlohmann::json& refined = j["refined_only"];
+  EXPECT_NEAR(refined["radius95_coverage_ci95"][1].get<double>(), 0.849961010848, 1e-9);
+  EXPECT_NEAR(refined["median_error_m_ci95"][1].get<double>(), 0.4, 1e-6);
+  EXPECT_NEAR(refined["p95_error_m_ci95"][0].get<double>(), 8, 1e-6);
+  // The keys the intervals stand beside keep their values.
+  EXPECT_DOUBLE_EQ(j["refined_share"].get<double>(), 4.0 / 6);
+  EXPECT_NEAR(j["median_error_m"].get<double>(), 3, 1e-6);
+
+  const std::string line = SummaryLine(s);
+  EXPECT_NE(line.find("refined 66.7 % [30.0, 90.3] (coarse 1, none 1), availability 83.3 % "
+                      "[43.6, 97.0]; error median 0.400 m [0.400, 0.400]"),
+            std::string::npos)
+      << line;
+  EXPECT_NE(line.find("recall@1/5 0.333/0.500 [0.188, 0.812]"), std::string::npos) << line;
+  EXPECT_NE(line.find("radius95 coverage 0.500 [0.150, 0.850]"), std::string::npos) << line;
+  EXPECT_EQ(line.find("[-]"), std::string::npos) << line;
+  EXPECT_NE(SummaryLine(none).find("refined 0.0 % [-]"), std::string::npos) << SummaryLine(none);
+}
+
+// The error intervals' blocks are runs of 10 consecutive queries (not of 10 fixes): 25 queries
+// with every fourth one (3, 7, 11, ...) unanswered give the blocks below, and the summary's
+// intervals are the block bootstrap's over exactly those blocks.
+TEST(RouteMetricsTest, ErrorIntervalsResampleRunsOfTenQueries) {
+  std::vector<QueryResult> table;
+  for (int i = 0; i < 25; ++i)
+    table.push_back(i % 4 == 3 ? Query(FixQuality::kNone, 0, 0, 0, 0, 0, 0, {}, 100)
+                               : Query(FixQuality::kRefined, 0.05 + 0.1 * (i % 7) + 0.3 * (i / 10),
+                                       0, 0, 0.01, 0.01, 0.3, {}, 100));
+  const std::vector<std::vector<int>> block_queries = {
+      {0, 1, 2, 4, 5, 6, 8, 9}, {10, 12, 13, 14, 16, 17, 18}, {20, 21, 22, 24}};
+  std::vector<std::vector<double>> blocks;
+  for (const std::vector<int>& queries : block_queries) {
+    blocks.emplace_back();
+    for (int i : queries) blocks.back().push_back(table[i].error_m);
+  }
+  const RouteSummary s = Summarize(table);
+  for (double q : {0.5, 0.95}) {
+    SCOPED_TRACE(q);
+    const Result<Interval> expected = BlockBootstrapInterval(
+        blocks, [q](const std::vector<double>& v) { return Percentile(v, q); });
+    ASSERT_TRUE(expected.ok());
+    const std::optional<Interval>& got = q == 0.5 ? s.median_error_m_ci95 : s.p95_error_m_ci95;
+    ExpectInterval(got, expected->low, expected->high, 0);
+    EXPECT_LT(got->low, got->high);  // three blocks that differ: a real interval
+  }
 }
 
 }  // namespace
