@@ -6,6 +6,7 @@
 set -euo pipefail
 src="$1" build="$2"
 bash "$src/scripts/mutants.sh" --check | tail -1
+bash "$src/scripts/mutants.sh" --list >/dev/null  # the README's first example
 known="$(cd "$build" && ctest -N | sed -n 's/^ *Test *#[0-9]*: //p')"
 missing=0
 while IFS=$'\t' read -r id _ _ _ _ tests _; do
