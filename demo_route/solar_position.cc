@@ -137,17 +137,19 @@ static_assert(std::size(kNutation) == 63);
 constexpr double kPi = 3.14159265358979323846;
 double Rad(double deg) { return deg * (kPi / 180.0); }
 double Deg(double rad) { return rad * (180.0 / kPi); }
-// x reduced to [0, 360).
+// deg reduced to [0, 360) (a tiny negative remainder would round to 360 when shifted).
 double Wrap360(double deg) {
   const double r = std::fmod(deg, 360.0);
-  return r < 0 ? r + 360.0 : r;
+  const double wrapped = r < 0 ? r + 360.0 : r;
+  return wrapped >= 360.0 ? 0.0 : wrapped;
 }
 
 constexpr double kJ2000 = 2451545.0;               // Julian day of 2000-01-01 12:00 TT
 constexpr double kUnixEpochJulianDay = 2440587.5;  // 1970-01-01 00:00 UTC
 constexpr double kSecondsPerDay = 86400.0;
-// The sun's apparent radius and the refraction at the horizon (the paper's defaults): below
-// -(their sum) the sun has set for every observer and refraction is not applied (eq. 42).
+// The sun's apparent radius and the refraction at the horizon (the paper's defaults): with the
+// centre below -(their sum) the whole disc is below the refracted horizon, and the paper applies
+// no refraction (eq. 42).
 constexpr double kSunRadiusDeg = 0.26667, kHorizonRefractionDeg = 0.5667;
 
 // The times the algorithm runs on (eqs. 4-7): Julian (ephemeris) day, century and millennium.
