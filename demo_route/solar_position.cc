@@ -14,10 +14,10 @@ struct PeriodicTerm {
   double a, b, c;
 };
 
-// The paper's Table A4.2 (the Earth's truncated VSOP87 series), transcribed; row counts are
-// checked below against the table. A transcription slip in a term changes L, B or R by at most
-// that term's amplitude (1e-8 rad units), so the worked example and the comparison with full
-// VSOP87 (ephem) in the test bound what a slip in any large term could do.
+// The paper's Table A4.2 (the Earth's truncated VSOP87 series), copied from the paper; row counts
+// are checked below against the table. A slip in one copied term changes L, B or R by at most that
+// term's amplitude (1e-8 rad units), so the worked example and the comparison with full VSOP87
+// (ephem) in the test bound what a slip in any large term could do.
 // clang-format off
 constexpr PeriodicTerm kL0[] = {
   {175347046, 0, 0}, {3341656, 4.6692568, 6283.07585}, {34894, 4.6261, 12566.1517},
