@@ -54,6 +54,26 @@ int TownSeed() {
   return s != nullptr && *s != '\0' ? std::atoi(s) : 31;
 }
 
+// A training set without structure: `image_count` images of 50 uniform random descriptors each,
+// and `sample` all of them.
+void RandomTrainingSet(uint64_t seed, int image_count, cv::Mat* sample,
+                       std::vector<cv::Mat>* images) {
+  cv::RNG rng(seed);
+  *sample = cv::Mat(image_count * 50, 128, CV_32F);
+  rng.fill(*sample, cv::RNG::UNIFORM, 0.0f, 0.3f);
+  for (int i = 0; i < image_count; ++i)
+    images->push_back(sample->rowRange(i * 50, i * 50 + 50).clone());
+}
+
+// 8 clusters, 32 PCA dimensions, 8 PQ subquantizers: a model small enough for those sets.
+GlobalDescriptorOptions SmallModelOptions() {
+  GlobalDescriptorOptions o;
+  o.clusters = 8;
+  o.pca_dims = 32;
+  o.pq_subquantizers = 8;
+  return o;
+}
+
 TEST(GlobalDescriptorTest, ProductQuantizationKeepsRecallOfExactSearch) {
   demo::DemoOptions o;
   o.out_dir = (fs::path(::testing::TempDir()) / "global_town").string();
@@ -132,15 +152,10 @@ TEST(GlobalDescriptorTest, ProductQuantizationKeepsRecallOfExactSearch) {
 // epsilon, 100 x the mean eigenvalue, is close to plain PCA by design, so the retrieval test above
 // cannot tell whitened from not.)
 TEST(GlobalDescriptorTest, WhiteningEqualisesTheComponentVariances) {
-  cv::RNG rng(11);
-  cv::Mat sample(4000, 128, CV_32F);
-  rng.fill(sample, cv::RNG::UNIFORM, 0.0f, 0.3f);
+  cv::Mat sample;
   std::vector<cv::Mat> images;
-  for (int i = 0; i < 80; ++i) images.push_back(sample.rowRange(i * 50, i * 50 + 50).clone());
-  GlobalDescriptorOptions o;
-  o.clusters = 8;
-  o.pca_dims = 32;
-  o.pq_subquantizers = 8;
+  RandomTrainingSet(11, 80, &sample, &images);
+  GlobalDescriptorOptions o = SmallModelOptions();
   o.pca_epsilon = 0.001f;
   auto g = GlobalDescriptor::Train(sample, images, {}, o);
   ASSERT_TRUE(g.ok()) << g.status().ToString();
@@ -175,15 +190,10 @@ TEST(GlobalDescriptorTest, RejectsTooFewTrainingImages) {
 }
 
 TEST(GlobalDescriptorTest, SmallTrainingSetFallsBackToScalarQuantizer) {
-  cv::RNG rng(7);
-  cv::Mat sample(2000, 128, CV_32F);
-  rng.fill(sample, cv::RNG::UNIFORM, 0.0f, 0.3f);
+  cv::Mat sample;
   std::vector<cv::Mat> images;
-  for (int i = 0; i < 40; ++i) images.push_back(sample.rowRange(i * 50, i * 50 + 50).clone());
-  GlobalDescriptorOptions o;
-  o.clusters = 8;
-  o.pca_dims = 32;
-  o.pq_subquantizers = 8;
+  RandomTrainingSet(7, 40, &sample, &images);
+  GlobalDescriptorOptions o = SmallModelOptions();
   auto g = GlobalDescriptor::Train(sample, images, {}, o);
   ASSERT_TRUE(g.ok()) << g.status().ToString();
   EXPECT_EQ(g->codec_name(), "SQ8");  // 40 < 9 984 training vectors
