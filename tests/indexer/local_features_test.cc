@@ -3,6 +3,8 @@
 #include <gtest/gtest.h>
 
 #include <cmath>
+#include <map>
+#include <opencv2/features2d.hpp>
 #include <opencv2/imgcodecs.hpp>
 
 namespace sightfix {
@@ -89,6 +91,43 @@ TEST(LocalFeaturesTest, CompactDescriptorsKeepGraffitiMatches) {
   const double s3 = ShareWithin(g, matches, 3);
   std::printf("compact: %zu matches, %.1f %% within 3 px\n", matches.size(), 100 * s3);
   EXPECT_GE(s3, 0.60);
+}
+
+// OpenCV's brute-force matcher (cv::BFMatcher, NORM_L2: knnMatch k = 2 a -> b, match b -> a) is
+// the reference for the float path, which computes the same distances through one BLAS product:
+// on the graffiti pair (about 4 000 x 4 000 RootSIFT, compacted on one side as the map stores
+// them) the kept pairs must agree but for the odd one within float rounding of the ratio test,
+// and their distances to 1e-4.
+TEST(LocalFeaturesTest, MatchesAgreeWithOpenCvBruteForce) {
+  Graffiti g;
+  ASSERT_TRUE(LoadGraffiti(&g));
+  g.b.descriptors = ExpandDescriptors(CompactDescriptors(g.b.descriptors));
+  for (const MatchOptions options : {MatchOptions{}, MatchOptions{0.9, false}}) {
+    cv::BFMatcher bf(cv::NORM_L2);
+    std::vector<std::vector<cv::DMatch>> ab;
+    bf.knnMatch(g.a.descriptors, g.b.descriptors, ab, 2);
+    std::vector<cv::DMatch> ba;
+    bf.match(g.b.descriptors, g.a.descriptors, ba);
+    std::map<int, std::pair<int, float>> want;
+    for (const auto& m : ab) {
+      if (m.size() < 2 || m[0].distance >= options.ratio * m[1].distance) continue;
+      if (options.mutual && ba[m[0].trainIdx].trainIdx != m[0].queryIdx) continue;
+      want[m[0].queryIdx] = {m[0].trainIdx, m[0].distance};
+    }
+    const std::vector<cv::DMatch> got = MatchFeatures(g.a, g.b, options);
+    int same = 0;
+    for (const cv::DMatch& m : got) {
+      auto it = want.find(m.queryIdx);
+      if (it == want.end() || it->second.first != m.trainIdx) continue;
+      ++same;
+      EXPECT_NEAR(m.distance, it->second.second, 1e-4);
+    }
+    std::printf("ratio %.1f mutual %d: %zu reference pairs, %zu ours, %d shared\n", options.ratio,
+                options.mutual, want.size(), got.size(), same);
+    ASSERT_GT(want.size(), 500u);
+    EXPECT_GE(same, static_cast<int>(want.size()) - 3);
+    EXPECT_LE(got.size(), want.size() + 3);
+  }
 }
 
 TEST(LocalFeaturesTest, RejectsImageThatDoesNotFitCalibration) {
