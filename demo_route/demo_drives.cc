@@ -5,6 +5,7 @@
 #include <opencv2/imgproc.hpp>
 
 #include "demo_route/random.h"
+#include "demo_route/urban_canyon.h"
 
 namespace sightfix::demo {
 namespace {
@@ -75,9 +76,13 @@ CameraModel FleetCamera() {
   return c;
 }
 
+// The clean world's survey: truth plus white noise, 1-sigma 2 cm per horizontal axis (RTK-grade).
+constexpr double kCleanSurveySigmaM = 0.02;
+
 Frame NoisyPose(const Frame& f, Rng& rng) {
   Frame g = f;
-  const double nu = 0.03 * rng.Normal(), nn = 0.02 * rng.Normal(), ne = 0.02 * rng.Normal();
+  const double nu = 0.03 * rng.Normal(), nn = kCleanSurveySigmaM * rng.Normal(),
+               ne = kCleanSurveySigmaM * rng.Normal();
   g.position += cv::Vec3d(ne, nn, nu);
   g.attitude.heading_deg = std::fmod(g.attitude.heading_deg + 0.05 * rng.Normal() + 360, 360);
   g.attitude.pitch_deg += 0.03 * rng.Normal();
@@ -111,14 +116,81 @@ void PlanQuery(const DemoOptions& o, double L, bool fleet, Rng& rng, PlannedDriv
   d->plan.heading_jitter_deg = 1.6, d->plan.pitch_jitter_deg = 0.7, d->plan.roll_jitter_deg = 0.5;
 }
 
+// The true pose when the image of frame f is exposed, offset_s after f's time: f moved along the
+// drive by the path travelled in offset_s, its heading turned as the path turns (its attitude
+// jitter kept).
+Frame Exposure(const Town& town, const PlannedDrive& d, const Frame& f, double offset_s) {
+  if (offset_s == 0) return f;
+  const Frame a = PoseAtTime(town.route, d.passes, d.plan, f.time_s);
+  const Frame b = PoseAtTime(town.route, d.passes, d.plan, f.time_s + offset_s);
+  Frame g = f;
+  g.time_s += offset_s;
+  g.position += b.position - a.position;
+  const double turn_deg = std::remainder(b.attitude.heading_deg - a.attitude.heading_deg, 360.0);
+  g.attitude.heading_deg = std::fmod(g.attitude.heading_deg + turn_deg + 360.0, 360.0);
+  return g;
+}
+
+Frame WithSurveyError(const Frame& f, const SurveyError& e) {
+  Frame g = f;
+  g.position += e.position_m;
+  g.attitude.heading_deg = std::fmod(f.attitude.heading_deg + e.heading_deg + 360.0, 360.0);
+  g.attitude.pitch_deg += e.pitch_deg;
+  g.attitude.roll_deg += e.roll_deg;
+  return g;
+}
+
+std::vector<double> FrameTimes(const std::vector<Frame>& frames) {
+  std::vector<double> times;
+  for (const Frame& f : frames) times.push_back(f.time_s);
+  return times;
+}
+
+// The realistic survey's reported poses: truth at each drive.csv time plus its drawn error.
+void AddSurveyError(const Town& town, const WorldNuisances& n, Rng& rng, PlannedDrive* d) {
+  d->survey_error_model = true;
+  d->survey_draw = DrawSurveyError(n.survey, rng);
+  d->canyon_min_aspect_ratio = n.survey.min_aspect_ratio;
+  const CanyonTest canyon = DriveCanyonTest(town, *d, d->canyon_min_aspect_ratio);
+  d->jumps = PlanMultipathJumps(n.survey, DriveDuration(d->passes, d->plan), canyon, rng);
+  d->survey_errors = SimulateSurveyError(d->survey_draw, d->jumps, canyon, FrameTimes(d->truth));
+  for (size_t k = 0; k < d->truth.size(); ++k) {
+    d->reported.push_back(WithSurveyError(d->truth[k], d->survey_errors[k]));
+    d->reported_sigma_h_m.push_back(d->survey_errors[k].sigma_h_m * n.survey_sigma_scale);
+  }
+}
+
+// Camera as written, exposure poses and reported poses of drive i (0: the survey). rng is the
+// drive's plan stream (the clean survey's white noise continues it); nuisance_rng draws the
+// realistic world's nuisances, so the clean world's numbers never change.
+void AddNuisances(const Town& town, const WorldNuisances& n, size_t i, Rng& rng, Rng& nuisance_rng,
+                  PlannedDrive* d) {
+  if (n.calibration.enabled) {
+    d->calibration_error_model = true;
+    d->calibration_error = DrawCalibrationError(n.calibration, d->camera, nuisance_rng);
+    d->camera_written = WithCalibrationError(d->camera, d->calibration_error);
+  } else {
+    d->camera_written = d->camera;
+  }
+  for (const Frame& f : d->truth)
+    d->exposure.push_back(Exposure(town, *d, f, d->calibration_error.time_offset_s));
+  if (i == 0 && n.survey.enabled) return AddSurveyError(town, n, nuisance_rng, d);
+  for (size_t k = 0; k < d->truth.size(); ++k) {
+    d->reported.push_back(i == 0 ? NoisyPose(d->truth[k], rng) : d->exposure[k]);
+    d->reported_sigma_h_m.push_back(i == 0 ? kCleanSurveySigmaM * n.survey_sigma_scale : 0.0);
+  }
+}
+
 }  // namespace
 
 std::vector<PlannedDrive> PlanDrives(const Town& town, const DemoOptions& o) {
+  WorldNuisances nuisances = NuisancesForWorld(o.world);
+  nuisances.survey_sigma_scale = o.survey_sigma_scale;
   std::vector<PlannedDrive> drives;
   const double L = town.route.length();
   const std::vector<Condition> conditions = Conditions();
   for (size_t i = 0; i < conditions.size(); ++i) {
-    Rng rng(HashSeed(o.seed, 0x647276, i));
+    Rng rng(HashSeed(o.seed, 0x647276, i)), nuisance_rng(HashSeed(o.seed, 0x6e7569, i));
     PlannedDrive d;
     d.condition = conditions[i];
     if (i == 0)
@@ -126,7 +198,7 @@ std::vector<PlannedDrive> PlanDrives(const Town& town, const DemoOptions& o) {
     else
       PlanQuery(o, L, i == 3, rng, &d);
     d.truth = PlanFrames(town.route, d.passes, d.plan, rng);
-    for (const Frame& f : d.truth) d.reported.push_back(i == 0 ? NoisyPose(f, rng) : f);
+    AddNuisances(town, nuisances, i, rng, nuisance_rng, &d);
     if (i > 0) {
       d.spoofing = PlanSpoofing(DriveDuration(d.passes, d.plan), rng);
       d.gnss = SimulateGnss(town.route, d.passes, d.plan, GnssOptions{}, d.spoofing, rng);
@@ -134,6 +206,21 @@ std::vector<PlannedDrive> PlanDrives(const Town& town, const DemoOptions& o) {
     drives.push_back(std::move(d));
   }
   return drives;
+}
+
+CanyonTest DriveCanyonTest(const Town& town, const PlannedDrive& d, double min_aspect_ratio) {
+  return [&town, &d, min_aspect_ratio](double t) {
+    const Frame f = PoseAtTime(town.route, d.passes, d.plan, t);
+    const double h = f.attitude.heading_deg * M_PI / 180;
+    const cv::Vec2d p(f.position[0], f.position[1]), travel(std::sin(h), std::cos(h));
+    return CanyonAt(town, p, travel).aspect_ratio >= min_aspect_ratio;
+  };
+}
+
+std::vector<SurveyError> SurveyErrorsAt(const Town& town, const PlannedDrive& d,
+                                        const std::vector<double>& times_s) {
+  return SimulateSurveyError(d.survey_draw, d.jumps,
+                             DriveCanyonTest(town, d, d.canyon_min_aspect_ratio), times_s);
 }
 
 cv::Mat FinishImage(const cv::Mat& linear, const Condition& c, uint64_t seed) {

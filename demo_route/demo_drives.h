@@ -7,8 +7,10 @@
 #include <string>
 #include <vector>
 
+#include "demo_route/calibration_error.h"
 #include "demo_route/demo_town.h"
 #include "demo_route/drive_plan.h"
+#include "demo_route/survey_error.h"
 #include "demo_route/town_layout.h"
 #include "demo_route/town_renderer.h"
 #include "indexer/base/geo.h"
@@ -35,17 +37,40 @@ struct Condition {
 
 struct PlannedDrive {
   Condition condition;
-  CameraModel camera;
+  CameraModel camera;                    // the camera the images are rendered with (the truth)
+  CameraModel camera_written;            // camera.yml: camera with calibration_error applied
+  bool calibration_error_model = false;  // realistic world: camera.yml is not the truth
+  CalibrationError calibration_error;    // zero in the clean world
   std::vector<Pass> passes;
   DrivePlanOptions plan;
-  std::vector<Frame> truth;
-  std::vector<Frame> reported;  // survey: INS-reported poses; queries: the truth itself
+  std::vector<Frame> truth;     // the true pose at each drive.csv time
+  std::vector<Frame> exposure;  // the true pose when each image was exposed (time + offset)
+  // drive.csv's poses and sigma_h_m: survey, what its INS reports at the drive.csv time;
+  // queries, the exposure poses themselves (0).
+  std::vector<Frame> reported;
+  std::vector<double> reported_sigma_h_m;
+  // The survey in the realistic world: its error's draw, jumps and value at each frame.
+  bool survey_error_model = false;
+  SurveyErrorDraw survey_draw;
+  double canyon_min_aspect_ratio = 0;  // where jumps may happen (SurveyErrorRanges)
+  std::vector<MultipathJump> jumps;
+  std::vector<SurveyError> survey_errors;
   std::vector<SpoofSegment> spoofing;
   std::vector<GnssSample> gnss;
 };
 
 // survey, query-day, query-dusk, query-overcast, in this order (index = vehicle variant).
+// REQUIRES: options.Validate().
 std::vector<PlannedDrive> PlanDrives(const Town& town, const DemoOptions& options);
+
+// Whether the true pose of drive d at time t (seconds since its start) stands in a canyon
+// (urban_canyon.h) of aspect ratio >= min_aspect_ratio. Borrows town and d.
+CanyonTest DriveCanyonTest(const Town& town, const PlannedDrive& d, double min_aspect_ratio);
+
+// The survey's error at times_s (survey_error.h), the same realisation as d.survey_errors.
+// REQUIRES: d.survey_error_model.
+std::vector<SurveyError> SurveyErrorsAt(const Town& town, const PlannedDrive& d,
+                                        const std::vector<double>& times_s);
 
 // The camera's post-processing of a linear render (CV_32FC3, 0..1): exposure, contrast, tint,
 // tone curve, blur and sensor noise (seeded), to BGR CV_8UC3.

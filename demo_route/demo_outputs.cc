@@ -17,17 +17,20 @@ namespace sightfix::demo {
 namespace fs = std::filesystem;
 namespace {
 
-std::vector<DriveRow> ManifestRows(const PlannedDrive& d, const EnuFrame& enu, double start) {
+// One row per frame: its image, time, pose, the calibration file `camera` and sigma_h_m.
+std::vector<DriveRow> ManifestRows(const std::vector<Frame>& frames,
+                                   const std::vector<double>& sigma_h_m, const EnuFrame& enu,
+                                   double start, const std::string& camera) {
   std::vector<DriveRow> rows;
-  for (size_t k = 0; k < d.reported.size(); ++k) {
-    const Frame& f = d.reported[k];
+  for (size_t k = 0; k < frames.size(); ++k) {
+    const Frame& f = frames[k];
     DriveRow r;
     r.image = DriveImageName(k);
     r.timestamp_s = start + f.time_s;
     r.position = enu.ToGeo(f.position);
     r.attitude = f.attitude;
-    r.camera = "camera.yml";
-    r.sigma_h_m = d.condition.variant == 0 ? 0.02 : 0.0;
+    r.camera = camera;
+    r.sigma_h_m = sigma_h_m.empty() ? 0.0 : sigma_h_m[k];
     rows.push_back(r);
   }
   return rows;
@@ -76,14 +79,15 @@ Status TagSurveyImages(const PlannedDrive& d, const EnuFrame& enu, const Geoid& 
       g.lat_deg = p.lat_deg, g.lon_deg = p.lon_deg;
       g.altitude_msl_m = geoid.MslFromEllipsoidal(p.lat_deg, p.lon_deg, p.height_m);
       g.img_direction_deg = std::fmod(f.attitude.heading_deg + 360.0, 360.0);
-      g.h_error_m = 0.02;  // the survey's INS accuracy (drive.csv's sigma_h_m)
+      g.h_error_m = d.reported_sigma_h_m[k];  // the survey's INS accuracy, as in drive.csv
     }
     if (Status s = WriteExifGps((dir / name).string(), g); !s.ok()) return s;
   }
   return Status::Ok();
 }
 
-// dir/track.gpx: the survey's true path at 10 Hz, heights above sea level.
+// dir/track.gpx: the survey's path at 10 Hz as its INS reports it (clean world: the true path),
+// heights above sea level.
 Status WriteGpxTrack(const PlannedDrive& d, const Town& town, const EnuFrame& enu,
                      const Geoid& geoid, const fs::path& dir) {
   const double start = kSurveyStartUnix + d.condition.start_offset_s;
@@ -92,10 +96,17 @@ Status WriteGpxTrack(const PlannedDrive& d, const Town& town, const EnuFrame& en
          "creator=\"sightfix-demo-route\" xmlns=\"http://www.topografix.com/GPX/1/1\">\n"
          "<trk><name>survey</name><trkseg>\n";
   const double duration = DriveDuration(d.passes, d.plan);
+  std::vector<double> times;
+  for (int i = 0; i * 0.1 <= duration + 0.1; ++i) times.push_back(std::min(i * 0.1, duration));
+  // The realistic world's track carries the survey's error, like its drive.csv.
+  const std::vector<SurveyError> errors =
+      d.survey_error_model ? SurveyErrorsAt(town, d, times) : std::vector<SurveyError>();
   char buf[256];
-  for (int i = 0; i * 0.1 <= duration + 0.1; ++i) {
-    const double t = std::min(i * 0.1, duration);
-    const GeoPoint p = enu.ToGeo(PoseAtTime(town.route, d.passes, d.plan, t).position);
+  for (size_t i = 0; i < times.size(); ++i) {
+    const double t = times[i];
+    cv::Vec3d position = PoseAtTime(town.route, d.passes, d.plan, t).position;
+    if (!errors.empty()) position += errors[i].position_m;
+    const GeoPoint p = enu.ToGeo(position);
     std::snprintf(buf, sizeof(buf),
                   "<trkpt lat=\"%.9f\" lon=\"%.9f\"><ele>%.3f</ele><time>%s</time></trkpt>\n",
                   p.lat_deg, p.lon_deg, geoid.MslFromEllipsoidal(p.lat_deg, p.lon_deg, p.height_m),
@@ -165,10 +176,52 @@ void AddGnssJson(const PlannedDrive& d, nlohmann::json* dj) {
          {"model", "offset grows linearly at rate_mps along bearing_deg, then snaps back"}});
 }
 
+// The calibration error of one drive (written minus true) and the camera as written.
+nlohmann::json CalibrationErrorJson(const PlannedDrive& d) {
+  const CalibrationError& e = d.calibration_error;
+  return {{"focal_scale", e.focal_scale},
+          {"principal_point_offset_px", {e.principal_point_px[0], e.principal_point_px[1]}},
+          {"k1_error", e.k1},
+          {"k2_error", e.k2},
+          {"time_offset_s", e.time_offset_s},
+          {"camera_written", CameraJson(d.camera_written)},
+          {"files", {{"written", "camera.yml"}, {"truth", kCameraTruthFile}}},
+          {"note",
+           "camera.yml is the camera above with these errors; images are exposed time_offset_s "
+           "after drive.csv's time, at the true pose of that instant"}};
+}
+
+// The realistic survey's error: the draw, its multipath jumps and the frames they touched.
+nlohmann::json SurveyErrorJson(const PlannedDrive& d) {
+  const SurveyErrorDraw& s = d.survey_draw;
+  nlohmann::json j = {
+      {"model", "first-order Gauss-Markov per ENU axis and per attitude angle, 20 Hz grid"},
+      {"sigma_horizontal_m_per_axis", s.sigma_horizontal_m},
+      {"sigma_vertical_m", s.sigma_vertical_m},
+      {"tau_s", s.tau_s},
+      {"heading_sigma_deg", s.heading_sigma_deg},
+      {"pitch_roll_sigma_deg", s.pitch_roll_sigma_deg},
+      {"attitude_tau_s", s.attitude_tau_s},
+      {"seed", s.seed},
+      {"multipath_min_aspect_ratio", d.canyon_min_aspect_ratio},
+      {"truth_file", kSurveyTruthFile},
+      {"multipath_jumps", nlohmann::json::array()}};
+  for (const MultipathJump& m : d.jumps)
+    j["multipath_jumps"].push_back({{"start_s", m.start_s},
+                                    {"hold_s", m.hold_s},
+                                    {"offset_east_north_m", {m.offset_m[0], m.offset_m[1]}}});
+  int frames = 0;
+  for (const SurveyError& e : d.survey_errors) frames += e.multipath;
+  j["multipath_frames"] = frames;
+  return j;
+}
+
 nlohmann::json DriveJson(const PlannedDrive& d) {
   nlohmann::json dj;
   dj["images"] = d.truth.size();
   dj["camera"] = CameraJson(d.camera);
+  if (d.calibration_error_model) dj["calibration_error"] = CalibrationErrorJson(d);
+  if (d.survey_error_model) dj["survey_error"] = SurveyErrorJson(d);
   dj["camera_height_m"] = d.plan.camera_height_m;
   dj["speed_mps"] = d.plan.speed_mps;
   dj["spacing_m"] = d.plan.spacing_m;
@@ -195,10 +248,18 @@ std::string DriveImageName(size_t k) {
 }
 
 Status WriteDriveFiles(const PlannedDrive& d, const EnuFrame& enu, const fs::path& dir) {
-  Status s = SaveCameraModel(d.camera, (dir / "camera.yml").string());
+  Status s = SaveCameraModel(d.camera_written, (dir / "camera.yml").string());
+  if (s.ok() && d.calibration_error_model)
+    s = SaveCameraModel(d.camera, (dir / kCameraTruthFile).string());
   if (!s.ok()) return s;
   const double start = kSurveyStartUnix + d.condition.start_offset_s;
-  s = WriteDriveManifest((dir / "drive.csv").string(), ManifestRows(d, enu, start));
+  s = WriteDriveManifest((dir / "drive.csv").string(),
+                         ManifestRows(d.reported, d.reported_sigma_h_m, enu, start, "camera.yml"));
+  if (s.ok() && d.survey_error_model)
+    s = WriteDriveManifest(
+        (dir / kSurveyTruthFile).string(),
+        ManifestRows(d.exposure, {}, enu, start,
+                     d.calibration_error_model ? kCameraTruthFile : "camera.yml"));
   if (!s.ok() || d.gnss.empty()) return s;
   s = WriteGnssCsv(d, enu, start, dir);
   if (!s.ok()) return s;
@@ -235,13 +296,19 @@ nlohmann::json TownJson(const DemoOptions& o, const Town& town,
       {"frame",
        "ENU tangent at origin (GeographicLib LocalCartesian, WGS84); road surface at z = 0"}};
   j["layout"] = LayoutJson(town);
-  j["survey_pose_noise"] = {
-      {"horizontal_sigma_m_per_axis", 0.02},
-      {"vertical_sigma_m", 0.03},
-      {"heading_sigma_deg", 0.05},
-      {"pitch_roll_sigma_deg", 0.03},
-      {"note",
-       "drive.csv of the survey holds truth plus this noise; images are rendered at truth"}};
+  j["world"] = WorldName(o.world);
+  j["survey_sigma_scale"] = o.survey_sigma_scale;
+  if (o.world == World::kClean)
+    j["survey_pose_noise"] = {
+        {"horizontal_sigma_m_per_axis", 0.02},
+        {"vertical_sigma_m", 0.03},
+        {"heading_sigma_deg", 0.05},
+        {"pitch_roll_sigma_deg", 0.03},
+        {"note",
+         "drive.csv of the survey holds truth plus this noise; images are rendered at truth"}};
+  else
+    j["survey_pose_noise"] = {
+        {"note", "per drive: drives.survey.survey_error; the survey's truth.csv holds the truth"}};
   for (const PlannedDrive& d : drives) j["drives"][d.condition.name] = DriveJson(d);
   return j;
 }

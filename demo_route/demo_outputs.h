@@ -18,8 +18,18 @@ namespace sightfix::demo {
 // "images/000017.jpg": the k-th image of a drive, relative to the drive's folder.
 std::string DriveImageName(size_t k);
 
-// camera.yml and drive.csv (reported poses) in dir; for query drives also gnss.csv and
-// spoofing.csv (the attacks' ground truth, format in gnss_stream.h). IoError on a failed write.
+// Written beside drive.csv in the realistic world, for evaluators only: the indexer and the
+// engine never read them. truth.csv (survey): drive.csv's columns and rows, each row the image's
+// true pose at its true exposure time (timestamp = drive.csv's + the time offset), sigma_h_m 0,
+// camera the true calibration. camera-truth.yml (every drive): the camera the images were
+// rendered with, while camera.yml carries the calibration error.
+inline constexpr char kSurveyTruthFile[] = "truth.csv";
+inline constexpr char kCameraTruthFile[] = "camera-truth.yml";
+
+// camera.yml (the calibration as delivered) and drive.csv (reported poses) in dir; in the
+// realistic world also truth.csv (survey) and camera-truth.yml (above); for query drives also
+// gnss.csv and spoofing.csv (the attacks' ground truth, format in gnss_stream.h). IoError on a
+// failed write.
 Status WriteDriveFiles(const PlannedDrive& d, const EnuFrame& enu,
                        const std::filesystem::path& dir);
 

@@ -45,7 +45,7 @@ struct RenderJob {
 bool RenderImage(const TownScene& scene, const RenderJob& job, const DemoOptions& o,
                  const fs::path& out, std::string* failure) {
   const PlannedDrive& d = *job.drive;
-  const Frame& f = d.truth[job.index];
+  const Frame& f = d.exposure[job.index];
   const CameraPose pose{f.position, EnuFromCamera(f.attitude).t()};
   RenderOptions render;
   render.supersample = o.supersample;
@@ -67,7 +67,7 @@ Result<double> RenderImages(const TownScene& scene, const std::vector<PlannedDri
                             const DemoOptions& o, const fs::path& out) {
   std::vector<RenderJob> jobs;
   for (const PlannedDrive& d : drives)
-    for (size_t k = 0; k < d.truth.size(); ++k) jobs.push_back({&d, k});
+    for (size_t k = 0; k < d.exposure.size(); ++k) jobs.push_back({&d, k});
   const int threads = o.jobs > 0 ? o.jobs : std::max(1u, std::thread::hardware_concurrency());
   std::atomic<size_t> next{0};
   std::atomic<bool> failed{false};
@@ -127,6 +127,8 @@ bool DemoOptions::Validate(std::string* error) const {
     return fail("query spacing must be within [0.5, 50] m");
   if (supersample < 1 || supersample > 4) return fail("--supersample must be 1..4");
   if (jobs < 0) return fail("--jobs must be >= 0");
+  if (!(survey_sigma_scale > 0 && survey_sigma_scale <= 10))
+    return fail("--survey-sigma-scale must be > 0 and <= 10");
   return true;
 }
 

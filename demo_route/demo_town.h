@@ -7,6 +7,7 @@
 #include <string>
 #include <vector>
 
+#include "demo_route/world_nuisances.h"
 #include "indexer/base/status.h"
 
 namespace sightfix::demo {
@@ -24,6 +25,13 @@ struct DemoOptions {
   // tags: position, altitude above sea level, direction, accuracy, time) and survey-gpx/ (JPEGs
   // with EXIF times only, plus track.gpx: the survey's path at 10 Hz).
   bool export_exif = false, export_gpx = false;
+  // Which nuisances of real data the town carries (world_nuisances.h). Clean, the default for
+  // now, is the town every accuracy guard was measured on, byte for byte; realistic becomes the
+  // default once the rest of its nuisances exist.
+  World world = World::kClean;
+  // The survey's drive.csv sigma_h_m is its receiver's honest 1-sigma times this, > 0 and <= 10;
+  // below 1 the receiver is over-optimistic.
+  double survey_sigma_scale = 1.0;
 
   // Names the bad field in *error.
   bool Validate(std::string* error) const;

@@ -15,8 +15,10 @@ namespace {
 using sightfix::demo::DemoOptions;
 using sightfix::demo::DemoSummary;
 
-// The flags, bound to *o, the image size text *size and the export list *exports.
-po::options_description Describe(DemoOptions* o, std::string* size, std::string* exports) {
+// The flags, bound to *o, the image size text *size, the export list *exports and the world
+// name *world.
+po::options_description Describe(DemoOptions* o, std::string* size, std::string* exports,
+                                 std::string* world) {
   po::options_description desc(
       "sightfix-demo-route: generate the demo town (an invented place), its survey drive and three "
       "query drives\n"
@@ -39,7 +41,16 @@ po::options_description Describe(DemoOptions* o, std::string* size, std::string*
                                    "render threads (0 = all cores); output does not depend on it")(
       "export", po::value(exports),
       "also write the survey as survey-exif/ (EXIF-tagged JPEGs) and/or survey-gpx/ (JPEGs + "
-      "track.gpx): exif, gpx or exif,gpx")("json", "print the summary as JSON on stdout");
+      "track.gpx): exif, gpx or exif,gpx")(
+      "world", po::value(world)->default_value(*world),
+      "clean: exact calibrations, a 2 cm survey (the town the accuracy figures were measured "
+      "on); realistic: survey pose error (correlated drift, heading error, multipath jumps in deep "
+      "street canyons; truth in survey/truth.csv), calibration error in every camera.yml (truth "
+      "in camera-truth.yml) and a camera time offset. clean stays the default until realistic "
+      "also has a changed world, traffic, shadows, night and an aliasing district")(
+      "survey-sigma-scale", po::value(&o->survey_sigma_scale)->default_value(1.0),
+      "multiplies the survey's reported sigma_h_m (its receiver's honest 1-sigma); < 1 makes it "
+      "over-optimistic; must be > 0 and <= 10")("json", "print the summary as JSON on stdout");
   return desc;
 }
 
@@ -62,9 +73,9 @@ bool ParseExports(std::string exports, DemoOptions* o) {
 // Fills *o and *json from the command line; an exit code if the program should stop here
 // (help shown: 0; bad flags, reported on stderr: 2).
 std::optional<int> ParseCommandLine(int argc, char** argv, DemoOptions* o, bool* json) {
-  std::string exports;
+  std::string exports, world = sightfix::demo::WorldName(o->world);
   std::string size = "640x480";
-  const po::options_description desc = Describe(o, &size, &exports);
+  const po::options_description desc = Describe(o, &size, &exports, &world);
   po::variables_map vm;
   try {
     po::store(po::parse_command_line(argc, argv, desc), vm);
@@ -86,6 +97,12 @@ std::optional<int> ParseCommandLine(int argc, char** argv, DemoOptions* o, bool*
     std::fprintf(stderr, "sightfix-demo-route: --export takes exif, gpx or exif,gpx\n");
     return 2;
   }
+  const sightfix::Result<sightfix::demo::World> parsed = sightfix::demo::ParseWorld(world);
+  if (!parsed.ok()) {
+    std::fprintf(stderr, "sightfix-demo-route: --%s\n", parsed.status().message().c_str());
+    return 2;
+  }
+  o->world = *parsed;
   *json = vm.count("json") > 0;
   return std::nullopt;
 }
@@ -93,6 +110,7 @@ std::optional<int> ParseCommandLine(int argc, char** argv, DemoOptions* o, bool*
 void PrintJson(const DemoOptions& o, const DemoSummary& s) {
   nlohmann::json j = {{"out", o.out_dir},
                       {"seed", o.seed},
+                      {"world", sightfix::demo::WorldName(o.world)},
                       {"route_length_m", o.route_length_m},
                       {"buildings", s.buildings},
                       {"vehicles", s.vehicles},
@@ -106,8 +124,9 @@ void PrintJson(const DemoOptions& o, const DemoSummary& s) {
 }
 
 void PrintText(const DemoOptions& o, const DemoSummary& s) {
-  std::printf("demo town (seed %llu, route %.0f m) written to %s\n",
-              static_cast<unsigned long long>(o.seed), o.route_length_m, o.out_dir.c_str());
+  std::printf("demo town (seed %llu, route %.0f m, %s world) written to %s\n",
+              static_cast<unsigned long long>(o.seed), o.route_length_m,
+              sightfix::demo::WorldName(o.world), o.out_dir.c_str());
   std::printf("  %d buildings, %d parked vehicles, %d poles, %d trees\n", s.buildings, s.vehicles,
               s.poles, s.trees);
   int total = 0;

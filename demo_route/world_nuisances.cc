@@ -1,0 +1,74 @@
+#include "demo_route/world_nuisances.h"
+
+#include <cmath>
+
+namespace sightfix::demo {
+namespace {
+
+// InvalidArgument "<field> = [lo, hi]: ..." unless 0 <= lo <= hi, both finite, and lo > 0 when
+// positive is set.
+Status CheckRange(const char* field, const Range& r, bool positive = false) {
+  const bool ok = std::isfinite(r.lo) && std::isfinite(r.hi) && r.lo <= r.hi &&
+                  (positive ? r.lo > 0 : r.lo >= 0);
+  if (ok) return Status::Ok();
+  return Status::InvalidArgument(std::string("WorldNuisances.") + field + " = [" +
+                                 std::to_string(r.lo) + ", " + std::to_string(r.hi) +
+                                 "]: must be finite with " + (positive ? "0 < lo" : "0 <= lo") +
+                                 " <= hi");
+}
+
+Status CheckSurvey(const SurveyErrorRanges& s) {
+  for (const Status& st :
+       {CheckRange("survey.sigma_horizontal_m", s.sigma_horizontal_m),
+        CheckRange("survey.sigma_vertical_m", s.sigma_vertical_m),
+        CheckRange("survey.tau_s", s.tau_s, true),
+        CheckRange("survey.heading_sigma_deg", s.heading_sigma_deg),
+        CheckRange("survey.pitch_roll_sigma_deg", s.pitch_roll_sigma_deg),
+        CheckRange("survey.attitude_tau_s", s.attitude_tau_s, true),
+        CheckRange("survey.offset_m", s.offset_m), CheckRange("survey.hold_s", s.hold_s, true),
+        CheckRange("survey.jumps", s.jumps)})
+    if (!st.ok()) return st;
+  if (!(s.min_aspect_ratio > 0 && std::isfinite(s.min_aspect_ratio)))
+    return Status::InvalidArgument("WorldNuisances.survey.min_aspect_ratio must be > 0");
+  return Status::Ok();
+}
+
+Status CheckCalibration(const CalibrationErrorRanges& c) {
+  for (const Status& st :
+       {CheckRange("calibration.focal_error_fraction", c.focal_error_fraction),
+        CheckRange("calibration.principal_point_error_px", c.principal_point_error_px),
+        CheckRange("calibration.k1_error", c.k1_error),
+        CheckRange("calibration.k2_error", c.k2_error),
+        CheckRange("calibration.time_offset_s", c.time_offset_s)})
+    if (!st.ok()) return st;
+  if (c.focal_error_fraction.hi >= 0.5)
+    return Status::InvalidArgument("WorldNuisances.calibration.focal_error_fraction must be < 0.5");
+  return Status::Ok();
+}
+
+}  // namespace
+
+const char* WorldName(World world) { return world == World::kClean ? "clean" : "realistic"; }
+
+Result<World> ParseWorld(const std::string& name) {
+  for (World w : {World::kClean, World::kRealistic})
+    if (name == WorldName(w)) return w;
+  return Status::InvalidArgument("world must be clean or realistic, got '" + name + "'");
+}
+
+Status WorldNuisances::Validate() const {
+  if (!(survey_sigma_scale > 0 && std::isfinite(survey_sigma_scale)))
+    return Status::InvalidArgument("WorldNuisances.survey_sigma_scale = " +
+                                   std::to_string(survey_sigma_scale) + ": must be > 0 and finite");
+  if (Status s = CheckSurvey(survey); !s.ok()) return s;
+  return CheckCalibration(calibration);
+}
+
+WorldNuisances NuisancesForWorld(World world) {
+  WorldNuisances n;
+  n.world = world;
+  n.survey.enabled = n.calibration.enabled = world == World::kRealistic;
+  return n;
+}
+
+}  // namespace sightfix::demo

@@ -1,0 +1,94 @@
+// World presets of the demo town: which nuisances of real data a generated town carries, and the
+// ranges each drive draws its own nuisance parameters from (the draws are recorded in
+// town.json). The clean world has none of them: it is the town the accuracy guards were measured
+// on, byte for byte. The realistic world makes the survey's poses and every drive's calibration
+// as imperfect as real ones; it becomes the default once the rest of its nuisances exist (a
+// changed world between drives, traffic, cast shadows, night, an aliasing district).
+//
+// Ranges marked `common practice` are typical figures of the trade for a vehicle survey with a
+// GNSS-INS and a factory or field calibration, not measurements of any one system
+// (DEVELOPERS.md, "Demo town: decisions", says where each comes from).
+#pragma once
+
+#include <string>
+
+#include "indexer/base/status.h"
+
+namespace sightfix::demo {
+
+enum class World { kClean, kRealistic };
+
+// "clean" or "realistic".
+const char* WorldName(World world);
+// The world named `name` (as WorldName spells it); InvalidArgument naming the choices otherwise.
+Result<World> ParseWorld(const std::string& name);
+
+// A closed interval [lo, hi] that a drive draws one value from, uniformly. lo = hi is a fixed
+// value.
+struct Range {
+  double lo = 0, hi = 0;
+};
+
+// The survey's reported pose against the truth (survey_error.h has the model).
+struct SurveyErrorRanges {
+  // Off: the survey's drive.csv is the truth plus 2 cm white noise (the clean world's survey).
+  bool enabled = false;
+  // Stationary 1-sigma of the east and of the north position error, metres: 0.1-0.3 for an
+  // RTK-less GNSS-INS in town (common practice).
+  Range sigma_horizontal_m{0.1, 0.3};
+  // Stationary 1-sigma of the up error, metres: 0.2-0.5, about twice the horizontal (GNSS
+  // geometry, common practice).
+  Range sigma_vertical_m{0.2, 0.5};
+  // Correlation time of the position error, seconds: 30-120 (common practice).
+  Range tau_s{30, 120};
+  // Stationary 1-sigma of the heading error, degrees: 0.1-0.2 (a mid-grade INS in motion,
+  // common practice), and of pitch and of roll, degrees: 0.02-0.05 (gravity keeps them small).
+  Range heading_sigma_deg{0.1, 0.2};
+  Range pitch_roll_sigma_deg{0.02, 0.05};
+  // Correlation time of the attitude error, seconds.
+  Range attitude_tau_s{30, 120};
+  // Multipath jumps: where the street is a deep urban canyon (urban_canyon.h: lower facade over
+  // facade-to-facade width >= min_aspect_ratio), an extra horizontal offset of offset_m metres in
+  // a random direction, held for hold_s seconds (while the canyon lasts), jumps times a drive
+  // (whole numbers; fewer where the drive has too little canyon).
+  double min_aspect_ratio = 0.85;
+  Range offset_m{0.5, 2.0};
+  Range hold_s{2, 6};
+  Range jumps{2, 4};
+};
+
+// The calibration written in camera.yml against the camera rendered with.
+struct CalibrationErrorRanges {
+  bool enabled = false;
+  // |fx'/fx - 1| = |fy'/fy - 1|, the same factor for both, either sign: 0.3-1 % (common
+  // practice for a field calibration).
+  Range focal_error_fraction{0.003, 0.01};
+  // Principal point offset, pixels, in a uniformly random direction: 2-4 (common practice).
+  Range principal_point_error_px{2, 4};
+  // |k1' - k1|, either sign; and |k2' - k2|, either sign, where the true lens has a k2 term
+  // (non-zero k2). Dimensionless: at the corner of a 65-degree lens (normalised radius 0.8)
+  // 0.02 in k1 moves a pixel by about 5 px (from the radial model, r^3 k1 f).
+  Range k1_error{0.005, 0.02};
+  Range k2_error{0.002, 0.01};
+  // The image is exposed offset seconds after the time drive.csv gives it: 5-30 ms, a camera
+  // triggered without hardware time sync (common practice).
+  Range time_offset_s{0.005, 0.030};
+};
+
+struct WorldNuisances {
+  World world = World::kClean;
+  SurveyErrorRanges survey;
+  CalibrationErrorRanges calibration;
+  // The survey's drive.csv sigma_h_m is the receiver's honest 1-sigma times this factor; < 1 is
+  // an over-optimistic receiver. > 0 (DemoOptions::survey_sigma_scale fills it).
+  double survey_sigma_scale = 1.0;
+
+  // InvalidArgument naming the field: a range with lo > hi, a negative or non-finite bound, a
+  // time offset or correlation time <= 0 where enabled, survey_sigma_scale <= 0.
+  Status Validate() const;
+};
+
+// The nuisances of a preset, with every range at its documented default.
+WorldNuisances NuisancesForWorld(World world);
+
+}  // namespace sightfix::demo
