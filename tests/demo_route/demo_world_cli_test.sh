@@ -1,0 +1,70 @@
+#!/usr/bin/env bash
+# The demo's world options from the command line: the README's realistic example runs and writes
+# what the README says (truth.csv and camera-truth.yml beside the survey's files, the preset and
+# the scale in town.json, the survey's sigma_h_m at half its receiver's honest figure away from
+# multipath jumps), --help names both options, and bad values are refused with exit 2 and a
+# message naming the option.
+# Usage: demo_world_cli_test.sh SOURCE_DIR BUILD_DIR
+set -u
+src="$1"
+build="$2"
+. "$src/tests/lib/checks.sh"
+demo="$build/demo_route/sightfix-demo-route"
+
+expect() {  # expect NAME EXPECTED_EXIT PATTERN -- COMMAND...
+  local name="$1" want="$2" pattern="$3"
+  shift 4
+  local out rc
+  out="$("$@" 2>&1)"
+  rc=$?
+  if [ "$rc" -eq "$want" ] && printf '%s' "$out" | grep -q -- "$pattern"; then
+    ok "$name"
+  else
+    bad "$name (exit $rc, want $want; output: $(printf '%s' "$out" | head -3))"
+  fi
+}
+
+expect "--help names --world" 0 "clean stays the default" -- "$demo" --help
+expect "--help names --survey-sigma-scale" 0 "survey-sigma-scale" -- "$demo" --help
+expect "unknown world refused" 2 "world must be clean or realistic, got 'muddy'" -- \
+  "$demo" --out "$tmp/x" --world muddy
+expect "zero sigma scale refused" 2 "survey-sigma-scale must be > 0" -- \
+  "$demo" --out "$tmp/x" --survey-sigma-scale 0
+expect "negative sigma scale refused" 2 "survey-sigma-scale must be > 0" -- \
+  "$demo" --out "$tmp/x" --survey-sigma-scale -1
+expect "huge sigma scale refused" 2 "survey-sigma-scale must be > 0 and <= 10" -- \
+  "$demo" --out "$tmp/x" --survey-sigma-scale 11
+
+# The README's example: the line with --survey-sigma-scale 0.5 and its continuation, run with
+# this build's program and a temporary output folder.
+example="$(grep -A1 -- '--world realistic --survey-sigma-scale 0.5' "$src/README.md" |
+  sed 's/\\$//' | tr '\n' ' ')"
+example="${example//build\/demo_route\/sightfix-demo-route/$demo}"
+example="${example//\/tmp\/real-town/$tmp/real-town}"
+case "$example" in
+  "$demo "*"--out $tmp/real-town"*) ok "README example found" ;;
+  *) bad "README example found (got '$example')" ;;
+esac
+if eval "$example" >"$tmp/example.log" 2>&1; then ok "README example runs"; else
+  bad "README example runs ($(tail -3 "$tmp/example.log"))"
+fi
+for f in survey/truth.csv survey/camera-truth.yml query-day/camera-truth.yml; do
+  if [ -s "$tmp/real-town/$f" ]; then ok "writes $f"; else bad "writes $f"; fi
+done
+# town.json records the preset and the scale; every drive.csv row outside a jump reports half
+# the drawn sigma (4 decimals in the file), rows in a jump more.
+if "$py" - "$tmp/real-town" <<'PY'; then ok "sigma_h_m is half the honest sigma"; else bad "sigma_h_m is half the honest sigma"; fi
+import csv, json, sys
+out = sys.argv[1]
+town = json.load(open(out + "/town.json"))
+assert town["world"] == "realistic" and town["survey_sigma_scale"] == 0.5, town["world"]
+error = town["drives"]["survey"]["survey_error"]
+half = round(0.5 * error["sigma_horizontal_m_per_axis"], 4)
+rows = list(csv.DictReader(open(out + "/survey/drive.csv")))
+plain = [r for r in rows if abs(float(r["sigma_h_m"]) - half) < 1e-9]
+grown = [r for r in rows if float(r["sigma_h_m"]) > half + 1e-9]
+assert len(plain) + len(grown) == len(rows), "a row below half the honest sigma"
+assert len(grown) == error["multipath_frames"], (len(grown), error["multipath_frames"])
+print(f"{len(plain)} rows at {half} m, {len(grown)} in multipath jumps")
+PY
+finish
