@@ -193,6 +193,7 @@ void PrintReplaySummary(const RouteReport& r, const std::string& out) {
   std::printf("%s%d queries, %d fixes (availability %.3f; refined %d, coarse %d, none %d)\n",
               r.partial ? "PARTIAL (interrupted): " : "", s.queries, s.fixes, s.availability,
               s.refined, s.coarse, s.none);
+  std::printf("funnel, where queries stopped: %s\n", FunnelLine(s.funnel).c_str());
   std::printf("recall@1/5/10 within 25 m: %.3f / %.3f / %.3f\n", s.recall_at_1, s.recall_at_5,
               s.recall_at_10);
   std::printf(

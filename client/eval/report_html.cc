@@ -1,6 +1,7 @@
 // report.html: one self-contained page with the summary table, inline SVG plots and the safety
 // caution.
 #include <array>
+#include <cmath>
 #include <filesystem>
 #include <string>
 #include <vector>
@@ -59,6 +60,22 @@ std::string SpoofingRows(const SpoofingScore& sc) {
          Row("spoofing false alarms", std::to_string(sc.false_alarms));
 }
 
+// The failure funnel: per stage the queries, their share with its interval and a bar.
+std::string FunnelTable(const FunnelCounts& f) {
+  std::string t =
+      "<table class=\"summary funnel\"><tr><th>stopped at</th><th>queries</th><th>share "
+      "[95 % interval]</th><th></th></tr>\n";
+  for (int k = 0; k < kFunnelStageCount; ++k) {
+    const int bar_px = static_cast<int>(std::lround(200 * f.share[k]));
+    t += "<tr><th>" + std::string(FunnelStageName(static_cast<FunnelStage>(k))) + "</th><td>" +
+         std::to_string(f.count[k]) + "</td><td>" + FormatNumber("%.1f %%", 100 * f.share[k]) +
+         EscapeXml(IntervalText(f.share_ci95[k], 100, "%.1f")) +
+         "</td><td><div class=\"bar\" style=\"width:" + std::to_string(bar_px) +
+         "px\"></div></td></tr>\n";
+  }
+  return t + "</table>\n";
+}
+
 std::string SummaryTable(const RouteReport& r) {
   const RouteSummary& s = r.summary;
   std::string t = "<table class=\"summary\"><tr><th>metric</th><th>value</th><th>note</th></tr>\n";
@@ -87,6 +104,7 @@ h1 { font-size: 22px; margin-bottom: 4px; }
 .partial { border: 2px solid #c9a227; background: #fbf6e6; padding: 8px 14px; }
 table.summary { border-collapse: collapse; font-size: 13px; margin: 10px 0 20px; }
 table.summary th, table.summary td { border: 1px solid #ccc; padding: 4px 8px; text-align: left; }
+.funnel .bar { height: 10px; background: #3b6ea5; }
 svg.plot { display: block; margin: 10px 0 22px; font-family: sans-serif; }
 .caption { font-size: 12px; color: #555; margin-top: -16px; margin-bottom: 18px; }
 )";
@@ -107,6 +125,10 @@ std::string ReportHtml(const RouteReport& r) {
   if (r.partial)
     h += "<div class=\"partial\">Partial replay: interrupted before every query ran.</div>\n";
   h += SummaryTable(r);
+  h += "<h2>Where queries stopped</h2>\n" + FunnelTable(r.summary.funnel);
+  h += "<div class=\"caption\">retrieval: no candidate within 25 m of the truth among those "
+       "returned (a query off the mapped streets lands here too); verification: a candidate "
+       "within 25 m, none verified; pose: verified, not refined; failed_call: no answer.</div>\n";
   if (qs.empty()) return h + "<p>No query ran.</p></body></html>\n";
   h += RouteMapPlot(r, qs);
   h += "<div class=\"caption\">Dots: true positions of the queries, coloured by the error of "

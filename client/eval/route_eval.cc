@@ -8,6 +8,7 @@
 #include <cstdio>
 #include <filesystem>
 #include <fstream>
+#include <functional>
 #include <map>
 #include <numeric>
 #include <opencv2/imgcodecs.hpp>
@@ -120,18 +121,34 @@ std::optional<Interval> PercentileCi95(const std::vector<std::vector<double>>& b
   return ci.ok() ? std::optional<Interval>(*ci) : std::nullopt;
 }
 
-// The errors of `fixes` (pointers into results, in its order), one block per run of
+// value(q) of each of `fixes` (pointers into results, in its order), one block per run of
 // kIntervalBlockQueries consecutive entries of results that holds a fix.
-std::vector<std::vector<double>> ErrorBlocks(const std::vector<QueryResult>& results,
-                                             const std::vector<const QueryResult*>& fixes) {
+std::vector<std::vector<double>> FixBlocks(const std::vector<QueryResult>& results,
+                                           const std::vector<const QueryResult*>& fixes,
+                                           const std::function<double(const QueryResult&)>& value) {
   std::vector<std::vector<double>> blocks;
   std::ptrdiff_t current = -1;
   for (const QueryResult* q : fixes) {
     const std::ptrdiff_t block = (q - results.data()) / kIntervalBlockQueries;
     if (block != current) blocks.emplace_back(), current = block;
-    blocks.back().push_back(q->error_m);
+    blocks.back().push_back(value(*q));
   }
   return blocks;
+}
+
+// The medians of |along| and |cross| of `fixes` with their block bootstrap intervals.
+void AlongCrossStats(const std::vector<QueryResult>& results,
+                     const std::vector<const QueryResult*>& fixes, ErrorStats* s) {
+  const auto along = [](const QueryResult& q) { return std::fabs(q.along_track_m); };
+  const auto cross = [](const QueryResult& q) { return std::fabs(q.cross_track_m); };
+  const std::vector<std::vector<double>> along_blocks = FixBlocks(results, fixes, along);
+  const std::vector<std::vector<double>> cross_blocks = FixBlocks(results, fixes, cross);
+  std::vector<double> all_along, all_cross;
+  for (const QueryResult* q : fixes) all_along.push_back(along(*q)), all_cross.push_back(cross(*q));
+  s->median_abs_along_m = Percentile(all_along, 0.5);
+  s->median_abs_cross_m = Percentile(all_cross, 0.5);
+  s->median_abs_along_m_ci95 = PercentileCi95(along_blocks, 0.5);
+  s->median_abs_cross_m_ci95 = PercentileCi95(cross_blocks, 0.5);
 }
 
 // REQUIRES: fixes point into results, in its order.
@@ -156,10 +173,12 @@ ErrorStats Stats(const std::vector<QueryResult>& results,
   s.median_heading_deg = Percentile(headings, 0.5);
   s.radius95_coverage = static_cast<double>(covered) / s.n;
   s.nees_mean = with_nees ? nees / with_nees : 0;
-  const std::vector<std::vector<double>> blocks = ErrorBlocks(results, fixes);
+  const std::vector<std::vector<double>> blocks =
+      FixBlocks(results, fixes, [](const QueryResult& q) { return q.error_m; });
   s.median_m_ci95 = PercentileCi95(blocks, 0.5);
   s.p95_m_ci95 = PercentileCi95(blocks, 0.95);
   s.radius95_coverage_ci95 = RateCi95(covered, s.n);
+  AlongCrossStats(results, fixes, &s);
   return s;
 }
 
@@ -177,10 +196,41 @@ void ScoreQuery(QueryResult* q) {
       GeodesicBetween(q->truth.position.lat_deg, q->truth.position.lon_deg, f.lat_deg, f.lon_deg);
   q->error_m = g.distance_m;
   q->heading_error_deg = std::fabs(WrapDeg180(f.heading_deg - q->truth.attitude.heading_deg));
-  if (cv::determinant(f.covariance_en) <= 0) return;
   const double az = g.azimuth1_deg * M_PI / 180;  // error vector east/north
   const cv::Vec2d e(g.distance_m * std::sin(az), g.distance_m * std::cos(az));
+  // Unit vectors of the truth's heading (clockwise from north): ahead (sin h, cos h) and to its
+  // right (cos h, -sin h).
+  const double h = q->truth.attitude.heading_deg * M_PI / 180;
+  q->along_track_m = e[0] * std::sin(h) + e[1] * std::cos(h);
+  q->cross_track_m = e[0] * std::cos(h) - e[1] * std::sin(h);
+  if (cv::determinant(f.covariance_en) <= 0) return;
   q->nees = NormalizedInnovationSquared(e, f.covariance_en);
+}
+
+const char* FunnelStageName(FunnelStage stage) {
+  switch (stage) {
+    case FunnelStage::kRetrieval:
+      return "retrieval";
+    case FunnelStage::kVerification:
+      return "verification";
+    case FunnelStage::kPose:
+      return "pose";
+    case FunnelStage::kRefined:
+      return "refined";
+    case FunnelStage::kFailedCall:
+      return "failed_call";
+  }
+  return "?";
+}
+
+FunnelStage StageOf(const QueryResult& q) {
+  if (!q.error.empty()) return FunnelStage::kFailedCall;
+  if (q.fix.quality == FixQuality::kRefined) return FunnelStage::kRefined;
+  if (q.first_hit_rank < 1) return FunnelStage::kRetrieval;
+  const std::vector<ReferenceUse>& refs = q.fix.references;
+  if (std::none_of(refs.begin(), refs.end(), [](const ReferenceUse& u) { return u.verified; }))
+    return FunnelStage::kVerification;
+  return FunnelStage::kPose;
 }
 
 LocateFn InProcess(const Localizer& localizer) {
@@ -240,6 +290,7 @@ RouteSummary Summarize(const std::vector<QueryResult>& results) {
   for (const QueryResult& q : results) {
     if (!q.ran) continue;
     ++s.queries;
+    ++s.funnel.count[static_cast<int>(StageOf(q))];
     latency.push_back(q.latency_ms);
     if (!q.error.empty()) ++s.failed_calls;
     r1 += q.first_hit_rank >= 1 && q.first_hit_rank <= 1;
@@ -269,6 +320,10 @@ RouteSummary Summarize(const std::vector<QueryResult>& results) {
   s.refined_share_ci95 = RateCi95(s.refined, s.queries);
   s.availability_ci95 = RateCi95(s.fixes, s.queries);
   s.recall_at_5_ci95 = RateCi95(r5, s.queries);
+  for (int k = 0; k < kFunnelStageCount; ++k) {
+    s.funnel.share[k] = s.funnel.count[k] / n;
+    s.funnel.share_ci95[k] = RateCi95(s.funnel.count[k], s.queries);
+  }
   s.all = Stats(results, fixes);
   const ErrorStats r = Stats(results, refined);
   s.median_error_m = r.median_m, s.p90_error_m = r.p90_m, s.p95_error_m = r.p95_m;
@@ -276,6 +331,10 @@ RouteSummary Summarize(const std::vector<QueryResult>& results) {
   s.radius95_coverage = r.radius95_coverage, s.nees_mean = r.nees_mean;
   s.median_error_m_ci95 = r.median_m_ci95, s.p95_error_m_ci95 = r.p95_m_ci95;
   s.radius95_coverage_ci95 = r.radius95_coverage_ci95;
+  s.median_abs_along_track_m = r.median_abs_along_m;
+  s.median_abs_cross_track_m = r.median_abs_cross_m;
+  s.median_abs_along_track_m_ci95 = r.median_abs_along_m_ci95;
+  s.median_abs_cross_track_m_ci95 = r.median_abs_cross_m_ci95;
   s.within_0_25m_2deg = in_bin[0] / n, s.within_0_5m_5deg = in_bin[1] / n;
   s.within_5m_10deg = in_bin[2] / n;
   s.latency_ms_p50 = Percentile(latency, 0.5);
@@ -295,16 +354,20 @@ std::array<double, 3> PoseBinShares(const RouteSummary& s) {
   return {s.within_0_25m_2deg, s.within_0_5m_5deg, s.within_5m_10deg};
 }
 
-namespace {
-
-// " [lo, hi]" with both ends times scale in format (e.g. "%.1f"); " [-]" for no interval.
-std::string Bracketed(const std::optional<Interval>& ci, double scale, const char* format) {
+std::string IntervalText(const std::optional<Interval>& ci, double scale, const char* format) {
   if (!ci) return " [-]";
   return " [" + FormatNumber(format, scale * ci->low) + ", " +
          FormatNumber(format, scale * ci->high) + "]";
 }
 
-}  // namespace
+std::string FunnelLine(const FunnelCounts& f) {
+  std::string out;
+  for (int k = 0; k < kFunnelStageCount; ++k)
+    out += std::string(k ? ", " : "") + FunnelStageName(static_cast<FunnelStage>(k)) + " " +
+           std::to_string(f.count[k]) + " (" + FormatNumber("%.1f", 100 * f.share[k]) + " %" +
+           IntervalText(f.share_ci95[k], 100, "%.1f") + ")";
+  return out;
+}
 
 std::string SummaryLine(const RouteSummary& s) {
   const std::array<double, 3> bins = PoseBinShares(s);
@@ -315,15 +378,16 @@ std::string SummaryLine(const RouteSummary& s) {
       "%.3f m%s, p90 %.3f m, p95 %.3f m%s, max %.3f m; wrong refined %d; heading median %.2f "
       "deg; recall@1/5 %.3f/%.3f%s; pose %s %.3f, %s %.3f, %s %.3f; radius95 coverage %.3f%s, "
       "NEES %.2f; latency p50 %.0f ms, p95 %.0f ms; [lo, hi]: 95 %% intervals",
-      s.queries, 100 * s.refined_share, Bracketed(s.refined_share_ci95, 100, "%.1f").c_str(),
-      s.coarse, s.none, 100 * s.availability, Bracketed(s.availability_ci95, 100, "%.1f").c_str(),
-      s.median_error_m, Bracketed(s.median_error_m_ci95, 1, "%.3f").c_str(), s.p90_error_m,
-      s.p95_error_m, Bracketed(s.p95_error_m_ci95, 1, "%.3f").c_str(), s.max_error_m,
-      s.wrong_refined, s.median_heading_error_deg, s.recall_at_1, s.recall_at_5,
-      Bracketed(s.recall_at_5_ci95, 1, "%.3f").c_str(), PoseBinLabel(kPoseBins[0]).c_str(), bins[0],
-      PoseBinLabel(kPoseBins[1]).c_str(), bins[1], PoseBinLabel(kPoseBins[2]).c_str(), bins[2],
-      s.radius95_coverage, Bracketed(s.radius95_coverage_ci95, 1, "%.3f").c_str(), s.nees_mean,
-      s.latency_ms_p50, s.latency_ms_p95);
+      s.queries, 100 * s.refined_share, IntervalText(s.refined_share_ci95, 100, "%.1f").c_str(),
+      s.coarse, s.none, 100 * s.availability,
+      IntervalText(s.availability_ci95, 100, "%.1f").c_str(), s.median_error_m,
+      IntervalText(s.median_error_m_ci95, 1, "%.3f").c_str(), s.p90_error_m, s.p95_error_m,
+      IntervalText(s.p95_error_m_ci95, 1, "%.3f").c_str(), s.max_error_m, s.wrong_refined,
+      s.median_heading_error_deg, s.recall_at_1, s.recall_at_5,
+      IntervalText(s.recall_at_5_ci95, 1, "%.3f").c_str(), PoseBinLabel(kPoseBins[0]).c_str(),
+      bins[0], PoseBinLabel(kPoseBins[1]).c_str(), bins[1], PoseBinLabel(kPoseBins[2]).c_str(),
+      bins[2], s.radius95_coverage, IntervalText(s.radius95_coverage_ci95, 1, "%.3f").c_str(),
+      s.nees_mean, s.latency_ms_p50, s.latency_ms_p95);
   return buf;
 }
 

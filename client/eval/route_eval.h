@@ -6,7 +6,9 @@
 //  - recall@N within 25 m: a query counts when one of its N best retrieval candidates lies
 //    within 25 m of the truth (Arandjelovic et al., NetVLAD, CVPR 2016; Torii et al. 2013);
 //  - a fix is an answer with a position (refined or coarse); availability = fixes / queries;
-//  - horizontal error median, p90, p95, max (nearest-rank percentiles), heading error, radius95
+//  - horizontal error median, p90, p95, max (nearest-rank percentiles), the medians of its
+//    along-track and cross-track parts' magnitudes (the truth's heading defines along), heading
+//    error, radius95
 //    coverage (share with the truth inside radius95_m) and NEES (mean of e^T S^-1 e with the
 //    reported 2x2 covariance S; chi-square with 2 dof when calibrated, so about 2), each over
 //    all fixes (`all`) and over refined fixes only (`refined_only`);
@@ -18,8 +20,11 @@
 //    intervals for refined share, availability, recall@5 and radius95 coverage, reading the
 //    queries (fixes) as independent trials, which neighbouring frames are not, so these are
 //    optimistic (too narrow); block bootstrap percentile intervals (B = 2000, seed 1) for the
-//    median and p95 error, a block being the fixes among a run of 10 consecutive queries in
-//    the results' order (drive.csv's), so a drive of fewer than 10 queries gets a zero-width one.
+//    median and p95 error and the median |along| and |cross|, a block being the fixes among a run
+//    of 10 consecutive queries in the results' order (drive.csv's), so a drive of fewer than 10
+//    queries gets a zero-width one;
+//  - failure funnel: the stage where each query stopped (FunnelStage, StageOf), counts and shares
+//    of all queries with Wilson intervals.
 // Thread safety: RunDrive runs `jobs` threads of its own over the LocateFn, which must be
 // thread-safe (Localizer::Locate and Client::Locate are).
 #pragma once
@@ -83,9 +88,38 @@ struct QueryResult {
   bool retried_without_prior = false;  // gnss mode: the answer is the retry's
   double error_m = -1;                 // horizontal, when a fix came back
   double heading_error_deg = -1;
+  // The horizontal error split along the truth's heading (drive.csv heading_deg) when a fix came
+  // back: along_track_m > 0 ahead of the truth in that direction, cross_track_m > 0 to its right
+  // (metres, local east/north plane; along^2 + cross^2 = error_m^2).
+  double along_track_m = 0, cross_track_m = 0;
   double nees = -1;         // fixes with a covariance
   int first_hit_rank = -1;  // rank (1-based) of the first candidate within 25 m, -1 none
   std::string error;        // the localizer refused the request or the call failed
+};
+
+// Where a query stopped, in the engine's order (candidates, verification, pose). The stages
+// read only what the fix reports, so a query whose truth lies off the mapped streets counts as a
+// retrieval failure: the evaluator does not know the map's coverage, and off-map is not a stage.
+enum class FunnelStage {
+  kRetrieval,     // no retrieval candidate within 25 m of the truth among those returned
+  kVerification,  // a candidate within 25 m, but no candidate verified
+  kPose,          // a candidate verified, but the fix is not refined (coarse or none)
+  kRefined,       // a refined fix (whatever its candidates)
+  kFailedCall,    // the call failed or was refused (QueryResult::error): no answer to read
+};
+inline constexpr int kFunnelStageCount = 5;
+// "retrieval", "verification", "pose", "refined", "failed_call": fixes.csv's `stage` and the
+// keys of summary.json's `funnel`.
+const char* FunnelStageName(FunnelStage stage);
+// The stage of a query that ran, from q.error, q.fix (quality, references' verified flags) and
+// q.first_hit_rank (ScoreQuery). Checked in this order: failed call, refined, retrieval,
+// verification, pose.
+FunnelStage StageOf(const QueryResult& q);
+
+struct FunnelCounts {
+  std::array<int, kFunnelStageCount> count{};     // queries per stage, by FunnelStage's value
+  std::array<double, kFunnelStageCount> share{};  // count / queries
+  std::array<std::optional<Interval>, kFunnelStageCount> share_ci95;  // Wilson
 };
 
 struct ErrorStats {
@@ -93,8 +127,10 @@ struct ErrorStats {
   double median_m = 0, p90_m = 0, p95_m = 0, max_m = 0;
   double median_heading_deg = 0;
   double radius95_coverage = 0, nees_mean = 0;
-  // 95 % intervals: median and p95 by block bootstrap, radius95 coverage by Wilson.
+  double median_abs_along_m = 0, median_abs_cross_m = 0;  // medians of |along|, |cross|
+  // 95 % intervals: medians and p95 by block bootstrap, radius95 coverage by Wilson.
   std::optional<Interval> median_m_ci95, p95_m_ci95, radius95_coverage_ci95;
+  std::optional<Interval> median_abs_along_m_ci95, median_abs_cross_m_ci95;
 };
 
 struct RouteSummary {
@@ -106,12 +142,15 @@ struct RouteSummary {
   double median_error_m = 0, p90_error_m = 0, p95_error_m = 0, max_error_m = 0;
   double median_heading_error_deg = 0;
   double radius95_coverage = 0, nees_mean = 0;
+  double median_abs_along_track_m = 0, median_abs_cross_track_m = 0;
   int wrong_refined = 0;
   double within_0_25m_2deg = 0, within_0_5m_5deg = 0, within_5m_10deg = 0;
   double latency_ms_p50 = 0, latency_ms_p95 = 0, latency_ms_p99 = 0;
   // 95 % intervals of the rates (Wilson) and of the refined fixes' figures (as ErrorStats').
   std::optional<Interval> refined_share_ci95, availability_ci95, recall_at_5_ci95;
   std::optional<Interval> median_error_m_ci95, p95_error_m_ci95, radius95_coverage_ci95;
+  std::optional<Interval> median_abs_along_track_m_ci95, median_abs_cross_track_m_ci95;
+  FunnelCounts funnel;  // every query that ran, in exactly one stage
 };
 
 // The three pose bins of Sattler et al. (CVPR 2018) under names of our own, finest first: a
@@ -146,6 +185,11 @@ RouteSummary Summarize(const std::vector<QueryResult>& results);
 // medium (0.5 m, 5 deg) X, rough (5 m, 10 deg) X; ...; [lo, hi]: 95 % intervals", an interval
 // "[-]" when its figure has no data.
 std::string SummaryLine(const RouteSummary& s);
+// " [lo, hi]" with both ends times `scale` printed with `format` (one conversion for a double,
+// e.g. "%.1f"); " [-]" when ci is nullopt.
+std::string IntervalText(const std::optional<Interval>& ci, double scale, const char* format);
+// "retrieval N (X % [lo, hi]), verification ..., pose ..., refined ..., failed_call N (...)".
+std::string FunnelLine(const FunnelCounts& f);
 
 // The spoofing monitor over a replayed drive: each refined fix against the GNSS fix of its
 // time, in time order; scored against the true spoofed spans.

@@ -74,9 +74,24 @@ nlohmann::json RefinedOnlyJson(const RouteSummary& s) {
           {"median_heading_error_deg", s.median_heading_error_deg},
           {"radius95_coverage", s.radius95_coverage},
           {"nees_mean", s.nees_mean},
+          {"median_abs_along_track_m", s.median_abs_along_track_m},
+          {"median_abs_cross_track_m", s.median_abs_cross_track_m},
+          {"median_abs_along_track_m_ci95", IntervalJson(s.median_abs_along_track_m_ci95)},
+          {"median_abs_cross_track_m_ci95", IntervalJson(s.median_abs_cross_track_m_ci95)},
           {"median_error_m_ci95", IntervalJson(s.median_error_m_ci95)},
           {"p95_error_m_ci95", IntervalJson(s.p95_error_m_ci95)},
           {"radius95_coverage_ci95", IntervalJson(s.radius95_coverage_ci95)}};
+}
+
+// Per funnel stage (FunnelStageName): queries, share of queries and its Wilson interval.
+nlohmann::json FunnelJson(const FunnelCounts& f) {
+  nlohmann::json j = nlohmann::json::object();
+  for (int k = 0; k < kFunnelStageCount; ++k)
+    j[FunnelStageName(static_cast<FunnelStage>(k))] = {
+        {"queries", f.count[k]},
+        {"share", f.share[k]},
+        {"share_ci95", IntervalJson(f.share_ci95[k])}};
+  return j;
 }
 
 // The 95 % intervals of the top-level figures, under each figure's key + "_ci95".
@@ -87,6 +102,8 @@ void AddIntervals(const RouteSummary& s, nlohmann::json* j) {
   (*j)["median_error_m_ci95"] = IntervalJson(s.all.median_m_ci95);
   (*j)["p95_error_m_ci95"] = IntervalJson(s.all.p95_m_ci95);
   (*j)["radius95_coverage_ci95"] = IntervalJson(s.all.radius95_coverage_ci95);
+  (*j)["median_abs_along_track_m_ci95"] = IntervalJson(s.all.median_abs_along_m_ci95);
+  (*j)["median_abs_cross_track_m_ci95"] = IntervalJson(s.all.median_abs_cross_m_ci95);
 }
 
 }  // namespace
@@ -108,10 +125,13 @@ nlohmann::json SummaryJson(const RouteReport& r) {
                       {"p95_error_m", s.all.p95_m},
                       {"max_error_m", s.all.max_m},
                       {"wrong_refined", s.wrong_refined},
+                      {"median_abs_along_track_m", s.all.median_abs_along_m},
+                      {"median_abs_cross_track_m", s.all.median_abs_cross_m},
                       {"median_heading_error_deg", s.all.median_heading_deg},
                       {"radius95_coverage", s.all.radius95_coverage},
                       {"nees_mean", s.all.nees_mean},
                       {"refined_only", RefinedOnlyJson(s)},
+                      {"funnel", FunnelJson(s.funnel)},
                       {"latency_ms_p50", s.latency_ms_p50},
                       {"latency_ms_p95", s.latency_ms_p95},
                       {"latency_ms_p99", s.latency_ms_p99},
@@ -134,7 +154,7 @@ std::string FixesCsv(const RouteReport& r) {
   out << "image,timestamp,true_lat,true_lon,true_heading_deg,quality,method,lat,lon,heading_deg,"
          "error_m,heading_error_deg,radius95_m,nees,references,verified_references,"
          "first_hit_rank,pnp_inliers,prior_lat,prior_lon,prior_radius_m,outside_prior,"
-         "retried_without_prior,spoofed,latency_ms,reason\n";
+         "retried_without_prior,spoofed,latency_ms,along_track_m,cross_track_m,stage,reason\n";
   char buf[1024];
   for (const QueryResult* q : InTimeOrder(r)) {
     const Fix& f = q->fix;
@@ -146,7 +166,8 @@ std::string FixesCsv(const RouteReport& r) {
     std::replace(reason.begin(), reason.end(), '\n', ' ');
     std::snprintf(
         buf, sizeof(buf),
-        "%s,%s,%.9f,%.9f,%.2f,%s,%s,%s,%s,%s,%s,%s,%s,%s,%zu,%d,%d,%d,%s,%s,%s,%d,%d,%d,%.1f,%s\n",
+        "%s,%s,%.9f,%.9f,%.2f,%s,%s,%s,%s,%s,%s,%s,%s,%s,%zu,%d,%d,%d,%s,%s,%s,%d,%d,%d,%.1f,%s,"
+        "%s,%s,%s\n",
         q->truth.image.c_str(), FormatIsoUtc(q->truth.timestamp_s).c_str(),
         q->truth.position.lat_deg, q->truth.position.lon_deg, q->truth.attitude.heading_deg,
         q->error.empty() ? FixQualityName(f.quality) : "error", f.method.c_str(),
@@ -162,6 +183,8 @@ std::string FixesCsv(const RouteReport& r) {
         q->prior ? FormatNumber("%.9f", q->prior->lon_deg).c_str() : "",
         q->prior ? FormatNumber("%.2f", q->prior->radius_m).c_str() : "", f.outside_prior ? 1 : 0,
         q->retried_without_prior ? 1 : 0, SpoofedAt(r, q->truth.timestamp_s) ? 1 : 0, q->latency_ms,
+        has_fix ? FormatNumber("%.4f", q->along_track_m).c_str() : "",
+        has_fix ? FormatNumber("%.4f", q->cross_track_m).c_str() : "", FunnelStageName(StageOf(*q)),
         reason.c_str());
     out << buf;
   }

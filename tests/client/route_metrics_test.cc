@@ -3,8 +3,13 @@
 // by hand in the comments from the table of six queries.
 #include <gtest/gtest.h>
 
+#include <algorithm>
+#include <cmath>
 #include <map>
 #include <optional>
+#include <sstream>
+#include <string>
+#include <vector>
 
 #include "client/eval/interval_stats.h"
 #include "client/eval/route_eval.h"
@@ -303,6 +308,176 @@ TEST(RouteMetricsTest, ErrorIntervalsResampleRunsOfTenQueries) {
     const std::optional<Interval>& got = q == 0.5 ? s.median_error_m_ci95 : s.p95_error_m_ci95;
     ExpectInterval(got, expected->low, expected->high, 0);
     EXPECT_LT(got->low, got->high);  // three blocks that differ: a real interval
+  }
+}
+
+// The cells of column `name` of a CSV text without quoting, one per row after the header.
+std::vector<std::string> CsvColumn(const std::string& csv, const std::string& name) {
+  std::istringstream in(csv);
+  std::string line;
+  std::vector<std::vector<std::string>> rows;
+  while (std::getline(in, line)) {
+    rows.emplace_back();
+    std::istringstream cells(line);
+    for (std::string cell; std::getline(cells, cell, ',');) rows.back().push_back(cell);
+  }
+  std::vector<std::string> out;
+  if (rows.empty()) return out;
+  const auto it = std::find(rows[0].begin(), rows[0].end(), name);
+  if (it == rows[0].end()) return out;
+  const size_t col = static_cast<size_t>(it - rows[0].begin());
+  for (size_t i = 1; i < rows.size(); ++i) out.push_back(col < rows[i].size() ? rows[i][col] : "");
+  return out;
+}
+
+// A query that ran with the given quality and candidates at these distances north of the truth,
+// verified where `verified` says so (same length).
+QueryResult FunnelQuery(FixQuality quality, std::vector<double> ref_distances,
+                        std::vector<bool> verified) {
+  QueryResult q = Query(quality, 0.1, 0, 0, 0.01, 0.01, 0.3, ref_distances, 100);
+  for (size_t i = 0; i < verified.size(); ++i) q.fix.references[i].verified = verified[i];
+  return q;
+}
+
+TEST(RouteMetricsTest, FunnelStagesOfHandMadeQueries) {
+  using Q = FixQuality;
+  using S = FunnelStage;
+  // No candidate within 25 m (60 m, or none at all): retrieval, whatever the quality below refined.
+  EXPECT_EQ(StageOf(FunnelQuery(Q::kNone, {60}, {true})), S::kRetrieval);
+  EXPECT_EQ(StageOf(FunnelQuery(Q::kCoarse, {}, {})), S::kRetrieval);
+  EXPECT_EQ(StageOf(FunnelQuery(Q::kCoarse, {30, 40}, {true, true})), S::kRetrieval);
+  // A candidate within 25 m (the second, at 24.9 m) and nothing verified.
+  EXPECT_EQ(StageOf(FunnelQuery(Q::kNone, {60, 24.9}, {false, false})), S::kVerification);
+  EXPECT_EQ(StageOf(FunnelQuery(Q::kCoarse, {10}, {false})), S::kVerification);
+  // Something verified (even the far candidate only), not refined: the pose stage.
+  EXPECT_EQ(StageOf(FunnelQuery(Q::kCoarse, {10}, {true})), S::kPose);
+  EXPECT_EQ(StageOf(FunnelQuery(Q::kNone, {10, 60}, {false, true})), S::kPose);
+  // Refined is refined, even with no candidate within 25 m.
+  EXPECT_EQ(StageOf(FunnelQuery(Q::kRefined, {10}, {true})), S::kRefined);
+  EXPECT_EQ(StageOf(FunnelQuery(Q::kRefined, {60}, {true})), S::kRefined);
+  // A failed call has no answer to read, whatever the fix holds.
+  QueryResult failed = FunnelQuery(Q::kNone, {10}, {true});
+  failed.error = "UNAVAILABLE: no server";
+  EXPECT_EQ(StageOf(failed), S::kFailedCall);
+  EXPECT_STREQ(FunnelStageName(S::kRetrieval), "retrieval");
+  EXPECT_STREQ(FunnelStageName(S::kFailedCall), "failed_call");
+}
+
+// The hand table's funnel: queries 1, 2, 3, 6 refined; 4 (coarse, candidate 60 m off) and 5 (no
+// candidate) stopped at retrieval. Wilson intervals from SciPy 1.10.1 as in HandTableIntervals:
+//   2 of 6: 0.096771411106 0.700006684862; 0 of 6: 0 0.390334287902; 4 of 6 as above.
+TEST(RouteMetricsTest, HandTableFunnel) {
+  RouteReport r;
+  r.results = HandTable();
+  r.results.push_back(FunnelQuery(FixQuality::kCoarse, {10}, {false}));  // 7: verification
+  r.results.push_back(QueryResult{});                                    // never ran: not counted
+  r.summary = Summarize(r.results);
+  const FunnelCounts& f = r.summary.funnel;
+  EXPECT_EQ(f.count, (std::array<int, kFunnelStageCount>{2, 1, 0, 4, 0}));
+  EXPECT_DOUBLE_EQ(f.share[0], 2.0 / 7);
+  EXPECT_DOUBLE_EQ(f.share[3], 4.0 / 7);
+  r.results.pop_back(), r.results.pop_back();
+  r.summary = Summarize(r.results);
+  const FunnelCounts& g = r.summary.funnel;
+  ExpectInterval(g.share_ci95[0], 0.096771411106, 0.700006684862, 1e-9);
+  ExpectInterval(g.share_ci95[2], 0, 0.390334287902, 1e-9);
+  ExpectInterval(g.share_ci95[3], 0.299993315138, 0.903228588894, 1e-9);
+  const nlohmann::json j = SummaryJson(r)["funnel"];
+  EXPECT_EQ(j["retrieval"]["queries"], 2);
+  EXPECT_EQ(j["verification"]["queries"], 0);
+  EXPECT_EQ(j["refined"]["queries"], 4);
+  EXPECT_EQ(j["failed_call"]["queries"], 0);
+  EXPECT_NEAR(j["retrieval"]["share_ci95"][1].get<double>(), 0.700006684862, 1e-9);
+  // fixes.csv: a stage column, one value per row; rows in time order (all at time 0: table order).
+  const std::string csv = FixesCsv(r);
+  EXPECT_NE(csv.find(",latency_ms,along_track_m,cross_track_m,stage,reason\n"), std::string::npos);
+  EXPECT_EQ(CsvColumn(csv, "stage"),
+            (std::vector<std::string>{"refined", "refined", "refined", "retrieval", "retrieval",
+                                      "refined"}));
+  EXPECT_NE(FunnelLine(g).find("retrieval 2 (33.3 % [9.7, 70.0]), verification 0 (0.0 % [0.0, "
+                               "39.0]), pose 0"),
+            std::string::npos)
+      << FunnelLine(g);
+  const std::string html = ReportHtml(r);
+  EXPECT_NE(html.find("<th>retrieval</th><td>2</td><td>33.3 % [9.7, 70.0]</td>"),
+            std::string::npos);
+}
+
+// A refined fix `east`, `north` metres from a truth whose drive.csv heading is heading_deg.
+QueryResult HeadedQuery(double east, double north, double heading_deg) {
+  QueryResult q = Query(FixQuality::kRefined, east, north, 0, 0.01, 0.01, 0.3, {}, 100);
+  q.truth.attitude.heading_deg = heading_deg;
+  ScoreQuery(&q);
+  return q;
+}
+
+// Along-track is the error's part along the truth's heading (positive ahead), cross-track its
+// part to the right of it (positive right). Worked by hand for a fix 3 m east and 4 m north:
+//   heading 0 (north): along = 4, cross = 3;
+//   heading 90 (east): along = 3, cross = -4 (north is left of an eastbound vehicle);
+//   heading 30: along = 3 sin 30 + 4 cos 30 = 1.5 + 3.4641016 = 4.9641016,
+//               cross = 3 cos 30 - 4 sin 30 = 2.5980762 - 2 = 0.5980762;
+// and for a fix 2 m east, 1 m north of a southbound truth (heading 180): along = -1 (behind),
+// cross = -2 (east is left of a southbound vehicle).
+TEST(RouteMetricsTest, AlongAndCrossTrackAtKnownOffsets) {
+  const struct {
+    double east, north, heading, along, cross;
+  } cases[] = {
+      {3, 4, 0, 4, 3}, {3, 4, 90, 3, -4}, {3, 4, 30, 4.9641016, 0.5980762}, {2, 1, 180, -1, -2}};
+  std::vector<QueryResult> table;
+  for (const auto& c : cases) {
+    table.push_back(HeadedQuery(c.east, c.north, c.heading));
+    SCOPED_TRACE(c.heading);
+    EXPECT_NEAR(table.back().along_track_m, c.along, 1e-6);
+    EXPECT_NEAR(table.back().cross_track_m, c.cross, 1e-6);
+    EXPECT_NEAR(std::hypot(c.along, c.cross), table.back().error_m, 1e-6);
+  }
+  table.push_back(Query(FixQuality::kNone, 0, 0, 0, 0, 0, 0, {}, 100));  // no fix: not counted
+  // |along| 4, 3, 4.964, 1 -> sorted 1, 3, 4, 4.964: nearest-rank median = 2nd = 3;
+  // |cross| 3, 4, 0.598, 2 -> sorted 0.598, 2, 3, 4: median = 2nd = 2. Five queries make one
+  // block of ten, so the bootstrap intervals have zero width at the estimate.
+  RouteReport r;
+  r.results = table;
+  r.summary = Summarize(table);
+  const RouteSummary& s = r.summary;
+  EXPECT_NEAR(s.median_abs_along_track_m, 3, 1e-6);
+  EXPECT_NEAR(s.median_abs_cross_track_m, 2, 1e-6);
+  EXPECT_NEAR(s.all.median_abs_along_m, 3, 1e-6);
+  ExpectInterval(s.median_abs_along_track_m_ci95, 3, 3, 1e-6);
+  ExpectInterval(s.all.median_abs_cross_m_ci95, 2, 2, 1e-6);
+  const nlohmann::json j = SummaryJson(r);
+  EXPECT_NEAR(j["median_abs_along_track_m"].get<double>(), 3, 1e-6);
+  EXPECT_NEAR(j["median_abs_cross_track_m"].get<double>(), 2, 1e-6);
+  EXPECT_NEAR(j["refined_only"]["median_abs_cross_track_m"].get<double>(), 2, 1e-6);
+  EXPECT_NEAR(j["median_abs_along_track_m_ci95"][0].get<double>(), 3, 1e-6);
+  const std::string csv = FixesCsv(r);
+  EXPECT_EQ(CsvColumn(csv, "along_track_m"),
+            (std::vector<std::string>{"4.0000", "3.0000", "4.9641", "-1.0000", ""}));
+  EXPECT_EQ(CsvColumn(csv, "cross_track_m"),
+            (std::vector<std::string>{"3.0000", "-4.0000", "0.5981", "-2.0000", ""}));
+}
+
+// The medians' intervals resample runs of 10 consecutive queries, as the error's do: 25 queries
+// heading 30 deg with fixes (0.1 i mod 0.7 + 0.2, 0.05 (i mod 5)) m east/north of the truth, split
+// by hand (along = e sin 30 + n cos 30, cross = e cos 30 - n sin 30), give the blocks below.
+TEST(RouteMetricsTest, AlongCrossIntervalsResampleRunsOfTenQueries) {
+  std::vector<QueryResult> table;
+  std::vector<std::vector<double>> along(3), cross(3);
+  const double h = 30 * M_PI / 180;
+  for (int i = 0; i < 25; ++i) {
+    const double e = 0.1 * (i % 7) + 0.2, n = 0.05 * (i % 5);
+    table.push_back(HeadedQuery(e, n, 30));
+    along[i / 10].push_back(std::fabs(e * std::sin(h) + n * std::cos(h)));
+    cross[i / 10].push_back(std::fabs(e * std::cos(h) - n * std::sin(h)));
+  }
+  const RouteSummary s = Summarize(table);
+  const auto median = [](const std::vector<double>& v) { return Percentile(v, 0.5); };
+  for (const auto& [blocks, got] : {std::make_pair(along, s.median_abs_along_track_m_ci95),
+                                    std::make_pair(cross, s.median_abs_cross_track_m_ci95)}) {
+    const Result<Interval> expected = BlockBootstrapInterval(blocks, median);
+    ASSERT_TRUE(expected.ok());
+    ExpectInterval(got, expected->low, expected->high, 1e-6);
+    EXPECT_LT(got->low, got->high);
   }
 }
 
