@@ -54,6 +54,39 @@ PY
   && ok "compare prints both summaries" || bad "compare: $(head -3 "$tmp/cmp.txt")"
 "$cli" compare "$tmp/in" "$tmp/none" >/dev/null 2>&1; [ $? -eq 2 ] && ok "compare: missing report is exit 2" || bad "compare missing"
 
+# compare pairs two runs query by query: the dusk drive with a 3 m prior circle and without a
+# prior (measured on the service map, seed 17: 20 and 18 of 34 refined, 2 discordant pairs, 17 of
+# 18 errors equal). The printed counts are recounted from the two fixes.csv files and the exact
+# McNemar p from the binomial sum; a day run against a dusk run is refused (other truths).
+dusk="$data/town/query-dusk"
+"$cli" replay --map "$data/map" --drive "$dusk" --out "$tmp/dusk3" --prior noisy:3 >/dev/null 2>&1 &&
+"$cli" replay --map "$data/map" --drive "$dusk" --out "$tmp/dusk0" --prior none >/dev/null 2>&1 &&
+"$cli" compare "$tmp/dusk3" "$tmp/dusk0" >"$tmp/paired.txt" 2>&1 && ok "compare: two dusk runs paired" || bad "compare dusk runs: $(tail -3 "$tmp/paired.txt")"
+"$py" - "$tmp/dusk3/fixes.csv" "$tmp/dusk0/fixes.csv" "$tmp/paired.txt" <<'PY' && ok "compare: paired counts and McNemar p match fixes.csv" || bad "paired counts"
+import csv, math, re, sys
+a, b = ({r["image"]: r for r in csv.DictReader(open(p))} for p in sys.argv[1:3])
+text = open(sys.argv[3]).read()
+print(text[text.index("Paired"):].strip())
+assert a.keys() == b.keys()
+yes = lambda r: r["quality"] == "refined"
+a_only = sum(yes(a[k]) and not yes(b[k]) for k in a)
+b_only = sum(yes(b[k]) and not yes(a[k]) for k in a)
+m = re.search(r"^refined: A only (\d+), B only (\d+); McNemar n (\d+)(.*)$", text, re.M)
+assert m and (int(m.group(1)), int(m.group(2))) == (a_only, b_only), (m and m.groups(), a_only, b_only)
+n = a_only + b_only
+if 0 < n < 25:  # exact binomial two-sided (McNemar 1947)
+    p = min(1.0, 2 * sum(math.comb(n, i) for i in range(min(a_only, b_only) + 1)) / 2 ** n)
+    got = float(re.search(r"p ([0-9.e+-]+) \(exact binomial\)", m.group(4)).group(1))
+    assert abs(got - p) <= 5e-4 * p, (got, p)
+    assert ("not significant" in m.group(4)) == (p >= 0.05), m.group(4)
+both = sum(yes(a[k]) and yes(b[k]) for k in a)
+assert re.search(r"^error, refined in both \(%d; " % both, text, re.M), both
+assert re.search(r"^within radius95: A only \d+, B only \d+; McNemar ", text, re.M)
+assert "Wilcoxon signed-rank" in text and "significant at 0.05" in text
+PY
+"$cli" compare "$tmp/in" "$tmp/dusk0" >/dev/null 2>"$tmp/pair.err"; rc=$?
+[ $rc -eq 2 ] && grep -q "different drives" "$tmp/pair.err" && ok "compare: runs of different drives refused (exit 2)" || bad "compare different drives: exit $rc, $(cat "$tmp/pair.err")"
+
 # The gnss prior mode: priors from gnss.csv, the monitor scored against spoofing.csv.
 "$cli" replay --map "$data/map" --drive "$drive" --out "$tmp/gnss" --prior gnss --json \
   >"$tmp/gnss.json" 2>/dev/null && ok "replay --prior gnss" || bad "replay --prior gnss"
