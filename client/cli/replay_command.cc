@@ -8,6 +8,7 @@
 #include <filesystem>
 #include <iostream>
 #include <memory>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -188,26 +189,59 @@ void PrintSpoofing(const SpoofingRun& run) {
   std::printf(", %d false alarms\n", sc.false_alarms);
 }
 
+// A rate and its interval: "0.967 [0.833, 0.994]".
+std::string Rate(double value, const std::optional<Interval>& ci) {
+  char buf[32];
+  std::snprintf(buf, sizeof(buf), "%.3f", value);
+  return buf + IntervalText(ci, 1, "%.3f");
+}
+
+// A distance and its interval: "0.014 m [0.011, 0.019]".
+std::string Metres(double value, const std::optional<Interval>& ci) {
+  char buf[32];
+  std::snprintf(buf, sizeof(buf), "%.3f m", value);
+  return buf + IntervalText(ci, 1, "%.3f");
+}
+
+void PrintErrors(const RouteSummary& s) {
+  const ErrorStats& a = s.all;
+  std::printf(
+      "error over fixes: median %s, p90 %.3f m, p95 %s, max %.3f m; median |along| %s, "
+      "|cross| %s\n",
+      Metres(a.median_m, a.median_m_ci95).c_str(), a.p90_m, Metres(a.p95_m, a.p95_m_ci95).c_str(),
+      a.max_m, Metres(a.median_abs_along_m, a.median_abs_along_m_ci95).c_str(),
+      Metres(a.median_abs_cross_m, a.median_abs_cross_m_ci95).c_str());
+  std::printf(
+      "error over refined fixes: median %s, p95 %s; median |along| %s, |cross| %s; wrong "
+      "refined %d\n",
+      Metres(s.median_error_m, s.median_error_m_ci95).c_str(),
+      Metres(s.p95_error_m, s.p95_error_m_ci95).c_str(),
+      Metres(s.median_abs_along_track_m, s.median_abs_along_track_m_ci95).c_str(),
+      Metres(s.median_abs_cross_track_m, s.median_abs_cross_track_m_ci95).c_str(), s.wrong_refined);
+}
+
 void PrintReplaySummary(const RouteReport& r, const std::string& out) {
   const RouteSummary& s = r.summary;
-  std::printf("%s%d queries, %d fixes (availability %.3f; refined %d, coarse %d, none %d)\n",
-              r.partial ? "PARTIAL (interrupted): " : "", s.queries, s.fixes, s.availability,
-              s.refined, s.coarse, s.none);
-  std::printf("funnel, where queries stopped: %s\n", FunnelLine(s.funnel).c_str());
-  std::printf("recall@1/5/10 within 25 m: %.3f / %.3f / %.3f\n", s.recall_at_1, s.recall_at_5,
-              s.recall_at_10);
   std::printf(
-      "error over fixes: median %.3f m, p90 %.3f m, p95 %.3f m, max %.3f m; refined: "
-      "median %.3f m, p95 %.3f m; wrong refined %d\n",
-      s.all.median_m, s.all.p90_m, s.all.p95_m, s.all.max_m, s.median_error_m, s.p95_error_m,
-      s.wrong_refined);
+      "%s%d queries, %d fixes (availability %s; refined %d, share %s; coarse %d, none %d)\n",
+      r.partial ? "PARTIAL (interrupted): " : "", s.queries, s.fixes,
+      Rate(s.availability, s.availability_ci95).c_str(), s.refined,
+      Rate(s.refined_share, s.refined_share_ci95).c_str(), s.coarse, s.none);
+  std::printf("funnel, where queries stopped: %s\n", FunnelLine(s.funnel).c_str());
+  std::printf("recall@1/5/10 within 25 m: %s / %s / %s\n",
+              Rate(s.recall_at_1, s.recall_at_1_ci95).c_str(),
+              Rate(s.recall_at_5, s.recall_at_5_ci95).c_str(),
+              Rate(s.recall_at_10, s.recall_at_10_ci95).c_str());
+  PrintErrors(s);
   const std::array<double, 3> shares = PoseBinShares(s);
   for (size_t k = 0; k < shares.size(); ++k)
-    std::printf("pose %s: %.3f of queries\n", PoseBinLabel(kPoseBins[k]).c_str(), shares[k]);
+    std::printf("pose %s: %s of queries\n", PoseBinLabel(kPoseBins[k]).c_str(),
+                Rate(shares[k], s.pose_bin_ci95[k]).c_str());
   std::printf("heading error median %.2f deg\n", s.all.median_heading_deg);
-  std::printf("radius95 coverage %.3f, NEES %.2f; latency p50 %.0f ms, p95 %.0f ms, p99 %.0f ms\n",
-              s.all.radius95_coverage, s.all.nees_mean, s.latency_ms_p50, s.latency_ms_p95,
-              s.latency_ms_p99);
+  std::printf("radius95 coverage %s, NEES %.2f; latency p50 %.0f ms, p95 %.0f ms, p99 %.0f ms\n",
+              Rate(s.all.radius95_coverage, s.all.radius95_coverage_ci95).c_str(), s.all.nees_mean,
+              s.latency_ms_p50, s.latency_ms_p95, s.latency_ms_p99);
+  std::printf("%s\n", kIntervalLegend);
   if (r.spoofing) PrintSpoofing(*r.spoofing);
   std::printf("report: %s/report.html (summary.json, fixes.csv, route.geojson beside it)\n%s\n",
               out.c_str(), kSafety);

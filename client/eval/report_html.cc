@@ -3,6 +3,7 @@
 #include <array>
 #include <cmath>
 #include <filesystem>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -34,17 +35,31 @@ std::string Slashed(const std::vector<double>& values, const char* format) {
   return out;
 }
 
+// A figure and its 95 % interval: "0.167 [0.030, 0.564]".
+std::string WithCi(double value, const std::optional<Interval>& ci, const char* format = "%.3f") {
+  return FormatNumber(format, value) + IntervalText(ci, 1, format);
+}
+
 std::string ErrorRows(const RouteSummary& s) {
-  std::string t =
-      Row("error median / p90 / p95 / max (m)",
-          Slashed({s.all.median_m, s.all.p90_m, s.all.p95_m, s.all.max_m}, "%.3f"), "all fixes");
-  t += Row("refined error median / p95 (m)", Slashed({s.median_error_m, s.p95_error_m}, "%.3f"),
+  const ErrorStats& a = s.all;
+  std::string t = Row("error median (m)", WithCi(a.median_m, a.median_m_ci95), "all fixes");
+  t += Row("error p90 / p95 / max (m)",
+           FormatNumber("%.3f", a.p90_m) + " / " + WithCi(a.p95_m, a.p95_m_ci95) + " / " +
+               FormatNumber("%.3f", a.max_m),
+           "all fixes");
+  t += Row("median |along-track| / |cross-track| (m)",
+           WithCi(a.median_abs_along_m, a.median_abs_along_m_ci95) + " / " +
+               WithCi(a.median_abs_cross_m, a.median_abs_cross_m_ci95),
+           "all fixes; along the true heading");
+  t += Row("refined error median / p95 (m)",
+           WithCi(s.median_error_m, s.median_error_m_ci95) + " / " +
+               WithCi(s.p95_error_m, s.p95_error_m_ci95),
            "refined fixes");
   t += Row("wrong refined (> 5 m)", std::to_string(s.wrong_refined), "must be 0");
-  t += Row("heading error median (deg)", FormatNumber("%.2f", s.all.median_heading_deg));
+  t += Row("heading error median (deg)", FormatNumber("%.2f", a.median_heading_deg));
   const std::array<double, 3> shares = PoseBinShares(s);
   for (size_t k = 0; k < shares.size(); ++k)
-    t += Row("pose " + PoseBinLabel(kPoseBins[k]), FormatNumber("%.3f", shares[k]),
+    t += Row("pose " + PoseBinLabel(kPoseBins[k]), WithCi(shares[k], s.pose_bin_ci95[k]),
              "share of queries; Sattler et al. 2018");
   return t;
 }
@@ -80,25 +95,29 @@ std::string SummaryTable(const RouteReport& r) {
   const RouteSummary& s = r.summary;
   std::string t = "<table class=\"summary\"><tr><th>metric</th><th>value</th><th>note</th></tr>\n";
   t += Row("queries", std::to_string(s.queries), r.partial ? "partial: interrupted" : "");
-  t += Row("availability", FormatNumber("%.3f", s.availability),
+  t += Row("availability", WithCi(s.availability, s.availability_ci95),
            std::to_string(s.refined) + " refined, " + std::to_string(s.coarse) + " coarse, " +
                std::to_string(s.none) + " none");
+  t += Row("refined share", WithCi(s.refined_share, s.refined_share_ci95));
   t += Row("recall@1 / 5 / 10 (25 m)",
-           Slashed({s.recall_at_1, s.recall_at_5, s.recall_at_10}, "%.3f"),
+           WithCi(s.recall_at_1, s.recall_at_1_ci95) + " / " +
+               WithCi(s.recall_at_5, s.recall_at_5_ci95) + " / " +
+               WithCi(s.recall_at_10, s.recall_at_10_ci95),
            "Arandjelovic et al. 2016");
   t += ErrorRows(s);
-  t += Row("radius95 coverage", FormatNumber("%.3f", s.all.radius95_coverage),
+  t += Row("radius95 coverage", WithCi(s.all.radius95_coverage, s.all.radius95_coverage_ci95),
            "about 0.95 when calibrated");
   t += Row("NEES mean", FormatNumber("%.2f", s.all.nees_mean), "about 2 when calibrated (2 dof)");
   t += Row("latency p50 / p95 / p99 (ms)",
            Slashed({s.latency_ms_p50, s.latency_ms_p95, s.latency_ms_p99}, "%.0f"));
   if (r.spoofing) t += SpoofingRows(r.spoofing->score);
-  return t + "</table>\n";
+  return t + "</table>\n<div class=\"caption\">" + EscapeXml(kIntervalLegend) + ".</div>\n";
 }
 
 constexpr char kStyle[] = R"(
 body { font-family: sans-serif; margin: 24px; color: #1d1d1b; background: #fff; max-width: 1000px; }
 h1 { font-size: 22px; margin-bottom: 4px; }
+h2 { font-size: 17px; margin: 18px 0 4px; }
 .meta { color: #555; font-size: 13px; }
 .caution { border: 2px solid #b3202e; background: #fbeeee; padding: 10px 14px; margin: 14px 0; }
 .partial { border: 2px solid #c9a227; background: #fbf6e6; padding: 8px 14px; }

@@ -320,6 +320,9 @@ RouteSummary Summarize(const std::vector<QueryResult>& results) {
   s.refined_share_ci95 = RateCi95(s.refined, s.queries);
   s.availability_ci95 = RateCi95(s.fixes, s.queries);
   s.recall_at_5_ci95 = RateCi95(r5, s.queries);
+  s.recall_at_1_ci95 = RateCi95(r1, s.queries);
+  s.recall_at_10_ci95 = RateCi95(r10, s.queries);
+  for (size_t k = 0; k < in_bin.size(); ++k) s.pose_bin_ci95[k] = RateCi95(in_bin[k], s.queries);
   for (int k = 0; k < kFunnelStageCount; ++k) {
     s.funnel.share[k] = s.funnel.count[k] / n;
     s.funnel.share_ci95[k] = RateCi95(s.funnel.count[k], s.queries);
@@ -353,6 +356,12 @@ std::string PoseBinLabel(const PoseBin& bin) {
 std::array<double, 3> PoseBinShares(const RouteSummary& s) {
   return {s.within_0_25m_2deg, s.within_0_5m_5deg, s.within_5m_10deg};
 }
+
+const char kIntervalLegend[] =
+    "[lo, hi]: 95 % intervals; Wilson score for rates and shares (queries read as independent: "
+    "neighbouring frames are not, so these are too narrow), block bootstrap over runs of 10 "
+    "consecutive queries for medians and p95 (respects neighbouring frames); none for p90 or "
+    "the max";
 
 std::string IntervalText(const std::optional<Interval>& ci, double scale, const char* format) {
   if (!ci) return " [-]";

@@ -150,6 +150,8 @@ struct RouteSummary {
   std::optional<Interval> refined_share_ci95, availability_ci95, recall_at_5_ci95;
   std::optional<Interval> median_error_m_ci95, p95_error_m_ci95, radius95_coverage_ci95;
   std::optional<Interval> median_abs_along_track_m_ci95, median_abs_cross_track_m_ci95;
+  std::optional<Interval> recall_at_1_ci95, recall_at_10_ci95;  // Wilson
+  std::array<std::optional<Interval>, 3> pose_bin_ci95;         // Wilson, kPoseBins' order
   FunnelCounts funnel;  // every query that ran, in exactly one stage
 };
 
@@ -180,6 +182,10 @@ Result<std::vector<QueryResult>> RunDrive(const Localizer& localizer,
 void ScoreQuery(QueryResult* q);
 // Over the queries that ran.
 RouteSummary Summarize(const std::vector<QueryResult>& results);
+// Which intervals are which, in one line for text outputs: Wilson reads queries as independent,
+// the block bootstrap respects neighbouring frames; p90 and the maximum have none.
+extern const char kIntervalLegend[];
+
 // One line: "N queries: refined X % [lo, hi] (coarse N, none N), availability X % [lo, hi];
 // error median X m [lo, hi], p90 ... m, p95 X m [lo, hi], ...; pose fine (0.25 m, 2 deg) X,
 // medium (0.5 m, 5 deg) X, rough (5 m, 10 deg) X; ...; [lo, hi]: 95 % intervals", an interval

@@ -98,7 +98,11 @@ nlohmann::json FunnelJson(const FunnelCounts& f) {
 void AddIntervals(const RouteSummary& s, nlohmann::json* j) {
   (*j)["refined_share_ci95"] = IntervalJson(s.refined_share_ci95);
   (*j)["availability_ci95"] = IntervalJson(s.availability_ci95);
+  (*j)["recall_at_1_25m_ci95"] = IntervalJson(s.recall_at_1_ci95);
   (*j)["recall_at_5_25m_ci95"] = IntervalJson(s.recall_at_5_ci95);
+  (*j)["recall_at_10_25m_ci95"] = IntervalJson(s.recall_at_10_ci95);
+  for (size_t k = 0; k < s.pose_bin_ci95.size(); ++k)
+    (*j)[std::string(kPoseBins[k].summary_key) + "_ci95"] = IntervalJson(s.pose_bin_ci95[k]);
   (*j)["median_error_m_ci95"] = IntervalJson(s.all.median_m_ci95);
   (*j)["p95_error_m_ci95"] = IntervalJson(s.all.p95_m_ci95);
   (*j)["radius95_coverage_ci95"] = IntervalJson(s.all.radius95_coverage_ci95);

@@ -27,8 +27,33 @@ text, j = open(sys.argv[1]).read(), json.load(open(sys.argv[2]))
 for label, key in (("fine (0.25 m, 2 deg)", "within_0_25m_2deg"),
                    ("medium (0.5 m, 5 deg)", "within_0_5m_5deg"),
                    ("rough (5 m, 10 deg)", "within_5m_10deg")):
-    m = re.search(r"^pose %s: ([0-9.]+) of queries$" % re.escape(label), text, re.M)
+    m = re.search(r"^pose %s: ([0-9.]+) \[([0-9.]+), ([0-9.]+)\] of queries$" % re.escape(label), text, re.M)
     assert m and m.group(1) == "%.3f" % j[key], (label, m and m.group(1), j[key])
+    assert [m.group(2), m.group(3)] == ["%.3f" % v for v in j[key + "_ci95"]], (m.groups(), j[key + "_ci95"])
+PY
+"$py" - "$tmp/in.txt" "$tmp/in/summary.json" <<'PY' && ok "replay text: intervals beside the rates and the median/p95 as in summary.json, one line says which is which" || bad "replay text intervals"
+import json, re, sys
+text, j = open(sys.argv[1]).read(), json.load(open(sys.argv[2]))
+ci = lambda k, d=j: "[%.3f, %.3f]" % tuple(d[k + "_ci95"])
+r = j["refined_only"]
+for want in ("availability %.3f %s" % (j["availability"], ci("availability")),
+             "share %.3f %s" % (j["refined_share"], ci("refined_share")),
+             "recall@1/5/10 within 25 m: %.3f %s / %.3f %s / %.3f %s" % (
+                 j["recall_at_1_25m"], ci("recall_at_1_25m"), j["recall_at_5_25m"], ci("recall_at_5_25m"),
+                 j["recall_at_10_25m"], ci("recall_at_10_25m")),
+             "median %.3f m %s, p90 %.3f m, p95 %.3f m %s, max %.3f m;" % (
+                 j["median_error_m"], ci("median_error_m"), j["p90_error_m"], j["p95_error_m"],
+                 ci("p95_error_m"), j["max_error_m"]),
+             "median |along| %.3f m %s, |cross| %.3f m %s" % (
+                 r["median_abs_along_track_m"], ci("median_abs_along_track_m", r),
+                 r["median_abs_cross_track_m"], ci("median_abs_cross_track_m", r)),
+             "radius95 coverage %.3f %s" % (j["radius95_coverage"], ci("radius95_coverage"))):
+    assert want in text, (want, text)
+for k, v in j["funnel"].items():
+    assert "%s %d (%.1f %% [" % (k, v["queries"], 100 * v["share"]) in text, (k, v)
+assert sum(v["queries"] for v in j["funnel"].values()) == j["queries"], j["funnel"]
+legend = [l for l in text.splitlines() if l.startswith("[lo, hi]: 95 % intervals")]
+assert len(legend) == 1 and "Wilson" in legend[0] and "block bootstrap" in legend[0], legend
 PY
 
 "$build/server/sightfix-server" --map "$data/map" --listen 127.0.0.1:0 --http "" --workers 2 \

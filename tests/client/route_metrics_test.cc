@@ -190,9 +190,26 @@ TEST(RouteMetricsTest, TextOutputsNameThePoseBins) {
             std::string::npos)
       << line;
   const std::string html = ReportHtml(r);
-  EXPECT_NE(html.find("<th>pose fine (0.25 m, 2 deg)</th><td>0.167</td>"), std::string::npos);
-  EXPECT_NE(html.find("<th>pose medium (0.5 m, 5 deg)</th><td>0.333</td>"), std::string::npos);
-  EXPECT_NE(html.find("<th>pose rough (5 m, 10 deg)</th><td>0.500</td>"), std::string::npos);
+  // With their Wilson intervals (SciPy 1.10.1 as in HandTableIntervals): 1 of 6 0.030053369748
+  // 0.563502822186; 2 of 6 0.096771411106 0.700006684862; 3 of 6 0.187616306483 0.812383693517.
+  EXPECT_NE(html.find("<th>pose fine (0.25 m, 2 deg)</th><td>0.167 [0.030, 0.564]</td>"),
+            std::string::npos);
+  EXPECT_NE(html.find("<th>pose medium (0.5 m, 5 deg)</th><td>0.333 [0.097, 0.700]</td>"),
+            std::string::npos);
+  EXPECT_NE(html.find("<th>pose rough (5 m, 10 deg)</th><td>0.500 [0.188, 0.812]</td>"),
+            std::string::npos);
+  // Every rate and the medians and p95 carry an interval; p90 and the max do not.
+  EXPECT_NE(html.find("<td>0.833 [0.436, 0.970]</td>"), std::string::npos);  // availability
+  EXPECT_NE(html.find("<td>0.333 [0.097, 0.700] / 0.500 [0.188, 0.812] / 0.667 [0.300, "
+                      "0.903]</td>"),
+            std::string::npos);  // recall@1/5/10: 2, 3, 4 of 6
+  EXPECT_NE(html.find("<td>20.000 / 20.000 [20.000, 20.000] / 20.000</td>"), std::string::npos);
+  EXPECT_NE(html.find("Wilson score for rates"), std::string::npos);
+  EXPECT_NE(html.find("block bootstrap over runs of 10"), std::string::npos);
+  const nlohmann::json j = SummaryJson(r);
+  EXPECT_NEAR(j["within_0_25m_2deg_ci95"][1].get<double>(), 0.563502822186, 1e-9);
+  EXPECT_NEAR(j["recall_at_1_25m_ci95"][0].get<double>(), 0.096771411106, 1e-9);
+  EXPECT_NEAR(j["recall_at_10_25m_ci95"][1].get<double>(), 0.903228588894, 1e-9);
   const nlohmann::json a = {{"within_0_5m_5deg", 0.25}}, b = {{"within_0_5m_5deg", 0.5}};
   const std::string t = CompareSummaries(a, b, "A", "B");
   EXPECT_NE(t.find("within_0_5m_5deg (pose medium)"), std::string::npos) << t;
