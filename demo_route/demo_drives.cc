@@ -181,6 +181,35 @@ void AddNuisances(const Town& town, const WorldNuisances& n, size_t i, Rng& rng,
   }
 }
 
+// The world drive i sees: its parked vehicles and, where the nuisances enable them, its changes
+// (own stream) and traffic (own stream; light on the survey), planned around its true path.
+DriveWorld WorldOfDrive(const Town& town, const WorldNuisances& n, uint64_t seed, size_t i,
+                        const PlannedDrive& d) {
+  Rng change_rng(HashSeed(seed, 0x636867, i)), traffic_rng(HashSeed(seed, 0x747266, i));
+  DriveWorld w =
+      PlanDriveWorld(town, static_cast<int>(i), d.condition.variant, n.changes, change_rng);
+  if (!n.traffic.enabled || d.truth.empty()) return w;
+  w.has_traffic = true;
+  // The camera between frames: straight from one frame's true position to the next (across the
+  // road where the drive turns round), before the first and after the last frame held.
+  const CameraTrack camera = [&d](double t) {
+    auto it = std::lower_bound(d.truth.begin(), d.truth.end(), t,
+                               [](const Frame& f, double x) { return f.time_s < x; });
+    if (it == d.truth.begin() || it == d.truth.end()) {
+      const cv::Vec3d& p = (it == d.truth.end() ? d.truth.back() : *it).position;
+      return cv::Vec2d(p[0], p[1]);
+    }
+    const Frame &a = *(it - 1), &b = *it;
+    const double u = (t - a.time_s) / std::max(1e-9, b.time_s - a.time_s);
+    const cv::Vec3d p = a.position + u * (b.position - a.position);
+    return cv::Vec2d(p[0], p[1]);
+  };
+  w.traffic =
+      PlanTraffic(town.route, d.truth.back().time_s + 1.0, d.passes[0].lane_offset_m,
+                  i == 0 ? n.traffic.survey_density_scale : 1.0, n.traffic, camera, traffic_rng);
+  return w;
+}
+
 }  // namespace
 
 std::vector<PlannedDrive> PlanDrives(const Town& town, const DemoOptions& o) {
@@ -203,6 +232,7 @@ std::vector<PlannedDrive> PlanDrives(const Town& town, const DemoOptions& o) {
       d.spoofing = PlanSpoofing(DriveDuration(d.passes, d.plan), rng);
       d.gnss = SimulateGnss(town.route, d.passes, d.plan, GnssOptions{}, d.spoofing, rng);
     }
+    d.world = WorldOfDrive(town, nuisances, o.seed, i, d);
     drives.push_back(std::move(d));
   }
   return drives;

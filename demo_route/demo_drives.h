@@ -57,6 +57,9 @@ struct PlannedDrive {
   std::vector<SurveyError> survey_errors;
   std::vector<SpoofSegment> spoofing;
   std::vector<GnssSample> gnss;
+  // What the drive sees beyond the town's layout (changed_world.h): clean world, its parked
+  // vehicles only; realistic, a changed world for query drives and traffic on every drive.
+  DriveWorld world;
 };
 
 // survey, query-day, query-dusk, query-overcast, in this order (index = vehicle variant).

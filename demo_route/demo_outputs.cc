@@ -239,6 +239,14 @@ nlohmann::json DriveJson(const PlannedDrive& d) {
   return dj;
 }
 
+// The realistic world's changes (query drives) and traffic of drive d, into dj.
+void AddWorldJson(const Town& town, const PlannedDrive& d, nlohmann::json* dj) {
+  if (d.world.has_traffic) (*dj)["traffic"] = TrafficJson(d.world.traffic);
+  if (!d.world.facades.empty() || d.world.season.changed() || !d.world.works.empty() ||
+      !d.world.vehicles_gone.empty() || !d.world.vehicles_added.empty())
+    (*dj)["changes"] = ChangesJson(town, d.world);
+}
+
 }  // namespace
 
 std::string DriveImageName(size_t k) {
@@ -264,6 +272,17 @@ Status WriteDriveFiles(const PlannedDrive& d, const EnuFrame& enu, const fs::pat
   s = WriteGnssCsv(d, enu, start, dir);
   if (!s.ok()) return s;
   return WriteSpoofingCsv(d, start, dir);
+}
+
+Status WriteOcclusionCsv(const std::vector<double>& moving_shares, const fs::path& dir) {
+  std::ofstream f(dir / kOcclusionFile);
+  f << "image,moving_share\n";
+  char buf[64];
+  for (size_t k = 0; k < moving_shares.size(); ++k) {
+    std::snprintf(buf, sizeof(buf), "%s,%.6f\n", DriveImageName(k).c_str(), moving_shares[k]);
+    f << buf;
+  }
+  return f ? Status::Ok() : Status::IoError("cannot write " + (dir / kOcclusionFile).string());
 }
 
 Status ExportPhotoSurvey(const PlannedDrive& d, const Town& town, const EnuFrame& enu,
@@ -309,7 +328,10 @@ nlohmann::json TownJson(const DemoOptions& o, const Town& town,
   else
     j["survey_pose_noise"] = {
         {"note", "per drive: drives.survey.survey_error; the survey's truth.csv holds the truth"}};
-  for (const PlannedDrive& d : drives) j["drives"][d.condition.name] = DriveJson(d);
+  for (const PlannedDrive& d : drives) {
+    j["drives"][d.condition.name] = DriveJson(d);
+    AddWorldJson(town, d, &j["drives"][d.condition.name]);
+  }
   return j;
 }
 

@@ -40,6 +40,13 @@ Status WriteDriveFiles(const PlannedDrive& d, const EnuFrame& enu,
 Status ExportPhotoSurvey(const PlannedDrive& d, const Town& town, const EnuFrame& enu,
                          const std::filesystem::path& out, bool photos);
 
+// occlusion.csv, written beside drive.csv where the drive has moving traffic: one row per image,
+// "image,moving_share" (drive.csv's image name; the share of the image's area that moving
+// objects cover, 0..1, six decimals). For evaluators: the indexer and the engine never read it.
+inline constexpr char kOcclusionFile[] = "occlusion.csv";
+Status WriteOcclusionCsv(const std::vector<double>& moving_shares,
+                         const std::filesystem::path& dir);
+
 // town.json: the generator, seed, options, origin, layout and, per drive, camera, plan,
 // appearance, GNSS model and spoofed segments.
 nlohmann::json TownJson(const DemoOptions& o, const Town& town,

@@ -35,24 +35,28 @@ Status PrepareDriveFolders(const fs::path& out, const std::vector<PlannedDrive>&
   return Status::Ok();
 }
 
-// One image to render: frame `index` of a drive.
+// One image to render: frame `index` of drive `drive_index` (the scene's variant).
 struct RenderJob {
   const PlannedDrive* drive;
+  size_t drive_index;
   size_t index;
 };
 
-// Renders, finishes and writes one image; false if the JPEG cannot be written.
+// Renders, finishes and writes one image, its moving objects' share into *moving_share; false
+// if the JPEG cannot be written.
 bool RenderImage(const TownScene& scene, const RenderJob& job, const DemoOptions& o,
-                 const fs::path& out, std::string* failure) {
+                 const fs::path& out, double* moving_share, std::string* failure) {
   const PlannedDrive& d = *job.drive;
   const Frame& f = d.exposure[job.index];
   const CameraPose pose{f.position, EnuFromCamera(f.attitude).t()};
   RenderOptions render;
   render.supersample = o.supersample;
-  const cv::Mat linear =
-      scene.Render(pose, d.camera, d.condition.look, d.condition.variant, render);
-  const cv::Mat img =
-      FinishImage(linear, d.condition, HashSeed(o.seed, 0x696d67, d.condition.variant, job.index));
+  render.time_s = f.time_s;  // the exposure's: where moving objects are
+  const RenderedView view =
+      scene.RenderView(pose, d.camera, d.condition.look, static_cast<int>(job.drive_index), render);
+  *moving_share = view.moving_share;
+  const cv::Mat img = FinishImage(view.image, d.condition,
+                                  HashSeed(o.seed, 0x696d67, d.condition.variant, job.index));
   const fs::path path = out / d.condition.name / DriveImageName(job.index);
   if (cv::imwrite(path.string(), img, {cv::IMWRITE_JPEG_QUALITY, d.condition.jpeg_quality}))
     return true;
@@ -62,12 +66,21 @@ bool RenderImage(const TownScene& scene, const RenderJob& job, const DemoOptions
 
 // Renders every image of every drive on o.jobs threads (0: one per core), images taken in
 // turn from one queue; each image depends only on its own inputs, so the bytes do not depend
-// on the thread count. Returns the rendering time in seconds.
+// on the thread count. Returns the rendering time in seconds; (*moving_shares)[drive][image]
+// the share of each image that moving objects cover.
 Result<double> RenderImages(const TownScene& scene, const std::vector<PlannedDrive>& drives,
-                            const DemoOptions& o, const fs::path& out) {
+                            const DemoOptions& o, const fs::path& out,
+                            std::vector<std::vector<double>>* moving_shares) {
   std::vector<RenderJob> jobs;
-  for (const PlannedDrive& d : drives)
-    for (size_t k = 0; k < d.exposure.size(); ++k) jobs.push_back({&d, k});
+  std::vector<double*> shares;
+  moving_shares->assign(drives.size(), {});
+  for (size_t i = 0; i < drives.size(); ++i) {
+    (*moving_shares)[i].assign(drives[i].exposure.size(), 0.0);
+    for (size_t k = 0; k < drives[i].exposure.size(); ++k) {
+      jobs.push_back({&drives[i], i, k});
+      shares.push_back(&(*moving_shares)[i][k]);
+    }
+  }
   const int threads = o.jobs > 0 ? o.jobs : std::max(1u, std::thread::hardware_concurrency());
   std::atomic<size_t> next{0};
   std::atomic<bool> failed{false};
@@ -77,7 +90,7 @@ Result<double> RenderImages(const TownScene& scene, const std::vector<PlannedDri
   auto worker = [&] {
     for (size_t j; !failed && (j = next++) < jobs.size();) {
       std::string why;
-      if (!RenderImage(scene, jobs[j], o, out, &why)) {
+      if (!RenderImage(scene, jobs[j], o, out, shares[j], &why)) {
         std::lock_guard<std::mutex> lock(failure_mu);
         failure = why;
         failed = true;
@@ -96,10 +109,14 @@ Result<double> RenderImages(const TownScene& scene, const std::vector<PlannedDri
 // Everything but the images: drive files, the optional photo exports, town.json and the
 // contact sheet; the drives' image counts into *summary.
 Status WriteOutputs(const DemoOptions& o, const Town& town, const std::vector<PlannedDrive>& drives,
-                    const fs::path& out, DemoSummary* summary) {
+                    const std::vector<std::vector<double>>& moving_shares, const fs::path& out,
+                    DemoSummary* summary) {
   const EnuFrame enu(kTownOrigin);
-  for (const PlannedDrive& d : drives) {
+  for (size_t i = 0; i < drives.size(); ++i) {
+    const PlannedDrive& d = drives[i];
     Status s = WriteDriveFiles(d, enu, out / d.condition.name);
+    if (s.ok() && d.world.has_traffic)
+      s = WriteOcclusionCsv(moving_shares[i], out / d.condition.name);
     if (!s.ok()) return s;
     summary->drives.push_back({d.condition.name, static_cast<int>(d.truth.size())});
   }
@@ -142,16 +159,17 @@ Result<DemoSummary> GenerateDemoTown(const DemoOptions& o) {
   town_options.route_length_m = o.route_length_m;
   const Town town = BuildTown(town_options);
   const std::vector<PlannedDrive> drives = PlanDrives(town, o);
-  std::vector<std::vector<Vehicle>> variants;
-  for (int v = 0; v < 4; ++v) variants.push_back(VehiclesForVariant(town, v));
-  const TownScene scene(town, variants);
+  std::vector<DriveWorld> worlds;  // the scene's variant = the drive's index
+  for (const PlannedDrive& d : drives) worlds.push_back(d.world);
+  const TownScene scene(town, worlds);
 
   const fs::path out(o.out_dir);
   if (Status s = PrepareDriveFolders(out, drives); !s.ok()) return s;
-  const Result<double> render_s = RenderImages(scene, drives, o, out);
+  std::vector<std::vector<double>> moving_shares;
+  const Result<double> render_s = RenderImages(scene, drives, o, out, &moving_shares);
   if (!render_s.ok()) return render_s.status();
   DemoSummary summary;
-  if (Status s = WriteOutputs(o, town, drives, out, &summary); !s.ok()) return s;
+  if (Status s = WriteOutputs(o, town, drives, moving_shares, out, &summary); !s.ok()) return s;
   summary.buildings = static_cast<int>(town.buildings.size());
   summary.vehicles = static_cast<int>(town.vehicles.size());
   summary.poles = static_cast<int>(town.poles.size());

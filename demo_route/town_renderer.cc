@@ -28,15 +28,16 @@ std::array<cv::Vec2d, 4> SquareFootprint(const cv::Vec2d& c, double hw) {
 // Sets up and rasterizes every quad of `quads` that may be seen, appending its raster (the
 // index the buffer's ids refer to) to *rasters. Paints the textures of the quads it reaches.
 void RasterizeQuads(const std::vector<Quad>& quads, const TextureBank& textures,
-                    const CameraPose& pose, const cv::Matx33d& k, const RenderOptions& options,
-                    std::vector<QuadRaster>* rasters, VisibilityBuffer* vis) {
+                    const std::vector<int>& swaps, const CameraPose& pose, const cv::Matx33d& k,
+                    const RenderOptions& options, std::vector<QuadRaster>* rasters,
+                    VisibilityBuffer* vis) {
   const cv::Vec3d forward = pose.camera_from_enu.t() * cv::Vec3d(0, 0, 1);
   for (const Quad& q : quads) {
     if (!MayBeVisible(q, pose, forward, options.max_range_m)) continue;
     QuadRaster qr;
     cv::Rect box;
     if (!SetUpQuadRaster(q, pose, k, vis->depth.size(), options.near_m, &qr, &box)) continue;
-    qr.texture = &textures.Get(q.texture);
+    qr.texture = &textures.Get(q.texture < int(swaps.size()) ? swaps[q.texture] : q.texture);
     RasterizeQuad(qr, box, k, options.near_m, static_cast<int>(rasters->size()), vis);
     rasters->push_back(qr);
   }
@@ -47,6 +48,20 @@ void RasterizeQuads(const std::vector<Quad>& quads, const TextureBank& textures,
 cv::Matx33d Supersampled(const cv::Matx33d& k, int ss) {
   return cv::Matx33d(k(0, 0) * ss, 0, k(0, 2) * ss + (ss - 1) / 2.0, 0, k(1, 1) * ss,
                      k(1, 2) * ss + (ss - 1) / 2.0, 0, 0, 1);
+}
+
+// The variants of a town whose drives differ only in their parked vehicles.
+std::vector<DriveWorld> ParkedOnly(const std::vector<std::vector<Vehicle>>& variants) {
+  std::vector<DriveWorld> worlds(variants.size());
+  for (size_t i = 0; i < variants.size(); ++i) worlds[i].parked = variants[i];
+  return worlds;
+}
+
+// Footprint of a box of length x depth about c, its length along yaw, counter-clockwise.
+std::array<cv::Vec2d, 4> BoxFootprint(const cv::Vec2d& c, double yaw, double length, double depth) {
+  const cv::Vec2d ax(std::cos(yaw), std::sin(yaw)), ay(-ax[1], ax[0]);
+  const cv::Vec2d hx = ax * (length / 2), hy = ay * (depth / 2);
+  return {c - hx - hy, c + hx - hy, c + hx + hy, c - hx + hy};
 }
 
 }  // namespace
@@ -65,11 +80,15 @@ Quad MakeQuad(const cv::Vec3d& origin, const cv::Vec3d& u_axis, const cv::Vec3d&
 }
 
 TownScene::TownScene(const Town& town, const std::vector<std::vector<Vehicle>>& variants)
+    : TownScene(town, ParkedOnly(variants)) {}
+
+TownScene::TownScene(const Town& town, const std::vector<DriveWorld>& worlds)
     : town_(town), glyphs_(town.options.seed), ground_(std::make_unique<GroundSurface>(town)) {
   AddBuildings(town);
   AddPoles(town);
   AddTrees(town);
-  AddVehicles(town, variants);
+  AddVehicles(town, worlds);
+  AddChanges(worlds);
 }
 
 TownScene::~TownScene() = default;
@@ -86,6 +105,8 @@ void TownScene::AddBuildings(const Town& town) {
         const FacadeSpec spec{w, b.height_m, b.floors, seed};
         tex[e] =
             textures_.Add([spec, glyphs] { return PaintFacade(spec, *glyphs); }, kFacadeTexelsPerM);
+        facade_specs_.push_back(spec);
+        facade_textures_.push_back(tex[e]);
       } else {
         const double h = b.height_m;
         tex[e] =
@@ -128,6 +149,7 @@ void TownScene::AddTrees(const Town& town) {
     AddBox(SquareFootprint(t.base, 0.13), 0, t.trunk_height_m + 0.5, Walls(bark), 1.0, &quads_);
     const int leaves =
         textures_.Add([s = t.seed] { return PaintCanopy(s); }, 128 / (2 * t.canopy_radius_m));
+    canopy_textures_.push_back(leaves);
     const double r = t.canopy_radius_m, top = t.trunk_height_m + 2 * r;
     for (double a : {0.3, 0.3 + M_PI / 2}) {
       const cv::Vec3d u(2 * r * std::cos(a), 2 * r * std::sin(a), 0);
@@ -138,11 +160,12 @@ void TownScene::AddTrees(const Town& town) {
   }
 }
 
-// Vehicles: textures per vehicle (by id), quads per drive variant.
-void TownScene::AddVehicles(const Town& town, const std::vector<std::vector<Vehicle>>& variants) {
+// Vehicles: textures per vehicle (by id: the town's, then those new in a variant), quads per
+// drive variant.
+void TownScene::AddVehicles(const Town& town, const std::vector<DriveWorld>& worlds) {
   const GlyphSet* glyphs = &glyphs_;
   std::map<int, std::array<int, 5>> vehicle_tex;
-  for (const Vehicle& v : town.vehicles) {
+  auto add_textures = [&](const Vehicle& v) {
     std::array<int, 5> tex{};
     for (int face = 0; face < 5; ++face) {
       const double len = face < 2 ? v.length_m : v.width_m, h = face == 4 ? v.length_m : v.height_m;
@@ -151,19 +174,127 @@ void TownScene::AddVehicles(const Town& town, const std::vector<std::vector<Vehi
           kObjectTexelsPerM);
     }
     vehicle_tex[v.id] = tex;
-  }
-  for (const std::vector<Vehicle>& variant : variants) {
+  };
+  for (const Vehicle& v : town.vehicles) add_textures(v);
+  for (const DriveWorld& world : worlds)
+    for (const Vehicle& v : world.parked)
+      if (!vehicle_tex.count(v.id)) add_textures(v);
+  for (const DriveWorld& world : worlds) {
     std::vector<Quad> quads;
-    for (const Vehicle& v : variant) {
-      const cv::Vec2d ax(std::cos(v.yaw_rad), std::sin(v.yaw_rad)), ay(-ax[1], ax[0]);
-      const cv::Vec2d hx = ax * (v.length_m / 2), hy = ay * (v.width_m / 2);
+    for (const Vehicle& v : world.parked) {
       const auto& t = vehicle_tex.at(v.id);
       // Edges: 0 right side, 1 front, 2 left side, 3 back (counter-clockwise from the rear right).
-      AddBox({v.centre - hx - hy, v.centre + hx - hy, v.centre + hx + hy, v.centre - hx + hy}, 0.25,
-             0.25 + v.height_m, {t[0], t[2], t[1], t[3], t[4]}, 1.0, &quads);
+      AddBox(BoxFootprint(v.centre, v.yaw_rad, v.length_m, v.width_m), 0.25, 0.25 + v.height_m,
+             {t[0], t[2], t[1], t[3], t[4]}, 1.0, &quads);
     }
     vehicle_quads_.push_back(std::move(quads));
   }
+}
+
+// Changed facades and canopies swap in their own textures; works sites join the variant's
+// quads; each mover gets five textures (vehicles painted as parked ones, figures cut out).
+void TownScene::AddChanges(const std::vector<DriveWorld>& worlds) {
+  const GlyphSet* glyphs = &glyphs_;
+  for (size_t i = 0; i < worlds.size(); ++i) {
+    const DriveWorld& w = worlds[i];
+    std::vector<int> swaps;
+    auto swap = [&](int from, int to) {
+      if (int(swaps.size()) <= from) {
+        const int n = static_cast<int>(swaps.size());
+        swaps.resize(from + 1);
+        for (int k = n; k <= from; ++k) swaps[k] = k;
+      }
+      swaps[from] = to;
+    };
+    for (const FacadeChange& c : w.facades) {
+      const FacadeSpec spec = facade_specs_[c.building];
+      swap(facade_textures_[c.building], textures_.Add(
+                                             [spec, c, glyphs] {
+                                               return ApplyFacadeChange(PaintFacade(spec, *glyphs),
+                                                                        c, spec, *glyphs);
+                                             },
+                                             kFacadeTexelsPerM));
+    }
+    if (w.season.changed())
+      for (size_t t = 0; t < town_.trees.size(); ++t) {
+        const Tree& tree = town_.trees[t];
+        swap(canopy_textures_[t], textures_.Add(
+                                      [s = tree.seed, season = w.season, i] {
+                                        return ApplySeason(PaintCanopy(s), season,
+                                                           HashSeed(s, 0x736561, i));
+                                      },
+                                      128 / (2 * tree.canopy_radius_m)));
+      }
+    texture_swaps_.push_back(std::move(swaps));
+    for (const WorksSite& site : w.works) AddWorks(site, &vehicle_quads_[i]);
+    movers_.push_back(w.traffic.movers);
+    std::vector<std::array<int, 5>> tex;
+    for (const Mover& m : w.traffic.movers) {
+      std::array<int, 5> t{};
+      const bool figure = m.kind == MoverKind::kCyclist || m.kind == MoverKind::kPedestrian;
+      for (int face = 0; face < 5; ++face) {
+        const double len = face < 2 ? m.length_m : m.width_m,
+                     h = face == 4 ? m.length_m : m.height_m;
+        t[face] = figure
+                      ? textures_.Add([k = m.kind, len, h, s = m.seed,
+                                       face] { return PaintFigure(k, len, h, s, face); },
+                                      kObjectTexelsPerM)
+                      : textures_.Add([len, h, s = m.seed, face,
+                                       glyphs] { return PaintVehicle(len, h, s, face, *glyphs); },
+                                      kObjectTexelsPerM);
+      }
+      tex.push_back(t);
+    }
+    mover_textures_.push_back(std::move(tex));
+  }
+}
+
+// A fenced box (fence panels all round), a barrier (a striped board on a thin box) or
+// scaffolding (one cut-out plane before the facade, seen from both sides).
+void TownScene::AddWorks(const WorksSite& site, std::vector<Quad>* out) {
+  const GlyphSet* glyphs = &glyphs_;
+  if (site.kind == WorksSite::kScaffold) {
+    const int tex = textures_.Add(
+        [w = site.length_m, h = site.height_m, s = site.seed] { return PaintScaffold(w, h, s); },
+        kObjectTexelsPerM / 4);
+    const cv::Vec2d ax(std::cos(site.yaw_rad), std::sin(site.yaw_rad));
+    const cv::Vec2d a = site.centre - ax * (site.length_m / 2);
+    out->push_back(MakeQuad({a[0], a[1], site.height_m},
+                            {ax[0] * site.length_m, ax[1] * site.length_m, 0},
+                            {0, 0, -site.height_m}, tex));
+    out->back().two_sided = true;
+    return;
+  }
+  const bool box = site.kind == WorksSite::kFencedBox;
+  std::array<int, 5> tex{};
+  for (int e = 0; e < 4; ++e) {
+    const double w = e % 2 == 0 ? site.length_m : site.depth_m;
+    tex[e] = box ? textures_.Add([w, h = site.height_m, s = HashSeed(site.seed, e),
+                                  glyphs] { return PaintSiteFence(w, h, s, *glyphs); },
+                                 kObjectTexelsPerM)
+                 : textures_.Add([w, h = site.height_m] { return PaintBarrier(w, h); },
+                                 kObjectTexelsPerM);
+  }
+  tex[4] = -1;
+  AddBox(BoxFootprint(site.centre, site.yaw_rad, site.length_m, site.depth_m), 0.0, site.height_m,
+         tex, 1.0, out);
+}
+
+std::vector<Quad> TownScene::MovingQuads(int variant, double time_s) const {
+  std::vector<Quad> quads;
+  if (variant >= int(movers_.size())) return quads;
+  const std::vector<Mover>& movers = movers_[variant];
+  for (size_t i = 0; i < movers.size(); ++i) {
+    const Mover& m = movers[i];
+    cv::Vec2d c;
+    double yaw;
+    if (!MoverPlacement(town_.route, m, time_s, &c, &yaw)) continue;
+    const bool figure = m.kind == MoverKind::kCyclist || m.kind == MoverKind::kPedestrian;
+    const auto& t = mover_textures_[variant][i];
+    AddBox(BoxFootprint(c, yaw, m.length_m, m.width_m), figure ? 0.0 : 0.25,
+           (figure ? 0.0 : 0.25) + m.height_m, {t[0], t[2], t[1], t[3], t[4]}, 1.0, &quads);
+  }
+  return quads;
 }
 
 int TownScene::AddTexture(cv::Mat image, double texels_per_m) {
@@ -190,13 +321,28 @@ void TownScene::AddBox(const std::array<cv::Vec2d, 4>& fp, double z0, double z1,
 
 cv::Mat TownScene::RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, cv::Size size,
                                  int ss, const Appearance& look, int variant,
-                                 const RenderOptions& options) const {
+                                 const RenderOptions& options, cv::Mat* moving) const {
   VisibilityBuffer vis(size);
   RasterizeGround(pose, k, options.max_range_m, &vis);  // the ground first, then the quads
   std::vector<QuadRaster> rasters;
-  RasterizeQuads(quads_, textures_, pose, k, options, &rasters, &vis);
+  static const std::vector<int> kNoSwaps;
+  const std::vector<int>& swaps =
+      variant < int(texture_swaps_.size()) ? texture_swaps_[variant] : kNoSwaps;
+  RasterizeQuads(quads_, textures_, swaps, pose, k, options, &rasters, &vis);
   if (variant < int(vehicle_quads_.size()))
-    RasterizeQuads(vehicle_quads_[variant], textures_, pose, k, options, &rasters, &vis);
+    RasterizeQuads(vehicle_quads_[variant], textures_, swaps, pose, k, options, &rasters, &vis);
+  // Moving objects last: every sample whose id is at least first_moving sees one.
+  const int first_moving = static_cast<int>(rasters.size());
+  const std::vector<Quad> moving_quads =
+      options.moving_objects ? MovingQuads(variant, options.time_s) : std::vector<Quad>();
+  RasterizeQuads(moving_quads, textures_, swaps, pose, k, options, &rasters, &vis);
+  if (rasters.size() > size_t(first_moving)) {
+    cv::Mat1f covered;
+    cv::Mat(vis.id >= first_moving).convertTo(covered, CV_32F, 1.0 / 255);
+    cv::resize(covered, *moving, size / ss, 0, 0, cv::INTER_AREA);  // exact ss x ss means
+  } else {
+    *moving = cv::Mat::zeros(size / ss, CV_32F);
+  }
   ShadingInputs in;
   in.pose = &pose;
   in.look = &look;
@@ -208,6 +354,12 @@ cv::Mat TownScene::RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, c
 
 cv::Mat TownScene::Render(const CameraPose& pose, const CameraModel& camera, const Appearance& look,
                           int variant, const RenderOptions& options) const {
+  return RenderView(pose, camera, look, variant, options).image;
+}
+
+RenderedView TownScene::RenderView(const CameraPose& pose, const CameraModel& camera,
+                                   const Appearance& look, int variant,
+                                   const RenderOptions& options) const {
   const int ss = std::max(1, options.supersample);
   cv::Matx33d k = camera.K();
   cv::Size size(camera.width_px, camera.height_px);
@@ -217,11 +369,19 @@ cv::Mat TownScene::Render(const CameraPose& pose, const CameraModel& camera, con
     k = plan->canvas_k;
     size = plan->canvas_size;
   }
-  cv::Mat img = RenderPinhole(pose, Supersampled(k, ss), size * ss, ss, look, variant, options);
-  if (!plan) return img;
-  cv::Mat out;
-  cv::remap(img, out, plan->map_x, plan->map_y, cv::INTER_LINEAR, cv::BORDER_REPLICATE);
-  return out;
+  RenderedView view;
+  cv::Mat moving;
+  view.image =
+      RenderPinhole(pose, Supersampled(k, ss), size * ss, ss, look, variant, options, &moving);
+  if (plan) {  // the lens resamples the coverage as it does the image
+    cv::Mat out;
+    cv::remap(view.image, out, plan->map_x, plan->map_y, cv::INTER_LINEAR, cv::BORDER_REPLICATE);
+    view.image = out;
+    cv::remap(moving, out, plan->map_x, plan->map_y, cv::INTER_LINEAR, cv::BORDER_REPLICATE);
+    moving = out;
+  }
+  view.moving_share = cv::mean(moving)[0];
+  return view;
 }
 
 }  // namespace sightfix::demo

@@ -13,6 +13,7 @@
 #include <opencv2/core.hpp>
 #include <vector>
 
+#include "demo_route/changed_world.h"
 #include "demo_route/town_layout.h"
 #include "demo_route/town_painter.h"
 #include "indexer/map/camera_model.h"
@@ -53,12 +54,23 @@ struct RenderOptions {
   int supersample = 2;       // render at this factor and average down (anti-aliasing)
   double max_range_m = 300;  // objects beyond this are not drawn (haze hides the cut)
   double near_m = 0.05;
+  double time_s = 0;           // drive time: where the variant's moving objects are
+  bool moving_objects = true;  // false: leave them out (tests compare with and without)
+};
+
+// A rendered view and the share of its pixels (area, after the lens) that moving objects cover.
+struct RenderedView {
+  cv::Mat image;  // as TownScene::Render
+  double moving_share = 0;
 };
 
 class TownScene {
  public:
   // vehicle_variants: the vehicles present in each drive variant (index = variant).
   TownScene(const Town& town, const std::vector<std::vector<Vehicle>>& vehicle_variants);
+  // worlds: what each drive variant sees (changed_world.h; index = variant): parked vehicles,
+  // changed facades and trees, works sites and moving traffic. Borrows town.
+  TownScene(const Town& town, const std::vector<DriveWorld>& worlds);
   ~TownScene();
 
   // Extra quads (tests add markers); texture = AddTexture result.
@@ -68,6 +80,10 @@ class TownScene {
   // Linear-light BGR image (CV_32FC3, 0..1-ish) of the view, `variant` choosing the vehicles.
   cv::Mat Render(const CameraPose& pose, const CameraModel& camera, const Appearance& look,
                  int variant, const RenderOptions& options = {}) const;
+  // The same image with the share of it that the variant's moving objects cover at
+  // options.time_s (0 where it has none or options.moving_objects is false).
+  RenderedView RenderView(const CameraPose& pose, const CameraModel& camera, const Appearance& look,
+                          int variant, const RenderOptions& options = {}) const;
 
   size_t quad_count() const { return quads_.size(); }
 
@@ -76,21 +92,33 @@ class TownScene {
   void AddBuildings(const Town& town);
   void AddPoles(const Town& town);
   void AddTrees(const Town& town);
-  void AddVehicles(const Town& town, const std::vector<std::vector<Vehicle>>& variants);
+  void AddVehicles(const Town& town, const std::vector<DriveWorld>& worlds);
+  // Per variant: changed facades and canopies (texture swaps), works sites, traffic textures.
+  void AddChanges(const std::vector<DriveWorld>& worlds);
+  void AddWorks(const WorksSite& site, std::vector<Quad>* out);
   // Walls of a box on a counter-clockwise footprint, textured from the outside; textures[4] is
   // the top (none when negative).
-  void AddBox(const std::array<cv::Vec2d, 4>& fp, double z0, double z1,
-              const std::array<int, 5>& textures, double brightness, std::vector<Quad>* out);
+  static void AddBox(const std::array<cv::Vec2d, 4>& fp, double z0, double z1,
+                     const std::array<int, 5>& textures, double brightness, std::vector<Quad>* out);
+  // The boxes of the variant's movers at time_s.
+  std::vector<Quad> MovingQuads(int variant, double time_s) const;
   // Renders ss x ss samples per output pixel on the high-resolution canvas (k, size) and returns
-  // the output image (size / ss).
+  // the output image (size / ss); *moving the share of each output pixel that moving objects
+  // cover (CV_32F, same size).
   cv::Mat RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, cv::Size size, int ss,
-                        const Appearance& look, int variant, const RenderOptions& options) const;
+                        const Appearance& look, int variant, const RenderOptions& options,
+                        cv::Mat* moving) const;
 
   const Town& town_;
   GlyphSet glyphs_;
   TextureBank textures_;
-  std::vector<Quad> quads_;                       // buildings, poles, trees, markers
-  std::vector<std::vector<Quad>> vehicle_quads_;  // per variant
+  std::vector<Quad> quads_;                             // buildings, poles, trees, markers
+  std::vector<std::vector<Quad>> vehicle_quads_;        // per variant: parked vehicles, works sites
+  std::vector<FacadeSpec> facade_specs_;                // per building: its street front
+  std::vector<int> facade_textures_, canopy_textures_;  // per building, per tree
+  std::vector<std::vector<int>> texture_swaps_;  // per variant: texture id -> id drawn instead
+  std::vector<std::vector<Mover>> movers_;       // per variant
+  std::vector<std::vector<std::array<int, 5>>> mover_textures_;  // per variant, per mover
   std::unique_ptr<GroundSurface> ground_;
 };
 

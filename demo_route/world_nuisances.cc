@@ -46,6 +46,19 @@ Status CheckCalibration(const CalibrationErrorRanges& c) {
   return Status::Ok();
 }
 
+Status CheckTraffic(const TrafficRanges& t) {
+  for (const Status& st : {CheckRange("traffic.motor_speed_mps", t.motor_speed_mps, true),
+                           CheckRange("traffic.cycle_speed_mps", t.cycle_speed_mps, true),
+                           CheckRange("traffic.walk_speed_mps", t.walk_speed_mps, true),
+                           CheckRange("traffic.motor_gap_m", t.motor_gap_m, true),
+                           CheckRange("traffic.cycle_gap_m", t.cycle_gap_m, true),
+                           CheckRange("traffic.walk_gap_m", t.walk_gap_m, true)})
+    if (!st.ok()) return st;
+  if (!(t.survey_density_scale > 0 && t.survey_density_scale <= 1))
+    return Status::InvalidArgument("WorldNuisances.traffic.survey_density_scale must be in (0, 1]");
+  return Status::Ok();
+}
+
 }  // namespace
 
 const char* WorldName(World world) { return world == World::kClean ? "clean" : "realistic"; }
@@ -61,6 +74,9 @@ Status WorldNuisances::Validate() const {
     return Status::InvalidArgument("WorldNuisances.survey_sigma_scale = " +
                                    std::to_string(survey_sigma_scale) + ": must be > 0 and finite");
   if (Status s = CheckSurvey(survey); !s.ok()) return s;
+  if (Status s = CheckTraffic(traffic); !s.ok()) return s;
+  if (Status s = CheckRange("changes.vehicle_moved_m", changes.vehicle_moved_m); !s.ok()) return s;
+  if (Status s = CheckRange("changes.works_per_100m", changes.works_per_100m); !s.ok()) return s;
   return CheckCalibration(calibration);
 }
 
@@ -68,6 +84,7 @@ WorldNuisances NuisancesForWorld(World world) {
   WorldNuisances n;
   n.world = world;
   n.survey.enabled = n.calibration.enabled = world == World::kRealistic;
+  n.changes.enabled = n.traffic.enabled = world == World::kRealistic;
   return n;
 }
 

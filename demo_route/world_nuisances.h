@@ -75,10 +75,52 @@ struct CalibrationErrorRanges {
   Range time_offset_s{0.005, 0.030};
 };
 
+// Moving traffic (traffic.h). Speeds and gaps are choices for a town street of a 50 km/h zone,
+// with the sources named beside each.
+struct TrafficRanges {
+  bool enabled = false;
+  // Each line's speed, m/s, one draw per line and drive: motor traffic 6-12 (22-43 km/h, town
+  // traffic below a 50 km/h limit, common practice); cyclists 3.5-6 (13-22 km/h, from memory);
+  // walkers 1.1-1.6 (from memory: a typical walking speed is about 1.3 m/s).
+  Range motor_speed_mps{6, 12};
+  Range cycle_speed_mps{3.5, 6};
+  Range walk_speed_mps{1.1, 1.6};
+  // Free road between one mover's back and the next one's front on a line, metres, each gap its
+  // own draw: motor 3-30 (dense town traffic to light; chosen so that a query drive has frames
+  // 10-40 % covered, measured in DEVELOPERS.md), cyclists 40-200, walkers 8-40.
+  Range motor_gap_m{3, 30};
+  Range cycle_gap_m{40, 200};
+  Range walk_gap_m{8, 40};
+  // Motor traffic's mix: a share of vans and of buses, the rest cars.
+  double van_share = 0.25, bus_share = 0.12;
+  // The survey's traffic is lighter (a survey is driven at quiet hours): gaps / this factor.
+  double survey_density_scale = 0.3;
+};
+
+// The world that changes between the survey and each query drive (changed_world.h). The survey
+// sees the town as laid out; each query drive draws its own changes. Shares are of the items the
+// survey saw, each item drawn on its own.
+struct ChangedWorldRanges {
+  bool enabled = false;
+  // Parked vehicles: gone, re-parked along the kerb by moved_m (either way), and new ones
+  // parked in gaps (a share of the survey's count). Kerbside spaces of a town street turn over
+  // within hours (common practice), so a drive hours or months later sees many changes.
+  double vehicle_gone_share = 0.25, vehicle_moved_share = 0.25, vehicle_added_share = 0.2;
+  Range vehicle_moved_m{1.5, 6.0};
+  // Facades along the route: new posters pasted on the poster band, a new shop sign, or the
+  // wall repainted (its dominant colour replaced).
+  double poster_share = 0.15, shop_sign_share = 0.08, repaint_share = 0.06;
+  // Works: sites per 100 m of route, each a fenced box or a barrier in the parking strip, or
+  // scaffolding in front of a facade.
+  Range works_per_100m{0.4, 1.0};
+};
+
 struct WorldNuisances {
   World world = World::kClean;
   SurveyErrorRanges survey;
   CalibrationErrorRanges calibration;
+  ChangedWorldRanges changes;
+  TrafficRanges traffic;
   // The survey's drive.csv sigma_h_m is the receiver's honest 1-sigma times this factor; < 1 is
   // an over-optimistic receiver. > 0 (DemoOptions::survey_sigma_scale fills it).
   double survey_sigma_scale = 1.0;
