@@ -18,6 +18,7 @@
 #include "indexer/vision/global_descriptor.h"
 #include "server/engine/absolute_pose.h"
 #include "server/engine/confidence.h"
+#include "server/engine/place_ambiguity.h"
 #include "server/engine/reference_pair.h"
 #include "server/engine/relative_pose.h"
 #include "server/engine/tile_cache.h"
@@ -88,6 +89,8 @@ bool LocalizerOptions::Validate(std::string* error) const {
   if (min_pnp_inliers < 6) return fail("min_pnp_inliers must be >= 6");
   if (!(covariance_scale > 0)) return fail("covariance_scale must be > 0");
   if (!(coarse_radius_m > 0)) return fail("coarse_radius_m must be > 0");
+  if (!(distinct_place_m > 0)) return fail("distinct_place_m must be > 0");
+  if (!(ambiguity_ratio >= 0)) return fail("ambiguity_ratio must be >= 0");
   if (!(time_budget_ms >= 0)) return fail("time_budget_ms must be >= 0");
   if (env == nullptr) return fail("env must not be null");
   std::string e;
@@ -263,11 +266,17 @@ std::vector<Verified> Localizer::Impl::Verify(const LocalFeatures& q,
   std::vector<Verified> out;
   RelativePoseOptions ro;
   ro.focal_px = 0.5 * (cam.fx + cam.fy);
+  // Past max_verified: a candidate at a place distinct from every verified one is checked (a
+  // rival place?); once two distinct places have verified, every candidate is, so that both
+  // places' evidence is weighed alike (place_ambiguity.h).
+  bool two_places = false;
   for (const Candidate& c : cands) {
     const ReferenceImage& ref = c.tile->data.images[c.image];
     ReferenceUse use{c.tile->data.key.ToString(), c.image,   ref.name, ref.position.lat_deg,
                      ref.position.lon_deg,        c.distance};
-    if (static_cast<int>(out.size()) >= o.max_verified ||
+    const bool elsewhere = !out.empty() && AtDistinctPlace(ref, out, o.distinct_place_m);
+    const bool full = static_cast<int>(out.size()) >= o.max_verified;
+    if ((full && !two_places && !elsewhere) ||
         (o.time_budget_ms > 0 && MsSince(start) > o.time_budget_ms)) {
       uses->push_back(use);  // ranked, not checked
       continue;
@@ -283,7 +292,8 @@ std::vector<Verified> Localizer::Impl::Verify(const LocalFeatures& q,
     if (rp.ok()) use.inliers = rp->inliers;
     if (rp.ok() && rp->inliers >= o.min_verified_inliers) {
       use.verified = true;
-      Verified v{c, {}, {}, {}};
+      Verified v{c, {}, {}, {}, rp->inliers};
+      two_places = two_places || elsewhere;
       // Every ratio-test match, not only the essential matrix's inliers: its 1 px threshold
       // drops good matches at low counts, and PnP's own RANSAC removes the wrong ones.
       for (const cv::DMatch& d : m) v.matches.push_back({d.queryIdx, d.trainIdx});
@@ -380,6 +390,10 @@ void Localizer::Impl::Finish(const AbsolutePose& pose, const std::vector<PointCo
                   "heading differs from the references' by " +
                       std::to_string(int(nearest_heading_diff)) + " deg (check failed)",
                   fix);
+  if (auto why = AmbiguityReason(verified, pose.center, o.distinct_place_m, o.ambiguity_ratio)) {
+    fix->reason = *why;
+    return;  // quality none: one of two look-alike places, not known which
+  }
   fix->quality = FixQuality::kRefined;
   fix->reason.clear();
   fix->lat_deg = g.lat_deg, fix->lon_deg = g.lon_deg, fix->height_m = g.height_m;
@@ -430,9 +444,15 @@ void Localizer::Impl::Pose(const LocalFeatures& q, const CameraModel& camera,
       why += (why.empty() ? "" : "; ") + std::string("reference pair: ") +
              (verified->size() < 2 ? "one verified reference" : pose.status().message());
   }
-  if (pose.ok())
+  if (pose.ok()) {
+    WeighSupport(
+        q.normalized, pose->camera_from_world, pose->center, po.threshold_px / po.focal_px,
+        [&](const Verified& v, int pid) {
+          return ToFrame(frame, *v.c.tile, v.c.tile->data.points[pid].enu);
+        },
+        verified);
     Finish(*pose, pts, *verified, frame, fix);
-  else
+  } else
     Coarse(*verified, note + why, fix);
 }
 

@@ -14,8 +14,10 @@
 //     propagated, plus the references' survey sigma, times covariance_scale (calibrated on a
 //     demo seed the tests do not use; DEVELOPERS.md "Confidence calibration"); radius95 numeric;
 //  6. checks: enough inliers, points in front, near its references, heading consistent;
-//     a failed check turns the fix coarse with the reason. A fix outside the prior is reported
-//     (outside_prior), not dropped: the prior may come from a spoofed receiver.
+//     a failed check turns the fix coarse with the reason; a rival place verified nearly as
+//     strongly as the fix's own (place ambiguity, options below) leaves it with none. A fix outside
+//     the prior is reported (outside_prior), not dropped: the prior may come from a spoofed
+//     receiver.
 //
 // Thread safety: Locate may be called concurrently from any number of threads; tiles are
 // shared through a thread-safe cache. Library thread pools are pinned per calling thread.
@@ -61,9 +63,16 @@ struct LocalizerOptions {
   double covariance_scale = 1.9;
   double max_fix_to_reference_m = 30;  // check: a fix this far from every reference is suspect
   double max_heading_diff_deg = 60;    // check: against the nearest verified reference
-  double min_pair_baseline_m = 1.5;    // pair fallback: references closer give weak geometry
-  double coarse_radius_m = 50;         // radius95 of a coarse (retrieval-only) fix
-  double time_budget_ms = 0;           // > 0: stop verifying new candidates past this
+  // Place ambiguity: references this far apart show distinct places. Once max_verified have
+  // passed, verification goes on through the remaining candidates at a place distinct from
+  // every verified one, until one passes; a pose whose own place has a distinct rival with at
+  // least ambiguity_ratio of its best reference's inliers is no fix (reason "ambiguous"):
+  // where two places look alike, the answer is none rather than one of them with a small radius.
+  double distinct_place_m = 30;
+  double ambiguity_ratio = 0.5;      // 0 would call every rival decisive; > 1 disables the check
+  double min_pair_baseline_m = 1.5;  // pair fallback: references closer give weak geometry
+  double coarse_radius_m = 50;       // radius95 of a coarse (retrieval-only) fix
+  double time_budget_ms = 0;         // > 0: stop verifying new candidates past this
   size_t tile_cache_bytes = size_t(2) << 30;
   // Reads the tile files for their SHA-256 check (tile_cache.h). Borrowed, not owned: must
   // outlive every Localizer opened with these options. Default: the real file system.

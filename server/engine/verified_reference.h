@@ -26,6 +26,10 @@ struct Verified {
   std::vector<std::pair<int, int>> matches;  // (query keypoint, reference keypoint), ratio test
   cv::Matx33d camera_from_frame;             // reference pose in the query's frame
   cv::Vec3d center;                          // reference camera centre, query's frame, metres
+  int inliers = 0;                           // essential-matrix inliers
+  // Of its matches whose keypoint observes a map point: how many were reprojected through the
+  // fix's pose (in front of it), and how many of those fell within the PnP threshold.
+  int tested = 0, agreeing = 0;
 };
 
 // A reference image's stored features, expanded for matching.

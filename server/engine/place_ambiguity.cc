@@ -1,0 +1,60 @@
+#include "server/engine/place_ambiguity.h"
+
+#include <algorithm>
+#include <cmath>
+
+#include "indexer/base/geo.h"
+
+namespace sightfix {
+
+bool AtDistinctPlace(const ReferenceImage& ref, const std::vector<Verified>& verified,
+                     double distinct_m) {
+  for (const Verified& v : verified) {
+    const GeoPoint& p = v.c.tile->data.images[v.c.image].position;
+    if (GeodesicBetween(p.lat_deg, p.lon_deg, ref.position.lat_deg, ref.position.lon_deg)
+            .distance_m <= distinct_m)
+      return false;
+  }
+  return true;
+}
+
+void WeighSupport(const std::vector<cv::Point2d>& query_normalized,
+                  const cv::Matx33d& camera_from_world, const cv::Vec3d& center, double threshold,
+                  const std::function<cv::Vec3d(const Verified&, int)>& to_frame,
+                  std::vector<Verified>* verified) {
+  for (Verified& v : *verified) {
+    const ReferenceImage& ref = v.c.tile->data.images[v.c.image];
+    v.tested = v.agreeing = 0;
+    for (auto [qk, rk] : v.matches) {
+      const int pid = ref.point_ids[rk];
+      if (pid < 0) continue;
+      const cv::Vec3d x = camera_from_world * (to_frame(v, pid) - center);
+      if (x[2] <= 0) continue;
+      ++v.tested;
+      const cv::Point2d& q = query_normalized[qk];
+      v.agreeing += std::hypot(x[0] / x[2] - q.x, x[1] / x[2] - q.y) <= threshold;
+    }
+  }
+}
+
+std::optional<std::string> AmbiguityReason(const std::vector<Verified>& verified,
+                                           const cv::Vec3d& center, double distinct_m,
+                                           double ratio) {
+  int here = 0, rival = 0;
+  double rival_m = 0;
+  for (const Verified& v : verified) {
+    const double d = cv::norm(v.center - center);
+    const bool agrees =
+        v.tested >= kMinTestedMatches ? 2 * v.agreeing >= v.tested : d <= distinct_m;
+    if (agrees)
+      here = std::max(here, v.inliers);
+    else if (d > distinct_m && v.inliers > rival)
+      rival = v.inliers, rival_m = d;
+  }
+  if (rival == 0 || rival < ratio * here) return std::nullopt;
+  return "ambiguous: a place " + std::to_string(static_cast<int>(rival_m)) +
+         " m away verified with " + std::to_string(rival) + " inliers, this one with " +
+         std::to_string(here);
+}
+
+}  // namespace sightfix

@@ -1,0 +1,46 @@
+// Place ambiguity: where two places look alike (a terrace of identical houses, two streets
+// built alike), references at both verify, and a pose at either would carry the small radius
+// of a good fix. The engine checks, before calling a fix refined, whether a place distinct from
+// the fix's own verified nearly as strongly; if so it answers none with the reason. A reference
+// speaks for the fix's place when its map points agree with the fix's pose (most of them
+// reproject within the PnP threshold), or, with too few points to tell, when it lies within
+// distinct_m of the fix; a rival is a reference that does not and lies farther than distinct_m.
+// Aliases closer than distinct_m (a repeated house front a few metres along) are not caught
+// (DEVELOPERS.md, "Place ambiguity").
+#pragma once
+
+#include <functional>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "indexer/map/tile_store.h"
+#include "server/engine/verified_reference.h"
+
+namespace sightfix {
+
+// True when `ref` lies more than distinct_m (geodesic, horizontal) from every verified
+// reference: a candidate worth verifying past max_verified, as evidence for another place.
+bool AtDistinctPlace(const ReferenceImage& ref, const std::vector<Verified>& verified,
+                     double distinct_m);
+
+// Sets each reference's tested and agreeing counts: its matches (query keypoint, reference
+// keypoint observing a map point), the point taken into the fix's frame by `to_frame`,
+// reprojected through camera_from_world and center; agreeing within threshold (normalized
+// image units) of the query keypoint.
+void WeighSupport(const std::vector<cv::Point2d>& query_normalized,
+                  const cv::Matx33d& camera_from_world, const cv::Vec3d& center, double threshold,
+                  const std::function<cv::Vec3d(const Verified&, int)>& to_frame,
+                  std::vector<Verified>* verified);
+
+// A reference with at least this many tested matches is judged by them, not by its distance.
+inline constexpr int kMinTestedMatches = 10;
+
+// With `center` the fix's camera centre in the frame of verified[i].center: the strongest
+// reference speaking for the fix's place (here) against the strongest rival, by
+// essential-matrix inliers. Returns the reason when rival > 0 and rival >= ratio * here.
+std::optional<std::string> AmbiguityReason(const std::vector<Verified>& verified,
+                                           const cv::Vec3d& center, double distinct_m,
+                                           double ratio);
+
+}  // namespace sightfix
