@@ -76,6 +76,14 @@ CameraModel FleetCamera() {
   return c;
 }
 
+// The query-day look, half an hour later, on the parked vehicles of query-day.
+Condition OffMapQuery() {
+  Condition c = Conditions()[1];
+  c.name = kOffMapDriveName;
+  c.start_offset_s += 1800;
+  return c;
+}
+
 // The clean world's survey: truth plus white noise, 1-sigma 2 cm per horizontal axis (RTK-grade).
 constexpr double kCleanSurveySigmaM = 0.02;
 
@@ -116,13 +124,24 @@ void PlanQuery(const DemoOptions& o, double L, bool fleet, Rng& rng, PlannedDriv
   d->plan.heading_jitter_deg = 1.6, d->plan.pitch_jitter_deg = 0.7, d->plan.roll_jitter_deg = 0.5;
 }
 
+// The off-map query: from up to 90 m before the excursion's turn along the route, into the side
+// street to the path's end, and back to where it started; the query camera and wander.
+void PlanOffMapQuery(const DemoOptions& o, const Town& town, Rng& rng, PlannedDrive* d) {
+  PlanQuery(o, town.route.length(), false, rng, d);
+  d->path = town.excursion.path;
+  const double start = std::max(0.0, town.excursion.path_mouth_m - 90);
+  const double lane = d->passes[0].lane_offset_m, end = d->path.length();
+  d->passes = {{start, end, lane, 0.25, rng.Uniform(0, 6.28)},
+               {end, start, lane, 0.25, rng.Uniform(0, 6.28)}};
+}
+
 // The true pose when the image of frame f is exposed, offset_s after f's time: f moved along the
 // drive by the path travelled in offset_s, its heading turned as the path turns (its attitude
 // jitter kept).
-Frame Exposure(const Town& town, const PlannedDrive& d, const Frame& f, double offset_s) {
+Frame Exposure(const PlannedDrive& d, const Frame& f, double offset_s) {
   if (offset_s == 0) return f;
-  const Frame a = PoseAtTime(town.route, d.passes, d.plan, f.time_s);
-  const Frame b = PoseAtTime(town.route, d.passes, d.plan, f.time_s + offset_s);
+  const Frame a = PoseAtTime(d.path, d.passes, d.plan, f.time_s);
+  const Frame b = PoseAtTime(d.path, d.passes, d.plan, f.time_s + offset_s);
   Frame g = f;
   g.time_s += offset_s;
   g.position += b.position - a.position;
@@ -173,7 +192,7 @@ void AddNuisances(const Town& town, const WorldNuisances& n, size_t i, Rng& rng,
     d->camera_written = d->camera;
   }
   for (const Frame& f : d->truth)
-    d->exposure.push_back(Exposure(town, *d, f, d->calibration_error.time_offset_s));
+    d->exposure.push_back(Exposure(*d, f, d->calibration_error.time_offset_s));
   if (i == 0 && n.survey.enabled) return AddSurveyError(town, n, nuisance_rng, d);
   for (size_t k = 0; k < d->truth.size(); ++k) {
     d->reported.push_back(i == 0 ? NoisyPose(d->truth[k], rng) : d->exposure[k]);
@@ -217,20 +236,24 @@ std::vector<PlannedDrive> PlanDrives(const Town& town, const DemoOptions& o) {
   nuisances.survey_sigma_scale = o.survey_sigma_scale;
   std::vector<PlannedDrive> drives;
   const double L = town.route.length();
-  const std::vector<Condition> conditions = Conditions();
+  std::vector<Condition> conditions = Conditions();
+  if (town.has_excursion) conditions.push_back(OffMapQuery());
   for (size_t i = 0; i < conditions.size(); ++i) {
     Rng rng(HashSeed(o.seed, 0x647276, i)), nuisance_rng(HashSeed(o.seed, 0x6e7569, i));
     PlannedDrive d;
     d.condition = conditions[i];
+    d.path = town.route;
     if (i == 0)
       PlanSurvey(o, L, &d);
+    else if (d.condition.name == kOffMapDriveName)
+      PlanOffMapQuery(o, town, rng, &d);
     else
       PlanQuery(o, L, i == 3, rng, &d);
-    d.truth = PlanFrames(town.route, d.passes, d.plan, rng);
+    d.truth = PlanFrames(d.path, d.passes, d.plan, rng);
     AddNuisances(town, nuisances, i, rng, nuisance_rng, &d);
     if (i > 0) {
       d.spoofing = PlanSpoofing(DriveDuration(d.passes, d.plan), rng);
-      d.gnss = SimulateGnss(town.route, d.passes, d.plan, GnssOptions{}, d.spoofing, rng);
+      d.gnss = SimulateGnss(d.path, d.passes, d.plan, GnssOptions{}, d.spoofing, rng);
     }
     d.world = WorldOfDrive(town, nuisances, o.seed, i, d);
     drives.push_back(std::move(d));
@@ -240,7 +263,7 @@ std::vector<PlannedDrive> PlanDrives(const Town& town, const DemoOptions& o) {
 
 CanyonTest DriveCanyonTest(const Town& town, const PlannedDrive& d, double min_aspect_ratio) {
   return [&town, &d, min_aspect_ratio](double t) {
-    const Frame f = PoseAtTime(town.route, d.passes, d.plan, t);
+    const Frame f = PoseAtTime(d.path, d.passes, d.plan, t);
     const double h = f.attitude.heading_deg * M_PI / 180;
     const cv::Vec2d p(f.position[0], f.position[1]), travel(std::sin(h), std::cos(h));
     return CanyonAt(town, p, travel).aspect_ratio >= min_aspect_ratio;

@@ -22,6 +22,8 @@ namespace sightfix::demo {
 inline const GeoPoint kTownOrigin{44.0, -40.0, 40.0};
 // 2026-05-04T09:00:00Z, the survey's start; query drives start later the same day.
 constexpr double kSurveyStartUnix = 1777885200.0;
+// The realistic world's query drive that leaves the map (look_alikes.h, the excursion).
+inline constexpr char kOffMapDriveName[] = "query-offmap";
 
 // One drive's look and its camera's post-processing.
 struct Condition {
@@ -37,6 +39,8 @@ struct Condition {
 
 struct PlannedDrive {
   Condition condition;
+  // The centreline the passes follow: the route, or (query-offmap) the excursion's path.
+  Polyline path;
   CameraModel camera;                    // the camera the images are rendered with (the truth)
   CameraModel camera_written;            // camera.yml: camera with calibration_error applied
   bool calibration_error_model = false;  // realistic world: camera.yml is not the truth
@@ -62,7 +66,9 @@ struct PlannedDrive {
   DriveWorld world;
 };
 
-// survey, query-day, query-dusk, query-overcast, in this order (index = vehicle variant).
+// survey, query-day, query-dusk, query-overcast, in this order (index = vehicle variant), and
+// where the town has an excursion (the realistic world) query-offmap last: the query-day look,
+// out along the route, into the side street to its end and back.
 // REQUIRES: options.Validate().
 std::vector<PlannedDrive> PlanDrives(const Town& town, const DemoOptions& options);
 

@@ -8,6 +8,7 @@
 #include <opencv2/imgcodecs.hpp>
 #include <opencv2/imgproc.hpp>
 
+#include "demo_route/look_alikes.h"
 #include "indexer/base/iso_time.h"
 #include "indexer/builder/exif_gps.h"
 #include "indexer/builder/geoid.h"
@@ -104,7 +105,7 @@ Status WriteGpxTrack(const PlannedDrive& d, const Town& town, const EnuFrame& en
   char buf[256];
   for (size_t i = 0; i < times.size(); ++i) {
     const double t = times[i];
-    cv::Vec3d position = PoseAtTime(town.route, d.passes, d.plan, t).position;
+    cv::Vec3d position = PoseAtTime(d.path, d.passes, d.plan, t).position;
     if (!errors.empty()) position += errors[i].position_m;
     const GeoPoint p = enu.ToGeo(position);
     std::snprintf(buf, sizeof(buf),
@@ -332,6 +333,10 @@ nlohmann::json TownJson(const DemoOptions& o, const Town& town,
     j["drives"][d.condition.name] = DriveJson(d);
     AddWorldJson(town, d, &j["drives"][d.condition.name]);
   }
+  if (!town.look_alikes.empty()) j["look_alikes"] = LookAlikesJson(town);
+  for (const PlannedDrive& d : drives)
+    if (d.condition.name == kOffMapDriveName)
+      j["excursion"] = ExcursionJson(town, d.condition.name, d.truth);
   return j;
 }
 

@@ -149,15 +149,20 @@ bool DemoOptions::Validate(std::string* error) const {
   return true;
 }
 
+TownOptions TownOptionsFor(const DemoOptions& o) {
+  TownOptions t;
+  t.seed = o.seed;
+  t.route_length_m = o.route_length_m;
+  t.look_alikes = t.excursion = o.world == World::kRealistic;
+  return t;
+}
+
 Result<DemoSummary> GenerateDemoTown(const DemoOptions& o) {
   std::string error;
   if (!o.Validate(&error)) return Status::InvalidArgument(error);
   const auto t_start = std::chrono::steady_clock::now();
   PinLibraryThreads();  // we parallelise across images ourselves
-  TownOptions town_options;
-  town_options.seed = o.seed;
-  town_options.route_length_m = o.route_length_m;
-  const Town town = BuildTown(town_options);
+  const Town town = BuildTown(TownOptionsFor(o));
   const std::vector<PlannedDrive> drives = PlanDrives(town, o);
   std::vector<DriveWorld> worlds;  // the scene's variant = the drive's index
   for (const PlannedDrive& d : drives) worlds.push_back(d.world);

@@ -7,6 +7,7 @@
 #include <string>
 #include <vector>
 
+#include "demo_route/town_layout.h"
 #include "demo_route/world_nuisances.h"
 #include "indexer/base/status.h"
 
@@ -50,5 +51,9 @@ struct DemoSummary {
 };
 
 Result<DemoSummary> GenerateDemoTown(const DemoOptions& options);
+
+// The layout options GenerateDemoTown builds its town with: seed and route length from options;
+// in the realistic world also the look-alike stretches and the excursion (look_alikes.h).
+TownOptions TownOptionsFor(const DemoOptions& options);
 
 }  // namespace sightfix::demo

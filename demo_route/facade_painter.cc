@@ -15,6 +15,9 @@ namespace sightfix::demo {
 namespace {
 
 constexpr double kPpm = kFacadeTexelsPerM;
+// A chain's shop front: its width and the height of its ground floor, metres, the same on every
+// building so the fronts come out alike texel for texel.
+constexpr double kChainFrontM = 5.4, kChainFloorM = 3.4;
 
 // Brick courses of 0.25 x 0.075 m bricks, each its own shade, on mortar.
 void PaintBrick(cv::Mat& img, Rng& r, const cv::Scalar& base) {
@@ -191,11 +194,17 @@ void PaintUpperFloors(cv::Mat& img, Rng& r, const FacadeSpec& spec, const cv::Sc
   }
 }
 
+// The door colours a terrace house may have instead of its design's (FacadeVariant::door_tint):
+// red, blue, green, yellow (BGR).
+const cv::Scalar kDoorTints[] = {{40, 40, 170}, {150, 70, 30}, {50, 120, 40}, {40, 180, 210}};
+
 // A residential ground floor: a numbered door and small windows clear of it.
-void PaintResidentialFloor(cv::Mat& img, Rng& r, const cv::Scalar& frame, const GlyphSet& glyphs) {
+void PaintResidentialFloor(cv::Mat& img, Rng& r, const cv::Scalar& frame, int door_tint,
+                           const GlyphSet& glyphs) {
   const double door_x = r.Uniform(0.2, 0.7) * img.cols;
+  const cv::Scalar door = RandomColour(r, 0.2, 0.8, 0.1, 0.5);
   cv::rectangle(img, cv::Rect2d(door_x, img.rows - 2.3 * kPpm, 1.1 * kPpm, 2.3 * kPpm),
-                RandomColour(r, 0.2, 0.8, 0.1, 0.5), -1);
+                door_tint >= 0 ? kDoorTints[door_tint % 4] : door, -1);
   glyphs.DrawText(img, {door_x + 1.3 * kPpm, img.rows - 2.0 * kPpm}, 0.2 * kPpm, 2, r.Next(),
                   cv::Scalar(240, 240, 240), 2);
   for (double x = 0.6 * kPpm; x < img.cols - 1.5 * kPpm; x += r.Uniform(2.0, 3.0) * kPpm)
@@ -208,8 +217,8 @@ void PaintResidentialFloor(cv::Mat& img, Rng& r, const cv::Scalar& frame, const 
 void PaintGroundFloor(cv::Mat& img, Rng& r, const FacadeSpec& spec, const cv::Scalar& frame,
                       double floor_h, const GlyphSet& glyphs) {
   const double gx0 = 0.3 * kPpm, gx1 = img.cols - 0.3 * kPpm;
-  if (!(r.Chance(0.7) && spec.width_m > 5)) {
-    PaintResidentialFloor(img, r, frame, glyphs);
+  if (!(r.Chance(0.7) && spec.width_m > 5) || spec.variant.residential) {
+    PaintResidentialFloor(img, r, frame, spec.variant.door_tint, glyphs);
     return;
   }
   const int shops = spec.width_m > 14 && r.Chance(0.5) ? 2 : 1;
@@ -265,6 +274,22 @@ void PaintWeathering(cv::Mat& img, Rng& r, const FacadeSpec& spec, const cv::Sca
   PaintStains(img, r, spec, wall);
 }
 
+// A chain's shop fronts across the ground floor, over whatever was painted there: a fascia band,
+// then as many kChainFrontM fronts as fit, centred, each painted from the chain's seed alone.
+void PaintChainShops(cv::Mat& img, uint64_t chain_seed, const GlyphSet& glyphs) {
+  const double floor_h = kChainFloorM * kPpm, front = kChainFrontM * kPpm;
+  const int n = std::max(1, int((img.cols - 0.6 * kPpm) / front));
+  Rng fascia(chain_seed);
+  cv::rectangle(img, cv::Rect2d(0, img.rows - floor_h, img.cols, floor_h),
+                RandomColour(fascia, 0.2, 0.6, 0.3, 0.8), -1);
+  const double x0 = (img.cols - n * front) / 2;
+  for (int i = 0; i < n; ++i) {
+    Rng r(HashSeed(chain_seed, 1));
+    PaintShopFront(img, r, x0 + i * front, x0 + (i + 1) * front - 0.3 * kPpm, floor_h, kPpm,
+                   glyphs);
+  }
+}
+
 }  // namespace
 
 cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs) {
@@ -281,6 +306,7 @@ cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs) {
   PaintGroundFloor(img, r, spec, frame, floor_h, glyphs);
   PaintPosters(img, r, glyphs);
   PaintWeathering(img, r, spec, wall);
+  if (spec.variant.chain_shop_seed != 0) PaintChainShops(img, spec.variant.chain_shop_seed, glyphs);
   return img;
 }
 

@@ -3,7 +3,9 @@
 #include <algorithm>
 #include <cmath>
 
+#include "demo_route/look_alikes.h"
 #include "demo_route/random.h"
+#include "demo_route/street_placement.h"
 
 namespace sightfix::demo {
 namespace {
@@ -100,8 +102,9 @@ bool PointInConvex(const std::array<cv::Vec2d, 4>& q, const cv::Vec2d& p) {
   return true;
 }
 
-// Separating-axis test for two convex quads; touching edges do not count as overlap.
-bool Overlap(const std::array<cv::Vec2d, 4>& a, const std::array<cv::Vec2d, 4>& b) {
+}  // namespace
+
+bool FootprintsOverlap(const std::array<cv::Vec2d, 4>& a, const std::array<cv::Vec2d, 4>& b) {
   for (const auto* poly : {&a, &b}) {
     for (int i = 0; i < 4; ++i) {
       const cv::Vec2d axis = Perp((*poly)[(i + 1) % 4] - (*poly)[i]);
@@ -118,46 +121,33 @@ bool Overlap(const std::array<cv::Vec2d, 4>& a, const std::array<cv::Vec2d, 4>& 
   return true;
 }
 
-class Placer {
- public:
-  explicit Placer(Town* town) : town_(town) {}
-
-  // Adds the building if it keeps clear of every street and every other building.
-  bool TryBuilding(const std::array<cv::Vec2d, 4>& fp, int front_edge, Rng& rng) {
-    for (int i = 0; i < 4; ++i) {
-      const cv::Vec2d a = fp[i], b = fp[(i + 1) % 4];
-      const int n = static_cast<int>(std::ceil(cv::norm(b - a) / 0.7));
-      for (int k = 0; k <= n; ++k) {
-        if (DistanceToStreets(*town_, a + (b - a) * (double(k) / n)) <
-            StreetSection::kFacadeM - 0.05)
-          return false;
-      }
+bool FootprintFits(const Town& town, const std::array<cv::Vec2d, 4>& fp) {
+  for (int i = 0; i < 4; ++i) {
+    const cv::Vec2d a = fp[i], b = fp[(i + 1) % 4];
+    const int n = static_cast<int>(std::ceil(cv::norm(b - a) / 0.7));
+    for (int k = 0; k <= n; ++k) {
+      if (DistanceToStreets(town, a + (b - a) * (double(k) / n)) < StreetSection::kFacadeM - 0.05)
+        return false;
     }
-    for (const Building& other : town_->buildings)
-      if (Overlap(fp, other.footprint)) return false;
-    Building b;
-    b.footprint = fp;
-    b.front_edge = front_edge;
-    b.floors = rng.Int(4, 7);
-    const double storey_m = rng.Uniform(3.0, 3.5), roof_m = rng.Uniform(0.3, 1.2);
-    b.height_m = b.floors * storey_m + roof_m;
-    b.seed = rng.Next();
-    town_->buildings.push_back(b);
-    return true;
   }
+  for (const Building& other : town.buildings)
+    if (FootprintsOverlap(fp, other.footprint)) return false;
+  return true;
+}
 
-  bool InsideBuilding(const cv::Vec2d& p) const {
-    for (const Building& b : town_->buildings)
-      if (PointInConvex(b.footprint, p)) return true;
-    return false;
-  }
+bool TryAddBuilding(Town* town, const std::array<cv::Vec2d, 4>& fp, int front_edge, Rng& rng) {
+  if (!FootprintFits(*town, fp)) return false;
+  Building b;
+  b.footprint = fp;
+  b.front_edge = front_edge;
+  b.floors = rng.Int(4, 7);
+  const double storey_m = rng.Uniform(3.0, 3.5), roof_m = rng.Uniform(0.3, 1.2);
+  b.height_m = b.floors * storey_m + roof_m;
+  b.seed = rng.Next();
+  town->buildings.push_back(b);
+  return true;
+}
 
- private:
-  Town* town_;
-};
-
-// Footprint of a building whose front runs from a to b (b on the viewer's right seen from the
-// street), `depth` metres deep; counter-clockwise, front edge index returned in *front.
 std::array<cv::Vec2d, 4> FrontFootprint(const cv::Vec2d& a, const cv::Vec2d& b, double depth,
                                         int* front) {
   const cv::Vec2d along = (b - a) / cv::norm(b - a);
@@ -167,33 +157,31 @@ std::array<cv::Vec2d, 4> FrontFootprint(const cv::Vec2d& a, const cv::Vec2d& b, 
   return {a, b, b + back, a + back};
 }
 
-void PlaceStreetBuildings(Town* town, Placer* placer, Rng& rng) {
-  for (size_t si = 0; si < town->streets.size(); ++si) {
-    const Polyline& c = town->streets[si].centre;
-    for (int side : {+1, -1}) {
-      double s = 0;
-      while (s < c.length() - 6) {
-        const double w = std::min(rng.Uniform(8, 22), c.length() - s);
-        const double setback = rng.Uniform(0.0, 1.2), depth = rng.Uniform(10, 16);
-        cv::Vec2d t0, t1;
-        const cv::Vec2d p0 = c.At(s, &t0), p1 = c.At(s + w, &t1);
-        // On curves a straight front cuts the chord's sagitta into the sidewalk: step it back.
-        bool placed = false;
-        for (double extra = 0; extra <= 1.6 && !placed && w >= 6; extra += 0.8) {
-          const double off = StreetSection::kFacadeM + setback + extra;
-          // Right side (side +1) is on the right of travel: normal -Perp(t).
-          const cv::Vec2d q0 = p0 - side * off * Perp(t0), q1 = p1 - side * off * Perp(t1);
-          int front = 0;
-          // Seen from the street, the right-side front runs q1 -> q0 left to right.
-          const auto fp = side > 0 ? FrontFootprint(q1, q0, depth, &front)
-                                   : FrontFootprint(q0, q1, depth, &front);
-          placed = placer->TryBuilding(fp, front, rng);
-        }
-        if (placed) {
-          s += w + (rng.Chance(0.15) ? rng.Uniform(3, 6) : rng.Uniform(0, 1.5));
-        } else {
-          s += 1.5;
-        }
+void PlaceBuildingsAlong(Town* town, int street, Rng& rng, double from_m) {
+  const Polyline c = town->streets[street].centre;
+  for (int side : {+1, -1}) {
+    double s = from_m;
+    while (s < c.length() - 6) {
+      const double w = std::min(rng.Uniform(8, 22), c.length() - s);
+      const double setback = rng.Uniform(0.0, 1.2), depth = rng.Uniform(10, 16);
+      cv::Vec2d t0, t1;
+      const cv::Vec2d p0 = c.At(s, &t0), p1 = c.At(s + w, &t1);
+      // On curves a straight front cuts the chord's sagitta into the sidewalk: step it back.
+      bool placed = false;
+      for (double extra = 0; extra <= 1.6 && !placed && w >= 6; extra += 0.8) {
+        const double off = StreetSection::kFacadeM + setback + extra;
+        // Right side (side +1) is on the right of travel: normal -Perp(t).
+        const cv::Vec2d q0 = p0 - side * off * Perp(t0), q1 = p1 - side * off * Perp(t1);
+        int front = 0;
+        // Seen from the street, the right-side front runs q1 -> q0 left to right.
+        const auto fp = side > 0 ? FrontFootprint(q1, q0, depth, &front)
+                                 : FrontFootprint(q0, q1, depth, &front);
+        placed = TryAddBuilding(town, fp, front, rng);
+      }
+      if (placed) {
+        s += w + (rng.Chance(0.15) ? rng.Uniform(3, 6) : rng.Uniform(0, 1.5));
+      } else {
+        s += 1.5;
       }
     }
   }
@@ -207,7 +195,7 @@ void CloseStreetEnd(Town* town, const cv::Vec2d& end, const cv::Vec2d& dir, Rng&
   const auto fp = FrontFootprint(a, b, 12, &front);
   // The street itself ends here, so test overlap only (the front stands on the road end).
   for (const Building& o : town->buildings)
-    if (Overlap(fp, o.footprint)) return;
+    if (FootprintsOverlap(fp, o.footprint)) return;
   Building bl;
   bl.footprint = fp;
   bl.front_edge = front;
@@ -215,6 +203,14 @@ void CloseStreetEnd(Town* town, const cv::Vec2d& end, const cv::Vec2d& dir, Rng&
   bl.height_m = bl.floors * 3.3 + 0.8;
   bl.seed = rng.Next();
   town->buildings.push_back(bl);
+}
+
+namespace {
+
+bool InsideBuilding(const Town& town, const cv::Vec2d& p) {
+  for (const Building& b : town.buildings)
+    if (PointInConvex(b.footprint, p)) return true;
+  return false;
 }
 
 bool ClearOfCarriageways(const Town& town, const std::vector<cv::Vec2d>& pts, double min_m) {
@@ -284,7 +280,7 @@ void PlacePoleRow(Town* town, const StreetSide& street, const PoleRow& row, Rng&
 }
 
 // Street trees along one side, every 11-17 m, clear of poles, streets and buildings.
-void PlantTrees(Town* town, const Placer& placer, const StreetSide& street, Rng& rng) {
+void PlantTrees(Town* town, const StreetSide& street, Rng& rng) {
   for (double s = rng.Uniform(4, 10); s < street.centre.length() - 2; s += rng.Uniform(11, 17)) {
     cv::Vec2d t;
     Tree tr;
@@ -294,14 +290,14 @@ void PlantTrees(Town* town, const Placer& placer, const StreetSide& street, Rng&
     tr.seed = rng.Next();
     bool near_pole = false;
     for (const Pole& p : town->poles) near_pole |= cv::norm(p.base - tr.base) < 1.8;
-    if (!near_pole && DistanceToStreets(*town, tr.base) > 9.0 && !placer.InsideBuilding(tr.base))
+    if (!near_pole && DistanceToStreets(*town, tr.base) > 9.0 && !InsideBuilding(*town, tr.base))
       town->trees.push_back(tr);
   }
 }
 
 // Per street, on each side in turn: parked vehicles, lamps, signs and (on avenues, about two
 // streets in three) trees.
-void PlaceStreetFurniture(Town* town, Placer* placer, Rng& rng) {
+void PlaceStreetFurniture(Town* town, Rng& rng) {
   int vehicle_id = 0;
   for (size_t si = 0; si < town->streets.size(); ++si) {
     const Polyline& c = town->streets[si].centre;
@@ -311,12 +307,22 @@ void PlaceStreetFurniture(Town* town, Placer* placer, Rng& rng) {
       ParkVehicles(town, street, rng, &vehicle_id);
       PlacePoleRow(town, street, {Pole::kLamp, 3, 15, 24, 32, 8.6, 5.5, 7.0}, rng);
       PlacePoleRow(town, street, {Pole::kSign, 10, 40, 30, 55, 8.9, 2.4, 3.0}, rng);
-      if (avenue) PlantTrees(town, *placer, street, rng);
+      if (avenue) PlantTrees(town, street, rng);
     }
   }
 }
 
 }  // namespace
+
+void PlaceStreetPolesAndTrees(Town* town, int street_index, bool trees, Rng& rng) {
+  const Polyline c = town->streets[street_index].centre;
+  for (int side : {+1, -1}) {
+    const StreetSide street{c, side};
+    PlacePoleRow(town, street, {Pole::kLamp, 3, 15, 24, 32, 8.6, 5.5, 7.0}, rng);
+    PlacePoleRow(town, street, {Pole::kSign, 10, 40, 30, 55, 8.9, 2.4, 3.0}, rng);
+    if (trees) PlantTrees(town, street, rng);
+  }
+}
 
 Polyline::Polyline(std::vector<cv::Vec2d> points) : points_(std::move(points)) {
   arc_.resize(points_.size());
@@ -380,10 +386,12 @@ Town BuildTown(const TownOptions& options) {
   const Polyline& first = town.streets.front().centre;
   ends.emplace_back(first.points().front(), -legs[0].dir);
 
-  Placer placer(&town);
   for (const auto& [end, dir] : ends) CloseStreetEnd(&town, end, dir, rng);
-  PlaceStreetBuildings(&town, &placer, rng);
-  PlaceStreetFurniture(&town, &placer, rng);
+  for (size_t si = 0; si < town.streets.size(); ++si)
+    PlaceBuildingsAlong(&town, static_cast<int>(si), rng);
+  PlaceStreetFurniture(&town, rng);
+  if (options.excursion) AddExcursionStreet(&town);
+  if (options.look_alikes) AddLookAlikes(&town);
   return town;
 }
 

@@ -48,6 +48,19 @@ struct Street {
   bool on_route = false;
 };
 
+// How a building's street front departs from the design its seed alone would paint: the
+// realistic world's look-alikes (look_alikes.h). Defaults for every other building.
+struct FacadeVariant {
+  // Non-zero: the ground floor is a row of identical chain-shop fronts, each painted from this
+  // seed, whatever the building's own seed would put there.
+  uint64_t chain_shop_seed = 0;
+  // The ground floor is a residential door with small windows (a terrace house).
+  bool residential = false;
+  // >= 0: the front door is painted in colour door_tint of a small palette instead of its
+  // seed's colour (a terrace house that differs from its neighbours by its door alone).
+  int door_tint = -1;
+};
+
 // A box standing on the ground: footprint corners counter-clockwise seen from above.
 struct Building {
   std::array<cv::Vec2d, 4> footprint;
@@ -55,6 +68,8 @@ struct Building {
   double height_m = 0;
   int floors = 0;
   uint64_t seed = 0;
+  FacadeVariant facade;
+  bool off_map = false;  // stands on the excursion street (the survey never drives there)
 };
 
 struct Vehicle {
@@ -87,6 +102,29 @@ struct TownOptions {
   double stub_length_m = 60;     // cross-street arms that the route does not take
   double curve_length_m = 150;   // the S-curve leg
   double curve_offset_m = 26;    // its lateral shift
+  // The realistic world's additions (look_alikes.h), built after everything else from seeds
+  // of their own, so the rest of the town is the clean town's: look-alike stretches (a
+  // terrace, a chain-shop parade, a pair of twin stretches) and an off-map side street.
+  bool look_alikes = false;
+  bool excursion = false;
+};
+
+// A stretch of the route whose facades repeat (look_alikes.h): metres of route arc length.
+struct LookAlikeStretch {
+  enum Kind { kTerrace, kChainShops, kTwin } kind = kTerrace;
+  double route_from_m = 0, route_to_m = 0;
+  // kTwin: the stretch whose building sequence this one repeats (same length, same heading).
+  double mirrors_from_m = -1, mirrors_to_m = -1;
+  int buildings = 0;  // buildings whose fronts are part of it (both sides of the street)
+};
+
+// A side street the survey never drives (look_alikes.h), leaving the route at right angles.
+struct Excursion {
+  int street = -1;            // index into Town::streets (on_route false)
+  double mouth_route_m = 0;   // route arc length where its centreline meets the route's
+  Polyline path;              // the drive: route from 0, a right turn, then the side street
+  double path_mouth_m = 0;    // path arc length where the turn begins
+  double off_map_min_m = 55;  // a point this far from the surveyed route is off the map
 };
 
 struct Town {
@@ -97,6 +135,9 @@ struct Town {
   std::vector<Vehicle> vehicles;
   std::vector<Pole> poles;
   std::vector<Tree> trees;
+  std::vector<LookAlikeStretch> look_alikes;  // empty unless options.look_alikes
+  bool has_excursion = false;                 // options.excursion
+  Excursion excursion;
 };
 
 Town BuildTown(const TownOptions& options);

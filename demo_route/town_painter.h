@@ -12,6 +12,8 @@
 #include <opencv2/core.hpp>
 #include <vector>
 
+#include "demo_route/town_layout.h"
+
 namespace sightfix::demo {
 
 constexpr double kFacadeTexelsPerM = 56.0;
@@ -60,10 +62,12 @@ struct FacadeSpec {
   double width_m = 10, height_m = 10;
   int floors = 3;
   uint64_t seed = 0;
+  FacadeVariant variant;  // the look-alikes' departures from the seed's design
 };
 
 // The street front of a building (facade_painter.cc): wall material, floors of windows, a
-// shop or residential ground floor, posters and weathering. BGR, kFacadeTexelsPerM.
+// shop or residential ground floor, posters and weathering. BGR, kFacadeTexelsPerM. Specs equal
+// in every field paint equal textures; a default variant paints what the seed alone gives.
 cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs);
 cv::Mat PaintPlainWall(double width_m, double height_m, uint64_t seed);
 // One face of a vehicle's box, length_m x height_m: 0 and 1 the long sides, 2 the front (white

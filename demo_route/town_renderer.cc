@@ -102,7 +102,7 @@ void TownScene::AddBuildings(const Town& town) {
       const double w = cv::norm(b.footprint[(e + 1) % 4] - b.footprint[e]);
       const uint64_t seed = HashSeed(b.seed, e);
       if (e == b.front_edge) {
-        const FacadeSpec spec{w, b.height_m, b.floors, seed};
+        const FacadeSpec spec{w, b.height_m, b.floors, seed, b.facade};
         tex[e] =
             textures_.Add([spec, glyphs] { return PaintFacade(spec, *glyphs); }, kFacadeTexelsPerM);
         facade_specs_.push_back(spec);

@@ -116,9 +116,7 @@ TEST(DemoWorldTest, RealisticTownWritesItsTruth) {
       ReadDriveManifest((out / "survey/truth.csv").string());
   ASSERT_TRUE(reported.ok() && truth.ok());
   ASSERT_EQ(reported->size(), truth->size());
-  TownOptions t;
-  t.seed = o.seed, t.route_length_m = o.route_length_m;
-  const Town layout = BuildTown(t);
+  const Town layout = BuildTown(TownOptionsFor(o));
   const PlannedDrive plan = PlanDrives(layout, o)[0];
   ASSERT_EQ(plan.survey_errors.size(), reported->size());
   const double offset = town["drives"]["survey"]["calibration_error"]["time_offset_s"];
