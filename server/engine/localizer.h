@@ -44,6 +44,12 @@ enum class PoseMethod {
   kPair,    // query-time triangulation of two references only
 };
 
+// How the map's survey poses err (the survey term of the confidence, localizer.cc).
+enum class SurveyError {
+  kCorrelated,  // a drift shared by neighbouring frames: real GNSS/INS surveys
+  kWhite,       // independent per frame: the clean demo town's 2 cm
+};
+
 struct LocalizerOptions {
   int top_k = 8;         // retrieval candidates verified at most
   int max_verified = 3;  // stop verifying after this many pass
@@ -61,6 +67,7 @@ struct LocalizerOptions {
   // at scale 1 was 1.86 (day 65 fixes, dusk 37, overcast 70; mean 0.52 / 0.51 / 0.55, so one
   // scale fits all three). DEVELOPERS.md "Confidence calibration" has the command.
   double covariance_scale = 1.9;
+  SurveyError survey_error = SurveyError::kCorrelated;
   double max_fix_to_reference_m = 30;  // check: a fix this far from every reference is suspect
   double max_heading_diff_deg = 60;    // check: against the nearest verified reference
   // Place ambiguity: references this far apart show distinct places. Once max_verified have

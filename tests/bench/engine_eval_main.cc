@@ -3,7 +3,8 @@
 // comparison and scripts/bench.sh; evaluators get `sightfix replay` (the evaluator issue).
 //
 // Usage: engine_eval --map MAPDIR --drive QUERYDIR [--drive ...] [--prior none|noisy]
-//          [--method auto|points|pair] [--covariance-scale X] [--limit N] [--seed N] [--jobs N]
+//          [--method auto|points|pair] [--covariance-scale X] [--survey-error correlated|white]
+//          [--limit N] [--seed N] [--jobs N]
 //          [--csv FILE]
 #include <boost/program_options.hpp>
 #include <cstdio>
@@ -17,7 +18,7 @@ namespace po = boost::program_options;
 
 int main(int argc, char** argv) {
   sightfix::PinLibraryThreads();
-  std::string map_dir, prior = "noisy", method = "auto", csv;
+  std::string map_dir, prior = "noisy", method = "auto", survey_error = "correlated", csv;
   std::vector<std::string> drives;
   sightfix::LocalizerOptions lo;
   sightfix::RouteEvalOptions eo;
@@ -27,6 +28,8 @@ int main(int argc, char** argv) {
       "prior", po::value(&prior), "none or noisy (150 m circle within 100 m of the truth)")(
       "method", po::value(&method), "auto, points or pair")(
       "covariance-scale", po::value(&lo.covariance_scale), "LocalizerOptions::covariance_scale")(
+      "survey-error", po::value(&survey_error),
+      "correlated (real surveys) or white (the clean demo town): LocalizerOptions::survey_error")(
       "limit", po::value(&eo.limit), "first N queries of each drive")(
       "seed", po::value(&eo.seed), "prior noise seed")("jobs", po::value(&eo.jobs), "threads")(
       "csv", po::value(&csv), "write one row per query here");
@@ -42,6 +45,11 @@ int main(int argc, char** argv) {
     std::cout << desc << "\n";
     return vm.count("help") ? 0 : 2;
   }
+  if (survey_error != "correlated" && survey_error != "white") {
+    std::fprintf(stderr, "engine_eval: --survey-error must be correlated or white\n");
+    return 2;
+  }
+  if (survey_error == "white") lo.survey_error = sightfix::SurveyError::kWhite;
   if (method == "points") lo.method = sightfix::PoseMethod::kPoints;
   if (method == "pair") lo.method = sightfix::PoseMethod::kPair;
   eo.prior = prior == "none" ? sightfix::PriorMode::kNone : sightfix::PriorMode::kNoisy;
