@@ -16,18 +16,6 @@ map="$data/map" drive="$data/town/query-day"
 img="$drive/images/000005.jpg" img2="$drive/images/000006.jpg" cam="$drive/camera.yml"
 truth="$(awk -F, 'NR == 7 { print $3 "," $4 }' "$drive/drive.csv")"  # the row of 000005.jpg
 
-# expect NAME EXIT PATTERN -- COMMAND...: the exit code and a line of stdout+stderr matching.
-expect() {
-  local name="$1" want="$2" pattern="$3" out rc
-  shift 4
-  out="$("$@" 2>&1)"
-  rc=$?
-  if [ "$rc" -eq "$want" ] && printf '%s' "$out" | grep -q -- "$pattern"; then
-    ok "$name"
-  else
-    bad "$name (exit $rc, want $want; output: $(printf '%s' "$out" | head -3))"
-  fi
-}
 # field FILE PYTHON_EXPR: prints the expression over the JSON in FILE (bound to j).
 field() { "$py" -c "import json, sys; j = json.load(open(sys.argv[1])); print($2)" "$1"; }
 

@@ -11,19 +11,6 @@ build="$2"
 . "$src/tests/lib/checks.sh"
 demo="$build/demo_route/sightfix-demo-route"
 
-expect() {  # expect NAME EXPECTED_EXIT PATTERN -- COMMAND...
-  local name="$1" want="$2" pattern="$3"
-  shift 4
-  local out rc
-  out="$("$@" 2>&1)"
-  rc=$?
-  if [ "$rc" -eq "$want" ] && printf '%s' "$out" | grep -q -- "$pattern"; then
-    ok "$name"
-  else
-    bad "$name (exit $rc, want $want; output: $(printf '%s' "$out" | head -3))"
-  fi
-}
-
 expect "--help names --world" 0 "clean stays the default" -- "$demo" --help
 expect "--help names --survey-sigma-scale" 0 "survey-sigma-scale" -- "$demo" --help
 expect "unknown world refused" 2 "world must be clean or realistic, got 'muddy'" -- \
