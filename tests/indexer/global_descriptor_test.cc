@@ -7,6 +7,7 @@
 
 #include <faiss/IndexFlat.h>
 #include <gtest/gtest.h>
+#include <unistd.h>
 
 #include <algorithm>
 #include <cstdio>
@@ -76,8 +77,17 @@ GlobalDescriptorOptions SmallModelOptions() {
 
 TEST(GlobalDescriptorTest, ProductQuantizationKeepsRecallOfExactSearch) {
   demo::DemoOptions o;
-  o.out_dir = (fs::path(::testing::TempDir()) / "global_town").string();
-  fs::remove_all(o.out_dir);  // no drive of another seed's town left behind
+  // One folder per process (two runs on one machine must not share a town), removed at the end.
+  o.out_dir =
+      (fs::path(::testing::TempDir()) / ("global_town_" + std::to_string(::getpid()))).string();
+  fs::remove_all(o.out_dir);
+  struct Cleanup {
+    std::string dir;
+    ~Cleanup() {
+      std::error_code ignored;
+      fs::remove_all(dir, ignored);
+    }
+  } cleanup{o.out_dir};
   o.seed = TownSeed();
   std::printf("demo town seed %d\n", static_cast<int>(o.seed));
   o.route_length_m = 300;

@@ -17,6 +17,7 @@
 // Seed 43 was used for nothing but this check. Another seed: SIGHTFIX_ACCURACY_SEED=43.
 // Prior: a 150 m circle centred uniformly within 100 m of the truth.
 #include <gtest/gtest.h>
+#include <unistd.h>
 
 #include <algorithm>
 #include <cmath>
@@ -47,7 +48,10 @@ int TownSeed() {
 class EngineAccuracyTest : public ::testing::Test {
  protected:
   static void SetUpTestSuite() {
-    root_ = (fs::path(::testing::TempDir()) / "engine_accuracy").string();
+    // One folder per process: two runs on one machine (a developer's and a CI clone's) must not
+    // delete each other's town.
+    root_ = (fs::path(::testing::TempDir()) / ("engine_accuracy_" + std::to_string(::getpid())))
+                .string();
     fs::remove_all(root_);
     demo::DemoOptions town;
     town.out_dir = root_ + "/town";
@@ -74,7 +78,11 @@ class EngineAccuracyTest : public ::testing::Test {
     ASSERT_TRUE(loc.ok()) << loc.status().ToString();
     localizer_ = std::move(loc).value().release();
   }
-  static void TearDownTestSuite() { delete localizer_; }
+  static void TearDownTestSuite() {
+    delete localizer_;
+    std::error_code ignored;
+    fs::remove_all(root_, ignored);
+  }
 
   static RouteSummary Run(const std::string& drive, PriorMode prior,
                           const std::string& town = "town") {
