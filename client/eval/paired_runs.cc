@@ -1,7 +1,6 @@
 #include "client/eval/paired_runs.h"
 
 #include <algorithm>
-#include <cerrno>
 #include <cmath>
 #include <cstdio>
 #include <cstdlib>
@@ -9,20 +8,12 @@
 #include <sstream>
 
 #include "client/eval/route_eval.h"
+#include "indexer/base/csv.h"
 
 namespace sightfix {
 namespace {
 
 constexpr double kSignificance = 0.05;  // the level each test is read at (common practice)
-
-std::vector<std::string> SplitCells(const std::string& line) {
-  std::vector<std::string> cells;
-  std::string cell;
-  std::istringstream in(line);
-  while (std::getline(in, cell, ',')) cells.push_back(cell);
-  if (!line.empty() && line.back() == ',') cells.emplace_back();
-  return cells;
-}
 
 std::string AtLine(int line, const std::string& what) {
   return "fixes.csv line " + std::to_string(line) + ": " + what;
@@ -31,10 +22,8 @@ std::string AtLine(int line, const std::string& what) {
 // An empty cell is no value; otherwise a finite, non-negative number filling the whole cell.
 Result<std::optional<double>> ParseOptionalMetres(const std::string& cell, int line) {
   if (cell.empty()) return std::optional<double>();
-  char* end = nullptr;
-  errno = 0;
-  const double v = std::strtod(cell.c_str(), &end);
-  if (end != cell.c_str() + cell.size() || errno != 0 || !std::isfinite(v) || v < 0)
+  double v = 0;
+  if (!ParseCsvNumber(cell, &v) || v < 0)
     return Status::InvalidArgument(AtLine(line, "not a distance in metres: '" + cell + "'"));
   return std::optional<double>(v);
 }
@@ -88,7 +77,7 @@ Result<std::vector<FixesRow>> ParseFixesCsv(const std::string& text) {
   std::istringstream in(text);
   std::string line;
   if (!std::getline(in, line)) return Status::InvalidArgument("fixes.csv: empty");
-  const std::vector<std::string> header = SplitCells(line);
+  const std::vector<std::string> header = SplitCsvLine(line);
   Result<std::vector<size_t>> at = ColumnsOf(header);
   if (!at.ok()) return at.status();
   std::vector<FixesRow> rows;
@@ -96,7 +85,7 @@ Result<std::vector<FixesRow>> ParseFixesCsv(const std::string& text) {
   for (int n = 2; std::getline(in, line); ++n) {
     if (!line.empty() && line.back() == '\r') line.pop_back();
     if (line.empty()) continue;
-    Result<FixesRow> row = ParseRow(SplitCells(line), *at, header.size(), n);
+    Result<FixesRow> row = ParseRow(SplitCsvLine(line), *at, header.size(), n);
     if (!row.ok()) return row.status();
     if (!seen.emplace(row->image, n).second)
       return Status::InvalidArgument(AtLine(
