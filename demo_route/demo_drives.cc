@@ -232,8 +232,7 @@ DriveWorld WorldOfDrive(const Town& town, const WorldNuisances& n, uint64_t seed
 }  // namespace
 
 std::vector<PlannedDrive> PlanDrives(const Town& town, const DemoOptions& o) {
-  WorldNuisances nuisances = NuisancesForWorld(o.world);
-  nuisances.survey_sigma_scale = o.survey_sigma_scale;
+  const WorldNuisances nuisances = NuisancesFor(o);
   std::vector<PlannedDrive> drives;
   const double L = town.route.length();
   std::vector<Condition> conditions = Conditions();

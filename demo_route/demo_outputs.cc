@@ -318,6 +318,7 @@ nlohmann::json TownJson(const DemoOptions& o, const Town& town,
   j["layout"] = LayoutJson(town);
   j["world"] = WorldName(o.world);
   j["survey_sigma_scale"] = o.survey_sigma_scale;
+  if (o.world != World::kClean) j["nuisances"] = EnabledNuisanceGroups(NuisancesFor(o));
   if (o.world == World::kClean)
     j["survey_pose_noise"] = {
         {"horizontal_sigma_m_per_axis", 0.02},

@@ -146,14 +146,24 @@ bool DemoOptions::Validate(std::string* error) const {
   if (jobs < 0) return fail("--jobs must be >= 0");
   if (!(survey_sigma_scale > 0 && survey_sigma_scale <= 10))
     return fail("--survey-sigma-scale must be > 0 and <= 10");
+  WorldNuisances n = NuisancesForWorld(world);
+  if (Status s = KeepNuisanceGroups(nuisances, &n); !s.ok())
+    return *error = "--nuisances: " + s.message(), false;
   return true;
+}
+
+WorldNuisances NuisancesFor(const DemoOptions& o) {
+  WorldNuisances n = NuisancesForWorld(o.world);
+  KeepNuisanceGroups(o.nuisances, &n);  // checked by Validate
+  n.survey_sigma_scale = o.survey_sigma_scale;
+  return n;
 }
 
 TownOptions TownOptionsFor(const DemoOptions& o) {
   TownOptions t;
   t.seed = o.seed;
   t.route_length_m = o.route_length_m;
-  t.look_alikes = t.excursion = o.world == World::kRealistic;
+  t.look_alikes = t.excursion = NuisancesFor(o).aliasing;
   return t;
 }
 

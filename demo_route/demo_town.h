@@ -30,6 +30,9 @@ struct DemoOptions {
   // now, is the town every accuracy guard was measured on, byte for byte; realistic becomes the
   // default once the rest of its nuisances exist.
   World world = World::kClean;
+  // Realistic world only: the nuisance groups left on (world_nuisances.h KeepNuisanceGroups);
+  // empty, all of them.
+  std::vector<std::string> nuisances;
   // The survey's drive.csv sigma_h_m is its receiver's honest 1-sigma times this, > 0 and <= 10;
   // below 1 the receiver is over-optimistic.
   double survey_sigma_scale = 1.0;
@@ -51,6 +54,10 @@ struct DemoSummary {
 };
 
 Result<DemoSummary> GenerateDemoTown(const DemoOptions& options);
+
+// The nuisances of options.world with only options.nuisances left on (all when empty) and the
+// survey's sigma scale. REQUIRES: options.Validate() holds.
+WorldNuisances NuisancesFor(const DemoOptions& options);
 
 // The layout options GenerateDemoTown builds its town with: seed and route length from options;
 // in the realistic world also the look-alike stretches and the excursion (look_alikes.h).

@@ -1,4 +1,5 @@
 // sightfix-demo-route: generates the procedural demo town with its survey and query drives.
+#include <algorithm>
 #include <boost/program_options.hpp>
 #include <cstdio>
 #include <iostream>
@@ -18,7 +19,7 @@ using sightfix::demo::DemoSummary;
 // The flags, bound to *o, the image size text *size, the export list *exports and the world
 // name *world.
 po::options_description Describe(DemoOptions* o, std::string* size, std::string* exports,
-                                 std::string* world) {
+                                 std::string* world, std::string* nuisances) {
   po::options_description desc(
       "sightfix-demo-route: generate the demo town (an invented place), its survey drive and three "
       "query drives\n"
@@ -48,10 +49,27 @@ po::options_description Describe(DemoOptions* o, std::string* size, std::string*
       "street canyons; truth in survey/truth.csv), calibration error in every camera.yml (truth "
       "in camera-truth.yml) and a camera time offset. clean stays the default until realistic "
       "also has a changed world, traffic, shadows, night and an aliasing district")(
+      "nuisances", po::value(nuisances),
+      "realistic world only: keep only these nuisance groups on, comma-separated, from survey "
+      "(pose error), calibration (camera.yml error and time offset), changes (parked vehicles, "
+      "posters, repaints, works, season between drives), traffic (moving vehicles and people), "
+      "aliasing (look-alike stretches and the off-map drive); default all, so that each one's "
+      "cost can be measured alone")(
       "survey-sigma-scale", po::value(&o->survey_sigma_scale)->default_value(1.0),
       "multiplies the survey's reported sigma_h_m (its receiver's honest 1-sigma); < 1 makes it "
       "over-optimistic; must be > 0 and <= 10")("json", "print the summary as JSON on stdout");
   return desc;
+}
+
+// The items of a comma-separated list (none for an empty text).
+std::vector<std::string> SplitList(const std::string& text) {
+  std::vector<std::string> items;
+  for (size_t start = 0; start <= text.size() && !text.empty();) {
+    const size_t comma = std::min(text.find(',', start), text.size());
+    items.push_back(text.substr(start, comma - start));
+    start = comma + 1;
+  }
+  return items;
 }
 
 // Sets the export flags of *o from "exif", "gpx" or "exif,gpx"; false on any other item.
@@ -73,9 +91,9 @@ bool ParseExports(std::string exports, DemoOptions* o) {
 // Fills *o and *json from the command line; an exit code if the program should stop here
 // (help shown: 0; bad flags, reported on stderr: 2).
 std::optional<int> ParseCommandLine(int argc, char** argv, DemoOptions* o, bool* json) {
-  std::string exports, world = sightfix::demo::WorldName(o->world);
+  std::string exports, world = sightfix::demo::WorldName(o->world), nuisances;
   std::string size = "640x480";
-  const po::options_description desc = Describe(o, &size, &exports, &world);
+  const po::options_description desc = Describe(o, &size, &exports, &world, &nuisances);
   po::variables_map vm;
   try {
     po::store(po::parse_command_line(argc, argv, desc), vm);
@@ -103,22 +121,33 @@ std::optional<int> ParseCommandLine(int argc, char** argv, DemoOptions* o, bool*
     return 2;
   }
   o->world = *parsed;
+  if (vm.count("nuisances")) {
+    o->nuisances = SplitList(nuisances);
+    if (o->nuisances.empty()) {
+      std::fprintf(stderr, "sightfix-demo-route: --nuisances needs at least one group\n");
+      return 2;
+    }
+  }
   *json = vm.count("json") > 0;
   return std::nullopt;
 }
 
 void PrintJson(const DemoOptions& o, const DemoSummary& s) {
-  nlohmann::json j = {{"out", o.out_dir},
-                      {"seed", o.seed},
-                      {"world", sightfix::demo::WorldName(o.world)},
-                      {"route_length_m", o.route_length_m},
-                      {"buildings", s.buildings},
-                      {"vehicles", s.vehicles},
-                      {"poles", s.poles},
-                      {"trees", s.trees},
-                      {"render_s", s.render_s},
-                      {"total_s", s.total_s},
-                      {"contact_sheet", s.contact_sheet}};
+  nlohmann::json j = {
+      {"out", o.out_dir},
+      {"seed", o.seed},
+      {"world", sightfix::demo::WorldName(o.world)},
+      {"nuisances", o.world == sightfix::demo::World::kClean
+                        ? std::vector<std::string>{}
+                        : sightfix::demo::EnabledNuisanceGroups(sightfix::demo::NuisancesFor(o))},
+      {"route_length_m", o.route_length_m},
+      {"buildings", s.buildings},
+      {"vehicles", s.vehicles},
+      {"poles", s.poles},
+      {"trees", s.trees},
+      {"render_s", s.render_s},
+      {"total_s", s.total_s},
+      {"contact_sheet", s.contact_sheet}};
   for (const auto& d : s.drives) j["drives"][d.name] = d.images;
   std::cout << j.dump(2) << "\n";
 }

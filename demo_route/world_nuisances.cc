@@ -1,5 +1,6 @@
 #include "demo_route/world_nuisances.h"
 
+#include <algorithm>
 #include <cmath>
 
 namespace sightfix::demo {
@@ -85,7 +86,55 @@ WorldNuisances NuisancesForWorld(World world) {
   n.world = world;
   n.survey.enabled = n.calibration.enabled = world == World::kRealistic;
   n.changes.enabled = n.traffic.enabled = world == World::kRealistic;
+  n.aliasing = world == World::kRealistic;
   return n;
+}
+
+namespace {
+
+// The switch of each group, in NuisanceGroupNames order.
+std::vector<std::pair<std::string, bool*>> GroupSwitches(WorldNuisances* n) {
+  return {{"survey", &n->survey.enabled},
+          {"calibration", &n->calibration.enabled},
+          {"changes", &n->changes.enabled},
+          {"traffic", &n->traffic.enabled},
+          {"aliasing", &n->aliasing}};
+}
+
+}  // namespace
+
+std::vector<std::string> NuisanceGroupNames() {
+  WorldNuisances n;
+  std::vector<std::string> names;
+  for (const auto& [name, on] : GroupSwitches(&n)) names.push_back(name);
+  return names;
+}
+
+std::vector<std::string> EnabledNuisanceGroups(const WorldNuisances& n) {
+  WorldNuisances copy = n;
+  std::vector<std::string> names;
+  for (const auto& [name, on] : GroupSwitches(&copy))
+    if (*on) names.push_back(name);
+  return names;
+}
+
+Status KeepNuisanceGroups(const std::vector<std::string>& names, WorldNuisances* n) {
+  if (names.empty()) return Status::Ok();
+  if (n->world != World::kRealistic)
+    return Status::InvalidArgument("nuisance groups apply to the realistic world only");
+  std::string choices;
+  for (const std::string& g : NuisanceGroupNames()) choices += (choices.empty() ? "" : ", ") + g;
+  for (size_t i = 0; i < names.size(); ++i) {
+    const std::vector<std::string> all = NuisanceGroupNames();
+    if (std::find(all.begin(), all.end(), names[i]) == all.end())
+      return Status::InvalidArgument("unknown nuisance group '" + names[i] + "' (choose from " +
+                                     choices + ")");
+    if (std::find(names.begin(), names.begin() + i, names[i]) != names.begin() + i)
+      return Status::InvalidArgument("nuisance group '" + names[i] + "' named twice");
+  }
+  for (auto& [name, on] : GroupSwitches(n))
+    *on = std::find(names.begin(), names.end(), name) != names.end();
+  return Status::Ok();
 }
 
 }  // namespace sightfix::demo

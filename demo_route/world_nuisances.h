@@ -11,6 +11,7 @@
 #pragma once
 
 #include <string>
+#include <vector>
 
 #include "indexer/base/status.h"
 
@@ -121,6 +122,9 @@ struct WorldNuisances {
   CalibrationErrorRanges calibration;
   ChangedWorldRanges changes;
   TrafficRanges traffic;
+  // Perceptual aliasing: the look-alike stretches (twins, a terrace, chain shops) and the
+  // off-map excursion with its query drive (look_alikes.h).
+  bool aliasing = false;
   // The survey's drive.csv sigma_h_m is the receiver's honest 1-sigma times this factor; < 1 is
   // an over-optimistic receiver. > 0 (DemoOptions::survey_sigma_scale fills it).
   double survey_sigma_scale = 1.0;
@@ -132,5 +136,21 @@ struct WorldNuisances {
 
 // The nuisances of a preset, with every range at its documented default.
 WorldNuisances NuisancesForWorld(World world);
+
+// The realistic world's nuisances come in groups that can be switched on alone, so that what
+// each costs the engine can be measured (a clean town, each group alone, all of them):
+//   survey       the survey's pose error (drift, heading error, multipath jumps)
+//   calibration  every camera.yml's calibration error and the camera time offset
+//   changes      the world changed between the survey and each query drive
+//   traffic      moving traffic on every drive
+//   aliasing     look-alike stretches and the off-map excursion (adds query-offmap)
+// In the order above.
+std::vector<std::string> NuisanceGroupNames();
+// The groups of *n that are on, in NuisanceGroupNames order.
+std::vector<std::string> EnabledNuisanceGroups(const WorldNuisances& n);
+// Leaves on only the groups named (each at most once; an empty list leaves *n as it is).
+// InvalidArgument naming the unknown or repeated group and the choices, or when *n is not the
+// realistic world's (the clean world has none to choose from).
+Status KeepNuisanceGroups(const std::vector<std::string>& names, WorldNuisances* n);
 
 }  // namespace sightfix::demo

@@ -19,6 +19,15 @@ expect "zero sigma scale refused" 2 "survey-sigma-scale must be > 0" -- \
   "$demo" --out "$tmp/x" --survey-sigma-scale 0
 expect "negative sigma scale refused" 2 "survey-sigma-scale must be > 0" -- \
   "$demo" --out "$tmp/x" --survey-sigma-scale -1
+expect "--help names --nuisances" 0 "--nuisances arg" -- "$demo" --help
+expect "unknown nuisance group refused" 2 "unknown nuisance group 'fog' (choose from survey, calibration" -- \
+  "$demo" --out "$tmp/x" --world realistic --nuisances survey,fog
+expect "repeated nuisance group refused" 2 "nuisance group 'survey' named twice" -- \
+  "$demo" --out "$tmp/x" --world realistic --nuisances survey,traffic,survey
+expect "nuisance groups refused in the clean world" 2 "apply to the realistic world only" -- \
+  "$demo" --out "$tmp/x" --nuisances survey
+expect "empty nuisance list refused" 2 "needs at least one group" -- \
+  "$demo" --out "$tmp/x" --world realistic --nuisances ""
 expect "huge sigma scale refused" 2 "survey-sigma-scale must be > 0 and <= 10" -- \
   "$demo" --out "$tmp/x" --survey-sigma-scale 11
 
@@ -53,5 +62,35 @@ grown = [r for r in rows if float(r["sigma_h_m"]) > half + 1e-9]
 assert len(plain) + len(grown) == len(rows), "a row below half the honest sigma"
 assert len(grown) == error["multipath_frames"], (len(grown), error["multipath_frames"])
 print(f"{len(plain)} rows at {half} m, {len(grown)} in multipath jumps")
+PY
+
+# The README's --nuisances example: only the survey's error is on, so the survey has its
+# truth.csv, no drive has a camera-truth.yml (no calibration error), and there is no off-map
+# drive or look-alike stretch (aliasing off).
+example="$(grep -A1 -- '--world realistic --nuisances survey' "$src/README.md" |
+  sed 's/\\$//' | tr '\n' ' ')"
+example="${example//build\/demo_route\/sightfix-demo-route/$demo}"
+example="${example//\/tmp\/survey-only-town/$tmp/survey-only}"
+case "$example" in
+  "$demo "*"--out $tmp/survey-only"*) ok "README --nuisances example found" ;;
+  *) bad "README --nuisances example found (got '$example')" ;;
+esac
+if eval "$example" >"$tmp/survey-only.log" 2>&1; then ok "README --nuisances example runs"; else
+  bad "README --nuisances example runs ($(tail -3 "$tmp/survey-only.log"))"
+fi
+if "$py" - "$tmp/survey-only" <<'PY'; then ok "survey-only town has the survey error alone"; else bad "survey-only town has the survey error alone"; fi
+import json, os, sys
+out = sys.argv[1]
+town = json.load(open(out + "/town.json"))
+assert town["nuisances"] == ["survey"], town["nuisances"]
+assert "survey_error" in town["drives"]["survey"], "no survey error recorded"
+assert os.path.exists(out + "/survey/truth.csv"), "no truth.csv"
+assert not os.path.exists(out + "/query-offmap"), "an off-map drive without aliasing"
+assert "look_alikes" not in town, "look-alikes without aliasing"
+for drive in town["drives"]:
+    assert not os.path.exists(out + "/" + drive + "/camera-truth.yml"), drive + ": calibration error"
+    assert "traffic" not in town["drives"][drive], drive + ": traffic"
+    assert "changes" not in town["drives"][drive], drive + ": changed world"
+print("nuisances", town["nuisances"], "drives", sorted(town["drives"]))
 PY
 finish

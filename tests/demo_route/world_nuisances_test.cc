@@ -289,5 +289,47 @@ TEST(WorldNuisancesTest, TimeOffsetMovesExposuresAlongTheTrack) {
   }
 }
 
+// --nuisances: each group alone switches on exactly its own part of the realistic world, and
+// the plans follow (a survey-only world's query cameras are exact, a calibration-only world's
+// survey is the clean one's); names are checked.
+TEST(WorldNuisancesTest, NuisanceGroupsSwitchAlone) {
+  const std::vector<std::string> all = NuisanceGroupNames();
+  ASSERT_EQ(all,
+            (std::vector<std::string>{"survey", "calibration", "changes", "traffic", "aliasing"}));
+  EXPECT_EQ(EnabledNuisanceGroups(NuisancesForWorld(World::kRealistic)), all);
+  EXPECT_TRUE(EnabledNuisanceGroups(NuisancesForWorld(World::kClean)).empty());
+  for (const std::string& group : all) {
+    WorldNuisances n = NuisancesForWorld(World::kRealistic);
+    ASSERT_TRUE(KeepNuisanceGroups({group}, &n).ok()) << group;
+    EXPECT_EQ(EnabledNuisanceGroups(n), std::vector<std::string>{group});
+  }
+  WorldNuisances n = NuisancesForWorld(World::kRealistic);
+  EXPECT_TRUE(KeepNuisanceGroups({}, &n).ok());
+  EXPECT_EQ(EnabledNuisanceGroups(n), all);
+  EXPECT_FALSE(KeepNuisanceGroups({"fog"}, &n).ok());
+  EXPECT_FALSE(KeepNuisanceGroups({"traffic", "traffic"}, &n).ok());
+  WorldNuisances clean = NuisancesForWorld(World::kClean);
+  EXPECT_FALSE(KeepNuisanceGroups({"survey"}, &clean).ok());
+
+  DemoOptions o;
+  o.out_dir = "unused";
+  o.route_length_m = 200;
+  o.world = World::kRealistic;
+  o.nuisances = {"survey"};
+  const Town town = BuildTown(TownOptionsFor(o));
+  EXPECT_TRUE(town.look_alikes.empty());
+  std::vector<PlannedDrive> drives = PlanDrives(town, o);
+  ASSERT_GE(drives.size(), 2u);
+  EXPECT_TRUE(drives[0].survey_error_model);
+  for (const PlannedDrive& d : drives) {
+    EXPECT_FALSE(d.calibration_error_model) << d.condition.name;
+    EXPECT_FALSE(d.world.has_traffic) << d.condition.name;
+  }
+  o.nuisances = {"calibration"};
+  drives = PlanDrives(BuildTown(TownOptionsFor(o)), o);
+  EXPECT_FALSE(drives[0].survey_error_model);
+  for (const PlannedDrive& d : drives) EXPECT_TRUE(d.calibration_error_model) << d.condition.name;
+}
+
 }  // namespace
 }  // namespace sightfix::demo
