@@ -91,6 +91,9 @@ bool LocalizerOptions::Validate(std::string* error) const {
   if (!(coarse_radius_m > 0)) return fail("coarse_radius_m must be > 0");
   if (!(distinct_place_m > 0)) return fail("distinct_place_m must be > 0");
   if (!(ambiguity_ratio >= 0)) return fail("ambiguity_ratio must be >= 0");
+  if (rival_candidates < 0 || rival_candidates > 100)
+    return fail("rival_candidates must be within [0, 100]");
+  if (rival_depth < 1 || rival_depth > 1000) return fail("rival_depth must be within [1, 1000]");
   if (!(time_budget_ms >= 0)) return fail("time_budget_ms must be >= 0");
   if (env == nullptr) return fail("env must not be null");
   std::string e;
@@ -208,8 +211,12 @@ std::vector<Candidate> Localizer::Impl::Candidates(const cv::Mat& q, const Locat
   }
   std::stable_sort(c.begin(), c.end(),
                    [](const Candidate& a, const Candidate& b) { return a.distance < b.distance; });
-  if (static_cast<int>(c.size()) > o.top_k) c.resize(o.top_k);
-  return c;
+  std::vector<GeoPoint> at;
+  for (const Candidate& k : c) at.push_back(k.tile->data.images[k.image].position);
+  std::vector<Candidate> out;
+  for (size_t i : WithRivalCandidates(at, o.top_k, o.rival_candidates, o.distinct_place_m))
+    out.push_back(c[i]);
+  return out;
 }
 
 std::vector<Candidate> Localizer::Impl::FromPrior(const cv::Mat& q, const PriorCircle& p,
@@ -225,7 +232,8 @@ std::vector<Candidate> Localizer::Impl::FromPrior(const cv::Mat& q, const PriorC
       continue;
     }
     const LoadedTile& t = **tile;
-    const int k = static_cast<int>(std::min<faiss::Index::idx_t>(t.index->ntotal, 4 * o.top_k));
+    const int k = static_cast<int>(
+        std::min<faiss::Index::idx_t>(t.index->ntotal, std::max(4 * o.top_k, o.rival_depth)));
     std::vector<float> dist(k);
     std::vector<faiss::Index::idx_t> ids(k);
     t.index->search(1, q.ptr<float>(), k, dist.data(), ids.data());
@@ -241,7 +249,8 @@ std::vector<Candidate> Localizer::Impl::FromPrior(const cv::Mat& q, const PriorC
 }
 
 std::vector<Candidate> Localizer::Impl::FromGlobal(const cv::Mat& q, std::string* note) const {
-  const int k = static_cast<int>(std::min<faiss::Index::idx_t>(global->ntotal, o.top_k));
+  const int k = static_cast<int>(std::min<faiss::Index::idx_t>(
+      global->ntotal, std::max(o.top_k, o.rival_candidates > 0 ? o.rival_depth : 0)));
   std::vector<float> dist(k);
   std::vector<faiss::Index::idx_t> ids(k);
   if (k > 0) global->search(1, q.ptr<float>(), k, dist.data(), ids.data());
