@@ -51,9 +51,9 @@ IntegrityCounts CountIntegrity(const std::vector<QueryResult>& results, const St
 
 std::string IntegrityLine(const IntegrityCounts& c) {
   const std::string name =
-      c.bound_factor == 1 ? "misleading (error > radius95)"
-                          : "confidently wrong (error > " + FormatNumber("%g", c.bound_factor) +
-                                " x radius95)";
+      c.bound_factor == 1
+          ? "misleading (error > radius95)"
+          : "confidently wrong (error > " + FormatNumber("%g", c.bound_factor) + " x radius95)";
   std::string out = name + ": " + std::to_string(c.misleading_fixes) + " of " +
                     std::to_string(c.usable_fixes) + " usable fixes";
   if (c.usable_fixes == 0) return out;
@@ -62,8 +62,7 @@ std::string IntegrityLine(const IntegrityCounts& c) {
          std::to_string(c.longest_episode) + "), in " + std::to_string(c.misleading_segments) +
          " of " + std::to_string(c.segments) + " segments";
   if (c.segment_share_upper95)
-    out += ", at most " + FormatNumber("%.3f", *c.segment_share_upper95) +
-           " of segments (95 % CP)";
+    out += ", at most " + FormatNumber("%.3f", *c.segment_share_upper95) + " of segments (95 % CP)";
   return out;
 }
 

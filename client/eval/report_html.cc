@@ -122,8 +122,8 @@ std::string SummaryTable(const RouteReport& r) {
 std::string IntegrityRow(const std::string& name, const IntegrityCounts& c) {
   const std::string bound =
       c.segment_share_upper95 ? FormatNumber("%.3f", *c.segment_share_upper95) + " CP" : "-";
-  return "<tr><th>" + EscapeXml(name) + "</th><td>" + std::to_string(c.usable_fixes) +
-         "</td><td>" + std::to_string(c.misleading_fixes) + "</td><td>" +
+  return "<tr><th>" + EscapeXml(name) + "</th><td>" + std::to_string(c.usable_fixes) + "</td><td>" +
+         std::to_string(c.misleading_fixes) + "</td><td>" +
          EscapeXml(WithCi(c.fix_share, c.fix_share_ci95)) + "</td><td>" +
          std::to_string(c.episodes) + " (longest " + std::to_string(c.longest_episode) +
          ")</td><td>" + std::to_string(c.misleading_segments) + " of " +
@@ -154,8 +154,9 @@ std::string SegmentTable(const RouteSummary& s) {
     t += "<tr><th>" + std::to_string(g.index) + "</th><td>" + FormatNumber("%.0f", g.start_m) +
          "-" + FormatNumber("%.0f", g.end_m) + "</td><td>" + std::to_string(g.queries) +
          "</td><td style=\"background:" + AvailabilityColour(g.availability) + "33\">" +
-         FormatNumber("%.3f", g.availability) + "</td><td>" + FormatNumber("%.3f", g.refined_share) +
-         "</td><td>" + (g.fixes ? FormatNumber("%.3f", g.median_error_m) : "-") + "</td><td>" +
+         FormatNumber("%.3f", g.availability) + "</td><td>" +
+         FormatNumber("%.3f", g.refined_share) + "</td><td>" +
+         (g.fixes ? FormatNumber("%.3f", g.median_error_m) : "-") + "</td><td>" +
          std::to_string(g.misleading) + "</td></tr>\n";
   return t + "</table>\n";
 }

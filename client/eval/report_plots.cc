@@ -116,8 +116,7 @@ std::string ErrorAlongRoutePlot(const RouteReport& r, const std::vector<const Qu
                FormatNumber("segment %.0f: ", g.index) + std::to_string(g.fixes) + " of " +
                    std::to_string(g.queries) + " queries with a fix");
   std::vector<std::pair<std::string, std::string>> legend;
-  for (const AvailabilityClass& c : kAvailabilityClasses)
-    legend.emplace_back(c.colour, c.label);
+  for (const AvailabilityClass& c : kAvailabilityClasses) legend.emplace_back(c.colour, c.label);
   if (!r.spoof_truth.empty()) legend.emplace_back("#ecdff2", "GNSS spoofed (truth)");
   plot.Legend(legend);
   return plot.Render();

@@ -120,7 +120,8 @@ void AlongCrossStats(const std::vector<QueryResult>& results, const StreetCut& c
   const auto cross = [&](size_t i) { return std::fabs(results[i].cross_track_m); };
   std::vector<double> all_along, all_cross;
   for (size_t i = 0; i < results.size(); ++i)
-    if (cut.segment[i] >= 0 && take(i)) all_along.push_back(along(i)), all_cross.push_back(cross(i));
+    if (cut.segment[i] >= 0 && take(i))
+      all_along.push_back(along(i)), all_cross.push_back(cross(i));
   s->median_abs_along_m = Percentile(all_along, 0.5);
   s->median_abs_cross_m = Percentile(all_cross, 0.5);
   s->median_abs_along_m_ci95 = PercentileCi95(SegmentBlocks(cut, take, along), 0.5);
@@ -215,7 +216,8 @@ void Rates(const std::vector<QueryResult>& results, const StreetCut& cut, RouteS
     s->funnel.share_ci95[k] =
         share([&results, k](size_t i) { return static_cast<int>(StageOf(results[i])) == k; });
   s->wrong_refined_share_ci95 = SegmentShareCi95(
-      cut, [&](size_t i) { return results[i].ran && results[i].fix.quality == FixQuality::kRefined; },
+      cut,
+      [&](size_t i) { return results[i].ran && results[i].fix.quality == FixQuality::kRefined; },
       [&](size_t i) { return results[i].error_m > kWrongRefinedM; });
 }
 
@@ -359,10 +361,10 @@ RouteSummary Summarize(const std::vector<QueryResult>& results, const SummaryOpt
   if (s.refined) s.wrong_refined_share = static_cast<double>(s.wrong_refined) / s.refined;
   for (int k = 0; k < kFunnelStageCount; ++k) s.funnel.share[k] = s.funnel.count[k] / n;
   Rates(results, cut, &s);
-  s.all = Stats(results, cut,
-                [&](size_t i) { return results[i].fix.quality != FixQuality::kNone; });
-  const ErrorStats r = Stats(
-      results, cut, [&](size_t i) { return results[i].fix.quality == FixQuality::kRefined; });
+  s.all =
+      Stats(results, cut, [&](size_t i) { return results[i].fix.quality != FixQuality::kNone; });
+  const ErrorStats r =
+      Stats(results, cut, [&](size_t i) { return results[i].fix.quality == FixQuality::kRefined; });
   s.median_error_m = r.median_m, s.p90_error_m = r.p90_m, s.p95_error_m = r.p95_m;
   s.max_error_m = r.max_m, s.median_heading_error_deg = r.median_heading_deg;
   s.radius95_coverage = r.radius95_coverage, s.nees_mean = r.nees_mean;

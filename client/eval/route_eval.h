@@ -148,7 +148,7 @@ struct IntegrityCounts {
   // The independent trials: street segments holding a usable fix; and of those, the ones that
   // hold a misleading fix.
   int segments = 0, misleading_segments = 0;
-  double fix_share = 0;                   // misleading_fixes / usable_fixes
+  double fix_share = 0;                    // misleading_fixes / usable_fixes
   std::optional<Interval> fix_share_ci95;  // per segment (SegmentShareCi95)
   // One-sided Clopper-Pearson 95 % upper bound of misleading_segments / segments: with 95 %
   // confidence, at most this share of street segments holds a misleading fix. nullopt for no
@@ -158,12 +158,12 @@ struct IntegrityCounts {
 
 // One street segment's figures, for the report's table and strip.
 struct SegmentSummary {
-  int index = 0;                   // StreetCut::segment
-  double start_m = 0, end_m = 0;   // distance driven at its first and last query
+  int index = 0;                  // StreetCut::segment
+  double start_m = 0, end_m = 0;  // distance driven at its first and last query
   int queries = 0, fixes = 0, refined = 0;
-  int misleading = 0;              // fixes beyond their radius95
+  int misleading = 0;  // fixes beyond their radius95
   double availability = 0, refined_share = 0;
-  double median_error_m = -1;      // over its fixes; -1 without a fix
+  double median_error_m = -1;  // over its fixes; -1 without a fix
 };
 
 struct SummaryOptions {

@@ -118,17 +118,17 @@ void AddIntervals(const RouteSummary& s, nlohmann::json* j) {
 
 // One bound's integrity counts (route_eval.h IntegrityCounts).
 nlohmann::json IntegrityJson(const IntegrityCounts& c) {
-  nlohmann::json j = {{"bound_factor", c.bound_factor},
-                      {"usable_fixes", c.usable_fixes},
-                      {"misleading_fixes", c.misleading_fixes},
-                      {"fix_share", c.fix_share},
-                      {"episodes", c.episodes},
-                      {"longest_episode", c.longest_episode},
-                      {"segments", c.segments},
-                      {"misleading_segments", c.misleading_segments},
-                      {"segment_share_upper95", c.segment_share_upper95
-                                                    ? nlohmann::json(*c.segment_share_upper95)
-                                                    : nlohmann::json(nullptr)}};
+  nlohmann::json j = {
+      {"bound_factor", c.bound_factor},
+      {"usable_fixes", c.usable_fixes},
+      {"misleading_fixes", c.misleading_fixes},
+      {"fix_share", c.fix_share},
+      {"episodes", c.episodes},
+      {"longest_episode", c.longest_episode},
+      {"segments", c.segments},
+      {"misleading_segments", c.misleading_segments},
+      {"segment_share_upper95", c.segment_share_upper95 ? nlohmann::json(*c.segment_share_upper95)
+                                                        : nlohmann::json(nullptr)}};
   PutInterval("fix_share_ci95", c.fix_share_ci95, &j);
   return j;
 }
@@ -137,20 +137,18 @@ nlohmann::json IntegrityJson(const IntegrityCounts& c) {
 nlohmann::json SegmentsJson(const RouteSummary& s) {
   nlohmann::json rows = nlohmann::json::array();
   for (const SegmentSummary& g : s.segments)
-    rows.push_back({{"index", g.index},
-                    {"start_m", g.start_m},
-                    {"end_m", g.end_m},
-                    {"queries", g.queries},
-                    {"fixes", g.fixes},
-                    {"refined", g.refined},
-                    {"availability", g.availability},
-                    {"refined_share", g.refined_share},
-                    {"median_error_m", g.fixes ? nlohmann::json(g.median_error_m)
-                                               : nlohmann::json(nullptr)},
-                    {"misleading", g.misleading}});
-  return {{"length_m", s.segment_length_m},
-          {"count", s.segments.size()},
-          {"segments", rows}};
+    rows.push_back(
+        {{"index", g.index},
+         {"start_m", g.start_m},
+         {"end_m", g.end_m},
+         {"queries", g.queries},
+         {"fixes", g.fixes},
+         {"refined", g.refined},
+         {"availability", g.availability},
+         {"refined_share", g.refined_share},
+         {"median_error_m", g.fixes ? nlohmann::json(g.median_error_m) : nlohmann::json(nullptr)},
+         {"misleading", g.misleading}});
+  return {{"length_m", s.segment_length_m}, {"count", s.segments.size()}, {"segments", rows}};
 }
 
 }  // namespace
@@ -219,7 +217,7 @@ std::string FixesCsv(const RouteReport& r) {
   for (size_t i : cut.order) {
     const QueryResult* q = &r.results[i];
     // misleading: 0 within radius95, 1 beyond it, 3 beyond 3 x radius95; empty: not usable.
-    const char* misleading = !IsUsableFix(*q)                             ? ""
+    const char* misleading = !IsUsableFix(*q)                            ? ""
                              : IsMisleading(*q, kConfidentlyWrongFactor) ? "3"
                              : IsMisleading(*q, kMisleadingFactor)       ? "1"
                                                                          : "0";
@@ -233,7 +231,7 @@ std::string FixesCsv(const RouteReport& r) {
     std::snprintf(
         buf, sizeof(buf),
         "%s,%s,%.9f,%.9f,%.2f,%s,%s,%s,%s,%s,%s,%s,%s,%s,%zu,%d,%d,%d,%s,%s,%s,%d,%d,%d,%.1f,%s,"
-        "%s,%s,%s\n",
+        "%s,%d,%.1f,%s,%s,%s\n",
         q->truth.image.c_str(), FormatIsoUtc(q->truth.timestamp_s).c_str(),
         q->truth.position.lat_deg, q->truth.position.lon_deg, q->truth.attitude.heading_deg,
         q->error.empty() ? FixQualityName(f.quality) : "error", f.method.c_str(),
