@@ -13,6 +13,7 @@
 #include <vector>
 
 #include "client/eval/interval_stats.h"
+#include "client/eval/route_report.h"
 #include "tests/client/placed_query.h"
 
 namespace sightfix {
@@ -167,6 +168,62 @@ TEST(IntegrityTest, LineNamesCountsEpisodesAndBound) {
   EXPECT_NE(IntegrityLine(s.confidently_wrong)
                 .find("confidently wrong (error > 3 x radius95): 1 of 17 usable fixes"),
             std::string::npos);
+}
+
+// report.html shows the evidence: the error-against-bound diagram with one dot per usable fix
+// coloured by class and both lines, the integrity table, the table by street segment and the
+// availability strip along the route; the safety caution stays.
+TEST(IntegrityTest, ReportHasTheDiagramTablesAndStrip) {
+  RouteReport r;
+  r.results = ConstructedDrive();
+  r.summary = Summarize(r.results, {49.9});
+  const std::string html = ReportHtml(r);
+  const size_t at = html.find("<svg class=\"plot\" id=\"error-bound\"");
+  ASSERT_NE(at, std::string::npos);
+  const std::string svg = html.substr(at, html.find("</svg>", at) - at);
+  const auto count = [&svg](const std::string& what) {
+    size_t n = 0;
+    for (size_t p = svg.find(what); p != std::string::npos; p = svg.find(what, p + 1)) ++n;
+    return n;
+  };
+  // 17 usable fixes: 11 within radius95 (green), 5 misleading only (orange), 1 beyond 3 x
+  // radius95 (red); legend circles carry the colours once more.
+  EXPECT_EQ(count("fill=\"#1f7a4d\""), 11u + 1);
+  EXPECT_EQ(count("fill=\"#e06c1f\""), 5u + 1);
+  EXPECT_EQ(count("fill=\"#b3202e\""), 1u + 1);
+  EXPECT_NE(svg.find("misleading (5)"), std::string::npos);
+  EXPECT_NE(svg.find("&gt; 3 x radius95 (1)"), std::string::npos);
+  EXPECT_EQ(count("<polyline"), 2u);  // error = radius95 and error = 3 x radius95
+  EXPECT_NE(svg.find("stated radius95 (m)"), std::string::npos);
+  EXPECT_NE(html.find("<th>misleading: error &gt; radius95</th><td>17</td><td>6</td>"),
+            std::string::npos);
+  EXPECT_NE(html.find("<td>4 (longest 2)</td><td>3 of 4</td><td>0.987 CP</td>"),
+            std::string::npos);
+  // The segment table: segment 1 (frames 5-9, 50-90 m driven) has 4 of 5 fixes.
+  EXPECT_NE(html.find("<tr><th>1</th><td>50-90</td><td>5</td><td style=\"background:#9cc15a33\">"
+                      "0.800</td>"),
+            std::string::npos);
+  // The strip along the route: one rect with a title per segment.
+  EXPECT_NE(html.find("<title>segment 1: 4 of 5 queries with a fix</title>"), std::string::npos);
+  EXPECT_NE(html.find("not a certified navigation source"), std::string::npos);
+  EXPECT_NE(SummaryLine(r.summary).find("misleading (error > radius95): 6 of 17 usable fixes"),
+            std::string::npos);
+  // The summary's JSON and CSVs carry the same counts.
+  const nlohmann::json j = SummaryJson(r);
+  EXPECT_EQ(j["integrity"]["misleading"]["episodes"], 4);
+  EXPECT_EQ(j["integrity"]["confidently_wrong"]["misleading_fixes"], 1);
+  EXPECT_NEAR(j["integrity"]["misleading"]["segment_share_upper95"].get<double>(), 0.987258544901,
+              1e-9);
+  EXPECT_EQ(j["street_segments"]["count"], 4);
+  EXPECT_EQ(j["street_segments"]["segments"][1]["fixes"], 4);
+  const std::string segments = SegmentsCsv(r);
+  EXPECT_EQ(segments.substr(0, segments.find('\n')),
+            "segment,start_m,end_m,queries,fixes,refined,availability,refined_share,"
+            "median_error_m,misleading");
+  EXPECT_NE(segments.find("\n1,50.0,90.0,5,4,4,0.8000,0.8000,"), std::string::npos) << segments;
+  const std::string fixes = FixesCsv(r);
+  EXPECT_NE(fixes.find(",2,120.0,3,refined,"), std::string::npos);  // frame 12: > 3 x radius95
+  EXPECT_NE(fixes.find(",0,20.0,1,refined,"), std::string::npos);   // frame 2: misleading
 }
 
 }  // namespace
