@@ -260,8 +260,10 @@ void PrintReplaySummary(const RouteReport& r, const std::string& out) {
   std::printf("integrity, %s\n", IntegrityLine(s.confidently_wrong).c_str());
   std::printf("%s\n", IntervalLegend(s).c_str());
   if (r.spoofing) PrintSpoofing(*r.spoofing);
-  std::printf("report: %s/report.html (summary.json, fixes.csv, route.geojson beside it)\n%s\n",
-              out.c_str(), kSafety);
+  std::printf(
+      "report: %s/report.html (summary.json, fixes.csv, segments.csv, route.geojson beside "
+      "it)\n%s\n",
+      out.c_str(), kSafety);
 }
 
 }  // namespace
