@@ -197,8 +197,7 @@ TEST(IntegrityTest, ReportHasTheDiagramTablesAndStrip) {
   EXPECT_NE(svg.find("stated radius95 (m)"), std::string::npos);
   EXPECT_NE(html.find("<th>misleading: error &gt; radius95</th><td>17</td><td>6</td>"),
             std::string::npos);
-  EXPECT_NE(html.find("<td>4 (longest 2)</td><td>3 of 4</td><td>0.987 CP</td>"),
-            std::string::npos);
+  EXPECT_NE(html.find("<td>4 (longest 2)</td><td>3 of 4</td><td>0.987 CP</td>"), std::string::npos);
   // The segment table: segment 1 (frames 5-9, 50-90 m driven) has 4 of 5 fixes.
   EXPECT_NE(html.find("<tr><th>1</th><td>50-90</td><td>5</td><td style=\"background:#9cc15a33\">"
                       "0.800</td>"),
