@@ -35,7 +35,7 @@ PY
 "$py" - "$tmp/in.txt" "$tmp/in/summary.json" <<'PY' && ok "replay text: intervals beside the rates and the median/p95 as in summary.json, one line says which is which" || bad "replay text intervals"
 import json, re, sys
 text, j = open(sys.argv[1]).read(), json.load(open(sys.argv[2]))
-ci = lambda k, d=j: "[%.3f, %.3f]" % tuple(d[k + "_ci95"])
+ci = lambda k, d=j: "[%.3f, %.3f] %s" % (tuple(d[k + "_ci95"]) + (d[k + "_ci95_method"],))
 r = j["refined_only"]
 for want in ("availability %.3f %s" % (j["availability"], ci("availability")),
              "share %.3f %s" % (j["refined_share"], ci("refined_share")),
