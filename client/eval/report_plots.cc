@@ -135,9 +135,8 @@ std::string ErrorAgainstBoundPlot(const std::vector<const QueryResult*>& qs) {
       hi = std::max({hi, q->error_m * 1.5, q->fix.radius95_m * 1.5});
       lo = std::min(lo, q->fix.radius95_m / 1.5);
     }
-  SvgPlot plot("error-bound", "Error against protection bound (radius95)",
-               {lo, hi, true, "stated radius95 (m)"}, {1e-3, hi, true, "actual error (m)"}, 560,
-               420);
+  SvgPlot plot("error-bound", "Error against bound", {lo, hi, true, "stated radius95 (m)"},
+               {1e-3, hi, true, "actual error (m)"}, 760, 420);
   plot.Line({lo, hi}, {lo, hi}, "#7a7a7a", 1, "5 4");
   plot.Line({lo, hi}, {3 * lo, 3 * hi}, "#b3202e", 1, "2 3");
   int counts[3] = {0, 0, 0};
