@@ -14,6 +14,7 @@
 
 #include "client/cli/command_support.h"
 #include "client/cli/commands.h"
+#include "client/eval/integrity.h"
 #include "client/eval/route_eval.h"
 #include "client/eval/route_report.h"
 #include "client/monitor/gnss_stream.h"
@@ -28,6 +29,7 @@ struct ReplayFlags {
   std::string drive, out, prior = "noisy:150", gnss_path, spoof_path;
   int limit = 0, jobs = 2;
   uint64_t seed = 1;
+  double segment_m = SummaryOptions{}.segment_length_m;
 };
 
 po::options_description ReplayOptions(ReplayFlags* f) {
@@ -36,11 +38,15 @@ po::options_description ReplayOptions(ReplayFlags* f) {
       "sightfix replay: sends every query image of a drive with ground truth (drive.csv) to a\n"
       "map (in this process) or a sightfix-server, and measures the answers with the field's\n"
       "metrics: recall@1/5/10 within 25 m, error percentiles, pose bins (0.25 m, 2 deg) (0.5 m,\n"
-      "5 deg) (5 m, 10 deg), radius95 coverage, NEES, latency; and runs the GNSS spoofing\n"
-      "monitor over the drive's gnss.csv. Writes summary.json, fixes.csv, route.geojson and\n"
-      "report.html into --out. Ctrl-C stops early and still writes what ran, marked partial.\n\n"
+      "5 deg) (5 m, 10 deg), radius95 coverage, NEES, latency, integrity (fixes beyond their\n"
+      "radius95 and beyond 3 x radius95, with a bound over street segments); and runs the GNSS\n"
+      "spoofing monitor over the drive's gnss.csv. 95 % intervals read street segments of\n"
+      "--segment-m metres driven as the independent units. Writes summary.json, fixes.csv,\n"
+      "segments.csv, route.geojson and report.html into --out. Ctrl-C stops early and still\n"
+      "writes what ran, marked partial.\n\n"
       "Usage: sightfix replay (--server HOST:PORT | --map MAPDIR) --drive QUERYDIR --out "
-      "REPORTDIR\n       [--prior none|noisy:RADIUS_M|gnss] [--gnss FILE] [--limit N] [--seed N]"
+      "REPORTDIR\n       [--prior none|noisy:RADIUS_M|gnss] [--gnss FILE] [--limit N] [--seed N]\n"
+      "       [--segment-m M]"
       "\n\nOptions");
   desc.add_options()("help,h", "show this help");
   AddSourceOptions(&desc, &f->source);
@@ -58,6 +64,9 @@ po::options_description ReplayOptions(ReplayFlags* f) {
       "seed", po::value(&f->seed),
       "seed of the noisy prior's centres (1; with --prior noisy:R only)")(
       "jobs", po::value(&f->jobs), "queries in flight (2)")(
+      "segment-m", po::value(&f->segment_m),
+      "length of the street segments, metres driven along the truth track (50): the blocks of "
+      "every interval's bootstrap and the trials of the integrity bound")(
       "deadline-ms", po::value(&f->source.deadline_ms),
       "deadline of each call to the server (30000; with --server only)")(
       "json", "print summary.json on stdout instead of the text summary");
@@ -102,6 +111,10 @@ int PrepareReplay(ReplayFlags* f, const po::variables_map& vm, RouteEvalOptions*
   if (!ParsePriorMode(f->prior, o)) return Fail("--prior must be none, noisy:RADIUS_M or gnss", 2);
   if (vm.count("seed") && o->prior != PriorMode::kNoisy)
     return Fail("--seed applies to --prior noisy:R only: the other modes draw nothing", 2);
+  SummaryOptions summary_options;
+  summary_options.segment_length_m = f->segment_m;
+  if (Status s = summary_options.Validate(); !s.ok())
+    return Fail("--segment-m must be a number of metres > 0", 2);
   o->drive_dir = report->drive_dir = f->drive;
   o->seed = report->seed = f->seed;
   o->limit = f->limit;
@@ -162,7 +175,8 @@ extern "C" void OnInterrupt(int) {
 
 // Runs the drive with progress on stderr (Ctrl-C stops taking queries), then scores it and runs
 // the spoofing monitor. Returns kGoOn or 2.
-int RunReplay(const LocateFn& locate, long total, RouteEvalOptions* o, RouteReport* report) {
+int RunReplay(const LocateFn& locate, long total, const SummaryOptions& summary_options,
+              RouteEvalOptions* o, RouteReport* report) {
   std::signal(SIGINT, OnInterrupt);
   o->stop = &g_stop;
   Progress progress("queries", total);
@@ -173,7 +187,7 @@ int RunReplay(const LocateFn& locate, long total, RouteEvalOptions* o, RouteRepo
   if (!results.ok()) return Fail(results.status().ToString(), 2);
   report->partial = g_stop.load();
   report->results = std::move(results).value();
-  report->summary = Summarize(report->results);
+  report->summary = Summarize(report->results, summary_options);
   if (!report->gnss.empty())
     report->spoofing =
         MonitorDrive(report->results, report->gnss, report->spoof_truth, report->monitor);
@@ -213,11 +227,12 @@ void PrintErrors(const RouteSummary& s) {
       Metres(a.median_abs_cross_m, a.median_abs_cross_m_ci95).c_str());
   std::printf(
       "error over refined fixes: median %s, p95 %s; median |along| %s, |cross| %s; wrong "
-      "refined %d\n",
+      "refined %d (share of refined %s)\n",
       Metres(s.median_error_m, s.median_error_m_ci95).c_str(),
       Metres(s.p95_error_m, s.p95_error_m_ci95).c_str(),
       Metres(s.median_abs_along_track_m, s.median_abs_along_track_m_ci95).c_str(),
-      Metres(s.median_abs_cross_track_m, s.median_abs_cross_track_m_ci95).c_str(), s.wrong_refined);
+      Metres(s.median_abs_cross_track_m, s.median_abs_cross_track_m_ci95).c_str(), s.wrong_refined,
+      Rate(s.wrong_refined_share, s.wrong_refined_share_ci95).c_str());
 }
 
 void PrintReplaySummary(const RouteReport& r, const std::string& out) {
@@ -241,10 +256,14 @@ void PrintReplaySummary(const RouteReport& r, const std::string& out) {
   std::printf("radius95 coverage %s, NEES %.2f; latency p50 %.0f ms, p95 %.0f ms, p99 %.0f ms\n",
               Rate(s.all.radius95_coverage, s.all.radius95_coverage_ci95).c_str(), s.all.nees_mean,
               s.latency_ms_p50, s.latency_ms_p95, s.latency_ms_p99);
-  std::printf("%s\n", kIntervalLegend);
+  std::printf("integrity, %s\n", IntegrityLine(s.misleading).c_str());
+  std::printf("integrity, %s\n", IntegrityLine(s.confidently_wrong).c_str());
+  std::printf("%s\n", IntervalLegend(s).c_str());
   if (r.spoofing) PrintSpoofing(*r.spoofing);
-  std::printf("report: %s/report.html (summary.json, fixes.csv, route.geojson beside it)\n%s\n",
-              out.c_str(), kSafety);
+  std::printf(
+      "report: %s/report.html (summary.json, fixes.csv, segments.csv, route.geojson beside "
+      "it)\n%s\n",
+      out.c_str(), kSafety);
 }
 
 }  // namespace
@@ -267,7 +286,10 @@ int Replay(int argc, char** argv) {
                                        : OpenServer(f.source, &source, &report);
       rc != kGoOn)
     return rc;
-  if (int rc = RunReplay(source.locate, total, &o, &report); rc != kGoOn) return rc;
+  SummaryOptions summary_options;
+  summary_options.segment_length_m = f.segment_m;
+  if (int rc = RunReplay(source.locate, total, summary_options, &o, &report); rc != kGoOn)
+    return rc;
   if (Status s = WriteRouteReport(report, f.out); !s.ok()) return Fail(s.ToString(), 1);
   if (vm.count("json"))
     std::cout << SummaryJson(report).dump(2) << "\n";

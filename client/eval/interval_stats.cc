@@ -84,7 +84,8 @@ Result<Interval> WilsonInterval(int64_t successes, int64_t trials,
   const double denominator = 1 + z2 / n;
   const double centre = (p + z2 / (2 * n)) / denominator;
   const double half = z / denominator * std::sqrt(p * (1 - p) / n + z2 / (4 * n * n));
-  Interval interval{std::max(0.0, centre - half), std::min(1.0, centre + half)};
+  Interval interval{std::max(0.0, centre - half), std::min(1.0, centre + half),
+                    IntervalMethod::kWilson};
   // Analytically exact at the ends; rounding would leave a few ulps.
   if (successes == 0) interval.low = 0;
   if (successes == trials) interval.high = 1;
@@ -96,7 +97,7 @@ Result<Interval> ClopperPearsonInterval(int64_t successes, int64_t trials,
   if (Status s = CheckCounts(successes, trials, options); !s.ok()) return s;
   const double alpha = 1 - options.confidence;
   const double k = static_cast<double>(successes), n = static_cast<double>(trials);
-  Interval interval{0, 1};
+  Interval interval{0, 1, IntervalMethod::kClopperPearson};
   if (successes > 0) {
     Result<double> low = InverseBeta(k, n - k + 1, alpha / 2);
     if (!low.ok()) return low.status();
@@ -134,7 +135,7 @@ Result<Interval> BlockBootstrapInterval(const std::vector<std::vector<double>>& 
   std::sort(results.begin(), results.end());
   const double alpha = 1 - options.confidence;
   return Interval{InterpolatedQuantile(results, alpha / 2),
-                  InterpolatedQuantile(results, 1 - alpha / 2)};
+                  InterpolatedQuantile(results, 1 - alpha / 2), IntervalMethod::kBlockBootstrap};
 }
 
 std::vector<std::vector<double>> ConsecutiveBlocks(const std::vector<double>& values,

@@ -25,10 +25,15 @@
 
 namespace sightfix {
 
+// How an interval was computed: each function below sets its own, so a figure's interval can say
+// where it came from beside it (route_eval.h IntervalTag).
+enum class IntervalMethod { kUnspecified, kWilson, kClopperPearson, kBlockBootstrap };
+
 // A two-sided interval [low, high]; for a rate both lie in [0, 1].
 struct Interval {
   double low = 0;
   double high = 0;
+  IntervalMethod method = IntervalMethod::kUnspecified;
 };
 
 struct ProportionOptions {

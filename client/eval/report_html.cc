@@ -7,6 +7,7 @@
 #include <string>
 #include <vector>
 
+#include "client/eval/integrity.h"
 #include "client/eval/report_plots.h"
 #include "client/eval/route_report.h"
 #include "client/eval/route_view.h"
@@ -55,7 +56,10 @@ std::string ErrorRows(const RouteSummary& s) {
            WithCi(s.median_error_m, s.median_error_m_ci95) + " / " +
                WithCi(s.p95_error_m, s.p95_error_m_ci95),
            "refined fixes");
-  t += Row("wrong refined (> 5 m)", std::to_string(s.wrong_refined), "must be 0");
+  t += Row("wrong refined (> 5 m)",
+           std::to_string(s.wrong_refined) + " of " + std::to_string(s.refined) + ", " +
+               WithCi(s.wrong_refined_share, s.wrong_refined_share_ci95),
+           "must be 0");
   t += Row("heading error median (deg)", FormatNumber("%.2f", a.median_heading_deg));
   const std::array<double, 3> shares = PoseBinShares(s);
   for (size_t k = 0; k < shares.size(); ++k)
@@ -111,7 +115,50 @@ std::string SummaryTable(const RouteReport& r) {
   t += Row("latency p50 / p95 / p99 (ms)",
            Slashed({s.latency_ms_p50, s.latency_ms_p95, s.latency_ms_p99}, "%.0f"));
   if (r.spoofing) t += SpoofingRows(r.spoofing->score);
-  return t + "</table>\n<div class=\"caption\">" + EscapeXml(kIntervalLegend) + ".</div>\n";
+  return t + "</table>\n<div class=\"caption\">" + EscapeXml(IntervalLegend(s)) + ".</div>\n";
+}
+
+// One bound's row of the integrity table.
+std::string IntegrityRow(const std::string& name, const IntegrityCounts& c) {
+  const std::string bound =
+      c.segment_share_upper95 ? FormatNumber("%.3f", *c.segment_share_upper95) + " CP" : "-";
+  return "<tr><th>" + EscapeXml(name) + "</th><td>" + std::to_string(c.usable_fixes) + "</td><td>" +
+         std::to_string(c.misleading_fixes) + "</td><td>" +
+         EscapeXml(WithCi(c.fix_share, c.fix_share_ci95)) + "</td><td>" +
+         std::to_string(c.episodes) + " (longest " + std::to_string(c.longest_episode) +
+         ")</td><td>" + std::to_string(c.misleading_segments) + " of " +
+         std::to_string(c.segments) + "</td><td>" + bound + "</td></tr>\n";
+}
+
+std::string IntegrityTable(const RouteSummary& s) {
+  return "<table class=\"summary integrity\"><tr><th>bound</th><th>usable fixes</th>"
+         "<th>beyond it</th><th>share of fixes [95 %]</th><th>episodes</th><th>segments "
+         "holding one</th><th>share of segments, 95 % upper bound</th></tr>\n" +
+         IntegrityRow("misleading: error > radius95", s.misleading) +
+         IntegrityRow("confidently wrong: error > 3 x radius95", s.confidently_wrong) +
+         "</table>\n<div class=\"caption\">A usable fix states a radius95; it misleads when its "
+         "error exceeds it (about 5 % of fixes when the radius is calibrated) and is confidently "
+         "wrong beyond 3 x radius95 (a 2D Gaussian: 2e-12). An episode is a run of consecutive "
+         "misleading fixes. The independent trials are street segments: the upper bound is the "
+         "one-sided Clopper-Pearson 95 % bound of the share of segments that hold such a fix. "
+         "Evidence for a safety case, not a certificate.</div>\n";
+}
+
+// Results by street segment: a row per segment, its availability cell coloured as the strip.
+std::string SegmentTable(const RouteSummary& s) {
+  std::string t =
+      "<table class=\"summary segments\"><tr><th>segment</th><th>driven (m)</th><th>queries"
+      "</th><th>availability</th><th>refined</th><th>median error (m)</th><th>misleading</th>"
+      "</tr>\n";
+  for (const SegmentSummary& g : s.segments)
+    t += "<tr><th>" + std::to_string(g.index) + "</th><td>" + FormatNumber("%.0f", g.start_m) +
+         "-" + FormatNumber("%.0f", g.end_m) + "</td><td>" + std::to_string(g.queries) +
+         "</td><td style=\"background:" + AvailabilityColour(g.availability) + "33\">" +
+         FormatNumber("%.3f", g.availability) + "</td><td>" +
+         FormatNumber("%.3f", g.refined_share) + "</td><td>" +
+         (g.fixes ? FormatNumber("%.3f", g.median_error_m) : "-") + "</td><td>" +
+         std::to_string(g.misleading) + "</td></tr>\n";
+  return t + "</table>\n";
 }
 
 constexpr char kStyle[] = R"(
@@ -155,7 +202,14 @@ std::string ReportHtml(const RouteReport& r) {
        "the GNSS was spoofed then). Pale dots: survey images the retrieval returned.</div>\n";
   h += ErrorCdfPlot(r.summary, qs);
   h += ErrorAlongRoutePlot(r, qs);
-  h += CalibrationPlot(qs);
+  h += "<h2>By street segment (" + FormatNumber("%g", r.summary.segment_length_m) +
+       " m driven)</h2>\n" + SegmentTable(r.summary);
+  h += "<h2>Integrity</h2>\n" + IntegrityTable(r.summary);
+  h += ErrorAgainstBoundPlot(qs);
+  h += "<div class=\"caption\">Error against protection bound: each usable fix at its stated "
+       "radius95 (x) and its actual error (y). Grey dashes: error = radius95, 95 % of dots "
+       "belong below; red dots: error = 3 x radius95. Orange dots mislead, red ones are "
+       "confidently wrong.</div>\n";
   h += LatencyHistogramPlot(r.summary, qs);
   if (r.spoofing) h += SpoofingPlot(r);
   // The page checks itself: headless tests read data-check from the DOM.

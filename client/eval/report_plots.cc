@@ -3,7 +3,9 @@
 #include <algorithm>
 #include <cmath>
 
+#include "client/eval/integrity.h"
 #include "client/eval/route_view.h"
+#include "client/eval/street_segments.h"
 #include "client/eval/svg_plot.h"
 #include "indexer/base/geo.h"
 
@@ -87,13 +89,10 @@ std::string ErrorCdfPlot(const RouteSummary& s, const std::vector<const QueryRes
 }
 
 std::string ErrorAlongRoutePlot(const RouteReport& r, const std::vector<const QueryResult*>& qs) {
-  std::vector<double> along{0};
-  for (size_t i = 1; i < qs.size(); ++i)
-    along.push_back(along.back() + GeodesicBetween(qs[i - 1]->truth.position.lat_deg,
-                                                   qs[i - 1]->truth.position.lon_deg,
-                                                   qs[i]->truth.position.lat_deg,
-                                                   qs[i]->truth.position.lon_deg)
-                                       .distance_m);
+  // Distance driven as the street segments measure it (street_segments.h).
+  const StreetCut cut = CutStreetSegments(r.results, std::max(r.summary.segment_length_m, 1.0));
+  std::vector<double> along;
+  for (const QueryResult* q : qs) along.push_back(cut.driven_m[q - r.results.data()]);
   double hi = 10;
   for (const QueryResult* q : qs) hi = std::max(hi, q->error_m * 1.5);
   SvgPlot plot("along", "Error along the route",
@@ -111,21 +110,50 @@ std::string ErrorAlongRoutePlot(const RouteReport& r, const std::vector<const Qu
       plot.Dot(along[i], std::max(q.error_m, 1e-3), 3, ColourOf(q),
                q.truth.image + FormatNumber(": %.3f m", q.error_m));
   }
-  if (!r.spoof_truth.empty()) plot.Legend({{"#ecdff2", "GNSS spoofed (truth)"}});
+  // The strip: each street segment from its first to its last query (at least 2 m wide).
+  for (const SegmentSummary& g : r.summary.segments)
+    plot.Strip(g.start_m, std::max(g.end_m, g.start_m + 2), AvailabilityColour(g.availability),
+               FormatNumber("segment %.0f: ", g.index) + std::to_string(g.fixes) + " of " +
+                   std::to_string(g.queries) + " queries with a fix");
+  std::vector<std::pair<std::string, std::string>> legend;
+  for (const AvailabilityClass& c : kAvailabilityClasses) legend.emplace_back(c.colour, c.label);
+  if (!r.spoof_truth.empty()) legend.emplace_back("#ecdff2", "GNSS spoofed (truth)");
+  plot.Legend(legend);
   return plot.Render();
 }
 
-std::string CalibrationPlot(const std::vector<const QueryResult*>& qs) {
+const char* AvailabilityColour(double availability) {
+  for (const AvailabilityClass& c : kAvailabilityClasses)
+    if (availability >= c.min_availability) return c.colour;
+  return std::end(kAvailabilityClasses)[-1].colour;
+}
+
+std::string ErrorAgainstBoundPlot(const std::vector<const QueryResult*>& qs) {
   double lo = 0.01, hi = 10;
   for (const QueryResult* q : qs)
-    if (q->error_m >= 0) hi = std::max({hi, q->error_m * 1.5, q->fix.radius95_m * 1.5});
-  SvgPlot plot("calibration", "Reported radius95 vs actual error", {lo, hi, true, "radius95 (m)"},
-               {1e-3, hi, true, "actual error (m)"}, 560, 400);
+    if (IsUsableFix(*q)) {
+      hi = std::max({hi, q->error_m * 1.5, q->fix.radius95_m * 1.5});
+      lo = std::min(lo, q->fix.radius95_m / 1.5);
+    }
+  SvgPlot plot("error-bound", "Error against bound", {lo, hi, true, "stated radius95 (m)"},
+               {1e-3, hi, true, "actual error (m)"}, 760, 420);
   plot.Line({lo, hi}, {lo, hi}, "#7a7a7a", 1, "5 4");
-  for (const QueryResult* q : qs)
-    if (q->error_m >= 0)
-      plot.Dot(q->fix.radius95_m, std::max(q->error_m, 1e-3), 2.6, ColourOf(*q), q->truth.image);
-  plot.Legend({{"#7a7a7a", "error = radius95: 95 % of dots belong below"}});
+  plot.Line({lo, hi}, {3 * lo, 3 * hi}, "#b3202e", 1, "2 3");
+  int counts[3] = {0, 0, 0};
+  const char* colours[3] = {"#1f7a4d", "#e06c1f", "#b3202e"};
+  for (const QueryResult* q : qs) {
+    if (!IsUsableFix(*q)) continue;
+    const int k = IsMisleading(*q, kConfidentlyWrongFactor) ? 2
+                  : IsMisleading(*q, kMisleadingFactor)     ? 1
+                                                            : 0;
+    ++counts[k];
+    plot.Dot(q->fix.radius95_m, std::max(q->error_m, 1e-3), 2.6, colours[k],
+             q->truth.image + FormatNumber(": error %.3f m", q->error_m) +
+                 FormatNumber(", radius95 %.3f m", q->fix.radius95_m));
+  }
+  plot.Legend({{colours[0], "within radius95 (" + std::to_string(counts[0]) + ")"},
+               {colours[1], "misleading (" + std::to_string(counts[1]) + ")"},
+               {colours[2], "> 3 x radius95 (" + std::to_string(counts[2]) + ")"}});
   return plot.Render();
 }
 

@@ -17,12 +17,29 @@ std::string RouteMapPlot(const RouteReport& r, const std::vector<const QueryResu
 // The cumulative share of all queries by horizontal error (log axis), availability marked.
 std::string ErrorCdfPlot(const RouteSummary& s, const std::vector<const QueryResult*>& qs);
 
-// The error of each query against the distance driven; spoofed spans shaded.
-// REQUIRES: qs not empty.
+// The error of each query against the distance driven; spoofed spans shaded; a strip along the
+// top coloured by each street segment's availability (kAvailabilityClasses).
+// REQUIRES: qs not empty and pointing into r.results.
 std::string ErrorAlongRoutePlot(const RouteReport& r, const std::vector<const QueryResult*>& qs);
 
-// Reported radius95 against the actual error, with the line error = radius95.
-std::string CalibrationPlot(const std::vector<const QueryResult*>& qs);
+// Error against protection bound (the diagram satellite-navigation integrity work draws, named
+// there after Stanford): each usable fix (integrity.h) a dot at x = its stated radius95, y = its
+// actual error, log-log, with the lines error = radius95 and error = 3 x radius95; dots above
+// the first are misleading (orange), above the second confidently wrong (red), below green.
+std::string ErrorAgainstBoundPlot(const std::vector<const QueryResult*>& qs);
+
+// The colours of a street segment's availability in the along-route strip, from the lowest
+// class up: a segment takes the first class whose min_availability it reaches from above.
+struct AvailabilityClass {
+  double min_availability;
+  const char* colour;  // CSS
+  const char* label;
+};
+inline constexpr AvailabilityClass kAvailabilityClasses[] = {{1.0, "#1f7a4d", "strip: all fixed"},
+                                                             {0.8, "#9cc15a", ">= 80 %"},
+                                                             {0.5, "#e0a31f", ">= 50 %"},
+                                                             {0.0, "#b3202e", "< 50 %"}};
+const char* AvailabilityColour(double availability);
 
 // A histogram of call latencies, p50 and p95 marked.
 std::string LatencyHistogramPlot(const RouteSummary& s, const std::vector<const QueryResult*>& qs);

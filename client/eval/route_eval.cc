@@ -15,7 +15,9 @@
 #include <optional>
 #include <random>
 
+#include "client/eval/integrity.h"
 #include "client/eval/route_view.h"
+#include "client/eval/street_segments.h"
 #include "indexer/base/geo.h"
 #include "indexer/base/parallel.h"
 
@@ -103,69 +105,46 @@ void RunQuery(const LocateFn& locate, const RouteEvalOptions& o, const fs::path&
   ScoreQuery(q);
 }
 
-// The block bootstrap's blocks for error percentiles: runs of this many consecutive queries.
-// Neighbouring frames see the same street and share their errors; 10 frames span a few tens of
-// metres of a drive at the demo's frame spacing, long enough to hold most of that correlation.
-constexpr int kIntervalBlockQueries = 10;
-
-// Wilson 95 % interval of k of n; nullopt for n = 0.
-std::optional<Interval> RateCi95(int k, int n) {
-  Result<Interval> ci = WilsonInterval(k, n);
-  return ci.ok() ? std::optional<Interval>(*ci) : std::nullopt;
-}
-
-// Block bootstrap 95 % interval of the nearest-rank q-th percentile; nullopt for no blocks.
+// Nearest-rank q-th percentile's 95 % interval over street segments; nullopt with fewer than two.
 std::optional<Interval> PercentileCi95(const std::vector<std::vector<double>>& blocks, double q) {
-  Result<Interval> ci = BlockBootstrapInterval(
+  return SegmentBootstrapCi95(
       blocks, [q](const std::vector<double>& sample) { return Percentile(sample, q); });
-  return ci.ok() ? std::optional<Interval>(*ci) : std::nullopt;
 }
 
-// value(q) of each of `fixes` (pointers into results, in its order), one block per run of
-// kIntervalBlockQueries consecutive entries of results that holds a fix.
-std::vector<std::vector<double>> FixBlocks(const std::vector<QueryResult>& results,
-                                           const std::vector<const QueryResult*>& fixes,
-                                           const std::function<double(const QueryResult&)>& value) {
-  std::vector<std::vector<double>> blocks;
-  std::ptrdiff_t current = -1;
-  for (const QueryResult* q : fixes) {
-    const std::ptrdiff_t block = (q - results.data()) / kIntervalBlockQueries;
-    if (block != current) blocks.emplace_back(), current = block;
-    blocks.back().push_back(value(*q));
-  }
-  return blocks;
-}
+using EntryTest = std::function<bool(size_t)>;
 
-// The medians of |along| and |cross| of `fixes` with their block bootstrap intervals.
-void AlongCrossStats(const std::vector<QueryResult>& results,
-                     const std::vector<const QueryResult*>& fixes, ErrorStats* s) {
-  const auto along = [](const QueryResult& q) { return std::fabs(q.along_track_m); };
-  const auto cross = [](const QueryResult& q) { return std::fabs(q.cross_track_m); };
-  const std::vector<std::vector<double>> along_blocks = FixBlocks(results, fixes, along);
-  const std::vector<std::vector<double>> cross_blocks = FixBlocks(results, fixes, cross);
+// The medians of |along| and |cross| of the entries `take` selects, with their intervals.
+void AlongCrossStats(const std::vector<QueryResult>& results, const StreetCut& cut,
+                     const EntryTest& take, ErrorStats* s) {
+  const auto along = [&](size_t i) { return std::fabs(results[i].along_track_m); };
+  const auto cross = [&](size_t i) { return std::fabs(results[i].cross_track_m); };
   std::vector<double> all_along, all_cross;
-  for (const QueryResult* q : fixes) all_along.push_back(along(*q)), all_cross.push_back(cross(*q));
+  for (size_t i = 0; i < results.size(); ++i)
+    if (cut.segment[i] >= 0 && take(i))
+      all_along.push_back(along(i)), all_cross.push_back(cross(i));
   s->median_abs_along_m = Percentile(all_along, 0.5);
   s->median_abs_cross_m = Percentile(all_cross, 0.5);
-  s->median_abs_along_m_ci95 = PercentileCi95(along_blocks, 0.5);
-  s->median_abs_cross_m_ci95 = PercentileCi95(cross_blocks, 0.5);
+  s->median_abs_along_m_ci95 = PercentileCi95(SegmentBlocks(cut, take, along), 0.5);
+  s->median_abs_cross_m_ci95 = PercentileCi95(SegmentBlocks(cut, take, cross), 0.5);
 }
 
-// REQUIRES: fixes point into results, in its order.
-ErrorStats Stats(const std::vector<QueryResult>& results,
-                 const std::vector<const QueryResult*>& fixes) {
+// The error figures of the fixes `take` selects among the entries that ran.
+ErrorStats Stats(const std::vector<QueryResult>& results, const StreetCut& cut,
+                 const EntryTest& take) {
   ErrorStats s;
-  s.n = static_cast<int>(fixes.size());
-  if (fixes.empty()) return s;
   std::vector<double> errors, headings;
   int covered = 0, with_nees = 0;
   double nees = 0;
-  for (const QueryResult* q : fixes) {
-    errors.push_back(q->error_m);
-    headings.push_back(q->heading_error_deg);
-    covered += q->error_m <= q->fix.radius95_m;
-    if (q->nees >= 0) nees += q->nees, ++with_nees;
+  for (size_t i = 0; i < results.size(); ++i) {
+    if (cut.segment[i] < 0 || !take(i)) continue;
+    const QueryResult& q = results[i];
+    errors.push_back(q.error_m);
+    headings.push_back(q.heading_error_deg);
+    covered += q.error_m <= q.fix.radius95_m;
+    if (q.nees >= 0) nees += q.nees, ++with_nees;
   }
+  s.n = static_cast<int>(errors.size());
+  if (s.n == 0) return s;
   s.median_m = Percentile(errors, 0.5);
   s.p90_m = Percentile(errors, 0.9);
   s.p95_m = Percentile(errors, 0.95);
@@ -174,12 +153,72 @@ ErrorStats Stats(const std::vector<QueryResult>& results,
   s.radius95_coverage = static_cast<double>(covered) / s.n;
   s.nees_mean = with_nees ? nees / with_nees : 0;
   const std::vector<std::vector<double>> blocks =
-      FixBlocks(results, fixes, [](const QueryResult& q) { return q.error_m; });
+      SegmentBlocks(cut, take, [&](size_t i) { return results[i].error_m; });
   s.median_m_ci95 = PercentileCi95(blocks, 0.5);
   s.p95_m_ci95 = PercentileCi95(blocks, 0.95);
-  s.radius95_coverage_ci95 = RateCi95(covered, s.n);
-  AlongCrossStats(results, fixes, &s);
+  s.radius95_coverage_ci95 = SegmentShareCi95(
+      cut, take, [&](size_t i) { return results[i].error_m <= results[i].fix.radius95_m; });
+  AlongCrossStats(results, cut, take, &s);
   return s;
+}
+
+// Per street segment: queries, fixes, refined, misleading and the median error of its fixes.
+std::vector<SegmentSummary> SegmentSummaries(const std::vector<QueryResult>& results,
+                                             const StreetCut& cut) {
+  std::map<int, SegmentSummary> by_index;
+  std::map<int, std::vector<double>> errors;
+  for (size_t i : cut.order) {
+    const QueryResult& q = results[i];
+    auto [it, fresh] = by_index.try_emplace(cut.segment[i]);
+    SegmentSummary& g = it->second;
+    if (fresh) g.index = cut.segment[i], g.start_m = cut.driven_m[i];
+    g.end_m = cut.driven_m[i];
+    ++g.queries;
+    if (q.fix.quality == FixQuality::kNone) continue;
+    ++g.fixes;
+    g.refined += q.fix.quality == FixQuality::kRefined;
+    g.misleading += IsMisleading(q, kMisleadingFactor);
+    errors[g.index].push_back(q.error_m);
+  }
+  std::vector<SegmentSummary> out;
+  for (auto& [index, g] : by_index) {
+    g.availability = static_cast<double>(g.fixes) / g.queries;
+    g.refined_share = static_cast<double>(g.refined) / g.queries;
+    if (g.fixes) g.median_error_m = Percentile(errors[index], 0.5);
+    out.push_back(g);
+  }
+  return out;
+}
+
+// The shares of all queries and their intervals: refined, availability, recall@N, pose bins,
+// funnel stages; and the wrong share of refined fixes.
+void Rates(const std::vector<QueryResult>& results, const StreetCut& cut, RouteSummary* s) {
+  const EntryTest ran = [&](size_t i) { return results[i].ran; };
+  const auto share = [&](const EntryTest& success) { return SegmentShareCi95(cut, ran, success); };
+  const auto recall = [&](int n) {
+    return share([&results, n](size_t i) {
+      return results[i].first_hit_rank >= 1 && results[i].first_hit_rank <= n;
+    });
+  };
+  s->refined_share_ci95 =
+      share([&](size_t i) { return results[i].fix.quality == FixQuality::kRefined; });
+  s->availability_ci95 =
+      share([&](size_t i) { return results[i].fix.quality != FixQuality::kNone; });
+  s->recall_at_1_ci95 = recall(1), s->recall_at_5_ci95 = recall(5);
+  s->recall_at_10_ci95 = recall(10);
+  for (size_t k = 0; k < s->pose_bin_ci95.size(); ++k)
+    s->pose_bin_ci95[k] = share([&results, k](size_t i) {
+      const QueryResult& q = results[i];
+      return q.fix.quality != FixQuality::kNone && q.error_m <= kPoseBins[k].max_error_m &&
+             q.heading_error_deg <= kPoseBins[k].max_heading_error_deg;
+    });
+  for (int k = 0; k < kFunnelStageCount; ++k)
+    s->funnel.share_ci95[k] =
+        share([&results, k](size_t i) { return static_cast<int>(StageOf(results[i])) == k; });
+  s->wrong_refined_share_ci95 = SegmentShareCi95(
+      cut,
+      [&](size_t i) { return results[i].ran && results[i].fix.quality == FixQuality::kRefined; },
+      [&](size_t i) { return results[i].error_m > kWrongRefinedM; });
 }
 
 }  // namespace
@@ -281,10 +320,17 @@ Result<std::vector<QueryResult>> RunDrive(const Localizer& localizer, const Rout
   return RunDrive(InProcess(localizer), o);
 }
 
-RouteSummary Summarize(const std::vector<QueryResult>& results) {
+Status SummaryOptions::Validate() const {
+  if (!(std::isfinite(segment_length_m) && segment_length_m > 0))
+    return Status::InvalidArgument("SummaryOptions.segment_length_m must be finite and > 0");
+  return Status::Ok();
+}
+
+RouteSummary Summarize(const std::vector<QueryResult>& results, const SummaryOptions& options) {
   RouteSummary s;
+  s.segment_length_m = options.segment_length_m;
+  const StreetCut cut = CutStreetSegments(results, options.segment_length_m);
   std::vector<double> latency;
-  std::vector<const QueryResult*> fixes, refined;
   int r1 = 0, r5 = 0, r10 = 0;
   std::array<int, 3> in_bin{};
   for (const QueryResult& q : results) {
@@ -299,36 +345,26 @@ RouteSummary Summarize(const std::vector<QueryResult>& results) {
     const FixQuality quality = q.fix.quality;
     s.none += quality == FixQuality::kNone;
     if (quality == FixQuality::kNone) continue;
-    fixes.push_back(&q);
+    ++s.fixes;
     for (size_t k = 0; k < in_bin.size(); ++k)
       in_bin[k] += q.error_m <= kPoseBins[k].max_error_m &&
                    q.heading_error_deg <= kPoseBins[k].max_heading_error_deg;
-    if (quality == FixQuality::kCoarse) {
-      ++s.coarse;
-      continue;
-    }
-    refined.push_back(&q);
-    s.wrong_refined += q.error_m > kWrongRefinedM;
+    s.coarse += quality == FixQuality::kCoarse;
+    s.refined += quality == FixQuality::kRefined;
+    s.wrong_refined += quality == FixQuality::kRefined && q.error_m > kWrongRefinedM;
   }
   if (s.queries == 0) return s;
-  s.fixes = static_cast<int>(fixes.size());
-  s.refined = static_cast<int>(refined.size());
   const double n = s.queries;
   s.refined_share = s.refined / n;
   s.availability = s.fixes / n;
   s.recall_at_1 = r1 / n, s.recall_at_5 = r5 / n, s.recall_at_10 = r10 / n;
-  s.refined_share_ci95 = RateCi95(s.refined, s.queries);
-  s.availability_ci95 = RateCi95(s.fixes, s.queries);
-  s.recall_at_5_ci95 = RateCi95(r5, s.queries);
-  s.recall_at_1_ci95 = RateCi95(r1, s.queries);
-  s.recall_at_10_ci95 = RateCi95(r10, s.queries);
-  for (size_t k = 0; k < in_bin.size(); ++k) s.pose_bin_ci95[k] = RateCi95(in_bin[k], s.queries);
-  for (int k = 0; k < kFunnelStageCount; ++k) {
-    s.funnel.share[k] = s.funnel.count[k] / n;
-    s.funnel.share_ci95[k] = RateCi95(s.funnel.count[k], s.queries);
-  }
-  s.all = Stats(results, fixes);
-  const ErrorStats r = Stats(results, refined);
+  if (s.refined) s.wrong_refined_share = static_cast<double>(s.wrong_refined) / s.refined;
+  for (int k = 0; k < kFunnelStageCount; ++k) s.funnel.share[k] = s.funnel.count[k] / n;
+  Rates(results, cut, &s);
+  s.all =
+      Stats(results, cut, [&](size_t i) { return results[i].fix.quality != FixQuality::kNone; });
+  const ErrorStats r =
+      Stats(results, cut, [&](size_t i) { return results[i].fix.quality == FixQuality::kRefined; });
   s.median_error_m = r.median_m, s.p90_error_m = r.p90_m, s.p95_error_m = r.p95_m;
   s.max_error_m = r.max_m, s.median_heading_error_deg = r.median_heading_deg;
   s.radius95_coverage = r.radius95_coverage, s.nees_mean = r.nees_mean;
@@ -343,6 +379,9 @@ RouteSummary Summarize(const std::vector<QueryResult>& results) {
   s.latency_ms_p50 = Percentile(latency, 0.5);
   s.latency_ms_p95 = Percentile(latency, 0.95);
   s.latency_ms_p99 = Percentile(latency, 0.99);
+  s.segments = SegmentSummaries(results, cut);
+  s.misleading = CountIntegrity(results, cut, kMisleadingFactor);
+  s.confidently_wrong = CountIntegrity(results, cut, kConfidentlyWrongFactor);
   return s;
 }
 
@@ -357,16 +396,39 @@ std::array<double, 3> PoseBinShares(const RouteSummary& s) {
   return {s.within_0_25m_2deg, s.within_0_5m_5deg, s.within_5m_10deg};
 }
 
-const char kIntervalLegend[] =
-    "[lo, hi]: 95 % intervals; Wilson score for rates and shares (queries read as independent: "
-    "neighbouring frames are not, so these are too narrow), block bootstrap over runs of 10 "
-    "consecutive queries for medians and p95 (respects neighbouring frames); none for p90 or "
-    "the max";
+std::string IntervalLegend(const RouteSummary& s) {
+  const int segments = static_cast<int>(s.segments.size());
+  std::string out = "[lo, hi]: 95 % intervals over " + std::to_string(segments) +
+                    " street segments of " + FormatNumber("%g", s.segment_length_m) +
+                    " m driven, read as independent (neighbouring frames are not); seg: block "
+                    "bootstrap of the segments; W: Wilson score with one trial per segment (a "
+                    "rate of 0 or 1, which the bootstrap cannot vary); CP: one-sided "
+                    "Clopper-Pearson over segments; none for p90 or the max";
+  if (segments < kFewSegments)
+    out += "; fewer than " + std::to_string(kFewSegments) +
+           " segments: rough intervals, likely too narrow";
+  return out;
+}
+
+const char* IntervalTag(const Interval& ci) {
+  switch (ci.method) {
+    case IntervalMethod::kBlockBootstrap:
+      return "seg";
+    case IntervalMethod::kWilson:
+      return "W";
+    case IntervalMethod::kClopperPearson:
+      return "CP";
+    case IntervalMethod::kUnspecified:
+      break;
+  }
+  return "";
+}
 
 std::string IntervalText(const std::optional<Interval>& ci, double scale, const char* format) {
   if (!ci) return " [-]";
+  const std::string tag = IntervalTag(*ci);
   return " [" + FormatNumber(format, scale * ci->low) + ", " +
-         FormatNumber(format, scale * ci->high) + "]";
+         FormatNumber(format, scale * ci->high) + "]" + (tag.empty() ? "" : " " + tag);
 }
 
 std::string FunnelLine(const FunnelCounts& f) {
@@ -380,13 +442,14 @@ std::string FunnelLine(const FunnelCounts& f) {
 
 std::string SummaryLine(const RouteSummary& s) {
   const std::array<double, 3> bins = PoseBinShares(s);
-  char buf[1024];
+  char buf[2048];
   std::snprintf(
       buf, sizeof(buf),
       "%d queries: refined %.1f %%%s (coarse %d, none %d), availability %.1f %%%s; error median "
       "%.3f m%s, p90 %.3f m, p95 %.3f m%s, max %.3f m; wrong refined %d; heading median %.2f "
       "deg; recall@1/5 %.3f/%.3f%s; pose %s %.3f, %s %.3f, %s %.3f; radius95 coverage %.3f%s, "
-      "NEES %.2f; latency p50 %.0f ms, p95 %.0f ms; [lo, hi]: 95 %% intervals",
+      "NEES %.2f; latency p50 %.0f ms, p95 %.0f ms; %s; %s; [lo, hi]: 95 %% intervals over %zu "
+      "segments of %g m",
       s.queries, 100 * s.refined_share, IntervalText(s.refined_share_ci95, 100, "%.1f").c_str(),
       s.coarse, s.none, 100 * s.availability,
       IntervalText(s.availability_ci95, 100, "%.1f").c_str(), s.median_error_m,
@@ -396,7 +459,8 @@ std::string SummaryLine(const RouteSummary& s) {
       IntervalText(s.recall_at_5_ci95, 1, "%.3f").c_str(), PoseBinLabel(kPoseBins[0]).c_str(),
       bins[0], PoseBinLabel(kPoseBins[1]).c_str(), bins[1], PoseBinLabel(kPoseBins[2]).c_str(),
       bins[2], s.radius95_coverage, IntervalText(s.radius95_coverage_ci95, 1, "%.3f").c_str(),
-      s.nees_mean, s.latency_ms_p50, s.latency_ms_p95);
+      s.nees_mean, s.latency_ms_p50, s.latency_ms_p95, IntegrityLine(s.misleading).c_str(),
+      IntegrityLine(s.confidently_wrong).c_str(), s.segments.size(), s.segment_length_m);
   return buf;
 }
 

@@ -16,15 +16,19 @@
 //  - pose bins (0.25 m, 2 deg), (0.5 m, 5 deg), (5 m, 10 deg): share of all queries (Sattler et
 //    al., CVPR 2018), named fine, medium and rough here (kPoseBins);
 //  - latency: wall time of each call as the caller saw it, p50 / p95 / p99;
-//  - 95 % intervals (interval_stats.h; nullopt when a figure has no data): Wilson score
-//    intervals for refined share, availability, recall@5 and radius95 coverage, reading the
-//    queries (fixes) as independent trials, which neighbouring frames are not, so these are
-//    optimistic (too narrow); block bootstrap percentile intervals (B = 2000, seed 1) for the
-//    median and p95 error and the median |along| and |cross|, a block being the fixes among a run
-//    of 10 consecutive queries in the results' order (drive.csv's), so a drive of fewer than 10
-//    queries gets a zero-width one;
+//  - 95 % intervals (interval_stats.h; nullopt when a figure has no data), every one read over
+//    street segments (street_segments.h: the truth track cut into SummaryOptions::
+//    segment_length_m of distance driven), the units taken as independent: a rate (refined
+//    share, availability, recall@N, pose bins, funnel shares, radius95 coverage, wrong and
+//    misleading shares) by the block bootstrap of its segments' 0/1 outcomes, or by Wilson with
+//    one trial per segment when it is 0 or 1 (SegmentShareCi95); the median and p95 error and
+//    the median |along| and |cross| by the block bootstrap of the segments' values (B = 2000,
+//    seed 1). Each interval carries its method (IntervalTag);
+//  - integrity (IntegrityCounts, integrity.h): usable fixes whose error exceeds their radius95
+//    (misleading) or 3 x radius95 (confidently wrong), their episodes, and the one-sided
+//    Clopper-Pearson 95 % upper bound of the share of segments that hold one;
 //  - failure funnel: the stage where each query stopped (FunnelStage, StageOf), counts and shares
-//    of all queries with Wilson intervals.
+//    of all queries with their intervals.
 // Thread safety: RunDrive runs `jobs` threads of its own over the LocateFn, which must be
 // thread-safe (Localizer::Locate and Client::Locate are).
 #pragma once
@@ -119,7 +123,7 @@ FunnelStage StageOf(const QueryResult& q);
 struct FunnelCounts {
   std::array<int, kFunnelStageCount> count{};     // queries per stage, by FunnelStage's value
   std::array<double, kFunnelStageCount> share{};  // count / queries
-  std::array<std::optional<Interval>, kFunnelStageCount> share_ci95;  // Wilson
+  std::array<std::optional<Interval>, kFunnelStageCount> share_ci95;  // per segment
 };
 
 struct ErrorStats {
@@ -128,9 +132,49 @@ struct ErrorStats {
   double median_heading_deg = 0;
   double radius95_coverage = 0, nees_mean = 0;
   double median_abs_along_m = 0, median_abs_cross_m = 0;  // medians of |along|, |cross|
-  // 95 % intervals: medians and p95 by block bootstrap, radius95 coverage by Wilson.
+  // 95 % intervals over street segments (see the top of this file).
   std::optional<Interval> median_m_ci95, p95_m_ci95, radius95_coverage_ci95;
   std::optional<Interval> median_abs_along_m_ci95, median_abs_cross_m_ci95;
+};
+
+// Integrity evidence at one bound (integrity.h): a usable fix (one with a stated radius95_m > 0)
+// is misleading when its error exceeds bound_factor x radius95_m.
+struct IntegrityCounts {
+  double bound_factor = 1;
+  int usable_fixes = 0, misleading_fixes = 0;
+  // Maximal runs of misleading fixes among the usable fixes in time order (a usable fix within
+  // its bound ends a run; queries without a usable fix neither end nor extend one).
+  int episodes = 0, longest_episode = 0;
+  // The independent trials: street segments holding a usable fix; and of those, the ones that
+  // hold a misleading fix.
+  int segments = 0, misleading_segments = 0;
+  double fix_share = 0;                    // misleading_fixes / usable_fixes
+  std::optional<Interval> fix_share_ci95;  // per segment (SegmentShareCi95)
+  // One-sided Clopper-Pearson 95 % upper bound of misleading_segments / segments: with 95 %
+  // confidence, at most this share of street segments holds a misleading fix. nullopt for no
+  // segment.
+  std::optional<double> segment_share_upper95;
+};
+
+// One street segment's figures, for the report's table and strip.
+struct SegmentSummary {
+  int index = 0;                  // StreetCut::segment
+  double start_m = 0, end_m = 0;  // distance driven at its first and last query
+  int queries = 0, fixes = 0, refined = 0;
+  int misleading = 0;  // fixes beyond their radius95
+  double availability = 0, refined_share = 0;
+  double median_error_m = -1;  // over its fixes; -1 without a fix
+};
+
+struct SummaryOptions {
+  // The street segments' length, metres of distance driven. 50 m: about a block face of the
+  // demo town and 10 frames at its 5 m query spacing, long enough that a hard stretch (a
+  // look-alike facade, a dark corner) mostly stays inside one segment, short enough that a
+  // 1 km drive gives about 20 segments for the bootstrap (DEVELOPERS.md "Evaluator: decisions"
+  // has the measured correlation).
+  double segment_length_m = 50;
+  // InvalidArgument naming the field unless segment_length_m is finite and > 0.
+  Status Validate() const;
 };
 
 struct RouteSummary {
@@ -144,15 +188,21 @@ struct RouteSummary {
   double radius95_coverage = 0, nees_mean = 0;
   double median_abs_along_track_m = 0, median_abs_cross_track_m = 0;
   int wrong_refined = 0;
+  double wrong_refined_share = 0;  // of refined fixes
   double within_0_25m_2deg = 0, within_0_5m_5deg = 0, within_5m_10deg = 0;
   double latency_ms_p50 = 0, latency_ms_p95 = 0, latency_ms_p99 = 0;
-  // 95 % intervals of the rates (Wilson) and of the refined fixes' figures (as ErrorStats').
+  // 95 % intervals of the rates and of the refined fixes' figures (as ErrorStats'), per segment.
   std::optional<Interval> refined_share_ci95, availability_ci95, recall_at_5_ci95;
   std::optional<Interval> median_error_m_ci95, p95_error_m_ci95, radius95_coverage_ci95;
   std::optional<Interval> median_abs_along_track_m_ci95, median_abs_cross_track_m_ci95;
-  std::optional<Interval> recall_at_1_ci95, recall_at_10_ci95;  // Wilson
-  std::array<std::optional<Interval>, 3> pose_bin_ci95;         // Wilson, kPoseBins' order
+  std::optional<Interval> recall_at_1_ci95, recall_at_10_ci95, wrong_refined_share_ci95;
+  std::array<std::optional<Interval>, 3> pose_bin_ci95;  // kPoseBins' order
   FunnelCounts funnel;  // every query that ran, in exactly one stage
+  // The street segments the intervals read (SummaryOptions), in driving order.
+  double segment_length_m = 0;
+  std::vector<SegmentSummary> segments;
+  IntegrityCounts misleading;         // error > radius95
+  IntegrityCounts confidently_wrong;  // error > 3 x radius95
 };
 
 // The three pose bins of Sattler et al. (CVPR 2018) under names of our own, finest first: a
@@ -180,21 +230,30 @@ Result<std::vector<QueryResult>> RunDrive(const Localizer& localizer,
                                           const RouteEvalOptions& options);
 // Fills error_m, heading_error_deg, nees and first_hit_rank of q from q->truth and q->fix.
 void ScoreQuery(QueryResult* q);
-// Over the queries that ran.
-RouteSummary Summarize(const std::vector<QueryResult>& results);
-// Which intervals are which, in one line for text outputs: Wilson reads queries as independent,
-// the block bootstrap respects neighbouring frames; p90 and the maximum have none.
-extern const char kIntervalLegend[];
+// Below this many street segments text outputs warn that the intervals are rough
+// (interval_stats.h BlockBootstrapInterval: with fewer than about 20 blocks they run narrow).
+inline constexpr int kFewSegments = 20;
 
-// One line: "N queries: refined X % [lo, hi] (coarse N, none N), availability X % [lo, hi];
+// Over the queries that ran. REQUIRES: options.Validate() is OK.
+RouteSummary Summarize(const std::vector<QueryResult>& results, const SummaryOptions& options = {});
+// Which intervals are which, in one line for text outputs: the tags IntervalTag prints, the
+// units (street segments), that p90 and the maximum have none.
+std::string IntervalLegend(const RouteSummary& s);
+// The method of an interval as text outputs print it beside the interval: "seg" (block
+// bootstrap over street segments), "W" (Wilson, one trial per segment), "CP" (Clopper-Pearson);
+// "" otherwise.
+const char* IntervalTag(const Interval& ci);
+
+// One line: "N queries: refined X % [lo, hi] seg (coarse N, none N), availability X % [lo, hi] seg;
 // error median X m [lo, hi], p90 ... m, p95 X m [lo, hi], ...; pose fine (0.25 m, 2 deg) X,
-// medium (0.5 m, 5 deg) X, rough (5 m, 10 deg) X; ...; [lo, hi]: 95 % intervals", an interval
+// medium (0.5 m, 5 deg) X, rough (5 m, 10 deg) X; ...; misleading N of N usable (N episodes,
+// N of N segments, bound X); confidently wrong ...; [lo, hi]: 95 % intervals", an interval
 // "[-]" when its figure has no data.
 std::string SummaryLine(const RouteSummary& s);
-// " [lo, hi]" with both ends times `scale` printed with `format` (one conversion for a double,
-// e.g. "%.1f"); " [-]" when ci is nullopt.
+// " [lo, hi] TAG" with both ends times `scale` printed with `format` (one conversion for a
+// double, e.g. "%.1f") and IntervalTag's tag (none when empty); " [-]" when ci is nullopt.
 std::string IntervalText(const std::optional<Interval>& ci, double scale, const char* format);
-// "retrieval N (X % [lo, hi]), verification ..., pose ..., refined ..., failed_call N (...)".
+// "retrieval N (X % [lo, hi] seg), verification ..., pose ..., refined ..., failed_call N (...)".
 std::string FunnelLine(const FunnelCounts& f);
 
 // The spoofing monitor over a replayed drive: each refined fix against the GNSS fix of its

@@ -9,7 +9,9 @@
 #include <optional>
 #include <sstream>
 
+#include "client/eval/integrity.h"
 #include "client/eval/route_view.h"
+#include "client/eval/street_segments.h"
 #include "indexer/base/iso_time.h"
 
 namespace sightfix {
@@ -60,54 +62,93 @@ nlohmann::json SpoofingJson(const RouteReport& r) {
   return spoof;
 }
 
-// A 95 % interval as [low, high]; null when its figure has no data.
-nlohmann::json IntervalJson(const std::optional<Interval>& ci) {
-  return ci ? nlohmann::json::array({ci->low, ci->high}) : nlohmann::json(nullptr);
+// A 95 % interval under `key` as [low, high] (null when its figure has no data) and its method
+// beside it under key + "_method": "seg", "W" or "CP" (route_eval.h IntervalTag), null with it.
+void PutInterval(const std::string& key, const std::optional<Interval>& ci, nlohmann::json* j) {
+  (*j)[key] = ci ? nlohmann::json::array({ci->low, ci->high}) : nlohmann::json(nullptr);
+  (*j)[key + "_method"] = ci ? nlohmann::json(IntervalTag(*ci)) : nlohmann::json(nullptr);
 }
 
 nlohmann::json RefinedOnlyJson(const RouteSummary& s) {
-  return {{"fixes", s.refined},
-          {"median_error_m", s.median_error_m},
-          {"p90_error_m", s.p90_error_m},
-          {"p95_error_m", s.p95_error_m},
-          {"max_error_m", s.max_error_m},
-          {"median_heading_error_deg", s.median_heading_error_deg},
-          {"radius95_coverage", s.radius95_coverage},
-          {"nees_mean", s.nees_mean},
-          {"median_abs_along_track_m", s.median_abs_along_track_m},
-          {"median_abs_cross_track_m", s.median_abs_cross_track_m},
-          {"median_abs_along_track_m_ci95", IntervalJson(s.median_abs_along_track_m_ci95)},
-          {"median_abs_cross_track_m_ci95", IntervalJson(s.median_abs_cross_track_m_ci95)},
-          {"median_error_m_ci95", IntervalJson(s.median_error_m_ci95)},
-          {"p95_error_m_ci95", IntervalJson(s.p95_error_m_ci95)},
-          {"radius95_coverage_ci95", IntervalJson(s.radius95_coverage_ci95)}};
+  nlohmann::json j = {{"fixes", s.refined},
+                      {"median_error_m", s.median_error_m},
+                      {"p90_error_m", s.p90_error_m},
+                      {"p95_error_m", s.p95_error_m},
+                      {"max_error_m", s.max_error_m},
+                      {"median_heading_error_deg", s.median_heading_error_deg},
+                      {"radius95_coverage", s.radius95_coverage},
+                      {"nees_mean", s.nees_mean},
+                      {"median_abs_along_track_m", s.median_abs_along_track_m},
+                      {"median_abs_cross_track_m", s.median_abs_cross_track_m}};
+  PutInterval("median_abs_along_track_m_ci95", s.median_abs_along_track_m_ci95, &j);
+  PutInterval("median_abs_cross_track_m_ci95", s.median_abs_cross_track_m_ci95, &j);
+  PutInterval("median_error_m_ci95", s.median_error_m_ci95, &j);
+  PutInterval("p95_error_m_ci95", s.p95_error_m_ci95, &j);
+  PutInterval("radius95_coverage_ci95", s.radius95_coverage_ci95, &j);
+  return j;
 }
 
-// Per funnel stage (FunnelStageName): queries, share of queries and its Wilson interval.
+// Per funnel stage (FunnelStageName): queries, share of queries and its interval.
 nlohmann::json FunnelJson(const FunnelCounts& f) {
   nlohmann::json j = nlohmann::json::object();
-  for (int k = 0; k < kFunnelStageCount; ++k)
-    j[FunnelStageName(static_cast<FunnelStage>(k))] = {
-        {"queries", f.count[k]},
-        {"share", f.share[k]},
-        {"share_ci95", IntervalJson(f.share_ci95[k])}};
+  for (int k = 0; k < kFunnelStageCount; ++k) {
+    nlohmann::json stage = {{"queries", f.count[k]}, {"share", f.share[k]}};
+    PutInterval("share_ci95", f.share_ci95[k], &stage);
+    j[FunnelStageName(static_cast<FunnelStage>(k))] = stage;
+  }
   return j;
 }
 
 // The 95 % intervals of the top-level figures, under each figure's key + "_ci95".
 void AddIntervals(const RouteSummary& s, nlohmann::json* j) {
-  (*j)["refined_share_ci95"] = IntervalJson(s.refined_share_ci95);
-  (*j)["availability_ci95"] = IntervalJson(s.availability_ci95);
-  (*j)["recall_at_1_25m_ci95"] = IntervalJson(s.recall_at_1_ci95);
-  (*j)["recall_at_5_25m_ci95"] = IntervalJson(s.recall_at_5_ci95);
-  (*j)["recall_at_10_25m_ci95"] = IntervalJson(s.recall_at_10_ci95);
+  PutInterval("refined_share_ci95", s.refined_share_ci95, j);
+  PutInterval("availability_ci95", s.availability_ci95, j);
+  PutInterval("recall_at_1_25m_ci95", s.recall_at_1_ci95, j);
+  PutInterval("recall_at_5_25m_ci95", s.recall_at_5_ci95, j);
+  PutInterval("recall_at_10_25m_ci95", s.recall_at_10_ci95, j);
+  PutInterval("wrong_refined_share_ci95", s.wrong_refined_share_ci95, j);
   for (size_t k = 0; k < s.pose_bin_ci95.size(); ++k)
-    (*j)[std::string(kPoseBins[k].summary_key) + "_ci95"] = IntervalJson(s.pose_bin_ci95[k]);
-  (*j)["median_error_m_ci95"] = IntervalJson(s.all.median_m_ci95);
-  (*j)["p95_error_m_ci95"] = IntervalJson(s.all.p95_m_ci95);
-  (*j)["radius95_coverage_ci95"] = IntervalJson(s.all.radius95_coverage_ci95);
-  (*j)["median_abs_along_track_m_ci95"] = IntervalJson(s.all.median_abs_along_m_ci95);
-  (*j)["median_abs_cross_track_m_ci95"] = IntervalJson(s.all.median_abs_cross_m_ci95);
+    PutInterval(std::string(kPoseBins[k].summary_key) + "_ci95", s.pose_bin_ci95[k], j);
+  PutInterval("median_error_m_ci95", s.all.median_m_ci95, j);
+  PutInterval("p95_error_m_ci95", s.all.p95_m_ci95, j);
+  PutInterval("radius95_coverage_ci95", s.all.radius95_coverage_ci95, j);
+  PutInterval("median_abs_along_track_m_ci95", s.all.median_abs_along_m_ci95, j);
+  PutInterval("median_abs_cross_track_m_ci95", s.all.median_abs_cross_m_ci95, j);
+}
+
+// One bound's integrity counts (route_eval.h IntegrityCounts).
+nlohmann::json IntegrityJson(const IntegrityCounts& c) {
+  nlohmann::json j = {
+      {"bound_factor", c.bound_factor},
+      {"usable_fixes", c.usable_fixes},
+      {"misleading_fixes", c.misleading_fixes},
+      {"fix_share", c.fix_share},
+      {"episodes", c.episodes},
+      {"longest_episode", c.longest_episode},
+      {"segments", c.segments},
+      {"misleading_segments", c.misleading_segments},
+      {"segment_share_upper95", c.segment_share_upper95 ? nlohmann::json(*c.segment_share_upper95)
+                                                        : nlohmann::json(nullptr)}};
+  PutInterval("fix_share_ci95", c.fix_share_ci95, &j);
+  return j;
+}
+
+// "street_segments": the cut's length and count, and one object per segment in driving order.
+nlohmann::json SegmentsJson(const RouteSummary& s) {
+  nlohmann::json rows = nlohmann::json::array();
+  for (const SegmentSummary& g : s.segments)
+    rows.push_back(
+        {{"index", g.index},
+         {"start_m", g.start_m},
+         {"end_m", g.end_m},
+         {"queries", g.queries},
+         {"fixes", g.fixes},
+         {"refined", g.refined},
+         {"availability", g.availability},
+         {"refined_share", g.refined_share},
+         {"median_error_m", g.fixes ? nlohmann::json(g.median_error_m) : nlohmann::json(nullptr)},
+         {"misleading", g.misleading}});
+  return {{"length_m", s.segment_length_m}, {"count", s.segments.size()}, {"segments", rows}};
 }
 
 }  // namespace
@@ -129,6 +170,7 @@ nlohmann::json SummaryJson(const RouteReport& r) {
                       {"p95_error_m", s.all.p95_m},
                       {"max_error_m", s.all.max_m},
                       {"wrong_refined", s.wrong_refined},
+                      {"wrong_refined_share", s.wrong_refined_share},
                       {"median_abs_along_track_m", s.all.median_abs_along_m},
                       {"median_abs_cross_track_m", s.all.median_abs_cross_m},
                       {"median_heading_error_deg", s.all.median_heading_deg},
@@ -136,6 +178,10 @@ nlohmann::json SummaryJson(const RouteReport& r) {
                       {"nees_mean", s.all.nees_mean},
                       {"refined_only", RefinedOnlyJson(s)},
                       {"funnel", FunnelJson(s.funnel)},
+                      {"integrity",
+                       {{"misleading", IntegrityJson(s.misleading)},
+                        {"confidently_wrong", IntegrityJson(s.confidently_wrong)}}},
+                      {"street_segments", SegmentsJson(s)},
                       {"latency_ms_p50", s.latency_ms_p50},
                       {"latency_ms_p95", s.latency_ms_p95},
                       {"latency_ms_p99", s.latency_ms_p99},
@@ -153,14 +199,28 @@ nlohmann::json SummaryJson(const RouteReport& r) {
   return j;
 }
 
+StreetCut ReportCut(const RouteReport& r) {
+  return CutStreetSegments(r.results, r.summary.segment_length_m > 0
+                                          ? r.summary.segment_length_m
+                                          : SummaryOptions{}.segment_length_m);
+}
+
 std::string FixesCsv(const RouteReport& r) {
   std::ostringstream out;
   out << "image,timestamp,true_lat,true_lon,true_heading_deg,quality,method,lat,lon,heading_deg,"
          "error_m,heading_error_deg,radius95_m,nees,references,verified_references,"
          "first_hit_rank,pnp_inliers,prior_lat,prior_lon,prior_radius_m,outside_prior,"
-         "retried_without_prior,spoofed,latency_ms,along_track_m,cross_track_m,stage,reason\n";
+         "retried_without_prior,spoofed,latency_ms,along_track_m,cross_track_m,segment,driven_m,"
+         "misleading,stage,reason\n";
   char buf[1024];
-  for (const QueryResult* q : InTimeOrder(r)) {
+  const StreetCut cut = ReportCut(r);
+  for (size_t i : cut.order) {
+    const QueryResult* q = &r.results[i];
+    // misleading: 0 within radius95, 1 beyond it, 3 beyond 3 x radius95; empty: not usable.
+    const char* misleading = !IsUsableFix(*q)                            ? ""
+                             : IsMisleading(*q, kConfidentlyWrongFactor) ? "3"
+                             : IsMisleading(*q, kMisleadingFactor)       ? "1"
+                                                                         : "0";
     const Fix& f = q->fix;
     int verified = 0;
     for (const ReferenceUse& u : f.references) verified += u.verified;
@@ -171,7 +231,7 @@ std::string FixesCsv(const RouteReport& r) {
     std::snprintf(
         buf, sizeof(buf),
         "%s,%s,%.9f,%.9f,%.2f,%s,%s,%s,%s,%s,%s,%s,%s,%s,%zu,%d,%d,%d,%s,%s,%s,%d,%d,%d,%.1f,%s,"
-        "%s,%s,%s\n",
+        "%s,%d,%.1f,%s,%s,%s\n",
         q->truth.image.c_str(), FormatIsoUtc(q->truth.timestamp_s).c_str(),
         q->truth.position.lat_deg, q->truth.position.lon_deg, q->truth.attitude.heading_deg,
         q->error.empty() ? FixQualityName(f.quality) : "error", f.method.c_str(),
@@ -188,11 +248,25 @@ std::string FixesCsv(const RouteReport& r) {
         q->prior ? FormatNumber("%.2f", q->prior->radius_m).c_str() : "", f.outside_prior ? 1 : 0,
         q->retried_without_prior ? 1 : 0, SpoofedAt(r, q->truth.timestamp_s) ? 1 : 0, q->latency_ms,
         has_fix ? FormatNumber("%.4f", q->along_track_m).c_str() : "",
-        has_fix ? FormatNumber("%.4f", q->cross_track_m).c_str() : "", FunnelStageName(StageOf(*q)),
-        reason.c_str());
+        has_fix ? FormatNumber("%.4f", q->cross_track_m).c_str() : "", cut.segment[i],
+        cut.driven_m[i], misleading, FunnelStageName(StageOf(*q)), reason.c_str());
     out << buf;
   }
   return out.str();
+}
+
+std::string SegmentsCsv(const RouteReport& r) {
+  std::string out =
+      "segment,start_m,end_m,queries,fixes,refined,availability,refined_share,median_error_m,"
+      "misleading\n";
+  for (const SegmentSummary& g : r.summary.segments)
+    out += std::to_string(g.index) + "," + FormatNumber("%.1f", g.start_m) + "," +
+           FormatNumber("%.1f", g.end_m) + "," + std::to_string(g.queries) + "," +
+           std::to_string(g.fixes) + "," + std::to_string(g.refined) + "," +
+           FormatNumber("%.4f", g.availability) + "," + FormatNumber("%.4f", g.refined_share) +
+           "," + (g.fixes ? FormatNumber("%.4f", g.median_error_m) : "") + "," +
+           std::to_string(g.misleading) + "\n";
+  return out;
 }
 
 namespace {
@@ -260,6 +334,7 @@ Status WriteRouteReport(const RouteReport& r, const std::string& out_dir) {
   const std::pair<const char*, std::string> files[] = {
       {"summary.json", SummaryJson(r).dump(2) + "\n"},
       {"fixes.csv", FixesCsv(r)},
+      {"segments.csv", SegmentsCsv(r)},
       {"route.geojson", RouteGeoJson(r).dump() + "\n"},
       {"report.html", ReportHtml(r)}};
   for (const auto& [name, text] : files) {

@@ -1,6 +1,7 @@
 // The evaluator's outputs for one replayed drive, written into a report folder:
 //   summary.json   the metrics (route_eval.h) under the keys docs/design.md 7 and README list,
-//   fixes.csv      one row per query,
+//   fixes.csv      one row per query, in time order, with its street segment and integrity flag,
+//   segments.csv   one row per street segment (route_eval.h SegmentSummary),
 //   route.geojson  RFC 7946: truth track, fixes, error segments, spoofing alarms,
 //   report.html    one self-contained page with inline SVG plots and the safety caution
 // and `sightfix compare`'s side-by-side of two summaries. Thread-compatible (no shared state).
@@ -35,10 +36,11 @@ struct RouteReport {
 
 nlohmann::json SummaryJson(const RouteReport& r);
 std::string FixesCsv(const RouteReport& r);
+std::string SegmentsCsv(const RouteReport& r);
 nlohmann::json RouteGeoJson(const RouteReport& r);
 std::string ReportHtml(const RouteReport& r);
 
-// Writes the four files into out_dir (created if missing), each through a temporary file and a
+// Writes the five files into out_dir (created if missing), each through a temporary file and a
 // rename, so a reader never sees half a file.
 Status WriteRouteReport(const RouteReport& r, const std::string& out_dir);
 

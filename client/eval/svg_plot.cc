@@ -124,6 +124,14 @@ void SvgPlot::Band(double x0, double x1, const std::string& fill) {
                    "\" fill=\"" + fill + "\"/>");
 }
 
+void SvgPlot::Strip(double x0, double x1, const std::string& fill, const std::string& title) {
+  const double a = X(x0), b = X(x1);
+  const std::string rect = "<rect x=\"" + Num(a) + "\" y=\"" + Num(kTop) + "\" width=\"" +
+                           Num(std::max(1.0, b - a)) + "\" height=\"10\" fill=\"" + fill + "\"";
+  marks_.push_back(title.empty() ? rect + "/>"
+                                 : rect + "><title>" + EscapeXml(title) + "</title></rect>");
+}
+
 void SvgPlot::Bar(double x0, double x1, double y, const std::string& fill) {
   const double a = X(x0), b = X(x1), top = Y(y), base = Y(y_.lo);
   marks_.push_back("<rect x=\"" + Num(a + 0.5) + "\" y=\"" + Num(top) + "\" width=\"" +

@@ -27,6 +27,8 @@ class SvgPlot {
   void Dot(double x, double y, double r, const std::string& fill, const std::string& title = "");
   void Ring(double x, double y, double r, const std::string& stroke);
   void Band(double x0, double x1, const std::string& fill);  // a vertical band over the y range
+  // A band 10 px tall along the top of the plot area from x0 to x1, with a hover title.
+  void Strip(double x0, double x1, const std::string& fill, const std::string& title = "");
   void Bar(double x0, double x1, double y, const std::string& fill);
   // row: label line from the top (0, 1, ...), so close marks do not print over each other.
   void VerticalMark(double x, const std::string& label, const std::string& colour, int row = 0);

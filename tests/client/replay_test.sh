@@ -17,7 +17,7 @@ drive="$data/town/query-day"
   >"$tmp/in.txt" 2>"$tmp/in.err" && ok "replay in process" || bad "replay in process: $(tail -3 "$tmp/in.err")"
 grep -q "report: $tmp/in/report.html" "$tmp/in.txt" && ok "replay prints the report's path" || bad "report path"
 grep -q "not a certified navigation source" "$tmp/in.txt" && ok "replay prints the safety caution" || bad "safety caution"
-for f in summary.json fixes.csv route.geojson report.html; do
+for f in summary.json fixes.csv segments.csv route.geojson report.html; do
   [ -s "$tmp/in/$f" ] && ok "writes $f" || bad "writes $f"
 done
 [ "$(wc -l <"$tmp/in/fixes.csv")" -eq 17 ] && ok "fixes.csv: header + 16 rows" || bad "fixes.csv rows"
@@ -27,14 +27,15 @@ text, j = open(sys.argv[1]).read(), json.load(open(sys.argv[2]))
 for label, key in (("fine (0.25 m, 2 deg)", "within_0_25m_2deg"),
                    ("medium (0.5 m, 5 deg)", "within_0_5m_5deg"),
                    ("rough (5 m, 10 deg)", "within_5m_10deg")):
-    m = re.search(r"^pose %s: ([0-9.]+) \[([0-9.]+), ([0-9.]+)\] of queries$" % re.escape(label), text, re.M)
+    m = re.search(r"^pose %s: ([0-9.]+) \[([0-9.]+), ([0-9.]+)\] (seg|W) of queries$" % re.escape(label), text, re.M)
     assert m and m.group(1) == "%.3f" % j[key], (label, m and m.group(1), j[key])
     assert [m.group(2), m.group(3)] == ["%.3f" % v for v in j[key + "_ci95"]], (m.groups(), j[key + "_ci95"])
+    assert m.group(4) == j[key + "_ci95_method"], (m.groups(), j[key + "_ci95_method"])
 PY
 "$py" - "$tmp/in.txt" "$tmp/in/summary.json" <<'PY' && ok "replay text: intervals beside the rates and the median/p95 as in summary.json, one line says which is which" || bad "replay text intervals"
 import json, re, sys
 text, j = open(sys.argv[1]).read(), json.load(open(sys.argv[2]))
-ci = lambda k, d=j: "[%.3f, %.3f]" % tuple(d[k + "_ci95"])
+ci = lambda k, d=j: "[%.3f, %.3f] %s" % (tuple(d[k + "_ci95"]) + (d[k + "_ci95_method"],))
 r = j["refined_only"]
 for want in ("availability %.3f %s" % (j["availability"], ci("availability")),
              "share %.3f %s" % (j["refined_share"], ci("refined_share")),
@@ -55,6 +56,39 @@ assert sum(v["queries"] for v in j["funnel"].values()) == j["queries"], j["funne
 legend = [l for l in text.splitlines() if l.startswith("[lo, hi]: 95 % intervals")]
 assert len(legend) == 1 and "Wilson" in legend[0] and "block bootstrap" in legend[0], legend
 PY
+"$py" - "$tmp/in.txt" "$tmp/in/summary.json" "$tmp/in/segments.csv" <<'PY' && ok "replay text: integrity lines and segments.csv agree with summary.json" || bad "integrity lines or segments.csv"
+import csv, json, sys
+text, j = open(sys.argv[1]).read(), json.load(open(sys.argv[2]))
+rows = list(csv.DictReader(open(sys.argv[3])))
+seg = j["street_segments"]
+assert seg["length_m"] == 50 and seg["count"] == len(rows) >= 1, (seg["count"], len(rows))
+assert sum(int(r["queries"]) for r in rows) == j["queries"], rows
+assert "over %d street segments of 50 m driven" % len(rows) in text
+for key, name in (("misleading", "misleading (error > radius95)"),
+                  ("confidently_wrong", "confidently wrong (error > 3 x radius95)")):
+    c = j["integrity"][key]
+    want = "integrity, %s: %d of %d usable fixes" % (name, c["misleading_fixes"], c["usable_fixes"])
+    assert want in text, (want, text)
+    want = "in %d of %d segments, at most %.3f of segments (95 %% CP)" % (
+        c["misleading_segments"], c["segments"], c["segment_share_upper95"])
+    assert want in text, (want, text)
+assert sum(int(r["misleading"]) for r in rows) == j["integrity"]["misleading"]["misleading_fixes"]
+PY
+# README's example: shorter street segments, and a length that is not one refused.
+"$cli" replay --map "$data/map" --drive "$drive" --out "$tmp/seg25" --limit 16 --seed 3 \
+  --segment-m 25 --json >"$tmp/seg25.json" 2>/dev/null && "$py" - "$tmp/seg25.json" "$tmp/in/summary.json" <<'PY' \
+  && ok "replay --segment-m 25: more, shorter segments; same figures" || bad "replay --segment-m 25"
+import json, sys
+a, b = (json.load(open(p)) for p in sys.argv[1:3])
+assert a["street_segments"]["length_m"] == 25, a["street_segments"]
+assert a["street_segments"]["count"] > b["street_segments"]["count"], (a["street_segments"]["count"], b["street_segments"]["count"])
+assert a["availability"] == b["availability"] and a["median_error_m"] == b["median_error_m"]
+PY
+for bad_length in 0 -5 nan abc; do
+  "$cli" replay --map "$data/map" --drive "$drive" --out "$tmp/x" --segment-m "$bad_length" >/dev/null 2>"$tmp/seg.err"
+  rc=$?
+  [ $rc -eq 2 ] && grep -q "segment-m" "$tmp/seg.err" && ok "--segment-m $bad_length refused (exit 2)" || bad "--segment-m $bad_length: exit $rc, $(cat "$tmp/seg.err")"
+done
 
 "$build/server/sightfix-server" --map "$data/map" --listen 127.0.0.1:0 --http "" --workers 2 \
   2>"$tmp/server.log" &
