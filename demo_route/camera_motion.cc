@@ -118,8 +118,11 @@ cv::Vec3f Sample(const cv::Mat3f& img, cv::Point2f p) {
   return (1 - fy) * ((1 - fx) * r0[0] + fx * r0[1]) + fy * ((1 - fx) * r1[0] + fx * r1[1]);
 }
 
-// Gather: the mean of the sharp image along p - D over p's exposure.
-cv::Mat3f Gather(const cv::Mat3f& sharp, const cv::Mat2f& start, const cv::Mat2f& end) {
+// Gather: the mean of the sharp image along p - D over p's exposure, leaving out samples that
+// land on a surface nearer than p's by kOccluderDepthRatio (they hide the background p sees
+// there; SplatNearer brings them in). All left out: p's own value.
+cv::Mat3f Gather(const cv::Mat3f& sharp, const cv::Mat1f& inverse_depth, const cv::Mat2f& start,
+                 const cv::Mat2f& end) {
   cv::Mat3f out(sharp.size());
   for (int y = 0; y < sharp.rows; ++y)
     for (int x = 0; x < sharp.cols; ++x) {
@@ -129,10 +132,19 @@ cv::Mat3f Gather(const cv::Mat3f& sharp, const cv::Mat2f& start, const cv::Mat2f
       }
       const cv::Point2f p(x, y);
       const cv::Point2f a = p - cv::Point2f(start(y, x)), b = p - cv::Point2f(end(y, x));
+      const float nearest = inverse_depth(y, x) * float(kOccluderDepthRatio);
       const int n = SampleCount(a, b);
       cv::Vec3f sum(0, 0, 0);
-      for (int k = 0; k < n; ++k) sum += Sample(sharp, a + (b - a) * ((k + 0.5f) / n));
-      out(y, x) = sum / n;
+      int used = 0;
+      for (int k = 0; k < n; ++k) {
+        const cv::Point2f q = a + (b - a) * ((k + 0.5f) / n);
+        const int qx = std::clamp(static_cast<int>(q.x + 0.5f), 0, sharp.cols - 1);
+        const int qy = std::clamp(static_cast<int>(q.y + 0.5f), 0, sharp.rows - 1);
+        if (inverse_depth(qy, qx) > nearest) continue;
+        sum += Sample(sharp, q);
+        ++used;
+      }
+      out(y, x) = used ? sum / used : sharp(y, x);
     }
   return out;
 }
@@ -218,7 +230,7 @@ cv::Mat ApplyCameraMotion(const cv::Mat& linear, const cv::Mat& inverse_depth,
   cv::Mat2f start, end;
   Displacements(inverse_depth, camera, motion, exposure_s, readout_s, &start, &end);
   const cv::Mat3f sharp = linear;
-  cv::Mat3f out = Gather(sharp, start, end);
+  cv::Mat3f out = Gather(sharp, inverse_depth, start, end);
   const Splats near = SplatNearer(sharp, inverse_depth, start, end);
   for (int y = 0; y < out.rows; ++y)
     for (int x = 0; x < out.cols; ++x) {

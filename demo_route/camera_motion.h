@@ -17,17 +17,20 @@
 // Pixel p's value is the mean of what p sees over its exposure. Two passes build it from the
 // sharp image I:
 //  - gather: the mean of I along the segment p - D(tau), tau over p's exposure, with p's own
-//    depth: exact for a surface whose depth is smooth around p (the flow at p - D equals p's to
-//    first order) and for a static background seen at p;
+//    depth, leaving out samples that land on a surface nearer than p's by kOccluderDepthRatio:
+//    what p sees of its own surface or of anything farther (exact for a surface whose depth is
+//    smooth around p, the flow at p - D being p's to first order, and for a background that
+//    moves with the foreground, as under a pure turn);
 //  - nearer surfaces passing over p: every pixel q splats its value along q + D_q(tau) (bilinear
 //    weights summing to 1 per q) wherever it lands on a pixel whose surface lies more than
 //    kOccluderDepthRatio farther away; the weight W gathered at p is the share of the exposure
 //    a nearer surface covers p, and p = (1 - min(W, 1)) gather + min(W, 1) (splatted mean).
-// Where a nearer surface moves away from a farther one, the gather along the farther one's own
-// flow may sample the nearer one (the sharp image holds no hidden background): a ghost of at
-// most |D| pixels beside occluding edges. D is linear between the segment's ends (exact for a
-// translation parallel to the image; the forward case's 1 / (Z - v tau) is curved by |v| t / Z,
-// under 1 % at 9 m/s, 8 ms and Z = 8 m).
+// The background hidden behind a nearer surface in the sharp image is estimated from what the
+// gather sees of it along p's path (an error only where that path crosses the nearer surface:
+// within |D| of an occluding edge). D is linear between the segment's ends (exact for a
+// translation parallel to the image; the forward case's 1 / (Z - v tau) bends by |v| t / Z, under
+// 1 % at 9 m/s, 8 ms and Z = 8 m). A row's time is its own, whichever row a point came from
+// (rows move by D's vertical part: an error of that part times readout / rows, second order).
 #pragma once
 
 #include <opencv2/core.hpp>
