@@ -244,22 +244,53 @@ TEST(CameraMotionTest, VignettingFollowsCosFourthAtTheCorner) {
 // standard error is sqrt(2 / n) = 0.41 %, so 1.5 % is 3.6 standard errors.
 TEST(CameraMotionTest, SensorNoiseFollowsPhotonTransfer) {
   const double full = 2000, read = 4;
-  for (double level : {0.05, 0.2, 0.5, 0.8}) {
-    cv::Mat img(200, 200, CV_32FC3, cv::Scalar::all(level));
-    AddSensorNoise(full, read, 77, &img);
-    cv::Scalar mean, sd;
-    cv::meanStdDev(img.reshape(1), mean, sd);
-    const double expected = level / full + (read / full) * (read / full);
-    std::printf("level %.2f: variance %.4g (model %.4g)\n", level, sd[0] * sd[0], expected);
-    EXPECT_NEAR(sd[0] * sd[0] / expected, 1.0, 0.015) << level;
-    EXPECT_NEAR(mean[0], level, 4 * std::sqrt(expected / 120000)) << level;
-  }
+  for (uint64_t seed : {77, 78})
+    for (double level : {0.05, 0.2, 0.5, 0.8}) {
+      cv::Mat img(200, 200, CV_32FC3, cv::Scalar::all(level));
+      AddSensorNoise(full, read, seed, &img);
+      cv::Scalar mean, sd;
+      cv::meanStdDev(img.reshape(1), mean, sd);
+      const double expected = level / full + (read / full) * (read / full);
+      std::printf("seed %d level %.2f: variance / model %.4f, mean - level %+.2g\n", int(seed),
+                  level, sd[0] * sd[0] / expected, mean[0] - level);
+      EXPECT_NEAR(sd[0] * sd[0] / expected, 1.0, 0.015) << level;
+      EXPECT_NEAR(mean[0], level, 4 * std::sqrt(expected / 120000)) << level;
+    }
   cv::Mat a(20, 20, CV_32FC3, cv::Scalar::all(0.3)), b = a.clone(), c = a.clone();
   AddSensorNoise(full, read, 5, &a);
   AddSensorNoise(full, read, 5, &b);
   AddSensorNoise(full, read, 6, &c);
   EXPECT_EQ(cv::norm(a, b, cv::NORM_INF), 0) << "same seed, same noise";
   EXPECT_GT(cv::norm(a, c, cv::NORM_INF), 0);
+}
+
+// The realistic preset's camera ranges pass; a bad one is refused by name; the clean preset has
+// no camera nuisances.
+TEST(CameraMotionTest, CameraRangesAreValidated) {
+  WorldNuisances n = NuisancesForWorld(World::kRealistic);
+  EXPECT_TRUE(n.camera.enabled);
+  EXPECT_TRUE(n.Validate().ok()) << n.Validate().ToString();
+  EXPECT_FALSE(NuisancesForWorld(World::kClean).camera.enabled);
+  const auto refused = [](WorldNuisances bad, const char* field) {
+    const Status s = bad.Validate();
+    EXPECT_FALSE(s.ok()) << field;
+    EXPECT_NE(s.ToString().find(field), std::string::npos) << s.ToString();
+  };
+  WorldNuisances bad = n;
+  bad.camera.readout_ms = {30, 10};
+  refused(bad, "camera.readout_ms");
+  bad = n;
+  bad.camera.vignetting_strength = {0.5, 1.5};
+  refused(bad, "camera.vignetting_strength");
+  bad = n;
+  bad.camera.global_shutter_share = 1.2;
+  refused(bad, "camera.global_shutter_share");
+  bad = n;
+  bad.camera.query_jpeg_quality = {60, 101};
+  refused(bad, "jpeg_quality");
+  bad = n;
+  bad.camera.dusk.full_scale_electrons = {0, 100};
+  refused(bad, "camera.dusk.full_scale_electrons");
 }
 
 }  // namespace
