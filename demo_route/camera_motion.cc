@@ -176,8 +176,11 @@ void Splat(cv::Point2f t, float wt, const cv::Vec3f& v, float q_inverse_depth,
 double MaxDisplacement(const cv::Mat2f& start, const cv::Mat2f& end) {
   float longest2 = 0;
   for (const cv::Mat2f* m : {&start, &end})
-    for (auto it = m->begin(); it != m->end(); ++it)
-      longest2 = std::max(longest2, (*it)[0] * (*it)[0] + (*it)[1] * (*it)[1]);
+    for (int y = 0; y < m->rows; ++y) {
+      const cv::Vec2f* row = m->ptr<cv::Vec2f>(y);
+      for (int x = 0; x < m->cols; ++x)
+        longest2 = std::max(longest2, row[x][0] * row[x][0] + row[x][1] * row[x][1]);
+    }
   return std::sqrt(double(longest2));
 }
 
