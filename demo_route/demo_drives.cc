@@ -229,6 +229,32 @@ DriveWorld WorldOfDrive(const Town& town, const WorldNuisances& n, uint64_t seed
   return w;
 }
 
+// The realistic camera of drive i from its own stream (camera_nuisances.h): the mount moves the
+// plan's height and pitch (before its frames are planned), the JPEG quality replaces the
+// condition's and the sensor's shot and read noise its Gaussian noise.
+void AddCameraNuisances(const CameraNuisanceRanges& r, uint64_t seed, size_t i, PlannedDrive* d) {
+  Rng rng(HashSeed(seed, 0x63616d, i));
+  d->camera_nuisance_model = true;
+  d->camera_draw = DrawCameraNuisances(r, LightLevelOf(d->condition.look), i > 0,
+                                       DriveDuration(d->passes, d->plan), rng);
+  d->plan.camera_height_m += d->camera_draw.mount_height_offset_m;
+  d->plan.camera_pitch_deg += d->camera_draw.mount_pitch_deg;
+  d->condition.jpeg_quality = d->camera_draw.jpeg_quality;
+  d->condition.noise_sigma = 0;
+}
+
+// The camera's motion at each exposure: the planned path's velocity and yaw rate over +-50 ms
+// (0.9 m at 9 m/s: a chord of a 12 m turn is within 1 % of its arc's direction).
+std::vector<CameraMotion> ExposureMotions(const PlannedDrive& d) {
+  constexpr double kHalfSpanS = 0.05;
+  std::vector<CameraMotion> motions;
+  for (const Frame& f : d.exposure)
+    motions.push_back(MotionBetween(PoseAtTime(d.path, d.passes, d.plan, f.time_s - kHalfSpanS),
+                                    PoseAtTime(d.path, d.passes, d.plan, f.time_s + kHalfSpanS),
+                                    f.attitude));
+  return motions;
+}
+
 }  // namespace
 
 std::vector<PlannedDrive> PlanDrives(const Town& town, const DemoOptions& o) {
@@ -248,8 +274,10 @@ std::vector<PlannedDrive> PlanDrives(const Town& town, const DemoOptions& o) {
       PlanOffMapQuery(o, town, rng, &d);
     else
       PlanQuery(o, L, i == 3, rng, &d);
+    if (nuisances.camera.enabled) AddCameraNuisances(nuisances.camera, o.seed, i, &d);
     d.truth = PlanFrames(d.path, d.passes, d.plan, rng);
     AddNuisances(town, nuisances, i, rng, nuisance_rng, &d);
+    if (d.camera_nuisance_model) d.camera_motion = ExposureMotions(d);
     if (i > 0) {
       d.spoofing = PlanSpoofing(DriveDuration(d.passes, d.plan), rng);
       d.gnss = SimulateGnss(d.path, d.passes, d.plan, GnssOptions{}, d.spoofing, rng);

@@ -8,6 +8,7 @@
 #include <vector>
 
 #include "demo_route/calibration_error.h"
+#include "demo_route/camera_nuisances.h"
 #include "demo_route/demo_town.h"
 #include "demo_route/drive_plan.h"
 #include "demo_route/survey_error.h"
@@ -61,6 +62,11 @@ struct PlannedDrive {
   std::vector<SurveyError> survey_errors;
   std::vector<SpoofSegment> spoofing;
   std::vector<GnssSample> gnss;
+  // The realistic world's camera (camera_nuisances.h): its draw (the mount already in plan,
+  // the JPEG quality in condition) and its motion at each exposure.
+  bool camera_nuisance_model = false;
+  CameraNuisanceDraw camera_draw;
+  std::vector<CameraMotion> camera_motion;
   // What the drive sees beyond the town's layout (changed_world.h): clean world, its parked
   // vehicles only; realistic, a changed world for query drives and traffic on every drive.
   DriveWorld world;

@@ -217,12 +217,20 @@ nlohmann::json SurveyErrorJson(const PlannedDrive& d) {
   return j;
 }
 
+std::vector<double> FrameTimesOf(const std::vector<Frame>& frames) {
+  std::vector<double> times;
+  for (const Frame& f : frames) times.push_back(f.time_s);
+  return times;
+}
+
 nlohmann::json DriveJson(const PlannedDrive& d) {
   nlohmann::json dj;
   dj["images"] = d.truth.size();
   dj["camera"] = CameraJson(d.camera);
   if (d.calibration_error_model) dj["calibration_error"] = CalibrationErrorJson(d);
   if (d.survey_error_model) dj["survey_error"] = SurveyErrorJson(d);
+  if (d.camera_nuisance_model)
+    dj["camera_nuisances"] = CameraNuisanceJson(d.camera_draw, FrameTimesOf(d.exposure));
   dj["camera_height_m"] = d.plan.camera_height_m;
   dj["speed_mps"] = d.plan.speed_mps;
   dj["spacing_m"] = d.plan.spacing_m;

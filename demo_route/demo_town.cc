@@ -52,11 +52,17 @@ bool RenderImage(const TownScene& scene, const RenderJob& job, const DemoOptions
   RenderOptions render;
   render.supersample = o.supersample;
   render.time_s = f.time_s;  // the exposure's: where moving objects are
+  render.inverse_depth = d.camera_nuisance_model;
   const RenderedView view =
       scene.RenderView(pose, d.camera, d.condition.look, static_cast<int>(job.drive_index), render);
   *moving_share = view.moving_share;
-  const cv::Mat img = FinishImage(view.image, d.condition,
-                                  HashSeed(o.seed, 0x696d67, d.condition.variant, job.index));
+  const cv::Mat linear =
+      d.camera_nuisance_model
+          ? ApplyCameraNuisances(view, d.camera, d.camera_draw, d.camera_motion[job.index],
+                                 f.time_s, HashSeed(o.seed, 0x736e73, job.drive_index, job.index))
+          : view.image;
+  const cv::Mat img =
+      FinishImage(linear, d.condition, HashSeed(o.seed, 0x696d67, d.condition.variant, job.index));
   const fs::path path = out / d.condition.name / DriveImageName(job.index);
   if (cv::imwrite(path.string(), img, {cv::IMWRITE_JPEG_QUALITY, d.condition.jpeg_quality}))
     return true;

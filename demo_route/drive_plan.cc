@@ -50,6 +50,7 @@ std::vector<Frame> PlanFrames(const Polyline& route, const std::vector<Pass>& pa
       f.attitude.heading_deg =
           std::fmod(f.attitude.heading_deg + Truncated(rng, o.heading_jitter_deg) + 360.0, 360.0);
       f.attitude.pitch_deg = Truncated(rng, o.pitch_jitter_deg);
+      if (o.camera_pitch_deg != 0) f.attitude.pitch_deg += o.camera_pitch_deg;
       f.attitude.roll_deg = Truncated(rng, o.roll_jitter_deg);
       frames.push_back(f);
     }

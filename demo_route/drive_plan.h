@@ -34,6 +34,7 @@ struct DrivePlanOptions {
   double speed_mps = 8.0;
   double turnaround_s = 15.0;  // time between passes
   double camera_height_m = 1.5;
+  double camera_pitch_deg = 0;    // the mount's pitch (positive up), added to every frame's jitter
   double heading_jitter_deg = 0;  // 1-sigma, truncated at 2.5 sigma
   double pitch_jitter_deg = 0;
   double roll_jitter_deg = 0;

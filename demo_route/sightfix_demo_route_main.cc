@@ -47,13 +47,19 @@ po::options_description Describe(DemoOptions* o, std::string* size, std::string*
       "clean: exact calibrations, a 2 cm survey (the town the accuracy figures were measured "
       "on); realistic: survey pose error (correlated drift, heading error, multipath jumps in deep "
       "street canyons; truth in survey/truth.csv), calibration error in every camera.yml (truth "
-      "in camera-truth.yml) and a camera time offset. clean stays the default until realistic "
+      "in camera-truth.yml), a camera time offset and the camera's own nuisances (motion blur, "
+      "rolling shutter, exposure steps, vignetting, shot and read noise, JPEG quality by drive, "
+      "query cameras mounted at another height and pitch). clean stays the default until "
+      "realistic "
       "also has a changed world, traffic, shadows, night and an aliasing district")(
       "nuisances", po::value(nuisances),
       "realistic world only: keep only these nuisance groups on, comma-separated, from survey "
       "(pose error), calibration (camera.yml error and time offset), changes (parked vehicles, "
       "posters, repaints, works, season between drives), traffic (moving vehicles and people), "
-      "aliasing (look-alike stretches and the off-map drive); default all, so that each one's "
+      "aliasing (look-alike stretches and the off-map drive), camera (motion blur, rolling "
+      "shutter, "
+      "exposure steps, vignetting, sensor noise, JPEG quality, remounted query cameras); default "
+      "all, so that each one's "
       "cost can be measured alone")(
       "survey-sigma-scale", po::value(&o->survey_sigma_scale)->default_value(1.0),
       "multiplies the survey's reported sigma_h_m (its receiver's honest 1-sigma); < 1 makes it "

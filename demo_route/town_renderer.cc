@@ -321,7 +321,8 @@ void TownScene::AddBox(const std::array<cv::Vec2d, 4>& fp, double z0, double z1,
 
 cv::Mat TownScene::RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, cv::Size size,
                                  int ss, const Appearance& look, int variant,
-                                 const RenderOptions& options, cv::Mat* moving) const {
+                                 const RenderOptions& options, cv::Mat* moving,
+                                 cv::Mat* inverse_depth) const {
   VisibilityBuffer vis(size);
   RasterizeGround(pose, k, options.max_range_m, &vis);  // the ground first, then the quads
   std::vector<QuadRaster> rasters;
@@ -342,6 +343,11 @@ cv::Mat TownScene::RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, c
     cv::resize(covered, *moving, size / ss, 0, 0, cv::INTER_AREA);  // exact ss x ss means
   } else {
     *moving = cv::Mat::zeros(size / ss, CV_32F);
+  }
+  if (inverse_depth) {  // 1 / inf = 0 for the sky; a pixel's flow is linear in 1 / depth
+    cv::Mat1f inverse;
+    cv::divide(1.0, vis.depth, inverse);
+    cv::resize(inverse, *inverse_depth, size / ss, 0, 0, cv::INTER_AREA);
   }
   ShadingInputs in;
   in.pose = &pose;
@@ -371,14 +377,20 @@ RenderedView TownScene::RenderView(const CameraPose& pose, const CameraModel& ca
   }
   RenderedView view;
   cv::Mat moving;
-  view.image =
-      RenderPinhole(pose, Supersampled(k, ss), size * ss, ss, look, variant, options, &moving);
+  view.image = RenderPinhole(pose, Supersampled(k, ss), size * ss, ss, look, variant, options,
+                             &moving, options.inverse_depth ? &view.inverse_depth : nullptr);
   if (plan) {  // the lens resamples the coverage as it does the image
     cv::Mat out;
     cv::remap(view.image, out, plan->map_x, plan->map_y, cv::INTER_LINEAR, cv::BORDER_REPLICATE);
     view.image = out;
     cv::remap(moving, out, plan->map_x, plan->map_y, cv::INTER_LINEAR, cv::BORDER_REPLICATE);
     moving = out;
+    if (options.inverse_depth) {
+      cv::Mat inverse;  // not `out`: it shares `moving`'s buffer now
+      cv::remap(view.inverse_depth, inverse, plan->map_x, plan->map_y, cv::INTER_LINEAR,
+                cv::BORDER_REPLICATE);
+      view.inverse_depth = inverse;
+    }
   }
   view.moving_share = cv::mean(moving)[0];
   return view;

@@ -56,12 +56,16 @@ struct RenderOptions {
   double near_m = 0.05;
   double time_s = 0;           // drive time: where the variant's moving objects are
   bool moving_objects = true;  // false: leave them out (tests compare with and without)
+  bool inverse_depth = false;  // also fill RenderedView::inverse_depth
 };
 
 // A rendered view and the share of its pixels (area, after the lens) that moving objects cover.
 struct RenderedView {
   cv::Mat image;  // as TownScene::Render
   double moving_share = 0;
+  // Where RenderOptions::inverse_depth: CV_32F, the image's size, 1 / z (camera-frame depth, 1/m)
+  // averaged over each pixel's samples and resampled through the lens like the image; 0 for sky.
+  cv::Mat inverse_depth;
 };
 
 class TownScene {
@@ -104,10 +108,10 @@ class TownScene {
   std::vector<Quad> MovingQuads(int variant, double time_s) const;
   // Renders ss x ss samples per output pixel on the high-resolution canvas (k, size) and returns
   // the output image (size / ss); *moving the share of each output pixel that moving objects
-  // cover (CV_32F, same size).
+  // cover (CV_32F, same size); *inverse_depth, unless null, the mean 1 / depth of each's samples.
   cv::Mat RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, cv::Size size, int ss,
                         const Appearance& look, int variant, const RenderOptions& options,
-                        cv::Mat* moving) const;
+                        cv::Mat* moving, cv::Mat* inverse_depth) const;
 
   const Town& town_;
   GlyphSet glyphs_;

@@ -60,6 +60,38 @@ Status CheckTraffic(const TrafficRanges& t) {
   return Status::Ok();
 }
 
+Status CheckCamera(const CameraNuisanceRanges& c) {
+  for (const Status& st :
+       {CheckRange("camera.sunlit.exposure_ms", c.sunlit.exposure_ms),
+        CheckRange("camera.sunlit.full_scale_electrons", c.sunlit.full_scale_electrons, true),
+        CheckRange("camera.overcast.exposure_ms", c.overcast.exposure_ms),
+        CheckRange("camera.overcast.full_scale_electrons", c.overcast.full_scale_electrons, true),
+        CheckRange("camera.dusk.exposure_ms", c.dusk.exposure_ms),
+        CheckRange("camera.dusk.full_scale_electrons", c.dusk.full_scale_electrons, true),
+        CheckRange("camera.read_noise_electrons", c.read_noise_electrons),
+        CheckRange("camera.readout_ms", c.readout_ms),
+        CheckRange("camera.exposure_steps_per_min", c.exposure_steps_per_min),
+        CheckRange("camera.vignetting_strength", c.vignetting_strength),
+        CheckRange("camera.survey_jpeg_quality", c.survey_jpeg_quality, true),
+        CheckRange("camera.query_jpeg_quality", c.query_jpeg_quality, true),
+        CheckRange("camera.mount_height_offset_m", c.mount_height_offset_m),
+        CheckRange("camera.mount_pitch_deg", c.mount_pitch_deg)})
+    if (!st.ok()) return st;
+  if (!(c.global_shutter_share >= 0 && c.global_shutter_share <= 1))
+    return Status::InvalidArgument("WorldNuisances.camera.global_shutter_share must be in [0, 1]");
+  if (!(c.exposure_step_ev > 0 && c.max_exposure_offset_ev >= c.exposure_step_ev &&
+        std::isfinite(c.max_exposure_offset_ev)))
+    return Status::InvalidArgument(
+        "WorldNuisances.camera.exposure_step_ev must be > 0 and <= max_exposure_offset_ev");
+  if (c.vignetting_strength.hi > 1)
+    return Status::InvalidArgument("WorldNuisances.camera.vignetting_strength must be <= 1");
+  if (c.survey_jpeg_quality.hi > 100 || c.query_jpeg_quality.hi > 100)
+    return Status::InvalidArgument("WorldNuisances.camera.*_jpeg_quality must be within [1, 100]");
+  if (c.mount_pitch_deg.hi >= 30)
+    return Status::InvalidArgument("WorldNuisances.camera.mount_pitch_deg must be < 30");
+  return Status::Ok();
+}
+
 }  // namespace
 
 const char* WorldName(World world) { return world == World::kClean ? "clean" : "realistic"; }
@@ -78,6 +110,7 @@ Status WorldNuisances::Validate() const {
   if (Status s = CheckTraffic(traffic); !s.ok()) return s;
   if (Status s = CheckRange("changes.vehicle_moved_m", changes.vehicle_moved_m); !s.ok()) return s;
   if (Status s = CheckRange("changes.works_per_100m", changes.works_per_100m); !s.ok()) return s;
+  if (Status s = CheckCamera(camera); !s.ok()) return s;
   return CheckCalibration(calibration);
 }
 
@@ -86,6 +119,7 @@ WorldNuisances NuisancesForWorld(World world) {
   n.world = world;
   n.survey.enabled = n.calibration.enabled = world == World::kRealistic;
   n.changes.enabled = n.traffic.enabled = world == World::kRealistic;
+  n.camera.enabled = world == World::kRealistic;
   n.aliasing = world == World::kRealistic;
   return n;
 }
@@ -94,11 +128,9 @@ namespace {
 
 // The switch of each group, in NuisanceGroupNames order.
 std::vector<std::pair<std::string, bool*>> GroupSwitches(WorldNuisances* n) {
-  return {{"survey", &n->survey.enabled},
-          {"calibration", &n->calibration.enabled},
-          {"changes", &n->changes.enabled},
-          {"traffic", &n->traffic.enabled},
-          {"aliasing", &n->aliasing}};
+  return {{"survey", &n->survey.enabled},   {"calibration", &n->calibration.enabled},
+          {"changes", &n->changes.enabled}, {"traffic", &n->traffic.enabled},
+          {"aliasing", &n->aliasing},       {"camera", &n->camera.enabled}};
 }
 
 }  // namespace

@@ -116,12 +116,58 @@ struct ChangedWorldRanges {
   Range works_per_100m{0.4, 1.0};
 };
 
+// What one light level asks of the camera (camera_nuisances.h, LightLevelOf picks the level).
+struct CameraLightRanges {
+  Range exposure_ms;           // exposure time, milliseconds
+  Range full_scale_electrons;  // electrons a pixel holds at full scale at the camera's gain
+};
+
+// The camera's own nuisances (camera_nuisances.h has the models), each drawn per drive.
+struct CameraNuisanceRanges {
+  bool enabled = false;
+  // Exposure time t = N^2 / 2^EV at f/4 and a gain of ISO 100, EV from the exposure value table
+  // (common practice, values from memory): a sunlit street with shaded facades EV 12-14 ->
+  // 1-4 ms; heavy to bright overcast EV 10.7-12.4 -> 3-10 ms; low sun at dusk EV 9.3-10.6 ->
+  // 10-25 ms (the auto-exposure caps the time there and raises the gain). Full scale at base
+  // gain: 6 000-12 000 electrons (a small-pixel CMOS sensor's full well, common practice, from
+  // memory); the gain raised 2x at overcast and 4-8x at dusk divides it.
+  CameraLightRanges sunlit{{1, 4}, {6000, 12000}};
+  CameraLightRanges overcast{{3, 10}, {3000, 6000}};
+  CameraLightRanges dusk{{10, 25}, {800, 2500}};
+  // Read noise, electrons rms: 2-6 (CMOS, common practice, from memory).
+  Range read_noise_electrons{2, 6};
+  // A drive's camera has a global shutter with this chance, else a rolling shutter whose rows
+  // are read out over readout_ms (first row to last: 10-30 ms, a CMOS sensor read at 30 to 90
+  // frames a second, common practice).
+  double global_shutter_share = 0.25;
+  Range readout_ms{10, 30};
+  // Auto-exposure steps: the exposure jumps by +-exposure_step_ev (1/3 EV, the step cameras
+  // adjust exposure in, common practice) now and then, held until the next step; per minute of
+  // drive, at least one a drive; the running offset kept within +-max_exposure_offset_ev.
+  Range exposure_steps_per_min{0.5, 2};
+  double exposure_step_ev = 1.0 / 3;
+  double max_exposure_offset_ev = 1.0;
+  // Vignetting: relative illumination 1 - s (1 - cos^4 theta) at field angle theta (the cos^4
+  // law, common practice); s 0.3-0.8, a corner 0.3 to 1 EV darker on a 65-degree lens.
+  Range vignetting_strength{0.3, 0.8};
+  // JPEG quality 1-100 (libjpeg's scale): a survey camera saves finely, dashcams and phones of a
+  // fleet coarser (common practice, from memory).
+  Range survey_jpeg_quality{88, 95};
+  Range query_jpeg_quality{60, 90};
+  // Query vehicles carry their camera higher or lower than the survey's by 0.3-0.6 m (either
+  // way: a hatchback's dash at 0.9 m to a van's at 2.1 m) and pitched by 2-5 degrees (either
+  // way), each query drive its own.
+  Range mount_height_offset_m{0.3, 0.6};
+  Range mount_pitch_deg{2, 5};
+};
+
 struct WorldNuisances {
   World world = World::kClean;
   SurveyErrorRanges survey;
   CalibrationErrorRanges calibration;
   ChangedWorldRanges changes;
   TrafficRanges traffic;
+  CameraNuisanceRanges camera;
   // Perceptual aliasing: the look-alike stretches (twins, a terrace, chain shops) and the
   // off-map excursion with its query drive (look_alikes.h).
   bool aliasing = false;
@@ -130,7 +176,8 @@ struct WorldNuisances {
   double survey_sigma_scale = 1.0;
 
   // InvalidArgument naming the field: a range with lo > hi, a negative or non-finite bound, a
-  // time offset or correlation time <= 0 where enabled, survey_sigma_scale <= 0.
+  // time offset or correlation time <= 0 where enabled, survey_sigma_scale <= 0; a camera share
+  // outside [0, 1], a JPEG quality outside [1, 100], a vignetting strength above 1.
   Status Validate() const;
 };
 
@@ -144,6 +191,8 @@ WorldNuisances NuisancesForWorld(World world);
 //   changes      the world changed between the survey and each query drive
 //   traffic      moving traffic on every drive
 //   aliasing     look-alike stretches and the off-map excursion (adds query-offmap)
+//   camera       the camera's own: motion blur, rolling shutter, exposure steps, vignetting,
+//                sensor noise, JPEG quality by drive, remounted query cameras
 // In the order above.
 std::vector<std::string> NuisanceGroupNames();
 // The groups of *n that are on, in NuisanceGroupNames order.
