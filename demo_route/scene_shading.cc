@@ -55,7 +55,7 @@ class SampleShader {
     const double cos_inc = std::abs(wdir[2]) / mn;
     const double fp = *dist / (f_px * std::sqrt(std::max(cos_inc, 1e-3)));
     double direct = std::max(0.0, look_.sun_dir[2]);
-    if (in_.shadows && direct > 0) direct *= in_.shadows->Lit(p, kUp);
+    if (in_.shadows && direct > 0) direct *= in_.shadows->Lit(p, kUp, 0.0);
     const double light = look_.ambient + look_.sun * direct;
     const cv::Vec3f albedo = in_.ground->Colour(p[0], p[1], fp);
     cv::Vec3f colour = albedo * static_cast<float>(light);

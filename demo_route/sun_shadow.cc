@@ -106,8 +106,8 @@ void SunShadowMap::AddQuad(const Quad& q, const Texture* texture) {
   }
 }
 
-float SunShadowMap::Lit(const cv::Vec3d& p, const cv::Vec3d& n) const {
-  const cv::Vec3d q = p + n * (1.5 * texel_m_);
+float SunShadowMap::Lit(const cv::Vec3d& p, const cv::Vec3d& n, double normal_offset_texels) const {
+  const cv::Vec3d q = p + n * (normal_offset_texels * texel_m_);
   const cv::Vec2d g = Map(q);
   const float tq = static_cast<float>(q[2] / sun_[2] + kBiasM);
   const double fx = (g[0] - region_.x) / texel_m_ - 0.5, fy = (g[1] - region_.y) / texel_m_ - 0.5;

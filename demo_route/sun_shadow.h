@@ -39,9 +39,10 @@ class SunShadowMap {
 
   // The share of sunlight reaching point p (ENU) on a surface of unit normal n: 1 lit, 0 in
   // shadow, between at a shadow's edge (percentage-closer filtering over the 2 x 2 nearest
-  // texels). p is moved 1.5 texels along n first (normal offset, common practice, so a surface
-  // does not shadow itself); points mapping outside the region are lit.
-  float Lit(const cv::Vec3d& p, const cv::Vec3d& n) const;
+  // texels). p is moved normal_offset_texels along n first (normal offset, common practice, so
+  // a surface in the map does not shadow itself; the ground is not in it and takes 0); points
+  // mapping outside the region are lit.
+  float Lit(const cv::Vec3d& p, const cv::Vec3d& n, double normal_offset_texels = 1.5) const;
 
   double texel_m() const { return texel_m_; }
   cv::Size size() const { return t_max_.size(); }
