@@ -46,8 +46,10 @@ po::options_description Describe(DemoOptions* o, std::string* size, std::string*
       "clean: exact calibrations, a 2 cm survey (the town the accuracy figures were measured "
       "on); realistic: survey pose error (correlated drift, heading error, multipath jumps in deep "
       "street canyons; truth in survey/truth.csv), calibration error in every camera.yml (truth "
-      "in camera-truth.yml) and a camera time offset. clean stays the default until realistic "
-      "also has a changed world, traffic, shadows, night and an aliasing district")(
+      "in camera-truth.yml), a camera time offset, a changed world, traffic, look-alike streets, "
+      "an off-map drive (query-offmap), the sun's true position with cast shadows, and a night "
+      "drive (query-night). clean stays the default until realistic also has the camera's own "
+      "nuisances")(
       "survey-sigma-scale", po::value(&o->survey_sigma_scale)->default_value(1.0),
       "multiplies the survey's reported sigma_h_m (its receiver's honest 1-sigma); < 1 makes it "
       "over-optimistic; must be > 0 and <= 10")("json", "print the summary as JSON on stdout");
