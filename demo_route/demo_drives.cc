@@ -1,10 +1,12 @@
 #include "demo_route/demo_drives.h"
 
 #include <algorithm>
+#include <cassert>
 #include <cmath>
 #include <opencv2/imgproc.hpp>
 
 #include "demo_route/random.h"
+#include "demo_route/sun_light.h"
 #include "demo_route/urban_canyon.h"
 
 namespace sightfix::demo {
@@ -82,6 +84,36 @@ Condition OffMapQuery() {
   c.name = kOffMapDriveName;
   c.start_offset_s += 1800;
   return c;
+}
+
+// The realistic world's night: a dark sky with a town's faint glow at the horizon, lit windows,
+// street lamps and the car's low beams; a high-gain exposure (darker, noisier).
+Condition NightQuery(const LightRanges& l) {
+  Condition night = Named(kNightDriveName, 5);
+  night.look.sky_horizon = {0.07, 0.08, 0.1}, night.look.sky_zenith = {0.03, 0.02, 0.02};
+  night.look.haze = {0.05, 0.055, 0.065};
+  night.look.haze_m = 400, night.look.cloud = 0;
+  night.look.window_glow = 1.0;
+  night.look.lamp_intensity = l.lamp_intensity;
+  night.look.headlight_intensity = l.headlight_intensity;
+  night.exposure = 0.85, night.noise_sigma = 7.0, night.blur_sigma = 0.6, night.jpeg_quality = 75;
+  night.start_offset_s = l.night_offset_s;
+  return night;
+}
+
+// The realistic world's light on drive d: its sun from the SPA at its start (dusk at its own
+// time), shadows on.
+void LightDrive(const LightRanges& l, PlannedDrive* d) {
+  Condition& c = d->condition;
+  if (c.name == "query-dusk") c.start_offset_s = l.dusk_offset_s;
+  d->sun_model = true;
+  d->sun_unix_s = kSurveyStartUnix + c.start_offset_s;
+  const Result<SolarPosition> sun = SunAt(kTownOrigin, d->sun_unix_s);
+  assert(sun.ok());  // the town's dates lie well inside the algorithm's years
+  d->sun = *sun;
+  ApplySun(d->sun, c.name == "query-overcast", l.night_sky_light, &c.look);
+  c.look.cast_shadows = true;
+  c.look.shadow_texel_m = l.shadow_texel_m, c.look.shadow_range_m = l.shadow_range_m;
 }
 
 // The clean world's survey: truth plus white noise, 1-sigma 2 cm per horizontal axis (RTK-grade).
@@ -263,10 +295,12 @@ std::vector<PlannedDrive> PlanDrives(const Town& town, const DemoOptions& o) {
   const double L = town.route.length();
   std::vector<Condition> conditions = Conditions();
   if (town.has_excursion) conditions.push_back(OffMapQuery());
+  if (nuisances.light.enabled) conditions.push_back(NightQuery(nuisances.light));
   for (size_t i = 0; i < conditions.size(); ++i) {
     Rng rng(HashSeed(o.seed, 0x647276, i)), nuisance_rng(HashSeed(o.seed, 0x6e7569, i));
     PlannedDrive d;
     d.condition = conditions[i];
+    if (nuisances.light.enabled) LightDrive(nuisances.light, &d);
     d.path = town.route;
     if (i == 0)
       PlanSurvey(o, L, &d);

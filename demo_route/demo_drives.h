@@ -11,6 +11,7 @@
 #include "demo_route/camera_nuisances.h"
 #include "demo_route/demo_town.h"
 #include "demo_route/drive_plan.h"
+#include "demo_route/solar_position.h"
 #include "demo_route/survey_error.h"
 #include "demo_route/town_layout.h"
 #include "demo_route/town_renderer.h"
@@ -25,6 +26,8 @@ inline const GeoPoint kTownOrigin{44.0, -40.0, 40.0};
 constexpr double kSurveyStartUnix = 1777885200.0;
 // The realistic world's query drive that leaves the map (look_alikes.h, the excursion).
 inline constexpr char kOffMapDriveName[] = "query-offmap";
+// The realistic world's night query drive (LightRanges).
+inline constexpr char kNightDriveName[] = "query-night";
 
 // One drive's look and its camera's post-processing.
 struct Condition {
@@ -67,6 +70,11 @@ struct PlannedDrive {
   bool camera_nuisance_model = false;
   CameraNuisanceDraw camera_draw;
   std::vector<CameraMotion> camera_motion;
+  // The realistic world's light (LightRanges): the sun by the SPA at the town's datum at
+  // sun_unix_s, the drive's start, which set condition.look's sun direction and strength.
+  bool sun_model = false;
+  double sun_unix_s = 0;
+  SolarPosition sun;
   // What the drive sees beyond the town's layout (changed_world.h): clean world, its parked
   // vehicles only; realistic, a changed world for query drives and traffic on every drive.
   DriveWorld world;
@@ -74,7 +82,8 @@ struct PlannedDrive {
 
 // survey, query-day, query-dusk, query-overcast, in this order (index = vehicle variant), and
 // where the town has an excursion (the realistic world) query-offmap last: the query-day look,
-// out along the route, into the side street to its end and back.
+// out along the route, into the side street to its end and back; and where the world has its
+// light (the realistic world) query-night after it.
 // REQUIRES: options.Validate().
 std::vector<PlannedDrive> PlanDrives(const Town& town, const DemoOptions& options);
 

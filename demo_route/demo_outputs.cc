@@ -217,6 +217,46 @@ nlohmann::json SurveyErrorJson(const PlannedDrive& d) {
   return j;
 }
 
+// The realistic world's light of drive d: the sun at its time and what the look made of it.
+nlohmann::json DriveLightJson(const PlannedDrive& d) {
+  const Appearance& a = d.condition.look;
+  nlohmann::json j = {{"sun_time", FormatIsoUtc(d.sun_unix_s)},
+                      {"sun_unix_s", d.sun_unix_s},
+                      {"sun_azimuth_deg", d.sun.azimuth_deg},
+                      {"sun_elevation_deg", d.sun.elevation_deg},
+                      {"sun_dir_enu", {a.sun_dir[0], a.sun_dir[1], a.sun_dir[2]}},
+                      {"direct", a.sun},
+                      {"ambient", a.ambient},
+                      {"cast_shadows", a.cast_shadows && a.sun > 0 && a.sun_dir[2] > 0.01},
+                      {"shadow_texel_m", a.shadow_texel_m},
+                      {"shadow_range_m", a.shadow_range_m}};
+  if (a.window_glow > 0 || a.lamp_intensity > 0 || a.headlight_intensity > 0)
+    j["night"] = {{"window_glow", a.window_glow},
+                  {"lamp_intensity", a.lamp_intensity},
+                  {"lamp_colour_bgr", {a.lamp_colour[0], a.lamp_colour[1], a.lamp_colour[2]}},
+                  {"headlight_intensity", a.headlight_intensity}};
+  return j;
+}
+
+// The realistic world's light settings, town-wide.
+nlohmann::json TownLightJson(const LightRanges& l) {
+  return {{"start", FormatIsoUtc(kSurveyStartUnix)},
+          {"start_unix_s", kSurveyStartUnix},
+          {"sun_model",
+           "Reda & Andreas SPA (solar_position.h) at the origin, each drive at its start time; "
+           "refraction at the standard atmosphere"},
+          {"shadow_texel_m", l.shadow_texel_m},
+          {"shadow_range_m", l.shadow_range_m},
+          {"dusk_offset_s", l.dusk_offset_s},
+          {"night_offset_s", l.night_offset_s},
+          {"night_sky_light", l.night_sky_light},
+          {"lit_window_share", l.lit_window_share},
+          {"lit_window_seed", "HashSeed(facade seed, 0x6c6974) per building"},
+          {"lamp_intensity", l.lamp_intensity},
+          {"headlight_intensity", l.headlight_intensity},
+          {"movers_cast_shadows", false}};
+}
+
 std::vector<double> FrameTimesOf(const std::vector<Frame>& frames) {
   std::vector<double> times;
   for (const Frame& f : frames) times.push_back(f.time_s);
@@ -244,6 +284,7 @@ nlohmann::json DriveJson(const PlannedDrive& d) {
                             {"lane_offset_right_m", p.lane_offset_m},
                             {"wander_m", p.wander_m}});
   dj["appearance"] = AppearanceJson(d.condition);
+  if (d.sun_model) dj["light"] = DriveLightJson(d);
   if (!d.gnss.empty()) AddGnssJson(d, &dj);
   return dj;
 }
@@ -343,6 +384,8 @@ nlohmann::json TownJson(const DemoOptions& o, const Town& town,
     AddWorldJson(town, d, &j["drives"][d.condition.name]);
   }
   if (!town.look_alikes.empty()) j["look_alikes"] = LookAlikesJson(town);
+  if (const LightRanges l = NuisancesForWorld(o.world).light; l.enabled)
+    j["light"] = TownLightJson(l);
   for (const PlannedDrive& d : drives)
     if (d.condition.name == kOffMapDriveName)
       j["excursion"] = ExcursionJson(town, d.condition.name, d.truth);

@@ -182,7 +182,8 @@ Result<DemoSummary> GenerateDemoTown(const DemoOptions& o) {
   const std::vector<PlannedDrive> drives = PlanDrives(town, o);
   std::vector<DriveWorld> worlds;  // the scene's variant = the drive's index
   for (const PlannedDrive& d : drives) worlds.push_back(d.world);
-  const TownScene scene(town, worlds);
+  const LightRanges light = NuisancesForWorld(o.world).light;
+  const TownScene scene(town, worlds, light.enabled ? light.lit_window_share : 0.0);
 
   const fs::path out(o.out_dir);
   if (Status s = PrepareDriveFolders(out, drives); !s.ok()) return s;

@@ -159,8 +159,9 @@ void PaintAirConditioner(cv::Mat& img, Rng& r, const Bay& bay, double win_w) {
 // One bay: the window, each its own (size, position and frame tint vary a little, so no two
 // windows of a facade share a descriptor: identical windows would defeat the ratio test), and
 // by chance a rain streak, shutters, an air-conditioning unit, a flower box or balcony rail.
+// *windows (if given) gets the window's rectangle, texels.
 void PaintBay(cv::Mat& img, Rng& r, const WindowGrid& grid, double grid_x, double sill_y,
-              const cv::Scalar& frame) {
+              const cv::Scalar& frame, std::vector<cv::Rect2d>* windows) {
   Bay bay;
   bay.grid_x = grid_x;
   bay.sill_y = sill_y;
@@ -168,8 +169,9 @@ void PaintBay(cv::Mat& img, Rng& r, const WindowGrid& grid, double grid_x, doubl
   bay.w_m = grid.win_w * r.Uniform(0.9, 1.1);
   bay.x = grid_x + r.Uniform(-0.08, 0.08) * kPpm;
   bay.y = sill_y + r.Uniform(-0.05, 0.05) * kPpm;
-  PaintWindow(img, r, cv::Rect2d(bay.x, bay.y - bay.h_m * kPpm, bay.w_m * kPpm, bay.h_m * kPpm),
-              Shade(frame, r.Uniform(0.75, 1.2)), kPpm);
+  const cv::Rect2d window(bay.x, bay.y - bay.h_m * kPpm, bay.w_m * kPpm, bay.h_m * kPpm);
+  if (windows) windows->push_back(window);
+  PaintWindow(img, r, window, Shade(frame, r.Uniform(0.75, 1.2)), kPpm);
   if (r.Chance(0.6)) PaintRainStreak(img, r, bay);
   if (r.Chance(0.3)) PaintShutters(img, r, bay);
   if (r.Chance(0.1)) PaintAirConditioner(img, r, bay, grid.win_w);
@@ -182,14 +184,14 @@ void PaintBay(cv::Mat& img, Rng& r, const WindowGrid& grid, double grid_x, doubl
 
 // Upper floors: a column grid per building, one bay in twelve or so left blank.
 void PaintUpperFloors(cv::Mat& img, Rng& r, const FacadeSpec& spec, const cv::Scalar& frame,
-                      double floor_h) {
+                      double floor_h, std::vector<cv::Rect2d>* windows) {
   const WindowGrid grid = PlanWindowGrid(r, spec);
   for (int f = 1; f < spec.floors; ++f) {
     const double sill_y = img.rows - f * floor_h * kPpm - 0.9 * kPpm;  // sill height 0.9 m
     for (int c = 0; c < grid.cols; ++c) {
       if (r.Chance(0.08)) continue;  // a blank bay breaks the grid
       const double x = (grid.margin + c * grid.spacing + (grid.spacing - grid.win_w) / 2) * kPpm;
-      PaintBay(img, r, grid, x, sill_y, frame);
+      PaintBay(img, r, grid, x, sill_y, frame, windows);
     }
   }
 }
@@ -292,7 +294,8 @@ void PaintChainShops(cv::Mat& img, uint64_t chain_seed, const GlyphSet& glyphs) 
 
 }  // namespace
 
-cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs) {
+cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs,
+                    std::vector<cv::Rect2d>* windows) {
   Rng r(spec.seed);
   cv::Mat img(std::max(8, int(spec.height_m * kPpm)), std::max(8, int(spec.width_m * kPpm)),
               CV_8UC3);
@@ -302,11 +305,33 @@ cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs) {
   const double floor_h = (spec.height_m - 0.6) / spec.floors;  // metres
   const cv::Scalar frame = RandomColour(r, 0.0, 0.5, 0.2, 0.95);
   PaintCorniceAndBands(img, r, spec, wall, floor_h);
-  PaintUpperFloors(img, r, spec, frame, floor_h);
+  PaintUpperFloors(img, r, spec, frame, floor_h, windows);
   PaintGroundFloor(img, r, spec, frame, floor_h, glyphs);
   PaintPosters(img, r, glyphs);
   PaintWeathering(img, r, spec, wall);
   if (spec.variant.chain_shop_seed != 0) PaintChainShops(img, spec.variant.chain_shop_seed, glyphs);
+  return img;
+}
+
+}  // namespace sightfix::demo
+
+namespace sightfix::demo {
+
+cv::Mat PaintLitWindows(const FacadeSpec& spec, const GlyphSet& glyphs, double lit_share) {
+  std::vector<cv::Rect2d> windows;
+  const cv::Mat facade = PaintFacade(spec, glyphs, &windows);
+  cv::Mat img(facade.size(), CV_8UC3, cv::Scalar::all(0));
+  Rng r(HashSeed(spec.seed, 0x6c6974));  // "lit": a stream of its own
+  for (const cv::Rect2d& w : windows) {
+    const bool lit = r.Chance(lit_share);
+    const double level = r.Uniform(0.45, 1.0), warmth = r.Uniform(0, 1);
+    if (!lit) continue;
+    // Warm lamplight to a cooler white (a screen, a cold lamp); BGR, the pane inside the frame.
+    const cv::Scalar colour(255 * level * (0.45 + 0.5 * warmth),
+                            255 * level * (0.75 + 0.2 * warmth), 255 * level);
+    const double b = 0.07 * kPpm;
+    cv::rectangle(img, cv::Rect2d(w.x + b, w.y + b, w.width - 2 * b, w.height - 2 * b), colour, -1);
+  }
   return img;
 }
 

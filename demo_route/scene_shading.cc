@@ -54,8 +54,21 @@ class SampleShader {
     const cv::Vec3d p = in_.pose->position + lambda * wdir;
     const double cos_inc = std::abs(wdir[2]) / mn;
     const double fp = *dist / (f_px * std::sqrt(std::max(cos_inc, 1e-3)));
-    const double light = look_.ambient + look_.sun * std::max(0.0, look_.sun_dir[2]);
-    return in_.ground->Colour(p[0], p[1], fp) * static_cast<float>(light);
+    double direct = std::max(0.0, look_.sun_dir[2]);
+    if (in_.shadows && direct > 0) direct *= in_.shadows->Lit(p, kUp, 0.0);
+    const double light = look_.ambient + look_.sun * direct;
+    const cv::Vec3f albedo = in_.ground->Colour(p[0], p[1], fp);
+    cv::Vec3f colour = albedo * static_cast<float>(light);
+    if (in_.lamps || in_.headlights) colour += albedo.mul(NightLight(p, kUp));
+    return colour;
+  }
+
+  // Street lamps' and headlights' light on a surface at p of normal n.
+  cv::Vec3f NightLight(const cv::Vec3d& p, const cv::Vec3d& n) const {
+    cv::Vec3f e(0, 0, 0);
+    if (in_.lamps) e += in_.lamps->Irradiance(p, n, look_.lamp_intensity, look_.lamp_colour);
+    if (in_.headlights) e += in_.headlights->Irradiance(p, n);
+    return e;
   }
 
   // The quad's texture under the ray (camera frame m), lit by the sky and the sun; *dist in
@@ -71,16 +84,33 @@ class SampleShader {
     const double fpn = std::sqrt(qr.nn);
     const double cos_inc = std::abs(nm) / (fpn * mn);
     const double fp_m = *dist / (f_px * std::sqrt(std::max(cos_inc, 1e-3)));
-    cv::Vec3f colour = SampleTexture(tex, uu, vv, fp_m * tex.texels_per_m);
+    const cv::Vec3f albedo = SampleTexture(tex, uu, vv, fp_m * tex.texels_per_m);
     const cv::Vec3d nw = qr.quad->v_axis.cross(qr.quad->u_axis) / fpn;
     const double ns = nw.dot(look_.sun_dir);
-    const double light =
-        qr.quad->brightness *
-        (look_.ambient + look_.sun * (tex.has_alpha ? std::abs(ns) : std::max(0.0, ns)));
-    colour *= static_cast<float>(light);
+    double direct = tex.has_alpha ? std::abs(ns) : std::max(0.0, ns);
+    const bool extra = in_.shadows || in_.lamps || in_.headlights || look_.window_glow > 0;
+    if (!extra) {  // the clean world's path, unchanged
+      const double light = qr.quad->brightness * (look_.ambient + look_.sun * direct);
+      return albedo * static_cast<float>(light);
+    }
+    const cv::Vec3d p = in_.pose->position + rt_ * (lambda * m);
+    // A cut-out is lit on whichever side faces the sun, and seen from the camera's side.
+    const cv::Vec3d towards_sun = ns < 0 ? -nw : nw;
+    if (in_.shadows && direct > 0) direct *= in_.shadows->Lit(p, towards_sun);
+    const double light = qr.quad->brightness * (look_.ambient + look_.sun * direct);
+    cv::Vec3f colour = albedo * static_cast<float>(light);
+    if (in_.lamps || in_.headlights) {
+      const cv::Vec3d to_camera = nw.dot(in_.pose->position - p) < 0 ? -nw : nw;
+      colour += albedo.mul(NightLight(p, to_camera)) * static_cast<float>(qr.quad->brightness);
+    }
+    if (look_.window_glow > 0 && qr.quad->emission >= 0)
+      colour +=
+          SampleTexture(in_.textures->Get(qr.quad->emission), uu, vv, fp_m * tex.texels_per_m) *
+          static_cast<float>(look_.window_glow);
     return colour;
   }
 
+  static inline const cv::Vec3d kUp{0, 0, 1};
   const ShadingInputs& in_;
   const Appearance& look_;
   const cv::Matx33d rt_;  // ENU from camera

@@ -68,7 +68,13 @@ struct FacadeSpec {
 // The street front of a building (facade_painter.cc): wall material, floors of windows, a
 // shop or residential ground floor, posters and weathering. BGR, kFacadeTexelsPerM. Specs equal
 // in every field paint equal textures; a default variant paints what the seed alone gives.
-cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs);
+// *windows (if given) gets the upper floors' window rectangles, texels.
+cv::Mat PaintFacade(const FacadeSpec& spec, const GlyphSet& glyphs,
+                    std::vector<cv::Rect2d>* windows = nullptr);
+// The light the same street front gives off at night: black but for the panes of its lit
+// upper-floor windows, each lit with chance lit_share from a stream of the spec's seed alone, in
+// warm to cool white of its own brightness. BGR, the facade's size.
+cv::Mat PaintLitWindows(const FacadeSpec& spec, const GlyphSet& glyphs, double lit_share);
 cv::Mat PaintPlainWall(double width_m, double height_m, uint64_t seed);
 // One face of a vehicle's box, length_m x height_m: 0 and 1 the long sides, 2 the front (white
 // lights), 3 the back (red lights), 4 the roof. One body colour per seed on every face.

@@ -9,9 +9,11 @@
 
 #include "demo_route/distortion_plan.h"
 #include "demo_route/ground_surface.h"
+#include "demo_route/night_light.h"
 #include "demo_route/quad_raster.h"
 #include "demo_route/random.h"
 #include "demo_route/scene_shading.h"
+#include "demo_route/sun_shadow.h"
 
 namespace sightfix::demo {
 namespace {
@@ -82,13 +84,58 @@ Quad MakeQuad(const cv::Vec3d& origin, const cv::Vec3d& u_axis, const cv::Vec3d&
 TownScene::TownScene(const Town& town, const std::vector<std::vector<Vehicle>>& variants)
     : TownScene(town, ParkedOnly(variants)) {}
 
-TownScene::TownScene(const Town& town, const std::vector<DriveWorld>& worlds)
-    : town_(town), glyphs_(town.options.seed), ground_(std::make_unique<GroundSurface>(town)) {
+TownScene::TownScene(const Town& town, const std::vector<DriveWorld>& worlds,
+                     double lit_window_share)
+    : town_(town),
+      glyphs_(town.options.seed),
+      ground_(std::make_unique<GroundSurface>(town)),
+      lamps_(std::make_unique<StreetLamps>(town)) {
   AddBuildings(town);
   AddPoles(town);
   AddTrees(town);
   AddVehicles(town, worlds);
   AddChanges(worlds);
+  if (lit_window_share > 0) AddWindowLights(town, lit_window_share);
+}
+
+// AddBuildings came first and gave each building its four walls in order, so building i's
+// street front is quad 4 i + front_edge.
+void TownScene::AddWindowLights(const Town& town, double lit_window_share) {
+  const GlyphSet* glyphs = &glyphs_;
+  for (size_t i = 0, f = 0; i < town.buildings.size(); ++i, ++f) {
+    const FacadeSpec spec = facade_specs_[f];
+    const int id = textures_.Add(
+        [spec, glyphs, lit_window_share] {
+          return PaintLitWindows(spec, *glyphs, lit_window_share);
+        },
+        kFacadeTexelsPerM);
+    quads_[4 * i + town.buildings[i].front_edge].emission = id;
+  }
+}
+
+std::unique_ptr<SunShadowMap> TownScene::ShadowsFor(const CameraPose& pose, const cv::Matx33d& k,
+                                                    cv::Size size, const Appearance& look,
+                                                    int variant,
+                                                    const std::vector<int>& swaps) const {
+  const cv::Vec3d forward = pose.camera_from_enu.t() * cv::Vec3d(0, 0, 1);
+  const double half_fov = std::atan(std::max(k(0, 2), size.width - k(0, 2)) / k(0, 0));
+  double tallest_m = 0;
+  for (const Building& b : town_.buildings) tallest_m = std::max(tallest_m, b.height_m);
+  const cv::Rect2d region = SunShadowMap::RegionFor(look.sun_dir, pose.position, forward, half_fov,
+                                                    look.shadow_range_m, tallest_m);
+  // At most 4096 texels a side (the wedge of a 160 m range needs about 2000 at 0.1 m).
+  const double texel = std::max(look.shadow_texel_m, std::max(region.width, region.height) / 4096);
+  auto map = std::make_unique<SunShadowMap>(look.sun_dir, region, texel);
+  auto add = [&](const std::vector<Quad>& quads) {
+    for (const Quad& q : quads) {
+      // Only cut-outs (two-sided: canopies, sign panels) need their texture, for its alpha.
+      const int id = q.texture < int(swaps.size()) ? swaps[q.texture] : q.texture;
+      map->AddQuad(q, q.two_sided ? &textures_.Get(id) : nullptr);
+    }
+  };
+  add(quads_);
+  if (variant < int(vehicle_quads_.size())) add(vehicle_quads_[variant]);
+  return map;
 }
 
 TownScene::~TownScene() = default;
@@ -355,6 +402,18 @@ cv::Mat TownScene::RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, c
   in.rasters = &rasters;
   in.ground = ground_.get();
   in.cloud_seed = static_cast<uint32_t>(HashSeed(town_.options.seed, 0x636c64));
+  std::unique_ptr<SunShadowMap> shadows;
+  if (look.cast_shadows && look.sun > 0 && look.sun_dir[2] > 0.01)
+    shadows = ShadowsFor(pose, k, size, look, variant, swaps);
+  in.shadows = shadows.get();
+  in.textures = &textures_;
+  in.lamps = look.lamp_intensity > 0 ? lamps_.get() : nullptr;
+  std::unique_ptr<Headlights> beams;
+  if (look.headlight_intensity > 0)
+    beams =
+        std::make_unique<Headlights>(pose.position, pose.camera_from_enu.t() * cv::Vec3d(0, 0, 1),
+                                     look.headlight_intensity, look.headlight_colour);
+  in.headlights = beams.get();
   return ShadeCanvas(in, vis, k, ss);
 }
 

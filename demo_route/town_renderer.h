@@ -21,6 +21,8 @@
 namespace sightfix::demo {
 
 class GroundSurface;  // ground_surface.h
+class StreetLamps;    // night_light.h
+class SunShadowMap;   // sun_shadow.h
 
 // A textured parallelogram: origin + u * u_axis + v * v_axis for u, v in [0, 1]; texture row 0
 // at v = 0. Metres, ENU.
@@ -31,6 +33,7 @@ struct Quad {
   bool two_sided = false;   // drawn from behind too (cut-outs); else only from its outward side
   cv::Vec3d centre;         // bounding sphere, for culling
   double radius = 0;
+  int emission = -1;  // texture of light the surface gives off (lit windows), added at night
 };
 
 // Light and atmosphere of one drive.
@@ -43,6 +46,14 @@ struct Appearance {
   cv::Vec3d haze{0.9, 0.85, 0.8};
   double haze_m = 450;  // distance at which haze reaches 1 - 1/e
   double cloud = 0.12;  // contrast of the soft cloud layer
+  // The realistic world's light (sun_light.h, sun_shadow.h, night_light.h); the defaults leave
+  // it out, so a look without them renders as before, byte for byte.
+  bool cast_shadows = false;  // sun shadows from a shadow map (when sun > 0 and the sun is up)
+  double shadow_texel_m = 0.1, shadow_range_m = 160;
+  double window_glow = 0;          // times the facades' lit-window light (TownScene's share)
+  double lamp_intensity = 0;       // street lamps (StreetLamps::Irradiance)
+  double headlight_intensity = 0;  // the camera car's low beams (Headlights)
+  cv::Vec3d lamp_colour{0.62, 0.85, 1.0}, headlight_colour{0.95, 0.97, 1.0};  // BGR
 };
 
 struct CameraPose {
@@ -74,7 +85,9 @@ class TownScene {
   TownScene(const Town& town, const std::vector<std::vector<Vehicle>>& vehicle_variants);
   // worlds: what each drive variant sees (changed_world.h; index = variant): parked vehicles,
   // changed facades and trees, works sites and moving traffic. Borrows town.
-  TownScene(const Town& town, const std::vector<DriveWorld>& worlds);
+  // lit_window_share > 0: each upper-floor window of a street front is lit, with that chance
+  // (its own seeded draw), in the light facades give off at night (Appearance::window_glow).
+  TownScene(const Town& town, const std::vector<DriveWorld>& worlds, double lit_window_share = 0);
   ~TownScene();
 
   // Extra quads (tests add markers); texture = AddTexture result.
@@ -104,6 +117,15 @@ class TownScene {
   // the top (none when negative).
   static void AddBox(const std::array<cv::Vec2d, 4>& fp, double z0, double z1,
                      const std::array<int, 5>& textures, double brightness, std::vector<Quad>* out);
+  // Registers each street front's lit-window texture as its quad's emission (last, so every
+  // other texture keeps its id).
+  void AddWindowLights(const Town& town, double lit_window_share);
+  // The sun's shadow map over what the view sees (sun_shadow.h): static quads and the variant's
+  // parked vehicles and works (movers cast none: moving_world_test counts the pixels they
+  // cover by leaving them out).
+  std::unique_ptr<SunShadowMap> ShadowsFor(const CameraPose& pose, const cv::Matx33d& k,
+                                           cv::Size size, const Appearance& look, int variant,
+                                           const std::vector<int>& swaps) const;
   // The boxes of the variant's movers at time_s.
   std::vector<Quad> MovingQuads(int variant, double time_s) const;
   // Renders ss x ss samples per output pixel on the high-resolution canvas (k, size) and returns
@@ -124,6 +146,7 @@ class TownScene {
   std::vector<std::vector<Mover>> movers_;       // per variant
   std::vector<std::vector<std::array<int, 5>>> mover_textures_;  // per variant, per mover
   std::unique_ptr<GroundSurface> ground_;
+  std::unique_ptr<StreetLamps> lamps_;
 };
 
 Quad MakeQuad(const cv::Vec3d& origin, const cv::Vec3d& u_axis, const cv::Vec3d& v_axis,

@@ -92,6 +92,29 @@ Status CheckCamera(const CameraNuisanceRanges& c) {
   return Status::Ok();
 }
 
+Status CheckLight(const LightRanges& l) {
+  auto fail = [](const char* m) {
+    return Status::InvalidArgument(std::string("WorldNuisances.light.") + m);
+  };
+  if (!(l.shadow_texel_m >= 0.01 && l.shadow_texel_m <= 2))
+    return fail("shadow_texel_m must be in [0.01, 2]");
+  if (!(l.shadow_range_m >= 10 && l.shadow_range_m <= 1000))
+    return fail("shadow_range_m must be in [10, 1000]");
+  if (!(l.night_offset_s >= 0 && l.night_offset_s <= 30 * 86400))
+    return fail("night_offset_s must be in [0, 30 days]");
+  if (!(l.dusk_offset_s >= 0 && l.dusk_offset_s <= 30 * 86400))
+    return fail("dusk_offset_s must be in [0, 30 days]");
+  if (!(l.night_sky_light >= 0 && l.night_sky_light <= 1))
+    return fail("night_sky_light must be in [0, 1]");
+  if (!(l.lit_window_share >= 0 && l.lit_window_share <= 1))
+    return fail("lit_window_share must be in [0, 1]");
+  if (!(l.lamp_intensity >= 0 && l.lamp_intensity < 1e4))
+    return fail("lamp_intensity must be in [0, 1e4)");
+  if (!(l.headlight_intensity >= 0 && l.headlight_intensity < 1e4))
+    return fail("headlight_intensity must be in [0, 1e4)");
+  return Status::Ok();
+}
+
 }  // namespace
 
 const char* WorldName(World world) { return world == World::kClean ? "clean" : "realistic"; }
@@ -108,6 +131,7 @@ Status WorldNuisances::Validate() const {
                                    std::to_string(survey_sigma_scale) + ": must be > 0 and finite");
   if (Status s = CheckSurvey(survey); !s.ok()) return s;
   if (Status s = CheckTraffic(traffic); !s.ok()) return s;
+  if (Status s = CheckLight(light); !s.ok()) return s;
   if (Status s = CheckRange("changes.vehicle_moved_m", changes.vehicle_moved_m); !s.ok()) return s;
   if (Status s = CheckRange("changes.works_per_100m", changes.works_per_100m); !s.ok()) return s;
   if (Status s = CheckCamera(camera); !s.ok()) return s;
@@ -121,6 +145,7 @@ WorldNuisances NuisancesForWorld(World world) {
   n.changes.enabled = n.traffic.enabled = world == World::kRealistic;
   n.camera.enabled = world == World::kRealistic;
   n.aliasing = world == World::kRealistic;
+  n.light.enabled = world == World::kRealistic;
   return n;
 }
 
@@ -130,7 +155,8 @@ namespace {
 std::vector<std::pair<std::string, bool*>> GroupSwitches(WorldNuisances* n) {
   return {{"survey", &n->survey.enabled},   {"calibration", &n->calibration.enabled},
           {"changes", &n->changes.enabled}, {"traffic", &n->traffic.enabled},
-          {"aliasing", &n->aliasing},       {"camera", &n->camera.enabled}};
+          {"aliasing", &n->aliasing},       {"camera", &n->camera.enabled},
+          {"light", &n->light.enabled}};
 }
 
 }  // namespace

@@ -161,8 +161,41 @@ struct CameraNuisanceRanges {
   Range mount_pitch_deg{2, 5};
 };
 
+// Light (sun_light.h): the sun where the Reda & Andreas SPA puts it at each drive's time, cast
+// shadows from it, and a night drive lit by windows, street lamps and headlights. Fixed values,
+// not draws: the drives' times already differ, and so does their light.
+struct LightRanges {
+  bool enabled = false;
+  // Shadow map (sun_shadow.h): ground texel in metres, and how far from the camera shadows are
+  // drawn (beyond, haze and the pixel footprint hide them). 0.1 m is about a pixel's footprint
+  // 20 m ahead at 320x240 with supersampling 2 (2 x 250 px focal: 20 / 500 = 0.04 m) to 50 m;
+  // DEVELOPERS.md has the cost.
+  double shadow_texel_m = 0.1;
+  double shadow_range_m = 160;
+  // query-night: its start, seconds after the survey's (2026-05-05T01:30Z, 22:50 local solar
+  // time at 40 W: the sun 20 degrees or more below the horizon, astronomical night), and the
+  // share of upper-floor windows lit, each window its own draw (an evening in a residential
+  // street: from memory, a third or so).
+  double night_offset_s = 16.5 * 3600;
+  double lit_window_share = 0.3;
+  // query-dusk's start after the survey's: 21:15Z, the sun 4.7 degrees up in the west-north-west
+  // (the clean world's 10.5 h puts it 23 degrees up: afternoon, not dusk).
+  double dusk_offset_s = 12.25 * 3600;
+  // Sky light of a night over a town (SkyLight's floor, Appearance::ambient units): dim enough
+  // that unlit walls sit near the noise.
+  double night_sky_light = 0.03;
+  // Street lamps and the query car's low beams (night_light.h), as irradiance on a surface
+  // facing the light at 1 m (Appearance::sun's units): a lamp 7 m up gives 70 / 49 = 1.4 under
+  // itself, a sunlit road's 1.0 (0.6 + 0.55 sin 45 deg) or so, falling to 0.09 14 m away; the
+  // low beams, 0.7 m up, give the road 1500 x 0.7 / 15^3 x 0.93 = 0.29 15 m ahead and 0.1 at
+  // 25 m. Chosen by eye on seed 5 (pools, not a lit street; the road lit ahead).
+  double lamp_intensity = 70;
+  double headlight_intensity = 1500;
+};
+
 struct WorldNuisances {
   World world = World::kClean;
+  LightRanges light;
   SurveyErrorRanges survey;
   CalibrationErrorRanges calibration;
   ChangedWorldRanges changes;
@@ -177,7 +210,8 @@ struct WorldNuisances {
 
   // InvalidArgument naming the field: a range with lo > hi, a negative or non-finite bound, a
   // time offset or correlation time <= 0 where enabled, survey_sigma_scale <= 0; a camera share
-  // outside [0, 1], a JPEG quality outside [1, 100], a vignetting strength above 1.
+  // outside [0, 1], a JPEG quality outside [1, 100], a vignetting strength above 1; a light
+  // parameter out of its range.
   Status Validate() const;
 };
 
@@ -193,6 +227,8 @@ WorldNuisances NuisancesForWorld(World world);
 //   aliasing     look-alike stretches and the off-map excursion (adds query-offmap)
 //   camera       the camera's own: motion blur, rolling shutter, exposure steps, vignetting,
 //                sensor noise, JPEG quality by drive, remounted query cameras
+//   light        the sun by the SPA at each drive's time, cast shadows, the night drive
+//                (adds query-night)
 // In the order above.
 std::vector<std::string> NuisanceGroupNames();
 // The groups of *n that are on, in NuisanceGroupNames order.

@@ -294,8 +294,8 @@ TEST(WorldNuisancesTest, TimeOffsetMovesExposuresAlongTheTrack) {
 // survey is the clean one's); names are checked.
 TEST(WorldNuisancesTest, NuisanceGroupsSwitchAlone) {
   const std::vector<std::string> all = NuisanceGroupNames();
-  ASSERT_EQ(all,
-            (std::vector<std::string>{"survey", "calibration", "changes", "traffic", "aliasing"}));
+  ASSERT_EQ(all, (std::vector<std::string>{"survey", "calibration", "changes", "traffic",
+                                           "aliasing", "camera", "light"}));
   EXPECT_EQ(EnabledNuisanceGroups(NuisancesForWorld(World::kRealistic)), all);
   EXPECT_TRUE(EnabledNuisanceGroups(NuisancesForWorld(World::kClean)).empty());
   for (const std::string& group : all) {
