@@ -24,6 +24,15 @@ std::vector<size_t> WithRivalCandidates(const std::vector<GeoPoint>& ranked, int
   return out;
 }
 
+std::vector<Candidate> WithRivalCandidates(const std::vector<Candidate>& ranked, int top_k,
+                                           int rivals, double distinct_m) {
+  std::vector<GeoPoint> at;
+  for (const Candidate& c : ranked) at.push_back(c.tile->data.images[c.image].position);
+  std::vector<Candidate> out;
+  for (size_t i : WithRivalCandidates(at, top_k, rivals, distinct_m)) out.push_back(ranked[i]);
+  return out;
+}
+
 bool AtDistinctPlace(const ReferenceImage& ref, const std::vector<Verified>& verified,
                      double distinct_m) {
   for (const Verified& v : verified) {

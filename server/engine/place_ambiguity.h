@@ -27,6 +27,9 @@ namespace sightfix {
 // (Verify checks candidates at distinct places past max_verified).
 std::vector<size_t> WithRivalCandidates(const std::vector<GeoPoint>& ranked, int top_k, int rivals,
                                         double distinct_m);
+// The same on candidates, each at its map image's position.
+std::vector<Candidate> WithRivalCandidates(const std::vector<Candidate>& ranked, int top_k,
+                                           int rivals, double distinct_m);
 
 // True when `ref` lies more than distinct_m (geodesic, horizontal) from every verified
 // reference: a candidate worth verifying past max_verified, as evidence for another place.

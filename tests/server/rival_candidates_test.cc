@@ -36,8 +36,9 @@ TEST(RivalCandidatesTest, APlaceAlreadyInTheTopKIsNoRival) {
 }
 
 TEST(RivalCandidatesTest, ShortRankings) {
-  EXPECT_TRUE(WithRivalCandidates({}, 8, 2, 30).empty());
-  EXPECT_EQ(WithRivalCandidates({At(0), At(500)}, 8, 2, 30), (std::vector<size_t>{0, 1}));
+  EXPECT_TRUE(WithRivalCandidates(std::vector<GeoPoint>{}, 8, 2, 30).empty());
+  EXPECT_EQ(WithRivalCandidates(std::vector<GeoPoint>{At(0), At(500)}, 8, 2, 30),
+            (std::vector<size_t>{0, 1}));
 }
 
 }  // namespace
