@@ -49,6 +49,10 @@ const char* LightLevelName(LightLevel level) {
 }
 
 LightLevel LightLevelOf(const Appearance& look) {
+  // Night (the sun below the horizon): the camera's longest exposure and highest gain, as at
+  // dusk; a real camera's auto-exposure caps the time near the frame interval and raises the
+  // gain further, which the night drive's own noise stands for.
+  if (look.sun_dir[2] < 0) return LightLevel::kDusk;
   if (look.sun < 0.1) return LightLevel::kOvercast;
   const double elevation_deg = std::asin(std::clamp(look.sun_dir[2], -1.0, 1.0)) / kDegToRad;
   return elevation_deg < 10 ? LightLevel::kDusk : LightLevel::kSunlit;

@@ -33,8 +33,8 @@ enum class LightLevel { kSunlit, kOvercast, kDusk };
 // "sunlit", "overcast", "dusk".
 const char* LightLevelName(LightLevel level);
 
-// Overcast where the look has no direct sun (sun < 0.1), dusk where the sun stands below 10
-// degrees, else sunlit.
+// Dusk where the sun stands below 10 degrees or below the horizon (night, whatever its direct
+// light), else overcast where the look has no direct sun (sun < 0.1), else sunlit.
 LightLevel LightLevelOf(const Appearance& look);
 
 // From time_s on (seconds since the drive's start) the exposure is ev EV off the drive's start

@@ -60,7 +60,7 @@ void CheckDraw(const std::string& drive, const nlohmann::json& c, const CameraNu
   const CameraLightRanges& lr = light == "sunlit"     ? r.sunlit
                                 : light == "overcast" ? r.overcast
                                                       : r.dusk;
-  EXPECT_EQ(light, drive == "query-dusk"       ? "dusk"
+  EXPECT_EQ(light, drive == "query-dusk" || drive == "query-night" ? "dusk"
                    : drive == "query-overcast" ? "overcast"
                                                : "sunlit");
   EXPECT_TRUE(Within(c["exposure_ms"], lr.exposure_ms)) << drive;

@@ -207,7 +207,7 @@ TEST(LookAlikesTest, OffMapFramesAreFarFromTheSurvey) {
     const DemoOptions o = RealisticOptions(seed);
     const Town town = BuildTown(TownOptionsFor(o));
     const std::vector<PlannedDrive> drives = PlanDrives(town, o);
-    ASSERT_EQ(drives.size(), 5u);
+    ASSERT_GE(drives.size(), 5u);  // query-night follows where the light is on
     ASSERT_EQ(drives[4].condition.name, kOffMapDriveName);
     const nlohmann::json j = TownJson(o, town, drives);
     const std::vector<int> off = j["excursion"]["off_map_frames"];
