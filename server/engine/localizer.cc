@@ -75,6 +75,30 @@ const char* FixQualityName(FixQuality q) {
   }
 }
 
+bool LocalizerOptions::Validate(std::string* error) const {
+  auto fail = [&](const std::string& m) {
+    if (error) *error = m;
+    return false;
+  };
+  if (top_k < 1 || top_k > 100) return fail("top_k must be within [1, 100]");
+  if (max_verified < 1) return fail("max_verified must be >= 1");
+  if (min_verified_inliers < 15) return fail("min_verified_inliers must be >= 15");
+  if (!(viewing_range_m >= 0)) return fail("viewing_range_m must be >= 0");
+  if (!(pnp_threshold_px > 0) || !(pixel_sigma_px > 0))
+    return fail("pnp_threshold_px and pixel_sigma_px must be > 0");
+  if (min_pnp_inliers < 6) return fail("min_pnp_inliers must be >= 6");
+  if (!(covariance_scale > 0)) return fail("covariance_scale must be > 0");
+  if (!(coarse_radius_m > 0)) return fail("coarse_radius_m must be > 0");
+  if (!(distinct_place_m > 0)) return fail("distinct_place_m must be > 0");
+  if (!(ambiguity_ratio >= 0)) return fail("ambiguity_ratio must be >= 0");
+  if (!(time_budget_ms >= 0)) return fail("time_budget_ms must be >= 0");
+  if (env == nullptr) return fail("env must not be null");
+  std::string e;
+  if (features.type != FeatureType::kRootSift) return fail("features: maps hold RootSIFT");
+  if (!features.Validate(&e)) return fail("features: " + e);
+  return true;
+}
+
 struct Localizer::Impl {
   LocalizerOptions o;
   Catalog catalog;
@@ -184,7 +208,8 @@ std::vector<Candidate> Localizer::Impl::Candidates(const cv::Mat& q, const Locat
   }
   std::stable_sort(c.begin(), c.end(),
                    [](const Candidate& a, const Candidate& b) { return a.distance < b.distance; });
-  return WithRivalCandidates(c, o.top_k, o.rival_candidates, o.distinct_place_m);
+  if (static_cast<int>(c.size()) > o.top_k) c.resize(o.top_k);
+  return c;
 }
 
 std::vector<Candidate> Localizer::Impl::FromPrior(const cv::Mat& q, const PriorCircle& p,
@@ -200,8 +225,7 @@ std::vector<Candidate> Localizer::Impl::FromPrior(const cv::Mat& q, const PriorC
       continue;
     }
     const LoadedTile& t = **tile;
-    const int k = static_cast<int>(
-        std::min<faiss::Index::idx_t>(t.index->ntotal, std::max(4 * o.top_k, o.rival_depth)));
+    const int k = static_cast<int>(std::min<faiss::Index::idx_t>(t.index->ntotal, 4 * o.top_k));
     std::vector<float> dist(k);
     std::vector<faiss::Index::idx_t> ids(k);
     t.index->search(1, q.ptr<float>(), k, dist.data(), ids.data());
@@ -217,8 +241,7 @@ std::vector<Candidate> Localizer::Impl::FromPrior(const cv::Mat& q, const PriorC
 }
 
 std::vector<Candidate> Localizer::Impl::FromGlobal(const cv::Mat& q, std::string* note) const {
-  const int depth = std::max(o.top_k, o.rival_candidates > 0 ? o.rival_depth : 0);
-  const int k = static_cast<int>(std::min<faiss::Index::idx_t>(global->ntotal, depth));
+  const int k = static_cast<int>(std::min<faiss::Index::idx_t>(global->ntotal, o.top_k));
   std::vector<float> dist(k);
   std::vector<faiss::Index::idx_t> ids(k);
   if (k > 0) global->search(1, q.ptr<float>(), k, dist.data(), ids.data());

@@ -76,13 +76,7 @@ struct LocalizerOptions {
   // least ambiguity_ratio of its best reference's inliers is no fix (reason "ambiguous"):
   // where two places look alike, the answer is none rather than one of them with a small radius.
   double distinct_place_m = 30;
-  double ambiguity_ratio = 0.5;  // 0 would call every rival decisive; > 1 disables the check
-  // Rival candidates: retrieval looks rival_depth deep (top_k when deeper) and, besides its top_k,
-  // verifies up to rival_candidates more that lie at a place distinct from every top_k one, so
-  // that a look-alike place ranked just below the top_k still challenges the fix (0 turns it
-  // off). Costs at most rival_candidates verifications a query.
-  int rival_candidates = 2;
-  int rival_depth = 32;
+  double ambiguity_ratio = 0.5;      // 0 would call every rival decisive; > 1 disables the check
   double min_pair_baseline_m = 1.5;  // pair fallback: references closer give weak geometry
   double coarse_radius_m = 50;       // radius95 of a coarse (retrieval-only) fix
   double time_budget_ms = 0;         // > 0: stop verifying new candidates past this

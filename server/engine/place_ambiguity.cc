@@ -7,32 +7,6 @@
 
 namespace sightfix {
 
-std::vector<size_t> WithRivalCandidates(const std::vector<GeoPoint>& ranked, int top_k, int rivals,
-                                        double distinct_m) {
-  const size_t kept = std::min(ranked.size(), static_cast<size_t>(std::max(top_k, 0)));
-  std::vector<size_t> out;
-  for (size_t i = 0; i < kept; ++i) out.push_back(i);
-  for (size_t i = kept; i < ranked.size() && static_cast<int>(out.size() - kept) < rivals; ++i) {
-    const GeoPoint& r = ranked[i];
-    const bool distinct =
-        std::all_of(ranked.begin(), ranked.begin() + kept, [&](const GeoPoint& p) {
-          return GeodesicBetween(p.lat_deg, p.lon_deg, r.lat_deg, r.lon_deg).distance_m >
-                 distinct_m;
-        });
-    if (distinct) out.push_back(i);
-  }
-  return out;
-}
-
-std::vector<Candidate> WithRivalCandidates(const std::vector<Candidate>& ranked, int top_k,
-                                           int rivals, double distinct_m) {
-  std::vector<GeoPoint> at;
-  for (const Candidate& c : ranked) at.push_back(c.tile->data.images[c.image].position);
-  std::vector<Candidate> out;
-  for (size_t i : WithRivalCandidates(at, top_k, rivals, distinct_m)) out.push_back(ranked[i]);
-  return out;
-}
-
 bool AtDistinctPlace(const ReferenceImage& ref, const std::vector<Verified>& verified,
                      double distinct_m) {
   for (const Verified& v : verified) {

@@ -19,18 +19,6 @@
 
 namespace sightfix {
 
-// The candidates to verify, as indices into a retrieval ranking given by each candidate's
-// position: the first top_k, then up to `rivals` more from the rest, in order, each lying more
-// than distinct_m (geodesic, horizontal) from every one of the first top_k. Where two places
-// look alike, retrieval can rank one place's views all above the other's, and a fix at the
-// first would go unchallenged by the second; these are verified as evidence of a rival place
-// (Verify checks candidates at distinct places past max_verified).
-std::vector<size_t> WithRivalCandidates(const std::vector<GeoPoint>& ranked, int top_k, int rivals,
-                                        double distinct_m);
-// The same on candidates, each at its map image's position.
-std::vector<Candidate> WithRivalCandidates(const std::vector<Candidate>& ranked, int top_k,
-                                           int rivals, double distinct_m);
-
 // True when `ref` lies more than distinct_m (geodesic, horizontal) from every verified
 // reference: a candidate worth verifying past max_verified, as evidence for another place.
 bool AtDistinctPlace(const ReferenceImage& ref, const std::vector<Verified>& verified,
