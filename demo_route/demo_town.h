@@ -28,7 +28,7 @@ struct DemoOptions {
   bool export_exif = false, export_gpx = false;
   // Which nuisances of real data the town carries (world_nuisances.h). Clean, the default for
   // now, is the town every accuracy guard was measured on, byte for byte; realistic becomes the
-  // default once the rest of its nuisances exist.
+  // default once the accuracy guards are measured on it.
   World world = World::kClean;
   // Realistic world only: the nuisance groups left on (world_nuisances.h KeepNuisanceGroups);
   // empty, all of them.

@@ -1,9 +1,10 @@
 // World presets of the demo town: which nuisances of real data a generated town carries, and the
 // ranges each drive draws its own nuisance parameters from (the draws are recorded in
 // town.json). The clean world has none of them: it is the town the accuracy guards were measured
-// on, byte for byte. The realistic world makes the survey's poses and every drive's calibration
-// as imperfect as real ones; it becomes the default once the rest of its nuisances exist (a
-// changed world between drives, traffic, cast shadows, night, an aliasing district).
+// on, byte for byte. The realistic world carries the errors and nuisances of real streets: the
+// survey's pose error, calibration error, a changed world between drives, traffic, look-alike
+// streets and an off-map drive, the camera's own nuisances, the sun's light with cast shadows
+// and a night drive. It becomes the default once the accuracy guards are measured on it.
 //
 // Ranges marked `common practice` are typical figures of the trade for a vehicle survey with a
 // GNSS-INS and a factory or field calibration, not measurements of any one system
