@@ -31,19 +31,24 @@ expect "empty nuisance list refused" 2 "needs at least one group" -- \
 expect "huge sigma scale refused" 2 "survey-sigma-scale must be > 0 and <= 10" -- \
   "$demo" --out "$tmp/x" --survey-sigma-scale 11
 
-# The README's example: the line with --survey-sigma-scale 0.5 and its continuation, run with
-# this build's program and a temporary output folder.
-example="$(grep -A1 -- '--world realistic --survey-sigma-scale 0.5' "$src/README.md" |
-  sed 's/\\$//' | tr '\n' ' ')"
-example="${example//build\/demo_route\/sightfix-demo-route/$demo}"
-example="${example//\/tmp\/real-town/$tmp/real-town}"
-case "$example" in
-  "$demo "*"--out $tmp/real-town"*) ok "README example found" ;;
-  *) bad "README example found (got '$example')" ;;
-esac
-if eval "$example" >"$tmp/example.log" 2>&1; then ok "README example runs"; else
-  bad "README example runs ($(tail -3 "$tmp/example.log"))"
-fi
+# Runs the README example NAME whose first line holds PATTERN (with its continuation line), with
+# this build's program and its README output folder README_OUT moved to OUT.
+run_readme_example() {
+  local name="$1" pattern="$2" readme_out="$3" out="$4" example
+  example="$(grep -A1 -- "$pattern" "$src/README.md" | sed 's/\\$//' | tr '\n' ' ')"
+  example="${example//build\/demo_route\/sightfix-demo-route/$demo}"
+  example="${example//$readme_out/$out}"
+  case "$example" in
+    "$demo "*"--out $out"*) ok "README $name found" ;;
+    *) bad "README $name found (got '$example')" ;;
+  esac
+  if eval "$example" >"$out.log" 2>&1; then ok "README $name runs"; else
+    bad "README $name runs ($(tail -3 "$out.log"))"
+  fi
+}
+
+# The README's example: the line with --survey-sigma-scale 0.5 and its continuation.
+run_readme_example example '--world realistic --survey-sigma-scale 0.5' /tmp/real-town "$tmp/real-town"
 for f in survey/truth.csv survey/camera-truth.yml query-day/camera-truth.yml; do
   if [ -s "$tmp/real-town/$f" ]; then ok "writes $f"; else bad "writes $f"; fi
 done
@@ -67,17 +72,8 @@ PY
 # The README's --nuisances example: only the survey's error is on, so the survey has its
 # truth.csv, no drive has a camera-truth.yml (no calibration error), and there is no off-map
 # drive or look-alike stretch (aliasing off).
-example="$(grep -A1 -- '--world realistic --nuisances survey' "$src/README.md" |
-  sed 's/\\$//' | tr '\n' ' ')"
-example="${example//build\/demo_route\/sightfix-demo-route/$demo}"
-example="${example//\/tmp\/survey-only-town/$tmp/survey-only}"
-case "$example" in
-  "$demo "*"--out $tmp/survey-only"*) ok "README --nuisances example found" ;;
-  *) bad "README --nuisances example found (got '$example')" ;;
-esac
-if eval "$example" >"$tmp/survey-only.log" 2>&1; then ok "README --nuisances example runs"; else
-  bad "README --nuisances example runs ($(tail -3 "$tmp/survey-only.log"))"
-fi
+run_readme_example "--nuisances example" '--world realistic --nuisances survey' \
+  /tmp/survey-only-town "$tmp/survey-only"
 if "$py" - "$tmp/survey-only" <<'PY'; then ok "survey-only town has the survey error alone"; else bad "survey-only town has the survey error alone"; fi
 import json, os, sys
 out = sys.argv[1]
