@@ -21,7 +21,7 @@ using sightfix::demo::DemoSummary;
 po::options_description Describe(DemoOptions* o, std::string* size, std::string* exports,
                                  std::string* world, std::string* nuisances) {
   po::options_description desc(
-      "sightfix-demo-route: generate the demo town (an invented place), its survey drive and three "
+      "sightfix-demo-route: generate the demo town (an invented place), its survey drive and its "
       "query drives\n"
       "with exact ground truth, GNSS streams with spoofed segments, town.json and a contact "
       "sheet.\n\n"
@@ -51,8 +51,8 @@ po::options_description Describe(DemoOptions* o, std::string* size, std::string*
       "an off-map drive (query-offmap), the sun's true position with cast shadows, a night "
       "drive (query-night) and the camera's own nuisances (motion blur, rolling shutter, "
       "exposure steps, vignetting, shot and read noise, JPEG quality by drive, query cameras "
-      "mounted at another height and pitch). clean stays the default until the engine's "
-      "accuracy guards are measured on realistic")(
+      "mounted at another height and pitch), the default; clean: the easy town the clean-world "
+      "regression guards were measured on")(
       "nuisances", po::value(nuisances),
       "realistic world only: keep only these nuisance groups on, comma-separated, from survey "
       "(pose error), calibration (camera.yml error and time offset), changes (parked vehicles, "

@@ -1,11 +1,11 @@
 #!/usr/bin/env bash
 # The main job, end to end, as far as it is built: install what is missing, build, generate the
-# demo town (survey drive, three query drives, GNSS streams, town.json, contact sheet), build its
-# map with sightfix-indexer, start sightfix-server on it, locate a few query images of each drive
-# through the server with sightfix locate --server, printing each fix's error against the drive's
-# ground truth, replay the whole dusk query drive through the server with sightfix replay
-# (metrics, GNSS spoofing monitor, report.html), and stop the server cleanly (SIGTERM: it drains
-# and exits 0).
+# demo town (the realistic world unless told --world clean: survey drive, query drives, GNSS
+# streams, town.json, contact sheet), build its map with sightfix-indexer, start sightfix-server
+# on it, locate a few query images of each drive through the server with sightfix locate
+# --server, printing each fix's error against the drive's ground truth, replay the whole dusk
+# query drive through the server with sightfix replay (metrics, GNSS spoofing monitor,
+# report.html), and stop the server cleanly (SIGTERM: it drains and exits 0).
 # Usage: scripts/demo.sh [OUT_DIR] [extra sightfix-demo-route flags]   (default out/demo-town)
 set -euo pipefail
 root="$(cd "$(dirname "$0")/.." && pwd)"
@@ -43,7 +43,8 @@ echo
 echo "== 4/5 locating query images through the server (prior: 150 m circle centred 60 m off the truth)"
 # Rows 6, 26 and 46 of each query drive; the prior's centre is moved 60 m north of the truth
 # (1 degree of latitude is about 111 km; common practice), as a dead-reckoning prior might be.
-for drive in query-day query-dusk query-overcast; do
+for drive in query-day query-dusk query-overcast query-night; do
+  [ -d "$out/$drive" ] || continue  # query-night: realistic world only
   for row in 6 26 46; do
     line="$(sed -n "${row}p" "$out/$drive/drive.csv")"
     [ -n "$line" ] || continue

@@ -11,7 +11,7 @@ build="$2"
 . "$src/tests/lib/checks.sh"
 demo="$build/demo_route/sightfix-demo-route"
 
-expect "--help names --world" 0 "clean stays the default" -- "$demo" --help
+expect "--help names --world" 0 "pitch), the default; clean" -- "$demo" --help
 expect "--help names --survey-sigma-scale" 0 "survey-sigma-scale" -- "$demo" --help
 expect "unknown world refused" 2 "world must be clean or realistic, got 'muddy'" -- \
   "$demo" --out "$tmp/x" --world muddy
@@ -25,7 +25,7 @@ expect "unknown nuisance group refused" 2 "unknown nuisance group 'fog' (choose 
 expect "repeated nuisance group refused" 2 "nuisance group 'survey' named twice" -- \
   "$demo" --out "$tmp/x" --world realistic --nuisances survey,traffic,survey
 expect "nuisance groups refused in the clean world" 2 "apply to the realistic world only" -- \
-  "$demo" --out "$tmp/x" --nuisances survey
+  "$demo" --out "$tmp/x" --world clean --nuisances survey
 expect "empty nuisance list refused" 2 "needs at least one group" -- \
   "$demo" --out "$tmp/x" --world realistic --nuisances ""
 expect "huge sigma scale refused" 2 "survey-sigma-scale must be > 0 and <= 10" -- \

@@ -10,7 +10,7 @@ idx="$build/indexer/sightfix-indexer"
 cli="$build/client/sightfix"
 source "$(dirname "$0")/../lib/checks.sh"
 
-"$build/demo_route/sightfix-demo-route" --out "$tmp/town" --seed 17 --route-length-m 150 \
+"$build/demo_route/sightfix-demo-route" --out "$tmp/town" --seed 17 --route-length-m 150 --world clean \
   --export exif,gpx >/dev/null 2>&1 && ok "demo town exported as EXIF and GPX" || bad "export"
 cmp -s "$tmp/town/survey/drive.csv" "$data/town/survey/drive.csv" \
   && ok "same survey as the service tests' map" || bad "survey differs from the fixture's"
