@@ -1,0 +1,242 @@
+// The engine end to end on the realistic demo town (demo_route/world_nuisances.h: correlated
+// survey error, every calibration slightly off, a changed world, traffic, look-alike stretches,
+// an off-map drive, the sun and its shadows, a night drive, the camera's own nuisances): build a
+// map from the survey drive, locate every image of the five query drives without a prior, and
+// hold the figures to two kinds of bounds.
+//
+// Regression bounds (RealisticAccuracyTest, in CI): per drive a floor for the refined share, a
+// ceiling for the median and p95 error of refined fixes, a band for radius95 coverage and a
+// ceiling for the refined fixes more than 5 m off, near what seed 41 measured, each checked on
+// seed 43 (both figures beside it). A change that halves the night refined share or makes fixes
+// ten times worse fails although nothing else does. The off-map frames of query-offmap (those
+// town.json's excursion lists) must get no refined fix and no confidently wrong one.
+//
+// Goals (RealisticAccuracyGoal, label goal, scripts/goals.sh; not met yet, each gap stated in
+// DEVELOPERS.md "Realistic world: where the engine falls short"): in every condition zero refined
+// fixes more than 5 m off and no confidently wrong fix (error > 3 x radius95, client/eval/
+// integrity.h), radius95 coverage within 0.90-0.99, and the median error of refined fixes at
+// most 1.2 x the map's own error (the survey poses' horizontal error against survey/truth.csv,
+// which the map's points inherit: a map cannot average away an error its whole drive shared).
+//
+// Seed: SIGHTFIX_ACCURACY_SEED (41 when unset, CI's); 43 checks the regression bounds.
+#include <gtest/gtest.h>
+#include <unistd.h>
+
+#include <algorithm>
+#include <cstdlib>
+#include <filesystem>
+#include <fstream>
+#include <map>
+#include <nlohmann/json.hpp>
+#include <set>
+
+#include "client/eval/integrity.h"
+#include "client/eval/route_eval.h"
+#include "demo_route/demo_town.h"
+#include "indexer/base/geo.h"
+#include "indexer/builder/map_builder.h"
+#include "indexer/map/drive_manifest.h"
+#include "server/engine/localizer.h"
+
+namespace sightfix {
+namespace {
+
+namespace fs = std::filesystem;
+
+int TownSeed() {
+  const char* s = std::getenv("SIGHTFIX_ACCURACY_SEED");
+  return s != nullptr && *s != '\0' ? std::atoi(s) : 41;
+}
+
+constexpr const char* kDrives[] = {"query-day", "query-dusk", "query-overcast", "query-night",
+                                   "query-offmap"};
+
+// The town, its map and every drive's results, made once per process.
+class RealisticTown {
+ public:
+  static RealisticTown& Get() {
+    static RealisticTown town;
+    return town;
+  }
+  bool ok() const { return localizer_ != nullptr; }
+  const std::string& root() const { return root_; }
+  const std::vector<QueryResult>& Results(const std::string& drive) { return results_[drive]; }
+  const RouteSummary& Summary(const std::string& drive) { return summaries_[drive]; }
+
+ private:
+  RealisticTown() {
+    root_ = (fs::path(::testing::TempDir()) / ("realistic_accuracy_" + std::to_string(::getpid())))
+                .string();
+    fs::remove_all(root_);
+    demo::DemoOptions town;  // the realistic world, every nuisance group on (the default)
+    town.out_dir = root_ + "/town";
+    town.seed = TownSeed();
+    // 600 m: the shortest route whose straight stretches hold the look-alike stretches (twin,
+    // terrace, chain shops) besides the off-map side street.
+    town.route_length_m = 600;
+    std::printf("realistic demo town seed %llu, %.0f m\n",
+                static_cast<unsigned long long>(town.seed), town.route_length_m);
+    if (!demo::GenerateDemoTown(town).ok()) return;
+    BuildOptions b;
+    b.drive_dir = town.out_dir + "/survey";
+    b.map_dir = root_ + "/map";
+    b.progress = false;
+    Result<BuildSummary> s = BuildMap(b);
+    if (!s.ok()) {
+      std::printf("map build failed: %s\n", s.status().ToString().c_str());
+      return;
+    }
+    std::printf("map: %d images, %d tiles, %d points, %.0f s\n", s->images, s->tiles, s->points,
+                s->seconds);
+    auto loc = Localizer::Open(b.map_dir, LocalizerOptions{});  // survey error: correlated
+    if (!loc.ok()) return;
+    for (const char* drive : kDrives) {
+      RouteEvalOptions o;
+      o.drive_dir = town.out_dir + "/" + drive;
+      o.prior = PriorMode::kNone;
+      auto r = RunDrive(**loc, o);
+      if (!r.ok()) {
+        std::printf("%s: %s\n", drive, r.status().ToString().c_str());
+        return;
+      }
+      results_[drive] = *r;
+      summaries_[drive] = Summarize(*r);
+      const IntegrityCounts confident =
+          CountIntegrity(*r, CutStreetSegments(*r, 50), kConfidentlyWrongFactor);
+      std::printf("%s, no prior: %s\n  %s\n", drive, SummaryLine(summaries_[drive]).c_str(),
+                  IntegrityLine(confident).c_str());
+    }
+    localizer_ = std::move(loc).value();
+  }
+  ~RealisticTown() {
+    localizer_.reset();
+    std::error_code ignored;
+    fs::remove_all(root_, ignored);
+  }
+
+  std::string root_;
+  std::unique_ptr<Localizer> localizer_;
+  std::map<std::string, std::vector<QueryResult>> results_;
+  std::map<std::string, RouteSummary> summaries_;
+};
+
+// The images of query-offmap whose truth is off the map (town.json excursion.off_map_frames).
+std::set<std::string> OffMapImages(const std::string& town_dir) {
+  std::ifstream in(town_dir + "/town.json");
+  const nlohmann::json town = nlohmann::json::parse(in);
+  auto rows = ReadDriveManifest(town_dir + "/query-offmap/drive.csv");
+  std::set<std::string> images;
+  if (!rows.ok()) return images;
+  for (int k : town.at("excursion").at("off_map_frames").get<std::vector<int>>())
+    images.insert((*rows)[k].image);
+  return images;
+}
+
+// The survey poses' median horizontal error against survey/truth.csv, metres.
+double SurveyMedianErrorM(const std::string& town_dir) {
+  auto reported = ReadDriveManifest(town_dir + "/survey/drive.csv");
+  auto truth = ReadDriveManifest(town_dir + "/survey/truth.csv");
+  if (!reported.ok() || !truth.ok() || reported->size() != truth->size()) return -1;
+  std::vector<double> e;
+  for (size_t k = 0; k < truth->size(); ++k) {
+    const GeoPoint &a = (*reported)[k].position, &b = (*truth)[k].position;
+    e.push_back(GeodesicBetween(a.lat_deg, a.lon_deg, b.lat_deg, b.lon_deg).distance_m);
+  }
+  std::nth_element(e.begin(), e.begin() + e.size() / 2, e.end());
+  return e[e.size() / 2];
+}
+
+// A drive's regression bounds, with the figures measured on seed 41 / seed 43 (2026-12-04)
+// above each row: refined share, median and p95 error and radius95 coverage of refined fixes,
+// refined fixes more than 5 m off. Floors sit about two binomial standard errors below the lower
+// of the two shares; error ceilings at about twice the larger figure; coverage floors about 0.1
+// below the lower (seed 43's calibration draws make its radius too small: the self-calibration
+// work's target); at most two more far-off fixes than either seed had. The seeds differ a lot
+// (seed 43's day median is 3.6 x seed 41's), so these catch a broken engine, not a small loss:
+// the goals above and scripts/nuisance-costs.sh measure the rest.
+struct Regression {
+  const char* drive;
+  double min_refined_share, max_median_m, max_p95_m, min_coverage, max_coverage;
+  int max_wrong_refined;
+};
+// clang-format off
+constexpr Regression kRegression[] = {
+  // 0.705 / 0.627; 0.237 / 0.858 m; 0.512 / 1.946 m; 0.973 / 0.573; 0 / 4
+  {"query-day", 0.55, 1.7, 3.9, 0.45, 1.0, 6},
+  // 0.190 / 0.300; 0.325 / 0.815 m; 0.993 / 1.240 m; 0.967 / 0.600; 0 / 0
+  {"query-dusk", 0.12, 1.7, 2.5, 0.45, 1.0, 2},
+  // 0.708 / 0.379; 0.248 / 0.316 m; 0.617 / 0.865 m; 0.950 / 0.983; 1 / 1
+  {"query-overcast", 0.30, 0.7, 1.8, 0.85, 1.0, 3},
+  // 0 / 0 refined (a day map does not serve the night: DEVELOPERS.md, "Realistic world: where
+  // the engine falls short"); the bounds below hold it to no wrong fix
+  {"query-night", 0.0, 1e9, 1e9, 0.0, 1.0, 2},
+  // 0.241 / 0.178 (on-map frames only: OffMapFramesGetNoConfidentFix); 0.336 / 0.757 m;
+  // 0.515 / 1.126 m; 1.000 / 0.846; 0 / 0
+  {"query-offmap", 0.09, 1.5, 2.3, 0.6, 1.0, 2},
+};
+// clang-format on
+
+class RealisticAccuracyTest : public ::testing::Test {};
+class RealisticAccuracyGoal : public ::testing::Test {};
+
+TEST_F(RealisticAccuracyTest, EveryDriveWithinRegressionBounds) {
+  RealisticTown& t = RealisticTown::Get();
+  ASSERT_TRUE(t.ok());
+  for (const Regression& r : kRegression) {
+    const RouteSummary& s = t.Summary(r.drive);
+    ASSERT_GT(s.queries, 0) << r.drive;
+    EXPECT_GE(s.refined_share, r.min_refined_share) << r.drive;
+    EXPECT_LE(s.wrong_refined, r.max_wrong_refined) << r.drive;
+    if (s.refined == 0) continue;  // no error or coverage to bound
+    EXPECT_LE(s.median_error_m, r.max_median_m) << r.drive;
+    EXPECT_LE(s.p95_error_m, r.max_p95_m) << r.drive;
+    EXPECT_GE(s.radius95_coverage, r.min_coverage) << r.drive;
+    EXPECT_LE(s.radius95_coverage, r.max_coverage) << r.drive;
+  }
+}
+
+TEST_F(RealisticAccuracyTest, OffMapFramesGetNoConfidentFix) {
+  RealisticTown& t = RealisticTown::Get();
+  ASSERT_TRUE(t.ok());
+  const std::set<std::string> off = OffMapImages(t.root() + "/town");
+  ASSERT_GT(off.size(), 10u);
+  int seen = 0;
+  for (const QueryResult& q : t.Results("query-offmap")) {
+    if (!off.count(q.truth.image)) continue;
+    ++seen;
+    EXPECT_NE(q.fix.quality, FixQuality::kRefined) << q.truth.image << ": " << q.error_m << " m";
+    EXPECT_FALSE(IsMisleading(q, kConfidentlyWrongFactor))
+        << q.truth.image << ": " << q.error_m << " m, radius95 " << q.fix.radius95_m;
+  }
+  EXPECT_EQ(seen, static_cast<int>(off.size()));
+}
+
+TEST_F(RealisticAccuracyGoal, NoFixFarOffOrConfidentlyWrong) {
+  RealisticTown& t = RealisticTown::Get();
+  ASSERT_TRUE(t.ok());
+  for (const char* drive : kDrives) {
+    EXPECT_EQ(t.Summary(drive).wrong_refined, 0) << drive;
+    for (const QueryResult& q : t.Results(drive))
+      EXPECT_FALSE(IsMisleading(q, kConfidentlyWrongFactor))
+          << drive << " " << q.truth.image << ": " << q.error_m << " m, radius95 "
+          << q.fix.radius95_m;
+  }
+}
+
+TEST_F(RealisticAccuracyGoal, RadiusCoversAndErrorNearTheMapsOwn) {
+  RealisticTown& t = RealisticTown::Get();
+  ASSERT_TRUE(t.ok());
+  const double map_error_m = SurveyMedianErrorM(t.root() + "/town");
+  ASSERT_GT(map_error_m, 0);
+  std::printf("survey poses' median error against truth.csv: %.3f m\n", map_error_m);
+  for (const char* drive : kDrives) {
+    const RouteSummary& s = t.Summary(drive);
+    if (s.refined == 0) continue;
+    EXPECT_GE(s.radius95_coverage, 0.90) << drive;
+    EXPECT_LE(s.radius95_coverage, 0.99) << drive;
+    EXPECT_LE(s.median_error_m, 1.2 * map_error_m) << drive;
+  }
+}
+
+}  // namespace
+}  // namespace sightfix
