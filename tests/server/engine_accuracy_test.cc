@@ -32,18 +32,12 @@
 #include "indexer/builder/map_builder.h"
 #include "indexer/map/drive_manifest.h"
 #include "server/engine/localizer.h"
+#include "tests/lib/accuracy_seed.h"
 
 namespace sightfix {
 namespace {
 
 namespace fs = std::filesystem;
-
-// The demo town's seed: SIGHTFIX_ACCURACY_SEED, 41 when unset (CI's). Another seed checks that
-// the regression bounds below were not fitted to seed 41's draws.
-int TownSeed() {
-  const char* s = std::getenv("SIGHTFIX_ACCURACY_SEED");
-  return s != nullptr && *s != '\0' ? std::atoi(s) : 41;
-}
 
 class EngineAccuracyTest : public ::testing::Test {
  protected:
@@ -55,7 +49,7 @@ class EngineAccuracyTest : public ::testing::Test {
     fs::remove_all(root_);
     demo::DemoOptions town;
     town.out_dir = root_ + "/town";
-    town.seed = TownSeed();
+    town.seed = AccuracyTownSeed();
     town.world = demo::World::kClean;  // the regression bounds below were measured on it
     std::printf("demo town seed %llu\n", static_cast<unsigned long long>(town.seed));
     town.route_length_m = 300;
@@ -285,7 +279,7 @@ TEST_F(EngineAccuracyTest, ForeignTownGetsNoConfidentFix) {
   ASSERT_NE(localizer_, nullptr);
   demo::DemoOptions other;  // same datum, another seed: a place the map has never seen
   other.out_dir = root_ + "/foreign";
-  other.seed = TownSeed() + 1;
+  other.seed = AccuracyTownSeed() + 1;
   other.world = demo::World::kClean;
   other.route_length_m = 150;
   ASSERT_TRUE(demo::GenerateDemoTown(other).ok());

@@ -37,16 +37,12 @@
 #include "indexer/builder/map_builder.h"
 #include "indexer/map/drive_manifest.h"
 #include "server/engine/localizer.h"
+#include "tests/lib/accuracy_seed.h"
 
 namespace sightfix {
 namespace {
 
 namespace fs = std::filesystem;
-
-int TownSeed() {
-  const char* s = std::getenv("SIGHTFIX_ACCURACY_SEED");
-  return s != nullptr && *s != '\0' ? std::atoi(s) : 41;
-}
 
 constexpr const char* kDrives[] = {"query-day", "query-dusk", "query-overcast", "query-night",
                                    "query-offmap"};
@@ -70,7 +66,7 @@ class RealisticTown {
     fs::remove_all(root_);
     demo::DemoOptions town;  // the realistic world, every nuisance group on (the default)
     town.out_dir = root_ + "/town";
-    town.seed = TownSeed();
+    town.seed = AccuracyTownSeed();
     // 600 m: the shortest route whose straight stretches hold the look-alike stretches (twin,
     // terrace, chain shops) besides the off-map side street.
     town.route_length_m = 600;
