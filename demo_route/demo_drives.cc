@@ -87,7 +87,8 @@ Condition OffMapQuery() {
 }
 
 // The realistic world's night: a dark sky with a town's faint glow at the horizon, lit windows,
-// street lamps and the car's low beams; a high-gain exposure (darker, noisier).
+// street lamps, the car's low beams, other vehicles' lamps and their glare; a high-gain exposure
+// (darker, noisier).
 Condition NightQuery(const LightRanges& l) {
   Condition night = Named(kNightDriveName, 5);
   night.look.sky_horizon = {0.07, 0.08, 0.1}, night.look.sky_zenith = {0.03, 0.02, 0.02};
@@ -96,6 +97,7 @@ Condition NightQuery(const LightRanges& l) {
   night.look.window_glow = 1.0;
   night.look.lamp_intensity = l.lamp_intensity;
   night.look.headlight_intensity = l.headlight_intensity;
+  night.look.vehicle_lamps = true;
   night.exposure = 0.85, night.noise_sigma = 7.0, night.blur_sigma = 0.6, night.jpeg_quality = 75;
   night.start_offset_s = l.night_offset_s;
   return night;

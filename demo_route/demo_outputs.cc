@@ -9,6 +9,7 @@
 #include <opencv2/imgproc.hpp>
 
 #include "demo_route/look_alikes.h"
+#include "demo_route/vehicle_lights.h"
 #include "indexer/base/iso_time.h"
 #include "indexer/builder/exif_gps.h"
 #include "indexer/builder/geoid.h"
@@ -254,7 +255,8 @@ nlohmann::json TownLightJson(const LightRanges& l) {
           {"lit_window_seed", "HashSeed(facade seed, 0x6c6974) per building"},
           {"lamp_intensity", l.lamp_intensity},
           {"headlight_intensity", l.headlight_intensity},
-          {"movers_cast_shadows", false}};
+          {"movers_cast_shadows", false},
+          {"vehicle_lamps", VehicleLampsJson(VehicleLampModel{})}};
 }
 
 std::vector<double> FrameTimesOf(const std::vector<Frame>& frames) {

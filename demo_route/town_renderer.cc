@@ -14,6 +14,7 @@
 #include "demo_route/random.h"
 #include "demo_route/scene_shading.h"
 #include "demo_route/sun_shadow.h"
+#include "demo_route/vehicle_lights.h"
 
 namespace sightfix::demo {
 namespace {
@@ -414,7 +415,13 @@ cv::Mat TownScene::RenderPinhole(const CameraPose& pose, const cv::Matx33d& k, c
         std::make_unique<Headlights>(pose.position, pose.camera_from_enu.t() * cv::Vec3d(0, 0, 1),
                                      look.headlight_intensity, look.headlight_colour);
   in.headlights = beams.get();
-  return ShadeCanvas(in, vis, k, ss);
+  cv::Mat3f image = ShadeCanvas(in, vis, k, ss);
+  if (look.vehicle_lamps && options.moving_objects && variant < int(movers_.size())) {
+    const VehicleLampModel model;
+    AddLampGlare(VehicleLampsAt(town_.route, movers_[variant], options.time_s, model), pose, k, ss,
+                 vis.depth, model, &image);
+  }
+  return image;
 }
 
 cv::Mat TownScene::Render(const CameraPose& pose, const CameraModel& camera, const Appearance& look,

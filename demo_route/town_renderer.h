@@ -53,6 +53,7 @@ struct Appearance {
   double window_glow = 0;          // times the facades' lit-window light (TownScene's share)
   double lamp_intensity = 0;       // street lamps (StreetLamps::Irradiance)
   double headlight_intensity = 0;  // the camera car's low beams (Headlights)
+  bool vehicle_lamps = false;      // moving vehicles' lamps and their glare (vehicle_lights.h)
   cv::Vec3d lamp_colour{0.62, 0.85, 1.0}, headlight_colour{0.95, 0.97, 1.0};  // BGR
 };
 
