@@ -41,8 +41,9 @@ void AddLampGlare(const std::vector<VehicleLamp>& lamps, const CameraPose& pose,
   for (const VehicleLamp& lamp : lamps) {
     const cv::Vec3d to_camera = pose.position - lamp.position;
     const double d = cv::norm(to_camera);
+    if (d < 1) continue;  // inside the vehicle's own box
     const double off_axis = std::acos(std::clamp(lamp.axis.dot(to_camera) / d, -1.0, 1.0));
-    if (d < 1 || off_axis >= M_PI / 2) continue;  // the camera behind the lamp
+    if (off_axis >= M_PI / 2) continue;  // the camera behind the lamp
     const double spread = off_axis / model.beam_spread_rad;
     const double e = lamp.intensity * std::exp(-0.5 * spread * spread) / (d * d);
     const cv::Vec3d pc = pose.camera_from_enu * (lamp.position - pose.position);

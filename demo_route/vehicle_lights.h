@@ -28,8 +28,8 @@ struct VehicleLamp {
   cv::Vec3d colour;    // BGR
 };
 
-// Lamps of moving vehicles: the share of the glare model's parameters a drive records
-// (town.json's light.vehicle_lamps).
+// The lamps' intensities and their glare's parameters (town.json's light.vehicle_lamps records
+// them).
 struct VehicleLampModel {
   double headlight_intensity = 150;  // towards the beam axis, above the low beam's cut-off
   double tail_intensity = 4;
