@@ -341,7 +341,7 @@ Result<StructureResult> BuildStructure(const std::vector<SurveyView>& views,
   out.center_enu.resize(views.size());
   for (size_t v = 0; v < views.size(); ++v)
     cam_from_enu[v] = views[v].enu_from_camera.t(), out.center_enu[v] = views[v].center_enu;
-  if (!kept.empty()) {
+  if (!kept.empty() && o.ba_max_iterations > 0) {
     const AdjustResult ar = Adjust(views, o, kept, points, cam_from_enu, out.center_enu);
     s.ba_initial_rms_px = ar.initial_rms_px, s.ba_final_rms_px = ar.final_rms_px;
   }

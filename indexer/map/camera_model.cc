@@ -72,6 +72,23 @@ cv::Point2d CameraModel::PixelToNormalized(const cv::Point2d& pixel) const {
 
 namespace {
 
+// The optional uncertainty keys: each a finite number >= 0 where present.
+Status ReadUncertainty(const YAML::Node& fs, CalibrationUncertainty* u) {
+  const std::pair<const char*, double*> keys[] = {{"focal_length_sigma_px", &u->focal_px},
+                                                  {"k1_sigma", &u->k1},
+                                                  {"k2_sigma", &u->k2},
+                                                  {"boresight_sigma_deg", &u->boresight_deg}};
+  for (const auto& [key, out] : keys) {
+    if (!fs[key]) continue;
+    Result<double> v = YamlNumber(fs[key], key);
+    if (!v.ok()) return v.status();
+    if (!std::isfinite(*v) || *v < 0)
+      return Status::InvalidArgument(std::string(key) + " must be a finite number >= 0");
+    *out = *v;
+  }
+  return Status::Ok();
+}
+
 Result<CameraModel> ReadCalibration(const std::string& path) {
   // yaml-cpp, not cv::FileStorage: indexer/map/yaml_file.h says why.
   Result<YAML::Node> doc = LoadYamlFile(path);
@@ -135,6 +152,8 @@ Result<CameraModel> ReadCalibration(const std::string& path) {
       return Status::InvalidArgument(path + ": the rational model (k4..k6) is not supported");
     for (int i = 0; i < std::min(n, 5); ++i) cam.distortion[i] = d[i];
   }
+  Status u = ReadUncertainty(fs, &cam.uncertainty);
+  if (!u.ok()) return fail(u);
   std::string error;
   if (!cam.IsValid(&error)) return Status::InvalidArgument(path + ": " + error);
   return cam;
@@ -162,6 +181,11 @@ Status SaveCameraModel(const CameraModel& cam, const std::string& path) {
          << "fisheye";
     fs << "distortion_coefficients"
        << cv::Mat(1, fisheye ? 4 : 5, CV_64F, const_cast<double*>(cam.distortion.data()));
+    const CalibrationUncertainty& u = cam.uncertainty;
+    if (u.focal_px > 0) fs << "focal_length_sigma_px" << u.focal_px;
+    if (u.k1 > 0) fs << "k1_sigma" << u.k1;
+    if (u.k2 > 0) fs << "k2_sigma" << u.k2;
+    if (u.boresight_deg > 0) fs << "boresight_sigma_deg" << u.boresight_deg;
     return Status::Ok();
   } catch (const cv::Exception& e) {
     return Status::IoError("cannot write " + path + ": " + e.what());

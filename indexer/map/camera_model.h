@@ -21,6 +21,15 @@ namespace sightfix {
 
 enum class LensModel { kPinhole, kFisheye };
 
+// A calibration's own stated 1-sigma uncertainty: optional keys of the file
+// (focal_length_sigma_px, k1_sigma, k2_sigma, boresight_sigma_deg). 0 = not stated: whoever uses
+// it applies its documented default (self_calibration.h for the indexer).
+struct CalibrationUncertainty {
+  double focal_px = 0;       // fx and fy together
+  double k1 = 0, k2 = 0;     // distortion[0], distortion[1]
+  double boresight_deg = 0;  // the camera's mounting rotation against the INS, per axis
+};
+
 struct CameraModel {
   int width_px = 0;
   int height_px = 0;
@@ -28,6 +37,7 @@ struct CameraModel {
   // Pinhole: k1, k2, p1, p2, k3. Fisheye: k1, k2, k3, k4, (unused 0).
   std::array<double, 5> distortion{0, 0, 0, 0, 0};
   LensModel lens = LensModel::kPinhole;
+  CalibrationUncertainty uncertainty;
 
   // Names the bad field in *error when false (non-positive size or focal length, principal
   // point outside the image, non-finite coefficients).

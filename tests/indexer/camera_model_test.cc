@@ -25,7 +25,7 @@ CameraModel Distorted() {
 TEST(CameraModelTest, ProjectMatchesOpenCvProjectPoints) {
   std::mt19937 rng(3);
   std::uniform_real_distribution<double> xy(-0.8, 0.8), z(1, 60);
-  for (const CameraModel& cam : {CameraModel{640, 480, 500, 500, 319.5, 239.5, {}}, Distorted()}) {
+  for (const CameraModel& cam : {CameraModel{640, 480, 500, 500, 319.5, 239.5, {}, LensModel::kPinhole, {}}, Distorted()}) {
     std::vector<cv::Point3d> pts;
     for (int i = 0; i < 400; ++i) {
       const double depth = z(rng);
@@ -88,6 +88,36 @@ TEST(CameraModelTest, ReadsOpenCvCalibrationLayout) {
   EXPECT_DOUBLE_EQ(cam->fx, 520);
   EXPECT_DOUBLE_EQ(cam->distortion[0], -0.1);
   EXPECT_DOUBLE_EQ(cam->distortion[4], 0.0);
+  EXPECT_EQ(cam->uncertainty.focal_px, 0);  // not stated: the consumer's default applies
+}
+
+// The optional uncertainty keys: written only when stated, read back, and refused when negative.
+TEST(CameraModelTest, CalibrationUncertaintyRoundTrip) {
+  const std::string path = ::testing::TempDir() + "/cam_sigma.yml";
+  CameraModel cam = Distorted();
+  cam.uncertainty = {2.5, 0.004, 0.002, 0.3};
+  ASSERT_TRUE(SaveCameraModel(cam, path).ok());
+  Result<CameraModel> loaded = LoadCameraModel(path);
+  ASSERT_TRUE(loaded.ok()) << loaded.status().ToString();
+  EXPECT_DOUBLE_EQ(loaded->uncertainty.focal_px, 2.5);
+  EXPECT_DOUBLE_EQ(loaded->uncertainty.k1, 0.004);
+  EXPECT_DOUBLE_EQ(loaded->uncertainty.k2, 0.002);
+  EXPECT_DOUBLE_EQ(loaded->uncertainty.boresight_deg, 0.3);
+  std::FILE* f = std::fopen(path.c_str(), "a");
+  ASSERT_NE(f, nullptr);
+  std::fputs("k1_sigma_extra: 1\n", f);
+  std::fclose(f);
+  ASSERT_TRUE(LoadCameraModel(path).ok());  // unknown keys stay ignored, as OpenCV's own
+  const std::string bad = ::testing::TempDir() + "/cam_sigma_bad.yml";
+  cam.uncertainty.k1 = -1;  // SaveCameraModel leaves a negative out: write it by hand
+  ASSERT_TRUE(SaveCameraModel(cam, bad).ok());
+  f = std::fopen(bad.c_str(), "a");
+  ASSERT_NE(f, nullptr);
+  std::fputs("k1_sigma: -0.5\n", f);
+  std::fclose(f);
+  Result<CameraModel> refused = LoadCameraModel(bad);
+  EXPECT_EQ(refused.status().code(), StatusCode::kInvalidArgument);
+  EXPECT_NE(refused.status().message().find("k1_sigma"), std::string::npos);
 }
 
 }  // namespace

@@ -1,0 +1,496 @@
+#include "indexer/builder/self_calibration.h"
+
+#include <ceres/ceres.h>
+#include <ceres/rotation.h>
+
+#include <Eigen/Sparse>
+#include <Eigen/SparseCholesky>
+#include <algorithm>
+#include <boost/math/distributions/chi_squared.hpp>
+#include <chrono>
+#include <cmath>
+#include <numeric>
+
+namespace sightfix {
+
+const char* const kCalibrationParameterNames[kCalibrationParameters] = {
+    "focal_px", "k1", "k2", "boresight_x_rad", "boresight_y_rad", "boresight_z_rad"};
+
+namespace {
+
+constexpr double kDegToRad = M_PI / 180.0;
+
+// Pixel residual of one observation, over pixel sigma. Blocks: intrinsics (f, k1, k2),
+// boresight (angle-axis), the view's rotation correction (angle-axis), its centre, the point.
+struct PixelCost {
+  PixelCost(const cv::Matx33d& r0, const cv::Point2d& pixel, const CameraModel& c, double sigma)
+      : r0_(r0),
+        pixel_(pixel),
+        aspect_(c.fy / c.fx),
+        cx_(c.cx),
+        cy_(c.cy),
+        p1_(c.distortion[2]),
+        p2_(c.distortion[3]),
+        k3_(c.distortion[4]),
+        inv_sigma_(1 / sigma) {}
+
+  template <typename T>
+  bool operator()(const T* intr, const T* bore, const T* delta, const T* center, const T* point,
+                  T* residual) const {
+    const T d[3] = {point[0] - center[0], point[1] - center[1], point[2] - center[2]};
+    T p0[3], p1[3], p[3];
+    for (int i = 0; i < 3; ++i)
+      p0[i] = T(r0_(i, 0)) * d[0] + T(r0_(i, 1)) * d[1] + T(r0_(i, 2)) * d[2];
+    ceres::AngleAxisRotatePoint(delta, p0, p1);
+    ceres::AngleAxisRotatePoint(bore, p1, p);
+    if (p[2] <= T(1e-9)) return false;
+    const T x = p[0] / p[2], y = p[1] / p[2], r2 = x * x + y * y;
+    const T radial = T(1) + r2 * (intr[1] + r2 * (intr[2] + r2 * T(k3_)));
+    const T xd = x * radial + T(2 * p1_) * x * y + T(p2_) * (r2 + T(2) * x * x);
+    const T yd = y * radial + T(p1_) * (r2 + T(2) * y * y) + T(2 * p2_) * x * y;
+    residual[0] = (intr[0] * xd + T(cx_) - T(pixel_.x)) * T(inv_sigma_);
+    residual[1] = (intr[0] * T(aspect_) * yd + T(cy_) - T(pixel_.y)) * T(inv_sigma_);
+    return true;
+  }
+
+  cv::Matx33d r0_;
+  cv::Point2d pixel_;
+  double aspect_, cx_, cy_, p1_, p2_, k3_, inv_sigma_;
+};
+
+// Weighted offsets of an N-vector from its centre: w_i (x_i - x0_i); w_i = 0 adds nothing.
+template <int N>
+struct DiagonalPrior {
+  std::array<double, N> centre{}, weight{};
+  template <typename T>
+  bool operator()(const T* x, T* residual) const {
+    for (int i = 0; i < N; ++i) residual[i] = T(weight[i]) * (x[i] - T(centre[i]));
+    return true;
+  }
+};
+
+double Weight(double sigma) { return std::isfinite(sigma) && sigma > 0 ? 1 / sigma : 0; }
+
+cv::Matx33d RotationOf(const double* angle_axis) {
+  double r[9];
+  ceres::AngleAxisToRotationMatrix(angle_axis, ceres::RowMajorAdapter3x3(r));
+  return cv::Matx33d(r);
+}
+
+// The solver's state: every parameter block, owned here so Ceres can point into it.
+struct State {
+  std::array<double, 3> intr{};
+  std::array<double, 3> bore{};
+  std::vector<std::array<double, 3>> delta, center;
+  std::vector<std::array<double, 3>> points;
+  std::vector<ceres::ResidualBlockId> pixel_blocks;
+};
+
+struct Solved {
+  ceres::Solver::Summary summary;
+  double rms_before_px = 0, rms_after_px = 0, chi2 = 0;
+};
+
+// Pixel RMS and chi-square (at pixel sigma) of the observations, without the loss.
+void PixelFigures(ceres::Problem& problem, const State& st, double sigma, double* rms,
+                  double* chi2) {
+  ceres::Problem::EvaluateOptions eo;
+  eo.residual_blocks = st.pixel_blocks;
+  eo.apply_loss_function = false;
+  std::vector<double> r;
+  problem.Evaluate(eo, nullptr, &r, nullptr, nullptr);
+  double sum = 0;
+  for (double v : r) sum += v * v;
+  *chi2 = sum;
+  *rms = r.empty() ? 0 : sigma * std::sqrt(sum / (r.size() / 2));
+}
+
+class Adjustment {
+ public:
+  Adjustment(const CalibrationProblem& p, const SelfCalibrationOptions& o) : p_(p), o_(o) {}
+
+  // Builds the problem with the intrinsics of `held` fixed at the supplied values.
+  void Build(const std::array<bool, kCalibrationParameters>& held) {
+    problem_ = std::make_unique<ceres::Problem>();
+    const CameraModel& c = p_.camera;
+    st_.pixel_blocks.clear();
+    for (int i = 0; i < 3; ++i)
+      if (held[i]) st_.intr[i] = Supplied(i);
+    if (held[kBoresightX]) st_.bore = {0, 0, 0};
+    for (const CalibrationObservation& ob : p_.observations) {
+      auto* cost = new ceres::AutoDiffCostFunction<PixelCost, 2, 3, 3, 3, 3, 3>(
+          new PixelCost(p_.views[ob.view].camera_from_world, ob.pixel, c, o_.pixel_sigma_px));
+      st_.pixel_blocks.push_back(
+          problem_->AddResidualBlock(cost, new ceres::HuberLoss(o_.huber_px / o_.pixel_sigma_px),
+                                     st_.intr.data(), st_.bore.data(), st_.delta[ob.view].data(),
+                                     st_.center[ob.view].data(), st_.points[ob.point].data()));
+    }
+    AddIntrinsicsBlock(held);
+    AddBoresightBlock(held);
+    AddViewBlocks();
+    for (auto& x : st_.points)
+      if (p_.points_fixed && problem_->HasParameterBlock(x.data()))
+        problem_->SetParameterBlockConstant(x.data());
+  }
+
+  void Solve(Solved* out) {
+    ceres::Solver::Options so;
+    so.linear_solver_type = ceres::SPARSE_SCHUR;
+    so.sparse_linear_algebra_library_type = ceres::EIGEN_SPARSE;
+    so.max_num_iterations = o_.max_iterations;
+    so.num_threads = 1;  // the header says why
+    so.logging_type = ceres::SILENT;
+    double chi2;
+    PixelFigures(*problem_, st_, o_.pixel_sigma_px, &out->rms_before_px, &chi2);
+    ceres::Solve(so, problem_.get(), &out->summary);
+    PixelFigures(*problem_, st_, o_.pixel_sigma_px, &out->rms_after_px, &out->chi2);
+  }
+
+  // The six parameters' marginal covariance: H^-1's block by sparse Cholesky (the header).
+  // Held parameters get zero rows and columns. False when H is not positive definite.
+  bool Covariance(const std::array<bool, kCalibrationParameters>& held, cv::Matx<double, 6, 6>* cov,
+                  int* free_parameters) {
+    std::vector<double*> blocks;
+    std::vector<int> column_of;  // calibration parameter of each leading tangent column
+    const bool intr_free = problem_->HasParameterBlock(st_.intr.data()) &&
+                           !problem_->IsParameterBlockConstant(st_.intr.data());
+    if (intr_free) {
+      blocks.push_back(st_.intr.data());
+      for (int i = 0; i < 3; ++i)
+        if (!held[i]) column_of.push_back(i);
+    }
+    if (!problem_->IsParameterBlockConstant(st_.bore.data())) {
+      blocks.push_back(st_.bore.data());
+      for (int i = kBoresightX; i <= kBoresightZ; ++i) column_of.push_back(i);
+    }
+    const int k = static_cast<int>(column_of.size());
+    for (size_t v = 0; v < st_.delta.size(); ++v)
+      for (double* b : {st_.delta[v].data(), st_.center[v].data()})
+        if (problem_->HasParameterBlock(b) && !problem_->IsParameterBlockConstant(b))
+          blocks.push_back(b);
+    for (auto& x : st_.points)
+      if (problem_->HasParameterBlock(x.data()) && !problem_->IsParameterBlockConstant(x.data()))
+        blocks.push_back(x.data());
+    *cov = cv::Matx<double, 6, 6>::zeros();
+    *free_parameters = 0;
+    for (double* b : blocks) *free_parameters += problem_->ParameterBlockTangentSize(b);
+    if (k == 0) return true;
+    ceres::Problem::EvaluateOptions eo;
+    eo.parameter_blocks = blocks;
+    eo.apply_loss_function = true;
+    ceres::CRSMatrix jac;
+    problem_->Evaluate(eo, nullptr, nullptr, nullptr, &jac);
+    using Sparse = Eigen::SparseMatrix<double>;
+    std::vector<Eigen::Triplet<double>> t;
+    t.reserve(jac.values.size());
+    for (int r = 0; r < jac.num_rows; ++r)
+      for (int i = jac.rows[r]; i < jac.rows[r + 1]; ++i)
+        t.emplace_back(r, jac.cols[i], jac.values[i]);
+    Sparse j(jac.num_rows, jac.num_cols);
+    j.setFromTriplets(t.begin(), t.end());
+    const Sparse h = Sparse(j.transpose() * j);
+    Eigen::SimplicialLDLT<Sparse> ldlt(h);
+    if (ldlt.info() != Eigen::Success) return false;
+    Eigen::MatrixXd rhs = Eigen::MatrixXd::Zero(h.rows(), k);
+    for (int i = 0; i < k; ++i) rhs(i, i) = 1;
+    const Eigen::MatrixXd x = ldlt.solve(rhs);
+    if (ldlt.info() != Eigen::Success) return false;
+    for (int a = 0; a < k; ++a)
+      for (int b = 0; b < k; ++b) (*cov)(column_of[a], column_of[b]) = x(a, b);
+    for (int a = 0; a < k; ++a)
+      if (!((*cov)(column_of[a], column_of[a]) > 0)) return false;
+    return true;
+  }
+
+  void Reset() {
+    const CameraModel& c = p_.camera;
+    st_.intr = {c.fx, c.distortion[0], c.distortion[1]};
+    st_.bore = {0, 0, 0};
+    st_.delta.assign(p_.views.size(), {0, 0, 0});
+    st_.center.resize(p_.views.size());
+    for (size_t v = 0; v < p_.views.size(); ++v)
+      st_.center[v] = {p_.views[v].center[0], p_.views[v].center[1], p_.views[v].center[2]};
+    st_.points.resize(p_.points.size());
+    for (size_t i = 0; i < p_.points.size(); ++i)
+      st_.points[i] = {p_.points[i][0], p_.points[i][1], p_.points[i][2]};
+  }
+
+  double Supplied(int i) const {
+    return i == kFocal ? p_.camera.fx : p_.camera.distortion[i == kK1 ? 0 : 1];
+  }
+  const State& state() const { return st_; }
+
+ private:
+  void AddIntrinsicsBlock(const std::array<bool, kCalibrationParameters>& held) {
+    double* b = st_.intr.data();
+    if (!problem_->HasParameterBlock(b)) return;
+    std::vector<int> fixed;
+    for (int i = 0; i < 3; ++i)
+      if (held[i]) fixed.push_back(i);
+    if (fixed.size() == 3) {
+      problem_->SetParameterBlockConstant(b);
+      return;
+    }
+    if (!fixed.empty()) problem_->SetManifold(b, new ceres::SubsetManifold(3, fixed));
+    auto* prior = new DiagonalPrior<3>;
+    for (int i = 0; i < 3; ++i)
+      prior->centre[i] = Supplied(i), prior->weight[i] = held[i] ? 0 : Weight(p_.prior.sigma[i]);
+    problem_->AddResidualBlock(new ceres::AutoDiffCostFunction<DiagonalPrior<3>, 3, 3>(prior),
+                               nullptr, b);
+  }
+
+  void AddBoresightBlock(const std::array<bool, kCalibrationParameters>& held) {
+    double* b = st_.bore.data();
+    if (!problem_->HasParameterBlock(b)) return;
+    if (held[kBoresightX]) {
+      problem_->SetParameterBlockConstant(b);
+      return;
+    }
+    auto* prior = new DiagonalPrior<3>;
+    for (int i = 0; i < 3; ++i) prior->weight[i] = Weight(p_.prior.sigma[kBoresightX + i]);
+    problem_->AddResidualBlock(new ceres::AutoDiffCostFunction<DiagonalPrior<3>, 3, 3>(prior),
+                               nullptr, b);
+  }
+
+  void AddViewBlocks() {
+    for (size_t v = 0; v < p_.views.size(); ++v) {
+      double *delta = st_.delta[v].data(), *center = st_.center[v].data();
+      if (!problem_->HasParameterBlock(delta)) continue;
+      const CalibrationView& view = p_.views[v];
+      if (view.attitude_sigma_rad == 0) problem_->SetParameterBlockConstant(delta);
+      if (view.center_sigma_m == 0) problem_->SetParameterBlockConstant(center);
+      auto* att = new DiagonalPrior<3>;
+      att->weight.fill(Weight(view.attitude_sigma_rad));
+      if (att->weight[0] > 0)
+        problem_->AddResidualBlock(new ceres::AutoDiffCostFunction<DiagonalPrior<3>, 3, 3>(att),
+                                   nullptr, delta);
+      else
+        delete att;
+      auto* pos = new DiagonalPrior<3>;
+      pos->weight.fill(Weight(view.center_sigma_m));
+      for (int i = 0; i < 3; ++i) pos->centre[i] = view.center[i];
+      if (pos->weight[0] > 0)
+        problem_->AddResidualBlock(new ceres::AutoDiffCostFunction<DiagonalPrior<3>, 3, 3>(pos),
+                                   nullptr, center);
+      else
+        delete pos;
+    }
+  }
+
+  const CalibrationProblem& p_;
+  const SelfCalibrationOptions& o_;
+  State st_;
+  std::unique_ptr<ceres::Problem> problem_;
+};
+
+Status CheckProblem(const CalibrationProblem& p, const SelfCalibrationOptions& o) {
+  std::string error;
+  if (!o.Validate(&error)) return Status::InvalidArgument(error);
+  if (p.camera.lens != LensModel::kPinhole)
+    return Status::InvalidArgument("self-calibration models pinhole lenses only");
+  if (!p.camera.IsValid(&error)) return Status::InvalidArgument(error);
+  for (double s : p.prior.sigma)
+    if (!(s >= 0)) return Status::InvalidArgument("prior sigmas must be >= 0 (inf: free)");
+  if (p.observations.size() < 10)
+    return Status::InvalidArgument("self-calibration needs at least 10 observations");
+  for (const CalibrationObservation& ob : p.observations)
+    if (ob.view < 0 || ob.view >= static_cast<int>(p.views.size()) || ob.point < 0 ||
+        ob.point >= static_cast<int>(p.points.size()))
+      return Status::InvalidArgument("an observation names a view or point that does not exist");
+  return Status::Ok();
+}
+
+// The chi-square move test (the header): estimate minus supplied value against P0 - P.
+void MoveTest(const CalibrationProblem& p, const SelfCalibrationOptions& o,
+              const std::array<double, kCalibrationParameters>& value, CalibrationEstimate* e) {
+  std::vector<int> idx;
+  for (int i = 0; i < kCalibrationParameters; ++i)
+    if (e->estimated[i] && std::isfinite(p.prior.sigma[i]) && p.prior.sigma[i] > 0)
+      idx.push_back(i);
+  e->move_dof = static_cast<int>(idx.size());
+  if (idx.empty()) return;
+  const int n = e->move_dof;
+  cv::Mat d(n, 1, CV_64F), c(n, n, CV_64F);
+  for (int a = 0; a < n; ++a) {
+    d.at<double>(a) = value[idx[a]];
+    for (int b = 0; b < n; ++b)
+      c.at<double>(a, b) = (a == b ? p.prior.sigma[idx[a]] * p.prior.sigma[idx[a]] : 0) -
+                           e->covariance(idx[a], idx[b]);
+  }
+  e->move_chi2 = cv::Mat(d.t() * c.inv(cv::DECOMP_SVD) * d).at<double>(0);
+  const boost::math::chi_squared chi(n);
+  e->move_alarm = e->move_chi2 > boost::math::quantile(chi, o.alarm_probability);
+}
+
+}  // namespace
+
+CalibrationPrior PriorOf(const CameraModel& c) {
+  const CalibrationUncertainty& u = c.uncertainty;
+  CalibrationPrior p;
+  p.sigma[kFocal] = u.focal_px > 0 ? u.focal_px : 0.01 * c.fx;
+  p.sigma[kK1] = u.k1 > 0 ? u.k1 : 0.03;
+  p.sigma[kK2] = u.k2 > 0 ? u.k2 : (c.distortion[1] != 0 ? 0.01 : 0.0);
+  const double b = (u.boresight_deg > 0 ? u.boresight_deg : 0.5) * kDegToRad;
+  p.sigma[kBoresightX] = p.sigma[kBoresightY] = p.sigma[kBoresightZ] = b;
+  return p;
+}
+
+bool SelfCalibrationOptions::Validate(std::string* error) const {
+  auto fail = [&](const char* m) {
+    if (error) *error = m;
+    return false;
+  };
+  if (!(pixel_sigma_px > 0) || !(huber_px > 0)) return fail("pixel_sigma_px, huber_px must be > 0");
+  if (max_iterations < 1) return fail("max_iterations must be >= 1");
+  if (!(keep_prior_ratio > 0 && keep_prior_ratio <= 1))
+    return fail("keep_prior_ratio must be within (0, 1]");
+  if (!(alarm_probability > 0 && alarm_probability < 1))
+    return fail("alarm_probability must be within (0, 1)");
+  if (max_points_per_view < 1) return fail("max_points_per_view must be >= 1");
+  return tracks.Validate(error);
+}
+
+cv::Matx33d CalibrationEstimate::boresight() const { return RotationOf(boresight_rad.val); }
+
+Result<CalibrationEstimate> SolveCalibration(const CalibrationProblem& p,
+                                             const SelfCalibrationOptions& o) {
+  Status ok = CheckProblem(p, o);
+  if (!ok.ok()) return ok;
+  const auto t0 = std::chrono::steady_clock::now();
+  Adjustment adj(p, o);
+  std::array<bool, kCalibrationParameters> held{};
+  for (int i = 0; i < kCalibrationParameters; ++i) held[i] = p.prior.sigma[i] == 0;
+  // The boresight is one block: held only as a whole.
+  const bool bore_held = held[kBoresightX] && held[kBoresightY] && held[kBoresightZ];
+  held[kBoresightX] = held[kBoresightY] = held[kBoresightZ] = bore_held;
+  CalibrationEstimate e;
+  Solved s;
+  cv::Matx<double, 6, 6> cov;
+  int free_parameters = 0;
+  // Solve; hold the parameters the data do not improve and solve once more (the header).
+  for (int pass = 0; pass < 2; ++pass) {
+    adj.Reset();
+    adj.Build(held);
+    adj.Solve(&s);
+    if (pass == 0) e.rms_before_px = s.rms_before_px;
+    if (!adj.Covariance(held, &cov, &free_parameters))
+      return Status(StatusCode::kFailedPrecondition,
+                    "self-calibration: the calibration is not observable (singular system)");
+    bool changed = false;
+    for (int i = kFocal; i <= kK2; ++i) {
+      const double prior = p.prior.sigma[i];
+      if (held[i] || !std::isfinite(prior)) continue;
+      if (std::sqrt(cov(i, i)) / prior > o.keep_prior_ratio) held[i] = changed = true;
+    }
+    if (!bore_held && std::isfinite(p.prior.sigma[kBoresightX])) {
+      double worst = 0;
+      for (int i = kBoresightX; i <= kBoresightZ; ++i)
+        worst = std::max(worst, std::sqrt(cov(i, i)) / p.prior.sigma[i]);
+      if (worst > o.keep_prior_ratio && !held[kBoresightX])
+        held[kBoresightX] = held[kBoresightY] = held[kBoresightZ] = changed = true;
+    }
+    if (!changed) break;
+  }
+  const State& st = adj.state();
+  e.supplied = p.camera;
+  e.refined = p.camera;
+  e.refined.fx = st.intr[0];
+  e.refined.fy = st.intr[0] * p.camera.fy / p.camera.fx;
+  e.refined.distortion[0] = st.intr[1];
+  e.refined.distortion[1] = st.intr[2];
+  e.boresight_rad = cv::Vec3d(st.bore[0], st.bore[1], st.bore[2]);
+  e.covariance = cov;
+  std::array<double, kCalibrationParameters> move{};
+  for (int i = 0; i < kCalibrationParameters; ++i) {
+    e.prior_sigma[i] = p.prior.sigma[i];
+    e.estimated[i] = !held[i];
+    e.posterior_sigma[i] = held[i] ? p.prior.sigma[i] : std::sqrt(cov(i, i));
+    move[i] = i < 3 ? st.intr[i] - adj.Supplied(i) : st.bore[i - 3];
+  }
+  MoveTest(p, o, move, &e);
+  CalibrationUncertainty& u = e.refined.uncertainty;
+  u.focal_px = e.posterior_sigma[kFocal], u.k1 = e.posterior_sigma[kK1];
+  u.k2 = e.posterior_sigma[kK2];
+  u.boresight_deg = std::max({e.posterior_sigma[kBoresightX], e.posterior_sigma[kBoresightY],
+                              e.posterior_sigma[kBoresightZ]}) /
+                    kDegToRad;
+  e.rms_after_px = s.rms_after_px;
+  e.observations = static_cast<int>(p.observations.size());
+  e.views = static_cast<int>(p.views.size());
+  e.points = static_cast<int>(p.points.size());
+  e.variance_factor = s.chi2 / std::max(1, 2 * e.observations - free_parameters);
+  const cv::Matx33d b = e.boresight();
+  for (size_t v = 0; v < p.views.size(); ++v) {
+    e.camera_from_world.push_back(b * RotationOf(st.delta[v].data()) *
+                                  p.views[v].camera_from_world);
+    e.centers.emplace_back(st.center[v][0], st.center[v][1], st.center[v][2]);
+  }
+  for (const auto& x : st.points) e.adjusted_points.emplace_back(x[0], x[1], x[2]);
+  e.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+  return e;
+}
+
+namespace {
+
+// Points seen most often first, each kept while one of its views has fewer than `cap`.
+std::vector<int> PickPoints(const std::vector<StructurePoint>& pts, size_t views, int cap) {
+  std::vector<int> order(pts.size());
+  std::iota(order.begin(), order.end(), 0);
+  std::stable_sort(order.begin(), order.end(), [&](int a, int b) {
+    return pts[a].observations.size() > pts[b].observations.size();
+  });
+  std::vector<int> taken(views, 0), kept;
+  for (int i : order) {
+    bool wanted = false;
+    for (const auto& ob : pts[i].observations) wanted |= taken[ob.first] < cap;
+    if (!wanted) continue;
+    kept.push_back(i);
+    for (const auto& ob : pts[i].observations) ++taken[ob.first];
+  }
+  std::sort(kept.begin(), kept.end());
+  return kept;
+}
+
+}  // namespace
+
+Result<CalibrationEstimate> SelfCalibrateDrive(const std::vector<SurveyView>& views,
+                                               const CameraModel& camera,
+                                               const CalibrationPrior& prior,
+                                               const SelfCalibrationOptions& o) {
+  std::string error;
+  if (!o.Validate(&error)) return Status::InvalidArgument(error);
+  if (views.size() < 3)
+    return Status(StatusCode::kFailedPrecondition, "self-calibration needs 3 views or more");
+  Result<StructureResult> structure = BuildStructure(views, o.tracks);
+  if (!structure.ok()) return structure.status();
+  const std::vector<int> picked =
+      PickPoints(structure->points, views.size(), o.max_points_per_view);
+  if (picked.size() < 30)
+    return Status(StatusCode::kFailedPrecondition,
+                  "self-calibration: only " + std::to_string(picked.size()) + " points");
+  CalibrationProblem p;
+  p.camera = camera;
+  p.prior = prior;
+  for (const SurveyView& v : views) {
+    CalibrationView view;
+    view.camera_from_world = v.enu_from_camera.t();
+    view.center = v.center_enu;
+    view.center_sigma_m = v.sigma_h_m;
+    view.attitude_sigma_rad =
+        v.sigma_h_m > 0
+            ? (v.attitude_sigma_deg > 0 ? v.attitude_sigma_deg : o.tracks.attitude_sigma_deg) *
+                  kDegToRad
+            : 0;
+    p.views.push_back(view);
+  }
+  for (int i : picked) {
+    const StructurePoint& sp = structure->points[i];
+    const int id = static_cast<int>(p.points.size());
+    p.points.push_back(sp.enu);
+    for (const auto& [v, k] : sp.observations)
+      p.observations.push_back({v, id, cv::Point2d(views[v].features->keypoints[k].pt)});
+  }
+  return SolveCalibration(p, o);
+}
+
+}  // namespace sightfix
