@@ -1,6 +1,8 @@
 // sightfix-indexer: turns surveys into a map (`build`) and shows what a map holds (`inspect`),
 // whether it is whole (`verify`) and where it covers (`coverage`).
+#include <algorithm>
 #include <boost/program_options.hpp>
+#include <cmath>
 #include <cstdio>
 #include <fstream>
 #include <iostream>
@@ -44,7 +46,63 @@ nlohmann::json SummaryJson(const sightfix::BuildSummary& s) {
             {"local_features", s.local_feature_bytes},
             {"points", s.point_bytes},
             {"tile_file", s.tile_file_bytes}}},
-          {"structure", sightfix::StructureSummaryJson(s.structure)}};
+          {"structure", sightfix::StructureSummaryJson(s.structure)},
+          {"cameras", s.cameras}};
+}
+
+// One line per calibration file: what self-calibration made of it (map_builder.h).
+std::string CalibrationLines(const nlohmann::json& cameras) {
+  std::string out;
+  char line[512];
+  for (const nlohmann::json& c : cameras) {
+    const std::string file = c.value("file", "?");
+    const nlohmann::json& cal = c.at("calibration");
+    if (cal.value("status", "") != "refined") {
+      out += "camera " + file + ": as supplied (" + cal.value("why", "") + ")\n";
+      continue;
+    }
+    const nlohmann::json &sup = c.at("supplied"), &ref = cal.at("refined");
+    const auto sigma = cal.at("posterior_sigma").get<std::vector<double>>();
+    const auto est = cal.at("estimated").get<std::vector<bool>>();
+    const auto b = cal.at("boresight_rad").get<std::vector<double>>();
+    const double f0 = sup.at("fx").get<double>(), f1 = ref.at("fx").get<double>();
+    const double k10 = sup.at("distortion")[0].get<double>(), k11 = ref.at("distortion")[0];
+    const double k20 = sup.at("distortion")[1].get<double>(), k21 = ref.at("distortion")[1];
+    constexpr double kDeg = 180 / M_PI;
+    std::snprintf(
+        line, sizeof(line),
+        "camera %s: focal %.2f -> %.2f px (%+.2f %%, sigma %.2f%s), k1 %.4f -> %.4f "
+        "(sigma %.4f%s), k2 %.4f -> %.4f (sigma %.4f%s), boresight %.3f %.3f %.3f deg "
+        "(sigma %.3f%s); move chi-square %.1f of %d dof%s\n",
+        file.c_str(), f0, f1, 100 * (f1 / f0 - 1), sigma[0], est[0] ? "" : ", held", k10, k11,
+        sigma[1], est[1] ? "" : ", held", k20, k21, sigma[2], est[2] ? "" : ", held", b[0] * kDeg,
+        b[1] * kDeg, b[2] * kDeg, std::max({sigma[3], sigma[4], sigma[5]}) * kDeg,
+        est[3] ? "" : ", held", cal.at("move_chi2").get<double>(), cal.at("move_dof").get<int>(),
+        cal.at("move_alarm").get<bool>() ? ": MOVED BEYOND ITS PRIOR, check the file" : "");
+    out += line;
+  }
+  return out;
+}
+
+// --self-calibration and --calibration-frames (build and plan).
+void AddCalibrationFlags(po::options_description& desc, sightfix::BuildOptions& o,
+                         std::string& mode) {
+  desc.add_options()("self-calibration", po::value(&mode)->default_value("on"),
+                     "on: refine each calibration file's focal length, k1, k2 and boresight over "
+                     "the drive, under the uncertainty the file states (focal_length_sigma_px, "
+                     "k1_sigma, k2_sigma, boresight_sigma_deg; defaults 1 % of fx, 0.03, 0.01, "
+                     "0.5 deg); off: use every file as supplied")(
+      "calibration-frames", po::value(&o.calibration_frames)->default_value(o.calibration_frames),
+      "self-calibration: frames per camera at most (longer drives: evenly spaced runs of 40)");
+}
+
+// -1: go on, else the exit code.
+int TakeCalibrationFlags(const std::string& mode, sightfix::BuildOptions& o) {
+  if (mode != "on" && mode != "off") return Fail("--self-calibration must be on or off", 2);
+  o.self_calibration = mode == "on";
+  std::string error;
+  if (!o.Validate(&error)) return Fail(error, 2);
+  return -1;
 }
 
 constexpr char kBuildHelp[] =
@@ -130,10 +188,13 @@ int Build(int argc, char** argv, bool add) {
                      "WebMercatorQuad zoom of the tiles")(
       "max-features", po::value(&o.features.max_features)->default_value(2000),
       "RootSIFT keypoints kept per image")("overwrite", "replace a map already in MAPDIR");
+  std::string calibration = "on";
+  if (!add) AddCalibrationFlags(desc, o, calibration);
   po::variables_map vm;
   const std::string command = add ? "add" : "build";
   if (int rc = ParseFlags(argc, argv, command, desc, &vm); rc >= 0) return rc;
   if (int rc = TakeSurveyFlags(vm, command, format, o); rc >= 0) return rc;
+  if (int rc = TakeCalibrationFlags(calibration, o); rc >= 0) return rc;
   sightfix::Result<sightfix::BuildSummary> s = add ? sightfix::AddToMap(o) : sightfix::BuildMap(o);
   if (!s.ok()) return FailStatus(s.status(), "\nnothing was written");
   for (const std::string& why : s->skipped) std::fprintf(stderr, "skipped: %s\n", why.c_str());
@@ -154,6 +215,7 @@ int Build(int argc, char** argv, bool add) {
       s->structure_s, s->write_s, s->global_code_bytes, s->local_feature_bytes, s->point_bytes,
       s->tile_file_bytes, s->structure.observations, s->structure.ba_initial_rms_px,
       s->structure.ba_final_rms_px);
+  std::fputs(CalibrationLines(s->cameras).c_str(), stdout);
   return 0;
 }
 
@@ -223,9 +285,12 @@ int Plan(int argc, char** argv) {
       "margin-m", po::value(&o.margin_m)->default_value(o.margin_m),
       "context frames: those within this distance of a tile's bounds join its structure")(
       "overwrite", "the plan replaces the map already in MAPDIR when published");
+  std::string calibration = "on";
+  AddCalibrationFlags(desc, o, calibration);
   po::variables_map vm;
   if (int rc = ParseFlags(argc, argv, "plan", desc, &vm); rc >= 0) return rc;
   if (int rc = TakeSurveyFlags(vm, "plan", format, o); rc >= 0) return rc;
+  if (int rc = TakeCalibrationFlags(calibration, o); rc >= 0) return rc;
   if (shards < 1) return Fail("--shards must be >= 1", 2);
   if (plan.empty()) plan = sightfix::DefaultPlanPath(o.map_dir);
   auto s = sightfix::PlanStep(o, plan, shards);

@@ -46,6 +46,9 @@ struct Survey {
   std::vector<CameraModel> cameras;        // distinct calibrations
   std::vector<int> camera_of_row;
   std::vector<LocalFeatures> features;
+  // Per camera: the boresight self-calibration found (camera as mounted from the camera the INS
+  // attitude implies); empty = identity for all.
+  std::vector<cv::Matx33d> boresight;
 };
 
 // Where row i came from, as a message prefix ("<drive.csv>:<line>: "), or "".

@@ -46,7 +46,8 @@ class RunStaging {
 // The four steps in order; *staging learns the plan id as soon as there is one.
 Result<BuildSummary> RunSteps(const BuildOptions& o, RunStaging* staging) {
   PlanSummary planned;
-  Result<json> plan_json = PlanImpl(o, 1, &planned);
+  FeatureCache cache;
+  Result<json> plan_json = PlanImpl(o, 1, &planned, &cache);
   if (!plan_json.ok()) return plan_json.status();
   staging->SetPlanId(planned.plan_id);
   if (Status st = WriteJson(o.env, staging->PlanPath(), *plan_json); !st.ok()) return st;
@@ -57,7 +58,6 @@ Result<BuildSummary> RunSteps(const BuildOptions& o, RunStaging* staging) {
                   1,
                   planned.map_version};
   const StepOptions step{o.jobs, o.progress, o.env};
-  FeatureCache cache;
   Result<TrainSummary> trained = TrainImpl(o, &cache);
   if (!trained.ok()) return trained.status();
   Say(o, "matching neighbouring frames, triangulating, bundle adjustment, tile by tile");

@@ -20,14 +20,16 @@ struct ShardContext {
   const Plan* plan;
   BuildOptions o;
   const StagedModel* staged;
-  std::vector<CameraModel> cameras;
+  std::vector<CameraModel> cameras;  // as self-calibration left them (staging.h)
+  std::vector<cv::Matx33d> boresight;
   FeatureCache* cache;  // may be null
   fs::path stage;       // MAPDIR/staging/<plan id>
 };
 
-// The plan's calibrations, each checked against the SHA-256 the plan recorded.
-Result<std::vector<CameraModel>> PlanCameras(const Plan& plan) {
-  std::vector<CameraModel> cameras;
+// The plan's calibrations, each checked against the SHA-256 the plan recorded, refined where
+// self-calibration refined them.
+Result<std::vector<CalibratedCamera>> PlanCameras(const Plan& plan) {
+  std::vector<CalibratedCamera> cameras;
   for (const json& c : plan.j.at("cameras")) {
     const std::string path = (fs::path(plan.drive) / c.at("file").get<std::string>()).string();
     Result<std::string> sha = Sha256OfFile(path);
@@ -36,7 +38,10 @@ Result<std::vector<CameraModel>> PlanCameras(const Plan& plan) {
       return Status(StatusCode::kFailedPrecondition, path + " changed since the plan was made");
     Result<CameraModel> cam = LoadCameraModel(path);
     if (!cam.ok()) return cam.status();
-    cameras.push_back(*cam);
+    Result<CalibratedCamera> used = CalibratedCameraOf(c, *cam);
+    if (!used.ok())
+      return Status::InvalidArgument(path + " in the plan: " + used.status().message());
+    cameras.push_back(*used);
   }
   return cameras;
 }
@@ -64,6 +69,7 @@ Result<Survey> TileSurvey(const ShardContext& c, const std::vector<int>& all,
   const json& rows = c.plan->j.at("rows");
   Survey s;
   s.cameras = c.cameras;
+  s.boresight = c.boresight;
   sha->resize(all.size());
   for (size_t i = 0; i < all.size(); ++i) {
     if (all[i] < 0 || static_cast<size_t>(all[i]) >= rows.size())
@@ -110,7 +116,12 @@ std::vector<Status> ExtractTileFeatures(const ShardContext& c, const std::vector
     if (c.cache) {
       auto hit = c.cache->find(s->rows[i].image);
       if (hit != c.cache->end()) {
+        // Extracted under the supplied calibration: normalized again under the one in use.
         s->features[i] = hit->second;
+        const CameraModel& cam = c.cameras[s->camera_of_row[i]];
+        LocalFeatures& f = s->features[i];
+        for (size_t k = 0; k < f.keypoints.size(); ++k)
+          f.normalized[k] = cam.PixelToNormalized(f.keypoints[k].pt);
         return;
       }
     }
@@ -128,6 +139,7 @@ Result<std::vector<int>> KeepGoodFrames(const ShardContext& c, const std::vector
   std::vector<int> own_local;
   Survey kept;
   kept.cameras = std::move(s->cameras);
+  kept.boresight = std::move(s->boresight);
   const std::set<int> own_set(own.begin(), own.end());
   for (size_t i = 0; i < all.size(); ++i) {
     if (!status[i].ok()) {
@@ -224,11 +236,12 @@ Result<ShardSummary> BuildTilesImpl(const Plan& plan, int shard, int shards,
   const Stopwatch total(step.env);
   Result<StagedModel> staged = LoadStagedModel(step.env, plan.map_dir);
   if (!staged.ok()) return staged.status();
-  Result<std::vector<CameraModel>> cameras = PlanCameras(plan);
+  Result<std::vector<CalibratedCamera>> cameras = PlanCameras(plan);
   if (!cameras.ok()) return cameras.status();
-  const ShardContext c{&plan,    OptionsOf(plan, step),
-                       &*staged, std::move(cameras).value(),
-                       cache,    StagingDir(plan.map_dir) / plan.id};
+  ShardContext c{
+      &plan, OptionsOf(plan, step), &*staged, {}, {}, cache, StagingDir(plan.map_dir) / plan.id};
+  for (const CalibratedCamera& cam : *cameras)
+    c.cameras.push_back(cam.camera), c.boresight.push_back(cam.boresight);
   ShardSummary summary;
   summary.shard = shard;
   summary.shards = shards;

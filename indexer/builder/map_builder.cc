@@ -171,6 +171,8 @@ std::vector<SurveyView> Views(const Survey& s, const EnuFrame& enu) {
   for (size_t i = 0; i < s.rows.size(); ++i) {
     SurveyView v;
     v.enu_from_camera = EnuFromCamera(s.rows[i].attitude);
+    if (!s.boresight.empty())
+      v.enu_from_camera = v.enu_from_camera * s.boresight[s.camera_of_row[i]].t();
     v.center_enu = enu.ToEnu(s.rows[i].position);
     v.sigma_h_m = s.rows[i].sigma_h_m;
     v.focal_px = 0.5 * (s.cameras[s.camera_of_row[i]].fx + s.cameras[s.camera_of_row[i]].fy);
@@ -365,6 +367,8 @@ bool BuildOptions::Validate(std::string* error) const {
   if (!features.Validate(&e)) return fail("features: " + e);
   if (!descriptor.Validate(&e)) return fail("descriptor: " + e);
   if (!structure.Validate(&e)) return fail("structure: " + e);
+  if (calibration_frames < 3) return fail("calibration_frames must be >= 3");
+  if (!calibration.Validate(&e)) return fail("calibration: " + e);
   return true;
 }
 

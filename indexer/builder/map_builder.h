@@ -23,6 +23,7 @@
 
 #include "indexer/base/env.h"
 #include "indexer/base/status.h"
+#include "indexer/builder/self_calibration.h"
 #include "indexer/builder/structure.h"
 #include "indexer/builder/survey_source.h"
 #include "indexer/map/tile_key.h"
@@ -60,6 +61,14 @@ struct BuildOptions {
   FeatureOptions features;
   GlobalDescriptorOptions descriptor;
   StructureOptions structure;
+  // Self-calibration (self_calibration.h): each calibration file's focal length, k1, k2 and
+  // boresight refined once over the drive before any tile, under the priors the file states (or
+  // the documented defaults). Off: every camera as supplied.
+  bool self_calibration = true;
+  // At most this many frames per camera take part: all of a shorter drive, else evenly spaced
+  // runs of 40 consecutive frames (about 0.4 s of adjustment and 1 MB of features per frame).
+  int calibration_frames = 400;
+  SelfCalibrationOptions calibration;
   // Names the bad field in *error.
   bool Validate(std::string* error) const;
 };
@@ -75,6 +84,9 @@ struct BuildSummary {
   // Bytes per image on disk, by part (averages over the map).
   double global_code_bytes = 0, local_feature_bytes = 0, point_bytes = 0, tile_file_bytes = 0;
   StructureSummary structure;
+  // Per calibration file: what the survey supplied and what self-calibration made of it (the
+  // plan's camera entries, staging.h CalibrateSurveyCameras).
+  nlohmann::json cameras = nlohmann::json::array();
   bool already_published = false;  // publish: the catalog already is this plan's
 };
 

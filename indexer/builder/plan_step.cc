@@ -155,7 +155,8 @@ json Jobs(const RowsByTile& own, RowsByTile& context, const std::map<TileKey, in
 
 }  // namespace
 
-Result<json> PlanImpl(const BuildOptions& o, int shards, PlanSummary* summary) {
+Result<json> PlanImpl(const BuildOptions& o, int shards, PlanSummary* summary,
+                      FeatureCache* cache) {
   std::string error;
   if (!o.Validate(&error)) return Status::InvalidArgument(error);
   if (shards < 1) return Status::InvalidArgument("shards must be >= 1");
@@ -169,8 +170,10 @@ Result<json> PlanImpl(const BuildOptions& o, int shards, PlanSummary* summary) {
   std::vector<std::string> kept_sha;
   if (Status st = CheckImages(o, &s, &kept_sha, &summary->skipped); !st.ok()) return st;
   if (s.rows.empty()) return Status::InvalidArgument(o.drive_dir + ": no usable survey image");
-  Result<json> cameras = CameraFiles(o, s);
-  if (!cameras.ok()) return cameras.status();
+  Result<json> files = CameraFiles(o, s);
+  if (!files.ok()) return files.status();
+  json cameras = std::move(files).value();
+  if (Status st = CalibrateSurveyCameras(o, s, &cameras, cache); !st.ok()) return st;
   const RowsByTile own = OwnFrames(o, s);
   RowsByTile context = ContextFrames(o, s, own);
   const std::map<TileKey, int> shard_of =
@@ -189,7 +192,7 @@ Result<json> PlanImpl(const BuildOptions& o, int shards, PlanSummary* summary) {
             {"max_features", o.features.max_features},
             {"skip_bad", o.skip_bad},
             {"shards", shards},
-            {"cameras", *cameras},
+            {"cameras", cameras},
             {"rows", rows},
             {"skipped", summary->skipped},
             {"jobs", Jobs(own, context, shard_of)}};

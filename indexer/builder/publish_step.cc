@@ -189,11 +189,10 @@ void FinishCatalog(const PublishContext& c, const StagedModel& staged,
   summary->model_id = staged.id;
   summary->codec = staged.info.at("codec").get<std::string>();
   summary->training_vectors = staged.info.at("training_vectors").get<int>();
-  const json drive{{"drive", c.plan->drive},
-                   {"format", summary->input_format},
-                   {"images", summary->images},
-                   {"skipped", skipped.size()},
-                   {"added", catalog.created_utc}};
+  summary->cameras = c.plan->j.at("cameras");
+  const json drive{{"drive", c.plan->drive},       {"format", summary->input_format},
+                   {"images", summary->images},    {"skipped", skipped.size()},
+                   {"added", catalog.created_utc}, {"cameras", summary->cameras}};
   catalog.provenance = json{
       {"drives", {drive}},
       {"max_features", c.o.features.max_features},

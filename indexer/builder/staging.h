@@ -79,11 +79,31 @@ struct StagedModel {
 // kFailedPrecondition when train has not run or model.json describes another model.
 Result<StagedModel> LoadStagedModel(Env* env, const std::string& map_dir);
 
+// A camera as the plan stores it (pixels; sigma as CalibrationUncertainty), and back.
+json CameraJson(const CameraModel& c);
+Result<CameraModel> CameraOfJson(const json& j);
+// Self-calibration (self_calibration.h) of each calibration file over the whole drive:
+// (*cameras)[i], the plan's entry of camera i, gets "supplied" (the file's camera) and
+// "calibration": status "refined" with the refined camera, boresight, covariance, sigmas, move
+// test and figures, or status "supplied" with why (self-calibration off, too little structure, a
+// fisheye lens). CACHE (may be null) gets the features it extracted. Fails only on I/O.
+Status CalibrateSurveyCameras(const BuildOptions& o, const Survey& s, json* cameras,
+                              FeatureCache* cache);
+// The camera a plan entry says to use: the refined one and its boresight where calibrated,
+// else the supplied one and the identity.
+struct CalibratedCamera {
+  CameraModel camera;
+  cv::Matx33d boresight;  // camera as mounted from the camera the INS attitude implies
+};
+Result<CalibratedCamera> CalibratedCameraOf(const json& entry, const CameraModel& supplied);
+
 // The four steps (map_builder.h), each with what BuildMap shares between them in one process.
 // CACHE (may be null): train fills it with the sample's features, build-tiles takes them from it.
 Result<TrainSummary> TrainImpl(const BuildOptions& o, FeatureCache* cache);
-// The plan as JSON, with its id; *summary filled.
-Result<json> PlanImpl(const BuildOptions& o, int shards, PlanSummary* summary);
+// The plan as JSON, with its id; *summary filled. CACHE (may be null): self-calibration's
+// features.
+Result<json> PlanImpl(const BuildOptions& o, int shards, PlanSummary* summary,
+                      FeatureCache* cache = nullptr);
 Result<ShardSummary> BuildTilesImpl(const Plan& plan, int shard, int shards,
                                     const StepOptions& step, FeatureCache* cache);
 // LOCKED: the caller holds the map's writer lock already.

@@ -43,8 +43,8 @@ struct StructureOptions {
   double max_reproj_px = 2.0;          // per observation, before and after adjustment
   double pixel_sigma_px = 1.0;         // keypoint noise (SIFT, common practice ~1 px)
   double attitude_sigma_deg = 0.1;     // INS attitude prior; drive.csv carries no column for it
-  int ba_max_iterations = 50;  // 0: no adjustment (points as triangulated)
-  int jobs = 0;  // threads for matching and the solver; 0 = all cores
+  int ba_max_iterations = 50;          // 0: no adjustment (points as triangulated)
+  int jobs = 0;                        // threads for matching and the solver; 0 = all cores
   bool Validate(std::string* error) const;
 };
 

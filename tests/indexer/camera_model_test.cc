@@ -25,7 +25,8 @@ CameraModel Distorted() {
 TEST(CameraModelTest, ProjectMatchesOpenCvProjectPoints) {
   std::mt19937 rng(3);
   std::uniform_real_distribution<double> xy(-0.8, 0.8), z(1, 60);
-  for (const CameraModel& cam : {CameraModel{640, 480, 500, 500, 319.5, 239.5, {}, LensModel::kPinhole, {}}, Distorted()}) {
+  for (const CameraModel& cam :
+       {CameraModel{640, 480, 500, 500, 319.5, 239.5, {}, LensModel::kPinhole, {}}, Distorted()}) {
     std::vector<cv::Point3d> pts;
     for (int i = 0; i < 400; ++i) {
       const double depth = z(rng);

@@ -131,7 +131,7 @@ TEST(LocalFeaturesTest, MatchesAgreeWithOpenCvBruteForce) {
 }
 
 TEST(LocalFeaturesTest, RejectsImageThatDoesNotFitCalibration) {
-  CameraModel cam{640, 480, 500, 500, 319.5, 239.5, {}};
+  CameraModel cam{640, 480, 500, 500, 319.5, 239.5, {}, LensModel::kPinhole, {}};
   const cv::Mat img(240, 320, CV_8UC1, cv::Scalar(0));
   Result<LocalFeatures> f = ExtractFeatures(img, &cam, FeatureOptions{});
   ASSERT_FALSE(f.ok());

@@ -18,9 +18,24 @@ TileData SampleTile() {
   t.origin = {44.0, -40.0, 41.0};
   t.model_id = "0123456789abcdef";
   t.map_version = 3;
-  t.cameras.push_back({640, 480, 500, 501, 319.5, 239.5, {-0.1, 0.01, 0.001, -0.001, 0.0}});
-  t.cameras.push_back(
-      {1280, 960, 330, 331, 640.5, 479.5, {0.02, -0.01, 0.004, -0.001, 0.0}, LensModel::kFisheye});
+  t.cameras.push_back({640,
+                       480,
+                       500,
+                       501,
+                       319.5,
+                       239.5,
+                       {-0.1, 0.01, 0.001, -0.001, 0.0},
+                       LensModel::kPinhole,
+                       {}});
+  t.cameras.push_back({1280,
+                       960,
+                       330,
+                       331,
+                       640.5,
+                       479.5,
+                       {0.02, -0.01, 0.004, -0.001, 0.0},
+                       LensModel::kFisheye,
+                       {}});
   for (int i = 0; i < 3; ++i) {
     ReferenceImage r;
     r.id = i;

@@ -24,7 +24,7 @@ TEST(TownPairTest, RecoversKnownRelativePose) {
   o.route_length_m = 150;
   const demo::Town town = demo::BuildTown(o);
   const demo::TownScene scene(town, {demo::VehiclesForVariant(town, 0)});
-  const CameraModel cam{640, 480, 500, 500, 319.5, 239.5, {}};
+  const CameraModel cam{640, 480, 500, 500, 319.5, 239.5, {}, LensModel::kPinhole, {}};
   // On the first (eastbound) street: A in the survey lane, B 1.5 m ahead and 2.5 m to the left,
   // turned 4 degrees left and pitched 1 degree up.
   const cv::Vec3d ca(30, -4.5, 1.5), cb(31.5, -2.0, 1.5);
