@@ -421,7 +421,16 @@ int Inspect(int argc, char** argv) {
   std::printf("%d tiles, %d images, %d points; model %s: %s\n", (*j)["tiles"].get<int>(),
               (*j)["images"].get<int>(), (*j)["points"].get<int>(),
               (*j)["model_id"].get<std::string>().c_str(), (*j)["model"].dump().c_str());
-  std::printf("drives: %s\n", (*j)["drives"].dump().c_str());
+  // Each drive's calibration as build prints it (supplied -> refined), the rest as JSON.
+  nlohmann::json provenance = (*j)["drives"];
+  std::string calibration;
+  if (provenance.is_object() && provenance.contains("drives"))
+    for (nlohmann::json& d : provenance["drives"])
+      if (d.contains("cameras")) {
+        calibration += CalibrationLines(d["cameras"]);
+        d.erase("cameras");
+      }
+  std::printf("drives: %s\n%s", provenance.dump().c_str(), calibration.c_str());
   std::printf(
       "bytes per image: global code %.0f, local features %.0f, points %.0f (tile files %.0f)\n",
       b["global_code"].get<double>(), b["local_features"].get<double>(), b["points"].get<double>(),
