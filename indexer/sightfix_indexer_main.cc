@@ -11,6 +11,7 @@
 
 #include "indexer/base/crash_report.h"
 #include "indexer/base/threads.h"
+#include "indexer/builder/calibration_lines.h"
 #include "indexer/builder/map_builder.h"
 #include "indexer/map/map_inspect.h"
 
@@ -23,77 +24,14 @@ int Fail(const std::string& message, int code = 1) {
   return code;
 }
 
-nlohmann::json SummaryJson(const sightfix::BuildSummary& s) {
-  return {{"images", s.images},
-          {"input_format", s.input_format},
-          {"skipped", s.skipped.size()},
-          {"skipped_rows", s.skipped},
-          {"tiles", s.tiles},
-          {"points", s.points},
-          {"map_version", s.map_version},
-          {"model_id", s.model_id},
-          {"codec", s.codec},
-          {"training_vectors", s.training_vectors},
-          {"seconds", s.seconds},
-          {"images_per_s", s.images_per_s},
-          {"stage_s",
-           {{"features", s.feature_s},
-            {"model", s.model_s},
-            {"structure", s.structure_s},
-            {"write", s.write_s}}},
-          {"bytes_per_image",
-           {{"global_code", s.global_code_bytes},
-            {"local_features", s.local_feature_bytes},
-            {"points", s.point_bytes},
-            {"tile_file", s.tile_file_bytes}}},
-          {"structure", sightfix::StructureSummaryJson(s.structure)},
-          {"cameras", s.cameras}};
-}
-
-// One line per calibration file: what self-calibration made of it (map_builder.h).
-std::string CalibrationLines(const nlohmann::json& cameras) {
-  std::string out;
-  char line[512];
-  for (const nlohmann::json& c : cameras) {
-    const std::string file = c.value("file", "?");
-    const nlohmann::json& cal = c.at("calibration");
-    if (cal.value("status", "") != "refined") {
-      out += "camera " + file + ": as supplied (" + cal.value("why", "") + ")\n";
-      continue;
-    }
-    const nlohmann::json &sup = c.at("supplied"), &ref = cal.at("refined");
-    const auto sigma = cal.at("posterior_sigma").get<std::vector<double>>();
-    const auto est = cal.at("estimated").get<std::vector<bool>>();
-    const auto b = cal.at("boresight_rad").get<std::vector<double>>();
-    const double f0 = sup.at("fx").get<double>(), f1 = ref.at("fx").get<double>();
-    const double k10 = sup.at("distortion")[0].get<double>(), k11 = ref.at("distortion")[0];
-    const double k20 = sup.at("distortion")[1].get<double>(), k21 = ref.at("distortion")[1];
-    constexpr double kDeg = 180 / M_PI;
-    std::snprintf(
-        line, sizeof(line),
-        "camera %s: focal %.2f -> %.2f px (%+.2f %%, sigma %.2f%s), k1 %.4f -> %.4f "
-        "(sigma %.4f%s), k2 %.4f -> %.4f (sigma %.4f%s), boresight %.3f %.3f %.3f deg "
-        "(sigma %.3f%s); move chi-square %.1f of %d dof%s\n",
-        file.c_str(), f0, f1, 100 * (f1 / f0 - 1), sigma[0], est[0] ? "" : ", held", k10, k11,
-        sigma[1], est[1] ? "" : ", held", k20, k21, sigma[2], est[2] ? "" : ", held", b[0] * kDeg,
-        b[1] * kDeg, b[2] * kDeg, std::max({sigma[3], sigma[4], sigma[5]}) * kDeg,
-        est[3] ? "" : ", held", cal.at("move_chi2").get<double>(), cal.at("move_dof").get<int>(),
-        cal.at("move_alarm").get<bool>() ? ": MOVED BEYOND ITS PRIOR, check the file" : "");
-    out += line;
-  }
-  return out;
-}
-
-// --self-calibration and --calibration-frames (build and plan).
+// --self-calibration and --calibration-frames (build and plan; README, "Self-calibration").
 void AddCalibrationFlags(po::options_description& desc, sightfix::BuildOptions& o,
                          std::string& mode) {
   desc.add_options()("self-calibration", po::value(&mode)->default_value("on"),
-                     "on: refine each calibration file's focal length, k1, k2 and boresight over "
-                     "the drive, under the uncertainty the file states (focal_length_sigma_px, "
-                     "k1_sigma, k2_sigma, boresight_sigma_deg; defaults 1 % of fx, 0.03, 0.01, "
-                     "0.5 deg); off: use every file as supplied")(
+                     "on: refine each camera file's focal, k1, k2 and boresight over the drive "
+                     "under the uncertainty it states; off: every file as supplied")(
       "calibration-frames", po::value(&o.calibration_frames)->default_value(o.calibration_frames),
-      "self-calibration: frames per camera at most (longer drives: evenly spaced runs of 40)");
+      "self-calibration: frames per camera at most");
 }
 
 // -1: go on, else the exit code.
@@ -199,7 +137,7 @@ int Build(int argc, char** argv, bool add) {
   if (!s.ok()) return FailStatus(s.status(), "\nnothing was written");
   for (const std::string& why : s->skipped) std::fprintf(stderr, "skipped: %s\n", why.c_str());
   if (vm.count("json")) {
-    std::cout << SummaryJson(*s).dump(2) << "\n";
+    std::cout << sightfix::BuildSummaryJson(*s).dump(2) << "\n";
     return 0;
   }
   if (!s->skipped.empty())
@@ -215,7 +153,7 @@ int Build(int argc, char** argv, bool add) {
       s->structure_s, s->write_s, s->global_code_bytes, s->local_feature_bytes, s->point_bytes,
       s->tile_file_bytes, s->structure.observations, s->structure.ba_initial_rms_px,
       s->structure.ba_final_rms_px);
-  std::fputs(CalibrationLines(s->cameras).c_str(), stdout);
+  std::fputs(sightfix::CalibrationLines(s->cameras).c_str(), stdout);
   return 0;
 }
 
@@ -381,7 +319,7 @@ int Publish(int argc, char** argv) {
   auto s = sightfix::PublishStep(plan, step);
   if (!s.ok()) return FailStatus(s.status(), "\nthe map was not changed");
   if (vm.count("json")) {
-    nlohmann::json j = SummaryJson(*s);
+    nlohmann::json j = sightfix::BuildSummaryJson(*s);
     j["already_published"] = s->already_published;
     std::cout << j.dump(2) << "\n";
     return 0;
@@ -421,16 +359,7 @@ int Inspect(int argc, char** argv) {
   std::printf("%d tiles, %d images, %d points; model %s: %s\n", (*j)["tiles"].get<int>(),
               (*j)["images"].get<int>(), (*j)["points"].get<int>(),
               (*j)["model_id"].get<std::string>().c_str(), (*j)["model"].dump().c_str());
-  // Each drive's calibration as build prints it (supplied -> refined), the rest as JSON.
-  nlohmann::json provenance = (*j)["drives"];
-  std::string calibration;
-  if (provenance.is_object() && provenance.contains("drives"))
-    for (nlohmann::json& d : provenance["drives"])
-      if (d.contains("cameras")) {
-        calibration += CalibrationLines(d["cameras"]);
-        d.erase("cameras");
-      }
-  std::printf("drives: %s\n%s", provenance.dump().c_str(), calibration.c_str());
+  std::fputs(sightfix::DrivesText((*j)["drives"]).c_str(), stdout);
   std::printf(
       "bytes per image: global code %.0f, local features %.0f, points %.0f (tile files %.0f)\n",
       b["global_code"].get<double>(), b["local_features"].get<double>(), b["points"].get<double>(),
@@ -520,7 +449,7 @@ int Retrain(int argc, char** argv) {
   sightfix::Result<sightfix::BuildSummary> s = sightfix::RetrainMap(o);
   if (!s.ok()) return Fail(s.status().ToString() + "\nthe map was not changed", 1);
   if (vm.count("json")) {
-    std::cout << SummaryJson(*s).dump(2) << "\n";
+    std::cout << sightfix::BuildSummaryJson(*s).dump(2) << "\n";
     return 0;
   }
   std::printf(

@@ -339,6 +339,33 @@ Result<int> NextMapVersion(const BuildOptions& o) {
 
 using namespace build_internal;
 
+nlohmann::json BuildSummaryJson(const BuildSummary& s) {
+  return {{"images", s.images},
+          {"input_format", s.input_format},
+          {"skipped", s.skipped.size()},
+          {"skipped_rows", s.skipped},
+          {"tiles", s.tiles},
+          {"points", s.points},
+          {"map_version", s.map_version},
+          {"model_id", s.model_id},
+          {"codec", s.codec},
+          {"training_vectors", s.training_vectors},
+          {"seconds", s.seconds},
+          {"images_per_s", s.images_per_s},
+          {"stage_s",
+           {{"features", s.feature_s},
+            {"model", s.model_s},
+            {"structure", s.structure_s},
+            {"write", s.write_s}}},
+          {"bytes_per_image",
+           {{"global_code", s.global_code_bytes},
+            {"local_features", s.local_feature_bytes},
+            {"points", s.point_bytes},
+            {"tile_file", s.tile_file_bytes}}},
+          {"structure", StructureSummaryJson(s.structure)},
+          {"cameras", s.cameras}};
+}
+
 nlohmann::json StructureSummaryJson(const StructureSummary& st) {
   return {{"pairs", st.pairs},
           {"matches", st.matches},

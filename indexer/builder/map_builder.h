@@ -95,6 +95,8 @@ struct BuildSummary {
 Result<BuildSummary> BuildMap(const BuildOptions& options);
 // The structure figures as JSON (pairs, matches, tracks, observations, bundle adjustment rms).
 nlohmann::json StructureSummaryJson(const StructureSummary& s);
+// The whole summary as JSON (what `build --json` prints).
+nlohmann::json BuildSummaryJson(const BuildSummary& s);
 
 // The build as four steps a batch scheduler can run (DEVELOPERS.md, "Scale-out"). Staging files
 // live in MAPDIR/staging/; the live map is touched only by publish, under the writer lock.
