@@ -34,13 +34,10 @@ void AddCalibrationFlags(po::options_description& desc, sightfix::BuildOptions& 
       "self-calibration: frames per camera at most");
 }
 
-// -1: go on, else the exit code.
+// -1: go on, else the exit code (TakeSurveyFlags validated the rest).
 int TakeCalibrationFlags(const std::string& mode, sightfix::BuildOptions& o) {
-  if (mode != "on" && mode != "off") return Fail("--self-calibration must be on or off", 2);
   o.self_calibration = mode == "on";
-  std::string error;
-  if (!o.Validate(&error)) return Fail(error, 2);
-  return -1;
+  return mode == "on" || mode == "off" ? -1 : Fail("--self-calibration must be on or off", 2);
 }
 
 constexpr char kBuildHelp[] =
