@@ -5,6 +5,7 @@
 
 #include <faiss/Index.h>
 
+#include <map>
 #include <nlohmann/json.hpp>
 #include <opencv2/core.hpp>
 #include <string>
@@ -51,6 +52,13 @@ struct Survey {
   std::vector<cv::Matx33d> boresight;
 };
 
+// Features already extracted in this process (BuildMap), by image name, under the survey's
+// calibrations as supplied.
+using FeatureCache = std::map<std::string, LocalFeatures>;
+
+// The rows ROWS of ALL (calibrations, attitude sigmas, origins too), without features.
+Survey SubSurvey(const Survey& all, const std::vector<int>& rows);
+
 // Where row i came from, as a message prefix ("<drive.csv>:<line>: "), or "".
 std::string Where(const Survey& s, size_t i);
 // Keeps the rows whose status is OK; the first bad one fails the step unless o.skip_bad, then
@@ -60,14 +68,18 @@ Status DropBadRows(const BuildOptions& o, const std::vector<Status>& status, Sur
 // Loads each row's calibration (drive_dir/camera); bad rows fail or, with skip_bad, go to *skipped.
 Status LoadCameras(const BuildOptions& o, Survey* s, std::vector<std::string>* skipped);
 // Reads, decodes and checks every row's image and extracts its features; the same image twice
-// is a bad row. Bad rows as LoadCameras.
-Status ExtractAll(const BuildOptions& o, Survey* s, std::vector<std::string>* skipped);
+// is a bad row. Bad rows as LoadCameras. Rows whose image CACHE (may be null) holds are taken
+// from it as they are: checked when they went in (BuildMap's plan checks every image).
+Status ExtractAll(const BuildOptions& o, Survey* s, std::vector<std::string>* skipped,
+                  const FeatureCache* cache = nullptr);
 std::string ReadFileBytes(const std::string& path);
 // The model from a survey's features (crop views while under min_pq_training); *vectors gets
 // the number of training vectors.
 Result<GlobalDescriptor> TrainModel(const BuildOptions& o, const Survey& s, int* vectors);
 // Every row's code under a model.
 cv::Mat EncodeAll(const GlobalDescriptor& model, const Survey& s);
+// Every row as a structure view in ENU frame `enu` (the boresight applied); features borrowed.
+std::vector<SurveyView> Views(const Survey& s, const EnuFrame& enu);
 // Tracks, triangulation and bundle adjustment; fills the summary's structure figures and time.
 Result<StructureResult> Adjust(const BuildOptions& o, const Survey& s, const EnuFrame& enu,
                                BuildSummary* summary);

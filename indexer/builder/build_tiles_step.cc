@@ -118,10 +118,7 @@ std::vector<Status> ExtractTileFeatures(const ShardContext& c, const std::vector
       if (hit != c.cache->end()) {
         // Extracted under the supplied calibration: normalized again under the one in use.
         s->features[i] = hit->second;
-        const CameraModel& cam = c.cameras[s->camera_of_row[i]];
-        LocalFeatures& f = s->features[i];
-        for (size_t k = 0; k < f.keypoints.size(); ++k)
-          f.normalized[k] = cam.PixelToNormalized(f.keypoints[k].pt);
+        NormalizeKeypoints(&c.cameras[s->camera_of_row[i]], &s->features[i]);
         return;
       }
     }

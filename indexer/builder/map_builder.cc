@@ -102,13 +102,22 @@ std::string ReadFileBytes(const std::string& path) {
   return in ? bytes : std::string();
 }
 
-Status ExtractAll(const BuildOptions& o, Survey* s, std::vector<std::string>* skipped) {
+Status ExtractAll(const BuildOptions& o, Survey* s, std::vector<std::string>* skipped,
+                  const FeatureCache* cache) {
   s->features.resize(s->rows.size());
   std::vector<Status> status(s->rows.size());
-  std::vector<std::string> digest(s->rows.size());
+  std::vector<std::string> digest(s->rows.size());  // empty for cached rows
   std::unique_ptr<Progress> progress;
   if (o.progress) progress = std::make_unique<Progress>("survey images", s->rows.size());
   ParallelFor(static_cast<int>(s->rows.size()), ThreadCount(o.jobs), [&](int i) {
+    if (cache) {
+      auto hit = cache->find(s->rows[i].image);
+      if (hit != cache->end()) {
+        s->features[i] = hit->second;
+        if (progress) progress->Advance();
+        return;
+      }
+    }
     const std::string path = RowName(o, *s, i);
     const std::string bytes = ReadFileBytes(path);
     const cv::Mat img = bytes.empty()
@@ -130,13 +139,26 @@ Status ExtractAll(const BuildOptions& o, Survey* s, std::vector<std::string>* sk
   });
   std::map<std::string, size_t> first_of;  // the same bytes twice: the later row is bad
   for (size_t i = 0; i < s->rows.size(); ++i) {
-    if (!status[i].ok()) continue;
+    if (!status[i].ok() || digest[i].empty()) continue;
     auto [it, fresh] = first_of.emplace(digest[i], i);
     if (!fresh)
       status[i] = Status::InvalidArgument(Where(*s, i) + RowName(o, *s, i) +
                                           " is the same image as " + RowName(o, *s, it->second));
   }
   return DropBadRows(o, status, s, skipped);
+}
+
+Survey SubSurvey(const Survey& all, const std::vector<int>& rows) {
+  Survey sub;
+  sub.cameras = all.cameras;
+  sub.boresight = all.boresight;
+  for (int i : rows) {
+    sub.rows.push_back(all.rows[i]);
+    sub.attitude_sigma_deg.push_back(all.attitude_sigma_deg[i]);
+    sub.origin.push_back(all.origin.empty() ? std::string() : all.origin[i]);
+    sub.camera_of_row.push_back(all.camera_of_row[i]);
+  }
+  return sub;
 }
 
 Result<GlobalDescriptor> TrainModel(const BuildOptions& o, const Survey& s, int* vectors) {

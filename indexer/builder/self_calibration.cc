@@ -129,8 +129,7 @@ class Adjustment {
     AddBoresightBlock(held);
     AddViewBlocks();
     for (auto& x : st_.points)
-      if (p_.points_fixed && problem_->HasParameterBlock(x.data()))
-        problem_->SetParameterBlockConstant(x.data());
+      if (p_.points_fixed && Free(x.data())) problem_->SetParameterBlockConstant(x.data());
   }
 
   void Solve(Solved* out) {
@@ -152,25 +151,21 @@ class Adjustment {
                   int* free_parameters) {
     std::vector<double*> blocks;
     std::vector<int> column_of;  // calibration parameter of each leading tangent column
-    const bool intr_free = problem_->HasParameterBlock(st_.intr.data()) &&
-                           !problem_->IsParameterBlockConstant(st_.intr.data());
-    if (intr_free) {
+    if (Free(st_.intr.data())) {
       blocks.push_back(st_.intr.data());
       for (int i = 0; i < 3; ++i)
         if (!held[i]) column_of.push_back(i);
     }
-    if (!problem_->IsParameterBlockConstant(st_.bore.data())) {
+    if (Free(st_.bore.data())) {
       blocks.push_back(st_.bore.data());
       for (int i = kBoresightX; i <= kBoresightZ; ++i) column_of.push_back(i);
     }
     const int k = static_cast<int>(column_of.size());
     for (size_t v = 0; v < st_.delta.size(); ++v)
       for (double* b : {st_.delta[v].data(), st_.center[v].data()})
-        if (problem_->HasParameterBlock(b) && !problem_->IsParameterBlockConstant(b))
-          blocks.push_back(b);
+        if (Free(b)) blocks.push_back(b);
     for (auto& x : st_.points)
-      if (problem_->HasParameterBlock(x.data()) && !problem_->IsParameterBlockConstant(x.data()))
-        blocks.push_back(x.data());
+      if (Free(x.data())) blocks.push_back(x.data());
     *cov = cv::Matx<double, 6, 6>::zeros();
     *free_parameters = 0;
     for (double* b : blocks) *free_parameters += problem_->ParameterBlockTangentSize(b);
@@ -221,6 +216,20 @@ class Adjustment {
   const State& state() const { return st_; }
 
  private:
+  bool Free(double* block) const {
+    return problem_->HasParameterBlock(block) && !problem_->IsParameterBlockConstant(block);
+  }
+
+  // A DiagonalPrior on a 3-block; nothing when every weight is 0 (free without a prior).
+  void AddPrior(double* block, const std::array<double, 3>& centre,
+                const std::array<double, 3>& weight) {
+    if (weight == std::array<double, 3>{}) return;
+    auto* prior = new DiagonalPrior<3>;
+    prior->centre = centre, prior->weight = weight;
+    problem_->AddResidualBlock(new ceres::AutoDiffCostFunction<DiagonalPrior<3>, 3, 3>(prior),
+                               nullptr, block);
+  }
+
   void AddIntrinsicsBlock(const std::array<bool, kCalibrationParameters>& held) {
     double* b = st_.intr.data();
     if (!problem_->HasParameterBlock(b)) return;
@@ -232,11 +241,10 @@ class Adjustment {
       return;
     }
     if (!fixed.empty()) problem_->SetManifold(b, new ceres::SubsetManifold(3, fixed));
-    auto* prior = new DiagonalPrior<3>;
+    std::array<double, 3> centre, weight;
     for (int i = 0; i < 3; ++i)
-      prior->centre[i] = Supplied(i), prior->weight[i] = held[i] ? 0 : Weight(p_.prior.sigma[i]);
-    problem_->AddResidualBlock(new ceres::AutoDiffCostFunction<DiagonalPrior<3>, 3, 3>(prior),
-                               nullptr, b);
+      centre[i] = Supplied(i), weight[i] = held[i] ? 0 : Weight(p_.prior.sigma[i]);
+    AddPrior(b, centre, weight);
   }
 
   void AddBoresightBlock(const std::array<bool, kCalibrationParameters>& held) {
@@ -246,10 +254,9 @@ class Adjustment {
       problem_->SetParameterBlockConstant(b);
       return;
     }
-    auto* prior = new DiagonalPrior<3>;
-    for (int i = 0; i < 3; ++i) prior->weight[i] = Weight(p_.prior.sigma[kBoresightX + i]);
-    problem_->AddResidualBlock(new ceres::AutoDiffCostFunction<DiagonalPrior<3>, 3, 3>(prior),
-                               nullptr, b);
+    std::array<double, 3> weight;
+    for (int i = 0; i < 3; ++i) weight[i] = Weight(p_.prior.sigma[kBoresightX + i]);
+    AddPrior(b, {0, 0, 0}, weight);
   }
 
   void AddViewBlocks() {
@@ -259,21 +266,9 @@ class Adjustment {
       const CalibrationView& view = p_.views[v];
       if (view.attitude_sigma_rad == 0) problem_->SetParameterBlockConstant(delta);
       if (view.center_sigma_m == 0) problem_->SetParameterBlockConstant(center);
-      auto* att = new DiagonalPrior<3>;
-      att->weight.fill(Weight(view.attitude_sigma_rad));
-      if (att->weight[0] > 0)
-        problem_->AddResidualBlock(new ceres::AutoDiffCostFunction<DiagonalPrior<3>, 3, 3>(att),
-                                   nullptr, delta);
-      else
-        delete att;
-      auto* pos = new DiagonalPrior<3>;
-      pos->weight.fill(Weight(view.center_sigma_m));
-      for (int i = 0; i < 3; ++i) pos->centre[i] = view.center[i];
-      if (pos->weight[0] > 0)
-        problem_->AddResidualBlock(new ceres::AutoDiffCostFunction<DiagonalPrior<3>, 3, 3>(pos),
-                                   nullptr, center);
-      else
-        delete pos;
+      const double wa = Weight(view.attitude_sigma_rad), wc = Weight(view.center_sigma_m);
+      AddPrior(delta, {0, 0, 0}, {wa, wa, wa});
+      AddPrior(center, {view.center[0], view.center[1], view.center[2]}, {wc, wc, wc});
     }
   }
 

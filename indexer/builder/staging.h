@@ -48,8 +48,7 @@ bool BytesOfHex(const std::string& s, uint8_t* out, size_t n);
 json KeyJson(const TileKey& k);
 TileKey KeyOf(const json& j);
 
-// Features already extracted in this process (BuildMap), by image name.
-using FeatureCache = std::map<std::string, LocalFeatures>;
+using build_internal::FeatureCache;
 
 // The survey's rows with their calibrations loaded (bad ones out or fatal, as o.skip_bad says).
 Result<Survey> ReadRows(const BuildOptions& o, std::string* input_format,
@@ -98,7 +97,8 @@ struct CalibratedCamera {
 Result<CalibratedCamera> CalibratedCameraOf(const json& entry, const CameraModel& supplied);
 
 // The four steps (map_builder.h), each with what BuildMap shares between them in one process.
-// CACHE (may be null): train fills it with the sample's features, build-tiles takes them from it.
+// CACHE (may be null): plan fills it with self-calibration's features, train takes those and
+// adds the rest of its sample, build-tiles takes them from it.
 Result<TrainSummary> TrainImpl(const BuildOptions& o, FeatureCache* cache);
 // The plan as JSON, with its id; *summary filled. CACHE (may be null): self-calibration's
 // features.

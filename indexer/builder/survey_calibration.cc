@@ -3,11 +3,7 @@
 #include <algorithm>
 #include <cmath>
 #include <opencv2/calib3d.hpp>
-#include <opencv2/imgcodecs.hpp>
 
-#include "indexer/base/parallel.h"
-#include "indexer/base/rotation.h"
-#include "indexer/base/threads.h"
 #include "indexer/builder/staging.h"
 
 namespace sightfix::staging {
@@ -36,32 +32,6 @@ std::vector<int> CalibrationRows(const BuildOptions& o, const Survey& s, int cam
   return picked;
 }
 
-// Features of `rows` under the supplied calibration, into the cache (BuildMap) when given.
-Result<std::vector<LocalFeatures>> RowFeatures(const BuildOptions& o, const Survey& s,
-                                               const std::vector<int>& rows, FeatureCache* cache) {
-  std::vector<LocalFeatures> f(rows.size());
-  std::vector<Status> status(rows.size());
-  ParallelFor(static_cast<int>(rows.size()), ThreadCount(o.jobs), [&](int k) {
-    const size_t i = rows[k];
-    const std::string path = (fs::path(o.drive_dir) / s.rows[i].image).string();
-    const cv::Mat img = cv::imread(path, cv::IMREAD_GRAYSCALE);
-    if (img.empty()) {
-      status[k] = Status::InvalidArgument(Where(s, i) + "cannot read or decode image " + path);
-      return;
-    }
-    Result<LocalFeatures> r = ExtractFeatures(img, &s.cameras[s.camera_of_row[i]], o.features);
-    if (!r.ok())
-      status[k] = Status::InvalidArgument(Where(s, i) + path + ": " + r.status().message());
-    else
-      f[k] = std::move(r).value();
-  });
-  for (const Status& st : status)
-    if (!st.ok()) return st;
-  if (cache)
-    for (size_t k = 0; k < rows.size(); ++k) (*cache)[s.rows[rows[k]].image] = f[k];
-  return f;
-}
-
 json Array(const double* v, int n) { return std::vector<double>(v, v + n); }
 
 json EstimateJson(const CalibrationEstimate& e) {
@@ -85,34 +55,26 @@ json EstimateJson(const CalibrationEstimate& e) {
           {"rms_after_px", e.rms_after_px}};
 }
 
-// One camera: its rows' features, the views in an ENU frame at the first row, the solve.
+// One camera: its rows' features (into the cache), the views in an ENU frame at the first row,
+// the solve.
 Result<json> CalibrateCamera(const BuildOptions& o, const Survey& s, int cam, FeatureCache* cache) {
-  const std::vector<int> rows = CalibrationRows(o, s, cam);
-  Say(o, "self-calibration of " + s.rows[rows.front()].camera + ": " + std::to_string(rows.size()) +
-             " frames");
-  Result<std::vector<LocalFeatures>> f = RowFeatures(o, s, rows, cache);
-  if (!f.ok()) return f.status();
-  const EnuFrame enu(s.rows[rows.front()].position);
-  std::vector<SurveyView> views;
-  for (size_t k = 0; k < rows.size(); ++k) {
-    const DriveRow& r = s.rows[rows[k]];
-    SurveyView v;
-    v.enu_from_camera = EnuFromCamera(r.attitude);
-    v.center_enu = enu.ToEnu(r.position);
-    v.sigma_h_m = r.sigma_h_m;
-    v.focal_px = s.cameras[cam].fx;
-    v.attitude_sigma_deg = s.attitude_sigma_deg[rows[k]];
-    v.features = &(*f)[k];
-    views.push_back(v);
-  }
+  Survey sub = SubSurvey(s, CalibrationRows(o, s, cam));
+  const std::string file = sub.rows.front().camera;
+  Say(o, "self-calibration of " + file + ": " + std::to_string(sub.rows.size()) + " frames");
+  std::vector<std::string> skipped;  // build-tiles lists bad frames; here they only stay out
+  if (Status st = ExtractAll(o, &sub, &skipped, cache); !st.ok()) return st;
+  if (sub.rows.empty()) return json{{"status", "supplied"}, {"why", "no usable frame"}};
+  const std::vector<SurveyView> views = Views(sub, EnuFrame(sub.rows.front().position));
   SelfCalibrationOptions so = o.calibration;
   so.tracks.jobs = o.jobs;
   Result<CalibrationEstimate> e =
       SelfCalibrateDrive(views, s.cameras[cam], PriorOf(s.cameras[cam]), so);
+  if (cache)  // the views borrowed the features until here
+    for (size_t k = 0; k < sub.rows.size(); ++k)
+      (*cache)[sub.rows[k].image] = std::move(sub.features[k]);
   if (e.ok()) {
     if (e->move_alarm)
-      Say(o, "warning: " + s.rows[rows.front()].camera +
-                 " moved further than its stated uncertainty allows (chi-square " +
+      Say(o, "warning: " + file + " moved further than its stated uncertainty allows (chi-square " +
                  std::to_string(e->move_chi2) + " of " + std::to_string(e->move_dof) +
                  " dof): check the calibration file");
     return EstimateJson(*e);

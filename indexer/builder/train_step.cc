@@ -14,15 +14,9 @@ using namespace build_internal;
 Survey EvenlySpaced(const Survey& all, int train_images) {
   const size_t n = all.rows.size();
   const size_t step = std::max<size_t>(1, (n + train_images - 1) / train_images);
-  Survey sample;
-  sample.cameras = all.cameras;
-  for (size_t i = 0; i < n; i += step) {
-    sample.rows.push_back(all.rows[i]);
-    sample.attitude_sigma_deg.push_back(all.attitude_sigma_deg[i]);
-    sample.origin.push_back(all.origin.empty() ? std::string() : all.origin[i]);
-    sample.camera_of_row.push_back(all.camera_of_row[i]);
-  }
-  return sample;
+  std::vector<int> rows;
+  for (size_t i = 0; i < n; i += step) rows.push_back(static_cast<int>(i));
+  return SubSurvey(all, rows);
 }
 
 // model.bin and model.json under MAPDIR/staging; fills the summary's model fields.
@@ -60,7 +54,7 @@ Result<TrainSummary> TrainImpl(const BuildOptions& o, FeatureCache* cache) {
   Say(o, "train: features of " + std::to_string(sample.rows.size()) + " of " +
              std::to_string(all->rows.size()) + " survey images");
   const Stopwatch features(o.env);
-  if (Status st = ExtractAll(o, &sample, &summary.skipped); !st.ok()) return st;
+  if (Status st = ExtractAll(o, &sample, &summary.skipped, cache); !st.ok()) return st;
   summary.feature_s = features.Seconds();
   summary.sampled_images = static_cast<int>(sample.rows.size());
   if (summary.sampled_images <= o.descriptor.pq_subquantizers)

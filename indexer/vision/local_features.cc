@@ -66,10 +66,15 @@ Result<LocalFeatures> ExtractFeatures(const cv::Mat& image, const CameraModel* c
   } catch (const cv::Exception& e) {
     return Status::Internal(std::string("feature extraction failed: ") + e.what());
   }
-  f.normalized.reserve(f.keypoints.size());
-  for (const cv::KeyPoint& k : f.keypoints)
-    f.normalized.push_back(camera ? camera->PixelToNormalized(k.pt) : cv::Point2d(k.pt));
+  NormalizeKeypoints(camera, &f);
   return f;
+}
+
+void NormalizeKeypoints(const CameraModel* camera, LocalFeatures* f) {
+  f->normalized.clear();
+  f->normalized.reserve(f->keypoints.size());
+  for (const cv::KeyPoint& k : f->keypoints)
+    f->normalized.push_back(camera ? camera->PixelToNormalized(k.pt) : cv::Point2d(k.pt));
 }
 
 cv::Mat CompactDescriptors(const cv::Mat& rootsift) {

@@ -47,6 +47,9 @@ void ToRootSift(cv::Mat& descriptors);
 
 Result<LocalFeatures> ExtractFeatures(const cv::Mat& image, const CameraModel* camera,
                                       const FeatureOptions& options);
+// features->normalized from its keypoints through `camera` (may be null: pixels), as
+// ExtractFeatures sets it; for features extracted under another calibration of the same images.
+void NormalizeKeypoints(const CameraModel* camera, LocalFeatures* features);
 
 struct MatchOptions {
   double ratio = 0.8;  // Lowe's ratio test (Lowe 2004, section 7.1)

@@ -139,30 +139,16 @@ SelfCalibrationOptions Options() {
   return o;
 }
 
-double TrueValue(const Drive& d, int i) {
-  switch (i) {
-    case kFocal:
-      return d.truth.fx;
-    case kK1:
-      return d.truth.distortion[0];
-    case kK2:
-      return d.truth.distortion[1];
-    default:
-      return d.boresight_true[i - kBoresightX];
-  }
+// Calibration parameter i (CalibrationParameter order) of a camera and a boresight.
+double Parameter(const CameraModel& c, const cv::Vec3d& boresight, int i) {
+  return i == kFocal ? c.fx
+         : i == kK1  ? c.distortion[0]
+         : i == kK2  ? c.distortion[1]
+                     : boresight[i - kBoresightX];
 }
-
+double TrueValue(const Drive& d, int i) { return Parameter(d.truth, d.boresight_true, i); }
 double Estimate(const CalibrationEstimate& e, int i) {
-  switch (i) {
-    case kFocal:
-      return e.refined.fx;
-    case kK1:
-      return e.refined.distortion[0];
-    case kK2:
-      return e.refined.distortion[1];
-    default:
-      return e.boresight_rad[i - kBoresightX];
-  }
+  return Parameter(e.refined, e.boresight_rad, i);
 }
 
 class TurningDrive : public ::testing::TestWithParam<uint64_t> {};
