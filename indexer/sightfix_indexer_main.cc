@@ -144,12 +144,12 @@ int Build(int argc, char** argv, bool add) {
       "vectors)\n"
       "%.1f s (%.2f images/s): features %.1f s, model %.1f s, structure %.1f s, write %.1f s\n"
       "bytes per image: global code %.0f, local features %.0f, points %.0f (tile files %.0f)\n"
-      "bundle adjustment: %d observations, rms %.2f -> %.2f px\n",
+      "bundle adjustment: %d observations, rms %.2f -> %.2f px; self-calibration %.1f s\n",
       o.map_dir.c_str(), s->map_version, s->images, s->tiles, s->points, s->model_id.c_str(),
       s->codec.c_str(), s->training_vectors, s->seconds, s->images_per_s, s->feature_s, s->model_s,
       s->structure_s, s->write_s, s->global_code_bytes, s->local_feature_bytes, s->point_bytes,
       s->tile_file_bytes, s->structure.observations, s->structure.ba_initial_rms_px,
-      s->structure.ba_final_rms_px);
+      s->structure.ba_final_rms_px, s->calibration_s);
   std::fputs(sightfix::CalibrationLines(s->cameras).c_str(), stdout);
   return 0;
 }

@@ -70,6 +70,7 @@ Result<BuildSummary> RunSteps(const BuildOptions& o, RunStaging* staging) {
   summary.model_s = trained->seconds - trained->feature_s;
   summary.feature_s = trained->feature_s + shard->feature_s;  // the shard reuses the sample's
   summary.structure_s = shard->structure_s;
+  summary.calibration_s = planned.calibration_s;
   return summary;
 }
 

@@ -378,6 +378,7 @@ nlohmann::json BuildSummaryJson(const BuildSummary& s) {
            {{"features", s.feature_s},
             {"model", s.model_s},
             {"structure", s.structure_s},
+            {"calibration", s.calibration_s},
             {"write", s.write_s}}},
           {"bytes_per_image",
            {{"global_code", s.global_code_bytes},

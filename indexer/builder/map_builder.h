@@ -81,6 +81,7 @@ struct BuildSummary {
   int training_vectors = 0;  // real images plus crop views
   double seconds = 0, images_per_s = 0;
   double feature_s = 0, model_s = 0, structure_s = 0, write_s = 0;
+  double calibration_s = 0;  // self-calibration, its frames' features included
   // Bytes per image on disk, by part (averages over the map).
   double global_code_bytes = 0, local_feature_bytes = 0, point_bytes = 0, tile_file_bytes = 0;
   StructureSummary structure;
@@ -119,6 +120,7 @@ struct PlanSummary {
   int images = 0, tiles = 0, shards = 0, map_version = 0;
   std::vector<int> images_per_shard;  // own plus context frames
   std::vector<std::string> skipped;
+  double calibration_s = 0;  // self-calibration, its frames' features included
 };
 std::string DefaultPlanPath(const std::string& map_dir);
 Result<PlanSummary> PlanStep(const BuildOptions& options, const std::string& plan_path, int shards);

@@ -173,7 +173,9 @@ Result<json> PlanImpl(const BuildOptions& o, int shards, PlanSummary* summary,
   Result<json> files = CameraFiles(o, s);
   if (!files.ok()) return files.status();
   json cameras = std::move(files).value();
+  const Stopwatch calibration(o.env);
   if (Status st = CalibrateSurveyCameras(o, s, &cameras, cache); !st.ok()) return st;
+  summary->calibration_s = calibration.Seconds();
   const RowsByTile own = OwnFrames(o, s);
   RowsByTile context = ContextFrames(o, s, own);
   const std::map<TileKey, int> shard_of =
