@@ -10,17 +10,22 @@
 //     held at the supplied value and reports its prior sigma;
 //   - a calibration file 5 % off in focal length, against a 1 % prior, raises the move alarm; one
 //     0.6 % off does not;
-//   - the pixel model is OpenCV's: with everything exact the residual RMS is the noise's.
+//   - the pixel model is OpenCV's: with everything exact the residual RMS is the noise's;
+//   - the builder turns each frame by the estimated boresight the right way round (its INS
+//     attitude comes closer to the true camera, not further).
 #include "indexer/builder/self_calibration.h"
 
 #include <gtest/gtest.h>
 
+#include <algorithm>
 #include <cmath>
 #include <cstdio>
 #include <opencv2/calib3d.hpp>
 #include <random>
 
+#include "indexer/base/geo.h"
 #include "indexer/base/rotation.h"
+#include "indexer/builder/build_internal.h"
 
 namespace sightfix {
 namespace {
@@ -59,6 +64,7 @@ struct Drive {
   CalibrationProblem problem;
   CameraModel truth;
   cv::Vec3d boresight_true;
+  std::vector<cv::Matx33d> camera_from_world_true;  // per view, the boresight included
 };
 
 // Observations by cv::projectPoints through the true camera; survey poses and points perturbed
@@ -89,6 +95,7 @@ Drive MakeDrive(bool turn, const CameraModel& supplied, uint64_t seed, bool bore
   const cv::Mat dist(1, 5, CV_64F, d.truth.distortion.data());
   for (size_t v = 0; v < centers.size(); ++v) {
     const cv::Matx33d r = bore * EnuFromCamera({headings[v], 0.0, 0.0}).t();
+    d.camera_from_world_true.push_back(r);
     cv::Vec3d rvec;
     cv::Rodrigues(r, rvec);
     const cv::Vec3d tvec = -(r * centers[v]);
@@ -208,6 +215,41 @@ TEST(SelfCalibrationTest, ExactCalibrationLeavesTheNoiseOnly) {
   ASSERT_TRUE(e.ok());
   EXPECT_NEAR(e->rms_after_px, 0.5 * std::sqrt(2.0), 0.02);
   for (int i = 0; i < kCalibrationParameters; ++i) EXPECT_FALSE(e->estimated[i]);
+}
+
+double AngleDeg(const cv::Matx33d& a, const cv::Matx33d& b) {
+  const cv::Matx33d d = a * b.t();
+  return std::acos(std::clamp((cv::trace(d) - 1) / 2, -1.0, 1.0)) / kDeg;
+}
+
+// The builder's use of the result (build_internal.h Views): each frame's INS attitude turned by
+// the estimated boresight must come closer to the true camera than the INS attitude alone.
+TEST(SelfCalibrationTest, TheBuilderAppliesTheBoresightTheRightWayRound) {
+  const Drive d = MakeDrive(true, OffBy(0.008, 0.015, -0.006), 1);
+  Result<CalibrationEstimate> e = SolveCalibration(d.problem, Options());
+  ASSERT_TRUE(e.ok()) << e.status().message();
+  const EnuFrame enu(GeoPoint{47.0, 8.0, 400.0});
+  build_internal::Survey s;
+  s.cameras = {e->refined};
+  s.boresight = {e->boresight()};
+  for (const CalibrationView& v : d.problem.views) {
+    DriveRow row;
+    row.position = enu.ToGeo(v.center);
+    row.attitude = AttitudeFromEnuFromCamera(v.camera_from_world.t());
+    s.rows.push_back(row);
+    s.attitude_sigma_deg.push_back(0.05);
+    s.camera_of_row.push_back(0);
+  }
+  s.features.resize(s.rows.size());
+  const std::vector<SurveyView> views = build_internal::Views(s, enu);
+  double ins = 0, turned = 0;
+  for (size_t v = 0; v < views.size(); ++v) {
+    ins += AngleDeg(d.problem.views[v].camera_from_world, d.camera_from_world_true[v]);
+    turned += AngleDeg(views[v].enu_from_camera.t(), d.camera_from_world_true[v]);
+  }
+  ins /= views.size(), turned /= views.size();
+  std::printf("mean attitude error: INS %.3f deg, with the boresight %.3f deg\n", ins, turned);
+  EXPECT_LT(turned, 0.5 * ins);
 }
 
 TEST(SelfCalibrationTest, RejectsBadInput) {
