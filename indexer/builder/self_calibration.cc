@@ -9,7 +9,6 @@
 #include <boost/math/distributions/chi_squared.hpp>
 #include <chrono>
 #include <cmath>
-#include <numeric>
 
 namespace sightfix {
 
@@ -295,6 +294,20 @@ Status CheckProblem(const CalibrationProblem& p, const SelfCalibrationOptions& o
   return Status::Ok();
 }
 
+// Whether the frames' attitude priors tell a rotation common to every frame (the boresight)
+// apart from their own corrections: a typical frame's prior must be tighter than the
+// boresight's. EXIF and GPX inputs carry no pitch and roll (2 deg priors): their common
+// rotation is the attitude's own mean error, not the mounting.
+bool BoresightSeparable(const CalibrationProblem& p) {
+  std::vector<double> sigma;
+  for (const CalibrationView& v : p.views) sigma.push_back(v.attitude_sigma_rad);
+  if (sigma.empty()) return false;
+  std::nth_element(sigma.begin(), sigma.begin() + sigma.size() / 2, sigma.end());
+  const double prior = std::max(
+      {p.prior.sigma[kBoresightX], p.prior.sigma[kBoresightY], p.prior.sigma[kBoresightZ]});
+  return sigma[sigma.size() / 2] < prior;
+}
+
 // The chi-square move test (the header): estimate minus supplied value against P0 - P.
 void MoveTest(const CalibrationProblem& p, const SelfCalibrationOptions& o,
               const std::array<double, kCalibrationParameters>& value, CalibrationEstimate* e) {
@@ -356,7 +369,8 @@ Result<CalibrationEstimate> SolveCalibration(const CalibrationProblem& p,
   std::array<bool, kCalibrationParameters> held{};
   for (int i = 0; i < kCalibrationParameters; ++i) held[i] = p.prior.sigma[i] == 0;
   // The boresight is one block: held only as a whole.
-  const bool bore_held = held[kBoresightX] && held[kBoresightY] && held[kBoresightZ];
+  const bool bore_held =
+      (held[kBoresightX] && held[kBoresightY] && held[kBoresightZ]) || !BoresightSeparable(p);
   held[kBoresightX] = held[kBoresightY] = held[kBoresightZ] = bore_held;
   CalibrationEstimate e;
   Solved s;
@@ -423,69 +437,6 @@ Result<CalibrationEstimate> SolveCalibration(const CalibrationProblem& p,
   for (const auto& x : st.points) e.adjusted_points.emplace_back(x[0], x[1], x[2]);
   e.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   return e;
-}
-
-namespace {
-
-// Points seen most often first, each kept while one of its views has fewer than `cap`.
-std::vector<int> PickPoints(const std::vector<StructurePoint>& pts, size_t views, int cap) {
-  std::vector<int> order(pts.size());
-  std::iota(order.begin(), order.end(), 0);
-  std::stable_sort(order.begin(), order.end(), [&](int a, int b) {
-    return pts[a].observations.size() > pts[b].observations.size();
-  });
-  std::vector<int> taken(views, 0), kept;
-  for (int i : order) {
-    bool wanted = false;
-    for (const auto& ob : pts[i].observations) wanted |= taken[ob.first] < cap;
-    if (!wanted) continue;
-    kept.push_back(i);
-    for (const auto& ob : pts[i].observations) ++taken[ob.first];
-  }
-  std::sort(kept.begin(), kept.end());
-  return kept;
-}
-
-}  // namespace
-
-Result<CalibrationEstimate> SelfCalibrateDrive(const std::vector<SurveyView>& views,
-                                               const CameraModel& camera,
-                                               const CalibrationPrior& prior,
-                                               const SelfCalibrationOptions& o) {
-  std::string error;
-  if (!o.Validate(&error)) return Status::InvalidArgument(error);
-  if (views.size() < 3)
-    return Status(StatusCode::kFailedPrecondition, "self-calibration needs 3 views or more");
-  Result<StructureResult> structure = BuildStructure(views, o.tracks);
-  if (!structure.ok()) return structure.status();
-  const std::vector<int> picked =
-      PickPoints(structure->points, views.size(), o.max_points_per_view);
-  if (picked.size() < 30)
-    return Status(StatusCode::kFailedPrecondition,
-                  "self-calibration: only " + std::to_string(picked.size()) + " points");
-  CalibrationProblem p;
-  p.camera = camera;
-  p.prior = prior;
-  for (const SurveyView& v : views) {
-    CalibrationView view;
-    view.camera_from_world = v.enu_from_camera.t();
-    view.center = v.center_enu;
-    view.center_sigma_m = v.sigma_h_m;
-    view.attitude_sigma_rad =
-        v.sigma_h_m > 0
-            ? (v.attitude_sigma_deg > 0 ? v.attitude_sigma_deg : o.tracks.attitude_sigma_deg) *
-                  kDegToRad
-            : 0;
-    p.views.push_back(view);
-  }
-  for (int i : picked) {
-    const StructurePoint& sp = structure->points[i];
-    const int id = static_cast<int>(p.points.size());
-    p.points.push_back(sp.enu);
-    for (const auto& [v, k] : sp.observations)
-      p.observations.push_back({v, id, cv::Point2d(views[v].features->keypoints[k].pt)});
-  }
-  return SolveCalibration(p, o);
 }
 
 }  // namespace sightfix

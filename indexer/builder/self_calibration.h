@@ -17,7 +17,10 @@
 //     direction of travel together moves no image point; rotations with known angles (turns,
 //     the INS attitude) are what pin f;
 //   - k1 trades against f (both scale points away from the centre; k1 grows as r^3);
-//   - planar motion weakens the vertical terms (the boresight's pitch, k2).
+//   - planar motion weakens the vertical terms (the boresight's pitch, k2);
+//   - the boresight is told apart from each frame's own correction only by the frames' attitude
+//     priors: where a typical frame's prior is not tighter than the boresight's (EXIF and GPX
+//     surveys carry no pitch and roll), the boresight is held at zero.
 // Where the data do not improve a parameter (posterior sigma over prior sigma above
 // keep_prior_ratio), it is held at the supplied value and reports its prior sigma. A move
 // larger than the prior allows is flagged by a chi-square test of the estimate minus the prior

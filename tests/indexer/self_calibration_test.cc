@@ -11,6 +11,7 @@
 //   - a calibration file 5 % off in focal length, against a 1 % prior, raises the move alarm; one
 //     0.6 % off does not;
 //   - the pixel model is OpenCV's: with everything exact the residual RMS is the noise's;
+//   - frames whose attitude is known to 2 deg only hold the boresight;
 //   - the builder turns each frame by the estimated boresight the right way round (its INS
 //     attitude comes closer to the true camera, not further).
 #include "indexer/builder/self_calibration.h"
@@ -191,6 +192,19 @@ TEST(SelfCalibrationTest, StraightDriveHoldsTheFocalLength) {
   EXPECT_FALSE(e->estimated[kFocal]);
   EXPECT_EQ(e->refined.fx, supplied.fx);
   EXPECT_DOUBLE_EQ(e->posterior_sigma[kFocal], e->prior_sigma[kFocal]);
+}
+
+// Frames whose attitude is known only to 2 deg (EXIF and GPX surveys): the boresight cannot be
+// told from the frames' own corrections and stays held at zero.
+TEST(SelfCalibrationTest, LooseAttitudesHoldTheBoresight) {
+  Drive d = MakeDrive(true, OffBy(0.008, 0.015, -0.006), 1);
+  for (CalibrationView& v : d.problem.views) v.attitude_sigma_rad = 2 * kDeg;
+  Result<CalibrationEstimate> e = SolveCalibration(d.problem, Options());
+  ASSERT_TRUE(e.ok()) << e.status().message();
+  for (int i = kBoresightX; i <= kBoresightZ; ++i) {
+    EXPECT_FALSE(e->estimated[i]);
+    EXPECT_EQ(e->boresight_rad[i - kBoresightX], 0);
+  }
 }
 
 TEST(SelfCalibrationTest, AFarWrongFileRaisesTheMoveAlarm) {
