@@ -333,12 +333,12 @@ void MoveTest(const CalibrationProblem& p, const SelfCalibrationOptions& o,
 }  // namespace
 
 CalibrationPrior PriorOf(const CameraModel& c) {
-  const CalibrationUncertainty& u = c.uncertainty;
+  const CalibrationUncertainty u = UncertaintyOrDefault(c);
   CalibrationPrior p;
-  p.sigma[kFocal] = u.focal_px > 0 ? u.focal_px : 0.01 * c.fx;
-  p.sigma[kK1] = u.k1 > 0 ? u.k1 : 0.03;
-  p.sigma[kK2] = u.k2 > 0 ? u.k2 : (c.distortion[1] != 0 ? 0.01 : 0.0);
-  const double b = (u.boresight_deg > 0 ? u.boresight_deg : 0.5) * kDegToRad;
+  p.sigma[kFocal] = u.focal_px;
+  p.sigma[kK1] = u.k1;
+  p.sigma[kK2] = u.k2;
+  const double b = u.boresight_deg * kDegToRad;
   p.sigma[kBoresightX] = p.sigma[kBoresightY] = p.sigma[kBoresightZ] = b;
   return p;
 }

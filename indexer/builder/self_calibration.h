@@ -60,9 +60,8 @@ extern const char* const kCalibrationParameterNames[kCalibrationParameters];
 struct CalibrationPrior {
   std::array<double, kCalibrationParameters> sigma{};
 };
-// The camera file's stated uncertainty (CameraModel::uncertainty), with documented defaults
-// where it states none: focal 1 % of fx, k1 0.03, k2 0.01 (or 0, held, where the lens has no
-// k2 and states no sigma), boresight 0.5 degrees per axis.
+// The camera file's stated uncertainty with its defaults (UncertaintyOrDefault), boresight per
+// axis.
 CalibrationPrior PriorOf(const CameraModel& camera);
 
 inline constexpr double kFreeParameter = std::numeric_limits<double>::infinity();

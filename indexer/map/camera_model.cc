@@ -18,6 +18,9 @@ bool CameraModel::IsValid(std::string* error) const {
     return fail("camera_matrix principal point lies outside the image");
   for (double d : distortion)
     if (!std::isfinite(d)) return fail("distortion_coefficients must be finite");
+  const CalibrationUncertainty& u = uncertainty;
+  for (double v : {u.focal_px, u.k1, u.k2, u.boresight_deg})
+    if (!(std::isfinite(v) && v >= 0)) return fail("calibration sigmas must be finite and >= 0");
   return true;
 }
 
@@ -160,6 +163,15 @@ Result<CameraModel> ReadCalibration(const std::string& path) {
 }
 
 }  // namespace
+
+CalibrationUncertainty UncertaintyOrDefault(const CameraModel& c) {
+  CalibrationUncertainty u = c.uncertainty;
+  if (!(u.focal_px > 0)) u.focal_px = 0.01 * c.fx;
+  if (!(u.k1 > 0)) u.k1 = 0.03;
+  if (!(u.k2 > 0)) u.k2 = c.distortion[1] != 0 ? 0.01 : 0.0;
+  if (!(u.boresight_deg > 0)) u.boresight_deg = 0.5;
+  return u;
+}
 
 Result<CameraModel> LoadCameraModel(const std::string& path) {
   try {

@@ -22,8 +22,8 @@ namespace sightfix {
 enum class LensModel { kPinhole, kFisheye };
 
 // A calibration's own stated 1-sigma uncertainty: optional keys of the file
-// (focal_length_sigma_px, k1_sigma, k2_sigma, boresight_sigma_deg). 0 = not stated: whoever uses
-// it applies its documented default (self_calibration.h for the indexer).
+// (focal_length_sigma_px, k1_sigma, k2_sigma, boresight_sigma_deg) or fields of the wire's
+// Calibration. 0 = not stated: UncertaintyOrDefault fills it in.
 struct CalibrationUncertainty {
   double focal_px = 0;       // fx and fy together
   double k1 = 0, k2 = 0;     // distortion[0], distortion[1]
@@ -55,6 +55,11 @@ struct CameraModel {
   // Normalized ideal coordinates (x/z, y/z) of a pixel.
   cv::Point2d PixelToNormalized(const cv::Point2d& pixel) const;
 };
+
+// camera.uncertainty with the documented defaults where it states none, the spread of a
+// workshop calibration that heat and refocusing have since moved (common practice, from memory):
+// focal 1 % of fx, k1 0.03, k2 0.01 (or 0, held, where the lens has no k2), boresight 0.5 deg.
+CalibrationUncertainty UncertaintyOrDefault(const CameraModel& camera);
 
 // Reads and writes the OpenCV FileStorage layout above.
 Result<CameraModel> LoadCameraModel(const std::string& path);

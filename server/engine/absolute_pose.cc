@@ -98,6 +98,190 @@ void PoseInformation(const std::vector<PointCorrespondence>& pts, const Conditio
   }
 }
 
+// The last refinement with the query's focal scale s and k1 change dk as parameters 6 and 7,
+// on the pixels the observations came from (the supplied camera maps `normalized` back to them).
+using Vec8 = cv::Vec<double, 8>;
+using Mat8 = cv::Matx<double, 8, 8>;
+
+class IntrinsicsRefinement {
+ public:
+  IntrinsicsRefinement(const std::vector<PointCorrespondence>& pts, const Conditioned& c,
+                       const CameraModel& cam, const AbsolutePoseOptions& o)
+      : pts_(pts), c_(c), cam_(cam), o_(o) {
+    const CalibrationUncertainty u = UncertaintyOrDefault(cam);
+    prior_ = Vec8::zeros();
+    prior_[6] = 1 / Sq(u.focal_px / (0.5 * (cam.fx + cam.fy)));
+    prior_[7] = 1 / Sq(u.k1);
+    std::vector<cv::Point3d> rays;
+    for (const PointCorrespondence& p : pts) rays.emplace_back(p.normalized.x, p.normalized.y, 1);
+    cv::projectPoints(rays, cv::Vec3d(0, 0, 0), cv::Vec3d(0, 0, 0), cam.K(), cam.distortion,
+                      observed_);
+  }
+
+  // Levenberg-Marquardt from x over `in`, data weighted by 1 / variance_factor.
+  Vec8 Solve(Vec8 x, const std::vector<int>& in, double variance_factor) const {
+    double lambda = 1e-3;
+    Mat8 h;
+    Vec8 g;
+    double cost = Cost(x, in, variance_factor, &h, &g);
+    for (int it = 0; it < 20; ++it) {
+      Mat8 a = h;
+      for (int k = 0; k < 8; ++k) a(k, k) += lambda * h(k, k) + 1e-12;
+      const Vec8 step = a.solve(-g, cv::DECOMP_CHOLESKY);
+      Mat8 h2;
+      Vec8 g2;
+      const double cost2 = Cost(x + step, in, variance_factor, &h2, &g2);
+      if (cost2 < cost) {
+        x += step, h = h2, g = g2, lambda *= 0.1;
+        const bool done = cost - cost2 < 1e-9 * cost;
+        cost = cost2;
+        if (done) break;
+      } else {
+        lambda *= 10;
+        if (lambda > 1e8) break;
+      }
+    }
+    return x;
+  }
+
+  // Correspondences within threshold_px of their projection under x, in front of the camera.
+  std::vector<int> Inliers(const Vec8& x, int* in_front) const {
+    std::vector<int> all(pts_.size());
+    for (size_t i = 0; i < all.size(); ++i) all[i] = static_cast<int>(i);
+    std::vector<cv::Point2d> proj;
+    Project(x, all, &proj, nullptr);
+    const cv::Matx33d r = RotationOf(x);
+    std::vector<int> in;
+    for (int i : all) {
+      const cv::Point3d& w = c_.object[i];
+      const double z = (r * cv::Vec3d(w.x, w.y, w.z))[2] + x[5];
+      if (z > 0 && cv::norm(proj[i] - observed_[i]) <= o_.threshold_px) in.push_back(i);
+    }
+    *in_front = static_cast<int>(in.size());
+    return in;
+  }
+
+  // Data-only information, chi-square and sum of squared pixels at x.
+  void Information(const Vec8& x, const std::vector<int>& in, Mat8* h, double* chi2,
+                   double* sse) const {
+    Vec8 g;
+    Normal(x, in, h, &g, chi2, sse);
+  }
+  const Vec8& prior_information() const { return prior_; }
+
+ private:
+  static double Sq(double v) { return v * v; }
+  static cv::Matx33d RotationOf(const Vec8& x) {
+    cv::Matx33d r;
+    cv::Rodrigues(cv::Vec3d(x[0], x[1], x[2]), r);
+    return r;
+  }
+
+  void Project(const Vec8& x, const std::vector<int>& in, std::vector<cv::Point2d>* proj,
+               cv::Mat* jac) const {
+    std::vector<cv::Point3d> obj;
+    for (int i : in) obj.push_back(c_.object[i]);
+    cv::Matx33d k = cam_.K();
+    k(0, 0) *= 1 + x[6], k(1, 1) *= 1 + x[6];
+    std::array<double, 5> dist = cam_.distortion;
+    dist[0] += x[7];
+    const cv::Vec3d rvec(x[0], x[1], x[2]), tvec(x[3], x[4], x[5]);
+    if (jac)
+      cv::projectPoints(obj, rvec, tvec, k, dist, *proj, *jac);
+    else
+      cv::projectPoints(obj, rvec, tvec, k, dist, *proj);
+  }
+
+  // J^T W J and J^T W e of the data, W the inverse of keypoint noise plus the point's covariance
+  // seen through the camera.
+  void Normal(const Vec8& x, const std::vector<int>& in, Mat8* h, Vec8* g, double* chi2,
+              double* sse) const {
+    std::vector<cv::Point2d> proj;
+    cv::Mat jac;  // per row: rvec 3, tvec 3, fx, fy, cx, cy, k1 ...
+    Project(x, in, &proj, &jac);
+    const cv::Matx33d r = RotationOf(x);
+    *h = Mat8::zeros(), *g = Vec8::zeros(), *chi2 = 0, *sse = 0;
+    for (size_t n = 0; n < in.size(); ++n) {
+      cv::Matx<double, 2, 8> j;
+      cv::Matx23d jt;  // pixels per metre of the point in camera axes
+      for (int row = 0; row < 2; ++row) {
+        const double* d = jac.ptr<double>(static_cast<int>(2 * n + row));
+        for (int col = 0; col < 6; ++col) j(row, col) = d[col];
+        for (int col = 0; col < 3; ++col) jt(row, col) = d[3 + col];
+        j(row, 6) = d[6] * cam_.fx + d[7] * cam_.fy;
+        j(row, 7) = d[10];
+      }
+      const cv::Matx23d jx = jt * r;
+      const cv::Matx22d cov =
+          cv::Matx22d::eye() * Sq(o_.pixel_sigma_px) + jx * pts_[in[n]].covariance * jx.t();
+      const cv::Matx22d w = cov.inv();
+      const cv::Vec2d e(proj[n].x - observed_[in[n]].x, proj[n].y - observed_[in[n]].y);
+      *h += j.t() * w * j;
+      *g += j.t() * (w * e);
+      *chi2 += (e.t() * w * e)(0);
+      *sse += e.dot(e);
+    }
+  }
+
+  // Data chi-square / variance_factor plus the priors' (the normal equations likewise).
+  double Cost(const Vec8& x, const std::vector<int>& in, double variance_factor, Mat8* h,
+              Vec8* g) const {
+    double chi2, sse;
+    Normal(x, in, h, g, &chi2, &sse);
+    *h *= 1 / variance_factor, *g *= 1 / variance_factor;
+    double cost = chi2 / variance_factor;
+    for (int k = 6; k < 8; ++k) {
+      (*h)(k, k) += prior_[k];
+      (*g)[k] += prior_[k] * x[k];
+      cost += prior_[k] * x[k] * x[k];
+    }
+    return cost;
+  }
+
+  const std::vector<PointCorrespondence>& pts_;
+  const Conditioned& c_;
+  const CameraModel& cam_;
+  const AbsolutePoseOptions& o_;
+  Vec8 prior_;                         // information of the priors (diagonal)
+  std::vector<cv::Point2d> observed_;  // pixels, per correspondence
+};
+
+// Refines pose and intrinsics from (rvec, tvec) on `in`, recounts the inliers once and refines
+// again; fills the pose, inliers and the marginal covariance into *out.
+void RefineWithIntrinsics(const std::vector<PointCorrespondence>& pts, const Conditioned& c,
+                          const AbsolutePoseOptions& o, double variance_factor, const cv::Mat& rvec,
+                          const cv::Mat& tvec, std::vector<int> in, AbsolutePose* out) {
+  const IntrinsicsRefinement m(pts, c, *o.camera, o);
+  Vec8 x = Vec8::zeros();
+  for (int k = 0; k < 3; ++k) x[k] = rvec.at<double>(k), x[3 + k] = tvec.at<double>(k);
+  int front = out->points_in_front;
+  for (int round = 0; round < 2; ++round) {
+    x = m.Solve(x, in, variance_factor);
+    std::vector<int> next = m.Inliers(x, &front);
+    if (static_cast<int>(next.size()) < o.min_inliers) break;
+    in = std::move(next);
+  }
+  Mat8 h;
+  double chi2, sse;
+  m.Information(x, in, &h, &chi2, &sse);
+  const int n = static_cast<int>(in.size());
+  out->variance_factor = std::max(o.min_variance_factor, chi2 / std::max(1, 2 * n - 6));
+  h *= 1 / out->variance_factor;
+  for (int k = 6; k < 8; ++k) h(k, k) += m.prior_information()[k];
+  const Mat8 cov = h.inv(cv::DECOMP_SVD);
+  const cv::Vec6d pose(x[0], x[1], x[2], x[3], x[4], x[5]);
+  const cv::Matx66d pose_cov = cov.get_minor<6, 6>(0, 0);
+  const cv::Matx<double, 3, 6> jc = CenterJacobian(pose);
+  out->center_covariance = jc * pose_cov * jc.t();
+  out->center = CenterOf(pose) + c.origin;
+  cv::Rodrigues(cv::Vec3d(x[0], x[1], x[2]), out->camera_from_world);
+  out->inliers = n, out->points_in_front = front;
+  out->inlier_mask.assign(pts.size(), false);
+  for (int i : in) out->inlier_mask[i] = true;
+  out->rms_px = std::sqrt(sse / n);
+  out->intrinsics = {x[6], std::sqrt(cov(6, 6)), x[7], std::sqrt(cov(7, 7))};
+}
+
 }  // namespace
 
 bool AbsolutePoseOptions::Validate(std::string* error) const {
@@ -156,6 +340,8 @@ Result<AbsolutePose> EstimateAbsolutePose(const std::vector<PointCorrespondence>
     out.center_covariance = jc * info.inv(cv::DECOMP_SVD) * jc.t() * out.variance_factor;
     cv::Rodrigues(rvec, out.camera_from_world);
     out.center = CenterOf(pose) + c.origin;
+    if (o.camera && o.camera->lens == LensModel::kPinhole)
+      RefineWithIntrinsics(pts, c, o, out.variance_factor, rvec, tvec, in, &out);
     return out;
   } catch (const cv::Exception& e) {
     return Status::Internal(std::string("PnP failed: ") + e.what());

@@ -8,14 +8,24 @@
 // factor (chi-square of the residuals over their degrees of freedom, common practice in
 // least-squares adjustment), so a sharp day image and a noisy dusk one get the covariance their
 // residuals show. The factor is floored at min_variance_factor: a handful of lucky residuals must
-// not make a fix over-confident. Frames: world is a local ENU (metres), camera as rotation.h.
-// Thread-safe.
+// not make a fix over-confident.
+//
+// With the query camera given (a pinhole lens), the last refinement also estimates the camera's
+// focal length (fx and fy scaled together) and k1 under Gaussian priors of its stated
+// uncertainty (UncertaintyOrDefault): Levenberg-Marquardt on the pixel residuals of the full
+// lens model, the observations mapped back to the pixels they came from. The centre's covariance
+// is then the pose block of the inverse of the whole information (data plus priors), i.e. with
+// the intrinsics marginalised out: a focal length known to 1 % leaves the distance to points at
+// one depth uncertain by about 1 %, and the radius says so. Frames: world is a local ENU
+// (metres), camera as rotation.h. Thread-safe.
 #pragma once
 
 #include <opencv2/core.hpp>
+#include <optional>
 #include <vector>
 
 #include "indexer/base/status.h"
+#include "indexer/map/camera_model.h"
 
 namespace sightfix {
 
@@ -24,6 +34,13 @@ struct PointCorrespondence {
   cv::Matx33d covariance;  // of `world`, m^2
   cv::Point2d normalized;  // undistorted (x/z, y/z) in the query image
   int survey_frames = 2;   // survey frames whose poses pinned `world` (for the survey term)
+};
+
+// The query camera as the pose estimated it against what was supplied: fx and fy times
+// (1 + focal_scale), k1 + k1_change, each with its posterior 1-sigma. All 0 where held.
+struct IntrinsicsChange {
+  double focal_scale = 0, focal_scale_sigma = 0;
+  double k1_change = 0, k1_change_sigma = 0;
 };
 
 struct AbsolutePoseOptions {
@@ -35,6 +52,9 @@ struct AbsolutePoseOptions {
   double pixel_sigma_px = 1.0;  // keypoint noise assumed before the variance factor
   // Floor of the variance factor: 0.25 keeps the effective keypoint noise >= 0.5 px.
   double min_variance_factor = 0.25;
+  // The query camera (`normalized` undistorted with it). Pinhole: focal and k1 estimated as
+  // above. Unset, or a fisheye lens: intrinsics held exact.
+  std::optional<CameraModel> camera;
   bool Validate(std::string* error) const;
 };
 
@@ -47,6 +67,7 @@ struct AbsolutePose {
   double rms_px = 0;              // of the inliers
   double variance_factor = 1;     // applied to center_covariance
   int points_in_front = 0;        // inliers with positive depth
+  IntrinsicsChange intrinsics;
 };
 
 // kFailedPrecondition with a reason when there are too few correspondences or inliers.

@@ -16,12 +16,10 @@
 #include "indexer/base/threads.h"
 #include "indexer/map/tile_key.h"
 #include "indexer/vision/global_descriptor.h"
-#include "server/engine/absolute_pose.h"
 #include "server/engine/confidence.h"
 #include "server/engine/place_ambiguity.h"
 #include "server/engine/reference_pair.h"
 #include "server/engine/relative_pose.h"
-#include "server/engine/tile_cache.h"
 #include "server/engine/verified_reference.h"
 
 namespace sightfix {
@@ -412,6 +410,7 @@ void Localizer::Impl::Finish(const AbsolutePose& pose, const std::vector<PointCo
   fix->radius95_m = Radius95(fix->covariance_en);
   fix->pnp_inliers = pose.inliers;
   fix->rms_px = pose.rms_px;
+  fix->query_intrinsics = pose.intrinsics;
 }
 
 // Stage 4 and on: the metric pose from the map's points, else from a reference pair (as
@@ -430,6 +429,7 @@ void Localizer::Impl::Pose(const LocalFeatures& q, const CameraModel& camera,
   po.threshold_px = o.pnp_threshold_px;
   po.min_inliers = o.min_pnp_inliers;
   po.pixel_sigma_px = o.pixel_sigma_px;
+  if (o.estimate_query_intrinsics) po.camera = camera;
   Result<AbsolutePose> pose = Status(StatusCode::kFailedPrecondition, "no pose method ran");
   std::vector<PointCorrespondence> pts;
   std::string why;

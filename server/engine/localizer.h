@@ -34,6 +34,7 @@
 #include "indexer/map/camera_model.h"
 #include "indexer/map/map_store.h"
 #include "indexer/vision/local_features.h"
+#include "server/engine/absolute_pose.h"
 #include "server/engine/tile_cache.h"
 
 namespace sightfix {
@@ -62,6 +63,9 @@ struct LocalizerOptions {
   double pnp_threshold_px = 3.0;
   int min_pnp_inliers = 25;
   double pixel_sigma_px = 1.0;
+  // The metric pose also estimates the query camera's focal length and k1 under the priors of
+  // its stated uncertainty (absolute_pose.h); false holds them exact.
+  bool estimate_query_intrinsics = true;
   // Multiplies the horizontal covariance (solver plus survey term). Calibrated on demo seed 5,
   // which no test uses: over its 172 refined fixes, the 95th percentile of (error / radius95)^2
   // at scale 1 was 1.86 (day 65 fixes, dusk 37, overcast 70; mean 0.52 / 0.51 / 0.55, so one
@@ -135,6 +139,7 @@ struct Fix {
   std::string method;  // "points", "pair", "retrieval" or empty
   int correspondences = 0, pnp_inliers = 0;
   double rms_px = 0;
+  IntrinsicsChange query_intrinsics;     // as the metric pose estimated them (refined fixes)
   std::vector<ReferenceUse> references;  // every retrieval candidate, best first
   StageTimings timings;
   std::string reason;  // why not refined (empty when refined)

@@ -51,6 +51,8 @@ v1::Calibration CalibrationToProto(const CameraModel& c) {
   const bool fisheye = c.lens == LensModel::kFisheye;
   for (int i = 0; i < (fisheye ? 4 : 5); ++i) p.add_distortion(c.distortion[i]);
   p.set_fisheye(fisheye);
+  p.set_focal_length_sigma_px(c.uncertainty.focal_px);
+  p.set_k1_sigma(c.uncertainty.k1);
   return p;
 }
 
@@ -63,6 +65,8 @@ Result<CameraModel> CalibrationFromProto(const v1::Calibration& p) {
   if (p.distortion_size() > (p.fisheye() ? 4 : 5))
     return Status::InvalidArgument("calibration: too many distortion coefficients");
   for (int i = 0; i < p.distortion_size(); ++i) c.distortion[i] = p.distortion(i);
+  c.uncertainty.focal_px = p.focal_length_sigma_px();
+  c.uncertainty.k1 = p.k1_sigma();
   std::string error;
   if (!c.IsValid(&error)) return Status::InvalidArgument("calibration: " + error);
   return c;

@@ -2,7 +2,7 @@
 // cap and the rest, the Envelope parse, and for a Locate call the request's checks before any
 // image decode (pixel count from the JPEG/PNG header under a small cap, calibration, prior).
 // Invariants: a parsed Envelope re-encodes to a frame that parses again; an accepted request
-// carries a valid calibration.
+// carries a valid calibration (its sigmas finite and >= 0 included).
 #include <cstring>
 
 #include "proto/frame_codec.h"

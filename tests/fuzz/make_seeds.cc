@@ -52,6 +52,9 @@ int main(int argc, char** argv) {
   c->set_width(64), c->set_height(48), c->set_fx(50), c->set_fy(50), c->set_cx(32), c->set_cy(24);
   e.set_body(r.SerializeAsString());
   Write(out / "frame/locate_png_calibration", EncodeFrame(e));
+  c->set_focal_length_sigma_px(0.5), c->set_k1_sigma(0.01);
+  e.set_body(r.SerializeAsString());
+  Write(out / "frame/locate_png_calibration_sigmas", EncodeFrame(e));
 
   // A tile with one camera, two images of three keypoints, two points.
   TileData t;
