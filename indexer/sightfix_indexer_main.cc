@@ -24,7 +24,7 @@ int Fail(const std::string& message, int code = 1) {
   return code;
 }
 
-// --self-calibration and --calibration-frames (build and plan; README, "Self-calibration").
+// --self-calibration and --calibration-frames (build, add, plan; README, "Self-calibration").
 void AddCalibrationFlags(po::options_description& desc, sightfix::BuildOptions& o,
                          std::string& mode) {
   desc.add_options()("self-calibration", po::value(&mode)->default_value("on"),
@@ -124,7 +124,7 @@ int Build(int argc, char** argv, bool add) {
       "max-features", po::value(&o.features.max_features)->default_value(2000),
       "RootSIFT keypoints kept per image")("overwrite", "replace a map already in MAPDIR");
   std::string calibration = "on";
-  if (!add) AddCalibrationFlags(desc, o, calibration);
+  AddCalibrationFlags(desc, o, calibration);
   po::variables_map vm;
   const std::string command = add ? "add" : "build";
   if (int rc = ParseFlags(argc, argv, command, desc, &vm); rc >= 0) return rc;

@@ -15,6 +15,7 @@
 #include "indexer/base/threads.h"
 #include "indexer/builder/build_internal.h"
 #include "indexer/builder/map_builder.h"
+#include "indexer/builder/staging.h"
 #include "indexer/map/map_lock.h"
 #include "indexer/map/map_store.h"
 
@@ -101,8 +102,34 @@ struct GlobalCodes {
   std::vector<faiss::Index::idx_t> ids;
 };
 
-// The survey of one new drive, ingested and checked as `build` does; names prefixed with the
-// drive folder's name so they stay unique across drives.
+// Self-calibration of a new drive's cameras as `build` does it (staging.h), on the features
+// ingest extracted: the refined cameras and boresights replace the supplied ones and the
+// keypoints are undistorted again through them. The old drives keep theirs: their tiles hold
+// the refined cameras and attitudes with the boresight applied.
+Status CalibrateDrive(const BuildOptions& o, Survey* s, BuildSummary* summary) {
+  const Stopwatch watch(o.env);
+  FeatureCache cache;
+  for (size_t i = 0; i < s->rows.size(); ++i) cache[s->rows[i].image] = std::move(s->features[i]);
+  summary->cameras = nlohmann::json::array();
+  for (size_t c = 0; c < s->cameras.size(); ++c) summary->cameras.push_back(nlohmann::json{});
+  const Status st = staging::CalibrateSurveyCameras(o, *s, &summary->cameras, &cache);
+  for (size_t i = 0; i < s->rows.size(); ++i) s->features[i] = std::move(cache[s->rows[i].image]);
+  if (!st.ok()) return st;
+  for (size_t c = 0; c < s->cameras.size(); ++c) {
+    Result<staging::CalibratedCamera> cal =
+        staging::CalibratedCameraOf(summary->cameras[c], s->cameras[c]);
+    if (!cal.ok()) return cal.status();
+    s->cameras[c] = cal->camera;
+    s->boresight.push_back(cal->boresight);
+  }
+  for (size_t i = 0; i < s->rows.size(); ++i)
+    NormalizeKeypoints(&s->cameras[s->camera_of_row[i]], &s->features[i]);
+  summary->calibration_s = watch.Seconds();
+  return Status::Ok();
+}
+
+// The survey of one new drive, ingested, checked and self-calibrated as `build` does; names
+// prefixed with the drive folder's name so they stay unique across drives.
 Result<Survey> IngestDrive(const BuildOptions& o, BuildSummary* summary) {
   Survey s;
   Result<SurveyRows> rows = ReadSurvey(o);
@@ -115,6 +142,7 @@ Result<Survey> IngestDrive(const BuildOptions& o, BuildSummary* summary) {
   if (Status st = LoadCameras(o, &s, &summary->skipped); !st.ok()) return st;
   if (Status st = ExtractAll(o, &s, &summary->skipped); !st.ok()) return st;
   if (s.rows.empty()) return Status::InvalidArgument(o.drive_dir + ": no usable survey image");
+  if (Status st = CalibrateDrive(o, &s, summary); !st.ok()) return st;
   const std::string label = fs::absolute(o.drive_dir).lexically_normal().filename().string();
   for (DriveRow& r : s.rows) r.image = label + "/" + r.image;
   return s;
@@ -123,6 +151,11 @@ Result<Survey> IngestDrive(const BuildOptions& o, BuildSummary* summary) {
 // Appends survey b's rows to a.
 void AppendSurvey(Survey&& b, Survey* a) {
   const int base = static_cast<int>(a->cameras.size());
+  if (!a->boresight.empty() || !b.boresight.empty()) {  // empty means identity for all
+    a->boresight.resize(base, cv::Matx33d::eye());
+    b.boresight.resize(b.cameras.size(), cv::Matx33d::eye());
+    a->boresight.insert(a->boresight.end(), b.boresight.begin(), b.boresight.end());
+  }
   for (CameraModel& c : b.cameras) a->cameras.push_back(c);
   for (size_t i = 0; i < b.rows.size(); ++i) {
     a->rows.push_back(b.rows[i]);
@@ -163,7 +196,8 @@ nlohmann::json DriveRecord(const BuildOptions& o, const BuildSummary& s) {
           {"format", s.input_format},
           {"images", s.images},
           {"skipped", s.skipped.size()},
-          {"added", NowIsoUtc(o.env)}};
+          {"added", NowIsoUtc(o.env)},
+          {"cameras", s.cameras}};
 }
 
 // The old provenance with this drive appended (maps before `add` recorded one drive inline).
@@ -332,7 +366,7 @@ Result<BuildSummary> AddToMap(const BuildOptions& o) {
   Result<Survey> fresh = IngestDrive(o, &summary);
   if (!fresh.ok()) return fresh.status();
   summary.images = static_cast<int>(fresh->rows.size());
-  summary.feature_s = ingest.Seconds();
+  summary.feature_s = ingest.Seconds() - summary.calibration_s;
 
   // Tiles the new drive touches are rebuilt with their old images; the others are carried.
   std::set<TileKey> touched;
