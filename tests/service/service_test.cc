@@ -235,6 +235,12 @@ TEST_F(ServiceTest, BadRequestsGetClearStatuses) {
   r.mutable_prior()->set_lat_deg(123);
   EXPECT_EQ(code_of("Locate", r), v1::Status::INVALID_ARGUMENT);  // out of range
   r = good;
+  r.mutable_calibration()->set_focal_length_sigma_px(-1);
+  EXPECT_EQ(code_of("Locate", r), v1::Status::INVALID_ARGUMENT);  // negative calibration sigma
+  r = good;
+  r.mutable_calibration()->set_k1_sigma(std::nan(""));
+  EXPECT_EQ(code_of("Locate", r), v1::Status::INVALID_ARGUMENT);  // NaN calibration sigma
+  r = good;
   r.clear_calibration();
   r.set_calibration_id("17/1/2#0");
   EXPECT_EQ(code_of("Locate", r), v1::Status::NOT_FOUND);  // unknown calibration id
