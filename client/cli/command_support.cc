@@ -132,6 +132,11 @@ nlohmann::json FixJson(const Fix& f) {
                       {"timings_ms", TimingsJson(f.timings)}};
   if (f.quality != FixQuality::kNone) AddPosition(f, &j);
   if (!f.reason.empty()) j["reason"] = f.reason;
+  if (const IntrinsicsChange& c = f.query_intrinsics; c.focal_scale_sigma > 0)
+    j["query_camera"] = {{"focal_scale", c.focal_scale},
+                         {"focal_scale_sigma", c.focal_scale_sigma},
+                         {"k1_change", c.k1_change},
+                         {"k1_change_sigma", c.k1_change_sigma}};
   if (f.prior_distance_m >= 0) {
     j["prior_distance_m"] = f.prior_distance_m;
     j["outside_prior"] = f.outside_prior;

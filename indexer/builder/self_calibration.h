@@ -117,7 +117,8 @@ struct CalibrationEstimate {
   bool move_alarm = false;
   double variance_factor = 1;  // chi-square of the pixel residuals over their degrees of freedom
   int views = 0, points = 0, observations = 0;
-  double rms_before_px = 0, rms_after_px = 0, seconds = 0;
+  double rms_before_px = 0, rms_after_px = 0;
+  double seconds = 0;  // the adjustment and its covariance (tracks and triangulation not)
   // The adjusted views, in problem order (camera_from_world includes the boresight).
   std::vector<cv::Matx33d> camera_from_world;
   std::vector<cv::Vec3d> centers;

@@ -52,7 +52,8 @@ json EstimateJson(const CalibrationEstimate& e) {
           {"points", e.points},
           {"observations", e.observations},
           {"rms_before_px", e.rms_before_px},
-          {"rms_after_px", e.rms_after_px}};
+          {"rms_after_px", e.rms_after_px},
+          {"adjustment_s", e.seconds}};
 }
 
 // One camera: its rows' features (into the cache), the views in an ENU frame at the first row,

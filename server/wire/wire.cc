@@ -170,6 +170,10 @@ v1::Fix FixToProto(const Fix& f) {
   p.set_reason(f.reason);
   p.set_outside_prior(f.outside_prior);
   p.set_prior_distance_m(f.prior_distance_m);
+  const IntrinsicsChange& c = f.query_intrinsics;
+  v1::QueryCamera* q = p.mutable_query_camera();
+  q->set_focal_scale(c.focal_scale), q->set_focal_scale_sigma(c.focal_scale_sigma);
+  q->set_k1_change(c.k1_change), q->set_k1_change_sigma(c.k1_change_sigma);
   return p;
 }
 
@@ -202,6 +206,9 @@ Fix FixFromProto(const v1::Fix& p) {
   f.reason = p.reason();
   f.outside_prior = p.outside_prior();
   f.prior_distance_m = p.prior_distance_m();
+  const v1::QueryCamera& q = p.query_camera();
+  f.query_intrinsics = {q.focal_scale(), q.focal_scale_sigma(), q.k1_change(),
+                        q.k1_change_sigma()};
   return f;
 }
 
