@@ -116,6 +116,10 @@ expect "locate --server A,B: fails over from a dead replica" 0 "^refined fix (po
 "$cli" "${loc[@]}" "${srv[@]}" --json --truth "$truth" --prior "$truth,40" >"$tmp/srv-prior.json" 2>&1
 [ "$(field "$tmp/srv-prior.json" '"prior_distance_m" in j and "error_m" in j and j["quality"]')" = refined ] &&
   ok "locate --server --prior --truth: the prior reaches the server" || bad "server prior: $(head -3 "$tmp/srv-prior.json")"
+# The query camera as the server's pose estimated it, through the wire: its focal length within a
+# few of its sigmas of the supplied one (the service data's camera.yml is exact), sigma > 0.
+[ "$(field "$tmp/srv-prior.json" 'abs(j["query_camera"]["focal_scale"]) < 4 * j["query_camera"]["focal_scale_sigma"] and j["query_camera"]["focal_scale_sigma"] > 0')" = True ] &&
+  ok "locate --server --json: query_camera crosses the wire" || bad "query_camera: $(head -c 400 "$tmp/srv-prior.json")"
 expect "locate --server --heading 270: the heading reaches the server" 3 '"quality": "none"' -- \
   "$cli" "${loc[@]}" "${srv[@]}" --heading 270 --json
 expect "locate --deadline-ms 1: the call runs out of time" 2 "deadline\|DEADLINE" -- \
