@@ -13,7 +13,8 @@ using namespace sqlite_rows;
 constexpr char kTileSchema[] = R"sql(
 CREATE TABLE meta(key TEXT PRIMARY KEY, value TEXT NOT NULL);
 CREATE TABLE cameras(id INTEGER PRIMARY KEY, width INTEGER, height INTEGER, fx REAL, fy REAL,
-  cx REAL, cy REAL, k1 REAL, k2 REAL, p1 REAL, p2 REAL, k3 REAL, lens TEXT NOT NULL);
+  cx REAL, cy REAL, k1 REAL, k2 REAL, p1 REAL, p2 REAL, k3 REAL, lens TEXT NOT NULL,
+  focal_sigma_px REAL, k1_sigma REAL, k2_sigma REAL, boresight_sigma_deg REAL);
 CREATE TABLE images(id INTEGER PRIMARY KEY, name TEXT NOT NULL, timestamp REAL, lat REAL,
   lon REAL, height REAL, heading_deg REAL, pitch_deg REAL, roll_deg REAL, sigma_h_m REAL,
   camera_id INTEGER, global_code BLOB, keypoints BLOB, descriptors BLOB, point_ids BLOB);
@@ -25,7 +26,7 @@ CREATE TABLE retrieval(id INTEGER PRIMARY KEY, faiss_index BLOB NOT NULL);
 // ------------------------------------------------------------------------------------- write
 
 Status WriteCameras(sqlite3* db, const TileData& t) {
-  Result<Stmt> cam = Prepare(db, "INSERT INTO cameras VALUES(?,?,?,?,?,?,?,?,?,?,?,?,?)");
+  Result<Stmt> cam = Prepare(db, "INSERT INTO cameras VALUES(?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?)");
   if (!cam.ok()) return cam.status();
   for (size_t i = 0; i < t.cameras.size(); ++i) {
     const CameraModel& c = t.cameras[i];
@@ -33,6 +34,8 @@ Status WriteCameras(sqlite3* db, const TileData& t) {
     b << static_cast<int>(i) << c.width_px << c.height_px << c.fx << c.fy << c.cx << c.cy;
     for (double d : c.distortion) b << d;
     b << std::string(c.lens == LensModel::kFisheye ? "fisheye" : "pinhole");
+    const CalibrationUncertainty& u = c.uncertainty;
+    b << u.focal_px << u.k1 << u.k2 << u.boresight_deg;
     if (Status s = StepDone(db, cam->get()); !s.ok()) return s;
   }
   return Status::Ok();
@@ -179,6 +182,9 @@ Status ReadCameraRow(sqlite3_stmt* s, const std::string& path, CameraModel* c) {
   if (lens_name != "pinhole" && lens_name != "fisheye")
     return Status::Corrupt(path + ": camera: lens must be pinhole or fisheye");
   c->lens = lens_name == "fisheye" ? LensModel::kFisheye : LensModel::kPinhole;
+  CalibrationUncertainty& u = c->uncertainty;
+  u.focal_px = sqlite3_column_double(s, 13), u.k1 = sqlite3_column_double(s, 14);
+  u.k2 = sqlite3_column_double(s, 15), u.boresight_deg = sqlite3_column_double(s, 16);
   std::string error;
   if (!c->IsValid(&error)) return Status::Corrupt(path + ": camera: " + error);
   return Status::Ok();
@@ -188,7 +194,7 @@ Status ReadCameras(sqlite3* db, const std::string& path, TileData* t) {
   Result<Stmt> st = Prepare(db, "SELECT * FROM cameras ORDER BY id");
   if (!st.ok()) return st.status();
   sqlite3_stmt* s = st->get();
-  if (sqlite3_column_count(s) != 13)
+  if (sqlite3_column_count(s) != 17)
     return Status::Corrupt(path + ": cameras table has another shape");
   int rc;
   while ((rc = sqlite3_step(s)) == SQLITE_ROW) {

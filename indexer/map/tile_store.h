@@ -26,8 +26,9 @@
 
 namespace sightfix {
 
-// 2: cameras carry their lens model (pinhole or fisheye).
-constexpr int kMapFormatVersion = 2;
+// 2: cameras carry their lens model (pinhole or fisheye). 3: and their calibration's remaining
+// 1-sigma (focal, k1, k2, boresight: CalibrationUncertainty).
+constexpr int kMapFormatVersion = 3;
 
 struct ReferenceImage {
   int id = 0;  // 0..n-1 within the tile; the retrieval index's id

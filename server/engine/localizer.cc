@@ -17,6 +17,7 @@
 #include "indexer/map/tile_key.h"
 #include "indexer/vision/global_descriptor.h"
 #include "server/engine/confidence.h"
+#include "server/engine/map_uncertainty.h"
 #include "server/engine/place_ambiguity.h"
 #include "server/engine/reference_pair.h"
 #include "server/engine/relative_pose.h"
@@ -343,28 +344,6 @@ void Localizer::Impl::Coarse(const std::vector<Verified>& v, const std::string& 
   fix->radius95_m = o.coarse_radius_m;
 }
 
-// The survey term. A survey's GNSS/INS error is correlated over tens of seconds (common
-// practice), far longer than the second or two in which the frames that pin a map point drive
-// past it, so bundle adjustment cannot average it away: the points near a reference carry that
-// reference's error whole, and a fix inherits sigma_h^2 per axis (SurveyError::kCorrelated).
-// For a survey whose error is white (the clean demo town's 2 cm), each point averages it over
-// the n frames that observed it: sigma_h^2 / n, n the inliers' mean observation count
-// (SurveyError::kWhite; the full sigma_h^2 there set a 4.9 cm radius95 for errors of 1.3 cm on
-// demo seed 5).
-static double SurveyVariance(const AbsolutePose& pose, const std::vector<PointCorrespondence>& pts,
-                             const std::vector<Verified>& verified, SurveyError model) {
-  double sigma2 = 0, inv_frames = 0;
-  int n = 0;
-  for (const Verified& v : verified) {
-    const double s = v.c.tile->data.images[v.c.image].sigma_h_m;
-    sigma2 += s * s / verified.size();
-  }
-  if (model == SurveyError::kCorrelated) return sigma2;
-  for (size_t i = 0; i < pts.size(); ++i)
-    if (pose.inlier_mask[i]) inv_frames += 1.0 / pts[i].survey_frames, ++n;
-  return n ? sigma2 * inv_frames / n : sigma2;
-}
-
 void Localizer::Impl::Finish(const AbsolutePose& pose, const std::vector<PointCorrespondence>& pts,
                              const std::vector<Verified>& verified, const EnuFrame& frame,
                              Fix* fix) const {
@@ -378,7 +357,8 @@ void Localizer::Impl::Finish(const AbsolutePose& pose, const std::vector<PointCo
     if (d < nearest)
       nearest = d, nearest_heading_diff = HeadingDiffDeg(heading, ref.attitude.heading_deg);
   }
-  const double survey_var = SurveyVariance(pose, pts, verified, o.survey_error);
+  const double map_var = SurveyVariance(pose, pts, verified, o.survey_error) +
+                         MapCalibrationVariance(pose, pts, verified);
   for (ReferenceUse& u : fix->references)
     for (const Verified& v : verified)
       if (u.tile == v.c.tile->data.key.ToString() && u.image_id == v.c.image)
@@ -406,7 +386,7 @@ void Localizer::Impl::Finish(const AbsolutePose& pose, const std::vector<PointCo
   // carries one off-diagonal term).
   const double en = 0.5 * (pose.center_covariance(0, 1) + pose.center_covariance(1, 0));
   const cv::Matx22d h(pose.center_covariance(0, 0), en, en, pose.center_covariance(1, 1));
-  fix->covariance_en = (h + cv::Matx22d::eye() * survey_var) * o.covariance_scale;
+  fix->covariance_en = (h + cv::Matx22d::eye() * map_var) * o.covariance_scale;
   fix->radius95_m = Radius95(fix->covariance_en);
   fix->pnp_inliers = pose.inliers;
   fix->rms_px = pose.rms_px;

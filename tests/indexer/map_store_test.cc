@@ -26,7 +26,7 @@ TileData SampleTile() {
                        239.5,
                        {-0.1, 0.01, 0.001, -0.001, 0.0},
                        LensModel::kPinhole,
-                       {}});
+                       {0.25, 0.002, 0.003, 0.04}});
   t.cameras.push_back({1280,
                        960,
                        330,
@@ -77,6 +77,12 @@ TEST(MapStoreTest, TileRoundTrip) {
   EXPECT_DOUBLE_EQ(t->cameras[0].distortion[2], 0.001);
   EXPECT_EQ(t->cameras[0].lens, LensModel::kPinhole);
   EXPECT_EQ(t->cameras[1].lens, LensModel::kFisheye);  // the lens model survives the tile
+  // so does the calibration's remaining uncertainty (self-calibration's posterior)
+  EXPECT_DOUBLE_EQ(t->cameras[0].uncertainty.focal_px, 0.25);
+  EXPECT_DOUBLE_EQ(t->cameras[0].uncertainty.k1, 0.002);
+  EXPECT_DOUBLE_EQ(t->cameras[0].uncertainty.k2, 0.003);
+  EXPECT_DOUBLE_EQ(t->cameras[0].uncertainty.boresight_deg, 0.04);
+  EXPECT_EQ(t->cameras[1].uncertainty.focal_px, 0);  // unstated stays unstated
   EXPECT_DOUBLE_EQ(t->cameras[1].distortion[3], -0.001);
   ASSERT_EQ(t->images.size(), 3u);
   for (int i = 0; i < 3; ++i) {
