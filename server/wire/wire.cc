@@ -207,8 +207,7 @@ Fix FixFromProto(const v1::Fix& p) {
   f.outside_prior = p.outside_prior();
   f.prior_distance_m = p.prior_distance_m();
   const v1::QueryCamera& q = p.query_camera();
-  f.query_intrinsics = {q.focal_scale(), q.focal_scale_sigma(), q.k1_change(),
-                        q.k1_change_sigma()};
+  f.query_intrinsics = {q.focal_scale(), q.focal_scale_sigma(), q.k1_change(), q.k1_change_sigma()};
   return f;
 }
 

@@ -143,8 +143,9 @@ double SurveyMedianErrorM(const std::string& town_dir) {
 }
 
 // A drive's regression bounds, with the figures measured on seed 41 (2026-12-04, with the map's
-// and the query's self-calibration) / seed 43 (2026-12-03, before either) above each row: refined share, median and p95 error and radius95 coverage of refined fixes,
-// refined fixes more than 5 m off. Floors sit about two binomial standard errors below the lower
+// and the query's self-calibration) / seed 43 (2026-12-03, before either) above each row:
+// refined share, median and p95 error and radius95 coverage of refined fixes, refined fixes more
+// than 5 m off. Floors sit about two binomial standard errors below the lower
 // of the two shares; error ceilings at about twice the larger figure; coverage floors about 0.1
 // below the lower (seed 43's calibration draws make its radius too small: the self-calibration
 // work's target); at most two more far-off fixes than either seed had. The seeds differ a lot
