@@ -63,6 +63,33 @@ cv::Matx<double, 3, 6> CenterJacobian(const cv::Vec6d& pose) {
   return j;
 }
 
+// A residual's weight: the inverse of keypoint noise plus the point's covariance seen through
+// the camera (jx: pixels per metre of the point).
+cv::Matx22d ResidualWeight(const cv::Matx23d& jx, const cv::Matx33d& point_covariance,
+                           double pixel_sigma_px) {
+  return (cv::Matx22d::eye() * (pixel_sigma_px * pixel_sigma_px) + jx * point_covariance * jx.t())
+      .inv();
+}
+
+double VarianceFactor(double chi2, int inliers, const AbsolutePoseOptions& o) {
+  return std::max(o.min_variance_factor, chi2 / std::max(1, 2 * inliers - 6));
+}
+
+// Fills *out from a solved pose (rvec, tvec in c's conditioned frame) and its covariance.
+void SetPose(const Conditioned& c, const cv::Vec6d& pose, const cv::Matx66d& pose_covariance,
+             const std::vector<int>& in, int front, size_t correspondences, double sse_px,
+             AbsolutePose* out) {
+  const cv::Matx<double, 3, 6> jc = CenterJacobian(pose);
+  out->center_covariance = jc * pose_covariance * jc.t();
+  out->center = CenterOf(pose) + c.origin;
+  cv::Rodrigues(cv::Vec3d(pose[0], pose[1], pose[2]), out->camera_from_world);
+  out->inliers = static_cast<int>(in.size());
+  out->points_in_front = front;
+  out->inlier_mask.assign(correspondences, false);
+  for (int i : in) out->inlier_mask[i] = true;
+  out->rms_px = std::sqrt(sse_px / in.size());
+}
+
 // Information matrix of the pose and the residuals' chi-square, in pixel units.
 void PoseInformation(const std::vector<PointCorrespondence>& pts, const Conditioned& c,
                      const std::vector<int>& in, const cv::Mat& rvec, const cv::Mat& tvec,
@@ -84,10 +111,7 @@ void PoseInformation(const std::vector<PointCorrespondence>& pts, const Conditio
     const cv::Vec3d pc = r * cv::Vec3d(obj[n].x, obj[n].y, obj[n].z) + t;
     const double f = o.focal_px, z = pc[2];
     const cv::Matx23d dproj(f / z, 0, -f * pc[0] / (z * z), 0, f / z, -f * pc[1] / (z * z));
-    const cv::Matx23d jx = dproj * r;  // pixels per metre of the point
-    const cv::Matx22d cov =
-        cv::Matx22d::eye() * (o.pixel_sigma_px * o.pixel_sigma_px) + jx * p.covariance * jx.t();
-    const cv::Matx22d w = cov.inv();
+    const cv::Matx22d w = ResidualWeight(dproj * r, p.covariance, o.pixel_sigma_px);
     cv::Matx<double, 2, 6> jp;
     for (int row = 0; row < 2; ++row)
       for (int col = 0; col < 6; ++col) jp(row, col) = jac.at<double>(2 * n + row, col);
@@ -211,10 +235,7 @@ class IntrinsicsRefinement {
         j(row, 6) = d[6] * cam_.fx + d[7] * cam_.fy;
         j(row, 7) = d[10];
       }
-      const cv::Matx23d jx = jt * r;
-      const cv::Matx22d cov =
-          cv::Matx22d::eye() * Sq(o_.pixel_sigma_px) + jx * pts_[in[n]].covariance * jx.t();
-      const cv::Matx22d w = cov.inv();
+      const cv::Matx22d w = ResidualWeight(jt * r, pts_[in[n]].covariance, o_.pixel_sigma_px);
       const cv::Vec2d e(proj[n].x - observed_[in[n]].x, proj[n].y - observed_[in[n]].y);
       *h += j.t() * w * j;
       *g += j.t() * (w * e);
@@ -257,28 +278,20 @@ void RefineWithIntrinsics(const std::vector<PointCorrespondence>& pts, const Con
   int front = out->points_in_front;
   for (int round = 0; round < 2; ++round) {
     x = m.Solve(x, in, variance_factor);
-    std::vector<int> next = m.Inliers(x, &front);
+    int next_front = 0;
+    std::vector<int> next = m.Inliers(x, &next_front);
     if (static_cast<int>(next.size()) < o.min_inliers) break;
-    in = std::move(next);
+    in = std::move(next), front = next_front;
   }
   Mat8 h;
   double chi2, sse;
   m.Information(x, in, &h, &chi2, &sse);
-  const int n = static_cast<int>(in.size());
-  out->variance_factor = std::max(o.min_variance_factor, chi2 / std::max(1, 2 * n - 6));
+  out->variance_factor = VarianceFactor(chi2, static_cast<int>(in.size()), o);
   h *= 1 / out->variance_factor;
   for (int k = 6; k < 8; ++k) h(k, k) += m.prior_information()[k];
   const Mat8 cov = h.inv(cv::DECOMP_SVD);
-  const cv::Vec6d pose(x[0], x[1], x[2], x[3], x[4], x[5]);
-  const cv::Matx66d pose_cov = cov.get_minor<6, 6>(0, 0);
-  const cv::Matx<double, 3, 6> jc = CenterJacobian(pose);
-  out->center_covariance = jc * pose_cov * jc.t();
-  out->center = CenterOf(pose) + c.origin;
-  cv::Rodrigues(cv::Vec3d(x[0], x[1], x[2]), out->camera_from_world);
-  out->inliers = n, out->points_in_front = front;
-  out->inlier_mask.assign(pts.size(), false);
-  for (int i : in) out->inlier_mask[i] = true;
-  out->rms_px = std::sqrt(sse / n);
+  SetPose(c, cv::Vec6d(x[0], x[1], x[2], x[3], x[4], x[5]), cov.get_minor<6, 6>(0, 0), in, front,
+          pts.size(), sse, out);
   out->intrinsics = {x[6], std::sqrt(cov(6, 6)), x[7], std::sqrt(cov(7, 7))};
 }
 
@@ -323,23 +336,15 @@ Result<AbsolutePose> EstimateAbsolutePose(const std::vector<PointCorrespondence>
     if (static_cast<int>(in.size()) < o.min_inliers)
       return Status(StatusCode::kFailedPrecondition,
                     "too few PnP inliers (" + std::to_string(in.size()) + ")");
-    AbsolutePose out;
-    out.inliers = static_cast<int>(in.size());
-    out.points_in_front = front;
-    out.inlier_mask.assign(pts.size(), false);
-    for (int i : in) out.inlier_mask[i] = true;
     cv::Matx66d info;
     double chi2, sse;
     PoseInformation(pts, c, in, rvec, tvec, o, &info, &chi2, &sse);
-    const int dof = std::max(1, 2 * out.inliers - 6);
-    out.variance_factor = std::max(o.min_variance_factor, chi2 / dof);
-    out.rms_px = std::sqrt(sse / out.inliers);
+    AbsolutePose out;
+    out.variance_factor = VarianceFactor(chi2, static_cast<int>(in.size()), o);
     const cv::Vec6d pose(rvec.at<double>(0), rvec.at<double>(1), rvec.at<double>(2),
                          tvec.at<double>(0), tvec.at<double>(1), tvec.at<double>(2));
-    const cv::Matx<double, 3, 6> jc = CenterJacobian(pose);
-    out.center_covariance = jc * info.inv(cv::DECOMP_SVD) * jc.t() * out.variance_factor;
-    cv::Rodrigues(rvec, out.camera_from_world);
-    out.center = CenterOf(pose) + c.origin;
+    SetPose(c, pose, info.inv(cv::DECOMP_SVD) * out.variance_factor, in, front, pts.size(), sse,
+            &out);
     if (o.camera && o.camera->lens == LensModel::kPinhole)
       RefineWithIntrinsics(pts, c, o, out.variance_factor, rvec, tvec, in, &out);
     return out;
