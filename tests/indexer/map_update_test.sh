@@ -11,11 +11,8 @@ cli="$build/client/sightfix"
 town="$data/town"
 source "$(dirname "$0")/../lib/checks.sh"
 
-# The clean world's query camera.yml is exact; it says so (stated sigmas far below the default
-# 1 % of the focal length), so the answers below move only with the map, not with the engine's
-# estimate of the query's focal length (README, "Self-calibration").
-tmp_camera="$tmp/camera-exact.yml"
-{ cat "$town/query-overcast/camera.yml"; printf 'focal_length_sigma_px: 0.05\nk1_sigma: 0.0005\n'; } >"$tmp_camera"
+tmp_camera="$tmp/camera-exact.yml"  # the clean query camera, saying it is exact
+exact_camera "$town/query-overcast/camera.yml" "$tmp_camera"
 
 # Answers of a map to six query images along the route: name, quality, latitude, longitude (no
 # timings).

@@ -55,13 +55,10 @@ for form in exif gpx rig; do
     >"$tmp/build-$form.json" 2>"$tmp/build-$form.err" && ok "build from the $form survey" \
     || bad "build $form: $(tail -3 "$tmp/build-$form.err")"
 done
-# The clean world's query camera.yml is exact; a copy of the drive says so (stated sigmas far
-# below the default 1 % of the focal length), so the replays compare the maps, not the engine's
-# per-image estimate of the query's focal length (README, "Self-calibration").
+# The query drive with its exact camera.yml saying so (exact_camera, tests/lib/checks.sh).
 mkdir -p "$tmp/query-day"
 for f in "$data/town/query-day"/*; do [ "$(basename "$f")" = camera.yml ] || ln -s "$f" "$tmp/query-day/"; done
-{ cat "$data/town/query-day/camera.yml"; printf 'focal_length_sigma_px: 0.05\nk1_sigma: 0.0005\n'; } \
-  >"$tmp/query-day/camera.yml"
+exact_camera "$data/town/query-day/camera.yml" "$tmp/query-day/camera.yml"
 for form in drive exif gpx rig; do
   map="$tmp/map-$form"
   [ "$form" = drive ] && map="$data/map"
