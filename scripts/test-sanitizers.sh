@@ -39,7 +39,8 @@ if [ "$what" = ci ] || [ "$what" = asan ] || [ "$what" = all ]; then
   echo "== the suite under AddressSanitizer + UndefinedBehaviorSanitizer (leaving out labels: $labels)"
   # Leaks are checked at exit of every test program; a report fails the test.
   (cd "$san" && ASAN_OPTIONS="detect_leaks=1:allocator_may_return_null=1:max_allocation_size_mb=2048" \
-    UBSAN_OPTIONS="print_stacktrace=1:halt_on_error=1" ctest --output-on-failure --timeout 3000 -LE "$labels")
+    UBSAN_OPTIONS="print_stacktrace=1:halt_on_error=1" ctest --output-on-failure --timeout 3000 \
+    -j "$(env -u OMP_NUM_THREADS -u OMP_THREAD_LIMIT nproc)" -LE "$labels")
 fi
 if [ "$what" = ci ] || [ "$what" = fuzz ] || [ "$what" = all ]; then
   seconds="${FUZZ_SECONDS:-60}"

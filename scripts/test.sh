@@ -14,7 +14,10 @@ cd "$build"
 # Tests labelled "goal" measure targets not met yet; scripts/goals.sh runs only them. The
 # Slurm test (label slurm, about 5 minutes) runs in scripts/test-scale.sh, outside CI's budget.
 if [ "${SIGHTFIX_ONLY_GOALS:-0}" = 1 ]; then labels=(-L goal); else labels=(-LE "goal|slurm"); fi
-ctest --output-on-failure --timeout 1500 "${labels[@]}" "$@"
+# Two tests at a time on two cores: most are single-threaded; those that time themselves are
+# RUN_SERIAL (tests/CMakeLists.txt).
+ctest --output-on-failure --timeout 1500 -j "$(env -u OMP_NUM_THREADS -u OMP_THREAD_LIMIT nproc)" \
+  "${labels[@]}" "$@"
 if [ "${SIGHTFIX_SANITIZERS:-1}" = 1 ] && [ "${SIGHTFIX_ONLY_GOALS:-0}" != 1 ] && [ $# -eq 0 ]; then
   bash "$root/scripts/test-sanitizers.sh" ci
 fi
