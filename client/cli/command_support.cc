@@ -137,11 +137,40 @@ nlohmann::json FixJson(const Fix& f) {
                          {"focal_scale_sigma", c.focal_scale_sigma},
                          {"k1_change", c.k1_change},
                          {"k1_change_sigma", c.k1_change_sigma}};
+  const FixIntegrity& i = f.integrity;
+  j["integrity"] = {{"state", IntegrityStateName(i.state)}, {"usable", i.usable()}};
+  if (i.state != IntegrityState::kUnavailable) {
+    j["integrity"].update({{"horizontal_pl_m", i.horizontal_pl_m},
+                           {"lateral_pl_m", i.lateral_pl_m},
+                           {"longitudinal_pl_m", i.longitudinal_pl_m},
+                           {"integrity_risk", i.integrity_risk},
+                           {"horizontal_alert_limit_m", i.horizontal_alert_limit_m},
+                           {"lateral_alert_limit_m", i.lateral_alert_limit_m},
+                           {"longitudinal_alert_limit_m", i.longitudinal_alert_limit_m},
+                           {"overbound_scale", i.overbound_scale},
+                           {"hypotheses", i.hypotheses},
+                           {"hypotheses_skipped", i.hypotheses_skipped},
+                           {"max_test_ratio", i.max_test_ratio}});
+    if (!i.detail.empty()) j["integrity"]["detail"] = i.detail;
+  }
   if (f.prior_distance_m >= 0) {
     j["prior_distance_m"] = f.prior_distance_m;
     j["outside_prior"] = f.outside_prior;
   }
   return j;
+}
+
+std::string IntegrityLine(const FixIntegrity& i) {
+  if (i.state == IntegrityState::kUnavailable) return "integrity: unavailable (not refined)";
+  char buf[512];
+  std::snprintf(buf, sizeof buf,
+                "protection levels %.2f m horizontal, %.2f m lateral, %.2f m longitudinal at "
+                "risk %g (alert limit %.2f m)",
+                i.horizontal_pl_m, i.lateral_pl_m, i.longitudinal_pl_m, i.integrity_risk,
+                i.horizontal_alert_limit_m);
+  if (i.usable()) return std::string("integrity: usable, ") + buf;
+  return std::string("integrity: NOT usable (") + IntegrityStateName(i.state) + ": " + i.detail +
+         "), " + buf;
 }
 
 }  // namespace sightfix::cli

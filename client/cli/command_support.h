@@ -66,4 +66,9 @@ Result<std::unique_ptr<Client>> ConnectTo(const std::string& server, const std::
 // fix has a position, prior fields only when the request had a prior.
 nlohmann::json FixJson(const Fix& f);
 
+// One line for text outputs: "integrity: usable, protection levels 0.84 m horizontal, 0.52 m
+// lateral, 0.71 m longitudinal at risk 0.001 (alert limit 2.00 m)", or "integrity: NOT usable
+// (<state>: <detail>), ..." or "integrity: unavailable (not refined)".
+std::string IntegrityLine(const FixIntegrity& i);
+
 }  // namespace sightfix::cli

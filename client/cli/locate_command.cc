@@ -21,7 +21,8 @@ namespace {
 
 struct LocateFlags {
   SourceFlags source;
-  std::string image_path, camera_path, prior_text, truth_text;
+  std::string image_path, camera_path, prior_text, truth_text, alert_limits_text;
+  double integrity_risk = 0;
   std::string method = "auto";
   double heading_deg = NAN;
 };
@@ -43,6 +44,11 @@ po::options_description LocateOptions(LocateFlags* f) {
       "prior", po::value(&f->prior_text),
       "coarse prior circle LAT,LON,RADIUS_M (WGS84 degrees, m)")(
       "heading", po::value(&f->heading_deg), "coarse heading prior, degrees from north")(
+      "integrity-risk", po::value(&f->integrity_risk),
+      "risk per fix the protection levels are stated at, in (0, 0.5) (default: the map "
+      "server's, 1e-3)")("alert-limits", po::value(&f->alert_limits_text),
+                         "H[,LATERAL,LONGITUDINAL] metres: the fix is usable only with its "
+                         "protection levels within them (default 2 m horizontal; 0 = not checked)")(
       "method", po::value(&f->method),
       "pose method: auto (points, then pair), points or pair (with --map only: a "
       "server chooses its own)")("truth", po::value(&f->truth_text),
@@ -78,6 +84,18 @@ int ParseRequest(const LocateFlags& f, const po::variables_map& vm, LocateReques
   if (!f.truth_text.empty() && !ParseNumbers(f.truth_text, 2, truth))
     return Fail("--truth must look like LAT,LON", 2);
   if (vm.count("heading")) req->heading_deg = f.heading_deg;
+  if (!f.alert_limits_text.empty()) {
+    if (!ParseNumbers(f.alert_limits_text, 1, &v) && !ParseNumbers(f.alert_limits_text, 3, &v))
+      return Fail("--alert-limits must look like H or H,LATERAL,LONGITUDINAL (metres)", 2);
+    req->integrity.horizontal_alert_limit_m = v[0];
+    if (v.size() == 3)
+      req->integrity.lateral_alert_limit_m = v[1], req->integrity.longitudinal_alert_limit_m = v[2];
+  }
+  if (vm.count("integrity-risk") && !(f.integrity_risk > 0))
+    return Fail("--integrity-risk must lie in (0, 0.5)", 2);
+  req->integrity.integrity_risk = f.integrity_risk;
+  if (std::string e; !req->integrity.Validate(&e))
+    return Fail("--integrity-risk/--alert-limits: " + e, 2);
   Result<CameraModel> camera = LoadCameraModel(f.camera_path);
   if (!camera.ok()) return Fail(camera.status().ToString(), 2);
   req->camera = *camera;
@@ -125,6 +143,7 @@ void PrintFix(const Fix& fix, const LocateRequest& req, double error_m) {
     std::printf("outside the prior: %.1f m from its centre (radius %.1f m)\n", fix.prior_distance_m,
                 req.prior->radius_m);
   if (error_m >= 0) std::printf("error against truth: %.3f m\n", error_m);
+  std::printf("%s\n", IntegrityLine(fix.integrity).c_str());
   std::printf("%d 2D-3D correspondences, %d inliers; %.0f ms\n%s\n", fix.correspondences,
               fix.pnp_inliers, fix.timings.total_ms, kSafety);
 }

@@ -1,6 +1,8 @@
 #include "server/engine/absolute_pose.h"
 
 #include <cmath>
+#include <functional>
+#include <map>
 #include <opencv2/calib3d.hpp>
 
 namespace sightfix {
@@ -93,8 +95,8 @@ void SetPose(const Conditioned& c, const cv::Vec6d& pose, const cv::Matx66d& pos
 // Information matrix of the pose and the residuals' chi-square, in pixel units.
 void PoseInformation(const std::vector<PointCorrespondence>& pts, const Conditioned& c,
                      const std::vector<int>& in, const cv::Mat& rvec, const cv::Mat& tvec,
-                     const AbsolutePoseOptions& o, cv::Matx66d* info, double* chi2,
-                     double* sse_px) {
+                     const AbsolutePoseOptions& o, cv::Matx66d* info, double* chi2, double* sse_px,
+                     cv::Vec6d* gradient = nullptr) {
   std::vector<cv::Point3d> obj;
   for (int i : in) obj.push_back(c.object[i]);
   std::vector<cv::Point2d> proj;
@@ -106,6 +108,7 @@ void PoseInformation(const std::vector<PointCorrespondence>& pts, const Conditio
   const cv::Vec3d t(tvec.at<double>(0), tvec.at<double>(1), tvec.at<double>(2));
   *info = cv::Matx66d::zeros();
   *chi2 = 0, *sse_px = 0;
+  if (gradient) *gradient = cv::Vec6d::all(0);
   for (size_t n = 0; n < in.size(); ++n) {
     const PointCorrespondence& p = pts[in[n]];
     const cv::Vec3d pc = r * cv::Vec3d(obj[n].x, obj[n].y, obj[n].z) + t;
@@ -117,6 +120,7 @@ void PoseInformation(const std::vector<PointCorrespondence>& pts, const Conditio
       for (int col = 0; col < 6; ++col) jp(row, col) = jac.at<double>(2 * n + row, col);
     *info += jp.t() * w * jp;
     const cv::Vec2d e(proj[n].x - f * p.normalized.x, proj[n].y - f * p.normalized.y);
+    if (gradient) *gradient += jp.t() * (w * e);
     *chi2 += (e.t() * w * e)(0);
     *sse_px += e.dot(e);
   }
@@ -126,6 +130,63 @@ void PoseInformation(const std::vector<PointCorrespondence>& pts, const Conditio
 // on the pixels the observations came from (the supplied camera maps `normalized` back to them).
 using Vec8 = cv::Vec<double, 8>;
 using Mat8 = cv::Matx<double, 8, 8>;
+
+// The data's normal equations over a subset of the inliers, over the variance factor.
+using GroupNormal = std::function<void(const std::vector<int>&, Mat8*, Vec8*)>;
+
+// Inliers by fault hypothesis: the caller's groups, then the four image quadrants.
+std::map<std::pair<PoseSubset::Kind, int>, std::vector<int>> Members(
+    const std::vector<PointCorrespondence>& pts, const std::vector<int>& in,
+    const AbsolutePoseOptions& o) {
+  std::map<std::pair<PoseSubset::Kind, int>, std::vector<int>> members;
+  for (int i : in) {
+    if (!o.groups.empty() && o.groups[i] >= 0)
+      members[{PoseSubset::Kind::kGroup, o.groups[i]}].push_back(i);
+    const cv::Point2d& q = pts[i].normalized;
+    members[{PoseSubset::Kind::kQuadrant, (q.x >= 0) + 2 * (q.y >= 0)}].push_back(i);
+  }
+  return members;
+}
+
+// Solution separation (PoseSubset) at the solution `pose`: h and g the all-in information and
+// gradient (data over the variance factor plus priors; a 6-parameter pose padded with 1 and 0 on
+// 6, 7). The all-in and each subset's solution are one Gauss-Newton step from `pose`, so the
+// separation does not depend on how exactly `pose` minimised the weighted cost.
+void SeparateSolutions(const std::vector<PointCorrespondence>& pts, const std::vector<int>& in,
+                       const AbsolutePoseOptions& o, const cv::Vec6d& pose, const Mat8& h,
+                       const Vec8& g, const GroupNormal& group_normal, AbsolutePose* out) {
+  const cv::Matx<double, 3, 6> jc = CenterJacobian(pose);
+  const Mat8 cov = h.inv(cv::DECOMP_SVD);
+  const Vec8 all_in = -(cov * g);
+  for (const auto& [key, members] : Members(pts, in, o)) {
+    if (static_cast<int>(in.size() - members.size()) < o.min_inliers) {
+      ++out->subsets_skipped;
+      continue;
+    }
+    Mat8 hj;
+    Vec8 gj;
+    group_normal(members, &hj, &gj);
+    const Mat8 rest = (h - hj).inv(cv::DECOMP_SVD);
+    const Vec8 shift = -(rest * (g - gj)) - all_in;
+    PoseSubset s;
+    s.kind = key.first, s.index = key.second;
+    s.left_out = static_cast<int>(members.size());
+    s.center_shift = jc * cv::Vec6d(shift[0], shift[1], shift[2], shift[3], shift[4], shift[5]);
+    const cv::Matx66d rest6 = rest.get_minor<6, 6>(0, 0), cov6 = cov.get_minor<6, 6>(0, 0);
+    s.shift_covariance = jc * (rest6 - cov6) * jc.t();
+    s.center_covariance = jc * rest6 * jc.t();
+    out->subsets.push_back(s);
+  }
+}
+
+// A 6-parameter pose's normal equations padded to 8 (1 and 0 on the unused 6, 7).
+void Pad(const cv::Matx66d& h6, const cv::Vec6d& g6, double scale, Mat8* h, Vec8* g) {
+  *h = Mat8::zeros(), *g = Vec8::zeros();
+  for (int r = 0; r < 6; ++r) {
+    (*g)[r] = g6[r] * scale;
+    for (int c = 0; c < 6; ++c) (*h)(r, c) = h6(r, c) * scale;
+  }
+}
 
 class IntrinsicsRefinement {
  public:
@@ -190,6 +251,11 @@ class IntrinsicsRefinement {
                    double* sse) const {
     Vec8 g;
     Normal(x, in, h, &g, chi2, sse);
+  }
+  // The data's normal equations (J^T W J, J^T W e) over `in` at x.
+  void NormalEquations(const Vec8& x, const std::vector<int>& in, Mat8* h, Vec8* g) const {
+    double chi2, sse;
+    Normal(x, in, h, g, &chi2, &sse);
   }
   const Vec8& prior_information() const { return prior_; }
 
@@ -290,14 +356,33 @@ void RefineWithIntrinsics(const std::vector<PointCorrespondence>& pts, const Con
   h *= 1 / out->variance_factor;
   for (int k = 6; k < 8; ++k) h(k, k) += m.prior_information()[k];
   const Mat8 cov = h.inv(cv::DECOMP_SVD);
-  SetPose(c, cv::Vec6d(x[0], x[1], x[2], x[3], x[4], x[5]), cov.get_minor<6, 6>(0, 0), in, front,
-          pts.size(), sse, out);
+  const cv::Vec6d pose(x[0], x[1], x[2], x[3], x[4], x[5]);
+  SetPose(c, pose, cov.get_minor<6, 6>(0, 0), in, front, pts.size(), sse, out);
   out->intrinsics = {x[6], std::sqrt(cov(6, 6)), x[7], std::sqrt(cov(7, 7))};
+  if (!o.separate_solutions) return;
+  const double scale = 1 / out->variance_factor;
+  Mat8 unused;
+  Vec8 g;
+  m.NormalEquations(x, in, &unused, &g);
+  g *= scale;
+  for (int k = 6; k < 8; ++k) g[k] += m.prior_information()[k] * x[k];
+  SeparateSolutions(
+      pts, in, o, pose, h, g,
+      [&](const std::vector<int>& members, Mat8* hj, Vec8* gj) {
+        m.NormalEquations(x, members, hj, gj);
+        *hj *= scale, *gj *= scale;
+      },
+      out);
 }
 
 }  // namespace
 
 bool AbsolutePoseOptions::Validate(std::string* error) const {
+  for (int g : groups)
+    if (g < -1) {
+      if (error) *error = "absolute pose: groups must be labels >= 0, or -1 for none";
+      return false;
+    }
   if (threshold_px > 0 && focal_px > 0 && min_inliers >= 6 && iterations > 0 && confidence > 0 &&
       confidence < 1 && pixel_sigma_px > 0 && min_variance_factor > 0)
     return true;
@@ -312,6 +397,8 @@ Result<AbsolutePose> EstimateAbsolutePose(const std::vector<PointCorrespondence>
                                           const AbsolutePoseOptions& o) {
   std::string error;
   if (!o.Validate(&error)) return Status::InvalidArgument(error);
+  if (!o.groups.empty() && o.groups.size() != pts.size())
+    return Status::InvalidArgument("absolute pose: groups must hold one label per correspondence");
   if (static_cast<int>(pts.size()) < o.min_inliers)
     return Status(StatusCode::kFailedPrecondition,
                   "too few 2D-3D correspondences (" + std::to_string(pts.size()) + ")");
@@ -337,16 +424,34 @@ Result<AbsolutePose> EstimateAbsolutePose(const std::vector<PointCorrespondence>
       return Status(StatusCode::kFailedPrecondition,
                     "too few PnP inliers (" + std::to_string(in.size()) + ")");
     cv::Matx66d info;
+    cv::Vec6d gradient;
     double chi2, sse;
-    PoseInformation(pts, c, in, rvec, tvec, o, &info, &chi2, &sse);
+    PoseInformation(pts, c, in, rvec, tvec, o, &info, &chi2, &sse, &gradient);
     AbsolutePose out;
     out.variance_factor = VarianceFactor(chi2, static_cast<int>(in.size()), o);
     const cv::Vec6d pose(rvec.at<double>(0), rvec.at<double>(1), rvec.at<double>(2),
                          tvec.at<double>(0), tvec.at<double>(1), tvec.at<double>(2));
     SetPose(c, pose, info.inv(cv::DECOMP_SVD) * out.variance_factor, in, front, pts.size(), sse,
             &out);
-    if (o.camera && o.camera->lens == LensModel::kPinhole)
+    if (o.camera && o.camera->lens == LensModel::kPinhole) {
       RefineWithIntrinsics(pts, c, o, out.variance_factor, rvec, tvec, in, &out);
+    } else if (o.separate_solutions) {
+      const double scale = 1 / out.variance_factor;
+      Mat8 h;
+      Vec8 g;
+      Pad(info, gradient, scale, &h, &g);
+      h(6, 6) = h(7, 7) = 1;
+      SeparateSolutions(
+          pts, in, o, pose, h, g,
+          [&](const std::vector<int>& members, Mat8* hj, Vec8* gj) {
+            cv::Matx66d i6;
+            cv::Vec6d g6;
+            double unused_chi2, unused_sse;
+            PoseInformation(pts, c, members, rvec, tvec, o, &i6, &unused_chi2, &unused_sse, &g6);
+            Pad(i6, g6, scale, hj, gj);
+          },
+          &out);
+    }
     return out;
   } catch (const cv::Exception& e) {
     return Status::Internal(std::string("PnP failed: ") + e.what());

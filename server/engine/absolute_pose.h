@@ -43,6 +43,21 @@ struct IntrinsicsChange {
   double k1_change = 0, k1_change_sigma = 0;
 };
 
+// A fault hypothesis of solution separation (protection_levels.h): the solution without the
+// inliers of one group, linearised at the all-in solution (one Gauss-Newton step from it, exact
+// for a linear model; the separation's covariance is the subset's minus the all-in's).
+struct PoseSubset {
+  enum class Kind { kGroup, kQuadrant };
+  Kind kind = Kind::kGroup;
+  // kGroup: the AbsolutePoseOptions::groups label; kQuadrant: 0 upper-left, 1 upper-right,
+  // 2 lower-left, 3 lower-right (of the image, about the optical axis).
+  int index = 0;
+  int left_out = 0;               // inliers in the group
+  cv::Vec3d center_shift;         // subset centre minus the all-in centre, world metres
+  cv::Matx33d shift_covariance;   // of center_shift with no fault, m^2
+  cv::Matx33d center_covariance;  // of the subset centre, m^2 (as center_covariance)
+};
+
 struct AbsolutePoseOptions {
   double threshold_px = 3.0;  // RANSAC and inlier threshold, pixels at focal_px
   double focal_px = 500;
@@ -55,6 +70,11 @@ struct AbsolutePoseOptions {
   // The query camera (`normalized` undistorted with it). Pinhole: focal and k1 estimated as
   // above. Unset, or a fisheye lens: intrinsics held exact.
   std::optional<CameraModel> camera;
+  // Solution separation: a label >= 0 per correspondence (e.g. the reference image it came
+  // from; -1 none), each label a group; empty: quadrants only. A group (or quadrant) is tested
+  // when leaving it out keeps min_inliers inliers; the others are counted as skipped.
+  std::vector<int> groups;
+  bool separate_solutions = true;  // false: no subsets (the pose alone)
   bool Validate(std::string* error) const;
 };
 
@@ -68,6 +88,8 @@ struct AbsolutePose {
   double variance_factor = 1;     // applied to center_covariance
   int points_in_front = 0;        // inliers with positive depth
   IntrinsicsChange intrinsics;
+  std::vector<PoseSubset> subsets;  // tested fault hypotheses
+  int subsets_skipped = 0;          // groups too large to leave out
 };
 
 // kFailedPrecondition with a reason when there are too few correspondences or inliers.

@@ -17,6 +17,7 @@
 #include "indexer/map/tile_key.h"
 #include "indexer/vision/global_descriptor.h"
 #include "server/engine/confidence.h"
+#include "server/engine/fix_integrity.h"
 #include "server/engine/map_uncertainty.h"
 #include "server/engine/place_ambiguity.h"
 #include "server/engine/reference_pair.h"
@@ -58,6 +59,7 @@ Status CheckRequest(const LocateRequest& r) {
   }
   if (r.heading_deg && !std::isfinite(*r.heading_deg))
     return Status::InvalidArgument("heading_deg must be finite");
+  if (std::string e; !r.integrity.Validate(&e)) return Status::InvalidArgument(e);
   return Status::Ok();
 }
 
@@ -90,6 +92,10 @@ bool LocalizerOptions::Validate(std::string* error) const {
   if (!(coarse_radius_m > 0)) return fail("coarse_radius_m must be > 0");
   if (!(distinct_place_m > 0)) return fail("distinct_place_m must be > 0");
   if (!(ambiguity_ratio >= 0)) return fail("ambiguity_ratio must be >= 0");
+  if (!(ambiguity_flag_ratio >= 0)) return fail("ambiguity_flag_ratio must be >= 0");
+  if (!(default_alert_limit_m > 0)) return fail("default_alert_limit_m must be > 0");
+  std::string p;
+  if (!protection.Validate(&p)) return fail("protection: " + p);
   if (!(time_budget_ms >= 0)) return fail("time_budget_ms must be >= 0");
   if (env == nullptr) return fail("env must not be null");
   std::string e;
@@ -116,13 +122,15 @@ struct Localizer::Impl {
                                std::vector<ReferenceUse>* uses) const;
   std::vector<PointCorrespondence> FromPoints(const LocalFeatures& q,
                                               const std::vector<Verified>& v, const EnuFrame& f,
-                                              std::vector<ReferenceUse>* uses) const;
+                                              std::vector<ReferenceUse>* uses,
+                                              std::vector<int>* groups) const;
   void Finish(const AbsolutePose& pose, const std::vector<PointCorrespondence>& pts,
-              const std::vector<Verified>& v, const EnuFrame& frame, Fix* fix) const;
+              const std::vector<Verified>& v, const EnuFrame& frame, const IntegrityRequest& ir,
+              Fix* fix) const;
   void Coarse(const std::vector<Verified>& v, const std::string& reason, Fix* fix) const;
   // REQUIRES: !verified->empty(). Sets each reference's centre and rotation in the frame of
   // the first, then the fix.
-  void Pose(const LocalFeatures& q, const CameraModel& camera, const std::string& note,
+  void Pose(const LocalFeatures& q, const LocateRequest& r, const std::string& note,
             std::vector<Verified>* verified, Fix* fix) const;
 };
 
@@ -303,13 +311,16 @@ std::vector<Verified> Localizer::Impl::Verify(const LocalFeatures& q,
   return out;
 }
 
-std::vector<PointCorrespondence> Localizer::Impl::FromPoints(
-    const LocalFeatures& q, const std::vector<Verified>& verified, const EnuFrame& frame,
-    std::vector<ReferenceUse>* uses) const {
+std::vector<PointCorrespondence> Localizer::Impl::FromPoints(const LocalFeatures& q,
+                                                             const std::vector<Verified>& verified,
+                                                             const EnuFrame& frame,
+                                                             std::vector<ReferenceUse>* uses,
+                                                             std::vector<int>* groups) const {
   std::vector<PointCorrespondence> out;
   std::set<std::pair<int, int>> seen_points;
   std::set<int> seen_query;
-  for (const Verified& v : verified) {
+  for (size_t i = 0; i < verified.size(); ++i) {
+    const Verified& v = verified[i];
     const ReferenceImage& ref = v.c.tile->data.images[v.c.image];
     int given = 0;
     for (auto [qk, rk] : v.matches) {
@@ -320,6 +331,7 @@ std::vector<PointCorrespondence> Localizer::Impl::FromPoints(
       const MapPoint& p = v.c.tile->data.points[pid];
       out.push_back({ToFrame(frame, *v.c.tile, p.enu), p.covariance, q.normalized[qk],
                      std::max(2, p.observations)});
+      groups->push_back(static_cast<int>(i));
       ++given;
     }
     for (ReferenceUse& u : *uses)
@@ -346,7 +358,7 @@ void Localizer::Impl::Coarse(const std::vector<Verified>& v, const std::string& 
 
 void Localizer::Impl::Finish(const AbsolutePose& pose, const std::vector<PointCorrespondence>& pts,
                              const std::vector<Verified>& verified, const EnuFrame& frame,
-                             Fix* fix) const {
+                             const IntegrityRequest& ir, Fix* fix) const {
   const GeoPoint g = frame.ToGeo(pose.center);
   const cv::Matx33d enu_from_camera = pose.camera_from_world.t();
   const double heading = AttitudeFromEnuFromCamera(enu_from_camera).heading_deg;
@@ -373,7 +385,8 @@ void Localizer::Impl::Finish(const AbsolutePose& pose, const std::vector<PointCo
                   "heading differs from the references' by " +
                       std::to_string(int(nearest_heading_diff)) + " deg (check failed)",
                   fix);
-  if (auto why = AmbiguityReason(verified, pose.center, o.distinct_place_m, o.ambiguity_ratio)) {
+  const PlaceEvidence places = WeighPlaces(verified, pose.center, o.distinct_place_m);
+  if (auto why = AmbiguityReason(places, o.ambiguity_ratio)) {
     fix->reason = *why;
     return;  // quality none: one of two look-alike places, not known which
   }
@@ -391,13 +404,16 @@ void Localizer::Impl::Finish(const AbsolutePose& pose, const std::vector<PointCo
   fix->pnp_inliers = pose.inliers;
   fix->rms_px = pose.rms_px;
   fix->query_intrinsics = pose.intrinsics;
+  std::vector<std::string> names;
+  for (const Verified& v : verified) names.push_back(v.c.tile->data.images[v.c.image].name);
+  fix->integrity = AssessIntegrity(pose, *fix, map_var, names, places, o, ir);
 }
 
 // Stage 4 and on: the metric pose from the map's points, else from a reference pair (as
 // o.method allows), then the checks; coarse with the reasons when no pose passes.
-void Localizer::Impl::Pose(const LocalFeatures& q, const CameraModel& camera,
-                           const std::string& note, std::vector<Verified>* verified,
-                           Fix* fix) const {
+void Localizer::Impl::Pose(const LocalFeatures& q, const LocateRequest& r, const std::string& note,
+                           std::vector<Verified>* verified, Fix* fix) const {
+  const CameraModel& camera = r.camera;
   const EnuFrame& frame = verified->front().c.tile->enu;
   for (Verified& v : *verified) {
     const ReferenceImage& ref = v.c.tile->data.images[v.c.image];
@@ -414,7 +430,7 @@ void Localizer::Impl::Pose(const LocalFeatures& q, const CameraModel& camera,
   std::vector<PointCorrespondence> pts;
   std::string why;
   if (o.method != PoseMethod::kPair) {
-    pts = FromPoints(q, *verified, frame, &fix->references);
+    pts = FromPoints(q, *verified, frame, &fix->references, &po.groups);
     fix->correspondences = static_cast<int>(pts.size());
     pose = EstimateAbsolutePose(pts, po);
     fix->method = "points";
@@ -422,6 +438,7 @@ void Localizer::Impl::Pose(const LocalFeatures& q, const CameraModel& camera,
   }
   if (!pose.ok() && o.method != PoseMethod::kPoints) {
     pts = PairCorrespondences(q, *verified, o.min_pair_baseline_m, o.pixel_sigma_px);
+    po.groups.clear();
     fix->correspondences = static_cast<int>(pts.size());
     pose = EstimateAbsolutePose(pts, po);
     fix->method = "pair";
@@ -436,7 +453,7 @@ void Localizer::Impl::Pose(const LocalFeatures& q, const CameraModel& camera,
           return ToFrame(frame, *v.c.tile, v.c.tile->data.points[pid].enu);
         },
         verified);
-    Finish(*pose, pts, *verified, frame, fix);
+    Finish(*pose, pts, *verified, frame, r.integrity, fix);
   } else
     Coarse(*verified, note + why, fix);
 }
@@ -465,7 +482,7 @@ Result<Fix> Localizer::Locate(const LocateRequest& r) const {
                                    : "no candidate passed geometric verification"),
              &fix);
   } else {
-    m.Pose(*q, r.camera, note, &verified, &fix);
+    m.Pose(*q, r, note, &verified, &fix);
   }
   fix.timings.pose_ms = MsSince(t0);
   if (r.prior && fix.quality != FixQuality::kNone) {

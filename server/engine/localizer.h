@@ -35,6 +35,7 @@
 #include "indexer/map/map_store.h"
 #include "indexer/vision/local_features.h"
 #include "server/engine/absolute_pose.h"
+#include "server/engine/protection_levels.h"
 #include "server/engine/tile_cache.h"
 
 namespace sightfix {
@@ -80,7 +81,15 @@ struct LocalizerOptions {
   // least ambiguity_ratio of its best reference's inliers is no fix (reason "ambiguous"):
   // where two places look alike, the answer is none rather than one of them with a small radius.
   double distinct_place_m = 30;
-  double ambiguity_ratio = 0.5;      // 0 would call every rival decisive; > 1 disables the check
+  double ambiguity_ratio = 0.5;  // 0 would call every rival decisive; > 1 disables the check
+  // A rival place with at least this share of the fix's inliers (below ambiguity_ratio, which
+  // withholds the fix) leaves the fix refined but not usable (FixIntegrity, kPlaceAmbiguity).
+  double ambiguity_flag_ratio = 0.25;
+  // Integrity (protection_levels.h): the default risk, the false-alert budget and the CDF
+  // overbound. A request may ask for another risk.
+  ProtectionParameters protection;
+  // The horizontal alert limit a request that states none is judged at, metres.
+  double default_alert_limit_m = 2;
   double min_pair_baseline_m = 1.5;  // pair fallback: references closer give weak geometry
   double coarse_radius_m = 50;       // radius95 of a coarse (retrieval-only) fix
   double time_budget_ms = 0;         // > 0: stop verifying new candidates past this
@@ -96,6 +105,15 @@ struct PriorCircle {
   double lat_deg = 0, lon_deg = 0, radius_m = 0;
 };
 
+// What a caller asks of a fix's integrity: the risk its protection levels are stated at (0: the
+// server's, LocalizerOptions::protection) and the alert limits, metres, at which it is usable (0:
+// not checked; a horizontal limit of 0 means LocalizerOptions::default_alert_limit_m).
+struct IntegrityRequest {
+  double integrity_risk = 0;
+  double horizontal_alert_limit_m = 0, lateral_alert_limit_m = 0, longitudinal_alert_limit_m = 0;
+  bool Validate(std::string* error) const;  // risk in [0, 0.5), limits finite and >= 0
+};
+
 struct LocateRequest {
   // One of: a decoded 8-bit image, encoded JPEG/PNG bytes, or precomputed RootSIFT features
   // (keypoints' `normalized` must be undistorted with `camera`).
@@ -106,6 +124,30 @@ struct LocateRequest {
   double capture_time_s = 0;  // Unix seconds, echoed in the fix
   std::optional<PriorCircle> prior;
   std::optional<double> heading_deg;  // coarse heading prior: candidates facing away are skipped
+  IntegrityRequest integrity;
+};
+
+// Whether a fix may be used where its error must stay within the alert limits.
+enum class IntegrityState {
+  kUnavailable,     // not refined: no protection levels
+  kUsable,          // protection levels within every alert limit, no fault seen
+  kOverAlertLimit,  // a protection level exceeds its alert limit
+  kFaultDetected,   // a group of correspondences pulls the fix away (solution separation)
+  kPlaceAmbiguity,  // another place verified with ambiguity_flag_ratio of this one's inliers
+};
+const char* IntegrityStateName(IntegrityState s);  // "unavailable", "usable", ...
+
+struct FixIntegrity {
+  IntegrityState state = IntegrityState::kUnavailable;
+  bool usable() const { return state == IntegrityState::kUsable; }
+  // Protection levels, metres (0 when unavailable), at integrity_risk.
+  double horizontal_pl_m = 0, lateral_pl_m = 0, longitudinal_pl_m = 0;
+  double integrity_risk = 0;
+  double horizontal_alert_limit_m = 0, lateral_alert_limit_m = 0, longitudinal_alert_limit_m = 0;
+  double overbound_scale = 1;
+  int hypotheses = 0, hypotheses_skipped = 0;  // fault hypotheses tested and too large to test
+  double max_test_ratio = 0;                   // solution separation: 1 is the threshold
+  std::string detail;                          // why not usable
 };
 
 enum class FixQuality { kNone, kCoarse, kRefined };
@@ -139,7 +181,8 @@ struct Fix {
   std::string method;  // "points", "pair", "retrieval" or empty
   int correspondences = 0, pnp_inliers = 0;
   double rms_px = 0;
-  IntrinsicsChange query_intrinsics;     // as the metric pose estimated them (refined fixes)
+  IntrinsicsChange query_intrinsics;  // as the metric pose estimated them (refined fixes)
+  FixIntegrity integrity;
   std::vector<ReferenceUse> references;  // every retrieval candidate, best first
   StageTimings timings;
   std::string reason;  // why not refined (empty when refined)

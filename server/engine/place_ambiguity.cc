@@ -37,24 +37,29 @@ void WeighSupport(const std::vector<cv::Point2d>& query_normalized,
   }
 }
 
-std::optional<std::string> AmbiguityReason(const std::vector<Verified>& verified,
-                                           const cv::Vec3d& center, double distinct_m,
-                                           double ratio) {
-  int here = 0, rival = 0;
-  double rival_m = 0;
+PlaceEvidence WeighPlaces(const std::vector<Verified>& verified, const cv::Vec3d& center,
+                          double distinct_m) {
+  PlaceEvidence e;
   for (const Verified& v : verified) {
     const double d = cv::norm(v.center - center);
     const bool agrees =
         v.tested >= kMinTestedMatches ? 2 * v.agreeing >= v.tested : d <= distinct_m;
     if (agrees)
-      here = std::max(here, v.inliers);
-    else if (d > distinct_m && v.inliers > rival)
-      rival = v.inliers, rival_m = d;
+      e.here = std::max(e.here, v.inliers);
+    else if (d > distinct_m && v.inliers > e.rival)
+      e.rival = v.inliers, e.rival_m = d;
   }
-  if (rival == 0 || rival < ratio * here) return std::nullopt;
-  return "ambiguous: a place " + std::to_string(static_cast<int>(rival_m)) +
-         " m away verified with " + std::to_string(rival) + " inliers, this one with " +
-         std::to_string(here);
+  return e;
+}
+
+std::string PlaceEvidence::Describe() const {
+  return "a place " + std::to_string(static_cast<int>(rival_m)) + " m away verified with " +
+         std::to_string(rival) + " inliers, this one with " + std::to_string(here);
+}
+
+std::optional<std::string> AmbiguityReason(const PlaceEvidence& evidence, double ratio) {
+  if (!evidence.RivalReaches(ratio)) return std::nullopt;
+  return "ambiguous: " + evidence.Describe();
 }
 
 }  // namespace sightfix

@@ -38,9 +38,18 @@ inline constexpr int kMinTestedMatches = 10;
 
 // With `center` the fix's camera centre in the frame of verified[i].center: the strongest
 // reference speaking for the fix's place (here) against the strongest rival, by
-// essential-matrix inliers. Returns the reason when rival > 0 and rival >= ratio * here.
-std::optional<std::string> AmbiguityReason(const std::vector<Verified>& verified,
-                                           const cv::Vec3d& center, double distinct_m,
-                                           double ratio);
+// essential-matrix inliers, and how far the rival lies (metres; 0 without one).
+struct PlaceEvidence {
+  int here = 0, rival = 0;
+  double rival_m = 0;
+  // True when rival > 0 and rival >= ratio * here.
+  bool RivalReaches(double ratio) const { return rival > 0 && rival >= ratio * here; }
+  std::string Describe() const;  // "a place 142 m away verified with 37 inliers, this one with 40"
+};
+PlaceEvidence WeighPlaces(const std::vector<Verified>& verified, const cv::Vec3d& center,
+                          double distinct_m);
+
+// "ambiguous: " + the evidence when its rival reaches ratio.
+std::optional<std::string> AmbiguityReason(const PlaceEvidence& evidence, double ratio);
 
 }  // namespace sightfix

@@ -125,6 +125,9 @@ Result<LocateRequest> RequestFromProto(const v1::LocateRequest& r, const Calibra
   if (r.has_prior())
     out.prior = PriorCircle{r.prior().lat_deg(), r.prior().lon_deg(), r.prior().radius_m()};
   if (r.has_heading()) out.heading_deg = r.heading_deg();
+  const v1::IntegrityRequest& ir = r.integrity();
+  out.integrity = {ir.integrity_risk(), ir.horizontal_alert_limit_m(), ir.lateral_alert_limit_m(),
+                   ir.longitudinal_alert_limit_m()};
   return out;
 }
 
@@ -140,6 +143,15 @@ v1::LocateRequest RequestToProto(const std::string& image_bytes, const CameraMod
     r.mutable_prior()->set_radius_m(fields.prior->radius_m);
   }
   if (fields.heading_deg) r.set_has_heading(true), r.set_heading_deg(*fields.heading_deg);
+  const IntegrityRequest& ir = fields.integrity;
+  if (ir.integrity_risk != 0 || ir.horizontal_alert_limit_m != 0 || ir.lateral_alert_limit_m != 0 ||
+      ir.longitudinal_alert_limit_m != 0) {
+    v1::IntegrityRequest* w = r.mutable_integrity();
+    w->set_integrity_risk(ir.integrity_risk);
+    w->set_horizontal_alert_limit_m(ir.horizontal_alert_limit_m);
+    w->set_lateral_alert_limit_m(ir.lateral_alert_limit_m);
+    w->set_longitudinal_alert_limit_m(ir.longitudinal_alert_limit_m);
+  }
   return r;
 }
 
@@ -174,6 +186,17 @@ v1::Fix FixToProto(const Fix& f) {
   v1::QueryCamera* q = p.mutable_query_camera();
   q->set_focal_scale(c.focal_scale), q->set_focal_scale_sigma(c.focal_scale_sigma);
   q->set_k1_change(c.k1_change), q->set_k1_change_sigma(c.k1_change_sigma);
+  const FixIntegrity& i = f.integrity;
+  v1::Integrity* w = p.mutable_integrity();
+  w->set_state(static_cast<v1::Integrity::State>(i.state));
+  w->set_horizontal_pl_m(i.horizontal_pl_m), w->set_lateral_pl_m(i.lateral_pl_m);
+  w->set_longitudinal_pl_m(i.longitudinal_pl_m), w->set_integrity_risk(i.integrity_risk);
+  w->set_horizontal_alert_limit_m(i.horizontal_alert_limit_m);
+  w->set_lateral_alert_limit_m(i.lateral_alert_limit_m);
+  w->set_longitudinal_alert_limit_m(i.longitudinal_alert_limit_m);
+  w->set_overbound_scale(i.overbound_scale), w->set_hypotheses(i.hypotheses);
+  w->set_hypotheses_skipped(i.hypotheses_skipped), w->set_max_test_ratio(i.max_test_ratio);
+  w->set_detail(i.detail);
   return p;
 }
 
@@ -208,6 +231,19 @@ Fix FixFromProto(const v1::Fix& p) {
   f.prior_distance_m = p.prior_distance_m();
   const v1::QueryCamera& q = p.query_camera();
   f.query_intrinsics = {q.focal_scale(), q.focal_scale_sigma(), q.k1_change(), q.k1_change_sigma()};
+  const v1::Integrity& w = p.integrity();
+  FixIntegrity& i = f.integrity;
+  // A state this build does not know reads as unavailable: never usable by default.
+  i.state = v1::Integrity::State_IsValid(w.state()) ? static_cast<IntegrityState>(w.state())
+                                                    : IntegrityState::kUnavailable;
+  i.horizontal_pl_m = w.horizontal_pl_m(), i.lateral_pl_m = w.lateral_pl_m();
+  i.longitudinal_pl_m = w.longitudinal_pl_m(), i.integrity_risk = w.integrity_risk();
+  i.horizontal_alert_limit_m = w.horizontal_alert_limit_m();
+  i.lateral_alert_limit_m = w.lateral_alert_limit_m();
+  i.longitudinal_alert_limit_m = w.longitudinal_alert_limit_m();
+  i.overbound_scale = w.overbound_scale(), i.hypotheses = w.hypotheses();
+  i.hypotheses_skipped = w.hypotheses_skipped(), i.max_test_ratio = w.max_test_ratio();
+  i.detail = w.detail();
   return f;
 }
 

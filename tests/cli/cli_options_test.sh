@@ -53,6 +53,16 @@ expect "locate --heading 90 (the drive's): a fix" 0 '"quality": "refined"' -- \
   "$cli" "${loc[@]}" --map "$map" --heading 90 --json
 expect "locate --heading 270 (facing away): no fix, exit 3" 3 '"quality": "none"' -- \
   "$cli" "${loc[@]}" --map "$map" --heading 270 --json
+expect "locate --map: the integrity line in text" 0 "^integrity: usable, protection levels" -- \
+  "$cli" "${loc[@]}" --map "$map"
+expect "locate --alert-limits 0.001: protection levels over it, not usable" 0 \
+  '"state": "over_alert_limit"' -- "$cli" "${loc[@]}" --map "$map" --alert-limits 0.001 --json
+expect "locate --alert-limits with two numbers: refused" 2 "alert-limits must look like" -- \
+  "$cli" "${loc[@]}" --map "$map" --alert-limits 1,2
+expect "locate --alert-limits -1: refused" 2 "alert limits must be finite and >= 0" -- \
+  "$cli" "${loc[@]}" --map "$map" --alert-limits -1
+expect "locate --integrity-risk 0.7: refused" 2 "integrity_risk must lie in" -- \
+  "$cli" "${loc[@]}" --map "$map" --integrity-risk 0.7
 
 echo "== pair: IMAGE_A IMAGE_B --camera --camera-b --json"
 expect "pair IMAGE_A IMAGE_B --camera: a relative pose in text" 0 "^rotation [0-9.]* deg" -- \
@@ -120,6 +130,13 @@ expect "locate --server A,B: fails over from a dead replica" 0 "^refined fix (po
 # few of its sigmas of the supplied one (the service data's camera.yml is exact), sigma > 0.
 [ "$(field "$tmp/srv-prior.json" 'abs(j["query_camera"]["focal_scale"]) < 4 * j["query_camera"]["focal_scale_sigma"] and j["query_camera"]["focal_scale_sigma"] > 0')" = True ] &&
   ok "locate --server --json: query_camera crosses the wire" || bad "query_camera: $(head -c 400 "$tmp/srv-prior.json")"
+# The integrity request reaches the server (a tighter risk: larger levels; its lateral limit is
+# judged) and the answer's integrity crosses back.
+"$cli" "${loc[@]}" "${srv[@]}" --json --integrity-risk 1e-7 --alert-limits 5,0.0001,5 \
+  >"$tmp/srv-integrity.json" 2>&1
+[ "$(field "$tmp/srv-integrity.json" 'j["integrity"]["state"] == "over_alert_limit" and j["integrity"]["integrity_risk"] == 1e-7 and j["integrity"]["lateral_alert_limit_m"] == 0.0001 and j["integrity"]["hypotheses"] > 0 and j["integrity"]["lateral_pl_m"] > 0')" = True ] &&
+  ok "locate --server --integrity-risk --alert-limits: the request and the integrity cross the wire" ||
+  bad "server integrity: $(head -c 600 "$tmp/srv-integrity.json")"
 expect "locate --server --heading 270: the heading reaches the server" 3 '"quality": "none"' -- \
   "$cli" "${loc[@]}" "${srv[@]}" --heading 270 --json
 expect "locate --deadline-ms 1: the call runs out of time" 2 "deadline\|DEADLINE" -- \

@@ -55,6 +55,11 @@ int main(int argc, char** argv) {
   c->set_focal_length_sigma_px(0.5), c->set_k1_sigma(0.01);
   e.set_body(r.SerializeAsString());
   Write(out / "frame/locate_png_calibration_sigmas", EncodeFrame(e));
+  v1::IntegrityRequest* integrity = r.mutable_integrity();
+  integrity->set_integrity_risk(1e-4), integrity->set_horizontal_alert_limit_m(2);
+  integrity->set_lateral_alert_limit_m(0.5), integrity->set_longitudinal_alert_limit_m(1);
+  e.set_body(r.SerializeAsString());
+  Write(out / "frame/locate_png_integrity", EncodeFrame(e));
 
   // A tile with one camera, two images of three keypoints, two points.
   TileData t;

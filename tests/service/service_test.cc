@@ -241,6 +241,12 @@ TEST_F(ServiceTest, BadRequestsGetClearStatuses) {
   r.mutable_calibration()->set_k1_sigma(std::nan(""));
   EXPECT_EQ(code_of("Locate", r), v1::Status::INVALID_ARGUMENT);  // NaN calibration sigma
   r = good;
+  r.mutable_integrity()->set_integrity_risk(0.7);
+  EXPECT_EQ(code_of("Locate", r), v1::Status::INVALID_ARGUMENT);  // integrity risk over 0.5
+  r = good;
+  r.mutable_integrity()->set_lateral_alert_limit_m(-1);
+  EXPECT_EQ(code_of("Locate", r), v1::Status::INVALID_ARGUMENT);  // negative alert limit
+  r = good;
   r.clear_calibration();
   r.set_calibration_id("17/1/2#0");
   EXPECT_EQ(code_of("Locate", r), v1::Status::NOT_FOUND);  // unknown calibration id
