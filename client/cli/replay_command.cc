@@ -15,6 +15,7 @@
 #include "client/cli/command_support.h"
 #include "client/cli/commands.h"
 #include "client/eval/integrity.h"
+#include "client/eval/protection_evidence.h"
 #include "client/eval/route_eval.h"
 #include "client/eval/route_report.h"
 #include "client/monitor/gnss_stream.h"
@@ -258,6 +259,7 @@ void PrintReplaySummary(const RouteReport& r, const std::string& out) {
               s.latency_ms_p50, s.latency_ms_p95, s.latency_ms_p99);
   std::printf("integrity, %s\n", IntegrityLine(s.misleading).c_str());
   std::printf("integrity, %s\n", IntegrityLine(s.confidently_wrong).c_str());
+  std::printf("integrity, %s\n", ProtectionLines(s.protection).c_str());
   std::printf("%s\n", IntervalLegend(s).c_str());
   if (r.spoofing) PrintSpoofing(*r.spoofing);
   std::printf(

@@ -16,6 +16,7 @@
 #include <random>
 
 #include "client/eval/integrity.h"
+#include "client/eval/protection_evidence.h"
 #include "client/eval/route_view.h"
 #include "client/eval/street_segments.h"
 #include "indexer/base/geo.h"
@@ -382,6 +383,7 @@ RouteSummary Summarize(const std::vector<QueryResult>& results, const SummaryOpt
   s.segments = SegmentSummaries(results, cut);
   s.misleading = CountIntegrity(results, cut, kMisleadingFactor);
   s.confidently_wrong = CountIntegrity(results, cut, kConfidentlyWrongFactor);
+  s.protection = CountProtection(results, cut);
   return s;
 }
 

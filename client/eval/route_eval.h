@@ -156,6 +156,21 @@ struct IntegrityCounts {
   std::optional<double> segment_share_upper95;
 };
 
+// The alert limits availability is reported at, metres.
+inline constexpr std::array<double, 4> kAlertLimitsM = {1, 2, 5, 10};
+
+// Protection-level evidence at the fixes' own flag (protection_evidence.h says how it counts).
+struct ProtectionEvidence {
+  int queries = 0, protected_fixes = 0, usable = 0;
+  int misleading = 0, hazardous = 0;
+  int false_alerts = 0, within_levels = 0;  // of protected fixes: flagged but within; within
+  std::array<double, kAlertLimitsM.size()> availability{};  // per kAlertLimitsM, of queries
+  int episodes = 0;                                         // runs of consecutive misleading fixes
+  double longest_unflagged_s = 0;                           // time to alert's worst case
+  int segments = 0, misleading_segments = 0;
+  std::optional<double> segment_share_upper95;  // Clopper-Pearson, one-sided 95 %
+};
+
 // One street segment's figures, for the report's table and strip.
 struct SegmentSummary {
   int index = 0;                  // StreetCut::segment
@@ -203,6 +218,7 @@ struct RouteSummary {
   std::vector<SegmentSummary> segments;
   IntegrityCounts misleading;         // error > radius95
   IntegrityCounts confidently_wrong;  // error > 3 x radius95
+  ProtectionEvidence protection;      // at the fixes' protection levels and flag
 };
 
 // The three pose bins of Sattler et al. (CVPR 2018) under names of our own, finest first: a

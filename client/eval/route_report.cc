@@ -10,6 +10,7 @@
 #include <sstream>
 
 #include "client/eval/integrity.h"
+#include "client/eval/protection_evidence.h"
 #include "client/eval/route_view.h"
 #include "client/eval/street_segments.h"
 #include "indexer/base/iso_time.h"
@@ -153,6 +154,26 @@ nlohmann::json SegmentsJson(const RouteSummary& s) {
 
 }  // namespace
 
+nlohmann::json ProtectionJson(const ProtectionEvidence& e) {
+  nlohmann::json availability;
+  for (size_t k = 0; k < kAlertLimitsM.size(); ++k)
+    availability[FormatNumber("%g", kAlertLimitsM[k]) + "m"] = e.availability[k];
+  return {
+      {"protected_fixes", e.protected_fixes},
+      {"usable", e.usable},
+      {"misleading", e.misleading},
+      {"hazardous", e.hazardous},
+      {"episodes", e.episodes},
+      {"longest_unflagged_s", e.longest_unflagged_s},
+      {"segments", e.segments},
+      {"misleading_segments", e.misleading_segments},
+      {"segment_share_upper95", e.segment_share_upper95 ? nlohmann::json(*e.segment_share_upper95)
+                                                        : nlohmann::json(nullptr)},
+      {"false_alerts", e.false_alerts},
+      {"within_levels", e.within_levels},
+      {"availability_by_alert_limit", availability}};
+}
+
 nlohmann::json SummaryJson(const RouteReport& r) {
   const RouteSummary& s = r.summary;
   nlohmann::json j = {{"queries", s.queries},
@@ -180,7 +201,8 @@ nlohmann::json SummaryJson(const RouteReport& r) {
                       {"funnel", FunnelJson(s.funnel)},
                       {"integrity",
                        {{"misleading", IntegrityJson(s.misleading)},
-                        {"confidently_wrong", IntegrityJson(s.confidently_wrong)}}},
+                        {"confidently_wrong", IntegrityJson(s.confidently_wrong)},
+                        {"protection", ProtectionJson(s.protection)}}},
                       {"street_segments", SegmentsJson(s)},
                       {"latency_ms_p50", s.latency_ms_p50},
                       {"latency_ms_p95", s.latency_ms_p95},
@@ -211,7 +233,7 @@ std::string FixesCsv(const RouteReport& r) {
          "error_m,heading_error_deg,radius95_m,nees,references,verified_references,"
          "first_hit_rank,pnp_inliers,prior_lat,prior_lon,prior_radius_m,outside_prior,"
          "retried_without_prior,spoofed,latency_ms,along_track_m,cross_track_m,segment,driven_m,"
-         "misleading,stage,reason\n";
+         "misleading,hpl_m,lateral_pl_m,longitudinal_pl_m,integrity,stage,reason\n";
   char buf[1024];
   const StreetCut cut = ReportCut(r);
   for (size_t i : cut.order) {
@@ -225,13 +247,14 @@ std::string FixesCsv(const RouteReport& r) {
     int verified = 0;
     for (const ReferenceUse& u : f.references) verified += u.verified;
     const bool has_fix = f.quality != FixQuality::kNone;
+    const bool has_levels = f.integrity.state != IntegrityState::kUnavailable;
     std::string reason = q->error.empty() ? f.reason : q->error;
     std::replace(reason.begin(), reason.end(), ',', ';');
     std::replace(reason.begin(), reason.end(), '\n', ' ');
     std::snprintf(
         buf, sizeof(buf),
         "%s,%s,%.9f,%.9f,%.2f,%s,%s,%s,%s,%s,%s,%s,%s,%s,%zu,%d,%d,%d,%s,%s,%s,%d,%d,%d,%.1f,%s,"
-        "%s,%d,%.1f,%s,%s,%s\n",
+        "%s,%d,%.1f,%s,%s,%s,%s,%s,%s,%s\n",
         q->truth.image.c_str(), FormatIsoUtc(q->truth.timestamp_s).c_str(),
         q->truth.position.lat_deg, q->truth.position.lon_deg, q->truth.attitude.heading_deg,
         q->error.empty() ? FixQualityName(f.quality) : "error", f.method.c_str(),
@@ -249,7 +272,11 @@ std::string FixesCsv(const RouteReport& r) {
         q->retried_without_prior ? 1 : 0, SpoofedAt(r, q->truth.timestamp_s) ? 1 : 0, q->latency_ms,
         has_fix ? FormatNumber("%.4f", q->along_track_m).c_str() : "",
         has_fix ? FormatNumber("%.4f", q->cross_track_m).c_str() : "", cut.segment[i],
-        cut.driven_m[i], misleading, FunnelStageName(StageOf(*q)), reason.c_str());
+        cut.driven_m[i], misleading,
+        has_levels ? FormatNumber("%.3f", f.integrity.horizontal_pl_m).c_str() : "",
+        has_levels ? FormatNumber("%.3f", f.integrity.lateral_pl_m).c_str() : "",
+        has_levels ? FormatNumber("%.3f", f.integrity.longitudinal_pl_m).c_str() : "",
+        IntegrityStateName(f.integrity.state), FunnelStageName(StageOf(*q)), reason.c_str());
     out << buf;
   }
   return out.str();

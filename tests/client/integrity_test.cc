@@ -221,8 +221,9 @@ TEST(IntegrityTest, ReportHasTheDiagramTablesAndStrip) {
             "median_error_m,misleading");
   EXPECT_NE(segments.find("\n1,50.0,90.0,5,4,4,0.8000,0.8000,"), std::string::npos) << segments;
   const std::string fixes = FixesCsv(r);
-  EXPECT_NE(fixes.find(",2,120.0,3,refined,"), std::string::npos);  // frame 12: > 3 x radius95
-  EXPECT_NE(fixes.find(",0,20.0,1,refined,"), std::string::npos);   // frame 2: misleading
+  // misleading, then the protection levels (none stated here) and the integrity state.
+  EXPECT_NE(fixes.find(",2,120.0,3,,,,unavailable,refined,"), std::string::npos);  // frame 12
+  EXPECT_NE(fixes.find(",0,20.0,1,,,,unavailable,refined,"), std::string::npos);   // frame 2
 }
 
 }  // namespace

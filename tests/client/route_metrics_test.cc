@@ -435,8 +435,8 @@ TEST(RouteMetricsTest, HandTableFunnel) {
   EXPECT_NEAR(j["pose"]["share_ci95"][1].get<double>(), 0.793450685623, 1e-9);
   // fixes.csv: a stage column, one value per row; rows in time order (all at time 0: table order).
   const std::string csv = FixesCsv(r);
-  EXPECT_NE(csv.find(",latency_ms,along_track_m,cross_track_m,segment,driven_m,misleading,stage,"
-                     "reason\n"),
+  EXPECT_NE(csv.find(",latency_ms,along_track_m,cross_track_m,segment,driven_m,misleading,hpl_m,"
+                     "lateral_pl_m,longitudinal_pl_m,integrity,stage,reason\n"),
             std::string::npos)
       << csv.substr(0, csv.find('\n') + 1);
   EXPECT_EQ(CsvColumn(csv, "stage"),
