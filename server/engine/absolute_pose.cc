@@ -246,16 +246,12 @@ class IntrinsicsRefinement {
     return in;
   }
 
-  // Data-only information, chi-square and sum of squared pixels at x.
-  void Information(const Vec8& x, const std::vector<int>& in, Mat8* h, double* chi2,
-                   double* sse) const {
-    Vec8 g;
-    Normal(x, in, h, &g, chi2, sse);
-  }
-  // The data's normal equations (J^T W J, J^T W e) over `in` at x.
-  void NormalEquations(const Vec8& x, const std::vector<int>& in, Mat8* h, Vec8* g) const {
-    double chi2, sse;
-    Normal(x, in, h, g, &chi2, &sse);
+  // The data's normal equations (J^T W J, J^T W e) over `in` at x; with chi2 and sse, the
+  // residuals' chi-square and sum of squared pixels.
+  void NormalEquations(const Vec8& x, const std::vector<int>& in, Mat8* h, Vec8* g,
+                       double* chi2 = nullptr, double* sse = nullptr) const {
+    double unused_chi2, unused_sse;
+    Normal(x, in, h, g, chi2 ? chi2 : &unused_chi2, sse ? sse : &unused_sse);
   }
   const Vec8& prior_information() const { return prior_; }
 
@@ -350,20 +346,18 @@ void RefineWithIntrinsics(const std::vector<PointCorrespondence>& pts, const Con
     in = std::move(next), front = next_front;
   }
   Mat8 h;
+  Vec8 g;
   double chi2, sse;
-  m.Information(x, in, &h, &chi2, &sse);
+  m.NormalEquations(x, in, &h, &g, &chi2, &sse);
   out->variance_factor = VarianceFactor(chi2, static_cast<int>(in.size()), o);
-  h *= 1 / out->variance_factor;
+  const double scale = 1 / out->variance_factor;
+  h *= scale;
   for (int k = 6; k < 8; ++k) h(k, k) += m.prior_information()[k];
   const Mat8 cov = h.inv(cv::DECOMP_SVD);
   const cv::Vec6d pose(x[0], x[1], x[2], x[3], x[4], x[5]);
   SetPose(c, pose, cov.get_minor<6, 6>(0, 0), in, front, pts.size(), sse, out);
   out->intrinsics = {x[6], std::sqrt(cov(6, 6)), x[7], std::sqrt(cov(7, 7))};
   if (!o.separate_solutions) return;
-  const double scale = 1 / out->variance_factor;
-  Mat8 unused;
-  Vec8 g;
-  m.NormalEquations(x, in, &unused, &g);
   g *= scale;
   for (int k = 6; k < 8; ++k) g[k] += m.prior_information()[k] * x[k];
   SeparateSolutions(

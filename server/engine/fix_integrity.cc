@@ -6,8 +6,6 @@
 namespace sightfix {
 namespace {
 
-cv::Matx22d Horizontal(const cv::Matx33d& c) { return {c(0, 0), c(0, 1), c(1, 0), c(1, 1)}; }
-
 std::string SubsetName(const PoseSubset& s, const std::vector<std::string>& group_names) {
   static const char* kQuadrants[] = {"upper-left", "upper-right", "lower-left", "lower-right"};
   if (s.kind == PoseSubset::Kind::kQuadrant) return std::string("quadrant ") + kQuadrants[s.index];
@@ -22,8 +20,9 @@ std::vector<SeparatedSolution> Separations(const AbsolutePose& pose, double map_
     SeparatedSolution g;
     g.name = SubsetName(s, names);
     g.shift_en = {s.center_shift[0], s.center_shift[1]};
-    g.shift_covariance = Horizontal(s.shift_covariance) * scale;
-    g.covariance = (Horizontal(s.center_covariance) + cv::Matx22d::eye() * map_variance) * scale;
+    g.shift_covariance = s.shift_covariance.get_minor<2, 2>(0, 0) * scale;
+    g.covariance =
+        (s.center_covariance.get_minor<2, 2>(0, 0) + cv::Matx22d::eye() * map_variance) * scale;
     out.push_back(g);
   }
   return out;
