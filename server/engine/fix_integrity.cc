@@ -46,6 +46,12 @@ std::string OverLimit(const FixIntegrity& f) {
   return "";
 }
 
+PlaceEvidence WithNearMisses(PlaceEvidence places, const Fix& fix, const LocalizerOptions& o) {
+  WeighNearMisses(fix.references, fix.lat_deg, fix.lon_deg, o.distinct_place_m,
+                  o.min_near_miss_inliers, &places);
+  return places;
+}
+
 }  // namespace
 
 const char* IntegrityStateName(IntegrityState s) {
@@ -97,8 +103,9 @@ FixIntegrity AssessIntegrity(const AbsolutePose& pose, const Fix& fix, double ma
   f.max_test_ratio = pl.max_test_ratio;
   if (pl.fault_detected) {
     f.state = IntegrityState::kFaultDetected, f.detail = pl.fault;
-  } else if (places.RivalReaches(o.ambiguity_flag_ratio)) {
-    f.state = IntegrityState::kPlaceAmbiguity, f.detail = places.Describe();
+  } else if (PlaceEvidence all = WithNearMisses(places, fix, o);
+             all.AnyRivalReaches(o.ambiguity_flag_ratio)) {
+    f.state = IntegrityState::kPlaceAmbiguity, f.detail = all.DescribeAny();
   } else if (std::string over = OverLimit(f); !over.empty()) {
     f.state = IntegrityState::kOverAlertLimit, f.detail = over;
   } else {

@@ -93,6 +93,7 @@ bool LocalizerOptions::Validate(std::string* error) const {
   if (!(distinct_place_m > 0)) return fail("distinct_place_m must be > 0");
   if (!(ambiguity_ratio >= 0)) return fail("ambiguity_ratio must be >= 0");
   if (!(ambiguity_flag_ratio >= 0)) return fail("ambiguity_flag_ratio must be >= 0");
+  if (min_near_miss_inliers < 5) return fail("min_near_miss_inliers must be >= 5");
   if (!(default_alert_limit_m > 0)) return fail("default_alert_limit_m must be > 0");
   std::string p;
   if (!protection.Validate(&p)) return fail("protection: " + p);

@@ -85,6 +85,9 @@ struct LocalizerOptions {
   // A rival place with at least this share of the fix's inliers (below ambiguity_ratio, which
   // withholds the fix) leaves the fix refined but not usable (FixIntegrity, kPlaceAmbiguity).
   double ambiguity_flag_ratio = 0.25;
+  // A candidate checked but short of verification counts towards that flag (not towards
+  // withholding) with at least this many essential-matrix inliers (place_ambiguity.h).
+  int min_near_miss_inliers = 12;
   // Integrity (protection_levels.h): the default risk, the false-alert budget and the CDF
   // overbound. A request may ask for another risk.
   ProtectionParameters protection;
@@ -133,7 +136,8 @@ enum class IntegrityState {
   kUsable,          // protection levels within every alert limit, no fault seen
   kOverAlertLimit,  // a protection level exceeds its alert limit
   kFaultDetected,   // a group of correspondences pulls the fix away (solution separation)
-  kPlaceAmbiguity,  // another place verified with ambiguity_flag_ratio of this one's inliers
+  kPlaceAmbiguity,  // another place verified (or checked with min_near_miss_inliers) with
+                    // ambiguity_flag_ratio of this one's inliers
 };
 const char* IntegrityStateName(IntegrityState s);  // "unavailable", "usable", ...
 

@@ -57,6 +57,23 @@ std::string PlaceEvidence::Describe() const {
          std::to_string(rival) + " inliers, this one with " + std::to_string(here);
 }
 
+std::string PlaceEvidence::DescribeAny() const {
+  if (rival >= near_miss) return Describe();
+  return "a place " + std::to_string(static_cast<int>(near_miss_m)) + " m away checked with " +
+         std::to_string(near_miss) + " inliers (short of verification), this one with " +
+         std::to_string(here);
+}
+
+void WeighNearMisses(const std::vector<ReferenceUse>& uses, double lat_deg, double lon_deg,
+                     double distinct_m, int min_inliers, PlaceEvidence* evidence) {
+  for (const ReferenceUse& u : uses) {
+    if (!u.checked || u.verified || u.inliers < min_inliers || u.inliers <= evidence->near_miss)
+      continue;
+    const double d = GeodesicBetween(lat_deg, lon_deg, u.lat_deg, u.lon_deg).distance_m;
+    if (d > distinct_m) evidence->near_miss = u.inliers, evidence->near_miss_m = d;
+  }
+}
+
 std::optional<std::string> AmbiguityReason(const PlaceEvidence& evidence, double ratio) {
   if (!evidence.RivalReaches(ratio)) return std::nullopt;
   return "ambiguous: " + evidence.Describe();

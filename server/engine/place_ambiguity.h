@@ -9,12 +9,14 @@
 // (DEVELOPERS.md, "Place ambiguity").
 #pragma once
 
+#include <algorithm>
 #include <functional>
 #include <optional>
 #include <string>
 #include <vector>
 
 #include "indexer/map/tile_store.h"
+#include "server/engine/localizer.h"
 #include "server/engine/verified_reference.h"
 
 namespace sightfix {
@@ -42,12 +44,31 @@ inline constexpr int kMinTestedMatches = 10;
 struct PlaceEvidence {
   int here = 0, rival = 0;
   double rival_m = 0;
+  // The strongest candidate checked but short of verification at a place distinct from the
+  // fix (WeighNearMisses); 0 without one.
+  int near_miss = 0;
+  double near_miss_m = 0;
   // True when rival > 0 and rival >= ratio * here.
   bool RivalReaches(double ratio) const { return rival > 0 && rival >= ratio * here; }
+  // The same test on the stronger of the rival and the near miss.
+  bool AnyRivalReaches(double ratio) const {
+    const int r = std::max(rival, near_miss);
+    return r > 0 && r >= ratio * here;
+  }
   std::string Describe() const;  // "a place 142 m away verified with 37 inliers, this one with 40"
+  std::string DescribeAny()
+      const;  // the stronger of the two, "... verified ..." or "... checked ..."
 };
 PlaceEvidence WeighPlaces(const std::vector<Verified>& verified, const cv::Vec3d& center,
                           double distinct_m);
+
+// Candidates checked but not verified (fewer essential-matrix inliers than verification asks)
+// with at least min_inliers, lying more than distinct_m (geodesic) from the fix at lat, lon:
+// evidence for another place too weak to withhold a fix, enough to keep it from being used. A
+// look-alike stretch's true place often verifies just short of the threshold while its twin
+// passes (DEVELOPERS.md, "Integrity").
+void WeighNearMisses(const std::vector<ReferenceUse>& uses, double lat_deg, double lon_deg,
+                     double distinct_m, int min_inliers, PlaceEvidence* evidence);
 
 // "ambiguous: " + the evidence when its rival reaches ratio.
 std::optional<std::string> AmbiguityReason(const PlaceEvidence& evidence, double ratio);
