@@ -8,6 +8,7 @@
 #include <vector>
 
 #include "client/eval/integrity.h"
+#include "client/eval/protection_evidence.h"
 #include "client/eval/report_plots.h"
 #include "client/eval/route_report.h"
 #include "client/eval/route_view.h"
@@ -210,6 +211,14 @@ std::string ReportHtml(const RouteReport& r) {
        "radius95 (x) and its actual error (y). Grey dashes: error = radius95, 95 % of dots "
        "belong below; red dots: error = 3 x radius95. Orange dots mislead, red ones are "
        "confidently wrong.</div>\n";
+  h += "<p>" + EscapeXml(ProtectionLines(r.summary.protection)) + "</p>\n";
+  h += ProtectionDiagramPlot(qs);
+  h += "<div class=\"caption\">Error against protection level: each refined fix at its "
+       "horizontal protection level (x) and its actual error (y). Dashes: error = protection "
+       "level; a usable fix above them is misleading, above the alert limit's line hazardous. "
+       "Shaded: protection levels over the alert limit (not usable). A fallback aid's figures, "
+       "not a certified integrity monitor's.</div>\n";
+  h += AvailabilityByAlertLimitPlot(r.summary);
   h += LatencyHistogramPlot(r.summary, qs);
   if (r.spoofing) h += SpoofingPlot(r);
   // The page checks itself: headless tests read data-check from the DOM.

@@ -4,6 +4,7 @@
 #include <cmath>
 
 #include "client/eval/integrity.h"
+#include "client/eval/protection_evidence.h"
 #include "client/eval/route_view.h"
 #include "client/eval/street_segments.h"
 #include "client/eval/svg_plot.h"
@@ -154,6 +155,75 @@ std::string ErrorAgainstBoundPlot(const std::vector<const QueryResult*>& qs) {
   plot.Legend({{colours[0], "within radius95 (" + std::to_string(counts[0]) + ")"},
                {colours[1], "misleading (" + std::to_string(counts[1]) + ")"},
                {colours[2], "> 3 x radius95 (" + std::to_string(counts[2]) + ")"}});
+  return plot.Render();
+}
+
+namespace {
+
+// The horizontal alert limit most protected fixes were judged at (2 m when none).
+double CommonAlertLimit(const std::vector<const QueryResult*>& qs) {
+  std::vector<double> limits;
+  for (const QueryResult* q : qs)
+    if (IsProtected(*q)) limits.push_back(q->fix.integrity.horizontal_alert_limit_m);
+  if (limits.empty()) return 2;
+  std::sort(limits.begin(), limits.end());
+  return limits[limits.size() / 2];
+}
+
+}  // namespace
+
+std::string ProtectionDiagramPlot(const std::vector<const QueryResult*>& qs) {
+  const double limit = CommonAlertLimit(qs);
+  double lo = std::min(0.05, limit / 4), hi = std::max(20.0, 4 * limit);
+  for (const QueryResult* q : qs)
+    if (IsProtected(*q)) {
+      hi = std::max({hi, q->error_m * 1.5, q->fix.integrity.horizontal_pl_m * 1.5});
+      lo = std::min(lo, q->fix.integrity.horizontal_pl_m / 1.5);
+    }
+  SvgPlot plot("protection", "Error against protection level",
+               {lo, hi, true, "horizontal protection level (m)"},
+               {1e-3, hi, true, "actual error (m)"}, 760, 420);
+  plot.Band(limit, hi, "#eeeeee");  // protection level over the alert limit: unavailable
+  plot.Line({lo, hi}, {lo, hi}, "#555555", 1, "5 4");
+  plot.Line({lo, hi}, {limit, limit}, "#8b1a3a", 1, "2 3");
+  plot.VerticalMark(limit, FormatNumber("alert limit %g m", limit), "#8b1a3a");
+  const char* colours[5] = {"#2a6f97", "#d99a1e", "#8b1a3a", "#9a9a9a", "#5c5c5c"};
+  int counts[5] = {0, 0, 0, 0, 0};
+  for (const QueryResult* q : qs) {
+    if (!IsProtected(*q)) continue;
+    const FixIntegrity& f = q->fix.integrity;
+    const bool flagged =
+        f.state == IntegrityState::kFaultDetected || f.state == IntegrityState::kPlaceAmbiguity;
+    const int k = !f.usable()                               ? (flagged ? 4 : 3)
+                  : q->error_m > f.horizontal_alert_limit_m ? 2
+                  : IsMisleadingAtLevels(*q)                ? 1
+                                                            : 0;
+    ++counts[k];
+    const double x = f.horizontal_pl_m, y = std::max(q->error_m, 1e-3);
+    const std::string title = q->truth.image + FormatNumber(": error %.3f m", q->error_m) +
+                              FormatNumber(", protection level %.3f m, ", x) +
+                              IntegrityStateName(f.state);
+    if (k == 4)
+      plot.Ring(x, y, 3.2, colours[k]);
+    else
+      plot.Dot(x, y, 2.6, colours[k], title);
+  }
+  plot.Legend(
+      {{colours[0], "normal operation (" + std::to_string(counts[0]) + ")"},
+       {colours[1], "misleading (" + std::to_string(counts[1]) + ")"},
+       {colours[2], "hazardous (" + std::to_string(counts[2]) + ")"},
+       {colours[3], "not usable: over the limit (" + std::to_string(counts[3]) + ")"},
+       {colours[4], "not usable: fault or rival place (" + std::to_string(counts[4]) + ")"}});
+  return plot.Render();
+}
+
+std::string AvailabilityByAlertLimitPlot(const RouteSummary& s) {
+  SvgPlot plot(
+      "availability-limit", "Availability against alert limit",
+      {0, static_cast<double>(kAlertLimitsM.size()), false, "alert limit (bars: 1, 2, 5, 10 m)"},
+      {0, 1.05, false, "share of queries usable"});
+  for (size_t k = 0; k < kAlertLimitsM.size(); ++k)
+    plot.Bar(k + 0.15, k + 0.85, s.protection.availability[k], "#2a6f97");
   return plot.Render();
 }
 

@@ -28,6 +28,17 @@ std::string ErrorAlongRoutePlot(const RouteReport& r, const std::vector<const Qu
 // the first are misleading (orange), above the second confidently wrong (red), below green.
 std::string ErrorAgainstBoundPlot(const std::vector<const QueryResult*>& qs);
 
+// The integrity diagram at the fixes' own protection levels (protection_evidence.h): each
+// protected fix a dot at x = its horizontal protection level, y = its error, log-log, with the
+// line error = level and the horizontal alert limit (the one most fixes were judged at) across
+// both axes. Fixes flagged usable: within their level (normal operation, blue), beyond it
+// (misleading, amber), beyond the alert limit too (hazardous, crimson); fixes flagged not usable
+// (unavailable) in grey, hollow when a fault or a rival place was flagged.
+std::string ProtectionDiagramPlot(const std::vector<const QueryResult*>& qs);
+
+// Availability (ProtectionEvidence::availability) against the alert limit, one bar per limit.
+std::string AvailabilityByAlertLimitPlot(const RouteSummary& s);
+
 // The colours of a street segment's availability in the along-route strip, from the lowest
 // class up: a segment takes the first class whose min_availability it reaches from above.
 struct AvailabilityClass {

@@ -7,6 +7,7 @@
 
 #include <vector>
 
+#include "client/eval/route_report.h"
 #include "client/eval/street_segments.h"
 #include "tests/client/placed_query.h"
 
@@ -85,6 +86,35 @@ TEST(ProtectionEvidenceTest, CleanDriveBoundAndLines) {
   const std::string text = ProtectionLines(e);
   EXPECT_NE(text.find("0 misleading"), std::string::npos) << text;
   EXPECT_NE(text.find("availability by alert limit: 1 m"), std::string::npos) << text;
+}
+
+// report.html draws the constructed drive on the integrity diagram: one dot per protected fix
+// in its region's colour (legend circles carry each colour once more), the two flagged fixes as
+// rings, and the availability bars.
+TEST(ProtectionEvidenceTest, ReportDrawsTheDiagram) {
+  RouteReport r;
+  r.results = ConstructedDrive();
+  r.summary = Summarize(r.results, {49.9});
+  EXPECT_EQ(r.summary.protection.misleading, 3);
+  const std::string html = ReportHtml(r);
+  const size_t at = html.find("<svg class=\"plot\" id=\"protection\"");
+  ASSERT_NE(at, std::string::npos);
+  const std::string svg = html.substr(at, html.find("</svg>", at) - at);
+  const auto count = [&svg](const std::string& what) {
+    size_t n = 0;
+    for (size_t p = svg.find(what); p != std::string::npos; p = svg.find(what, p + 1)) ++n;
+    return n;
+  };
+  // Usable: 0, 7, 9 within (blue); 1, 8 misleading (amber); 2 hazardous (crimson). Not usable:
+  // 4 over the limit (grey dot), 3 and 6 flagged (rings).
+  EXPECT_EQ(count("fill=\"#2a6f97\""), 3u + 1);
+  EXPECT_EQ(count("fill=\"#d99a1e\""), 2u + 1);
+  EXPECT_EQ(count("fill=\"#8b1a3a\""), 1u + 1 + 1);  // and the alert limit's label
+  EXPECT_EQ(count("fill=\"#9a9a9a\""), 1u + 1);
+  EXPECT_NE(svg.find("not usable: fault or rival place (2)"), std::string::npos);
+  EXPECT_NE(svg.find("alert limit 2 m"), std::string::npos);
+  EXPECT_NE(html.find("id=\"availability-limit\""), std::string::npos);
+  EXPECT_NE(html.find("3 misleading (error &gt; protection level)"), std::string::npos);
 }
 
 }  // namespace

@@ -229,7 +229,7 @@ assert j["partial"] is True and 0 < j["queries"] < total, (j["partial"], j["quer
 PY
 
 # report.html: self-contained (no src= or href= at all), loads in headless Chromium without
-# errors, six SVG plots, a screenshot that is not blank.
+# errors, eight SVG plots, a screenshot that is not blank.
 report="$tmp/in/report.html"
 ! grep -Eq '(src|href)=' "$report" && ok "report.html loads nothing from outside" || bad "external references"
 browser="$(command -v chromium || command -v chromium-browser || true)"
@@ -239,7 +239,7 @@ else
   flags=(--headless --no-sandbox --disable-gpu --hide-scrollbars --user-data-dir="$tmp/profile")
   timeout 60 "$browser" "${flags[@]}" --enable-logging=stderr --v=0 --dump-dom "file://$report" \
     >"$tmp/dom.html" 2>"$tmp/chromium.err"
-  grep -q 'data-check="ok 6 plots"' "$tmp/dom.html" && ok "page script ran: 6 plots, no error" \
+  grep -q 'data-check="ok 8 plots"' "$tmp/dom.html" && ok "page script ran: 8 plots, no error" \
     || bad "page check: $(grep -o 'data-check="[^"]*"' "$tmp/dom.html")"
   ! grep -q "Uncaught" "$tmp/chromium.err" && ok "no uncaught errors in the console" || bad "console errors"
   timeout 60 "$browser" "${flags[@]}" --window-size=1100,3400 --screenshot="$tmp/shot.png" \
