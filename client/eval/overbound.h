@@ -1,0 +1,26 @@
+// The Gaussian overbound of a sample of normalised errors (z = error / stated sigma along an
+// axis): the smallest scale K >= 1 such that N(0, K^2) bounds the sample's tail, in the sense of
+// CDF overbounding (DeCleene, "Defining pseudorange integrity - overbounding", ION GPS 2000),
+// with the sample's own uncertainty: at every observed |z| = x in the upper half of |z|, the
+// two-sided Gaussian tail 2Q(x / K) must lie at or above the one-sided Clopper-Pearson upper
+// bound (confidence as given) of the share of the sample at or beyond x. The core (below the
+// median of |z|) is left to the stated covariance: a handful of near-zero errors says nothing
+// of the tails an integrity risk is about. Pure functions; thread-safe.
+#pragma once
+
+#include <vector>
+
+#include "indexer/base/status.h"
+
+namespace sightfix {
+
+struct OverboundFit {
+  double scale = 1;  // K >= 1
+  int samples = 0;
+  double binding_z = 0;  // the |z| whose tail set K (0 when K = 1 binds)
+};
+
+// InvalidArgument for an empty sample, a non-finite value or confidence outside (0, 1).
+Result<OverboundFit> FitOverbound(const std::vector<double>& z, double confidence = 0.95);
+
+}  // namespace sightfix
