@@ -356,7 +356,7 @@ int Inspect(int argc, char** argv) {
   std::printf("%d tiles, %d images, %d points; model %s: %s\n", (*j)["tiles"].get<int>(),
               (*j)["images"].get<int>(), (*j)["points"].get<int>(),
               (*j)["model_id"].get<std::string>().c_str(), (*j)["model"].dump().c_str());
-  std::fputs(sightfix::DrivesText((*j)["drives"]).c_str(), stdout);
+  std::cout << sightfix::DrivesText((*j)["drives"]) << sightfix::IntegrityFitText(*j);
   std::printf(
       "bytes per image: global code %.0f, local features %.0f, points %.0f (tile files %.0f)\n",
       b["global_code"].get<double>(), b["local_features"].get<double>(), b["points"].get<double>(),

@@ -1,7 +1,9 @@
 #include "indexer/map/catalog.h"
 
+#include <cmath>
 #include <cstdlib>
 #include <filesystem>
+#include <nlohmann/json.hpp>
 
 #include "indexer/map/sqlite_rows.h"
 
@@ -30,17 +32,49 @@ Status WriteTileRows(sqlite3* db, const Catalog& c) {
   return Status::Ok();
 }
 
+std::string IntegrityFitJson(const IntegrityFit& f) {
+  return nlohmann::json{{"overbound_scale", f.overbound_scale},
+                        {"drive", f.drive},
+                        {"drive_sha256", f.drive_sha256},
+                        {"fixes", f.fixes},
+                        {"excluded", f.excluded},
+                        {"binding_z", f.binding_z},
+                        {"confidence", f.confidence},
+                        {"map_version", f.map_version},
+                        {"fitted_utc", f.fitted_utc}}
+      .dump();
+}
+
+// The meta row's JSON; kCorrupt when malformed or K is not a finite number >= 1.
+Result<IntegrityFit> ParseIntegrityFit(const std::string& text, const std::string& path) {
+  const nlohmann::json j = nlohmann::json::parse(text, nullptr, false);
+  IntegrityFit f;
+  try {
+    f.overbound_scale = j.at("overbound_scale").get<double>();
+    f.drive = j.at("drive").get<std::string>();
+    f.drive_sha256 = j.value("drive_sha256", "");
+    f.fixes = j.value("fixes", 0), f.excluded = j.value("excluded", 0);
+    f.binding_z = j.value("binding_z", 0.0), f.confidence = j.value("confidence", 0.95);
+    f.map_version = j.value("map_version", 0), f.fitted_utc = j.value("fitted_utc", "");
+  } catch (const nlohmann::json::exception&) {
+    return Status::Corrupt(path + ": integrity_fit is not the fit's JSON record");
+  }
+  if (!(std::isfinite(f.overbound_scale) && f.overbound_scale >= 1))
+    return Status::Corrupt(path + ": integrity_fit's overbound_scale must be a number >= 1");
+  return f;
+}
+
 Status WriteCatalogRows(sqlite3* db, const Catalog& c) {
   if (Status s = Exec(db, kCatalogSchema); !s.ok()) return s;
-  if (Status s = InsertMeta(db, {{"format_version", std::to_string(c.format_version)},
-                                 {"map_version", std::to_string(c.map_version)},
-                                 {"zoom", std::to_string(c.zoom)},
-                                 {"model_id", c.model_id},
-                                 {"feature_type", c.feature_type},
-                                 {"created_utc", c.created_utc},
-                                 {"provenance", c.provenance}});
-      !s.ok())
-    return s;
+  MetaRows meta = {{"format_version", std::to_string(c.format_version)},
+                   {"map_version", std::to_string(c.map_version)},
+                   {"zoom", std::to_string(c.zoom)},
+                   {"model_id", c.model_id},
+                   {"feature_type", c.feature_type},
+                   {"created_utc", c.created_utc},
+                   {"provenance", c.provenance}};
+  if (c.integrity_fit) meta.push_back({"integrity_fit", IntegrityFitJson(*c.integrity_fit)});
+  if (Status s = InsertMeta(db, meta); !s.ok()) return s;
   Result<Stmt> m = Prepare(db, "INSERT INTO model VALUES(?,?,?)");
   if (!m.ok()) return m.status();
   (Binder{m->get()} << c.model_id << c.model_params).Blob(c.model_blob.data(), c.model_blob.size());
@@ -66,6 +100,11 @@ Status ReadCatalogMeta(sqlite3* db, const std::string& path, Catalog* c) {
   c->feature_type = MetaValue(*meta, "feature_type");
   c->created_utc = MetaValue(*meta, "created_utc");
   c->provenance = MetaValue(*meta, "provenance");
+  if (const std::string fit = MetaValue(*meta, "integrity_fit"); !fit.empty()) {
+    Result<IntegrityFit> f = ParseIntegrityFit(fit, path);
+    if (!f.ok()) return f.status();
+    c->integrity_fit = *f;
+  }
   return Status::Ok();
 }
 

@@ -8,6 +8,7 @@
 #pragma once
 
 #include <cstdint>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -26,6 +27,22 @@ struct CatalogTile {
   std::string model_id;
 };
 
+// The Gaussian overbound of a fix's position errors, fitted on a drive with truth (`sightfix
+// fit-integrity`, client/eval/overbound.h) and applied by the engine to every protection level.
+// Meta key "integrity_fit" (JSON), present only once fitted; `add` carries it forward with the
+// map version it was fitted on, so `inspect` can say it predates the map's last drive.
+struct IntegrityFit {
+  double overbound_scale = 1;  // K >= 1: the sigmas' inflation
+  std::string drive;           // the drive's folder name
+  std::string drive_sha256;    // of its drive.csv: which drive exactly
+  int fixes = 0;               // refined fixes the fit read
+  int excluded = 0;            // refined fixes more than 5 m off: faults, not the error model
+  double binding_z = 0;        // the normalised error whose tail set K
+  double confidence = 0.95;    // of the Clopper-Pearson bound on the tail
+  int map_version = 0;         // the map's version when fitted
+  std::string fitted_utc;      // ISO 8601
+};
+
 struct Catalog {
   int format_version = kMapFormatVersion;
   int map_version = 0;
@@ -39,6 +56,7 @@ struct Catalog {
   std::vector<uint8_t> global_index;
   std::string created_utc;  // ISO 8601
   std::string provenance;   // JSON: inputs and options of the build
+  std::optional<IntegrityFit> integrity_fit;
 };
 
 inline int64_t GlobalImageId(int tile_ordinal, int image_id) {

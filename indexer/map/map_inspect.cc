@@ -6,6 +6,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstdio>
 #include <filesystem>
 #include <map>
 #include <memory>
@@ -85,11 +86,41 @@ Result<nlohmann::json> InspectMap(const std::string& map_dir) {
                         {"local_features", local_bytes / n},
                         {"points", point_bytes / n},
                         {"tile_files", file_bytes / n}}}};
+  j["integrity_fit"] = nullptr;
+  if (const std::optional<IntegrityFit>& f = catalog->integrity_fit)
+    j["integrity_fit"] = {{"overbound_scale", f->overbound_scale},
+                          {"drive", f->drive},
+                          {"drive_sha256", f->drive_sha256},
+                          {"fixes", f->fixes},
+                          {"excluded", f->excluded},
+                          {"binding_z", f->binding_z},
+                          {"confidence", f->confidence},
+                          {"map_version", f->map_version},
+                          {"fitted_utc", f->fitted_utc}};
   if (images > 0) {
     j["extent"] = {{"south", south}, {"west", west}, {"north", north}, {"east", east}};
     j["dates"] = {{"first", FormatIsoUtc(t0)}, {"last", FormatIsoUtc(t1)}};
   }
   return j;
+}
+
+std::string IntegrityFitText(const nlohmann::json& inspect) {
+  const nlohmann::json& f = inspect.value("integrity_fit", nlohmann::json());
+  if (!f.is_object())
+    return "integrity overbound: none fitted (sightfix fit-integrity fits one on a drive with "
+           "truth)\n";
+  char buf[512];
+  std::snprintf(buf, sizeof buf,
+                "integrity overbound: %.3f, fitted on drive %s (drive.csv sha256 %.16s) over %d "
+                "refined fixes, %d more off left out, at map version %d, %s\n",
+                f.value("overbound_scale", 1.0), f.value("drive", "").c_str(),
+                f.value("drive_sha256", "").c_str(), f.value("fixes", 0), f.value("excluded", 0),
+                f.value("map_version", 0), f.value("fitted_utc", "").c_str());
+  std::string out = buf;
+  if (f.value("map_version", 0) != inspect.value("map_version", 0))
+    out += "  the map has changed since (version " +
+           std::to_string(inspect.value("map_version", 0)) + "): fit it again\n";
+  return out;
 }
 
 VerifyReport VerifyMap(const std::string& map_dir) {

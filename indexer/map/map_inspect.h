@@ -11,9 +11,12 @@
 namespace sightfix {
 
 // inspect: tiles, images, points, drives, model id and parameters, bytes per image by part
-// (global code, local features, points), coverage extent, date range. kNotFound / kCorrupt
-// when the catalog or a tile cannot be read.
+// (global code, local features, points), coverage extent, date range, the integrity fit. kNotFound
+// / kCorrupt when the catalog or a tile cannot be read.
 Result<nlohmann::json> InspectMap(const std::string& map_dir);
+// inspect's line on the map's integrity overbound (catalog.h IntegrityFit), from InspectMap's
+// JSON: its scale, drive and fix count, and whether the map changed since it was fitted.
+std::string IntegrityFitText(const nlohmann::json& inspect);
 
 struct VerifyProblem {
   std::string tile;  // "z/x/y", or "catalog"

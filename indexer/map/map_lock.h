@@ -1,4 +1,4 @@
-// One writer per map. build, add and retrain hold an exclusive flock(2) on MAPDIR/.writer.lock
+// One writer per map. build, add, retrain (and the client's fit-integrity) hold an exclusive flock(2) on MAPDIR/.writer.lock
 // for their whole run; a second writer is refused at once with the holder named (its pid and
 // start time, which the holder writes into the file). The kernel drops the lock when the holder
 // ends, however it ends, so a killed writer never leaves the map locked. Readers (the server,

@@ -98,7 +98,7 @@ FixIntegrity AssessIntegrity(const AbsolutePose& pose, const Fix& fix, double ma
       r.horizontal_alert_limit_m > 0 ? r.horizontal_alert_limit_m : o.default_alert_limit_m;
   f.lateral_alert_limit_m = r.lateral_alert_limit_m;
   f.longitudinal_alert_limit_m = r.longitudinal_alert_limit_m;
-  f.overbound_scale = p.overbound_scale;
+  f.overbound_scale = p.overbound_scale, f.overbound_drive = p.overbound_drive;
   f.hypotheses = pl.hypotheses, f.hypotheses_skipped = pose.subsets_skipped;
   f.max_test_ratio = pl.max_test_ratio;
   if (pl.fault_detected) {

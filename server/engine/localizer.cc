@@ -76,35 +76,6 @@ const char* FixQualityName(FixQuality q) {
   }
 }
 
-bool LocalizerOptions::Validate(std::string* error) const {
-  auto fail = [&](const std::string& m) {
-    if (error) *error = m;
-    return false;
-  };
-  if (top_k < 1 || top_k > 100) return fail("top_k must be within [1, 100]");
-  if (max_verified < 1) return fail("max_verified must be >= 1");
-  if (min_verified_inliers < 15) return fail("min_verified_inliers must be >= 15");
-  if (!(viewing_range_m >= 0)) return fail("viewing_range_m must be >= 0");
-  if (!(pnp_threshold_px > 0) || !(pixel_sigma_px > 0))
-    return fail("pnp_threshold_px and pixel_sigma_px must be > 0");
-  if (min_pnp_inliers < 6) return fail("min_pnp_inliers must be >= 6");
-  if (!(covariance_scale > 0)) return fail("covariance_scale must be > 0");
-  if (!(coarse_radius_m > 0)) return fail("coarse_radius_m must be > 0");
-  if (!(distinct_place_m > 0)) return fail("distinct_place_m must be > 0");
-  if (!(ambiguity_ratio >= 0)) return fail("ambiguity_ratio must be >= 0");
-  if (!(ambiguity_flag_ratio >= 0)) return fail("ambiguity_flag_ratio must be >= 0");
-  if (min_near_miss_inliers < 5) return fail("min_near_miss_inliers must be >= 5");
-  if (!(default_alert_limit_m > 0)) return fail("default_alert_limit_m must be > 0");
-  std::string p;
-  if (!protection.Validate(&p)) return fail("protection: " + p);
-  if (!(time_budget_ms >= 0)) return fail("time_budget_ms must be >= 0");
-  if (env == nullptr) return fail("env must not be null");
-  std::string e;
-  if (features.type != FeatureType::kRootSift) return fail("features: maps hold RootSIFT");
-  if (!features.Validate(&e)) return fail("features: " + e);
-  return true;
-}
-
 struct Localizer::Impl {
   LocalizerOptions o;
   Catalog catalog;
@@ -167,6 +138,11 @@ Result<std::unique_ptr<Localizer>> Localizer::Open(const std::string& map_dir,
   Result<Catalog> catalog = ReadCatalog(map_dir + "/catalog.sqlite");
   if (!catalog.ok()) return catalog.status();
   impl->catalog = std::move(catalog).value();
+  if (const auto& fit = impl->catalog.integrity_fit;
+      fit && fit->overbound_scale >= impl->o.protection.overbound_scale) {
+    impl->o.protection.overbound_scale = fit->overbound_scale;
+    impl->o.protection.overbound_drive = fit->drive;
+  }
   Result<GlobalDescriptor> model = GlobalDescriptor::Deserialize(impl->catalog.model_blob);
   if (!model.ok()) return model.status();
   impl->model = std::make_unique<GlobalDescriptor>(std::move(model).value());

@@ -89,7 +89,8 @@ struct LocalizerOptions {
   // withholding) with at least this many essential-matrix inliers (place_ambiguity.h).
   int min_near_miss_inliers = 12;
   // Integrity (protection_levels.h): the default risk, the false-alert budget and the CDF
-  // overbound. A request may ask for another risk.
+  // overbound. A request may ask for another risk. The map's fitted overbound (catalog.h
+  // IntegrityFit) replaces overbound_scale where it is larger; the fixes then name its drive.
   ProtectionParameters protection;
   // The horizontal alert limit a request that states none is judged at, metres.
   double default_alert_limit_m = 2;
@@ -149,6 +150,7 @@ struct FixIntegrity {
   double integrity_risk = 0;
   double horizontal_alert_limit_m = 0, lateral_alert_limit_m = 0, longitudinal_alert_limit_m = 0;
   double overbound_scale = 1;
+  std::string overbound_drive;                 // the drive it was fitted on (empty: none)
   int hypotheses = 0, hypotheses_skipped = 0;  // fault hypotheses tested and too large to test
   double max_test_ratio = 0;                   // solution separation: 1 is the threshold
   std::string detail;                          // why not usable

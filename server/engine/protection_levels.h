@@ -44,6 +44,7 @@ struct ProtectionParameters {
   double false_alert_rate = 1e-2;
   // Multiplies every sigma: the CDF overbound fitted on a drive with truth (1: none fitted).
   double overbound_scale = 1;
+  std::string overbound_drive;  // the drive the scale was fitted on (empty: none fitted)
   bool Validate(std::string* error) const;
 };
 

@@ -196,7 +196,7 @@ v1::Fix FixToProto(const Fix& f) {
   w->set_longitudinal_alert_limit_m(i.longitudinal_alert_limit_m);
   w->set_overbound_scale(i.overbound_scale), w->set_hypotheses(i.hypotheses);
   w->set_hypotheses_skipped(i.hypotheses_skipped), w->set_max_test_ratio(i.max_test_ratio);
-  w->set_detail(i.detail);
+  w->set_detail(i.detail), w->set_overbound_drive(i.overbound_drive);
   return p;
 }
 
@@ -243,7 +243,7 @@ Fix FixFromProto(const v1::Fix& p) {
   i.longitudinal_alert_limit_m = w.longitudinal_alert_limit_m();
   i.overbound_scale = w.overbound_scale(), i.hypotheses = w.hypotheses();
   i.hypotheses_skipped = w.hypotheses_skipped(), i.max_test_ratio = w.max_test_ratio();
-  i.detail = w.detail();
+  i.detail = w.detail(), i.overbound_drive = w.overbound_drive();
   return f;
 }
 

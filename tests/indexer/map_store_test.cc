@@ -156,6 +156,38 @@ TEST(MapStoreTest, CatalogRoundTrip) {
   EXPECT_EQ(GlobalImageId(3, 7) >> 32, 3);
   EXPECT_EQ(ImageIdOf(GlobalImageId(3, 7)), 7);
   EXPECT_EQ(TileOrdinalOf(GlobalImageId(3, 7)), 3);
+  EXPECT_FALSE(r->integrity_fit.has_value());  // none until fit-integrity writes one
+}
+
+// The integrity overbound's record: written only once fitted, read back whole; a record that
+// is not the fit's JSON, or a scale below 1, makes the catalog corrupt rather than quietly
+// shrinking every protection level.
+TEST(MapStoreTest, IntegrityFitRoundTripAndRefusal) {
+  Catalog c;
+  c.model_id = "feedbeef00112233";
+  c.model_blob = {1};
+  IntegrityFit f;
+  f.overbound_scale = 1.25, f.drive = "query-dusk", f.drive_sha256 = "ab12";
+  f.fixes = 48, f.excluded = 2, f.binding_z = 2.5, f.confidence = 0.9, f.map_version = 3;
+  f.fitted_utc = "2026-12-04T00:00:00.000Z";
+  c.integrity_fit = f;
+  const std::string path = ::testing::TempDir() + "/store_fit/catalog.sqlite";
+  ASSERT_TRUE(WriteCatalog(path, c).ok());
+  auto r = ReadCatalog(path);
+  ASSERT_TRUE(r.ok()) << r.status().ToString();
+  ASSERT_TRUE(r->integrity_fit.has_value());
+  EXPECT_EQ(r->integrity_fit->overbound_scale, 1.25);
+  EXPECT_EQ(r->integrity_fit->drive, "query-dusk");
+  EXPECT_EQ(r->integrity_fit->drive_sha256, "ab12");
+  EXPECT_EQ(r->integrity_fit->fixes, 48);
+  EXPECT_EQ(r->integrity_fit->excluded, 2);
+  EXPECT_EQ(r->integrity_fit->binding_z, 2.5);
+  EXPECT_EQ(r->integrity_fit->confidence, 0.9);
+  EXPECT_EQ(r->integrity_fit->map_version, 3);
+  EXPECT_EQ(r->integrity_fit->fitted_utc, f.fitted_utc);
+  c.integrity_fit->overbound_scale = 0.8;
+  ASSERT_TRUE(WriteCatalog(path, c).ok());
+  EXPECT_EQ(ReadCatalog(path).status().code(), StatusCode::kCorrupt);
 }
 
 TEST(MapStoreTest, DamagedFilesAreRefusedByName) {
