@@ -152,12 +152,26 @@ nlohmann::json FixJson(const Fix& f) {
                            {"hypotheses_skipped", i.hypotheses_skipped},
                            {"max_test_ratio", i.max_test_ratio}});
     if (!i.detail.empty()) j["integrity"]["detail"] = i.detail;
+    if (!i.overbound_drive.empty()) j["integrity"]["overbound_drive"] = i.overbound_drive;
   }
   if (f.prior_distance_m >= 0) {
     j["prior_distance_m"] = f.prior_distance_m;
     j["outside_prior"] = f.outside_prior;
   }
   return j;
+}
+
+bool ParsePriorMode(const std::string& text, RouteEvalOptions* o) {
+  if (text == "none" || text == "gnss") {
+    o->prior = text == "none" ? PriorMode::kNone : PriorMode::kGnss;
+    return true;
+  }
+  std::vector<double> r;
+  if (text.rfind("noisy:", 0) != 0 || !ParseNumbers(text.substr(6), 1, &r) || !(r[0] > 0))
+    return false;
+  o->prior = PriorMode::kNoisy;
+  o->prior_radius_m = o->prior_max_offset_m = r[0];  // centre uniformly within R of the truth
+  return true;
 }
 
 std::string IntegrityLine(const FixIntegrity& i) {
@@ -168,9 +182,15 @@ std::string IntegrityLine(const FixIntegrity& i) {
                 "risk %g (alert limit %.2f m)",
                 i.horizontal_pl_m, i.lateral_pl_m, i.longitudinal_pl_m, i.integrity_risk,
                 i.horizontal_alert_limit_m);
-  if (i.usable()) return std::string("integrity: usable, ") + buf;
+  std::string text = buf;
+  if (!i.overbound_drive.empty()) {
+    std::snprintf(buf, sizeof buf, ", overbound %.2f fitted on drive %s", i.overbound_scale,
+                  i.overbound_drive.c_str());
+    text += buf;
+  }
+  if (i.usable()) return "integrity: usable, " + text;
   return std::string("integrity: NOT usable (") + IntegrityStateName(i.state) + ": " + i.detail +
-         "), " + buf;
+         "), " + text;
 }
 
 }  // namespace sightfix::cli

@@ -14,6 +14,7 @@
 #include <vector>
 
 #include "client/api/client.h"
+#include "client/eval/route_eval.h"
 #include "indexer/base/status.h"
 #include "server/engine/localizer.h"
 
@@ -65,6 +66,10 @@ Result<std::unique_ptr<Client>> ConnectTo(const std::string& server, const std::
 // A fix as `sightfix locate --json` prints it (README "locate"): position fields only when the
 // fix has a position, prior fields only when the request had a prior.
 nlohmann::json FixJson(const Fix& f);
+
+// "none", "noisy:R" or "gnss" (replay's and fit-integrity's --prior) onto the evaluator's
+// options; false when malformed.
+bool ParsePriorMode(const std::string& text, RouteEvalOptions* o);
 
 // One line for text outputs: "integrity: usable, protection levels 0.84 m horizontal, 0.52 m
 // lateral, 0.71 m longitudinal at risk 0.001 (alert limit 2.00 m)", or "integrity: NOT usable

@@ -16,6 +16,9 @@ int Describe(int argc, char** argv);
 // folder. 130 when Ctrl-C stopped it (the report, marked partial, is still written).
 int Replay(int argc, char** argv);
 
+// Fits the overbound of a map's fix errors on a drive with truth and records it in the map.
+int FitIntegrity(int argc, char** argv);
+
 // Two replay summaries side by side with their differences.
 int Compare(int argc, char** argv);
 

@@ -74,20 +74,6 @@ po::options_description ReplayOptions(ReplayFlags* f) {
   return desc;
 }
 
-// "none", "noisy:R" or "gnss" onto the evaluator's options; false when malformed.
-bool ParsePriorMode(const std::string& text, RouteEvalOptions* o) {
-  if (text == "none" || text == "gnss") {
-    o->prior = text == "none" ? PriorMode::kNone : PriorMode::kGnss;
-    return true;
-  }
-  std::vector<double> r;
-  if (text.rfind("noisy:", 0) != 0 || !ParseNumbers(text.substr(6), 1, &r) || !(r[0] > 0))
-    return false;
-  o->prior = PriorMode::kNoisy;
-  o->prior_radius_m = o->prior_max_offset_m = r[0];  // centre uniformly within R of the truth
-  return true;
-}
-
 // The optional GNSS stream and spoofing truth of a drive; a file given but unreadable is an
 // error, a default one missing is not.
 Status LoadGnss(const ReplayFlags& f, const po::variables_map& vm, RouteReport* report) {
@@ -260,6 +246,7 @@ void PrintReplaySummary(const RouteReport& r, const std::string& out) {
   std::printf("integrity, %s\n", IntegrityLine(s.misleading).c_str());
   std::printf("integrity, %s\n", IntegrityLine(s.confidently_wrong).c_str());
   std::printf("integrity, %s\n", ProtectionLines(s.protection).c_str());
+  std::printf("integrity, %s\n", OverboundLine(s.protection, r.drive_dir).c_str());
   std::printf("%s\n", IntervalLegend(s).c_str());
   if (r.spoofing) PrintSpoofing(*r.spoofing);
   std::printf(

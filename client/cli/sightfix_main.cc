@@ -1,5 +1,6 @@
 // sightfix: the command-line client: `locate` (one image, in process or through the server),
-// `describe`, `replay` (a query drive with truth: metrics and report), `compare` (two replays)
+// `describe`, `replay` (a query drive with truth: metrics and report), `fit-integrity` (the
+// protection levels' overbound, fitted on a drive), `compare` (two replays)
 // and `pair` (the relative pose of two images). Each command lives in its own file
 // (commands.h); this one dispatches.
 #include <cstdio>
@@ -24,6 +25,8 @@ void Usage() {
       "  replay (--map MAPDIR | --server HOST:PORT) --drive QUERYDIR --out REPORTDIR [--prior "
       "none|noisy:R|gnss]\n"
       "      replays a query drive with truth: metrics, GNSS spoofing monitor, report.html\n"
+      "  fit-integrity --map MAPDIR --drive QUERYDIR [--dry-run]\n"
+      "      fits the protection levels' error overbound on a drive with truth, into the map\n"
       "  compare REPORTDIR_A REPORTDIR_B\n"
       "      two replay summaries side by side\n"
       "  pair IMAGE_A IMAGE_B --camera A.yml [--camera-b B.yml] [--json]\n"
@@ -47,6 +50,7 @@ int main(int argc, char** argv) {
   if (command == "locate") return cli::Locate(argc - 1, argv + 1);
   if (command == "describe") return cli::Describe(argc - 1, argv + 1);
   if (command == "replay") return cli::Replay(argc - 1, argv + 1);
+  if (command == "fit-integrity") return cli::FitIntegrity(argc - 1, argv + 1);
   if (command == "compare") return cli::Compare(argc - 1, argv + 1);
   Usage();
   return cli::Fail("unknown command '" + command + "'", 2);

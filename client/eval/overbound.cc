@@ -35,4 +35,25 @@ Result<OverboundFit> FitOverbound(const std::vector<double>& z, double confidenc
   return fit;
 }
 
+NormalisedErrors NormaliseErrors(const std::vector<QueryResult>& results, double wrong_m) {
+  NormalisedErrors out;
+  for (const QueryResult& q : results) {
+    if (!q.ran || !q.error.empty() || q.fix.quality != FixQuality::kRefined || q.error_m < 0)
+      continue;
+    ++out.fixes;
+    if (q.error_m > wrong_m) {
+      ++out.excluded;
+      continue;
+    }
+    const double h = q.truth.attitude.heading_deg * M_PI / 180;
+    const cv::Vec2d along(std::sin(h), std::cos(h)), cross(std::cos(h), -std::sin(h));
+    const cv::Matx22d& c = q.fix.covariance_en;
+    const double var_along = along.dot(c * along), var_cross = cross.dot(c * cross);
+    if (!(var_along > 0 && var_cross > 0)) continue;  // no covariance: nothing to normalise by
+    out.z.push_back(q.along_track_m / std::sqrt(var_along));
+    out.z.push_back(q.cross_track_m / std::sqrt(var_cross));
+  }
+  return out;
+}
+
 }  // namespace sightfix

@@ -10,6 +10,7 @@
 
 #include <vector>
 
+#include "client/eval/route_eval.h"
 #include "indexer/base/status.h"
 
 namespace sightfix {
@@ -22,5 +23,17 @@ struct OverboundFit {
 
 // InvalidArgument for an empty sample, a non-finite value or confidence outside (0, 1).
 Result<OverboundFit> FitOverbound(const std::vector<double>& z, double confidence = 0.95);
+
+// The normalised errors of a replay's refined fixes: per fix two samples, the error across and
+// along the truth's heading over the fix's own sigma on that axis (sqrt(u^T C u), C its
+// covariance_en, the one its protection levels start from). A fix more than wrong_m off is a
+// fault (a wrong place, the place check's business), not a sample of the fault-free error
+// model: it is counted in `excluded` and left out of z.
+struct NormalisedErrors {
+  std::vector<double> z;
+  int fixes = 0;     // refined fixes read
+  int excluded = 0;  // of them, more than wrong_m off
+};
+NormalisedErrors NormaliseErrors(const std::vector<QueryResult>& results, double wrong_m = 5);
 
 }  // namespace sightfix

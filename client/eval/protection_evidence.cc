@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <filesystem>
 #include <set>
 
 #include "client/eval/interval_stats.h"
@@ -41,6 +42,9 @@ ProtectionEvidence CountProtection(const std::vector<QueryResult>& results, cons
     if (!IsProtected(q)) continue;
     const FixIntegrity& f = q.fix.integrity;
     ++e.protected_fixes;
+    if (f.overbound_scale > e.overbound_scale ||
+        (e.overbound_drive.empty() && !f.overbound_drive.empty()))
+      e.overbound_scale = f.overbound_scale, e.overbound_drive = f.overbound_drive;
     for (size_t k = 0; k < kAlertLimitsM.size(); ++k)
       e.availability[k] += !Alerted(f) && f.horizontal_pl_m <= kAlertLimitsM[k];
     if (WithinLevels(q)) ++e.within_levels, e.false_alerts += Alerted(f);
@@ -82,6 +86,26 @@ std::string ProtectionLines(const ProtectionEvidence& e) {
     out += " " + FormatNumber("%g", kAlertLimitsM[k]) + " m " +
            FormatNumber("%.3f", e.availability[k]);
   return out;
+}
+
+std::string DriveFolderName(const std::string& dir) {
+  std::filesystem::path p = std::filesystem::path(dir).lexically_normal();
+  if (p.filename().empty()) p = p.parent_path();
+  return p.filename().string();
+}
+
+std::optional<bool> OverboundHeldOut(const ProtectionEvidence& e, const std::string& drive_dir) {
+  if (e.overbound_drive.empty()) return std::nullopt;
+  return e.overbound_drive != DriveFolderName(drive_dir);
+}
+
+std::string OverboundLine(const ProtectionEvidence& e, const std::string& drive_dir) {
+  const std::optional<bool> held_out = OverboundHeldOut(e, drive_dir);
+  if (!held_out) return "no overbound fitted on this map: sigmas as stated (scale 1)";
+  return "overbound " + FormatNumber("%.2f", e.overbound_scale) + " fitted on drive " +
+         e.overbound_drive +
+         (*held_out ? " (this drive is held out from the fit)"
+                    : ": THIS drive, so its protection figures are not held-out evidence");
 }
 
 }  // namespace sightfix

@@ -20,6 +20,7 @@
 // Pure functions; thread-compatible.
 #pragma once
 
+#include <optional>
 #include <string>
 
 #include "client/eval/route_eval.h"
@@ -36,5 +37,13 @@ ProtectionEvidence CountProtection(const std::vector<QueryResult>& results, cons
 
 // Two lines for text outputs: the flag's counts, then availability by alert limit.
 std::string ProtectionLines(const ProtectionEvidence& e);
+
+// A drive folder's name, as fit-integrity records it: the last component of the path.
+std::string DriveFolderName(const std::string& dir);
+// Whether the drive in drive_dir is another than the one the fixes' overbound was fitted on
+// (by folder name); nullopt when no overbound was fitted.
+std::optional<bool> OverboundHeldOut(const ProtectionEvidence& e, const std::string& drive_dir);
+// One line: the overbound the fixes carried, its drive, and whether this drive is held out.
+std::string OverboundLine(const ProtectionEvidence& e, const std::string& drive_dir);
 
 }  // namespace sightfix

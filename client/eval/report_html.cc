@@ -211,7 +211,8 @@ std::string ReportHtml(const RouteReport& r) {
        "radius95 (x) and its actual error (y). Grey dashes: error = radius95, 95 % of dots "
        "belong below; red dots: error = 3 x radius95. Orange dots mislead, red ones are "
        "confidently wrong.</div>\n";
-  h += "<p>" + EscapeXml(ProtectionLines(r.summary.protection)) + "</p>\n";
+  h += "<p>" + EscapeXml(ProtectionLines(r.summary.protection)) + "<br>" +
+       EscapeXml(OverboundLine(r.summary.protection, r.drive_dir)) + "</p>\n";
   h += ProtectionDiagramPlot(qs);
   h += "<div class=\"caption\">Error against protection level: each refined fix at its "
        "horizontal protection level (x) and its actual error (y). Dashes: error = protection "

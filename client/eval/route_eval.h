@@ -169,6 +169,10 @@ struct ProtectionEvidence {
   double longest_unflagged_s = 0;                           // time to alert's worst case
   int segments = 0, misleading_segments = 0;
   std::optional<double> segment_share_upper95;  // Clopper-Pearson, one-sided 95 %
+  // The largest overbound the fixes carried and the drive it was fitted on ("": none fitted),
+  // so a report says whether its drive is held out from the fit.
+  double overbound_scale = 1;
+  std::string overbound_drive;
 };
 
 // One street segment's figures, for the report's table and strip.

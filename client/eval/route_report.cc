@@ -154,7 +154,8 @@ nlohmann::json SegmentsJson(const RouteSummary& s) {
 
 }  // namespace
 
-nlohmann::json ProtectionJson(const ProtectionEvidence& e) {
+nlohmann::json ProtectionJson(const ProtectionEvidence& e, const std::string& drive_dir) {
+  const std::optional<bool> held_out = OverboundHeldOut(e, drive_dir);
   nlohmann::json availability;
   for (size_t k = 0; k < kAlertLimitsM.size(); ++k)
     availability[FormatNumber("%g", kAlertLimitsM[k]) + "m"] = e.availability[k];
@@ -171,7 +172,11 @@ nlohmann::json ProtectionJson(const ProtectionEvidence& e) {
                                                         : nlohmann::json(nullptr)},
       {"false_alerts", e.false_alerts},
       {"within_levels", e.within_levels},
-      {"availability_by_alert_limit", availability}};
+      {"availability_by_alert_limit", availability},
+      {"overbound_scale", e.overbound_scale},
+      {"overbound_drive",
+       e.overbound_drive.empty() ? nlohmann::json(nullptr) : nlohmann::json(e.overbound_drive)},
+      {"overbound_held_out", held_out ? nlohmann::json(*held_out) : nlohmann::json(nullptr)}};
 }
 
 nlohmann::json SummaryJson(const RouteReport& r) {
@@ -202,7 +207,7 @@ nlohmann::json SummaryJson(const RouteReport& r) {
                       {"integrity",
                        {{"misleading", IntegrityJson(s.misleading)},
                         {"confidently_wrong", IntegrityJson(s.confidently_wrong)},
-                        {"protection", ProtectionJson(s.protection)}}},
+                        {"protection", ProtectionJson(s.protection, r.drive_dir)}}},
                       {"street_segments", SegmentsJson(s)},
                       {"latency_ms_p50", s.latency_ms_p50},
                       {"latency_ms_p95", s.latency_ms_p95},

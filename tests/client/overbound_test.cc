@@ -6,6 +6,7 @@
 
 #include <gtest/gtest.h>
 
+#include <cmath>
 #include <random>
 
 namespace sightfix {
@@ -55,6 +56,39 @@ TEST(OverboundTest, BadInputIsRefused) {
   EXPECT_EQ(FitOverbound({}).status().code(), StatusCode::kInvalidArgument);
   EXPECT_EQ(FitOverbound({1.0, std::nan("")}).status().code(), StatusCode::kInvalidArgument);
   EXPECT_EQ(FitOverbound({1.0}, 1.0).status().code(), StatusCode::kInvalidArgument);
+}
+
+// NormaliseErrors worked by hand: a fix heading east (90 deg) with covariance diag(east 0.04,
+// north 0.01) has sigma 0.2 m along (east) and 0.1 m across (north); an error of +0.1 m along
+// and -0.3 m across gives z = 0.5 and -3. A fix 12 m off is a wrong place (excluded, counted);
+// coarse fixes and failed calls are not read.
+TEST(OverboundTest, NormalisedErrorsAcrossAndAlongTheTruthsHeading) {
+  QueryResult good;
+  good.ran = true;
+  good.fix.quality = FixQuality::kRefined;
+  good.fix.covariance_en = cv::Matx22d(0.04, 0, 0, 0.01);
+  good.truth.attitude.heading_deg = 90;
+  good.along_track_m = 0.1, good.cross_track_m = -0.3;
+  good.error_m = std::hypot(0.1, 0.3);
+  QueryResult wrong = good;
+  wrong.error_m = 12;
+  QueryResult coarse = good;
+  coarse.fix.quality = FixQuality::kCoarse;
+  QueryResult failed = good;
+  failed.error = "deadline exceeded";
+  const NormalisedErrors e = NormaliseErrors({good, wrong, coarse, failed});
+  EXPECT_EQ(e.fixes, 2);
+  EXPECT_EQ(e.excluded, 1);
+  ASSERT_EQ(e.z.size(), 2u);
+  EXPECT_NEAR(e.z[0], 0.5, 1e-12);
+  EXPECT_NEAR(e.z[1], -3, 1e-12);
+  // North-bound: along is north (sigma 0.1), across is east (sigma 0.2).
+  good.truth.attitude.heading_deg = 0;
+  const NormalisedErrors n = NormaliseErrors({good});
+  ASSERT_EQ(n.z.size(), 2u);
+  EXPECT_NEAR(n.z[0], 1, 1e-12);
+  EXPECT_NEAR(n.z[1], -1.5, 1e-12);
+  EXPECT_EQ(NormaliseErrors({wrong}, 15).excluded, 0);  // the threshold is the caller's
 }
 
 }  // namespace
