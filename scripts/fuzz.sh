@@ -4,13 +4,13 @@
 # in the build folder between runs.
 # Usage: scripts/fuzz.sh TARGET|all SECONDS   (BUILD_DIR overrides ./build-san; JOBS targets at once;
 #        FUZZ_SEED=N repeats a run's random choices, 0 = a new seed each run)
-# Targets: frame drive_csv gpx calibration rig tile fixes_csv.
+# Targets: frame drive_csv gpx calibration rig tile fixes_csv integrity_fit.
 # A crash leaves its input in BUILD_DIR/fuzz/crashes/TARGET/ and exits 1: fix the bug, then copy
 # the input into tests/fuzz/regressions/TARGET/ so every build replays it from then on.
 set -euo pipefail
 root="$(cd "$(dirname "$0")/.." && pwd)"
 build="${BUILD_DIR:-$root/build-san}"
-targets=(frame drive_csv gpx calibration rig tile fixes_csv)
+targets=(frame drive_csv gpx calibration rig tile fixes_csv integrity_fit)
 usage() { sed -n '2,10p' "$0" | sed 's/^# \{0,1\}//'; }
 if [ $# -ne 2 ] || [[ "$1" = -h || "$1" = --help ]]; then usage; [ $# -eq 2 ] && exit 0 || exit 2; fi
 target="$1" seconds="$2"

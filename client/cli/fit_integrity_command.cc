@@ -13,13 +13,10 @@
 
 #include "client/cli/command_support.h"
 #include "client/cli/commands.h"
-#include "client/eval/overbound.h"
+#include "client/eval/overbound_record.h"
 #include "client/eval/protection_evidence.h"
 #include "client/eval/route_eval.h"
-#include "indexer/base/env.h"
-#include "indexer/base/iso_time.h"
 #include "indexer/base/progress.h"
-#include "indexer/base/sha256.h"
 #include "indexer/map/catalog.h"
 #include "indexer/map/map_lock.h"
 
@@ -27,10 +24,6 @@ namespace sightfix::cli {
 namespace {
 
 namespace fs = std::filesystem;
-
-// Fewer refined fixes than this cannot bound a tail: 20 fixes give 40 samples, whose largest
-// alone has a 95 % Clopper-Pearson upper bound of 0.072 on its tail share.
-constexpr int kMinFixes = 20;
 
 struct FitFlags {
   std::string map_dir, drive, prior = "noisy:150";
@@ -131,8 +124,7 @@ void PrintFit(const IntegrityFit& fit, const NormalisedErrors& e, int queries, d
 }
 
 // Replays the drive through the map and fits; returns kGoOn or the exit code.
-int ReplayAndFit(const FitFlags& f, RouteEvalOptions* o, NormalisedErrors* errors, int* queries,
-                 IntegrityFit* fit) {
+int ReplayAndFit(const FitFlags& f, RouteEvalOptions* o, DriveOverbound* fitted, int* queries) {
   auto localizer = Localizer::Open(f.map_dir, LocalizerOptions{});
   if (!localizer.ok()) return Fail(localizer.status().ToString(), 2);
   Result<std::vector<DriveRow>> rows = ReadDriveManifest(f.drive + "/drive.csv");
@@ -144,21 +136,12 @@ int ReplayAndFit(const FitFlags& f, RouteEvalOptions* o, NormalisedErrors* error
   progress.Finish();
   if (!results.ok()) return Fail(results.status().ToString(), 2);
   *queries = static_cast<int>(total);
-  *errors = NormaliseErrors(*results, f.wrong_m);
-  if (errors->fixes - errors->excluded < kMinFixes)
-    return Fail("only " + std::to_string(errors->fixes - errors->excluded) +
-                    " refined fixes within --wrong-m of the truth: a fit needs at least " +
-                    std::to_string(kMinFixes) + " (a longer drive, or a map that covers it)",
-                1);
-  Result<OverboundFit> k = FitOverbound(errors->z, f.confidence);
-  if (!k.ok()) return Fail(k.status().ToString(), 1);
-  Result<std::string> sha = Sha256OfFile(f.drive + "/drive.csv");
-  if (!sha.ok()) return Fail(sha.status().ToString(), 2);
-  fit->overbound_scale = k->scale, fit->binding_z = k->binding_z, fit->confidence = f.confidence;
-  fit->drive = DriveFolderName(f.drive), fit->drive_sha256 = *sha;
-  fit->fixes = errors->fixes - errors->excluded, fit->excluded = errors->excluded;
-  fit->map_version = (*localizer)->catalog().map_version;
-  fit->fitted_utc = FormatIsoUtc(static_cast<double>(Env::Default()->NowUnixSeconds()));
+  DriveOverboundOptions options;
+  options.wrong_m = f.wrong_m, options.confidence = f.confidence;
+  options.map_version = (*localizer)->catalog().map_version;
+  Result<DriveOverbound> fit = FitDriveOverbound(*results, f.drive, options);
+  if (!fit.ok()) return Fail(fit.status().ToString(), 1);
+  *fitted = std::move(fit).value();
   return kGoOn;
 }
 
@@ -180,20 +163,15 @@ int FitIntegrity(int argc, char** argv) {
     if (!l.ok()) return Fail(l.status().ToString(), 1);
     lock.emplace(std::move(l).value());
   }
-  NormalisedErrors errors;
-  IntegrityFit fit;
+  DriveOverbound fitted;
   int queries = 0;
-  if (int rc = ReplayAndFit(f, &o, &errors, &queries, &fit); rc != kGoOn) return rc;
-  if (!f.dry_run) {
-    Result<Catalog> catalog = ReadCatalog(catalog_path);
-    if (!catalog.ok()) return Fail(catalog.status().ToString(), 1);
-    catalog->integrity_fit = fit;
-    if (Status s = WriteCatalog(catalog_path, *catalog); !s.ok()) return Fail(s.ToString(), 1);
-  }
+  if (int rc = ReplayAndFit(f, &o, &fitted, &queries); rc != kGoOn) return rc;
+  if (!f.dry_run)
+    if (Status s = RecordOverbound(f.map_dir, fitted.fit); !s.ok()) return Fail(s.ToString(), 1);
   if (f.json)
-    std::cout << FitJson(fit, errors, queries, !f.dry_run).dump(2) << "\n";
+    std::cout << FitJson(fitted.fit, fitted.errors, queries, !f.dry_run).dump(2) << "\n";
   else
-    PrintFit(fit, errors, queries, f.wrong_m, f.map_dir, !f.dry_run);
+    PrintFit(fitted.fit, fitted.errors, queries, f.wrong_m, f.map_dir, !f.dry_run);
   return 0;
 }
 

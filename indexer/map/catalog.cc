@@ -1,6 +1,8 @@
 #include "indexer/map/catalog.h"
 
+#include <climits>
 #include <cmath>
+#include <cstdint>
 #include <cstdlib>
 #include <filesystem>
 #include <nlohmann/json.hpp>
@@ -32,6 +34,8 @@ Status WriteTileRows(sqlite3* db, const Catalog& c) {
   return Status::Ok();
 }
 
+}  // namespace
+
 std::string IntegrityFitJson(const IntegrityFit& f) {
   return nlohmann::json{{"overbound_scale", f.overbound_scale},
                         {"drive", f.drive},
@@ -45,17 +49,30 @@ std::string IntegrityFitJson(const IntegrityFit& f) {
       .dump();
 }
 
-// The meta row's JSON; kCorrupt when malformed or K is not a finite number >= 1.
+namespace {
+
+// A count of the record: absent is 0; a number that is not a whole one in [0, 2^31) throws.
+int CountOf(const nlohmann::json& j, const char* key) {
+  if (!j.contains(key)) return 0;
+  const nlohmann::json& v = j.at(key);
+  if (!v.is_number_integer() || v.get<int64_t>() < 0 || v.get<int64_t>() > INT32_MAX)
+    throw nlohmann::json::type_error::create(302, std::string(key) + " is not a count", &v);
+  return static_cast<int>(v.get<int64_t>());
+}
+
+}  // namespace
+
 Result<IntegrityFit> ParseIntegrityFit(const std::string& text, const std::string& path) {
   const nlohmann::json j = nlohmann::json::parse(text, nullptr, false);
   IntegrityFit f;
   try {
+    if (!j.is_object()) throw nlohmann::json::type_error::create(302, "not an object", &j);
     f.overbound_scale = j.at("overbound_scale").get<double>();
     f.drive = j.at("drive").get<std::string>();
     f.drive_sha256 = j.value("drive_sha256", "");
-    f.fixes = j.value("fixes", 0), f.excluded = j.value("excluded", 0);
+    f.fixes = CountOf(j, "fixes"), f.excluded = CountOf(j, "excluded");
     f.binding_z = j.value("binding_z", 0.0), f.confidence = j.value("confidence", 0.95);
-    f.map_version = j.value("map_version", 0), f.fitted_utc = j.value("fitted_utc", "");
+    f.map_version = CountOf(j, "map_version"), f.fitted_utc = j.value("fitted_utc", "");
   } catch (const nlohmann::json::exception&) {
     return Status::Corrupt(path + ": integrity_fit is not the fit's JSON record");
   }
@@ -63,6 +80,8 @@ Result<IntegrityFit> ParseIntegrityFit(const std::string& text, const std::strin
     return Status::Corrupt(path + ": integrity_fit's overbound_scale must be a number >= 1");
   return f;
 }
+
+namespace {
 
 Status WriteCatalogRows(sqlite3* db, const Catalog& c) {
   if (Status s = Exec(db, kCatalogSchema); !s.ok()) return s;

@@ -43,6 +43,11 @@ struct IntegrityFit {
   std::string fitted_utc;      // ISO 8601
 };
 
+// The record's JSON as the catalog stores it, and back: kCorrupt (naming `path`) when the text is
+// not the record's JSON or K is not a finite number >= 1.
+std::string IntegrityFitJson(const IntegrityFit& fit);
+Result<IntegrityFit> ParseIntegrityFit(const std::string& text, const std::string& path);
+
 struct Catalog {
   int format_version = kMapFormatVersion;
   int map_version = 0;

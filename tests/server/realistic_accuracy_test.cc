@@ -31,6 +31,8 @@
 #include <set>
 
 #include "client/eval/integrity.h"
+#include "client/eval/overbound_record.h"
+#include "client/eval/protection_evidence.h"
 #include "client/eval/route_eval.h"
 #include "demo_route/demo_town.h"
 #include "indexer/base/geo.h"
@@ -44,6 +46,8 @@ namespace {
 
 namespace fs = std::filesystem;
 
+// The drive the overbound is fitted on, after every drive ran (FitOverboundOn).
+constexpr const char* kFitDrive = "query-day";
 constexpr const char* kDrives[] = {"query-day", "query-dusk", "query-overcast", "query-night",
                                    "query-offmap"};
 
@@ -58,6 +62,7 @@ class RealisticTown {
   const std::string& root() const { return root_; }
   const std::vector<QueryResult>& Results(const std::string& drive) { return results_[drive]; }
   const RouteSummary& Summary(const std::string& drive) { return summaries_[drive]; }
+  const IntegrityFit& fit() const { return fit_; }
 
  private:
   RealisticTown() {
@@ -99,10 +104,31 @@ class RealisticTown {
       summaries_[drive] = Summarize(*r);
       const IntegrityCounts confident =
           CountIntegrity(*r, CutStreetSegments(*r, 50), kConfidentlyWrongFactor);
-      std::printf("%s, no prior: %s\n  %s\n", drive, SummaryLine(summaries_[drive]).c_str(),
-                  IntegrityLine(confident).c_str());
+      std::printf("%s, no prior: %s\n  %s\n  %s\n", drive, SummaryLine(summaries_[drive]).c_str(),
+                  IntegrityLine(confident).c_str(),
+                  ProtectionLines(summaries_[drive].protection).c_str());
     }
+    if (!FitOverboundOn(kFitDrive, town.out_dir, b.map_dir, (*loc)->catalog().map_version)) return;
     localizer_ = std::move(loc).value();
+  }
+
+  // The overbound fitted on one drive's results and recorded in the map, as `sightfix
+  // fit-integrity` does. The drives above ran without it (scale 1): the stricter test.
+  bool FitOverboundOn(const std::string& drive, const std::string& town_dir,
+                      const std::string& map_dir, int map_version) {
+    DriveOverboundOptions o;
+    o.map_version = map_version;
+    Result<DriveOverbound> fit = FitDriveOverbound(results_[drive], town_dir + "/" + drive, o);
+    if (!fit.ok() || !RecordOverbound(map_dir, fit->fit).ok()) {
+      std::printf("overbound fit failed: %s\n", fit.status().ToString().c_str());
+      return false;
+    }
+    fit_ = fit->fit;
+    std::printf(
+        "overbound fitted on %s: K %.3f over %d fixes (%d more than 5 m off left out), "
+        "set by |z| %.2f\n",
+        fit_.drive.c_str(), fit_.overbound_scale, fit_.fixes, fit_.excluded, fit_.binding_z);
+    return true;
   }
   ~RealisticTown() {
     localizer_.reset();
@@ -114,6 +140,7 @@ class RealisticTown {
   std::unique_ptr<Localizer> localizer_;
   std::map<std::string, std::vector<QueryResult>> results_;
   std::map<std::string, RouteSummary> summaries_;
+  IntegrityFit fit_;
 };
 
 // The images of query-offmap whose truth is off the map (town.json excursion.off_map_frames).
@@ -206,6 +233,51 @@ TEST_F(RealisticAccuracyTest, OffMapFramesGetNoConfidentFix) {
         << q.truth.image << ": " << q.error_m << " m, radius95 " << q.fix.radius95_m;
   }
   EXPECT_EQ(seen, static_cast<int>(off.size()));
+}
+
+// Integrity without the overbound (scale 1, the narrowest levels the engine states): on every
+// drive no fix flagged usable whose error exceeds a protection level (misleading), and no fix
+// flagged usable more than 5 m off: a wrong place (a look-alike stretch, a twin street) is
+// either caught or left unusable. A fitted scale K >= 1 widens every level (and the fault
+// tests' thresholds with them), so fewer fixes are usable with it; the fit itself is recorded after
+// the drives ran and checked for its record (its effect on the engine:
+// tests/cli/fit_integrity_test.sh). Seed 41 (CI's) is held out from the development of the place
+// and near-miss checks, which seed 43 drove. Measured 2026-12-04, flagged usable: seed 41 95 of 261
+// protected fixes (day 23, dusk 7, overcast 53, off-map 12), seed 43 28 (day, dusk and overcast); 0
+// misleading on both; the floor of 20 usable keeps the test from passing on an engine that flags
+// nothing. Guards the protection levels end to end (tests/mutants/mutants.tsv:
+// protection_sigmas_halved).
+TEST_F(RealisticAccuracyTest, NoMisleadingFixAtTheNarrowestLevels) {
+  RealisticTown& t = RealisticTown::Get();
+  ASSERT_TRUE(t.ok());
+  int protected_fixes = 0, usable = 0;
+  for (const char* drive : kDrives) {
+    for (const QueryResult& q : t.Results(drive))
+      EXPECT_FALSE(IsFlaggedUsable(q) && q.error_m > 5)
+          << drive << " " << q.truth.image << ": usable, " << q.error_m << " m off";
+    const ProtectionEvidence& e = t.Summary(drive).protection;
+    EXPECT_EQ(e.misleading, 0) << drive << ": " << ProtectionLines(e);
+    EXPECT_EQ(e.overbound_scale, 1) << drive;
+    protected_fixes += e.protected_fixes, usable += e.usable;
+  }
+  std::printf("scale 1: %d protected fixes, %d flagged usable, 0 misleading\n", protected_fixes,
+              usable);
+  EXPECT_GE(usable, 20);
+}
+
+// The overbound fitted on the day drive lands in the map: K >= 1 from at least 20 fixes, the
+// drive named, the catalog reading it back. Seed 41's day drive gives K 2.48, set by one fix
+// at 5.6 sigma (DEVELOPERS.md, "Integrity: protection levels, first figures").
+TEST_F(RealisticAccuracyTest, OverboundFitRecordedInTheMap) {
+  RealisticTown& t = RealisticTown::Get();
+  ASSERT_TRUE(t.ok());
+  EXPECT_EQ(t.fit().drive, kFitDrive);
+  EXPECT_GE(t.fit().overbound_scale, 1);
+  EXPECT_GE(t.fit().fixes, kMinOverboundFixes);
+  Result<Catalog> c = ReadCatalog(t.root() + "/map/catalog.sqlite");
+  ASSERT_TRUE(c.ok()) << c.status().ToString();
+  ASSERT_TRUE(c->integrity_fit.has_value());
+  EXPECT_EQ(c->integrity_fit->overbound_scale, t.fit().overbound_scale);
 }
 
 TEST_F(RealisticAccuracyGoal, NoFixFarOffOrConfidentlyWrong) {

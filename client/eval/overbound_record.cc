@@ -1,0 +1,43 @@
+#include "client/eval/overbound_record.h"
+
+#include "client/eval/protection_evidence.h"
+#include "client/eval/route_view.h"
+#include "indexer/base/env.h"
+#include "indexer/base/iso_time.h"
+#include "indexer/base/sha256.h"
+
+namespace sightfix {
+
+Result<DriveOverbound> FitDriveOverbound(const std::vector<QueryResult>& results,
+                                         const std::string& drive_dir,
+                                         const DriveOverboundOptions& o) {
+  DriveOverbound out;
+  out.errors = NormaliseErrors(results, o.wrong_m);
+  const int usable = out.errors.fixes - out.errors.excluded;
+  if (usable < kMinOverboundFixes)
+    return Status{StatusCode::kFailedPrecondition,
+                  "only " + std::to_string(usable) + " refined fixes within " +
+                      FormatNumber("%g", o.wrong_m) + " m of the truth: a fit needs at least " +
+                      std::to_string(kMinOverboundFixes) +
+                      " (a longer drive, or a map that covers it)"};
+  Result<OverboundFit> k = FitOverbound(out.errors.z, o.confidence);
+  if (!k.ok()) return k.status();
+  Result<std::string> sha = Sha256OfFile(drive_dir + "/drive.csv");
+  if (!sha.ok()) return sha.status();
+  IntegrityFit& f = out.fit;
+  f.overbound_scale = k->scale, f.binding_z = k->binding_z, f.confidence = o.confidence;
+  f.drive = DriveFolderName(drive_dir), f.drive_sha256 = *sha;
+  f.fixes = usable, f.excluded = out.errors.excluded, f.map_version = o.map_version;
+  f.fitted_utc = FormatIsoUtc(static_cast<double>(Env::Default()->NowUnixSeconds()));
+  return out;
+}
+
+Status RecordOverbound(const std::string& map_dir, const IntegrityFit& fit) {
+  const std::string path = map_dir + "/catalog.sqlite";
+  Result<Catalog> catalog = ReadCatalog(path);
+  if (!catalog.ok()) return catalog.status();
+  catalog->integrity_fit = fit;
+  return WriteCatalog(path, *catalog);
+}
+
+}  // namespace sightfix
