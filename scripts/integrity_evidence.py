@@ -12,7 +12,8 @@ the overbound's fit:
   - episodes, the independent trials: one per (seed, drive, 50 m street segment) that holds a
     fix flagged usable (fixes.csv `segment`: the truth track cut by distance driven, so
     neighbouring frames of one stretch share a trial); the one-sided 95 % Clopper-Pearson upper
-    bound of the share of episodes holding a misleading fix (scipy.stats.beta, exact);
+    bound of the share of episodes holding a misleading fix (exact: bisection on the binomial
+    CDF, no third-party module);
   - availability at 1, 2, 5 and 10 m: fixes neither alerted nor above the limit, over queries;
   - wrong places: refined fixes more than 5 m off, and how many of them were flagged usable.
 Such evidence validates a protection level to about 1e-3 at best, not to the far tails a safety
@@ -26,21 +27,38 @@ import math
 import os
 import sys
 
-from scipy.stats import beta
-
 ALERT_LIMIT_M = 2.0
 LIMITS_M = (1.0, 2.0, 5.0, 10.0)
 WRONG_M = 5.0
 MARGIN_M = 10.0  # a look-alike stretch's reach beyond its ends, route metres
 
 
+def binomial_cdf(k, n, p):
+    """P(X <= k) for X ~ Bin(n, p), summed in log space."""
+    if p <= 0:
+        return 1.0
+    if p >= 1:
+        return 0.0 if k < n else 1.0
+    lp, lq = math.log(p), math.log1p(-p)
+    return sum(math.exp(math.lgamma(n + 1) - math.lgamma(i + 1) - math.lgamma(n - i + 1)
+                        + i * lp + (n - i) * lq) for i in range(k + 1))
+
+
 def cp_upper(k, n, confidence=0.95):
-    """One-sided Clopper-Pearson upper bound (Clopper and Pearson, Biometrika 1934)."""
+    """One-sided Clopper-Pearson upper bound (Clopper and Pearson, Biometrika 1934): the p at
+    which P(X <= k) = 1 - confidence, by bisection (the CDF falls as p grows)."""
     if n == 0:
         return None
     if k >= n:
         return 1.0
-    return float(beta.ppf(confidence, k + 1, n - k))
+    lo, hi = 0.0, 1.0
+    for _ in range(100):
+        mid = 0.5 * (lo + hi)
+        if binomial_cdf(k, n, mid) > 1 - confidence:
+            lo = mid
+        else:
+            hi = mid
+    return 0.5 * (lo + hi)
 
 
 def metres(lat0, lon0, lat1, lon1):

@@ -246,7 +246,7 @@ TEST_F(RealisticAccuracyTest, OffMapFramesGetNoConfidentFix) {
 // protected fixes (day 23, dusk 7, overcast 53, off-map 12), seed 43 28 (day, dusk and overcast); 0
 // misleading on both; the floor of 20 usable keeps the test from passing on an engine that flags
 // nothing. Guards the protection levels end to end (tests/mutants/mutants.tsv:
-// protection_sigmas_halved).
+// protection_levels_at_one_sigma).
 TEST_F(RealisticAccuracyTest, NoMisleadingFixAtTheNarrowestLevels) {
   RealisticTown& t = RealisticTown::Get();
   ASSERT_TRUE(t.ok());
