@@ -88,7 +88,8 @@ struct Localizer::Impl {
                                     std::string* note) const;
   std::vector<Candidate> FromPrior(const cv::Mat& query, const PriorCircle& p,
                                    std::string* note) const;
-  std::vector<Candidate> FromGlobal(const cv::Mat& query, std::string* note) const;
+  // The map-wide index's first k (default top_k) for the query descriptor.
+  std::vector<Candidate> FromGlobal(const cv::Mat& query, std::string* note, int k = 0) const;
   std::vector<Verified> Verify(const LocalFeatures& q, const std::vector<Candidate>& cands,
                                const CameraModel& cam, Clock::time_point start,
                                std::vector<ReferenceUse>* uses) const;
@@ -100,6 +101,9 @@ struct Localizer::Impl {
               const std::vector<Verified>& v, const EnuFrame& frame, const IntegrityRequest& ir,
               Fix* fix) const;
   void Coarse(const std::vector<Verified>& v, const std::string& reason, Fix* fix) const;
+  // A usable fix's look-alike check (LocalizerOptions::look_alike_checks).
+  void CheckLookAlikes(const LocalFeatures& q, const LocateRequest& r,
+                       const std::vector<Verified>& verified, Fix* fix) const;
   // REQUIRES: !verified->empty(). Sets each reference's centre and rotation in the frame of
   // the first, then the fix.
   void Pose(const LocalFeatures& q, const LocateRequest& r, const std::string& note,
@@ -224,8 +228,10 @@ std::vector<Candidate> Localizer::Impl::FromPrior(const cv::Mat& q, const PriorC
   return out;
 }
 
-std::vector<Candidate> Localizer::Impl::FromGlobal(const cv::Mat& q, std::string* note) const {
-  const int k = static_cast<int>(std::min<faiss::Index::idx_t>(global->ntotal, o.top_k));
+std::vector<Candidate> Localizer::Impl::FromGlobal(const cv::Mat& q, std::string* note,
+                                                   int k_wanted) const {
+  const int k = static_cast<int>(
+      std::min<faiss::Index::idx_t>(global->ntotal, k_wanted > 0 ? k_wanted : o.top_k));
   std::vector<float> dist(k);
   std::vector<faiss::Index::idx_t> ids(k);
   if (k > 0) global->search(1, q.ptr<float>(), k, dist.data(), ids.data());
@@ -386,6 +392,24 @@ void Localizer::Impl::Finish(const AbsolutePose& pose, const std::vector<PointCo
   fix->integrity = AssessIntegrity(pose, *fix, map_var, names, places, o, ir);
 }
 
+void Localizer::Impl::CheckLookAlikes(const LocalFeatures& q, const LocateRequest& r,
+                                      const std::vector<Verified>& verified, Fix* fix) const {
+  const Verified& best =
+      *std::max_element(verified.begin(), verified.end(),
+                        [](const Verified& a, const Verified& b) { return a.inliers < b.inliers; });
+  const ReferenceImage& ref = best.c.tile->data.images[best.c.image];
+  std::string note;
+  const std::vector<Candidate> twins =
+      SelectLookAlikes(FromGlobal(model->Whiten(model->Vlad(ReferenceFeatures(ref).descriptors)),
+                                  &note, o.look_alike_depth),
+                       *fix, r, o);
+  std::vector<ReferenceUse> uses;
+  Verify(q, twins, r.camera, Clock::now(), &uses);
+  if (auto why = LookAlikeReason(uses, *fix, best.inliers, o))
+    fix->integrity.state = IntegrityState::kPlaceAmbiguity, fix->integrity.detail = *why;
+  fix->references.insert(fix->references.end(), uses.begin(), uses.end());
+}
+
 // Stage 4 and on: the metric pose from the map's points, else from a reference pair (as
 // o.method allows), then the checks; coarse with the reasons when no pose passes.
 void Localizer::Impl::Pose(const LocalFeatures& q, const LocateRequest& r, const std::string& note,
@@ -431,6 +455,7 @@ void Localizer::Impl::Pose(const LocalFeatures& q, const LocateRequest& r, const
         },
         verified);
     Finish(*pose, pts, *verified, frame, r.integrity, fix);
+    if (fix->integrity.usable() && o.look_alike_checks > 0) CheckLookAlikes(q, r, *verified, fix);
   } else
     Coarse(*verified, note + why, fix);
 }

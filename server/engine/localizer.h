@@ -88,6 +88,19 @@ struct LocalizerOptions {
   // A candidate checked but short of verification counts towards that flag (not towards
   // withholding) with at least this many essential-matrix inliers (place_ambiguity.h).
   int min_near_miss_inliers = 12;
+  // Before a fix is called usable, its strongest reference is itself retrieved against the
+  // map, and up to look_alike_checks of its look-alikes at other places (more than
+  // distinct_place_m from the fix; within the prior's reach when there is one) are checked
+  // against the query: one matching with look_alike_ratio or more of the fix's best inliers
+  // makes the fix place_ambiguity. It finds the twin whose true place the query's own retrieval
+  // missed. The ratio is high because the look-alikes are chosen for resembling the fix's own
+  // reference: a reference 30-45 m along the street shares much of its view and often matches
+  // with 0.3-0.8 of the inliers (DEVELOPERS.md, "Integrity"). 0 checks turn it off.
+  int look_alike_checks = 5;
+  double look_alike_ratio = 0.85;
+  // How deep the reference's own retrieval goes: past its neighbours along the street (a
+  // survey image every 2 m leaves some 30 within distinct_place_m, in both directions).
+  int look_alike_depth = 64;
   // Integrity (protection_levels.h): the default risk, the false-alert budget and the CDF
   // overbound. A request may ask for another risk. The map's fitted overbound (catalog.h
   // IntegrityFit) replaces overbound_scale where it is larger; the fixes then name its drive.

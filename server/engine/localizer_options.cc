@@ -23,6 +23,10 @@ bool LocalizerOptions::Validate(std::string* error) const {
   if (!(ambiguity_ratio >= 0)) return fail("ambiguity_ratio must be >= 0");
   if (!(ambiguity_flag_ratio >= 0)) return fail("ambiguity_flag_ratio must be >= 0");
   if (min_near_miss_inliers < 5) return fail("min_near_miss_inliers must be >= 5");
+  if (look_alike_checks < 0 || look_alike_checks > top_k)
+    return fail("look_alike_checks must be within [0, top_k]");
+  if (!(look_alike_ratio > 0)) return fail("look_alike_ratio must be > 0");
+  if (look_alike_depth < 1) return fail("look_alike_depth must be >= 1");
   if (!(default_alert_limit_m > 0)) return fail("default_alert_limit_m must be > 0");
   std::string p;
   if (!protection.Validate(&p)) return fail("protection: " + p);

@@ -74,6 +74,45 @@ void WeighNearMisses(const std::vector<ReferenceUse>& uses, double lat_deg, doub
   }
 }
 
+bool IsLookAlikeToCheck(const ReferenceImage& t, const std::string& tile, int image, const Fix& fix,
+                        const LocateRequest& r, const LocalizerOptions& o) {
+  for (const ReferenceUse& u : fix.references)
+    if (u.checked && u.tile == tile && u.image_id == image) return false;
+  const double lat = t.position.lat_deg, lon = t.position.lon_deg;
+  if (GeodesicBetween(fix.lat_deg, fix.lon_deg, lat, lon).distance_m <= o.distinct_place_m)
+    return false;
+  return !r.prior || GeodesicBetween(r.prior->lat_deg, r.prior->lon_deg, lat, lon).distance_m <=
+                         r.prior->radius_m + o.viewing_range_m;
+}
+
+std::vector<Candidate> SelectLookAlikes(const std::vector<Candidate>& hits, const Fix& fix,
+                                        const LocateRequest& r, const LocalizerOptions& o) {
+  std::vector<Candidate> out;
+  for (const Candidate& c : hits) {
+    if (static_cast<int>(out.size()) >= o.look_alike_checks) break;
+    if (IsLookAlikeToCheck(c.tile->data.images[c.image], c.tile->data.key.ToString(), c.image, fix,
+                           r, o))
+      out.push_back(c);
+  }
+  return out;
+}
+
+std::optional<std::string> LookAlikeReason(const std::vector<ReferenceUse>& uses, const Fix& fix,
+                                           int here_inliers, const LocalizerOptions& o) {
+  const ReferenceUse* twin = nullptr;
+  double twin_m = 0;
+  for (const ReferenceUse& u : uses) {
+    if (!u.checked || u.inliers < o.min_near_miss_inliers || (twin && u.inliers <= twin->inliers))
+      continue;
+    const double d = GeodesicBetween(fix.lat_deg, fix.lon_deg, u.lat_deg, u.lon_deg).distance_m;
+    if (d > o.distinct_place_m) twin = &u, twin_m = d;
+  }
+  if (!twin || twin->inliers < o.look_alike_ratio * here_inliers) return std::nullopt;
+  return "a look-alike of its strongest reference, " + std::to_string(static_cast<int>(twin_m)) +
+         " m away, matched with " + std::to_string(twin->inliers) + " inliers, this place with " +
+         std::to_string(here_inliers);
+}
+
 std::optional<std::string> AmbiguityReason(const PlaceEvidence& evidence, double ratio) {
   if (!evidence.RivalReaches(ratio)) return std::nullopt;
   return "ambiguous: " + evidence.Describe();

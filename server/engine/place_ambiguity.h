@@ -70,6 +70,25 @@ PlaceEvidence WeighPlaces(const std::vector<Verified>& verified, const cv::Vec3d
 void WeighNearMisses(const std::vector<ReferenceUse>& uses, double lat_deg, double lon_deg,
                      double distinct_m, int min_inliers, PlaceEvidence* evidence);
 
+// Whether a map image `t` (tile "z/x/y", image index) retrieved as a look-alike of a fix's
+// strongest reference is to be checked against the query: not checked already (fix.references),
+// more than distinct_place_m from the fix, and within the prior's reach when r has a prior.
+bool IsLookAlikeToCheck(const ReferenceImage& t, const std::string& tile, int image, const Fix& fix,
+                        const LocateRequest& r, const LocalizerOptions& o);
+
+// Of a reference's own retrieval hits, those IsLookAlikeToCheck keeps, in rank order, at most
+// o.look_alike_checks of them.
+std::vector<Candidate> SelectLookAlikes(const std::vector<Candidate>& hits, const Fix& fix,
+                                        const LocateRequest& r, const LocalizerOptions& o);
+
+// The look-alike check of a fix about to be called usable (LocalizerOptions::look_alike_checks):
+// among `uses`, the checks of its strongest reference's look-alikes, the one with the most
+// essential-matrix inliers (verified or not) at least min_near_miss_inliers strong and more than
+// distinct_place_m from the fix; when it reaches look_alike_ratio x here_inliers (the fix's
+// strongest reference), why the fix is not usable, else nullopt.
+std::optional<std::string> LookAlikeReason(const std::vector<ReferenceUse>& uses, const Fix& fix,
+                                           int here_inliers, const LocalizerOptions& o);
+
 // "ambiguous: " + the evidence when its rival reaches ratio.
 std::optional<std::string> AmbiguityReason(const PlaceEvidence& evidence, double ratio);
 

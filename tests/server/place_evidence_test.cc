@@ -42,5 +42,50 @@ TEST(PlaceEvidenceTest, NearMissesAtDistinctPlacesCountForTheFlagOnly) {
   EXPECT_FALSE(none.AnyRivalReaches(0.25));
 }
 
+// The look-alike check, worked by hand with the defaults (distinct place 30 m, near-miss floor
+// 12 inliers, ratio 0.85): measured on demo seed 43, a terrace fix 22 m off had its true place
+// among its reference's look-alikes with 51 inliers against its own 46; a good fix's look-alike
+// 32 m along the street (a shared view) matched with 65 against 80, under the ratio.
+TEST(PlaceEvidenceTest, LookAlikeCheckFlagsATwinMatchingNearlyAsWell) {
+  LocalizerOptions o;
+  Fix fix;
+  fix.lat_deg = 44.0, fix.lon_deg = -40.0;
+  const std::vector<ReferenceUse> twin = {Candidate(30.5, true, true, 51),
+                                          Candidate(90, true, false, 13)};
+  const std::optional<std::string> why = LookAlikeReason(twin, fix, 46, o);
+  ASSERT_TRUE(why.has_value());
+  EXPECT_NE(why->find("30 m away, matched with 51 inliers, this place with 46"), std::string::npos)
+      << *why;
+  EXPECT_FALSE(LookAlikeReason({Candidate(32, true, true, 65)}, fix, 80, o));  // 0.81 < 0.85
+  EXPECT_TRUE(LookAlikeReason({Candidate(32, true, true, 68)}, fix, 80, o));   // 0.85
+  // At the fix's own place (within 30 m) a match is the same scene, never a look-alike; a
+  // candidate ranked but not checked, or under the near-miss floor, says nothing.
+  EXPECT_FALSE(LookAlikeReason({Candidate(25, true, true, 90)}, fix, 46, o));
+  EXPECT_FALSE(LookAlikeReason({Candidate(300, false, false, 90)}, fix, 46, o));
+  EXPECT_FALSE(LookAlikeReason({Candidate(300, true, false, 11)}, fix, 12, o));
+}
+
+// Which retrieved look-alikes are checked: not one the query already checked, not within 30 m
+// of the fix, and within the prior's reach (radius + viewing range 50 m) when there is one.
+TEST(PlaceEvidenceTest, LookAlikesToCheckLieElsewhereAndWithinThePrior) {
+  LocalizerOptions o;
+  Fix fix;
+  fix.lat_deg = 44.0, fix.lon_deg = -40.0;
+  fix.references = {Candidate(100, true, true, 40)};
+  fix.references[0].tile = "17/1/2", fix.references[0].image_id = 7;
+  ReferenceImage far, near;
+  const GeodesicDirect f = GeodesicFrom(44.0, -40.0, 0, 100), n = GeodesicFrom(44.0, -40.0, 0, 20);
+  far.position.lat_deg = f.lat_deg, far.position.lon_deg = f.lon_deg;
+  near.position.lat_deg = n.lat_deg, near.position.lon_deg = n.lon_deg;
+  LocateRequest r;
+  EXPECT_TRUE(IsLookAlikeToCheck(far, "17/1/2", 8, fix, r, o));
+  EXPECT_FALSE(IsLookAlikeToCheck(far, "17/1/2", 7, fix, r, o));   // checked already
+  EXPECT_FALSE(IsLookAlikeToCheck(near, "17/1/2", 9, fix, r, o));  // the fix's own place
+  r.prior = PriorCircle{44.0, -40.0, 40};                          // reach 90 m
+  EXPECT_FALSE(IsLookAlikeToCheck(far, "17/1/2", 8, fix, r, o));
+  r.prior->radius_m = 60;  // reach 110 m
+  EXPECT_TRUE(IsLookAlikeToCheck(far, "17/1/2", 8, fix, r, o));
+}
+
 }  // namespace
 }  // namespace sightfix
