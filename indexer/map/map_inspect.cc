@@ -88,15 +88,7 @@ Result<nlohmann::json> InspectMap(const std::string& map_dir) {
                         {"tile_files", file_bytes / n}}}};
   j["integrity_fit"] = nullptr;
   if (const std::optional<IntegrityFit>& f = catalog->integrity_fit)
-    j["integrity_fit"] = {{"overbound_scale", f->overbound_scale},
-                          {"drive", f->drive},
-                          {"drive_sha256", f->drive_sha256},
-                          {"fixes", f->fixes},
-                          {"excluded", f->excluded},
-                          {"binding_z", f->binding_z},
-                          {"confidence", f->confidence},
-                          {"map_version", f->map_version},
-                          {"fitted_utc", f->fitted_utc}};
+    j["integrity_fit"] = nlohmann::json::parse(IntegrityFitJson(*f));  // the record as stored
   if (images > 0) {
     j["extent"] = {{"south", south}, {"west", west}, {"north", north}, {"east", east}};
     j["dates"] = {{"first", FormatIsoUtc(t0)}, {"last", FormatIsoUtc(t1)}};

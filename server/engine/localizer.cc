@@ -400,7 +400,7 @@ void Localizer::Impl::CheckLookAlikes(const LocalFeatures& q, const LocateReques
   const ReferenceImage& ref = best.c.tile->data.images[best.c.image];
   std::string note;
   const std::vector<Candidate> twins =
-      SelectLookAlikes(FromGlobal(model->Whiten(model->Vlad(ReferenceFeatures(ref).descriptors)),
+      SelectLookAlikes(FromGlobal(model->Whiten(model->Vlad(ExpandDescriptors(ref.descriptors))),
                                   &note, o.look_alike_depth),
                        *fix, r, o);
   std::vector<ReferenceUse> uses;
