@@ -42,8 +42,11 @@ po::options_description FitOptions(FitFlags* f) {
       "Clopper-Pearson uncertainty). K is recorded in the map with the drive's name; the engine\n"
       "then multiplies every sigma behind a protection level by it, and every fix and replay\n"
       "report names the drive. Fixes more than --wrong-m off are faults (a wrong place), not\n"
-      "samples of the error model: they are left out and counted. A fit replaces the map's\n"
-      "last one. Measure coverage and integrity afterwards on drives the fit did not see.\n\n"
+      "samples of the error model: they are left out and counted. So is a fix one group of\n"
+      "its correspondences pulled off (beyond 3 sigma, back within 3 without that group): the\n"
+      "levels' fault terms answer for it, and K never drops below what keeps it inside its\n"
+      "own levels. A fit replaces the map's last one. Measure coverage and integrity\n"
+      "afterwards on drives the fit did not see.\n\n"
       "Usage: sightfix fit-integrity --map MAPDIR --drive QUERYDIR [--prior none|noisy:R]\n"
       "       [--limit N] [--seed N] [--jobs N] [--wrong-m M] [--confidence C] [--dry-run]\n"
       "       [--json]\n\nOptions");
@@ -88,6 +91,8 @@ nlohmann::json FitJson(const IntegrityFit& fit, const NormalisedErrors& e, int q
           {"queries", queries},
           {"refined_fixes", e.fixes},
           {"excluded_wrong", e.excluded},
+          {"excluded_group_faults", e.faults},
+          {"group_fault_scale", e.fault_scale},
           {"samples", e.z.size()},
           {"map_version", fit.map_version},
           {"written", written}};
@@ -100,8 +105,18 @@ void PrintFit(const IntegrityFit& fit, const NormalisedErrors& e, int queries, d
   std::sort(a.begin(), a.end());
   std::printf(
       "drive %s (drive.csv sha256 %.16s): %d queries, %d refined fixes, %d more than "
-      "%g m off left out (faults: the place check's business, not the error model)\n",
+      "%g m off left out (wrong places: the place check's business, not the error model)\n",
       fit.drive.c_str(), fit.drive_sha256.c_str(), queries, e.fixes, e.excluded, wrong_m);
+  if (e.faults > 0 && e.fault_scale_image.empty())
+    std::printf(
+        "%d more pulled off by one group (beyond |z| %g, back within it without that group) "
+        "left out: each inside its protection levels at K = 1\n",
+        e.faults, kFaultScreenZ);
+  else if (e.faults > 0)
+    std::printf(
+        "%d more pulled off by one group (beyond |z| %g, back within it without that group) "
+        "left out: inside their protection levels from K = %.3f (set by %s)\n",
+        e.faults, kFaultScreenZ, e.fault_scale, e.fault_scale_image.c_str());
   std::printf(
       "normalised errors (across and along): %zu samples, |z| median %.2f, p95 %.2f, "
       "max %.2f\n",
@@ -110,6 +125,8 @@ void PrintFit(const IntegrityFit& fit, const NormalisedErrors& e, int queries, d
   if (fit.binding_z > 0)
     std::printf(" (set by the tail at |z| = %.2f, Clopper-Pearson %g %%)", fit.binding_z,
                 100 * fit.confidence);
+  else if (e.faults > 0 && fit.overbound_scale == e.fault_scale && e.fault_scale > 1)
+    std::printf(" (set by %s, a group's fault its levels must hold)", e.fault_scale_image.c_str());
   else
     std::printf(" (the stated sigmas already bound the tail)");
   std::printf("\n");

@@ -8,6 +8,7 @@
 // of the tails an integrity risk is about. Pure functions; thread-safe.
 #pragma once
 
+#include <string>
 #include <vector>
 
 #include "client/eval/route_eval.h"
@@ -26,13 +27,25 @@ Result<OverboundFit> FitOverbound(const std::vector<double>& z, double confidenc
 
 // The normalised errors of a replay's refined fixes: per fix two samples, the error across and
 // along the truth's heading over the fix's own sigma on that axis (sqrt(u^T C u), C its
-// covariance_en, the one its protection levels start from). A fix more than wrong_m off is a
-// fault (a wrong place, the place check's business), not a sample of the fault-free error
-// model: it is counted in `excluded` and left out of z.
+// covariance_en, the one its protection levels start from). Two kinds of fix are not samples of
+// the fault-free error model and are left out of z:
+//  - a fix more than wrong_m off is a wrong place (the place check's business): `excluded`;
+//  - a fix one group pulled off (`faults`): its |z| exceeds kFaultScreenZ on an axis, and the
+//    solution without one of its groups (FixIntegrity::separations: a reference's or a quadrant's
+//    correspondences) has |z| within kFaultScreenZ on both axes against that subset's own
+//    covariance. The truth names the faulty group, as a fault-free data set is screened in
+//    satellite navigation before its overbound is fitted. Such a fix is what the protection
+//    levels' group terms are for: `fault_scale` is the smallest K at which every one of them
+//    lies inside its own protection levels (horizontal, lateral, longitudinal), and the fit's K
+//    is never below it (FitDriveOverbound).
+inline constexpr double kFaultScreenZ = 3;
 struct NormalisedErrors {
   std::vector<double> z;
   int fixes = 0;     // refined fixes read
   int excluded = 0;  // of them, more than wrong_m off
+  int faults = 0;    // of them, pulled off by one group (left out of z)
+  double fault_scale = 1;
+  std::string fault_scale_image;  // the fault whose protection level set fault_scale ("": none)
 };
 NormalisedErrors NormaliseErrors(const std::vector<QueryResult>& results, double wrong_m = 5);
 

@@ -13,11 +13,12 @@ Result<DriveOverbound> FitDriveOverbound(const std::vector<QueryResult>& results
                                          const DriveOverboundOptions& o) {
   DriveOverbound out;
   out.errors = NormaliseErrors(results, o.wrong_m);
-  const int usable = out.errors.fixes - out.errors.excluded;
+  const int usable = out.errors.fixes - out.errors.excluded - out.errors.faults;
   if (usable < kMinOverboundFixes)
     return Status{StatusCode::kFailedPrecondition,
                   "only " + std::to_string(usable) + " refined fixes within " +
-                      FormatNumber("%g", o.wrong_m) + " m of the truth: a fit needs at least " +
+                      FormatNumber("%g", o.wrong_m) +
+                      " m of the truth and no group's fault: a fit needs at least " +
                       std::to_string(kMinOverboundFixes) +
                       " (a longer drive, or a map that covers it)"};
   Result<OverboundFit> k = FitOverbound(out.errors.z, o.confidence);
@@ -26,6 +27,9 @@ Result<DriveOverbound> FitDriveOverbound(const std::vector<QueryResult>& results
   if (!sha.ok()) return sha.status();
   IntegrityFit& f = out.fit;
   f.overbound_scale = k->scale, f.binding_z = k->binding_z, f.confidence = o.confidence;
+  if (out.errors.fault_scale > f.overbound_scale)  // a group's fault outgrew its levels
+    f.overbound_scale = out.errors.fault_scale, f.binding_z = 0;
+  f.faults = out.errors.faults;
   f.drive = DriveFolderName(drive_dir), f.drive_sha256 = *sha;
   f.fixes = usable, f.excluded = out.errors.excluded, f.map_version = o.map_version;
   f.fitted_utc = FormatIsoUtc(static_cast<double>(Env::Default()->NowUnixSeconds()));

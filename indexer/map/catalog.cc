@@ -42,6 +42,7 @@ std::string IntegrityFitJson(const IntegrityFit& f) {
                         {"drive_sha256", f.drive_sha256},
                         {"fixes", f.fixes},
                         {"excluded", f.excluded},
+                        {"faults", f.faults},
                         {"binding_z", f.binding_z},
                         {"confidence", f.confidence},
                         {"map_version", f.map_version},
@@ -71,6 +72,7 @@ Result<IntegrityFit> ParseIntegrityFit(const std::string& text, const std::strin
     f.drive = j.at("drive").get<std::string>();
     f.drive_sha256 = j.value("drive_sha256", "");
     f.fixes = CountOf(j, "fixes"), f.excluded = CountOf(j, "excluded");
+    f.faults = CountOf(j, "faults");
     f.binding_z = j.value("binding_z", 0.0), f.confidence = j.value("confidence", 0.95);
     f.map_version = CountOf(j, "map_version"), f.fitted_utc = j.value("fitted_utc", "");
   } catch (const nlohmann::json::exception&) {

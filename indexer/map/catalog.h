@@ -35,8 +35,9 @@ struct IntegrityFit {
   double overbound_scale = 1;  // K >= 1: the sigmas' inflation
   std::string drive;           // the drive's folder name
   std::string drive_sha256;    // of its drive.csv: which drive exactly
-  int fixes = 0;               // refined fixes the fit read
+  int fixes = 0;               // refined fixes the fit's samples came from
   int excluded = 0;            // refined fixes more than 5 m off: faults, not the error model
+  int faults = 0;              // refined fixes one group pulled off, left out too (overbound.h)
   double binding_z = 0;        // the normalised error whose tail set K
   double confidence = 0.95;    // of the Clopper-Pearson bound on the tail
   int map_version = 0;         // the map's version when fitted

@@ -104,10 +104,11 @@ std::string IntegrityFitText(const nlohmann::json& inspect) {
   char buf[512];
   std::snprintf(buf, sizeof buf,
                 "integrity overbound: %.3f, fitted on drive %s (drive.csv sha256 %.16s) over %d "
-                "refined fixes, %d more off left out, at map version %d, %s\n",
+                "refined fixes (left out: %d more than 5 m off, %d pulled off by one group), at "
+                "map version %d, %s\n",
                 f.value("overbound_scale", 1.0), f.value("drive", "").c_str(),
                 f.value("drive_sha256", "").c_str(), f.value("fixes", 0), f.value("excluded", 0),
-                f.value("map_version", 0), f.value("fitted_utc", "").c_str());
+                f.value("faults", 0), f.value("map_version", 0), f.value("fitted_utc", "").c_str());
   std::string out = buf;
   if (f.value("map_version", 0) != inspect.value("map_version", 0))
     out += "  the map has changed since (version " +

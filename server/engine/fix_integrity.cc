@@ -87,10 +87,10 @@ FixIntegrity AssessIntegrity(const AbsolutePose& pose, const Fix& fix, double ma
                              const IntegrityRequest& r) {
   ProtectionParameters p = o.protection;
   if (r.integrity_risk > 0) p.integrity_risk = r.integrity_risk;
-  const ProtectionLevels pl =
-      ComputeProtectionLevels(fix.covariance_en, fix.heading_deg,
-                              Separations(pose, map_variance, o.covariance_scale, group_names), p);
   FixIntegrity f;
+  f.separations = Separations(pose, map_variance, o.covariance_scale, group_names);
+  const ProtectionLevels pl =
+      ComputeProtectionLevels(fix.covariance_en, fix.heading_deg, f.separations, p);
   f.horizontal_pl_m = pl.horizontal_m, f.lateral_pl_m = pl.lateral_m;
   f.longitudinal_pl_m = pl.longitudinal_m;
   f.integrity_risk = p.integrity_risk;

@@ -142,6 +142,8 @@ struct LocateRequest {
   std::optional<PriorCircle> prior;
   std::optional<double> heading_deg;  // coarse heading prior: candidates facing away are skipped
   IntegrityRequest integrity;
+  // InvalidArgument naming the first bad field (calibration, no image, prior, heading, integrity).
+  Status Check() const;
 };
 
 // Whether a fix may be used where its error must stay within the alert limits.
@@ -167,6 +169,10 @@ struct FixIntegrity {
   int hypotheses = 0, hypotheses_skipped = 0;  // fault hypotheses tested and too large to test
   double max_test_ratio = 0;                   // solution separation: 1 is the threshold
   std::string detail;                          // why not usable
+  // The fault hypotheses' subset solutions (sigmas not multiplied by the overbound scale). In
+  // process only, not on the wire: the overbound fit reads them to tell a fix that one group
+  // pulled off from a tail of the fault-free error model (overbound.h NormaliseErrors).
+  std::vector<SeparatedSolution> separations;
 };
 
 enum class FixQuality { kNone, kCoarse, kRefined };

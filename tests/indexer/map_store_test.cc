@@ -168,7 +168,8 @@ TEST(MapStoreTest, IntegrityFitRoundTripAndRefusal) {
   c.model_blob = {1};
   IntegrityFit f;
   f.overbound_scale = 1.25, f.drive = "query-dusk", f.drive_sha256 = "ab12";
-  f.fixes = 48, f.excluded = 2, f.binding_z = 2.5, f.confidence = 0.9, f.map_version = 3;
+  f.fixes = 48, f.excluded = 2, f.faults = 1, f.binding_z = 2.5, f.confidence = 0.9,
+  f.map_version = 3;
   f.fitted_utc = "2026-12-04T00:00:00.000Z";
   c.integrity_fit = f;
   const std::string path = ::testing::TempDir() + "/store_fit/catalog.sqlite";
@@ -181,10 +182,15 @@ TEST(MapStoreTest, IntegrityFitRoundTripAndRefusal) {
   EXPECT_EQ(r->integrity_fit->drive_sha256, "ab12");
   EXPECT_EQ(r->integrity_fit->fixes, 48);
   EXPECT_EQ(r->integrity_fit->excluded, 2);
+  EXPECT_EQ(r->integrity_fit->faults, 1);
   EXPECT_EQ(r->integrity_fit->binding_z, 2.5);
   EXPECT_EQ(r->integrity_fit->confidence, 0.9);
   EXPECT_EQ(r->integrity_fit->map_version, 3);
   EXPECT_EQ(r->integrity_fit->fitted_utc, f.fitted_utc);
+  // A record written before the fault screen existed (no "faults") reads as none screened.
+  Result<IntegrityFit> older = ParseIntegrityFit(R"({"overbound_scale": 1.5, "drive": "d"})", path);
+  ASSERT_TRUE(older.ok());
+  EXPECT_EQ(older->faults, 0);
   c.integrity_fit->overbound_scale = 0.8;
   ASSERT_TRUE(WriteCatalog(path, c).ok());
   EXPECT_EQ(ReadCatalog(path).status().code(), StatusCode::kCorrupt);

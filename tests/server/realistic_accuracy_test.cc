@@ -125,9 +125,10 @@ class RealisticTown {
     }
     fit_ = fit->fit;
     std::printf(
-        "overbound fitted on %s: K %.3f over %d fixes (%d more than 5 m off left out), "
-        "set by |z| %.2f\n",
-        fit_.drive.c_str(), fit_.overbound_scale, fit_.fixes, fit_.excluded, fit_.binding_z);
+        "overbound fitted on %s: K %.3f over %d fixes (left out: %d more than 5 m off, %d "
+        "pulled off by one group), set by |z| %.2f\n",
+        fit_.drive.c_str(), fit_.overbound_scale, fit_.fixes, fit_.excluded, fit_.faults,
+        fit_.binding_z);
     return true;
   }
   ~RealisticTown() {
