@@ -44,37 +44,7 @@ cv::Vec3d ToFrame(const EnuFrame& frame, const LoadedTile& from, const cv::Vec3d
 
 double HeadingDiffDeg(double a, double b) { return std::fabs(WrapDeg180(a - b)); }
 
-Status CheckRequest(const LocateRequest& r) {
-  std::string error;
-  if (!r.camera.IsValid(&error)) return Status::InvalidArgument("calibration: " + error);
-  if (r.image.empty() && r.image_bytes.empty() && !r.features)
-    return Status::InvalidArgument("the request has no image and no features");
-  if (r.prior) {
-    const PriorCircle& p = *r.prior;
-    if (!std::isfinite(p.lat_deg) || !std::isfinite(p.lon_deg) || std::fabs(p.lat_deg) > 85 ||
-        std::fabs(p.lon_deg) > 180)
-      return Status::InvalidArgument("prior centre must be finite, |lat| <= 85, |lon| <= 180");
-    if (!std::isfinite(p.radius_m) || p.radius_m < 0 || p.radius_m > 100000)
-      return Status::InvalidArgument("prior radius_m must be within [0, 100000]");
-  }
-  if (r.heading_deg && !std::isfinite(*r.heading_deg))
-    return Status::InvalidArgument("heading_deg must be finite");
-  if (std::string e; !r.integrity.Validate(&e)) return Status::InvalidArgument(e);
-  return Status::Ok();
-}
-
 }  // namespace
-
-const char* FixQualityName(FixQuality q) {
-  switch (q) {
-    case FixQuality::kRefined:
-      return "refined";
-    case FixQuality::kCoarse:
-      return "coarse";
-    default:
-      return "none";
-  }
-}
 
 struct Localizer::Impl {
   LocalizerOptions o;
@@ -90,9 +60,11 @@ struct Localizer::Impl {
                                    std::string* note) const;
   // The map-wide index's first k (default top_k) for the query descriptor.
   std::vector<Candidate> FromGlobal(const cv::Mat& query, std::string* note, int k = 0) const;
+  // A candidate with fewer matches than min_matches can reach no use: its essential matrix is
+  // not estimated (inliers 0).
   std::vector<Verified> Verify(const LocalFeatures& q, const std::vector<Candidate>& cands,
                                const CameraModel& cam, Clock::time_point start,
-                               std::vector<ReferenceUse>* uses) const;
+                               std::vector<ReferenceUse>* uses, int min_matches = 0) const;
   std::vector<PointCorrespondence> FromPoints(const LocalFeatures& q,
                                               const std::vector<Verified>& v, const EnuFrame& f,
                                               std::vector<ReferenceUse>* uses,
@@ -252,7 +224,8 @@ std::vector<Candidate> Localizer::Impl::FromGlobal(const cv::Mat& q, std::string
 std::vector<Verified> Localizer::Impl::Verify(const LocalFeatures& q,
                                               const std::vector<Candidate>& cands,
                                               const CameraModel& cam, Clock::time_point start,
-                                              std::vector<ReferenceUse>* uses) const {
+                                              std::vector<ReferenceUse>* uses,
+                                              int min_matches) const {
   std::vector<Verified> out;
   RelativePoseOptions ro;
   ro.focal_px = 0.5 * (cam.fx + cam.fy);
@@ -275,6 +248,10 @@ std::vector<Verified> Localizer::Impl::Verify(const LocalFeatures& q,
     const LocalFeatures rf = ReferenceFeatures(ref);
     const std::vector<cv::DMatch> m = MatchFeatures(q, rf, MatchOptions{});
     use.matches = static_cast<int>(m.size());
+    if (use.matches < min_matches) {
+      uses->push_back(use);
+      continue;
+    }
     std::vector<cv::Point2d> a, b;
     for (const cv::DMatch& d : m)
       a.push_back(q.normalized[d.queryIdx]), b.push_back(rf.normalized[d.trainIdx]);
@@ -404,7 +381,9 @@ void Localizer::Impl::CheckLookAlikes(const LocalFeatures& q, const LocateReques
                                   &note, o.look_alike_depth),
                        *fix, r, o);
   std::vector<ReferenceUse> uses;
-  Verify(q, twins, r.camera, Clock::now(), &uses);
+  // Inliers never outnumber matches: a look-alike with fewer than the flag needs is let be.
+  Verify(q, twins, r.camera, Clock::now(), &uses,
+         static_cast<int>(std::ceil(o.look_alike_ratio * best.inliers)));
   if (auto why = LookAlikeReason(uses, *fix, best.inliers, o))
     fix->integrity.state = IntegrityState::kPlaceAmbiguity, fix->integrity.detail = *why;
   fix->references.insert(fix->references.end(), uses.begin(), uses.end());
@@ -464,7 +443,7 @@ Result<Fix> Localizer::Locate(const LocateRequest& r) const {
   const Impl& m = *impl_;
   const auto start = Clock::now();
   PinLibraryThreads();
-  if (Status s = CheckRequest(r); !s.ok()) return s;
+  if (Status s = r.Check(); !s.ok()) return s;
   Fix fix;
   fix.capture_time_s = r.capture_time_s;
   Result<LocalFeatures> q = m.Features(r, &fix.timings);

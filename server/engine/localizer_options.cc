@@ -1,4 +1,5 @@
-// LocalizerOptions::Validate (localizer.h).
+// LocalizerOptions::Validate, LocateRequest::Check and FixQualityName (localizer.h).
+#include <cmath>
 #include <string>
 
 #include "server/engine/localizer.h"
@@ -36,6 +37,36 @@ bool LocalizerOptions::Validate(std::string* error) const {
   if (features.type != FeatureType::kRootSift) return fail("features: maps hold RootSIFT");
   if (!features.Validate(&e)) return fail("features: " + e);
   return true;
+}
+
+Status LocateRequest::Check() const {
+  std::string error;
+  if (!camera.IsValid(&error)) return Status::InvalidArgument("calibration: " + error);
+  if (image.empty() && image_bytes.empty() && !features)
+    return Status::InvalidArgument("the request has no image and no features");
+  if (prior) {
+    const PriorCircle& p = *prior;
+    if (!std::isfinite(p.lat_deg) || !std::isfinite(p.lon_deg) || std::fabs(p.lat_deg) > 85 ||
+        std::fabs(p.lon_deg) > 180)
+      return Status::InvalidArgument("prior centre must be finite, |lat| <= 85, |lon| <= 180");
+    if (!std::isfinite(p.radius_m) || p.radius_m < 0 || p.radius_m > 100000)
+      return Status::InvalidArgument("prior radius_m must be within [0, 100000]");
+  }
+  if (heading_deg && !std::isfinite(*heading_deg))
+    return Status::InvalidArgument("heading_deg must be finite");
+  if (std::string e; !integrity.Validate(&e)) return Status::InvalidArgument(e);
+  return Status::Ok();
+}
+
+const char* FixQualityName(FixQuality q) {
+  switch (q) {
+    case FixQuality::kRefined:
+      return "refined";
+    case FixQuality::kCoarse:
+      return "coarse";
+    default:
+      return "none";
+  }
 }
 
 }  // namespace sightfix

@@ -4,7 +4,7 @@
 //
 // Usage: engine_eval --map MAPDIR --drive QUERYDIR [--drive ...] [--prior none|noisy]
 //          [--method auto|points|pair] [--covariance-scale X] [--survey-error correlated|white]
-//          [--limit N] [--seed N] [--jobs N]
+//          [--look-alike-checks N] [--look-alike-depth N] [--limit N] [--seed N] [--jobs N]
 //          [--csv FILE]
 #include <boost/program_options.hpp>
 #include <cstdio>
@@ -30,6 +30,9 @@ int main(int argc, char** argv) {
       "covariance-scale", po::value(&lo.covariance_scale), "LocalizerOptions::covariance_scale")(
       "survey-error", po::value(&survey_error),
       "correlated (real surveys) or white (the clean demo town): LocalizerOptions::survey_error")(
+      "look-alike-checks", po::value(&lo.look_alike_checks),
+      "LocalizerOptions::look_alike_checks (0: the check off)")(
+      "look-alike-depth", po::value(&lo.look_alike_depth), "LocalizerOptions::look_alike_depth")(
       "limit", po::value(&eo.limit), "first N queries of each drive")(
       "seed", po::value(&eo.seed), "prior noise seed")("jobs", po::value(&eo.jobs), "threads")(
       "csv", po::value(&csv), "write one row per query here");
