@@ -6,7 +6,7 @@ set -euo pipefail
 packages=(
   build-essential cmake pkg-config git
   libopencv-dev libfaiss-dev libopenblas-dev
-  libboost-all-dev libprotobuf-dev protobuf-compiler
+  libboost-all-dev libprotobuf-dev protobuf-compiler libssl-dev openssl
   libsqlite3-dev libgtest-dev libgmock-dev libgeographiclib-dev libexiv2-dev
   libceres-dev libproj-dev proj-data libbenchmark-dev libyaml-cpp-dev
   nlohmann-json3-dev opencv-doc python3 python3-protobuf chromium exiv2

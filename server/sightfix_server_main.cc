@@ -34,10 +34,17 @@ po::options_description Flags(sightfix::ServiceOptions* o, size_t* cache_mb) {
       "deadline-ms", po::value(&o->default_deadline_ms)->default_value(o->default_deadline_ms),
       "deadline of calls that set none")("token-file", po::value(&o->token_file),
                                          "file holding the bearer token calls must carry")(
-      "allow-open", "listen beyond loopback without a token (not advised)")(
-      "no-scrub",
-      "skip the background check of every tile file at start (tiles are still "
-      "checked against the catalog before first use)")(
+      "allow-open", "listen beyond loopback in plaintext without a token (not advised)")(
+      "tls-cert", po::value(&o->tls_cert_file),
+      "PEM certificate (chain) of this server: the query port then speaks TLS 1.3 only")(
+      "tls-key", po::value(&o->tls_key_file), "PEM private key of --tls-cert")(
+      "tls-client-ca", po::value(&o->tls_client_ca_file),
+      "PEM CA (bundle) that signs vehicle certificates: every client must present one")(
+      "plaintext-beyond-loopback",
+      "serve beyond loopback without TLS: anyone on the path reads and can forge fixes (not "
+      "advised)")("no-scrub",
+                  "skip the background check of every tile file at start (tiles are still "
+                  "checked against the catalog before first use)")(
       "tile-cache-mb", po::value(cache_mb)->default_value(*cache_mb), "memory for loaded tiles");
   return desc;
 }
@@ -63,6 +70,7 @@ int main(int argc, char** argv) {
     return 0;
   }
   o.allow_open = vm.count("allow-open") > 0;
+  o.allow_plaintext = vm.count("plaintext-beyond-loopback") > 0;
   o.scrub = vm.count("no-scrub") == 0;
   o.engine.tile_cache_bytes = cache_mb << 20;
   if (o.map_dir.empty()) {

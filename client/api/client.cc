@@ -2,74 +2,200 @@
 
 #include <atomic>
 #include <boost/asio.hpp>
+#include <boost/asio/ssl.hpp>
 #include <chrono>
+#include <deque>
 #include <map>
 #include <mutex>
 #include <thread>
 
 #include "indexer/base/endpoint.h"
 #include "proto/frame_codec.h"
+#include "proto/tls_profile.h"
 
 namespace sightfix {
 
 namespace asio = boost::asio;
 using tcp = asio::ip::tcp;
 
-// One live connection with its reader thread; replaced whole on reconnect.
+// One live connection; replaced whole on reconnect. Its own thread runs every read and write
+// of the stream (TLS or plain): an OpenSSL stream must not be read and written from two threads
+// at once, so callers post their frames to that thread, which is the stream's one strand.
 struct Connection {
+  using TlsStream = asio::ssl::stream<tcp::socket>;
   uint32_t max_answer_bytes = 0;
   asio::io_context io;
-  tcp::socket socket{io};
-  std::thread reader;
+  tcp::socket socket{io};  // plaintext; moved into tls under TLS
+  std::unique_ptr<TlsStream> tls;
+  std::thread loop;
   std::mutex mu;  // guards pending and dead
   std::map<uint64_t, std::promise<Result<Answer>>> pending;
   bool dead = false;
-  std::mutex write_mu;
+  // The I/O thread's own (no lock).
+  uint8_t header[kFrameHeaderBytes];
+  std::string body;
+  std::deque<std::string> writes;
+  bool writing = false;
 
-  ~Connection() {
-    // shutdown wakes the reader's blocking read; close only once it has returned (closing under
-    // a read is a data race on the socket, ThreadSanitizer found).
-    boost::system::error_code ec;
-    socket.shutdown(tcp::socket::shutdown_both, ec);
-    if (reader.joinable()) reader.join();
-    socket.close(ec);
+  tcp::socket& Tcp() { return tls ? tls->next_layer() : socket; }
+  template <typename F>
+  void OnStream(F&& f) {
+    if (tls)
+      f(*tls);
+    else
+      f(socket);
   }
 
-  void Fail(const std::string& why) {
+  ~Connection() {
+    Close();
+    if (loop.joinable()) loop.join();
+  }
+
+  // From any thread: the I/O thread closes the socket; the pending calls fail from the read.
+  void Close() {
+    asio::post(io, [this] {
+      boost::system::error_code ec;
+      Tcp().shutdown(tcp::socket::shutdown_both, ec);
+      Tcp().close(ec);
+    });
+  }
+
+  void Fail(const Status& why) {
     std::lock_guard<std::mutex> lock(mu);
     dead = true;
-    for (auto& [id, p] : pending) p.set_value(Status::IoError(why));
+    for (auto& [id, p] : pending) p.set_value(why);
     pending.clear();
   }
 
-  void ReadLoop() {
-    for (;;) {
-      uint8_t header[kFrameHeaderBytes];
-      boost::system::error_code ec;
-      asio::read(socket, asio::buffer(header), ec);
-      if (ec) return Fail("connection lost: " + ec.message());
-      const uint32_t n = FrameLength(header);
-      if (n > max_answer_bytes)
-        return Fail("server sent a frame of " + std::to_string(n) + " bytes, over the cap");
-      std::string body(n, '\0');
-      asio::read(socket, asio::buffer(body), ec);
-      if (ec) return Fail("connection lost: " + ec.message());
-      Result<v1::Envelope> env = ParseEnvelope(body.data(), body.size());
-      if (!env.ok()) return Fail("server sent a frame that is not an Envelope");
-      std::lock_guard<std::mutex> lock(mu);
-      auto it = pending.find(env->call_id());
-      if (it == pending.end()) {
-        if (env->call_id() == 0 && env->status().code() != v1::Status::OK) {
-          // A protocol error the server could not tie to a call: it closes the connection.
-          for (auto& [id, p] : pending)
-            p.set_value(Answer{env->status().code(), env->status().message(), {}});
-          pending.clear();
-        }
-        continue;
-      }
-      it->second.set_value(Answer{env->status().code(), env->status().message(), env->body()});
-      pending.erase(it);
+  // A lost connection is worth a retry; a TLS refusal (a bad or missing client certificate, an
+  // untrusted server) is not: it would only be refused again.
+  void FailRead(const boost::system::error_code& ec) {
+    if (ec.category() == asio::error::get_ssl_category() &&
+        ec != asio::ssl::error::stream_truncated)
+      return Fail(Status(StatusCode::kFailedPrecondition,
+                         "the server ended the TLS session: " + ec.message() +
+                             " (is this client's certificate valid, unrevoked and signed by the "
+                             "CA the server trusts?)"));
+    Fail(Status::IoError("connection lost: " + ec.message()));
+  }
+
+  // From any thread.
+  void Write(std::string frame) {
+    asio::post(io, [this, frame = std::move(frame)]() mutable {
+      writes.push_back(std::move(frame));
+      if (!writing) WriteNext();
+    });
+  }
+
+  void WriteNext() {
+    if (writes.empty()) {
+      writing = false;
+      return;
     }
+    writing = true;
+    OnStream([this](auto& stream) {
+      asio::async_write(stream, asio::buffer(writes.front()),
+                        [this](const boost::system::error_code& ec, size_t) {
+                          if (ec) {  // the read then fails the pending calls
+                            boost::system::error_code ignored;
+                            Tcp().shutdown(tcp::socket::shutdown_both, ignored);
+                            writes.clear();
+                            writing = false;
+                            return;
+                          }
+                          writes.pop_front();
+                          WriteNext();
+                        });
+    });
+  }
+
+  void ReadHeader() {
+    OnStream([this](auto& stream) {
+      asio::async_read(stream, asio::buffer(header),
+                       [this](const boost::system::error_code& ec, size_t) {
+                         if (ec) return FailRead(ec);
+                         const uint32_t n = FrameLength(header);
+                         if (n > max_answer_bytes)
+                           return Fail(Status::IoError("server sent a frame of " +
+                                                       std::to_string(n) + " bytes, over the cap"));
+                         body.assign(n, '\0');
+                         ReadBody();
+                       });
+    });
+  }
+
+  void ReadBody() {
+    OnStream([this](auto& stream) {
+      asio::async_read(
+          stream, asio::buffer(body), [this](const boost::system::error_code& ec, size_t) {
+            if (ec) return FailRead(ec);
+            Result<v1::Envelope> env = ParseEnvelope(body.data(), body.size());
+            if (!env.ok())
+              return Fail(Status::IoError("server sent a frame that is not an Envelope"));
+            Deliver(*env);
+            ReadHeader();
+          });
+    });
+  }
+
+  void Deliver(const v1::Envelope& env) {
+    std::lock_guard<std::mutex> lock(mu);
+    auto it = pending.find(env.call_id());
+    if (it == pending.end()) {
+      if (env.call_id() == 0 && env.status().code() != v1::Status::OK) {
+        // A protocol error the server could not tie to a call: it closes the connection.
+        for (auto& [id, p] : pending)
+          p.set_value(Answer{env.status().code(), env.status().message(), {}});
+        pending.clear();
+      }
+      return;
+    }
+    it->second.set_value(Answer{env.status().code(), env.status().message(), env.body()});
+    pending.erase(it);
+  }
+
+  // Before the I/O thread starts: connects (and with `tls_context` shakes hands) within
+  // timeout_ms on the calling thread. Empty on success, else why not; *refused when the server
+  // or its certificate was refused (retrying cannot help).
+  std::string Open(const std::string& host, int port, asio::ssl::context* tls_context,
+                   const std::string& server_name, int timeout_ms, bool* refused) {
+    boost::system::error_code ec;
+    tcp::resolver resolver(io);
+    auto resolved = resolver.resolve(host, std::to_string(port), ec);
+    if (ec) return ec.message();
+    bool done = false;
+    asio::async_connect(socket, resolved,
+                        [&](const boost::system::error_code& e, auto&&) { ec = e, done = true; });
+    io.run_for(std::chrono::milliseconds(timeout_ms));
+    if (!done) return "no connection within " + std::to_string(timeout_ms) + " ms";
+    if (ec) return ec.message();
+    socket.set_option(tcp::no_delay(true), ec);
+    if (tls_context) {
+      tls = std::make_unique<TlsStream>(std::move(socket), *tls_context);
+      if (Status s = SetClientServerName(tls->native_handle(), server_name); !s.ok())
+        return s.message();
+      io.restart();
+      done = false;
+      tls->async_handshake(asio::ssl::stream_base::client,
+                           [&](const boost::system::error_code& e) { ec = e, done = true; });
+      io.run_for(std::chrono::milliseconds(timeout_ms));
+      if (!done) return "TLS handshake not finished within " + std::to_string(timeout_ms) + " ms";
+      *refused = true;
+      if (ec) {
+        const std::string v = VerifyProblem(tls->native_handle());
+        return "TLS handshake: " + ec.message() + (v.empty() ? "" : ": " + v);
+      }
+      if (std::string alpn = AlpnProblem(tls->native_handle()); !alpn.empty())
+        return "TLS: " + alpn;
+      *refused = false;
+    }
+    io.restart();
+    return "";
+  }
+
+  void Start() {
+    ReadHeader();
+    loop = std::thread([this] { io.run(); });
   }
 };
 
@@ -78,7 +204,8 @@ struct Client::Impl {
   std::vector<std::pair<std::string, int>> endpoints;  // host, port
   std::mutex mu;  // guards conn, current, failovers and next_id
   std::shared_ptr<Connection> conn;
-  size_t current = 0;  // the endpoint conn is (or was last) connected to
+  std::shared_ptr<asio::ssl::context> tls;  // null: plaintext
+  size_t current = 0;                       // the endpoint conn is (or was last) connected to
   uint64_t next_id = 1;
   std::atomic<uint64_t> resent{0};
 
@@ -101,26 +228,28 @@ struct Client::Impl {
     const size_t n = endpoints.size();
     const size_t first = conn ? (current + 1) % n : current;
     std::string why;
+    bool refused = false;
     for (size_t k = 0; k < n; ++k) {
       const size_t i = (first + k) % n;
       auto c = std::make_shared<Connection>();
       c->max_answer_bytes = o.max_answer_bytes;
-      boost::system::error_code ec;
-      tcp::resolver resolver(c->io);
-      auto resolved = resolver.resolve(endpoints[i].first, std::to_string(endpoints[i].second), ec);
-      if (!ec) asio::connect(c->socket, resolved, ec);
-      if (ec) {
-        why += (why.empty() ? "" : "; ") + Label(i) + ": " + ec.message();
+      const std::string name = o.tls_server_name.empty() ? endpoints[i].first : o.tls_server_name;
+      bool this_refused = false;
+      const std::string failed = c->Open(endpoints[i].first, endpoints[i].second, tls.get(), name,
+                                         o.connect_timeout_ms, &this_refused);
+      refused = refused || this_refused;
+      if (!failed.empty()) {
+        why += (why.empty() ? "" : "; ") + Label(i) + ": " + failed;
         continue;
       }
-      c->socket.set_option(tcp::no_delay(true), ec);
-      c->reader = std::thread([raw = c.get()] { raw->ReadLoop(); });
+      c->Start();
       conn = c;
       current = i;
       return c;
     }
-    return Status::IoError("cannot connect to " +
-                           (n == 1 ? why : "any of " + AllLabels() + " (" + why + ")"));
+    const std::string what =
+        "cannot connect to " + (n == 1 ? why : "any of " + AllLabels() + " (" + why + ")");
+    return refused ? Status(StatusCode::kFailedPrecondition, what) : Status::IoError(what);
   }
 
   std::future<Result<Answer>> Send(const std::string& method, const std::string& body,
@@ -150,16 +279,7 @@ struct Client::Impl {
       }
       f = (*c)->pending[e.call_id()].get_future();
     }
-    const std::string frame = EncodeFrame(e);
-    boost::system::error_code ec;
-    {
-      std::lock_guard<std::mutex> lock((*c)->write_mu);
-      asio::write((*c)->socket, asio::buffer(frame), ec);
-    }
-    if (ec) {
-      boost::system::error_code ignored;
-      (*c)->socket.shutdown(tcp::socket::shutdown_both, ignored);  // reader fails the pending
-    }
+    (*c)->Write(EncodeFrame(e));
     return f;
   }
 
@@ -182,8 +302,7 @@ struct Client::Impl {
       last = f.get();
       const bool shutting_down = last.ok() && last->code == v1::Status::UNAVAILABLE;
       if (shutting_down && used) {  // this server is draining: the next attempt reconnects
-        boost::system::error_code ignored;
-        used->socket.shutdown(tcp::socket::shutdown_both, ignored);
+        used->Close();
         std::lock_guard<std::mutex> lock(used->mu);
         used->dead = true;
       }
@@ -225,6 +344,17 @@ Result<std::unique_ptr<Client>> Client::Connect(const ClientOptions& options) {
     if (!SplitHostPort(e, &host, &port))
       return Status::InvalidArgument("endpoint '" + e + "' does not look like HOST:PORT");
     impl->endpoints.emplace_back(host, port);
+  }
+  const bool tls = !options.tls_ca_file.empty();
+  if (!tls && (!options.tls_cert_file.empty() || !options.tls_key_file.empty() ||
+               !options.tls_server_name.empty()))
+    return Status::InvalidArgument(
+        "TLS options need the CA bundle that signs the server's certificate (tls_ca_file)");
+  if (tls) {
+    auto ctx =
+        MakeClientTlsContext({options.tls_cert_file, options.tls_key_file, options.tls_ca_file});
+    if (!ctx.ok()) return ctx.status();
+    impl->tls = *ctx;
   }
   Result<std::shared_ptr<Connection>> c = impl->Live();
   if (!c.ok()) return c.status();

@@ -26,7 +26,13 @@ struct ClientOptions {
   // When not empty: HOST:PORT of each replica, in order of preference (host and port unused).
   std::vector<std::string> endpoints;
   std::string token;  // sent with every call when set; never logged
-  int connect_timeout_ms = 3000;
+  // TLS 1.3 with the wire's profile (ALPN sightfix/1), on when tls_ca_file is set (PEM files):
+  // the CA bundle that signs the server's certificate (a bundle of old and new CA rolls over);
+  // this vehicle's certificate and key, which a TLS server requires; the name the server's
+  // certificate must carry (default: the endpoint's host; a DNS name is also sent as SNI).
+  // A server that refuses the certificate fails the call with kFailedPrecondition, not retried.
+  std::string tls_ca_file, tls_cert_file, tls_key_file, tls_server_name;
+  int connect_timeout_ms = 3000;  // to connect, and to finish the TLS handshake
   int retries =
       10;  // extra attempts after a lost connection (idempotent calls), within the deadline
   int retry_backoff_ms = 100;             // before the first retry; doubles each time, 2 s at most

@@ -48,17 +48,29 @@ bool ParseNumbers(const std::string& text, size_t n, std::vector<double>* out) {
   return out->size() == n;
 }
 
+void AddServerOptions(po::options_description* desc, SourceFlags* flags) {
+  desc->add_options()("server", po::value(&flags->server),
+                      "HOST:PORT of a sightfix-server; several, comma-separated, to fail over "
+                      "between replicas")("token-file", po::value(&flags->token_file),
+                                          "file holding the server's bearer token")(
+      "tls-ca", po::value(&flags->tls_ca),
+      "PEM CA bundle that signs the server's certificate: speak TLS 1.3 to the server")(
+      "tls-cert", po::value(&flags->tls_cert),
+      "PEM certificate of this vehicle (a TLS server requires one)")(
+      "tls-key", po::value(&flags->tls_key), "PEM private key of --tls-cert")(
+      "tls-server-name", po::value(&flags->tls_server_name),
+      "name the server's certificate must carry (default: the host of --server)");
+}
+
 void AddSourceOptions(po::options_description* desc, SourceFlags* flags) {
-  desc->add_options()("map", po::value(&flags->map_dir), "map folder")(
-      "server", po::value(&flags->server),
-      "HOST:PORT of a sightfix-server instead of --map; several, comma-separated, to fail over "
-      "between replicas")("token-file", po::value(&flags->token_file),
-                          "file holding the server's bearer token (with --server only)");
+  desc->add_options()("map", po::value(&flags->map_dir), "map folder");
+  AddServerOptions(desc, flags);
 }
 
 int RefuseServerFlagsWithMap(const SourceFlags& flags, const po::variables_map& vm) {
   if (flags.map_dir.empty()) return kGoOn;
-  for (const char* flag : {"token-file", "deadline-ms"})
+  for (const char* flag :
+       {"token-file", "tls-ca", "tls-cert", "tls-key", "tls-server-name", "deadline-ms"})
     if (vm.count(flag))
       return Fail(std::string("--") + flag +
                       " applies to --server only: a map in this process has no server to call",
@@ -66,9 +78,11 @@ int RefuseServerFlagsWithMap(const SourceFlags& flags, const po::variables_map& 
   return kGoOn;
 }
 
-Result<std::unique_ptr<Client>> ConnectTo(const std::string& server,
-                                          const std::string& token_file) {
+Result<std::unique_ptr<Client>> ConnectTo(const SourceFlags& flags) {
+  const std::string& server = flags.server;
   ClientOptions options;
+  options.tls_ca_file = flags.tls_ca, options.tls_cert_file = flags.tls_cert;
+  options.tls_key_file = flags.tls_key, options.tls_server_name = flags.tls_server_name;
   size_t start = 0;
   while (start <= server.size()) {
     const size_t comma = std::min(server.find(',', start), server.size());
@@ -80,8 +94,8 @@ Result<std::unique_ptr<Client>> ConnectTo(const std::string& server,
     options.endpoints.push_back(one);
     start = comma + 1;
   }
-  if (!token_file.empty()) {
-    Result<std::string> token = ReadTokenFile(token_file);
+  if (!flags.token_file.empty()) {
+    Result<std::string> token = ReadTokenFile(flags.token_file);
     if (!token.ok()) return token.status();
     options.token = *token;
   }

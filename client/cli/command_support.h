@@ -46,22 +46,28 @@ struct SourceFlags {
   std::string map_dir;
   std::string server;  // HOST:PORT[,HOST:PORT...]
   std::string token_file;
+  // TLS (client.h ClientOptions): on with tls_ca.
+  std::string tls_ca, tls_cert, tls_key, tls_server_name;
   int deadline_ms = 0;  // each command sets its default
 };
 
-// Adds --map, --server and --token-file (--deadline-ms is added by each command, where its help
-// text belongs).
+// Adds --server, --token-file and the TLS flags (--tls-ca, --tls-cert, --tls-key,
+// --tls-server-name).
+void AddServerOptions(po::options_description* desc, SourceFlags* flags);
+// Adds --map and the above (--deadline-ms is added by each command, where its help text
+// belongs).
 void AddSourceOptions(po::options_description* desc, SourceFlags* flags);
 
-// Refuses, with --map, the flags that only a call to a server uses (--token-file,
-// --deadline-ms): they would have no effect. Returns kGoOn or 2.
+// Refuses, with --map, the flags that only a call to a server uses (--token-file, the TLS
+// flags, --deadline-ms): they would have no effect. Returns kGoOn or 2.
 // REQUIRES: exactly one of map_dir and server is set.
 int RefuseServerFlagsWithMap(const SourceFlags& flags, const po::variables_map& vm);
 
-// A client of `server` (HOST:PORT, or several comma-separated: replicas to fail over between)
-// with the token read from `token_file` (none when empty). InvalidArgument for a malformed
-// --server; the token file's and the connection's errors as they come.
-Result<std::unique_ptr<Client>> ConnectTo(const std::string& server, const std::string& token_file);
+// A client of flags.server (HOST:PORT, or several comma-separated: replicas to fail over
+// between) with the token read from flags.token_file (none when empty) and TLS as the flags say.
+// InvalidArgument for a malformed --server or TLS flags without --tls-ca; the token file's, the
+// certificates' and the connection's errors as they come.
+Result<std::unique_ptr<Client>> ConnectTo(const SourceFlags& flags);
 
 // A fix as `sightfix locate --json` prints it (README "locate"): position fields only when the
 // fix has a position, prior fields only when the request had a prior.

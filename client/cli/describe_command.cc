@@ -9,14 +9,14 @@
 namespace sightfix::cli {
 namespace {
 
-po::options_description DescribeOptions(std::string* server, std::string* token_file) {
+po::options_description DescribeOptions(SourceFlags* flags) {
   po::options_description desc(
       "sightfix describe: what a sightfix-server serves (map version, model, tiles, uptime).\n\n"
-      "Usage: sightfix describe --server HOST:PORT [--token-file F] [--json]\n\nOptions");
-  desc.add_options()("help,h", "show this help")("server", po::value(server),
-                                                 "HOST:PORT[,HOST:PORT...]")(
-      "token-file", po::value(token_file), "file holding the server's bearer token")(
-      "json", "print JSON on stdout");
+      "Usage: sightfix describe --server HOST:PORT [--token-file F] [--tls-ca F --tls-cert F\n"
+      "       --tls-key F [--tls-server-name N]] [--json]\n\nOptions");
+  desc.add_options()("help,h", "show this help");
+  AddServerOptions(&desc, flags);
+  desc.add_options()("json", "print JSON on stdout");
   return desc;
 }
 
@@ -48,12 +48,12 @@ void PrintDescription(const v1::DescribeResponse& d) {
 }  // namespace
 
 int Describe(int argc, char** argv) {
-  std::string server, token_file;
-  const po::options_description desc = DescribeOptions(&server, &token_file);
+  SourceFlags flags;
+  const po::options_description desc = DescribeOptions(&flags);
   po::variables_map vm;
   if (int rc = ParseFlags(argc, argv, "describe", desc, {}, &vm); rc != kGoOn) return rc;
-  if (server.empty()) return Fail("describe needs --server HOST:PORT", 2);
-  auto client = ConnectTo(server, token_file);
+  if (flags.server.empty()) return Fail("describe needs --server HOST:PORT", 2);
+  auto client = ConnectTo(flags);
   if (!client.ok()) return Fail(client.status().ToString(), 1);
   Result<v1::DescribeResponse> d = (*client)->Describe(5000);
   if (!d.ok()) return Fail(d.status().ToString(), 1);

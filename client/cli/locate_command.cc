@@ -106,7 +106,7 @@ int ParseRequest(const LocateFlags& f, const po::variables_map& vm, LocateReques
 
 // The fix through the server: 1 when the server cannot be reached, 2 for other failures.
 int LocateThroughServer(const LocateFlags& f, const LocateRequest& req, Fix* fix) {
-  auto client = ConnectTo(f.source.server, f.source.token_file);
+  auto client = ConnectTo(f.source);
   if (!client.ok()) return Fail(client.status().ToString(), 2);
   std::ifstream in(f.image_path, std::ios::binary);
   const std::string bytes((std::istreambuf_iterator<char>(in)), {});

@@ -128,7 +128,7 @@ struct ReplaySource {
 };
 
 int OpenServer(const SourceFlags& flags, ReplaySource* source, RouteReport* report) {
-  auto c = ConnectTo(flags.server, flags.token_file);
+  auto c = ConnectTo(flags);
   if (!c.ok()) return Fail(c.status().ToString(), 1);
   source->client = std::move(c).value();
   Result<v1::DescribeResponse> d = source->client->Describe(5000);

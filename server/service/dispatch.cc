@@ -74,9 +74,10 @@ void Service::Impl::Answer(const std::shared_ptr<Session>& s, uint64_t id,
   metrics.Record(method, code, seconds);
   std::fprintf(stderr,
                "{\"call\":%llu,\"method\":%s,\"status\":\"%s\",\"ms\":%.1f,\"quality\":\"%s\","
-               "\"peer\":\"%s\"}\n",
+               "\"peer\":\"%s\",\"client\":%s}\n",
                static_cast<unsigned long long>(id), nlohmann::json(method).dump().c_str(),
-               CodeName(code), 1000 * seconds, quality, s->peer().c_str());
+               CodeName(code), 1000 * seconds, quality, s->peer().c_str(),
+               nlohmann::json(s->identity()).dump().c_str());
   boost::asio::post(io, [s, frame = EncodeFrame(e)]() mutable { s->Send(std::move(frame)); });
 }
 

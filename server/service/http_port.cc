@@ -58,6 +58,7 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
       g.queue_depth = static_cast<int>(svc_->jobs.size());
     }
     g.connections = svc_->connections;
+    g.tls_refused = static_cast<long>(svc_->tls_refused.load());
     g.tiles_cached = loc->tiles_cached();
     g.tiles_bad = static_cast<int>(loc->TileProblems().size());
     g.map_version = loc->catalog().map_version;

@@ -44,6 +44,9 @@ std::string Metrics::Text(const Gauges& g) const {
   gauge("sightfix_tiles_cached", "Map tiles in memory.", g.tiles_cached);
   gauge("sightfix_tiles_bad", "Map tiles refused: missing, damaged or unreadable.", g.tiles_bad);
   gauge("sightfix_map_version", "Version of the map being served.", g.map_version);
+  t += "# HELP sightfix_tls_refused_total Connections refused in the TLS handshake.\n"
+       "# TYPE sightfix_tls_refused_total counter\nsightfix_tls_refused_total " +
+       std::to_string(g.tls_refused) + "\n";
   return t;
 }
 

@@ -26,6 +26,7 @@ class Metrics {
     int tiles_cached = 0;
     int tiles_bad = 0;
     int map_version = 0;
+    long tls_refused = 0;  // connections refused in the TLS handshake, since start
   };
 
   // One answered call; `seconds` from receipt to answer (only Locate's feed the histogram).

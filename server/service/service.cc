@@ -9,6 +9,7 @@
 #include <thread>
 
 #include "indexer/base/parallel.h"
+#include "proto/tls_profile.h"
 #include "server/service/service_impl.h"
 #include "server/service/session.h"
 
@@ -59,6 +60,10 @@ bool ServiceOptions::Validate(std::string* error) const {
   if (max_connections < 1) return fail("max_connections must be >= 1");
   if (read_timeout_ms < 1 || idle_timeout_ms < 1 || default_deadline_ms < 1)
     return fail("timeouts and the default deadline must be >= 1 ms");
+  const int tls_files =
+      !tls_cert_file.empty() + !tls_key_file.empty() + !tls_client_ca_file.empty();
+  if (tls_files != 0 && tls_files != 3)
+    return fail("TLS needs all three: the server's certificate, its key and the client CA");
   std::string e;
   if (!engine.Validate(&e)) return fail("engine: " + e);
   return true;
@@ -94,10 +99,26 @@ Result<std::unique_ptr<Service>> Service::Create(const ServiceOptions& o) {
     if (impl->token.size() < 16)
       return Status::InvalidArgument("token in " + o.token_file + " is shorter than 16 characters");
   }
-  if (impl->token.empty() && !o.allow_open &&
+  const bool tls = !o.tls_cert_file.empty();
+  if (!o.allow_plaintext && !tls && !IsLoopback(o.listen))
+    return Status(StatusCode::kFailedPrecondition,
+                  "refusing to serve beyond loopback in plaintext: give --tls-cert, --tls-key "
+                  "and --tls-client-ca (or --plaintext-beyond-loopback, not advised)");
+  if (!o.allow_plaintext && !o.http.empty() && !IsLoopback(o.http))
+    return Status(StatusCode::kFailedPrecondition,
+                  "refusing to serve /healthz and /metrics beyond loopback: the HTTP port has no "
+                  "TLS (keep it on loopback, or --plaintext-beyond-loopback, not advised)");
+  if (impl->token.empty() && !o.allow_open && !tls &&
       (!IsLoopback(o.listen) || (!o.http.empty() && !IsLoopback(o.http))))
     return Status(StatusCode::kFailedPrecondition,
-                  "refusing to listen beyond loopback without --token-file (or --allow-open)");
+                  "refusing to listen beyond loopback in plaintext without --token-file (or "
+                  "--allow-open)");
+  if (tls) {
+    Result<std::shared_ptr<asio::ssl::context>> ctx =
+        MakeServerTlsContext({o.tls_cert_file, o.tls_key_file, o.tls_client_ca_file});
+    if (!ctx.ok()) return ctx.status();
+    impl->tls = *ctx;
+  }
   auto loc = Localizer::Open(o.map_dir, o.engine);
   if (!loc.ok()) return loc.status();
   impl->localizer = std::move(loc).value();
@@ -191,8 +212,10 @@ Status Service::Run(bool handle_signals) {
   }
   m.Accept();
   if (m.http_acceptor.is_open()) m.AcceptHttp();
-  std::fprintf(stderr, "{\"event\":\"serving\",\"port\":%d,\"http_port\":%d,\"map_version\":%d}\n",
-               port(), http_port(), m.Current()->catalog().map_version);
+  std::fprintf(stderr,
+               "{\"event\":\"serving\",\"port\":%d,\"http_port\":%d,\"map_version\":%d,"
+               "\"tls\":%s}\n",
+               port(), http_port(), m.Current()->catalog().map_version, m.tls ? "true" : "false");
   m.io.run();
   std::fprintf(stderr, "{\"event\":\"stopped\"}\n");
   return Status::Ok();

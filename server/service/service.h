@@ -15,10 +15,15 @@
 // client that does not read its answers is closed once max_pending_write_bytes pile up. A
 // malformed frame (zero length, over the cap, not an Envelope) is answered when possible and
 // that one connection is closed; nothing else is disturbed.
-// Security: binds loopback by default; with a token file every call must carry that token
-// (compared in constant time); a non-loopback address without a token is refused unless
-// allow_open. Logs: one JSON line per call on stderr (id, method, status, ms, quality, peer),
-// never image data or the token.
+// Security: binds loopback by default. With TLS (tls_cert_file, tls_key_file,
+// tls_client_ca_file; proto/tls_profile.h) the query port speaks TLS 1.3 only and every client
+// must present a certificate signed by the client CA; its common name names the caller in the
+// logs. Beyond loopback the query port refuses to start without TLS unless allow_plaintext, and
+// a plaintext one there also needs a token (or allow_open); the HTTP side port has no TLS yet,
+// so beyond loopback it needs allow_plaintext too. With a token file every call must carry that
+// token (compared in constant time): a second factor under TLS. Logs: one JSON line per call on
+// stderr (id, method, status, ms, quality, peer, client), never image data or the token; one per
+// connection refused in the TLS handshake (peer, reason).
 // Lifecycle: Create binds; Run serves until Shutdown (or SIGTERM/SIGINT when handle_signals),
 // then drains: no new calls, every queued and running call answered, then returns. SIGHUP (or
 // Reload) reopens the map; calls in flight finish on the old one.
@@ -48,7 +53,10 @@ struct ServiceOptions {
   int default_deadline_ms = 10000;
   size_t max_pending_write_bytes = size_t(32) << 20;
   std::string token_file;
-  bool allow_open = false;  // listen beyond loopback without a token
+  bool allow_open = false;  // listen beyond loopback in plaintext without a token
+  // TLS on the query port: all three or none (PEM files).
+  std::string tls_cert_file, tls_key_file, tls_client_ca_file;
+  bool allow_plaintext = false;  // listen beyond loopback without TLS (not advised)
   // Check every tile file against the catalog's SHA-256 in the background after start (and
   // after a reload), so /healthz names bad tiles early. Off: tiles are still checked before
   // their first use.

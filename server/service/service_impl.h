@@ -11,6 +11,7 @@
 
 #include <atomic>
 #include <boost/asio.hpp>
+#include <boost/asio/ssl.hpp>
 #include <chrono>
 #include <condition_variable>
 #include <deque>
@@ -65,6 +66,9 @@ struct Service::Impl {
   std::vector<std::thread> workers;
 
   std::atomic<int> connections{0};
+  std::atomic<uint64_t> tls_refused{0};
+  // TLS on the query port (null: plaintext). Sessions hold their own reference.
+  std::shared_ptr<boost::asio::ssl::context> tls;
   std::atomic<bool> draining{false};
 
   // The scrub: one background thread checks every tile file of the map being served against

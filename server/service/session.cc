@@ -3,16 +3,75 @@
 #include <cstdio>
 #include <nlohmann/json.hpp>
 
+#include "proto/tls_profile.h"
+
 namespace sightfix::service_internal {
 
 namespace asio = boost::asio;
 using tcp = asio::ip::tcp;
 
 Session::Session(tcp::socket socket, Service::Impl* svc)
-    : socket_(std::move(socket)), timer_(socket_.get_executor()), svc_(svc) {
+    : socket_(socket.get_executor()),
+      tls_context_(svc->tls),
+      timer_(socket.get_executor()),
+      svc_(svc) {
   boost::system::error_code ec;
-  const auto ep = socket_.remote_endpoint(ec);
+  const auto ep = socket.remote_endpoint(ec);
   peer_ = ec ? "?" : ep.address().to_string() + ":" + std::to_string(ep.port());
+  if (tls_context_)
+    tls_ = std::make_unique<TlsStream>(std::move(socket), *tls_context_);
+  else
+    socket_ = std::move(socket);
+}
+
+void Session::Start() {
+  if (!tls_) return ReadHeader();
+  Arm(svc_->o.read_timeout_ms);  // a stalled handshake is cut off as a stalled frame is
+  // A look at the first byte: a plaintext client gets a plaintext answer saying why not.
+  Tcp().async_receive(asio::buffer(header_, 1), tcp::socket::message_peek,
+                      [self = shared_from_this()](const boost::system::error_code& ec, size_t n) {
+                        if (ec || n == 0) return self->OnHandshake(ec ? ec : asio::error::eof);
+                        if (self->header_[0] != kTlsHandshakeRecord) return self->RefusePlaintext();
+                        self->tls_->async_handshake(
+                            asio::ssl::stream_base::server,
+                            [self](const boost::system::error_code& e) { self->OnHandshake(e); });
+                      });
+}
+
+void Session::RefusePlaintext() {
+  timer_.cancel();
+  const std::string why =
+      "this port speaks TLS 1.3 only: connect with the server's CA and a "
+      "vehicle certificate (--tls-ca, --tls-cert, --tls-key)";
+  std::fprintf(stderr, "{\"peer\":\"%s\",\"tls_refused\":\"plaintext sent to the TLS port\"}\n",
+               peer_.c_str());
+  ++svc_->tls_refused;
+  v1::Envelope e;
+  e.mutable_status()->set_code(v1::Status::UNAUTHENTICATED);
+  e.mutable_status()->set_message(why);
+  auto frame = std::make_shared<std::string>(EncodeFrame(e));
+  Arm(svc_->o.read_timeout_ms);
+  asio::async_write(Tcp(), asio::buffer(*frame),
+                    [self = shared_from_this(), frame](const boost::system::error_code&, size_t) {
+                      self->Close();
+                    });
+}
+
+void Session::OnHandshake(const boost::system::error_code& ec) {
+  timer_.cancel();
+  std::string why = closed_ ? "handshake not finished within the read timeout"
+                    : ec    ? ec.message()
+                            : AlpnProblem(tls_->native_handle());
+  if (ec && !closed_)
+    if (const std::string v = VerifyProblem(tls_->native_handle()); !v.empty()) why += ": " + v;
+  if (!why.empty()) {
+    std::fprintf(stderr, "{\"peer\":\"%s\",\"tls_refused\":%s}\n", peer_.c_str(),
+                 nlohmann::json(why).dump().c_str());
+    ++svc_->tls_refused;
+    return Close();
+  }
+  identity_ = PeerCommonName(tls_->native_handle());
+  ReadHeader();
 }
 
 Session::~Session() { --svc_->connections; }
@@ -31,8 +90,8 @@ void Session::Close() {
   closed_ = true;
   timer_.cancel();
   boost::system::error_code ec;
-  socket_.shutdown(tcp::socket::shutdown_both, ec);
-  socket_.close(ec);
+  Tcp().shutdown(tcp::socket::shutdown_both, ec);
+  Tcp().close(ec);
 }
 
 void Session::Arm(int ms) {
@@ -45,11 +104,13 @@ void Session::Arm(int ms) {
 void Session::ReadHeader() {
   if (closed_ || svc_->draining) return;
   Arm(svc_->o.idle_timeout_ms);
-  asio::async_read(socket_, asio::buffer(header_),
-                   [self = shared_from_this()](const boost::system::error_code& ec, size_t) {
-                     if (ec) return self->Close();
-                     self->OnHeader();
-                   });
+  OnStream([this](auto& stream) {
+    asio::async_read(stream, asio::buffer(header_),
+                     [self = shared_from_this()](const boost::system::error_code& ec, size_t) {
+                       if (ec) return self->Close();
+                       self->OnHeader();
+                     });
+  });
 }
 
 void Session::OnHeader() {
@@ -60,11 +121,13 @@ void Session::OnHeader() {
                          std::to_string(svc_->o.max_frame_bytes) + "-byte cap");
   body_.resize(n);  // bounded by the cap just checked
   Arm(svc_->o.read_timeout_ms);
-  asio::async_read(socket_, asio::buffer(body_),
-                   [self = shared_from_this()](const boost::system::error_code& ec, size_t) {
-                     if (ec) return self->Close();
-                     self->OnBody();
-                   });
+  OnStream([this](auto& stream) {
+    asio::async_read(stream, asio::buffer(body_),
+                     [self = shared_from_this()](const boost::system::error_code& ec, size_t) {
+                       if (ec) return self->Close();
+                       self->OnBody();
+                     });
+  });
 }
 
 void Session::OnBody() {
@@ -95,13 +158,15 @@ void Session::WriteNext() {
     return;
   }
   writing_ = true;
-  asio::async_write(socket_, asio::buffer(writes_.front()),
-                    [self = shared_from_this()](const boost::system::error_code& ec, size_t n) {
-                      if (ec) return self->Close();
-                      self->pending_bytes_ -= n;
-                      self->writes_.pop_front();
-                      self->WriteNext();
-                    });
+  OnStream([this](auto& stream) {
+    asio::async_write(stream, asio::buffer(writes_.front()),
+                      [self = shared_from_this()](const boost::system::error_code& ec, size_t n) {
+                        if (ec) return self->Close();
+                        self->pending_bytes_ -= n;
+                        self->writes_.pop_front();
+                        self->WriteNext();
+                      });
+  });
 }
 
 }  // namespace sightfix::service_internal

@@ -4,10 +4,17 @@
 // the connection closed; a started frame must finish within read_timeout_ms, an idle connection
 // is closed after idle_timeout_ms, and one whose client leaves more than max_pending_write_bytes
 // unread is closed.
-// Thread safety: none; every method runs on the I/O thread (workers post to it).
+// TLS (when the service has a context, tls_profile.h): the handshake comes first and must finish
+// within read_timeout_ms; a peer that fails it (no or a bad certificate, an old protocol, no
+// ALPN of ours, garbage) is logged as refused and closed before any frame is read; a client
+// whose first byte is not a TLS handshake record gets one plaintext error frame saying so. The
+// certificate's common name then names the caller (identity()).
+// Thread safety: none; every method runs on the I/O thread (workers post to it); peer() and
+// identity() are fixed before the first call is dispatched.
 #pragma once
 
 #include <boost/asio.hpp>
+#include <boost/asio/ssl.hpp>
 #include <deque>
 #include <memory>
 #include <string>
@@ -24,14 +31,27 @@ class Session : public std::enable_shared_from_this<Session> {
   Session(boost::asio::ip::tcp::socket socket, Service::Impl* svc);
   ~Session();
 
-  void Start() { ReadHeader(); }
-  const std::string& peer() const { return peer_; }  // "address:port", or "?"
+  void Start();
+  const std::string& peer() const { return peer_; }          // "address:port", or "?"
+  const std::string& identity() const { return identity_; }  // TLS: the certificate's CN
   // Queues a frame; closes the connection when the client is not reading.
   void Send(std::string frame, bool close_after = false);
   void Close();
 
  private:
+  using TlsStream = boost::asio::ssl::stream<boost::asio::ip::tcp::socket>;
   void Arm(int ms);  // the timer: closes the connection after `ms`
+  void OnHandshake(const boost::system::error_code& ec);
+  void RefusePlaintext();  // answers one error frame in plaintext, then closes
+  boost::asio::ip::tcp::socket& Tcp() { return tls_ ? tls_->next_layer() : socket_; }
+  // Runs f on the stream the frames travel on: TLS or the plain socket.
+  template <typename F>
+  void OnStream(F&& f) {
+    if (tls_)
+      f(*tls_);
+    else
+      f(socket_);
+  }
   void ReadHeader();
   void OnHeader();
   void OnBody();
@@ -39,10 +59,12 @@ class Session : public std::enable_shared_from_this<Session> {
   void Reject(uint64_t id, const std::string& why);
   void WriteNext();
 
-  boost::asio::ip::tcp::socket socket_;
+  boost::asio::ip::tcp::socket socket_;                     // plaintext; moved into tls_ under TLS
+  std::shared_ptr<boost::asio::ssl::context> tls_context_;  // kept while the session lives
+  std::unique_ptr<TlsStream> tls_;
   boost::asio::steady_timer timer_;
   Service::Impl* svc_;
-  std::string peer_;
+  std::string peer_, identity_;
   uint8_t header_[kFrameHeaderBytes];
   std::vector<uint8_t> body_;
   std::deque<std::string> writes_;

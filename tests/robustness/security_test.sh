@@ -1,6 +1,7 @@
 #!/usr/bin/env bash
 # Security defaults of sightfix-server, as a user meets them: it listens on loopback unless told
-# otherwise; off loopback it refuses to start without a token; with a token every call must
+# otherwise; off loopback it refuses plaintext (tls_test.sh covers TLS) unless told
+# --plaintext-beyond-loopback, and then still asks for a token; with a token every call must
 # carry it (calls without it or with a wrong one are refused and served nothing); and neither
 # the right token nor a wrong one ever appears in the server's log or the client's output.
 # Usage: security_test.sh BUILD_DIR SERVICE_DATA_DIR
@@ -19,10 +20,13 @@ grep -q -- "--listen arg (=127.0.0.1:7411)" "$tmp/help.txt" && grep -q -- "--htt
   ok "defaults listen on loopback (127.0.0.1:7411, HTTP 127.0.0.1:7412)" || bad "defaults: $(grep -- --listen "$tmp/help.txt")"
 
 "$server_bin" --map "$data/map" --listen 0.0.0.0:0 --http "" >"$tmp/open.txt" 2>&1; rc=$?
-[ $rc -eq 2 ] && grep -q "refusing to listen beyond loopback without --token-file" "$tmp/open.txt" &&
-  ok "0.0.0.0 without a token: refused (exit 2)" || bad "open listen (exit $rc): $(cat "$tmp/open.txt")"
+[ $rc -eq 2 ] && grep -q "refusing to serve beyond loopback in plaintext" "$tmp/open.txt" &&
+  ok "0.0.0.0 without TLS: refused (exit 2)" || bad "open listen (exit $rc): $(cat "$tmp/open.txt")"
+"$server_bin" --map "$data/map" --listen 0.0.0.0:0 --http "" --plaintext-beyond-loopback >"$tmp/open.txt" 2>&1; rc=$?
+[ $rc -eq 2 ] && grep -q "refusing to listen beyond loopback in plaintext without --token-file" "$tmp/open.txt" &&
+  ok "0.0.0.0 in plaintext without a token: refused (exit 2)" || bad "open listen (exit $rc): $(cat "$tmp/open.txt")"
 "$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http 0.0.0.0:0 >"$tmp/open2.txt" 2>&1; rc=$?
-[ $rc -eq 2 ] && ok "an HTTP port off loopback without a token: refused (exit 2)" || bad "open http (exit $rc)"
+[ $rc -eq 2 ] && ok "an HTTP port off loopback: refused (exit 2)" || bad "open http (exit $rc)"
 
 echo "short" >"$tmp/short.token"
 "$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http "" --token-file "$tmp/short.token" >"$tmp/short.txt" 2>&1; rc=$?
@@ -33,10 +37,12 @@ token="$(head -c 24 /dev/urandom | od -An -tx1 | tr -d ' \n')"
 wrong="$(head -c 24 /dev/urandom | od -An -tx1 | tr -d ' \n')"
 printf '%s\n' "$token" >"$tmp/server.token"
 printf '%s\n' "$wrong" >"$tmp/wrong.token"
-"$server_bin" --map "$data/map" --listen 0.0.0.0:0 --http "" --token-file "$tmp/server.token" 2>"$tmp/server.log" &
+"$server_bin" --map "$data/map" --listen 0.0.0.0:0 --http "" --token-file "$tmp/server.token" \
+  --plaintext-beyond-loopback 2>"$tmp/server.log" &
 server_pid=$!
 port="$(serving_port "$tmp/server.log" "$server_pid")"
-[ -n "$port" ] && ok "0.0.0.0 with a token file: serving" || bad "server with token did not start: $(cat "$tmp/server.log")"
+[ -n "$port" ] && ok "0.0.0.0 in plaintext, told so, with a token file: serving" ||
+  bad "server with token did not start: $(cat "$tmp/server.log")"
 
 "$cli" describe --server "127.0.0.1:$port" --token-file "$tmp/server.token" >"$tmp/out.txt" 2>&1 &&
   ok "describe with the token" || bad "describe with token: $(cat "$tmp/out.txt")"

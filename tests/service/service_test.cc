@@ -384,12 +384,16 @@ TEST_F(ServiceTest, HealthAndMetricsOnTheHttpPort) {
 TEST_F(ServiceTest, ConfigurationSafety) {
   ServiceOptions o;
   o.map_dir = DataDir() + "/map";
-  o.listen = "0.0.0.0:0";  // beyond loopback, no token: refused
+  o.listen = "0.0.0.0:0";  // beyond loopback in plaintext: refused
   o.http = "";
   auto open = Service::Create(o);
   ASSERT_FALSE(open.ok());
+  EXPECT_NE(open.status().message().find("--tls-cert"), std::string::npos);
+  o.allow_plaintext = true;  // ... unless told so, and then a token is still asked for
+  open = Service::Create(o);
+  ASSERT_FALSE(open.ok());
   EXPECT_NE(open.status().message().find("--token-file"), std::string::npos);
-  o.allow_open = true;  // ... unless told explicitly
+  o.allow_open = true;  // ... unless told that too
   EXPECT_TRUE(Service::Create(o).ok());
   o = ServiceOptions{};
   o.map_dir = DataDir() + "/map";

@@ -1,0 +1,173 @@
+#include "proto/tls_profile.h"
+
+#include <openssl/err.h>
+#include <openssl/ssl.h>
+#include <openssl/x509v3.h>
+
+#include <boost/asio/ip/address.hpp>
+#include <cstring>
+
+namespace sightfix {
+namespace {
+
+namespace ssl = boost::asio::ssl;
+
+// ALPN's wire form: a length byte, then the identifier.
+const std::string& AlpnWire() {
+  static const std::string wire =
+      std::string(1, static_cast<char>(std::strlen(kWireAlpn))) + kWireAlpn;
+  return wire;
+}
+
+std::string OpenSslReason(const boost::system::error_code& ec) {
+  std::string why = ec.message();
+  if (unsigned long e = ERR_get_error()) {
+    char buf[256];
+    ERR_error_string_n(e, buf, sizeof buf);
+    why = buf;
+  }
+  ERR_clear_error();
+  return why;
+}
+
+// The server's ALPN choice: ours, or a fatal no_application_protocol alert.
+int SelectAlpn(SSL*, const unsigned char** out, unsigned char* outlen, const unsigned char* in,
+               unsigned int inlen, void*) {
+  unsigned char* chosen = nullptr;
+  const std::string& ours = AlpnWire();
+  if (SSL_select_next_proto(&chosen, outlen, reinterpret_cast<const unsigned char*>(ours.data()),
+                            static_cast<unsigned>(ours.size()), in,
+                            inlen) != OPENSSL_NPN_NEGOTIATED)
+    return SSL_TLSEXT_ERR_ALERT_FATAL;
+  *out = chosen;
+  return SSL_TLSEXT_ERR_OK;
+}
+
+// TLS 1.3 only, no compression, no renegotiation (1.3 has none).
+Status Profile(ssl::context& ctx) {
+  SSL_CTX* h = ctx.native_handle();
+  if (SSL_CTX_set_min_proto_version(h, TLS1_3_VERSION) != 1 ||
+      SSL_CTX_set_max_proto_version(h, TLS1_3_VERSION) != 1)
+    return Status::Internal("TLS: this OpenSSL cannot be limited to TLS 1.3");
+  ctx.set_options(ssl::context::no_compression);
+  return Status::Ok();
+}
+
+// Loads one PEM file into the context through `load`; the error names the file.
+template <typename Load>
+Status LoadFile(const char* what, const std::string& path, Load load) {
+  boost::system::error_code ec;
+  load(ec);
+  if (ec)
+    return Status::InvalidArgument("TLS " + std::string(what) + " " + path + ": " +
+                                   OpenSslReason(ec));
+  return Status::Ok();
+}
+
+Status LoadOwn(ssl::context& ctx, const TlsFiles& f) {
+  if (Status s = LoadFile("certificate", f.cert_file,
+                          [&](auto& ec) { ctx.use_certificate_chain_file(f.cert_file, ec); });
+      !s.ok())
+    return s;
+  if (Status s =
+          LoadFile("key", f.key_file,
+                   [&](auto& ec) { ctx.use_private_key_file(f.key_file, ssl::context::pem, ec); });
+      !s.ok())
+    return s;
+  if (SSL_CTX_check_private_key(ctx.native_handle()) != 1) {
+    ERR_clear_error();
+    return Status::InvalidArgument("TLS key " + f.key_file + " does not match certificate " +
+                                   f.cert_file);
+  }
+  return Status::Ok();
+}
+
+}  // namespace
+
+Result<std::shared_ptr<ssl::context>> MakeServerTlsContext(const TlsFiles& f) {
+  if (f.cert_file.empty() || f.key_file.empty() || f.ca_file.empty())
+    return Status::InvalidArgument(
+        "TLS needs the server's certificate, its key and the CA that signs client certificates");
+  auto ctx = std::make_shared<ssl::context>(ssl::context::tls_server);
+  if (Status s = Profile(*ctx); !s.ok()) return s;
+  if (Status s = LoadOwn(*ctx, f); !s.ok()) return s;
+  if (Status s =
+          LoadFile("client CA", f.ca_file, [&](auto& ec) { ctx->load_verify_file(f.ca_file, ec); });
+      !s.ok())
+    return s;
+  SSL_CTX* h = ctx->native_handle();
+  // The CertificateRequest names the accepted CAs, so a client with several certificates picks.
+  if (STACK_OF(X509_NAME)* names = SSL_load_client_CA_file(f.ca_file.c_str()))
+    SSL_CTX_set_client_CA_list(h, names);
+  ctx->set_verify_mode(ssl::verify_peer | ssl::verify_fail_if_no_peer_cert);
+  static const unsigned char kContext[] = "sightfix";
+  SSL_CTX_set_session_id_context(h, kContext, sizeof kContext - 1);
+  SSL_CTX_set_alpn_select_cb(h, SelectAlpn, nullptr);
+  return ctx;
+}
+
+Result<std::shared_ptr<ssl::context>> MakeClientTlsContext(const TlsFiles& f) {
+  if (f.ca_file.empty())
+    return Status::InvalidArgument("TLS needs the CA bundle that signs the server's certificate");
+  if (f.cert_file.empty() != f.key_file.empty())
+    return Status::InvalidArgument("TLS: give the client certificate and its key together");
+  auto ctx = std::make_shared<ssl::context>(ssl::context::tls_client);
+  if (Status s = Profile(*ctx); !s.ok()) return s;
+  if (Status s =
+          LoadFile("CA bundle", f.ca_file, [&](auto& ec) { ctx->load_verify_file(f.ca_file, ec); });
+      !s.ok())
+    return s;
+  if (!f.cert_file.empty())
+    if (Status s = LoadOwn(*ctx, f); !s.ok()) return s;
+  ctx->set_verify_mode(ssl::verify_peer);
+  const std::string& alpn = AlpnWire();
+  if (SSL_CTX_set_alpn_protos(ctx->native_handle(),
+                              reinterpret_cast<const unsigned char*>(alpn.data()),
+                              static_cast<unsigned>(alpn.size())) != 0)
+    return Status::Internal("TLS: cannot set ALPN");
+  return ctx;
+}
+
+Status SetClientServerName(SSL* ssl, const std::string& name) {
+  if (name.empty()) return Status::InvalidArgument("TLS needs the server's name to check");
+  boost::system::error_code ec;
+  boost::asio::ip::make_address(name, ec);
+  const bool ip = !ec;
+  X509_VERIFY_PARAM* param = SSL_get0_param(ssl);
+  const int ok = ip ? X509_VERIFY_PARAM_set1_ip_asc(param, name.c_str())
+                    : (SSL_set_tlsext_host_name(ssl, name.c_str()) == 1 &&
+                       SSL_set1_host(ssl, name.c_str()) == 1);
+  if (ok != 1) {
+    ERR_clear_error();
+    return Status::InvalidArgument("TLS: '" + name + "' is not a usable server name");
+  }
+  return Status::Ok();
+}
+
+std::string AlpnProblem(SSL* ssl) {
+  const unsigned char* p = nullptr;
+  unsigned int n = 0;
+  SSL_get0_alpn_selected(ssl, &p, &n);
+  if (n == 0)
+    return std::string("the peer agreed on no application protocol (ALPN ") + kWireAlpn +
+           " expected)";
+  const std::string got(reinterpret_cast<const char*>(p), n);
+  if (got != kWireAlpn) return "the peer chose ALPN '" + got + "', not " + kWireAlpn;
+  return "";
+}
+
+std::string VerifyProblem(SSL* ssl) {
+  const long result = SSL_get_verify_result(ssl);
+  return result == X509_V_OK ? "" : X509_verify_cert_error_string(result);
+}
+
+std::string PeerCommonName(SSL* ssl) {
+  X509* cert = SSL_get0_peer_certificate(ssl);
+  if (cert == nullptr) return "";
+  char cn[256] = {0};
+  if (X509_NAME_get_text_by_NID(X509_get_subject_name(cert), NID_commonName, cn, sizeof cn) < 0)
+    return "";
+  return cn;
+}
+
+}  // namespace sightfix

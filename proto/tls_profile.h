@@ -1,0 +1,59 @@
+// The wire's TLS profile, shared by the server and the client library (not installed: the
+// client's public header speaks of file names only, never of OpenSSL types).
+//  - TLS 1.3 only: every peer is ours, and 1.3 encrypts the client's certificate, which 1.2
+//    sends in the clear. An older ClientHello gets a protocol_version alert.
+//  - Both sides verified: the server presents a certificate its clients' CA bundle trusts, and
+//    requires one from the client, signed by the CA it is given (mutual authentication).
+//  - ALPN "sightfix/1" names the wire's version; a peer offering none of ours is refused, so
+//    no other protocol reaches the frame decoder by accident.
+//  - No 0-RTT: OpenSSL accepts early data only when a server sets max_early_data, which this
+//    profile never does (early data can be replayed).
+//  - Session resumption carries a session id context ("sightfix"): a resumed session keeps the
+//    verified client identity of its full handshake and never skips verification.
+// Boost 1.74's ssl::context has no API for the minimum version, ALPN, the session id context or
+// the client CA list sent in the CertificateRequest: those calls go to native_handle() here and
+// nowhere else.
+#pragma once
+
+#include <boost/asio/ssl.hpp>
+#include <memory>
+#include <string>
+
+#include "indexer/base/status.h"
+
+namespace sightfix {
+
+inline constexpr char kWireAlpn[] = "sightfix/1";
+
+struct TlsFiles {
+  std::string cert_file;  // PEM: this side's certificate (chain)
+  std::string key_file;   // PEM: its private key
+  std::string ca_file;    // PEM bundle: the CAs this side trusts for its peers
+};
+
+// Server: cert, key and the client CA are required. kInvalidArgument naming the file and
+// OpenSSL's reason when one cannot be read or the key does not match the certificate.
+Result<std::shared_ptr<boost::asio::ssl::context>> MakeServerTlsContext(const TlsFiles& files);
+
+// Client: the CA bundle is required; cert and key together or neither.
+Result<std::shared_ptr<boost::asio::ssl::context>> MakeClientTlsContext(const TlsFiles& files);
+
+// Before a client handshake: sends `server_name` as SNI (a DNS name only: an IP literal is not
+// sent, as RFC 6066 says) and checks the server's certificate against it (DNS or IP SAN).
+Status SetClientServerName(SSL* ssl, const std::string& server_name);
+
+// After a handshake: empty when the peer agreed on kWireAlpn, else why not.
+std::string AlpnProblem(SSL* ssl);
+
+// After a failed handshake: why this side's verification refused the peer's certificate
+// (OpenSSL's text, e.g. "hostname mismatch", "certificate has expired"), or "".
+std::string VerifyProblem(SSL* ssl);
+
+// The first byte of every TLS handshake record (content type 22): a first byte other than this
+// on the TLS port is a plaintext client, answered in plaintext before the port closes.
+inline constexpr unsigned char kTlsHandshakeRecord = 0x16;
+
+// The verified peer certificate's subject common name ("" without one).
+std::string PeerCommonName(SSL* ssl);
+
+}  // namespace sightfix

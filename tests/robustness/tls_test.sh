@@ -1,0 +1,172 @@
+#!/usr/bin/env bash
+# TLS on the query port (proto/tls_profile.h, server/service/service.h), as a user meets it:
+# certificates made at test time with scripts/make-certs.sh (`openssl ca`); a call with a good
+# vehicle certificate succeeds and names the vehicle in the server's log; every other peer is
+# refused with a clear error on both sides and served nothing: no certificate, one from another
+# CA, an expired one, a wrong server name, plaintext sent to the TLS port, TLS 1.2 (a
+# protocol_version alert, number 70: RFC 8446 6.2), no or a foreign ALPN, garbage in place of a
+# handshake, a stalled handshake (cut off at the read timeout). Independent peers: `openssl
+# s_client` against the server (protocol, cipher, ALPN and verification printed) and the client
+# library against `openssl s_server`. Beyond loopback the server refuses plaintext unless told
+# --plaintext-beyond-loopback. The token stays a second factor under TLS.
+# Usage: tls_test.sh SOURCE_DIR BUILD_DIR SERVICE_DATA_DIR
+set -u
+src="$1" build="$2" data="$3"
+cli="$build/client/sightfix"
+server_bin="$build/server/sightfix-server"
+server_pid="" s_server_pid=""
+cleanup_extra() {
+  for p in $server_pid $s_server_pid; do kill "$p" 2>/dev/null; done
+  wait 2>/dev/null
+}
+source "$(dirname "$0")/../lib/checks.sh"
+source "$(dirname "$0")/../lib/server_port.sh"
+q="$data/town/query-day"
+certs="$src/scripts/make-certs.sh"
+pki="$tmp/pki" other="$tmp/other"
+
+bash "$certs" "$pki" ca >/dev/null &&
+  bash "$certs" "$pki" server localhost DNS:localhost IP:127.0.0.1 >/dev/null &&
+  bash "$certs" "$pki" vehicle vehicle-7 >/dev/null &&
+  CA_ARGS="-startdate 20200101000000Z -enddate 20210101000000Z" \
+    bash "$certs" "$pki" vehicle vehicle-old >/dev/null &&
+  CA_NAME="another CA" bash "$certs" "$other" ca >/dev/null &&
+  bash "$certs" "$other" vehicle vehicle-9 >/dev/null &&
+  ok "scripts/make-certs.sh made a CA, a server and three vehicle certificates" ||
+  { bad "make-certs.sh failed"; finish; exit 1; }
+[ "$(stat -c %a "$pki/vehicle-7.key")" = 600 ] && ok "keys are written 0600" || bad "key mode"
+bash "$certs" "$pki" vehicle vehicle-8 >/dev/null && bash "$certs" "$pki" revoke vehicle-8 &&
+  serial="$(openssl x509 -in "$pki/vehicle-8.crt" -noout -serial | cut -d= -f2)" &&
+  openssl crl -in "$pki/crl.pem" -noout -text | grep -q "Serial Number: $serial" &&
+  ok "make-certs.sh revoke lists the certificate in crl.pem (the server does not read CRLs yet)" ||
+  bad "revoke: no CRL entry"
+openssl x509 -in "$pki/vehicle-7.crt" -noout -text | grep -q "id-ecPublicKey" &&
+  ok "keys are ECDSA (P-256)" || bad "not an EC key"
+
+# Beyond loopback: plaintext refused unless named; TLS serves without a token.
+expect "0.0.0.0 in plaintext: refused" 2 "refusing to serve beyond loopback in plaintext" -- \
+  "$server_bin" --map "$data/map" --listen 0.0.0.0:0 --http ""
+expect "an HTTP port beyond loopback: refused (it has no TLS)" 2 "HTTP port has no TLS" -- \
+  "$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http 0.0.0.0:0 --tls-cert "$pki/localhost.crt" \
+  --tls-key "$pki/localhost.key" --tls-client-ca "$pki/ca.crt"
+expect "TLS needs all three files" 2 "all three" -- \
+  "$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http "" --tls-cert "$pki/localhost.crt"
+expect "a key that does not match its certificate: refused" 2 "mismatch" -- \
+  "$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http "" --tls-cert "$pki/localhost.crt" \
+  --tls-key "$pki/vehicle-7.key" --tls-client-ca "$pki/ca.crt"
+
+"$server_bin" --map "$data/map" --listen 0.0.0.0:0 --http 127.0.0.1:0 --workers 1 \
+  --tls-cert "$pki/localhost.crt" --tls-key "$pki/localhost.key" --tls-client-ca "$pki/ca.crt" \
+  2>"$tmp/server.log" &
+server_pid=$!
+read -r port http_port <<<"$(serving_port "$tmp/server.log" "$server_pid")"
+[ -n "${port:-}" ] && grep -q '"tls":true' "$tmp/server.log" && ok "0.0.0.0 with TLS: serving" ||
+  { bad "TLS server did not start: $(cat "$tmp/server.log")"; finish; exit 1; }
+good=(--tls-ca "$pki/ca.crt" --tls-cert "$pki/vehicle-7.crt" --tls-key "$pki/vehicle-7.key")
+
+expect "describe with a good certificate" 0 "map version" -- \
+  "$cli" describe --server "localhost:$port" "${good[@]}"
+expect "locate with a good certificate (by IP: the IP SAN is checked)" 0 '"quality"' -- \
+  "$cli" locate --server "127.0.0.1:$port" "${good[@]}" --image "$q/images/000003.jpg" \
+  --camera "$q/camera.yml" --json
+grep -q '"method":"Locate".*"client":"vehicle-7"' "$tmp/server.log" &&
+  ok "the server's log names the vehicle by its certificate" || bad "no client identity in the log"
+
+calls_before=$(grep -c '"method"' "$tmp/server.log")
+expect "no client certificate: refused, the client says why" 1 "certificate" -- \
+  "$cli" describe --server "localhost:$port" --tls-ca "$pki/ca.crt"
+grep -q '"tls_refused":"peer did not return a certificate"' "$tmp/server.log" &&
+  ok "... and the server logs it" || bad "no-certificate refusal not logged"
+expect "a certificate from another CA: refused" 1 "TLS" -- \
+  "$cli" describe --server "localhost:$port" --tls-ca "$pki/ca.crt" --tls-cert "$other/vehicle-9.crt" \
+  --tls-key "$other/vehicle-9.key"
+grep -q '"tls_refused":"certificate verify failed: unable to get local issuer certificate"' \
+  "$tmp/server.log" && ok "... logged as an unknown issuer" || bad "other-CA refusal not logged"
+expect "an expired certificate: refused" 1 "TLS" -- \
+  "$cli" describe --server "localhost:$port" --tls-ca "$pki/ca.crt" --tls-cert "$pki/vehicle-old.crt" \
+  --tls-key "$pki/vehicle-old.key"
+grep -q '"tls_refused":"certificate verify failed: certificate has expired"' "$tmp/server.log" &&
+  ok "... logged as expired" || bad "expired refusal not logged"
+expect "a server whose certificate does not carry the name asked for: refused by the client" 1 \
+  "hostname mismatch" -- "$cli" describe --server "localhost:$port" "${good[@]}" \
+  --tls-server-name sightfix.invalid
+expect "a server signed by a CA the client does not trust: refused by the client" 1 \
+  "certificate verify failed" -- "$cli" describe --server "localhost:$port" --tls-ca "$other/ca.crt" \
+  --tls-cert "$pki/vehicle-7.crt" --tls-key "$pki/vehicle-7.key"
+expect "plaintext sent to the TLS port: a plaintext answer saying so" 1 "speaks TLS 1.3 only" -- \
+  "$cli" describe --server "localhost:$port"
+grep -q '"tls_refused":"plaintext sent to the TLS port"' "$tmp/server.log" &&
+  ok "... and the server logs it" || bad "plaintext refusal not logged"
+expect "TLS options without --tls-ca are refused by the CLI" 1 "tls_ca_file" -- \
+  "$cli" describe --server "localhost:$port" --tls-cert "$pki/vehicle-7.crt" --tls-key "$pki/vehicle-7.key"
+expect "TLS flags with --map are refused (no server to call)" 2 "applies to --server only" -- \
+  "$cli" locate --map "$data/map" --tls-ca "$pki/ca.crt" --image "$q/images/000003.jpg" \
+  --camera "$q/camera.yml"
+
+# Independent peer: openssl s_client against the server.
+s_client() { echo | timeout 10 openssl s_client -connect "127.0.0.1:$port" -CAfile "$pki/ca.crt" "$@" 2>&1; }
+out="$(s_client -alpn sightfix/1 -cert "$pki/vehicle-7.crt" -key "$pki/vehicle-7.key" \
+  -servername localhost -verify_return_error)"
+grep -q "New, TLSv1.3, Cipher is TLS_" <<<"$out" && grep -q "ALPN protocol: sightfix/1" <<<"$out" &&
+  grep -q "Verify return code: 0 (ok)" <<<"$out" &&
+  ok "openssl s_client: TLS 1.3, ALPN sightfix/1, the server's certificate verified" ||
+  bad "s_client: $(grep -E 'Cipher|ALPN|Verify' <<<"$out" | head -3)"
+s_client -tls1_2 -cert "$pki/vehicle-7.crt" -key "$pki/vehicle-7.key" | grep -q "alert protocol version.*SSL alert number 70" &&
+  ok "TLS 1.2 is refused with a protocol_version alert (70)" || bad "TLS 1.2 not refused with alert 70"
+s_client -alpn h2 -cert "$pki/vehicle-7.crt" -key "$pki/vehicle-7.key" | grep -q "alert no application protocol" &&
+  ok "a foreign ALPN is refused (no_application_protocol)" || bad "foreign ALPN not refused"
+s_client -cert "$pki/vehicle-7.crt" -key "$pki/vehicle-7.key" >/dev/null
+grep -q '"tls_refused":"the peer agreed on no application protocol' "$tmp/server.log" &&
+  ok "a peer offering no ALPN is refused" || bad "no-ALPN peer not refused"
+
+# Garbage that starts like a handshake record, and a handshake that never comes.
+start=$(date +%s)
+{ printf '\026\003\001\000\005hello'; sleep 2; } | timeout 15 bash -c "cat >/dev/tcp/127.0.0.1/$port" 2>/dev/null
+sleep 0.5
+grep -c '"tls_refused"' "$tmp/server.log" >"$tmp/refusals_after_garbage"
+[ "$(cat "$tmp/refusals_after_garbage")" -ge 7 ] && ok "garbage in place of a handshake: refused" ||
+  bad "garbage not refused: $(tail -2 "$tmp/server.log")"
+exec 3<>"/dev/tcp/127.0.0.1/$port"
+start=$(date +%s)
+timeout 20 cat <&3 >/dev/null
+waited=$(($(date +%s) - start))
+exec 3<&-
+[ "$waited" -ge 8 ] && [ "$waited" -le 14 ] &&
+  grep -q '"tls_refused":"handshake not finished within the read timeout"' "$tmp/server.log" &&
+  ok "a stalled handshake is cut off at the read timeout (${waited} s)" ||
+  bad "stalled handshake: closed after ${waited} s; $(tail -1 "$tmp/server.log")"
+calls_after=$(grep -c '"method"' "$tmp/server.log")
+[ "$calls_after" -eq "$calls_before" ] && ok "no refused peer was served a call" ||
+  bad "refused peers served: $((calls_after - calls_before)) calls"
+metrics="$(exec 4<>"/dev/tcp/127.0.0.1/$http_port"; printf 'GET /metrics HTTP/1.0\r\n\r\n' >&4; cat <&4)"
+grep -qE "^sightfix_tls_refused_total [1-9]" <<<"$metrics" &&
+  ok "/metrics counts the refused handshakes" || bad "no tls_refused counter"
+kill -TERM "$server_pid"; wait "$server_pid"; server_pid=""
+
+# The token as a second factor under TLS.
+printf '%s\n' "0123456789abcdef0123" >"$tmp/server.token"
+"$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http "" --workers 1 --token-file "$tmp/server.token" \
+  --tls-cert "$pki/localhost.crt" --tls-key "$pki/localhost.key" --tls-client-ca "$pki/ca.crt" \
+  2>"$tmp/server2.log" &
+server_pid=$!
+port="$(serving_port "$tmp/server2.log" "$server_pid")"
+expect "TLS and a token: a call without the token is refused" 1 "UNAUTHENTICATED" -- \
+  "$cli" describe --server "localhost:$port" "${good[@]}"
+expect "TLS and a token: with both, served" 0 "map version" -- \
+  "$cli" describe --server "localhost:$port" "${good[@]}" --token-file "$tmp/server.token"
+kill -TERM "$server_pid"; wait "$server_pid"; server_pid=""
+
+# Independent peer: the client library against openssl s_server (TLS 1.3, ALPN, client
+# certificate required). The handshake must complete with the vehicle's certificate presented.
+sport=$((20000 + RANDOM % 20000))
+(sleep 4) | openssl s_server -accept "127.0.0.1:$sport" -naccept 1 -tls1_3 -cert "$pki/localhost.crt" \
+  -key "$pki/localhost.key" -CAfile "$pki/ca.crt" -Verify 1 -alpn sightfix/1 >"$tmp/s_server.txt" 2>&1 &
+s_server_pid=$!
+for _ in $(seq 1 50); do grep -aq ACCEPT "$tmp/s_server.txt" && break; sleep 0.1; done
+"$cli" describe --server "localhost:$sport" "${good[@]}" >"$tmp/against_s_server.txt" 2>&1
+wait "$s_server_pid" 2>/dev/null; s_server_pid=""
+grep -aq "subject=CN = vehicle-7" "$tmp/s_server.txt" && grep -aq "CIPHER is TLS_" "$tmp/s_server.txt" &&
+  grep -aq "ALPN protocols selected: sightfix/1" "$tmp/s_server.txt" &&
+  ok "the client library against openssl s_server: TLS 1.3, ALPN, its certificate presented" ||
+  bad "against s_server: $(grep -aE 'subject|CIPHER|ALPN|error' "$tmp/s_server.txt" | head -4)"
+finish
