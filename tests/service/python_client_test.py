@@ -138,5 +138,57 @@ sock.close()
 
 server.send_signal(signal.SIGTERM)
 check("SIGTERM exits 0", server.wait(timeout=30) == 0)
+
+# Over TLS, as the README's "Wire" section says: the standard ssl module, TLS 1.3, ALPN
+# sightfix/1, the server's name checked, this client's certificate presented.
+import ssl  # noqa: E402
+
+pki = f"{tmp}/pki"
+for step in (["ca"], ["server", "localhost", "DNS:localhost", "IP:127.0.0.1"],
+             ["vehicle", "vehicle-py"]):
+    subprocess.run(["bash", f"{source}/scripts/make-certs.sh", pki] + step, check=True,
+                   stdout=subprocess.DEVNULL)
+server = subprocess.Popen([f"{build}/server/sightfix-server", "--map", f"{data}/map",
+                           "--listen", "127.0.0.1:0", "--http", "", "--workers", "1",
+                           "--tls-cert", f"{pki}/localhost.crt", "--tls-key", f"{pki}/localhost.key",
+                           "--tls-client-ca", f"{pki}/ca.crt"],
+                          stderr=subprocess.PIPE, text=True)
+port = None
+for line in server.stderr:
+    if '"serving"' in line:
+        port = json.loads(line)["port"]
+        break
+check("TLS server started", port is not None)
+log = []
+threading.Thread(target=lambda: [log.append(line) for line in server.stderr], daemon=True).start()
+context = ssl.SSLContext(ssl.PROTOCOL_TLS_CLIENT)  # verifies the certificate and the host name
+context.minimum_version = ssl.TLSVersion.TLSv1_3
+context.load_verify_locations(f"{pki}/ca.crt")
+context.load_cert_chain(f"{pki}/vehicle-py.crt", f"{pki}/vehicle-py.key")
+context.set_alpn_protocols(["sightfix/1"])
+with socket.create_connection(("127.0.0.1", port)) as raw:
+    with context.wrap_socket(raw, server_hostname="localhost") as tls:
+        check("TLS 1.3 with ALPN sightfix/1", tls.version() == "TLSv1.3"
+              and tls.selected_alpn_protocol() == "sightfix/1",
+              f"{tls.version()} {tls.selected_alpn_protocol()}")
+        tls.sendall(frame(pb.Envelope(call_id=41, method="Describe")))
+        answer = read_answer(tls)
+        check("Describe answered over TLS", answer.call_id == 41
+              and answer.status.code == pb.Status.OK, str(answer.status))
+anonymous = ssl.SSLContext(ssl.PROTOCOL_TLS_CLIENT)
+anonymous.load_verify_locations(f"{pki}/ca.crt")
+anonymous.set_alpn_protocols(["sightfix/1"])
+try:
+    with socket.create_connection(("127.0.0.1", port)) as raw:
+        with anonymous.wrap_socket(raw, server_hostname="localhost") as tls:
+            tls.sendall(frame(pb.Envelope(call_id=42, method="Describe")))
+            read_answer(tls)
+    check("no client certificate: refused", False, "answered")
+except (ssl.SSLError, ConnectionError, OSError) as e:
+    check("no client certificate: refused", "certificate required" in str(e) or
+          isinstance(e, ConnectionError), str(e))
+server.send_signal(signal.SIGTERM)
+check("TLS server: SIGTERM exits 0", server.wait(timeout=30) == 0)
+check("the log names the vehicle", any('"client":"vehicle-py"' in line for line in log))
 print(f"{passes} passed, {failures} failed")
 sys.exit(1 if failures else 0)
