@@ -1,11 +1,15 @@
 #include "proto/tls_profile.h"
 
 #include <openssl/err.h>
+#include <openssl/pem.h>
 #include <openssl/ssl.h>
 #include <openssl/x509v3.h>
 
+#include <algorithm>
 #include <boost/asio/ip/address.hpp>
+#include <cstdio>
 #include <cstring>
+#include <ctime>
 
 namespace sightfix {
 namespace {
@@ -104,6 +108,88 @@ Result<std::shared_ptr<ssl::context>> MakeServerTlsContext(const TlsFiles& f) {
   SSL_CTX_set_session_id_context(h, kContext, sizeof kContext - 1);
   SSL_CTX_set_alpn_select_cb(h, SelectAlpn, nullptr);
   return ctx;
+}
+
+namespace {
+
+// Every certificate (or CRL) of a PEM file, through `read` (PEM_read_X509 or PEM_read_X509_CRL).
+template <typename T, typename Read, typename Free>
+std::vector<std::shared_ptr<T>> ReadAllPem(const std::string& path, Read read, Free free_fn) {
+  std::vector<std::shared_ptr<T>> out;
+  FILE* f = std::fopen(path.c_str(), "r");
+  if (f == nullptr) return out;
+  while (T* item = read(f, nullptr, nullptr, nullptr)) out.emplace_back(item, free_fn);
+  std::fclose(f);
+  ERR_clear_error();  // the end of the file reads as an error
+  return out;
+}
+
+std::string NameOf(X509_NAME* name) {
+  char buf[256] = {0};
+  X509_NAME_oneline(name, buf, sizeof buf);
+  return buf;
+}
+
+}  // namespace
+
+bool CrlSet::Revokes(X509* cert) const {
+  for (const auto& crl : crls) {
+    X509_REVOKED* entry = nullptr;
+    if (X509_CRL_get0_by_cert(crl.get(), &entry, cert) == 1) return true;
+  }
+  return false;
+}
+
+Result<std::shared_ptr<const CrlSet>> AddCrl(ssl::context* ctx, const std::string& crl_file,
+                                             const std::string& ca_file, int64_t grace_s) {
+  auto set = std::make_shared<CrlSet>();
+  set->crls = ReadAllPem<X509_CRL>(crl_file, PEM_read_X509_CRL, X509_CRL_free);
+  if (set->crls.empty())
+    return Status::InvalidArgument("TLS CRL " + crl_file + ": no CRL could be read from it");
+  const auto cas = ReadAllPem<X509>(ca_file, PEM_read_X509, X509_free);
+  for (const auto& ca : cas) {
+    bool covered = false;
+    for (const auto& crl : set->crls)
+      covered = covered ||
+                X509_NAME_cmp(X509_CRL_get_issuer(crl.get()), X509_get_subject_name(ca.get())) == 0;
+    if (!covered)
+      return Status::InvalidArgument("TLS CRL " + crl_file + " has no CRL of client CA " +
+                                     NameOf(X509_get_subject_name(ca.get())) +
+                                     ": every client CA needs its CRL");
+  }
+  X509_STORE* store = SSL_CTX_get_cert_store(ctx->native_handle());
+  set->next_update_unix = INT64_MAX;
+  for (const auto& crl : set->crls) {
+    bool signed_by_ca = false;
+    for (const auto& ca : cas) {
+      if (X509_NAME_cmp(X509_CRL_get_issuer(crl.get()), X509_get_subject_name(ca.get())) != 0)
+        continue;
+      EVP_PKEY* key = X509_get0_pubkey(ca.get());
+      signed_by_ca = signed_by_ca || (key && X509_CRL_verify(crl.get(), key) == 1);
+    }
+    ERR_clear_error();
+    if (!signed_by_ca)
+      return Status::InvalidArgument("TLS CRL " + crl_file + ": the CRL of " +
+                                     NameOf(X509_CRL_get_issuer(crl.get())) +
+                                     " is not signed by a client CA");
+    const ASN1_TIME* next = X509_CRL_get0_nextUpdate(crl.get());
+    struct tm t {};
+    if (next == nullptr || ASN1_TIME_to_tm(next, &t) != 1)
+      return Status::InvalidArgument("TLS CRL " + crl_file + ": a CRL without nextUpdate");
+    set->next_update_unix = std::min<int64_t>(set->next_update_unix, timegm(&t));
+    if (X509_STORE_add_crl(store, crl.get()) != 1) {
+      ERR_clear_error();
+      return Status::Internal("TLS: cannot add the CRL to the certificate store");
+    }
+  }
+  X509_STORE_set_flags(store, X509_V_FLAG_CRL_CHECK);
+  const int64_t accept_expired_until = set->next_update_unix + grace_s;
+  ctx->set_verify_callback([accept_expired_until](bool preverified, ssl::verify_context& vc) {
+    if (preverified) return true;
+    return X509_STORE_CTX_get_error(vc.native_handle()) == X509_V_ERR_CRL_HAS_EXPIRED &&
+           static_cast<int64_t>(std::time(nullptr)) < accept_expired_until;
+  });
+  return std::shared_ptr<const CrlSet>(set);
 }
 
 Result<std::shared_ptr<ssl::context>> MakeClientTlsContext(const TlsFiles& f) {

@@ -16,8 +16,10 @@
 #pragma once
 
 #include <boost/asio/ssl.hpp>
+#include <cstdint>
 #include <memory>
 #include <string>
+#include <vector>
 
 #include "indexer/base/status.h"
 
@@ -34,6 +36,22 @@ struct TlsFiles {
 // Server: cert, key and the client CA are required. kInvalidArgument naming the file and
 // OpenSSL's reason when one cannot be read or the key does not match the certificate.
 Result<std::shared_ptr<boost::asio::ssl::context>> MakeServerTlsContext(const TlsFiles& files);
+
+// Revocation on a server context: every CRL in `crl_file` (PEM) is checked against the client
+// CA bundle `ca_file` (each CRL must be signed by one of its CAs, and each CA must have a CRL),
+// added to the context's store, and checked for every client certificate
+// (X509_V_FLAG_CRL_CHECK). The policy for a CRL past its nextUpdate: it is still enforced (a
+// revoked certificate stays refused) and other clients are accepted for `grace_s` seconds
+// after the earliest nextUpdate; past that every client is refused ("CRL has expired"): a
+// fleet's CRL must be renewed within the grace, or revocation would be silently void.
+struct CrlSet {
+  std::vector<std::shared_ptr<X509_CRL>> crls;
+  int64_t next_update_unix = 0;  // the earliest nextUpdate
+  bool Revokes(X509* cert) const;
+};
+Result<std::shared_ptr<const CrlSet>> AddCrl(boost::asio::ssl::context* ctx,
+                                             const std::string& crl_file,
+                                             const std::string& ca_file, int64_t grace_s);
 
 // Client: the CA bundle is required; cert and key together or neither.
 Result<std::shared_ptr<boost::asio::ssl::context>> MakeClientTlsContext(const TlsFiles& files);

@@ -11,9 +11,10 @@
 #                                             server's logs (default 365 days)
 #   make-certs.sh DIR revoke NAME             revokes DIR/NAME.crt and writes DIR/crl.pem
 #   make-certs.sh DIR crl                     (re)writes DIR/crl.pem, valid 30 days
-# Extra `openssl ca` arguments can be given in CA_ARGS (the tests use -startdate/-enddate to
-# make an expired certificate). Keys are written 0600. Keep ca.key offline in real use: whoever
-# holds it can make vehicles.
+# Extra `openssl ca` arguments can be given in CA_ARGS when issuing (the tests use
+# -startdate/-enddate to make an expired certificate) and in CRL_ARGS when writing a CRL (e.g.
+# -crlhours 12; the tests use -crlsec 1 to make one that expires at once). Keys are written 0600.
+# Keep ca.key offline in real use: whoever holds it can make vehicles.
 set -euo pipefail
 [ $# -ge 2 ] || { sed -n '2,17p' "$0" | sed 's/^# \{0,1\}//'; exit 2; }
 dir="$1" what="$2"
@@ -99,10 +100,12 @@ case "$what" in
   revoke)
     name="${1:?revoke NAME}"
     openssl ca -config "$cnf" -revoke "$dir/$name.crt" 2>/dev/null
-    openssl ca -config "$cnf" -gencrl -out "$dir/crl.pem" 2>/dev/null
+    # shellcheck disable=SC2086
+    openssl ca -config "$cnf" -gencrl -out "$dir/crl.pem" ${CRL_ARGS:-} 2>/dev/null
     ;;
   crl)
-    openssl ca -config "$cnf" -gencrl -out "$dir/crl.pem" 2>/dev/null
+    # shellcheck disable=SC2086
+    openssl ca -config "$cnf" -gencrl -out "$dir/crl.pem" ${CRL_ARGS:-} 2>/dev/null
     ;;
   *)
     echo "make-certs.sh: unknown step '$what' (ca, server, vehicle, revoke or crl)" >&2

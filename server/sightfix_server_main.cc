@@ -11,8 +11,8 @@ namespace po = boost::program_options;
 
 namespace {
 
-// The command line's options, bound to *o and *cache_mb (the tile cache in MiB).
-po::options_description Flags(sightfix::ServiceOptions* o, size_t* cache_mb) {
+// The command line's options, bound to *o, *cache_mb (the tile cache in MiB) and *crl_grace_h.
+po::options_description Flags(sightfix::ServiceOptions* o, size_t* cache_mb, double* crl_grace_h) {
   po::options_description desc(
       "sightfix-server: visual localization over TCP (framed protobuf, package sightfix.v1),\n"
       "with /healthz and /metrics on an HTTP side port. SIGTERM drains and exits 0; SIGHUP\n"
@@ -40,6 +40,11 @@ po::options_description Flags(sightfix::ServiceOptions* o, size_t* cache_mb) {
       "tls-key", po::value(&o->tls_key_file), "PEM private key of --tls-cert")(
       "tls-client-ca", po::value(&o->tls_client_ca_file),
       "PEM CA (bundle) that signs vehicle certificates: every client must present one")(
+      "tls-crl", po::value(&o->tls_crl_file),
+      "PEM CRLs of the client CAs (one each): revoked vehicles are refused; SIGHUP rereads it")(
+      "tls-crl-grace-h", po::value(crl_grace_h)->default_value(*crl_grace_h),
+      "hours past a CRL's nextUpdate during which it is still enforced and other vehicles "
+      "accepted; after that every vehicle is refused")(
       "plaintext-beyond-loopback",
       "serve beyond loopback without TLS: anyone on the path reads and can forge fixes (not "
       "advised)")("no-scrub",
@@ -56,7 +61,8 @@ int main(int argc, char** argv) {
   sightfix::PinLibraryThreads();
   sightfix::ServiceOptions o;
   size_t cache_mb = o.engine.tile_cache_bytes >> 20;
-  po::options_description desc = Flags(&o, &cache_mb);
+  double crl_grace_h = o.tls_crl_grace_s / 3600.0;
+  po::options_description desc = Flags(&o, &cache_mb, &crl_grace_h);
   po::variables_map vm;
   try {
     po::store(po::parse_command_line(argc, argv, desc), vm);
@@ -73,6 +79,11 @@ int main(int argc, char** argv) {
   o.allow_plaintext = vm.count("plaintext-beyond-loopback") > 0;
   o.scrub = vm.count("no-scrub") == 0;
   o.engine.tile_cache_bytes = cache_mb << 20;
+  if (!(crl_grace_h >= 0 && crl_grace_h < 1e6)) {
+    std::fprintf(stderr, "sightfix-server: --tls-crl-grace-h must be within [0, 1e6) hours\n");
+    return 2;
+  }
+  o.tls_crl_grace_s = static_cast<int64_t>(crl_grace_h * 3600);
   if (o.map_dir.empty()) {
     std::fprintf(stderr, "sightfix-server: --map MAPDIR is required (see --help)\n");
     return 2;

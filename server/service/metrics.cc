@@ -47,6 +47,10 @@ std::string Metrics::Text(const Gauges& g) const {
   t += "# HELP sightfix_tls_refused_total Connections refused in the TLS handshake.\n"
        "# TYPE sightfix_tls_refused_total counter\nsightfix_tls_refused_total " +
        std::to_string(g.tls_refused) + "\n";
+  if (g.crl_next_update > 0)
+    gauge("sightfix_tls_crl_next_update_seconds",
+          "Earliest nextUpdate of the client CRLs, Unix seconds (renew before it).",
+          static_cast<long>(g.crl_next_update));
   return t;
 }
 

@@ -26,7 +26,8 @@ class Metrics {
     int tiles_cached = 0;
     int tiles_bad = 0;
     int map_version = 0;
-    long tls_refused = 0;  // connections refused in the TLS handshake, since start
+    long tls_refused = 0;         // connections refused in the TLS handshake, since start
+    int64_t crl_next_update = 0;  // Unix seconds (0: no CRL)
   };
 
   // One answered call; `seconds` from receipt to answer (only Locate's feed the histogram).

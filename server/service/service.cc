@@ -2,6 +2,7 @@
 // service are in session.cc, dispatch.cc and http_port.cc (service_impl.h).
 #include "server/service/service.h"
 
+#include <algorithm>
 #include <boost/asio.hpp>
 #include <cstdio>
 #include <functional>
@@ -36,6 +37,27 @@ Status Bind(tcp::acceptor& acceptor, const std::string& address) {
   return Status::Ok();
 }
 
+struct TlsState {
+  std::shared_ptr<asio::ssl::context> context;
+  std::shared_ptr<const CrlSet> crls;
+};
+
+// The query port's TLS context from the options' files (at start, and again on SIGHUP).
+Result<TlsState> LoadTls(const ServiceOptions& o) {
+  TlsState t;
+  Result<std::shared_ptr<asio::ssl::context>> ctx =
+      MakeServerTlsContext({o.tls_cert_file, o.tls_key_file, o.tls_client_ca_file});
+  if (!ctx.ok()) return ctx.status();
+  t.context = *ctx;
+  if (!o.tls_crl_file.empty()) {
+    Result<std::shared_ptr<const CrlSet>> crls =
+        AddCrl(t.context.get(), o.tls_crl_file, o.tls_client_ca_file, o.tls_crl_grace_s);
+    if (!crls.ok()) return crls.status();
+    t.crls = *crls;
+  }
+  return t;
+}
+
 bool IsLoopback(const std::string& address) {
   std::string host;
   int port;
@@ -64,6 +86,8 @@ bool ServiceOptions::Validate(std::string* error) const {
       !tls_cert_file.empty() + !tls_key_file.empty() + !tls_client_ca_file.empty();
   if (tls_files != 0 && tls_files != 3)
     return fail("TLS needs all three: the server's certificate, its key and the client CA");
+  if (!tls_crl_file.empty() && tls_files == 0) return fail("a CRL file needs TLS");
+  if (tls_crl_grace_s < 0) return fail("the CRL grace must be >= 0 seconds");
   std::string e;
   if (!engine.Validate(&e)) return fail("engine: " + e);
   return true;
@@ -114,10 +138,14 @@ Result<std::unique_ptr<Service>> Service::Create(const ServiceOptions& o) {
                   "refusing to listen beyond loopback in plaintext without --token-file (or "
                   "--allow-open)");
   if (tls) {
-    Result<std::shared_ptr<asio::ssl::context>> ctx =
-        MakeServerTlsContext({o.tls_cert_file, o.tls_key_file, o.tls_client_ca_file});
-    if (!ctx.ok()) return ctx.status();
-    impl->tls = *ctx;
+    Result<TlsState> t = LoadTls(o);
+    if (!t.ok()) return t.status();
+    impl->tls = t->context, impl->crls = t->crls;
+    impl->crl_next_update = t->crls ? t->crls->next_update_unix : 0;
+    if (!t->crls)
+      std::fprintf(stderr,
+                   "{\"event\":\"warning\",\"reason\":\"TLS without a CRL (--tls-crl): a revoked "
+                   "vehicle certificate is accepted until it expires\"}\n");
   }
   auto loc = Localizer::Open(o.map_dir, o.engine);
   if (!loc.ok()) return loc.status();
@@ -140,7 +168,15 @@ void Service::Impl::Accept() {
       socket.close(ignored);  // over the cap: refused at once
     } else {
       ++connections;
-      std::make_shared<Session>(std::move(socket), this)->Start();
+      auto session = std::make_shared<Session>(std::move(socket), this);
+      if (tls) {  // kept to be checked against a reloaded CRL; dead ones pruned as it grows
+        if (sessions.size() >= 2 * static_cast<size_t>(o.max_connections))
+          sessions.erase(std::remove_if(sessions.begin(), sessions.end(),
+                                        [](const auto& w) { return w.expired(); }),
+                         sessions.end());
+        sessions.push_back(session);
+      }
+      session->Start();
     }
     Accept();
   });
@@ -225,7 +261,33 @@ void Service::Shutdown() {
   asio::post(impl_->io, [m = impl_.get()] { m->BeginDrain(); });
 }
 
+Status Service::Impl::ReloadTls() {
+  Result<TlsState> t = LoadTls(o);
+  if (!t.ok()) {
+    std::fprintf(stderr, "{\"event\":\"tls_reload_failed\",\"reason\":%s}\n",
+                 nlohmann::json(t.status().ToString()).dump().c_str());
+    return t.status();
+  }
+  asio::post(io, [this, t = *t] {
+    tls = t.context, crls = t.crls;
+    crl_next_update = crls ? crls->next_update_unix : 0;
+    int closed = 0;
+    for (const std::weak_ptr<Session>& w : sessions)
+      if (std::shared_ptr<Session> s = w.lock(); s && crls && s->RevokedBy(*crls)) {
+        std::fprintf(stderr,
+                     "{\"event\":\"tls_revoked_peer_closed\",\"peer\":\"%s\",\"client\":%s}\n",
+                     s->peer().c_str(), nlohmann::json(s->identity()).dump().c_str());
+        s->Close();
+        ++closed;
+      }
+    std::fprintf(stderr, "{\"event\":\"tls_reloaded\",\"crl_next_update\":%lld,\"closed\":%d}\n",
+                 static_cast<long long>(crl_next_update.load()), closed);
+  });
+  return Status::Ok();
+}
+
 Status Service::Reload() {
+  if (impl_->tls) impl_->ReloadTls();  // logged either way; the map reloads regardless
   auto loc = Localizer::Open(impl_->o.map_dir, impl_->o.engine);
   if (!loc.ok()) {
     std::fprintf(stderr, "{\"event\":\"reload_failed\",\"reason\":%s}\n",

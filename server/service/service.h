@@ -26,7 +26,10 @@
 // connection refused in the TLS handshake (peer, reason).
 // Lifecycle: Create binds; Run serves until Shutdown (or SIGTERM/SIGINT when handle_signals),
 // then drains: no new calls, every queued and running call answered, then returns. SIGHUP (or
-// Reload) reopens the map; calls in flight finish on the old one.
+// Reload) reopens the map, and under TLS reads the certificate, key, client CA and CRL files
+// again: new connections use them, a live connection whose client the new CRL revokes is
+// closed, the rest carry on (each session holds the context it was accepted with). A map or
+// TLS reload that fails leaves the old one serving, logged.
 #pragma once
 
 #include <memory>
@@ -56,6 +59,11 @@ struct ServiceOptions {
   bool allow_open = false;  // listen beyond loopback in plaintext without a token
   // TLS on the query port: all three or none (PEM files).
   std::string tls_cert_file, tls_key_file, tls_client_ca_file;
+  // Revocation (tls_profile.h AddCrl): the client CAs' CRLs (PEM), and how long past its
+  // nextUpdate a CRL is still enforced while other clients are accepted (then all refused).
+  // Without a CRL file a revoked vehicle certificate is accepted until it expires.
+  std::string tls_crl_file;
+  int64_t tls_crl_grace_s = 7 * 24 * 3600;
   bool allow_plaintext = false;  // listen beyond loopback without TLS (not advised)
   // Check every tile file against the catalog's SHA-256 in the background after start (and
   // after a reload), so /healthz names bad tiles early. Off: tiles are still checked before

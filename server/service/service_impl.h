@@ -22,6 +22,7 @@
 #include <vector>
 
 #include "proto/sightfix.pb.h"
+#include "proto/tls_profile.h"
 #include "server/service/metrics.h"
 #include "server/service/service.h"
 
@@ -67,8 +68,13 @@ struct Service::Impl {
 
   std::atomic<int> connections{0};
   std::atomic<uint64_t> tls_refused{0};
-  // TLS on the query port (null: plaintext). Sessions hold their own reference.
+  // TLS on the query port (null: plaintext) and its CRLs (null: none); swapped on the I/O
+  // thread by a reload. Sessions hold their own reference to the context they began with.
   std::shared_ptr<boost::asio::ssl::context> tls;
+  std::shared_ptr<const CrlSet> crls;
+  std::atomic<int64_t> crl_next_update{0};       // Unix seconds, 0 without a CRL (for /metrics)
+  std::vector<std::weak_ptr<Session>> sessions;  // the I/O thread's: live ones are checked
+                                                 // against a reloaded CRL
   std::atomic<bool> draining{false};
 
   // The scrub: one background thread checks every tile file of the map being served against
@@ -84,6 +90,9 @@ struct Service::Impl {
 
   // service.cc
   void Accept();
+  // Under TLS: reads the TLS files again and swaps the context on the I/O thread, closing the
+  // live sessions whose client the new CRL revokes. A failure is logged; the old one serves.
+  Status ReloadTls();
   void StartScrub(std::shared_ptr<const Localizer> loc);
   void StopScrub();
   void BeginDrain();

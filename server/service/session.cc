@@ -38,6 +38,12 @@ void Session::Start() {
                       });
 }
 
+bool Session::RevokedBy(const CrlSet& crls) {
+  if (!tls_ || closed_) return false;
+  X509* cert = SSL_get0_peer_certificate(tls_->native_handle());
+  return cert != nullptr && crls.Revokes(cert);
+}
+
 void Session::RefusePlaintext() {
   timer_.cancel();
   const std::string why =

@@ -21,6 +21,7 @@
 #include <vector>
 
 #include "proto/frame_codec.h"
+#include "proto/tls_profile.h"
 #include "server/service/service_impl.h"
 
 namespace sightfix::service_internal {
@@ -34,6 +35,7 @@ class Session : public std::enable_shared_from_this<Session> {
   void Start();
   const std::string& peer() const { return peer_; }          // "address:port", or "?"
   const std::string& identity() const { return identity_; }  // TLS: the certificate's CN
+  bool RevokedBy(const CrlSet& crls);  // TLS: the client's certificate is on a CRL
   // Queues a frame; closes the connection when the client is not reading.
   void Send(std::string frame, bool close_after = false);
   void Close();

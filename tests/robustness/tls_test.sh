@@ -8,7 +8,11 @@
 # handshake, a stalled handshake (cut off at the read timeout). Independent peers: `openssl
 # s_client` against the server (protocol, cipher, ALPN and verification printed) and the client
 # library against `openssl s_server`. Beyond loopback the server refuses plaintext unless told
-# --plaintext-beyond-loopback. The token stays a second factor under TLS.
+# --plaintext-beyond-loopback. The token stays a second factor under TLS. Revocation: a revoked
+# vehicle is refused; a CRL past its nextUpdate is enforced for the grace and then refuses all;
+# a CA without a CRL or an unreadable one stops the server at start; SIGHUP rereads the CRL,
+# closes the live connection of a newly revoked vehicle and keeps the last good CRL when the
+# new one is bad; /metrics exposes the CRL's nextUpdate.
 # Usage: tls_test.sh SOURCE_DIR BUILD_DIR SERVICE_DATA_DIR
 set -u
 src="$1" build="$2" data="$3"
@@ -154,6 +158,77 @@ expect "TLS and a token: a call without the token is refused" 1 "UNAUTHENTICATED
   "$cli" describe --server "localhost:$port" "${good[@]}"
 expect "TLS and a token: with both, served" 0 "map version" -- \
   "$cli" describe --server "localhost:$port" "${good[@]}" --token-file "$tmp/server.token"
+kill -TERM "$server_pid"; wait "$server_pid"; server_pid=""
+
+# Revocation: a CRL listing vehicle-8 (made above). Policy checks first.
+expect "a CRL needs TLS" 2 "needs TLS" -- \
+  "$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http "" --tls-crl "$pki/crl.pem"
+cat "$pki/ca.crt" "$other/ca.crt" >"$tmp/both-cas.crt"
+expect "a client CA without its CRL: refused at start" 2 "every client CA needs its CRL" -- \
+  "$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http "" --tls-cert "$pki/localhost.crt" \
+  --tls-key "$pki/localhost.key" --tls-client-ca "$tmp/both-cas.crt" --tls-crl "$pki/crl.pem"
+echo "not a CRL" >"$tmp/junk.crl"
+expect "an unreadable CRL: refused at start" 2 "no CRL could be read" -- \
+  "$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http "" --tls-cert "$pki/localhost.crt" \
+  --tls-key "$pki/localhost.key" --tls-client-ca "$pki/ca.crt" --tls-crl "$tmp/junk.crl"
+cp "$pki/crl.pem" "$tmp/served.crl"
+tls_server() {  # LOG [extra flags]: starts the TLS server with the CRL, sets server_pid, port
+  local log="$1"
+  shift
+  "$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http 127.0.0.1:0 --workers 1 \
+    --tls-cert "$pki/localhost.crt" --tls-key "$pki/localhost.key" --tls-client-ca "$pki/ca.crt" \
+    --tls-crl "$tmp/served.crl" "$@" 2>"$log" &
+  server_pid=$!
+  read -r port http_port <<<"$(serving_port "$log" "$server_pid")"
+}
+tls_server "$tmp/crl.log"
+expect "with a CRL: a good vehicle is served" 0 "map version" -- \
+  "$cli" describe --server "localhost:$port" "${good[@]}"
+expect "a revoked vehicle is refused" 1 "TLS" -- "$cli" describe --server "localhost:$port" \
+  --tls-ca "$pki/ca.crt" --tls-cert "$pki/vehicle-8.crt" --tls-key "$pki/vehicle-8.key"
+grep -q '"tls_refused":"certificate verify failed: certificate revoked"' "$tmp/crl.log" &&
+  ok "... logged as revoked" || bad "revoked refusal not logged: $(tail -2 "$tmp/crl.log")"
+next_update="$(date -d "$(openssl crl -in "$tmp/served.crl" -noout -nextupdate | cut -d= -f2)" +%s)"
+metrics="$(exec 4<>"/dev/tcp/127.0.0.1/$http_port"; printf 'GET /metrics HTTP/1.0\r\n\r\n' >&4; cat <&4)"
+grep -q "^sightfix_tls_crl_next_update_seconds $next_update$" <<<"$metrics" &&
+  ok "/metrics exposes the CRL's nextUpdate ($next_update)" ||
+  bad "no CRL metric: $(grep crl <<<"$metrics")"
+# A live connection of vehicle-7, then vehicle-7 revoked and SIGHUP: closed, and refused anew.
+(sleep 20) | openssl s_client -connect "127.0.0.1:$port" -CAfile "$pki/ca.crt" -alpn sightfix/1 \
+  -cert "$pki/vehicle-7.crt" -key "$pki/vehicle-7.key" >"$tmp/live.txt" 2>&1 &
+live_pid=$!
+sleep 1
+bash "$certs" "$pki" revoke vehicle-7 && cp "$pki/crl.pem" "$tmp/served.crl"
+kill -HUP "$server_pid"
+for _ in $(seq 1 50); do grep -q '"tls_reloaded"' "$tmp/crl.log" && break; sleep 0.1; done
+grep -q '"event":"tls_revoked_peer_closed".*"client":"vehicle-7"' "$tmp/crl.log" &&
+  grep -q '"tls_reloaded".*"closed":1' "$tmp/crl.log" &&
+  ok "SIGHUP with a new CRL closes the live connection of the vehicle it revokes" ||
+  bad "revoked live connection: $(grep -E 'tls_' "$tmp/crl.log" | tail -3)"
+kill "$live_pid" 2>/dev/null; wait "$live_pid" 2>/dev/null
+expect "... and refuses it anew" 1 "TLS" -- "$cli" describe --server "localhost:$port" "${good[@]}"
+bash "$certs" "$pki" vehicle vehicle-10 >/dev/null
+good10=(--tls-ca "$pki/ca.crt" --tls-cert "$pki/vehicle-10.crt" --tls-key "$pki/vehicle-10.key")
+cp "$tmp/junk.crl" "$tmp/served.crl"
+kill -HUP "$server_pid"
+for _ in $(seq 1 50); do grep -q '"tls_reload_failed"' "$tmp/crl.log" && break; sleep 0.1; done
+grep -q '"tls_reload_failed"' "$tmp/crl.log" && ok "SIGHUP with a bad CRL: logged" || bad "bad CRL reload not logged"
+expect "... and the last good CRL keeps serving" 0 "map version" -- \
+  "$cli" describe --server "localhost:$port" "${good10[@]}"
+kill -TERM "$server_pid"; wait "$server_pid"; server_pid=""
+# A CRL past its nextUpdate: enforced and accepted within the grace, every vehicle refused after.
+CRL_ARGS="-crlsec 1" bash "$certs" "$pki" crl && cp "$pki/crl.pem" "$tmp/served.crl"
+sleep 2
+tls_server "$tmp/stale.log"
+expect "a CRL past its nextUpdate, within the grace (168 h): a good vehicle is served" 0 \
+  "map version" -- "$cli" describe --server "localhost:$port" "${good10[@]}"
+expect "... a revoked one still refused" 1 "TLS" -- "$cli" describe --server "localhost:$port" "${good[@]}"
+kill -TERM "$server_pid"; wait "$server_pid"; server_pid=""
+tls_server "$tmp/stale0.log" --tls-crl-grace-h 0
+expect "past the grace: every vehicle is refused" 1 "TLS" -- \
+  "$cli" describe --server "localhost:$port" "${good10[@]}"
+grep -q '"tls_refused":"certificate verify failed: CRL has expired"' "$tmp/stale0.log" &&
+  ok "... logged as CRL has expired" || bad "stale CRL refusal: $(tail -1 "$tmp/stale0.log")"
 kill -TERM "$server_pid"; wait "$server_pid"; server_pid=""
 
 # Independent peer: the client library against openssl s_server (TLS 1.3, ALPN, client
