@@ -5,6 +5,7 @@
 
 #include <gtest/gtest.h>
 
+#include <atomic>
 #include <boost/asio.hpp>
 #include <chrono>
 #include <cmath>
@@ -533,6 +534,56 @@ TEST_F(ServiceTest, ThirtyTwoClientsForThirtySeconds) {
   EXPECT_EQ(other, 0);
   EXPECT_EQ(late, 0);
   EXPECT_GT(ok_ms.size(), 0u);
+}
+
+// TLS from many threads at once while the server rereads its TLS files (and its map): every
+// call of a good vehicle is answered, a revoked one is refused and not retried. Run under
+// ThreadSanitizer by scripts/test-sanitizers.sh tsan: the client's one I/O thread per
+// connection, the server's session swap of contexts and its check of live sessions against a
+// reloaded CRL. Certificates from scripts/make-certs.sh.
+TEST_F(ServiceTest, TlsCallsFromManyThreadsWhileTheTlsFilesReload) {
+  const std::string pki = ::testing::TempDir() + "/service_tls_" + std::to_string(::getpid());
+  const std::string certs = std::string("bash ") + SIGHTFIX_SOURCE_DIR + "/scripts/make-certs.sh ";
+  for (const std::string step : {"ca", "server localhost DNS:localhost IP:127.0.0.1",
+                                 "vehicle vehicle-1", "vehicle vehicle-2", "revoke vehicle-2"})
+    ASSERT_EQ(std::system((certs + pki + " " + step + " >/dev/null").c_str()), 0) << step;
+  ServiceOptions o;
+  o.tls_cert_file = pki + "/localhost.crt", o.tls_key_file = pki + "/localhost.key";
+  o.tls_client_ca_file = pki + "/ca.crt", o.tls_crl_file = pki + "/crl.pem";
+  o.workers = 2;
+  ASSERT_TRUE(Start(o));
+  auto connect = [&](const std::string& vehicle) {
+    ClientOptions co;
+    co.port = service_->port();
+    co.tls_ca_file = pki + "/ca.crt", co.tls_server_name = "localhost";
+    co.tls_cert_file = pki + "/" + vehicle + ".crt", co.tls_key_file = pki + "/" + vehicle + ".key";
+    return Client::Connect(co);
+  };
+  auto good = connect("vehicle-1");
+  ASSERT_TRUE(good.ok()) << good.status().ToString();
+  std::atomic<int> answered{0}, failed{0};
+  std::vector<std::thread> callers;
+  for (int t = 0; t < 4; ++t)
+    callers.emplace_back([&] {
+      for (int k = 0; k < 8; ++k) {
+        auto d = (*good)->Describe(20000);
+        (d.ok() && d->images() > 0 ? answered : failed)++;
+      }
+    });
+  std::thread reloader([&] {
+    for (int k = 0; k < 2; ++k) EXPECT_TRUE(service_->Reload().ok());
+  });
+  for (std::thread& t : callers) t.join();
+  reloader.join();
+  EXPECT_EQ(answered, 32);
+  EXPECT_EQ(failed, 0);
+  auto revoked = connect("vehicle-2");
+  ASSERT_TRUE(revoked.ok());  // TLS 1.3: the client's handshake ends before the server's check
+  auto refused = (*revoked)->Describe(5000);
+  ASSERT_FALSE(refused.ok());
+  EXPECT_EQ(refused.status().code(), StatusCode::kFailedPrecondition)
+      << refused.status().ToString();
+  EXPECT_EQ((*revoked)->resent_calls(), 0u);
 }
 
 }  // namespace
