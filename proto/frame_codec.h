@@ -15,6 +15,8 @@ namespace sightfix {
 constexpr size_t kFrameHeaderBytes = 4;
 // Default cap on N: an 8 MiB frame holds a 640x480 JPEG many times over.
 constexpr uint32_t kDefaultMaxFrameBytes = 8u << 20;
+// The longest Envelope.nonce a server echoes (longer: INVALID_ARGUMENT).
+constexpr size_t kMaxNonceBytes = 32;
 
 // Header plus payload, ready to write.
 std::string EncodeFrame(const v1::Envelope& envelope);

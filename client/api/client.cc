@@ -4,9 +4,11 @@
 #include <boost/asio.hpp>
 #include <boost/asio/ssl.hpp>
 #include <chrono>
+#include <cstring>
 #include <deque>
 #include <map>
 #include <mutex>
+#include <random>
 #include <thread>
 
 #include "indexer/base/endpoint.h"
@@ -29,7 +31,11 @@ struct Connection {
   std::unique_ptr<TlsStream> tls;
   std::thread loop;
   std::mutex mu;  // guards pending and dead
-  std::map<uint64_t, std::promise<Result<Answer>>> pending;
+  struct Pending {
+    std::promise<Result<Answer>> answer;
+    std::string nonce;  // the answer must echo it
+  };
+  std::map<uint64_t, Pending> pending;
   bool dead = false;
   // The I/O thread's own (no lock).
   uint8_t header[kFrameHeaderBytes];
@@ -63,7 +69,7 @@ struct Connection {
   void Fail(const Status& why) {
     std::lock_guard<std::mutex> lock(mu);
     dead = true;
-    for (auto& [id, p] : pending) p.set_value(why);
+    for (auto& [id, p] : pending) p.answer.set_value(why);
     pending.clear();
   }
 
@@ -145,12 +151,18 @@ struct Connection {
       if (env.call_id() == 0 && env.status().code() != v1::Status::OK) {
         // A protocol error the server could not tie to a call: it closes the connection.
         for (auto& [id, p] : pending)
-          p.set_value(Answer{env.status().code(), env.status().message(), {}});
+          p.answer.set_value(Answer{env.status().code(), env.status().message(), {}});
         pending.clear();
       }
       return;
     }
-    it->second.set_value(Answer{env.status().code(), env.status().message(), env.body()});
+    if (env.nonce() != it->second.nonce)
+      it->second.answer.set_value(Status(
+          StatusCode::kFailedPrecondition,
+          "the answer does not echo its request's nonce (a server older than the nonce, or an "
+          "answer that is not this call's)"));
+    else
+      it->second.answer.set_value(Answer{env.status().code(), env.status().message(), env.body()});
     pending.erase(it);
   }
 
@@ -207,6 +219,7 @@ struct Client::Impl {
   std::shared_ptr<asio::ssl::context> tls;  // null: plaintext
   size_t current = 0;                       // the endpoint conn is (or was last) connected to
   uint64_t next_id = 1;
+  std::mt19937_64 random{std::random_device{}()};  // nonces; guarded by mu
   std::atomic<uint64_t> resent{0};
 
   std::string Label(size_t i) const {
@@ -270,6 +283,15 @@ struct Client::Impl {
     e.set_deadline_ms(static_cast<uint32_t>(std::max(0, deadline_ms)));
     e.set_token(o.token);
     e.set_body(body);
+    {
+      std::lock_guard<std::mutex> lock(mu);
+      std::string nonce(16, '\0');
+      for (size_t k = 0; k < nonce.size(); k += 8) {
+        const uint64_t r = random();
+        std::memcpy(&nonce[k], &r, 8);
+      }
+      e.set_nonce(nonce);
+    }
     std::future<Result<Answer>> f;
     {
       std::lock_guard<std::mutex> lock((*c)->mu);
@@ -277,7 +299,9 @@ struct Client::Impl {
         failed.set_value(Status::IoError("connection lost"));
         return failed.get_future();
       }
-      f = (*c)->pending[e.call_id()].get_future();
+      Connection::Pending& p = (*c)->pending[e.call_id()];
+      p.nonce = e.nonce();
+      f = p.answer.get_future();
     }
     (*c)->Write(EncodeFrame(e));
     return f;
@@ -295,11 +319,20 @@ struct Client::Impl {
     for (int attempt = 0;; ++attempt) {
       std::shared_ptr<Connection> used;
       const int left_ms = std::max<int>(1, deadline_ms - static_cast<int>(elapsed_ms()));
+      const auto sent = std::chrono::steady_clock::now();
       std::future<Result<Answer>> f = Send(method, body, left_ms, &used);
       // The server answers DEADLINE_EXCEEDED itself; the margin covers the network.
       if (f.wait_for(std::chrono::milliseconds(left_ms + 2000)) != std::future_status::ready)
         return Status::Internal(method + ": no answer within the deadline");
       last = f.get();
+      const auto age_ms = std::chrono::duration_cast<std::chrono::milliseconds>(
+                              std::chrono::steady_clock::now() - sent)
+                              .count();
+      if (last.ok() && o.max_answer_age_ms > 0 && age_ms > o.max_answer_age_ms)
+        return Status(StatusCode::kFailedPrecondition,
+                      method + ": stale answer, " + std::to_string(age_ms) +
+                          " ms after its request (max_answer_age_ms " +
+                          std::to_string(o.max_answer_age_ms) + "): held up on the way?");
       const bool shutting_down = last.ok() && last->code == v1::Status::UNAVAILABLE;
       if (shutting_down && used) {  // this server is draining: the next attempt reconnects
         used->Close();

@@ -59,7 +59,10 @@ void AddServerOptions(po::options_description* desc, SourceFlags* flags) {
       "PEM certificate of this vehicle (a TLS server requires one)")(
       "tls-key", po::value(&flags->tls_key), "PEM private key of --tls-cert")(
       "tls-server-name", po::value(&flags->tls_server_name),
-      "name the server's certificate must carry (default: the host of --server)");
+      "name the server's certificate must carry (default: the host of --server)")(
+      "max-answer-age-ms", po::value(&flags->max_answer_age_ms),
+      "refuse an answer that arrives more than this after its request (0: the deadline "
+      "alone)");
 }
 
 void AddSourceOptions(po::options_description* desc, SourceFlags* flags) {
@@ -69,8 +72,8 @@ void AddSourceOptions(po::options_description* desc, SourceFlags* flags) {
 
 int RefuseServerFlagsWithMap(const SourceFlags& flags, const po::variables_map& vm) {
   if (flags.map_dir.empty()) return kGoOn;
-  for (const char* flag :
-       {"token-file", "tls-ca", "tls-cert", "tls-key", "tls-server-name", "deadline-ms"})
+  for (const char* flag : {"token-file", "tls-ca", "tls-cert", "tls-key", "tls-server-name",
+                           "max-answer-age-ms", "deadline-ms"})
     if (vm.count(flag))
       return Fail(std::string("--") + flag +
                       " applies to --server only: a map in this process has no server to call",
@@ -83,6 +86,9 @@ Result<std::unique_ptr<Client>> ConnectTo(const SourceFlags& flags) {
   ClientOptions options;
   options.tls_ca_file = flags.tls_ca, options.tls_cert_file = flags.tls_cert;
   options.tls_key_file = flags.tls_key, options.tls_server_name = flags.tls_server_name;
+  if (flags.max_answer_age_ms < 0)
+    return Status::InvalidArgument("--max-answer-age-ms must be >= 0 (0: the deadline alone)");
+  options.max_answer_age_ms = flags.max_answer_age_ms;
   size_t start = 0;
   while (start <= server.size()) {
     const size_t comma = std::min(server.find(',', start), server.size());

@@ -48,18 +48,19 @@ struct SourceFlags {
   std::string token_file;
   // TLS (client.h ClientOptions): on with tls_ca.
   std::string tls_ca, tls_cert, tls_key, tls_server_name;
-  int deadline_ms = 0;  // each command sets its default
+  int max_answer_age_ms = 0;  // ClientOptions::max_answer_age_ms
+  int deadline_ms = 0;        // each command sets its default
 };
 
-// Adds --server, --token-file and the TLS flags (--tls-ca, --tls-cert, --tls-key,
-// --tls-server-name).
+// Adds --server, --token-file, the TLS flags (--tls-ca, --tls-cert, --tls-key,
+// --tls-server-name) and --max-answer-age-ms.
 void AddServerOptions(po::options_description* desc, SourceFlags* flags);
 // Adds --map and the above (--deadline-ms is added by each command, where its help text
 // belongs).
 void AddSourceOptions(po::options_description* desc, SourceFlags* flags);
 
 // Refuses, with --map, the flags that only a call to a server uses (--token-file, the TLS
-// flags, --deadline-ms): they would have no effect. Returns kGoOn or 2.
+// flags, --max-answer-age-ms, --deadline-ms): they would have no effect. Returns kGoOn or 2.
 // REQUIRES: exactly one of map_dir and server is set.
 int RefuseServerFlagsWithMap(const SourceFlags& flags, const po::variables_map& vm);
 

@@ -60,12 +60,14 @@ Result<LocateRequest> ParseLocate(const Localizer& loc, const std::string& body,
 
 }  // namespace
 
-void Service::Impl::Answer(const std::shared_ptr<Session>& s, uint64_t id,
+void Service::Impl::Answer(const std::shared_ptr<Session>& s, const service_internal::CallId& call,
                            const std::string& method, v1::Status::Code code,
                            const std::string& message, const std::string& body,
                            Clock::time_point received, const char* quality) {
+  const uint64_t id = call.id;
   v1::Envelope e;
   e.set_call_id(id);
+  e.set_nonce(call.nonce);
   e.set_method(method);
   e.mutable_status()->set_code(code);
   e.mutable_status()->set_message(message);
@@ -116,8 +118,13 @@ std::string Service::Impl::ListTilesBody() {
 
 void Service::Impl::Dispatch(const std::shared_ptr<Session>& s, v1::Envelope env,
                              Clock::time_point received) {
-  const uint64_t id = env.call_id();
   const std::string method = env.method();
+  if (env.nonce().size() > kMaxNonceBytes)
+    return Answer(s, {env.call_id(), ""}, method, v1::Status::INVALID_ARGUMENT,
+                  "nonce of " + std::to_string(env.nonce().size()) + " bytes, over " +
+                      std::to_string(kMaxNonceBytes),
+                  "", received);
+  const service_internal::CallId id{env.call_id(), env.nonce()};
   if (!token.empty() && !ConstantTimeEqual(env.token(), token))
     return Answer(s, id, method, v1::Status::UNAUTHENTICATED, "missing or wrong token", "",
                   received);
@@ -167,7 +174,7 @@ void Service::Impl::WorkerLoop() {
 void Service::Impl::RunLocate(const Job& job) {
   auto answer = [&](v1::Status::Code code, const std::string& message, const std::string& body = "",
                     const char* quality = "") {
-    Answer(job.session, job.call_id, "Locate", code, message, body, job.received, quality);
+    Answer(job.session, job.call, "Locate", code, message, body, job.received, quality);
   };
   if (Clock::now() > job.deadline)
     return answer(v1::Status::DEADLINE_EXCEEDED, "deadline passed while queued");

@@ -34,9 +34,15 @@ class Session;
 
 // A Locate call waiting for a worker. Its body is parsed on the worker: the parse copies the
 // image, and the calibration lookup may load a tile.
+// What an answer must carry back: the request's call id and nonce.
+struct CallId {
+  uint64_t id = 0;
+  std::string nonce;
+};
+
 struct Job {
   std::shared_ptr<Session> session;
-  uint64_t call_id = 0;
+  CallId call;
   std::string body;  // the envelope's body: a serialized v1::LocateRequest
   Clock::time_point received, deadline;
 };
@@ -104,9 +110,9 @@ struct Service::Impl {
   // dispatch.cc. I/O thread: authenticates and routes one call; a Locate is queued.
   void Dispatch(const std::shared_ptr<Session>& s, v1::Envelope env, Clock::time_point received);
   // Any thread: logs and counts the answer, then posts its frame to the I/O thread.
-  void Answer(const std::shared_ptr<Session>& s, uint64_t id, const std::string& method,
-              v1::Status::Code code, const std::string& message, const std::string& body,
-              Clock::time_point received, const char* quality = "");
+  void Answer(const std::shared_ptr<Session>& s, const service_internal::CallId& call,
+              const std::string& method, v1::Status::Code code, const std::string& message,
+              const std::string& body, Clock::time_point received, const char* quality = "");
   void WorkerLoop();
   // A worker's Locate job: deadline, parse, calibration lookup, engine, answer.
   void RunLocate(const service_internal::Job& job);

@@ -1,5 +1,6 @@
 #include "server/service/session.h"
 
+#include <array>
 #include <cstdio>
 #include <nlohmann/json.hpp>
 
@@ -38,6 +39,21 @@ void Session::Start() {
                       });
 }
 
+void Session::Linger() {
+  boost::system::error_code ec;
+  Tcp().shutdown(tcp::socket::shutdown_send, ec);
+  Arm(1000);  // one second in all, however much the client sends
+  Drain(std::make_shared<std::array<char, 512>>());
+}
+
+void Session::Drain(std::shared_ptr<std::array<char, 512>> scratch) {
+  Tcp().async_read_some(asio::buffer(*scratch), [self = shared_from_this(), scratch](
+                                                    const boost::system::error_code& e, size_t) {
+    if (e || self->closed_) return self->Close();
+    self->Drain(scratch);
+  });
+}
+
 bool Session::RevokedBy(const CrlSet& crls) {
   if (!tls_ || closed_) return false;
   X509* cert = SSL_get0_peer_certificate(tls_->native_handle());
@@ -74,7 +90,7 @@ void Session::OnHandshake(const boost::system::error_code& ec) {
     std::fprintf(stderr, "{\"peer\":\"%s\",\"tls_refused\":%s}\n", peer_.c_str(),
                  nlohmann::json(why).dump().c_str());
     ++svc_->tls_refused;
-    return Close();
+    return closed_ ? void() : Linger();
   }
   identity_ = PeerCommonName(tls_->native_handle());
   ReadHeader();

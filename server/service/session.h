@@ -13,6 +13,7 @@
 // identity() are fixed before the first call is dispatched.
 #pragma once
 
+#include <array>
 #include <boost/asio.hpp>
 #include <boost/asio/ssl.hpp>
 #include <deque>
@@ -45,6 +46,11 @@ class Session : public std::enable_shared_from_this<Session> {
   void Arm(int ms);  // the timer: closes the connection after `ms`
   void OnHandshake(const boost::system::error_code& ec);
   void RefusePlaintext();  // answers one error frame in plaintext, then closes
+  // After a refused handshake: stops sending and reads (discarding) for up to a second before
+  // closing, so that a request the client sent meanwhile does not make the close a reset that
+  // destroys the TLS alert on its way (the client would then see a lost connection, and retry).
+  void Linger();
+  void Drain(std::shared_ptr<std::array<char, 512>> scratch);
   boost::asio::ip::tcp::socket& Tcp() { return tls_ ? tls_->next_layer() : socket_; }
   // Runs f on the stream the frames travel on: TLS or the plain socket.
   template <typename F>

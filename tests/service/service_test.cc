@@ -5,6 +5,7 @@
 
 #include <gtest/gtest.h>
 
+#include <array>
 #include <atomic>
 #include <boost/asio.hpp>
 #include <chrono>
@@ -534,6 +535,97 @@ TEST_F(ServiceTest, ThirtyTwoClientsForThirtySeconds) {
   EXPECT_EQ(other, 0);
   EXPECT_EQ(late, 0);
   EXPECT_GT(ok_ms.size(), 0u);
+}
+
+// A relay between one client and the service that holds every server-to-client chunk for
+// delay_ms: a network (or an attacker on it) delaying answers. Plaintext or TLS bytes alike.
+class DelayingRelay {
+ public:
+  DelayingRelay(int upstream_port, int delay_ms)
+      : acceptor_(io_, {asio::ip::make_address("127.0.0.1"), 0}) {
+    thread_ = std::thread([this, upstream_port, delay_ms] {
+      boost::system::error_code ec;
+      tcp::socket client(io_), server(io_);
+      acceptor_.accept(client, ec);
+      if (ec) return;
+      server.connect(
+          {asio::ip::make_address("127.0.0.1"), static_cast<unsigned short>(upstream_port)}, ec);
+      if (ec) return;
+      auto pump = [](tcp::socket& from, tcp::socket& to, int hold_ms) {
+        std::array<char, 65536> buf;
+        for (;;) {
+          boost::system::error_code e;
+          const size_t n = from.read_some(asio::buffer(buf), e);
+          if (e) break;
+          std::this_thread::sleep_for(std::chrono::milliseconds(hold_ms));
+          asio::write(to, asio::buffer(buf.data(), n), e);
+          if (e) break;
+        }
+        boost::system::error_code ignored;
+        to.shutdown(tcp::socket::shutdown_send, ignored);
+      };
+      std::thread up([&] { pump(client, server, 0); });
+      pump(server, client, delay_ms);
+      up.join();
+    });
+  }
+  ~DelayingRelay() {
+    boost::system::error_code ignored;
+    acceptor_.close(ignored);
+    if (thread_.joinable()) thread_.join();
+  }
+  int port() const { return acceptor_.local_endpoint().port(); }
+
+ private:
+  asio::io_context io_;
+  tcp::acceptor acceptor_;
+  std::thread thread_;
+};
+
+// Freshness: an answer held up on the way by 400 ms is refused by a client that allows 150 ms
+// (and not sent again: a delaying path would delay again), and used by one that allows 2 s.
+TEST_F(ServiceTest, AnAnswerHeldUpOnTheWayIsRefusedAsStale) {
+  ASSERT_TRUE(Start(ServiceOptions{}));
+  for (const int max_age_ms : {150, 2000}) {
+    DelayingRelay relay(service_->port(), 400);
+    ClientOptions co;
+    co.port = relay.port();
+    co.max_answer_age_ms = max_age_ms;
+    auto c = Client::Connect(co);
+    ASSERT_TRUE(c.ok()) << c.status().ToString();
+    auto d = (*c)->Describe(10000);
+    if (max_age_ms == 150) {
+      ASSERT_FALSE(d.ok());
+      EXPECT_EQ(d.status().code(), StatusCode::kFailedPrecondition);
+      EXPECT_NE(d.status().message().find("stale answer"), std::string::npos)
+          << d.status().ToString();
+      EXPECT_EQ((*c)->resent_calls(), 0u);
+    } else {
+      EXPECT_TRUE(d.ok()) << d.status().ToString();
+    }
+  }
+}
+
+// The nonce on the wire: echoed as sent; more than 32 bytes is refused.
+TEST_F(ServiceTest, TheAnswerEchoesTheRequestsNonce) {
+  ASSERT_TRUE(Start(ServiceOptions{}));
+  tcp::socket s = Raw();
+  v1::Envelope e;
+  e.set_call_id(5);
+  e.set_method("Describe");
+  e.set_nonce(std::string("\x00\x01vehicle-7 nonce", 17));
+  asio::write(s, asio::buffer(EncodeFrame(e)));
+  v1::Envelope a = ReadAnswer(s);
+  EXPECT_EQ(a.call_id(), 5u);
+  EXPECT_EQ(a.status().code(), v1::Status::OK);
+  EXPECT_EQ(a.nonce(), e.nonce());
+  e.set_call_id(6);
+  e.set_nonce(std::string(kMaxNonceBytes + 1, 'n'));
+  asio::write(s, asio::buffer(EncodeFrame(e)));
+  a = ReadAnswer(s);
+  EXPECT_EQ(a.call_id(), 6u);
+  EXPECT_EQ(a.status().code(), v1::Status::INVALID_ARGUMENT);
+  EXPECT_TRUE(a.nonce().empty());
 }
 
 // TLS from many threads at once while the server rereads its TLS files (and its map): every
