@@ -7,6 +7,8 @@
 #  3. retrieval over a synthetic 100 000-image set, map-wide index against the prior's tiles and
 #     against exact search;
 #  4. the service: p50 through the socket against in process, throughput with 1 and 2 workers;
+#     then TLS against plaintext (tests/bench/tls_bench_main.cc): throughput over persistent
+#     connections, a new connection per call, handshakes per second;
 #  5. the map-wide IVF-PQ index at 1 000 000 images (the town's descriptors plus seeded
 #     distractors) against exact search: recall@1, ms per query by nprobe, memory, bytes per
 #     image (tests/bench/ivf_bench_main.cc says how). Takes about 15 minutes and 3 GB of memory
@@ -19,7 +21,7 @@ out="${1:-$root/out/bench}"
 bash "$root/scripts/deps.sh"
 cmake -S "$root" -B "$build" -DCMAKE_BUILD_TYPE=RelWithDebInfo >/dev/null
 cmake --build "$build" -j "$(nproc)" --target sightfix-demo-route sightfix-indexer engine_bench \
-  service_bench indexer_bench ivf_bench
+  service_bench tls_bench indexer_bench ivf_bench
 # The clean world, so that timings stay comparable with those recorded before realistic became
 # the default (the realistic world changes image content, hence feature counts and timings).
 if [ ! -f "$out/town/town.json" ]; then
@@ -51,6 +53,17 @@ echo
 echo "== the service: socket against in process, throughput"
 "$build/tests/service_bench" --map "$out/map" --drive "$out/town/query-day" --limit 20 \
   --seconds 15 2> >(grep -v '^{' >&2)
+
+echo
+echo "== TLS against plaintext on the query port: throughput, new connections, handshakes"
+if [ ! -f "$out/pki/vehicle-bench.crt" ]; then
+  rm -rf "$out/pki"
+  bash "$root/scripts/make-certs.sh" "$out/pki" ca >/dev/null
+  bash "$root/scripts/make-certs.sh" "$out/pki" server localhost DNS:localhost IP:127.0.0.1 >/dev/null
+  bash "$root/scripts/make-certs.sh" "$out/pki" vehicle vehicle-bench >/dev/null
+fi
+"$build/tests/tls_bench" --map "$out/map" --drive "$out/town/query-day" --pki "$out/pki" \
+  --seconds 10 2> >(grep -v '^{' >&2)
 
 if [ "${SIGHTFIX_BENCH_IVF:-1}" = 1 ]; then
   echo

@@ -287,7 +287,9 @@ Status Service::Impl::ReloadTls() {
 }
 
 Status Service::Reload() {
-  if (impl_->tls) impl_->ReloadTls();  // logged either way; the map reloads regardless
+  // Under TLS (the options say so: `tls` itself belongs to the I/O thread), logged either way;
+  // the map reloads regardless.
+  if (!impl_->o.tls_cert_file.empty()) impl_->ReloadTls();
   auto loc = Localizer::Open(impl_->o.map_dir, impl_->o.engine);
   if (!loc.ok()) {
     std::fprintf(stderr, "{\"event\":\"reload_failed\",\"reason\":%s}\n",
