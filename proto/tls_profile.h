@@ -67,6 +67,16 @@ std::string AlpnProblem(SSL* ssl);
 // (OpenSSL's text, e.g. "hostname mismatch", "certificate has expired"), or "".
 std::string VerifyProblem(SSL* ssl);
 
+// Runs f on the stream frames travel on: `tls` when set, else the plain socket (the server's
+// sessions and the client's connections hold one or the other).
+template <typename Socket, typename F>
+void OnFrameStream(std::unique_ptr<boost::asio::ssl::stream<Socket>>& tls, Socket& plain, F&& f) {
+  if (tls)
+    f(*tls);
+  else
+    f(plain);
+}
+
 // The first byte of every TLS handshake record (content type 22): a first byte other than this
 // on the TLS port is a plaintext client, answered in plaintext before the port closes.
 inline constexpr unsigned char kTlsHandshakeRecord = 0x16;

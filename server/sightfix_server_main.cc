@@ -45,6 +45,16 @@ po::options_description Flags(sightfix::ServiceOptions* o, size_t* cache_mb, dou
       "tls-crl-grace-h", po::value(crl_grace_h)->default_value(*crl_grace_h),
       "hours past a CRL's nextUpdate during which it is still enforced and other vehicles "
       "accepted; after that every vehicle is refused")(
+      "max-handshakes", po::value(&o->max_handshakes)->default_value(o->max_handshakes),
+      "TLS handshakes in progress at once; one more connection is closed at once")(
+      "max-handshakes-per-address",
+      po::value(&o->max_handshakes_per_address)->default_value(o->max_handshakes_per_address),
+      "TLS handshakes in progress from one source address")(
+      "client-calls-per-s", po::value(&o->client_calls_per_s)->default_value(0),
+      "each client's share (by certificate, else address): calls a second, beyond the burst "
+      "answered RATE_LIMITED (0: no limit)")(
+      "client-burst", po::value(&o->client_burst)->default_value(o->client_burst),
+      "calls a client may make at once before its rate applies")(
       "plaintext-beyond-loopback",
       "serve beyond loopback without TLS: anyone on the path reads and can forge fixes (not "
       "advised)")("no-scrub",

@@ -46,10 +46,7 @@ struct Connection {
   tcp::socket& Tcp() { return tls ? tls->next_layer() : socket; }
   template <typename F>
   void OnStream(F&& f) {
-    if (tls)
-      f(*tls);
-    else
-      f(socket);
+    OnFrameStream(tls, socket, f);
   }
 
   ~Connection() {
@@ -192,11 +189,15 @@ struct Connection {
                            [&](const boost::system::error_code& e) { ec = e, done = true; });
       io.run_for(std::chrono::milliseconds(timeout_ms));
       if (!done) return "TLS handshake not finished within " + std::to_string(timeout_ms) + " ms";
-      *refused = true;
+      // A closed connection (the server over its handshake limit, or going away) is worth a
+      // retry; an alert or a certificate this side refused is not.
+      *refused = ec != asio::error::eof && ec != asio::error::connection_reset &&
+                 ec != asio::ssl::error::stream_truncated;
       if (ec) {
         const std::string v = VerifyProblem(tls->native_handle());
         return "TLS handshake: " + ec.message() + (v.empty() ? "" : ": " + v);
       }
+      *refused = true;
       if (std::string alpn = AlpnProblem(tls->native_handle()); !alpn.empty())
         return "TLS: " + alpn;
       *refused = false;
@@ -220,6 +221,7 @@ struct Client::Impl {
   size_t current = 0;                       // the endpoint conn is (or was last) connected to
   uint64_t next_id = 1;
   std::mt19937_64 random{std::random_device{}()};  // nonces; guarded by mu
+  bool busy = false;  // the last Live() failed on a handshake the server closed; guarded by mu
   std::atomic<uint64_t> resent{0};
 
   std::string Label(size_t i) const {
@@ -242,6 +244,7 @@ struct Client::Impl {
     const size_t first = conn ? (current + 1) % n : current;
     std::string why;
     bool refused = false;
+    busy = false;
     for (size_t k = 0; k < n; ++k) {
       const size_t i = (first + k) % n;
       auto c = std::make_shared<Connection>();
@@ -252,6 +255,8 @@ struct Client::Impl {
                                          o.connect_timeout_ms, &this_refused);
       refused = refused || this_refused;
       if (!failed.empty()) {
+        // A handshake the server closed unrefused: over its handshake limit (busy), or going.
+        busy = busy || (!this_refused && failed.rfind("TLS handshake", 0) == 0);
         why += (why.empty() ? "" : "; ") + Label(i) + ": " + failed;
         continue;
       }
@@ -339,15 +344,24 @@ struct Client::Impl {
         std::lock_guard<std::mutex> lock(used->mu);
         used->dead = true;
       }
-      if (!shutting_down && (last.ok() || last.status().code() != StatusCode::kIoError))
+      const bool over_share = last.ok() && last->code == v1::Status::RATE_LIMITED;
+      if (!shutting_down && !over_share &&
+          (last.ok() || last.status().code() != StatusCode::kIoError))
         return last;
-      // Lost or refused connection, or a server shutting down: again after a pause, while the
-      // deadline leaves time.
-      if (attempt >= o.retries || elapsed_ms() + backoff_ms >= deadline_ms) {
-        if (shutting_down) return last;  // the server's own answer says why
+      // Lost or refused connection, a server shutting down, or this client over its share:
+      // again after a pause, while the deadline leaves time. The pause is jittered (0.5 to 1.5
+      // of the backoff), so that clients refused together do not come back together.
+      int pause_ms = backoff_ms;
+      {
+        std::lock_guard<std::mutex> lock(mu);
+        pause_ms =
+            static_cast<int>(backoff_ms * std::uniform_real_distribution<double>(0.5, 1.5)(random));
+      }
+      if (attempt >= o.retries || elapsed_ms() + pause_ms >= deadline_ms) {
+        if (shutting_down || over_share) return last;  // the server's own answer says why
         break;
       }
-      std::this_thread::sleep_for(std::chrono::milliseconds(backoff_ms));
+      std::this_thread::sleep_for(std::chrono::milliseconds(pause_ms));
       backoff_ms = std::min(2 * backoff_ms, 2000);
       ++resent;
     }
@@ -389,7 +403,26 @@ Result<std::unique_ptr<Client>> Client::Connect(const ClientOptions& options) {
     if (!ctx.ok()) return ctx.status();
     impl->tls = *ctx;
   }
+  // A server over its handshake limit closes the handshake: tried again, with jittered
+  // doubling pauses, within connect_timeout_ms.
+  const auto start = std::chrono::steady_clock::now();
   Result<std::shared_ptr<Connection>> c = impl->Live();
+  for (int attempt = 0, backoff_ms = options.retry_backoff_ms; !c.ok() && attempt < options.retries;
+       ++attempt, backoff_ms = std::min(2 * backoff_ms, 2000)) {
+    int pause_ms;
+    {
+      std::lock_guard<std::mutex> lock(impl->mu);
+      if (!impl->busy) break;
+      pause_ms = static_cast<int>(backoff_ms *
+                                  std::uniform_real_distribution<double>(0.5, 1.5)(impl->random));
+    }
+    const auto waited = std::chrono::duration_cast<std::chrono::milliseconds>(
+                            std::chrono::steady_clock::now() - start)
+                            .count();
+    if (waited + pause_ms >= options.connect_timeout_ms) break;
+    std::this_thread::sleep_for(std::chrono::milliseconds(pause_ms));
+    c = impl->Live();
+  }
   if (!c.ok()) return c.status();
   return std::unique_ptr<Client>(new Client(std::move(impl)));
 }

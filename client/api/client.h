@@ -32,15 +32,19 @@ struct ClientOptions {
   // certificate must carry (default: the endpoint's host; a DNS name is also sent as SNI).
   // A server that refuses the certificate fails the call with kFailedPrecondition, not retried.
   std::string tls_ca_file, tls_cert_file, tls_key_file, tls_server_name;
-  int connect_timeout_ms = 3000;  // to connect, and to finish the TLS handshake
+  // To connect and finish the TLS handshake; Connect also tries again within it, with the
+  // backoff below, while a server over its handshake limit closes the handshake.
+  int connect_timeout_ms = 3000;
   // Freshness: an answer that arrives more than this after its request was sent (the client's
   // monotonic clock) is refused with kFailedPrecondition and not used: a fix held up on the way
   // describes where the vehicle was. 0: only the call's deadline bounds it. Every call also
   // carries a random nonce the answer must echo (Envelope.nonce).
   int max_answer_age_ms = 0;
-  int retries =
-      10;  // extra attempts after a lost connection (idempotent calls), within the deadline
-  int retry_backoff_ms = 100;             // before the first retry; doubles each time, 2 s at most
+  // Extra attempts after a lost connection, an UNAVAILABLE (draining) or a RATE_LIMITED (over
+  // this client's share) answer, within the deadline; calls are idempotent reads.
+  int retries = 10;
+  // Before the first retry; doubles each time, 2 s at most; each pause jittered to 0.5-1.5 x.
+  int retry_backoff_ms = 100;
   uint32_t max_answer_bytes = 64u << 20;  // a longer answer frame closes the connection
 };
 

@@ -125,6 +125,14 @@ void Service::Impl::Dispatch(const std::shared_ptr<Session>& s, v1::Envelope env
                       std::to_string(kMaxNonceBytes),
                   "", received);
   const service_internal::CallId id{env.call_id(), env.nonce()};
+  if (o.client_calls_per_s > 0) {
+    const std::string client =
+        s->identity().empty() ? "address " + s->address() : "client " + s->identity();
+    if (!TakeShare(client, received))
+      return Answer(s, id, method, v1::Status::RATE_LIMITED,
+                    client + " is over its share (" + FormatShare() + "): back off and retry", "",
+                    received);
+  }
   if (!token.empty() && !ConstantTimeEqual(env.token(), token))
     return Answer(s, id, method, v1::Status::UNAUTHENTICATED, "missing or wrong token", "",
                   received);
@@ -151,6 +159,33 @@ void Service::Impl::Dispatch(const std::shared_ptr<Session>& s, v1::Envelope env
   }
   Answer(s, id, method, v1::Status::OVERLOADED, "queue full (" + std::to_string(o.queue) + ")", "",
          received);
+}
+
+bool Service::Impl::TakeShare(const std::string& client, Clock::time_point now) {
+  // Bounded: a bucket full again is as good as none, so the map is swept when it grows.
+  if (buckets.size() > 4096)
+    for (auto it = buckets.begin(); it != buckets.end();)
+      it = std::chrono::duration<double>(now - it->second.last).count() * o.client_calls_per_s >=
+                   o.client_burst
+               ? buckets.erase(it)
+               : std::next(it);
+  auto [it, fresh] = buckets.try_emplace(client, Bucket{double(o.client_burst), now});
+  Bucket& b = it->second;
+  if (!fresh) {
+    b.tokens = std::min<double>(
+        o.client_burst,
+        b.tokens + std::chrono::duration<double>(now - b.last).count() * o.client_calls_per_s);
+    b.last = now;
+  }
+  if (b.tokens < 1) return false;
+  b.tokens -= 1;
+  return true;
+}
+
+std::string Service::Impl::FormatShare() const {
+  char buf[96];
+  std::snprintf(buf, sizeof buf, "%g calls/s, burst %d", o.client_calls_per_s, o.client_burst);
+  return buf;
 }
 
 void Service::Impl::WorkerLoop() {

@@ -87,6 +87,10 @@ bool ServiceOptions::Validate(std::string* error) const {
   if (tls_files != 0 && tls_files != 3)
     return fail("TLS needs all three: the server's certificate, its key and the client CA");
   if (!tls_crl_file.empty() && tls_files == 0) return fail("a CRL file needs TLS");
+  if (max_handshakes < 1 || max_handshakes_per_address < 1)
+    return fail("max_handshakes and max_handshakes_per_address must be >= 1");
+  if (!(client_calls_per_s >= 0) || client_burst < 1)
+    return fail("client_calls_per_s must be >= 0 (0: no limit) and client_burst >= 1");
   if (tls_crl_grace_s < 0) return fail("the CRL grace must be >= 0 seconds");
   std::string e;
   if (!engine.Validate(&e)) return fail("engine: " + e);

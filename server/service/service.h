@@ -65,6 +65,16 @@ struct ServiceOptions {
   std::string tls_crl_file;
   int64_t tls_crl_grace_s = 7 * 24 * 3600;
   bool allow_plaintext = false;  // listen beyond loopback without TLS (not advised)
+  // Fair shares. Before a client is known: TLS handshakes in progress at once, in all and per
+  // source address (one more is closed before any TLS work). After: a token bucket per client
+  // (its certificate's name under TLS, else its address) of client_calls_per_s calls a second
+  // and client_burst at once; a call beyond it is answered RATE_LIMITED, which the client
+  // library backs off from with jitter. client_calls_per_s 0: no bucket. Per server: behind a
+  // balancer with N replicas a client's share is N times this.
+  int max_handshakes = 64;
+  int max_handshakes_per_address = 8;
+  double client_calls_per_s = 0;
+  int client_burst = 20;
   // Check every tile file against the catalog's SHA-256 in the background after start (and
   // after a reload), so /healthz names bad tiles early. Off: tiles are still checked before
   // their first use.

@@ -15,6 +15,7 @@
 #include <chrono>
 #include <condition_variable>
 #include <deque>
+#include <map>
 #include <memory>
 #include <mutex>
 #include <string>
@@ -81,6 +82,18 @@ struct Service::Impl {
   std::atomic<int64_t> crl_next_update{0};       // Unix seconds, 0 without a CRL (for /metrics)
   std::vector<std::weak_ptr<Session>> sessions;  // the I/O thread's: live ones are checked
                                                  // against a reloaded CRL
+  // Fair shares (ServiceOptions), the I/O thread's: handshakes in progress, in all and by
+  // source address; each client's token bucket (tokens, last refill).
+  int handshakes = 0;
+  std::map<std::string, int> handshakes_by_address;
+  struct Bucket {
+    double tokens = 0;
+    Clock::time_point last;
+  };
+  std::map<std::string, Bucket> buckets;
+  // True when `client` may make one more call now (takes a token).
+  bool TakeShare(const std::string& client, Clock::time_point now);
+  std::string FormatShare() const;  // "R calls/s, burst B"
   std::atomic<bool> draining{false};
 
   // The scrub: one background thread checks every tile file of the map being served against

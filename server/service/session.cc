@@ -18,7 +18,8 @@ Session::Session(tcp::socket socket, Service::Impl* svc)
       svc_(svc) {
   boost::system::error_code ec;
   const auto ep = socket.remote_endpoint(ec);
-  peer_ = ec ? "?" : ep.address().to_string() + ":" + std::to_string(ep.port());
+  address_ = ec ? "?" : ep.address().to_string();
+  peer_ = ec ? "?" : address_ + ":" + std::to_string(ep.port());
   // No Nagle: a TLS handshake's flights and each answer go out at once (with Nagle, a flight
   // that waits on the peer's delayed ACK costs up to 40 ms: tls_bench's p99 showed it).
   socket.set_option(tcp::no_delay(true), ec);
@@ -30,6 +31,18 @@ Session::Session(tcp::socket socket, Service::Impl* svc)
 
 void Session::Start() {
   if (!tls_) return ReadHeader();
+  // Fair shares before any TLS work: handshakes in progress, in all and from this address.
+  int& mine = svc_->handshakes_by_address[address_];
+  if (svc_->handshakes >= svc_->o.max_handshakes || mine >= svc_->o.max_handshakes_per_address) {
+    if (mine == 0) svc_->handshakes_by_address.erase(address_);
+    std::fprintf(stderr,
+                 "{\"peer\":\"%s\",\"tls_refused\":\"too many handshakes in progress (%d in "
+                 "all, %d from this address)\"}\n",
+                 peer_.c_str(), svc_->handshakes, mine);
+    ++svc_->tls_refused;
+    return Close();
+  }
+  ++mine, ++svc_->handshakes, handshaking_ = true;
   Arm(svc_->o.read_timeout_ms);  // a stalled handshake is cut off as a stalled frame is
   // A look at the first byte: a plaintext client gets a plaintext answer saying why not.
   Tcp().async_receive(asio::buffer(header_, 1), tcp::socket::message_peek,
@@ -64,6 +77,7 @@ bool Session::RevokedBy(const CrlSet& crls) {
 }
 
 void Session::RefusePlaintext() {
+  EndHandshake();
   timer_.cancel();
   const std::string why =
       "this port speaks TLS 1.3 only: connect with the server's CA and a "
@@ -82,7 +96,17 @@ void Session::RefusePlaintext() {
                     });
 }
 
+void Session::EndHandshake() {
+  if (!handshaking_) return;
+  handshaking_ = false;
+  --svc_->handshakes;
+  auto it = svc_->handshakes_by_address.find(address_);
+  if (it != svc_->handshakes_by_address.end() && --it->second <= 0)
+    svc_->handshakes_by_address.erase(it);
+}
+
 void Session::OnHandshake(const boost::system::error_code& ec) {
+  EndHandshake();
   timer_.cancel();
   std::string why = closed_ ? "handshake not finished within the read timeout"
                     : ec    ? ec.message()
@@ -99,7 +123,10 @@ void Session::OnHandshake(const boost::system::error_code& ec) {
   ReadHeader();
 }
 
-Session::~Session() { --svc_->connections; }
+Session::~Session() {
+  EndHandshake();
+  --svc_->connections;
+}
 
 void Session::Send(std::string frame, bool close_after) {
   if (closed_) return;

@@ -35,6 +35,7 @@ class Session : public std::enable_shared_from_this<Session> {
 
   void Start();
   const std::string& peer() const { return peer_; }          // "address:port", or "?"
+  const std::string& address() const { return address_; }    // the peer's address, or "?"
   const std::string& identity() const { return identity_; }  // TLS: the certificate's CN
   bool RevokedBy(const CrlSet& crls);  // TLS: the client's certificate is on a CRL
   // Queues a frame; closes the connection when the client is not reading.
@@ -45,6 +46,7 @@ class Session : public std::enable_shared_from_this<Session> {
   using TlsStream = boost::asio::ssl::stream<boost::asio::ip::tcp::socket>;
   void Arm(int ms);  // the timer: closes the connection after `ms`
   void OnHandshake(const boost::system::error_code& ec);
+  void EndHandshake();     // counts this session out of the handshakes in progress
   void RefusePlaintext();  // answers one error frame in plaintext, then closes
   // After a refused handshake: stops sending and reads (discarding) for up to a second before
   // closing, so that a request the client sent meanwhile does not make the close a reset that
@@ -55,10 +57,7 @@ class Session : public std::enable_shared_from_this<Session> {
   // Runs f on the stream the frames travel on: TLS or the plain socket.
   template <typename F>
   void OnStream(F&& f) {
-    if (tls_)
-      f(*tls_);
-    else
-      f(socket_);
+    OnFrameStream(tls_, socket_, f);
   }
   void ReadHeader();
   void OnHeader();
@@ -72,7 +71,8 @@ class Session : public std::enable_shared_from_this<Session> {
   std::unique_ptr<TlsStream> tls_;
   boost::asio::steady_timer timer_;
   Service::Impl* svc_;
-  std::string peer_, identity_;
+  std::string peer_, address_, identity_;
+  bool handshaking_ = false;  // counted in the service's handshakes in progress
   uint8_t header_[kFrameHeaderBytes];
   std::vector<uint8_t> body_;
   std::deque<std::string> writes_;

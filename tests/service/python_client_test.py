@@ -66,18 +66,25 @@ check("README worked example bytes",
       frame(example).hex(" ") == "00 00 00 0c 08 01 12 08 44 65 73 63 72 69 62 65",
       frame(example).hex(" "))
 
-server = subprocess.Popen([f"{build}/server/sightfix-server", "--map", f"{data}/map",
-                           "--listen", "127.0.0.1:0", "--http", "", "--workers", "1"],
-                          stderr=subprocess.PIPE, text=True)
-port = None
-for line in server.stderr:
-    if '"serving"' in line:
-        port = json.loads(line)["port"]
-        break
+def start_server(*extra):
+    """sightfix-server on a free loopback port: (process, port or None, its log lines so far)."""
+    proc = subprocess.Popen([f"{build}/server/sightfix-server", "--map", f"{data}/map",
+                             "--listen", "127.0.0.1:0", "--http", "", "--workers", "1", *extra],
+                            stderr=subprocess.PIPE, text=True)
+    serving = None
+    for line in proc.stderr:
+        if '"serving"' in line:
+            serving = json.loads(line)["port"]
+            break
+    # Keep reading the server's log (so a full pipe never blocks it) and keep its lines.
+    lines = []
+    threading.Thread(target=lambda: [lines.append(line) for line in proc.stderr],
+                     daemon=True).start()
+    return proc, serving, lines
+
+
+server, port, log = start_server()
 check("server started", port is not None)
-# Keep reading the server's log (so a full pipe never blocks it) and keep its lines.
-log = []
-threading.Thread(target=lambda: [log.append(line) for line in server.stderr], daemon=True).start()
 
 sock = socket.create_connection(("127.0.0.1", port))
 sock.sendall(frame(pb.Envelope(call_id=7, method="Describe")))
@@ -148,19 +155,9 @@ for step in (["ca"], ["server", "localhost", "DNS:localhost", "IP:127.0.0.1"],
              ["vehicle", "vehicle-py"]):
     subprocess.run(["bash", f"{source}/scripts/make-certs.sh", pki] + step, check=True,
                    stdout=subprocess.DEVNULL)
-server = subprocess.Popen([f"{build}/server/sightfix-server", "--map", f"{data}/map",
-                           "--listen", "127.0.0.1:0", "--http", "", "--workers", "1",
-                           "--tls-cert", f"{pki}/localhost.crt", "--tls-key", f"{pki}/localhost.key",
-                           "--tls-client-ca", f"{pki}/ca.crt"],
-                          stderr=subprocess.PIPE, text=True)
-port = None
-for line in server.stderr:
-    if '"serving"' in line:
-        port = json.loads(line)["port"]
-        break
+server, port, log = start_server("--tls-cert", f"{pki}/localhost.crt", "--tls-key",
+                                 f"{pki}/localhost.key", "--tls-client-ca", f"{pki}/ca.crt")
 check("TLS server started", port is not None)
-log = []
-threading.Thread(target=lambda: [log.append(line) for line in server.stderr], daemon=True).start()
 context = ssl.SSLContext(ssl.PROTOCOL_TLS_CLIENT)  # verifies the certificate and the host name
 context.minimum_version = ssl.TLSVersion.TLSv1_3
 context.load_verify_locations(f"{pki}/ca.crt")

@@ -628,6 +628,42 @@ TEST_F(ServiceTest, TheAnswerEchoesTheRequestsNonce) {
   EXPECT_TRUE(a.nonce().empty());
 }
 
+// Fair shares after the client is known: with 2 calls a second and a burst of 2, four calls sent
+// at once get two answers and two RATE_LIMITED (the bucket is per client: here the address);
+// the client library backs off from RATE_LIMITED with jitter and gets its answers as the bucket
+// refills.
+TEST_F(ServiceTest, EachClientGetsItsShare) {
+  ServiceOptions o;
+  o.client_calls_per_s = 2, o.client_burst = 2;
+  ASSERT_TRUE(Start(o));
+  tcp::socket s = Raw();
+  for (uint64_t id = 1; id <= 4; ++id) {
+    v1::Envelope e;
+    e.set_call_id(id);
+    e.set_method("Describe");
+    asio::write(s, asio::buffer(EncodeFrame(e)));
+  }
+  int ok = 0, limited = 0;
+  for (int k = 0; k < 4; ++k) {
+    const v1::Envelope a = ReadAnswer(s);
+    ok += a.status().code() == v1::Status::OK;
+    if (a.status().code() == v1::Status::RATE_LIMITED) {
+      ++limited;
+      EXPECT_NE(a.status().message().find("over its share (2 calls/s, burst 2)"), std::string::npos)
+          << a.status().message();
+    }
+  }
+  EXPECT_EQ(ok, 2);
+  EXPECT_EQ(limited, 2);
+  auto c = Connect();
+  ASSERT_NE(c, nullptr);
+  for (int k = 0; k < 3; ++k) {
+    auto d = c->Describe(10000);
+    EXPECT_TRUE(d.ok()) << d.status().ToString();
+  }
+  EXPECT_GT(c->resent_calls(), 0u);  // it waited its turn
+}
+
 // TLS from many threads at once while the server rereads its TLS files (and its map): every
 // call of a good vehicle is answered, a revoked one is refused and not retried. Run under
 // ThreadSanitizer by scripts/test-sanitizers.sh tsan: the client's one I/O thread per
