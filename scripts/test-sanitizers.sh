@@ -5,7 +5,8 @@
 #     (default 60) from its checked-in corpus;
 #  2. ThreadSanitizer in build-tsan, and runs the server's concurrency tests there
 #     (service_test: the service and the client library in one process under 32 clients,
-#     drain, reload, reconnect, slow and deaf clients). Not wire_faults_test: a TSan-built
+#     drain, reload, reconnect, slow and deaf clients; secure_wire_test: TLS from four threads
+#     while the server rereads its TLS files, freshness, fair shares). Not wire_faults_test: a TSan-built
 #     server answers a locate in 7-10 s (OpenCV and FAISS are not instrumented and run under
 #     TSan's interceptors), past that test's deadlines.
 #  ci: what scripts/test.sh runs in CI within its time budget: the ASan + UBSan build, the suite
@@ -52,7 +53,8 @@ fi
 if [ "$what" = tsan ] || [ "$what" = all ]; then
   echo "== server concurrency tests under ThreadSanitizer"
   CC=clang-14 CXX=clang++-14 cmake -S "$root" -B "$tsan" "${flags[@]}" -DSIGHTFIX_TSAN=ON >/dev/null
-  cmake --build "$tsan" -j "$(env -u OMP_NUM_THREADS -u OMP_THREAD_LIMIT nproc)" --target service_test tile_cache_test
+  cmake --build "$tsan" -j "$(env -u OMP_NUM_THREADS -u OMP_THREAD_LIMIT nproc)" --target service_test \
+    secure_wire_test tile_cache_test
   # The fixture map comes from another tree: made under TSan it would take most of an hour.
   data=""
   for d in "$root/build/tests/service_data" "$san/tests/service_data"; do
@@ -65,5 +67,5 @@ if [ "$what" = tsan ] || [ "$what" = all ]; then
   fi
   (cd "$tsan" && SIGHTFIX_SERVICE_DATA="$data" \
     TSAN_OPTIONS="halt_on_error=1:second_deadlock_stack=1:suppressions=$root/tests/robustness/tsan.supp" \
-    tests/service_test && tests/tile_cache_test)
+    tests/service_test && tests/secure_wire_test && tests/tile_cache_test)
 fi
