@@ -65,7 +65,7 @@ if [ "$what" = tsan ] || [ "$what" = all ]; then
     data="$san/tests/service_data"
     bash "$root/tests/service/make_map.sh" "$san" "$data"
   fi
-  (cd "$tsan" && SIGHTFIX_SERVICE_DATA="$data" \
-    TSAN_OPTIONS="halt_on_error=1:second_deadlock_stack=1:suppressions=$root/tests/robustness/tsan.supp" \
+  (cd "$tsan" && export SIGHTFIX_SERVICE_DATA="$data" \
+    TSAN_OPTIONS="halt_on_error=1:second_deadlock_stack=1:suppressions=$root/tests/robustness/tsan.supp" &&
     tests/service_test && tests/secure_wire_test && tests/tile_cache_test)
 fi
