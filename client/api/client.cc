@@ -163,47 +163,56 @@ struct Connection {
     pending.erase(it);
   }
 
+  // How opening a connection ended: the closed handshake is a server over its handshake limit
+  // (or going away), worth another try soon; a refusal (an alert, a certificate either side
+  // refused, no ALPN of ours) would only come again.
+  struct Opened {
+    enum Kind { kOk, kUnreachable, kClosedHandshake, kRefused } kind = kOk;
+    std::string why;
+  };
+
   // Before the I/O thread starts: connects (and with `tls_context` shakes hands) within
-  // timeout_ms on the calling thread. Empty on success, else why not; *refused when the server
-  // or its certificate was refused (retrying cannot help).
-  std::string Open(const std::string& host, int port, asio::ssl::context* tls_context,
-                   const std::string& server_name, int timeout_ms, bool* refused) {
+  // timeout_ms on the calling thread.
+  Opened Open(const std::string& host, int port, asio::ssl::context* tls_context,
+              const std::string& server_name, int timeout_ms) {
+    auto failed = [](Opened::Kind kind, std::string why) { return Opened{kind, std::move(why)}; };
     boost::system::error_code ec;
     tcp::resolver resolver(io);
     auto resolved = resolver.resolve(host, std::to_string(port), ec);
-    if (ec) return ec.message();
+    if (ec) return failed(Opened::kUnreachable, ec.message());
     bool done = false;
     asio::async_connect(socket, resolved,
                         [&](const boost::system::error_code& e, auto&&) { ec = e, done = true; });
     io.run_for(std::chrono::milliseconds(timeout_ms));
-    if (!done) return "no connection within " + std::to_string(timeout_ms) + " ms";
-    if (ec) return ec.message();
+    if (!done)
+      return failed(Opened::kUnreachable,
+                    "no connection within " + std::to_string(timeout_ms) + " ms");
+    if (ec) return failed(Opened::kUnreachable, ec.message());
     socket.set_option(tcp::no_delay(true), ec);
     if (tls_context) {
       tls = std::make_unique<TlsStream>(std::move(socket), *tls_context);
       if (Status s = SetClientServerName(tls->native_handle(), server_name); !s.ok())
-        return s.message();
+        return failed(Opened::kRefused, s.message());
       io.restart();
       done = false;
       tls->async_handshake(asio::ssl::stream_base::client,
                            [&](const boost::system::error_code& e) { ec = e, done = true; });
       io.run_for(std::chrono::milliseconds(timeout_ms));
-      if (!done) return "TLS handshake not finished within " + std::to_string(timeout_ms) + " ms";
-      // A closed connection (the server over its handshake limit, or going away) is worth a
-      // retry; an alert or a certificate this side refused is not.
-      *refused = ec != asio::error::eof && ec != asio::error::connection_reset &&
-                 ec != asio::ssl::error::stream_truncated;
+      if (!done)
+        return failed(Opened::kUnreachable,
+                      "TLS handshake not finished within " + std::to_string(timeout_ms) + " ms");
       if (ec) {
+        const bool closed = ec == asio::error::eof || ec == asio::error::connection_reset ||
+                            ec == asio::ssl::error::stream_truncated;
         const std::string v = VerifyProblem(tls->native_handle());
-        return "TLS handshake: " + ec.message() + (v.empty() ? "" : ": " + v);
+        return failed(closed ? Opened::kClosedHandshake : Opened::kRefused,
+                      "TLS handshake: " + ec.message() + (v.empty() ? "" : ": " + v));
       }
-      *refused = true;
       if (std::string alpn = AlpnProblem(tls->native_handle()); !alpn.empty())
-        return "TLS: " + alpn;
-      *refused = false;
+        return failed(Opened::kRefused, "TLS: " + alpn);
     }
     io.restart();
-    return "";
+    return {};
   }
 
   void Start() {
@@ -220,8 +229,7 @@ struct Client::Impl {
   std::shared_ptr<asio::ssl::context> tls;  // null: plaintext
   size_t current = 0;                       // the endpoint conn is (or was last) connected to
   uint64_t next_id = 1;
-  std::mt19937_64 random{std::random_device{}()};  // nonces; guarded by mu
-  bool busy = false;  // the last Live() failed on a handshake the server closed; guarded by mu
+  std::mt19937_64 random{std::random_device{}()};  // nonces and jitter; guarded by mu
   std::atomic<uint64_t> resent{0};
 
   std::string Label(size_t i) const {
@@ -234,7 +242,9 @@ struct Client::Impl {
   }
 
   // The live connection, or a new one: after a lost connection, from the next endpoint on.
-  Result<std::shared_ptr<Connection>> Live() {
+  // kFailedPrecondition when an endpoint refused (TLS), kIoError otherwise; *closed_handshake
+  // when one closed the handshake unrefused (over its handshake limit: worth trying again).
+  Result<std::shared_ptr<Connection>> Live(bool* closed_handshake = nullptr) {
     std::lock_guard<std::mutex> lock(mu);
     if (conn) {
       std::lock_guard<std::mutex> l2(conn->mu);
@@ -244,20 +254,19 @@ struct Client::Impl {
     const size_t first = conn ? (current + 1) % n : current;
     std::string why;
     bool refused = false;
-    busy = false;
+    if (closed_handshake) *closed_handshake = false;
     for (size_t k = 0; k < n; ++k) {
       const size_t i = (first + k) % n;
       auto c = std::make_shared<Connection>();
       c->max_answer_bytes = o.max_answer_bytes;
       const std::string name = o.tls_server_name.empty() ? endpoints[i].first : o.tls_server_name;
-      bool this_refused = false;
-      const std::string failed = c->Open(endpoints[i].first, endpoints[i].second, tls.get(), name,
-                                         o.connect_timeout_ms, &this_refused);
-      refused = refused || this_refused;
-      if (!failed.empty()) {
-        // A handshake the server closed unrefused: over its handshake limit (busy), or going.
-        busy = busy || (!this_refused && failed.rfind("TLS handshake", 0) == 0);
-        why += (why.empty() ? "" : "; ") + Label(i) + ": " + failed;
+      const Connection::Opened opened =
+          c->Open(endpoints[i].first, endpoints[i].second, tls.get(), name, o.connect_timeout_ms);
+      if (opened.kind != Connection::Opened::kOk) {
+        refused = refused || opened.kind == Connection::Opened::kRefused;
+        if (closed_handshake && opened.kind == Connection::Opened::kClosedHandshake)
+          *closed_handshake = true;
+        why += (why.empty() ? "" : "; ") + Label(i) + ": " + opened.why;
         continue;
       }
       c->Start();
@@ -268,6 +277,24 @@ struct Client::Impl {
     const std::string what =
         "cannot connect to " + (n == 1 ? why : "any of " + AllLabels() + " (" + why + ")");
     return refused ? Status(StatusCode::kFailedPrecondition, what) : Status::IoError(what);
+  }
+
+  // 16 random bytes: the nonce a call's answer must echo.
+  std::string NewNonce() {
+    std::lock_guard<std::mutex> lock(mu);
+    std::string nonce(16, '\0');
+    for (size_t k = 0; k < nonce.size(); k += 8) {
+      const uint64_t r = random();
+      std::memcpy(&nonce[k], &r, 8);
+    }
+    return nonce;
+  }
+
+  // A pause of 0.5 to 1.5 x backoff_ms, so that clients refused together do not come back
+  // together.
+  int Jittered(int backoff_ms) {
+    std::lock_guard<std::mutex> lock(mu);
+    return static_cast<int>(backoff_ms * std::uniform_real_distribution<double>(0.5, 1.5)(random));
   }
 
   std::future<Result<Answer>> Send(const std::string& method, const std::string& body,
@@ -288,15 +315,7 @@ struct Client::Impl {
     e.set_deadline_ms(static_cast<uint32_t>(std::max(0, deadline_ms)));
     e.set_token(o.token);
     e.set_body(body);
-    {
-      std::lock_guard<std::mutex> lock(mu);
-      std::string nonce(16, '\0');
-      for (size_t k = 0; k < nonce.size(); k += 8) {
-        const uint64_t r = random();
-        std::memcpy(&nonce[k], &r, 8);
-      }
-      e.set_nonce(nonce);
-    }
+    e.set_nonce(NewNonce());
     std::future<Result<Answer>> f;
     {
       std::lock_guard<std::mutex> lock((*c)->mu);
@@ -351,12 +370,7 @@ struct Client::Impl {
       // Lost or refused connection, a server shutting down, or this client over its share:
       // again after a pause, while the deadline leaves time. The pause is jittered (0.5 to 1.5
       // of the backoff), so that clients refused together do not come back together.
-      int pause_ms = backoff_ms;
-      {
-        std::lock_guard<std::mutex> lock(mu);
-        pause_ms =
-            static_cast<int>(backoff_ms * std::uniform_real_distribution<double>(0.5, 1.5)(random));
-      }
+      const int pause_ms = Jittered(backoff_ms);
       if (attempt >= o.retries || elapsed_ms() + pause_ms >= deadline_ms) {
         if (shutting_down || over_share) return last;  // the server's own answer says why
         break;
@@ -406,22 +420,18 @@ Result<std::unique_ptr<Client>> Client::Connect(const ClientOptions& options) {
   // A server over its handshake limit closes the handshake: tried again, with jittered
   // doubling pauses, within connect_timeout_ms.
   const auto start = std::chrono::steady_clock::now();
-  Result<std::shared_ptr<Connection>> c = impl->Live();
-  for (int attempt = 0, backoff_ms = options.retry_backoff_ms; !c.ok() && attempt < options.retries;
+  bool closed_handshake = false;
+  Result<std::shared_ptr<Connection>> c = impl->Live(&closed_handshake);
+  for (int attempt = 0, backoff_ms = options.retry_backoff_ms;
+       !c.ok() && closed_handshake && attempt < options.retries;
        ++attempt, backoff_ms = std::min(2 * backoff_ms, 2000)) {
-    int pause_ms;
-    {
-      std::lock_guard<std::mutex> lock(impl->mu);
-      if (!impl->busy) break;
-      pause_ms = static_cast<int>(backoff_ms *
-                                  std::uniform_real_distribution<double>(0.5, 1.5)(impl->random));
-    }
+    const int pause_ms = impl->Jittered(backoff_ms);
     const auto waited = std::chrono::duration_cast<std::chrono::milliseconds>(
                             std::chrono::steady_clock::now() - start)
                             .count();
     if (waited + pause_ms >= options.connect_timeout_ms) break;
     std::this_thread::sleep_for(std::chrono::milliseconds(pause_ms));
-    c = impl->Live();
+    c = impl->Live(&closed_handshake);
   }
   if (!c.ok()) return c.status();
   return std::unique_ptr<Client>(new Client(std::move(impl)));
