@@ -34,12 +34,10 @@ void Session::Start() {
   // Fair shares before any TLS work: handshakes in progress, in all and from this address.
   int& mine = svc_->handshakes_by_address[address_];
   if (svc_->handshakes >= svc_->o.max_handshakes || mine >= svc_->o.max_handshakes_per_address) {
+    const int from_here = mine;
     if (mine == 0) svc_->handshakes_by_address.erase(address_);
-    std::fprintf(stderr,
-                 "{\"peer\":\"%s\",\"tls_refused\":\"too many handshakes in progress (%d in "
-                 "all, %d from this address)\"}\n",
-                 peer_.c_str(), svc_->handshakes, mine);
-    ++svc_->tls_refused;
+    LogRefusal("too many handshakes in progress (" + std::to_string(svc_->handshakes) +
+               " in all, " + std::to_string(from_here) + " from this address)");
     return Close();
   }
   ++mine, ++svc_->handshakes, handshaking_ = true;
@@ -82,9 +80,7 @@ void Session::RefusePlaintext() {
   const std::string why =
       "this port speaks TLS 1.3 only: connect with the server's CA and a "
       "vehicle certificate (--tls-ca, --tls-cert, --tls-key)";
-  std::fprintf(stderr, "{\"peer\":\"%s\",\"tls_refused\":\"plaintext sent to the TLS port\"}\n",
-               peer_.c_str());
-  ++svc_->tls_refused;
+  LogRefusal("plaintext sent to the TLS port");
   v1::Envelope e;
   e.mutable_status()->set_code(v1::Status::UNAUTHENTICATED);
   e.mutable_status()->set_message(why);
@@ -94,6 +90,12 @@ void Session::RefusePlaintext() {
                     [self = shared_from_this(), frame](const boost::system::error_code&, size_t) {
                       self->Close();
                     });
+}
+
+void Session::LogRefusal(const std::string& why) {
+  std::fprintf(stderr, "{\"peer\":\"%s\",\"tls_refused\":%s}\n", peer_.c_str(),
+               nlohmann::json(why).dump().c_str());
+  ++svc_->tls_refused;
 }
 
 void Session::EndHandshake() {
@@ -114,9 +116,7 @@ void Session::OnHandshake(const boost::system::error_code& ec) {
   if (ec && !closed_)
     if (const std::string v = VerifyProblem(tls_->native_handle()); !v.empty()) why += ": " + v;
   if (!why.empty()) {
-    std::fprintf(stderr, "{\"peer\":\"%s\",\"tls_refused\":%s}\n", peer_.c_str(),
-                 nlohmann::json(why).dump().c_str());
-    ++svc_->tls_refused;
+    LogRefusal(why);
     return closed_ ? void() : Linger();
   }
   identity_ = PeerCommonName(tls_->native_handle());

@@ -46,8 +46,9 @@ class Session : public std::enable_shared_from_this<Session> {
   using TlsStream = boost::asio::ssl::stream<boost::asio::ip::tcp::socket>;
   void Arm(int ms);  // the timer: closes the connection after `ms`
   void OnHandshake(const boost::system::error_code& ec);
-  void EndHandshake();     // counts this session out of the handshakes in progress
-  void RefusePlaintext();  // answers one error frame in plaintext, then closes
+  void EndHandshake();                      // counts this session out of the handshakes in progress
+  void LogRefusal(const std::string& why);  // one log line and the metric's count
+  void RefusePlaintext();                   // answers one error frame in plaintext, then closes
   // After a refused handshake: stops sending and reads (discarding) for up to a second before
   // closing, so that a request the client sent meanwhile does not make the close a reset that
   // destroys the TLS alert on its way (the client would then see a lost connection, and retry).
