@@ -106,6 +106,10 @@ Result<std::shared_ptr<ssl::context>> MakeServerTlsContext(const TlsFiles& f) {
   ctx->set_verify_mode(ssl::verify_peer | ssl::verify_fail_if_no_peer_cert);
   static const unsigned char kContext[] = "sightfix";
   SSL_CTX_set_session_id_context(h, kContext, sizeof kContext - 1);
+  // Tickets (stateless, their key this context's: a reload's new context makes every older
+  // ticket a full handshake again) live as long as a connection may (max_connection_age_s's
+  // default); each resumption is verified again (VerifyResumedPeer).
+  SSL_CTX_set_timeout(h, 3600);
   SSL_CTX_set_alpn_select_cb(h, SelectAlpn, nullptr);
   return ctx;
 }
@@ -247,6 +251,104 @@ std::string VerifyProblem(SSL* ssl) {
   return result == X509_V_OK ? "" : X509_verify_cert_error_string(result);
 }
 
+namespace {
+
+// AddCrl's policy for an expired CRL, in a verification the server runs itself.
+int GraceVerify(int preverified, X509_STORE_CTX* vc) {
+  if (preverified) return 1;
+  const auto* until = static_cast<const int64_t*>(X509_STORE_CTX_get_app_data(vc));
+  return X509_STORE_CTX_get_error(vc) == X509_V_ERR_CRL_HAS_EXPIRED && until != nullptr &&
+         static_cast<int64_t>(std::time(nullptr)) < *until;
+}
+
+}  // namespace
+
+std::string VerifyResumedPeer(SSL* ssl, int64_t crl_grace_until_unix) {
+  X509* cert = SSL_get0_peer_certificate(ssl);
+  if (cert == nullptr) return "the resumed session holds no client certificate";
+  std::unique_ptr<X509_STORE_CTX, void (*)(X509_STORE_CTX*)> vc(X509_STORE_CTX_new(),
+                                                                X509_STORE_CTX_free);
+  if (!vc || X509_STORE_CTX_init(vc.get(), SSL_CTX_get_cert_store(SSL_get_SSL_CTX(ssl)), cert,
+                                 nullptr) != 1) {
+    ERR_clear_error();
+    return "cannot check the client certificate again";
+  }
+  X509_STORE_CTX_set_default(vc.get(), "ssl_client");
+  X509_STORE_CTX_set_app_data(vc.get(), &crl_grace_until_unix);
+  X509_STORE_CTX_set_verify_cb(vc.get(), GraceVerify);
+  const bool ok = X509_verify_cert(vc.get()) == 1;
+  const int err = X509_STORE_CTX_get_error(vc.get());
+  ERR_clear_error();
+  return ok ? "" : X509_verify_cert_error_string(err);
+}
+
+namespace {
+
+// A connection's ticket filing: the cache and the server the tickets belong to (SSL ex data,
+// freed with the SSL).
+struct TicketFiling {
+  std::shared_ptr<TlsSessionCache> cache;
+  std::string server;
+};
+
+void FreeFiling(void*, void* p, CRYPTO_EX_DATA*, int, long, void*) {
+  delete static_cast<TicketFiling*>(p);
+}
+
+int FilingIndex() {
+  static const int index = SSL_get_ex_new_index(0, nullptr, nullptr, nullptr, FreeFiling);
+  return index;
+}
+
+int OnNewSession(SSL* ssl, SSL_SESSION* session) {
+  auto* filing = static_cast<TicketFiling*>(SSL_get_ex_data(ssl, FilingIndex()));
+  if (filing == nullptr || !SSL_SESSION_is_resumable(session)) return 0;
+  filing->cache->Keep(filing->server, session);
+  return 1;  // the cache owns the reference now
+}
+
+}  // namespace
+
+std::shared_ptr<TlsSessionCache> TlsSessionCache::Install(ssl::context* ctx) {
+  auto cache = std::make_shared<TlsSessionCache>();
+  SSL_CTX* h = ctx->native_handle();
+  SSL_CTX_set_session_cache_mode(h, SSL_SESS_CACHE_CLIENT | SSL_SESS_CACHE_NO_INTERNAL_STORE);
+  SSL_CTX_sess_set_new_cb(h, OnNewSession);
+  return cache;
+}
+
+void TlsSessionCache::Prepare(SSL* ssl, const std::string& server) {
+  std::shared_ptr<SSL_SESSION> offered;
+  {
+    std::lock_guard<std::mutex> lock(mu_);
+    auto it = sessions_.find(server);
+    if (it != sessions_.end()) {
+      offered = it->second;
+      sessions_.erase(it);
+    }
+  }
+  if (offered) SSL_set_session(ssl, offered.get());  // takes its own reference
+  SSL_set_ex_data(ssl, FilingIndex(), new TicketFiling{shared_from_this(), server});
+}
+
+size_t TlsSessionCache::size() const {
+  std::lock_guard<std::mutex> lock(mu_);
+  return sessions_.size();
+}
+
+void TlsSessionCache::Forget(const std::string& server) {
+  std::lock_guard<std::mutex> lock(mu_);
+  sessions_.erase(server);
+}
+
+void TlsSessionCache::Keep(const std::string& server, SSL_SESSION* session) {
+  std::lock_guard<std::mutex> lock(mu_);
+  sessions_[server] = std::shared_ptr<SSL_SESSION>(session, SSL_SESSION_free);
+}
+
+void SetVerifyTime(SSL* ssl, int64_t unix_s) {
+  X509_VERIFY_PARAM_set_time(SSL_get0_param(ssl), static_cast<time_t>(unix_s));
+}
 std::string PeerCommonName(SSL* ssl) {
   X509* cert = SSL_get0_peer_certificate(ssl);
   if (cert == nullptr) return "";

@@ -8,8 +8,10 @@
 //    no other protocol reaches the frame decoder by accident.
 //  - No 0-RTT: OpenSSL accepts early data only when a server sets max_early_data, which this
 //    profile never does (early data can be replayed).
-//  - Session resumption carries a session id context ("sightfix"): a resumed session keeps the
-//    verified client identity of its full handshake and never skips verification.
+//  - Session resumption (TLS 1.3 tickets, an hour at most) carries a session id context
+//    ("sightfix"): a resumed session keeps the client identity of its full handshake, and the
+//    server checks that certificate again (VerifyResumedPeer), so resuming never skips
+//    verification. The client offers each ticket once (TlsSessionCache).
 // Boost 1.74's ssl::context has no API for the minimum version, ALPN, the session id context or
 // the client CA list sent in the CertificateRequest: those calls go to native_handle() here and
 // nowhere else.
@@ -17,7 +19,9 @@
 
 #include <boost/asio/ssl.hpp>
 #include <cstdint>
+#include <map>
 #include <memory>
+#include <mutex>
 #include <string>
 #include <vector>
 
@@ -84,4 +88,38 @@ inline constexpr unsigned char kTlsHandshakeRecord = 0x16;
 // The verified peer certificate's subject common name ("" without one).
 std::string PeerCommonName(SSL* ssl);
 
+// Server, after a handshake that resumed a session: OpenSSL trusts what the full handshake
+// verified, so the client's certificate is checked again here, against the context's CAs and
+// CRLs at the current time (a certificate that expired, or a CRL that revokes it since, is
+// caught). `crl_grace_until_unix`: an expired CRL is accepted until then (AddCrl's policy).
+// "" when it passes, else why not. Needs the client CA to sign the client's certificate
+// directly (a resumed session keeps the certificate, not its chain).
+std::string VerifyResumedPeer(SSL* ssl, int64_t crl_grace_until_unix);
+
+// Client session resumption: one ticket per server, used once (RFC 8446, C.4: a ticket reused
+// links a client's connections) and replaced by the ticket the server sends on each new
+// connection. Thread-safe.
+class TlsSessionCache : public std::enable_shared_from_this<TlsSessionCache> {
+ public:
+  // Makes a cache and installs its callback on the client context `ctx`
+  // (SSL_CTX_sess_set_new_cb); each stream Prepare()d keeps the cache alive.
+  static std::shared_ptr<TlsSessionCache> Install(boost::asio::ssl::context* ctx);
+  // Before a client handshake on `ssl`: offers the session kept for `server` (then forgets it)
+  // and files the tickets this connection receives under `server`.
+  void Prepare(SSL* ssl, const std::string& server);
+  size_t size() const;
+  // Drops the session kept for `server`: after a connection the server ended before answering
+  // (it may have refused the resumed session, and sent a fresh ticket first).
+  void Forget(const std::string& server);
+  // Internal (the context's callback): keeps `session` (owned from now on) for `server`.
+  void Keep(const std::string& server, SSL_SESSION* session);
+
+ private:
+  mutable std::mutex mu_;
+  std::map<std::string, std::shared_ptr<SSL_SESSION>> sessions_;
+};
+
+// Client, before a handshake: the peer's certificate validity is checked at `unix_s` instead
+// of the system clock (X509_VERIFY_PARAM_set_time): the client library's holdover clock.
+void SetVerifyTime(SSL* ssl, int64_t unix_s);
 }  // namespace sightfix

@@ -56,6 +56,7 @@ struct Connection {
 
   // From any thread: the I/O thread closes the socket; the pending calls fail from the read.
   void Close() {
+    closed_here = true;
     asio::post(io, [this] {
       boost::system::error_code ec;
       Tcp().shutdown(tcp::socket::shutdown_both, ec);
@@ -73,6 +74,9 @@ struct Connection {
   // A lost connection is worth a retry; a TLS refusal (a bad or missing client certificate, an
   // untrusted server) is not: it would only be refused again.
   void FailRead(const boost::system::error_code& ec) {
+    // Ended by the server: its ticket may be one it will not honour (a resumed session it
+    // refused after the handshake), so the next connection shakes hands in full.
+    if (sessions && !closed_here) sessions->Forget(session_key);
     if (ec.category() == asio::error::get_ssl_category() &&
         ec != asio::ssl::error::stream_truncated)
       return Fail(Status(StatusCode::kFailedPrecondition,
@@ -171,10 +175,23 @@ struct Connection {
     std::string why;
   };
 
-  // Before the I/O thread starts: connects (and with `tls_context` shakes hands) within
-  // timeout_ms on the calling thread.
-  Opened Open(const std::string& host, int port, asio::ssl::context* tls_context,
-              const std::string& server_name, int timeout_ms) {
+  // What a TLS handshake needs: the context, the name the server's certificate must carry,
+  // the ticket cache and the time certificates are checked at (Unix seconds).
+  struct TlsSetup {
+    asio::ssl::context* context = nullptr;  // null: plaintext
+    TlsSessionCache* sessions = nullptr;
+    std::string server_name;
+    int64_t verify_time_unix = 0;
+  };
+  bool resumed = false;  // the handshake resumed a session
+  // The ticket cache and this server's key in it; closed_here: this side closed (Close).
+  TlsSessionCache* sessions = nullptr;
+  std::string session_key;
+  std::atomic<bool> closed_here{false};
+
+  // Before the I/O thread starts: connects (and under TLS shakes hands) within timeout_ms on
+  // the calling thread.
+  Opened Open(const std::string& host, int port, const TlsSetup& setup, int timeout_ms) {
     auto failed = [](Opened::Kind kind, std::string why) { return Opened{kind, std::move(why)}; };
     boost::system::error_code ec;
     tcp::resolver resolver(io);
@@ -189,10 +206,15 @@ struct Connection {
                     "no connection within " + std::to_string(timeout_ms) + " ms");
     if (ec) return failed(Opened::kUnreachable, ec.message());
     socket.set_option(tcp::no_delay(true), ec);
-    if (tls_context) {
-      tls = std::make_unique<TlsStream>(std::move(socket), *tls_context);
-      if (Status s = SetClientServerName(tls->native_handle(), server_name); !s.ok())
+    if (setup.context) {
+      tls = std::make_unique<TlsStream>(std::move(socket), *setup.context);
+      SSL* ssl = tls->native_handle();
+      if (Status s = SetClientServerName(ssl, setup.server_name); !s.ok())
         return failed(Opened::kRefused, s.message());
+      SetVerifyTime(ssl, setup.verify_time_unix);
+      sessions = setup.sessions;
+      session_key = host + ":" + std::to_string(port) + "|" + setup.server_name;
+      sessions->Prepare(ssl, session_key);
       io.restart();
       done = false;
       tls->async_handshake(asio::ssl::stream_base::client,
@@ -210,6 +232,7 @@ struct Connection {
       }
       if (std::string alpn = AlpnProblem(tls->native_handle()); !alpn.empty())
         return failed(Opened::kRefused, "TLS: " + alpn);
+      resumed = SSL_session_reused(tls->native_handle()) == 1;
     }
     io.restart();
     return {};
@@ -227,7 +250,13 @@ struct Client::Impl {
   std::mutex mu;  // guards conn, current, failovers and next_id
   std::shared_ptr<Connection> conn;
   std::shared_ptr<asio::ssl::context> tls;  // null: plaintext
-  size_t current = 0;                       // the endpoint conn is (or was last) connected to
+  std::shared_ptr<TlsSessionCache> tls_sessions;
+  // The holdover clock (CertificateClock::kHoldover): wall_clock's reading at the first
+  // connect and the monotonic time then.
+  std::chrono::system_clock::time_point anchor_wall;
+  std::chrono::steady_clock::time_point anchor_steady;
+  std::atomic<uint64_t> resumed{0};
+  size_t current = 0;  // the endpoint conn is (or was last) connected to
   uint64_t next_id = 1;
   std::mt19937_64 random{std::random_device{}()};  // nonces and jitter; guarded by mu
   std::atomic<uint64_t> resent{0};
@@ -259,9 +288,13 @@ struct Client::Impl {
       const size_t i = (first + k) % n;
       auto c = std::make_shared<Connection>();
       c->max_answer_bytes = o.max_answer_bytes;
-      const std::string name = o.tls_server_name.empty() ? endpoints[i].first : o.tls_server_name;
+      Connection::TlsSetup setup;
+      if (tls)
+        setup = {tls.get(), tls_sessions.get(),
+                 o.tls_server_name.empty() ? endpoints[i].first : o.tls_server_name,
+                 CertificateTime()};
       const Connection::Opened opened =
-          c->Open(endpoints[i].first, endpoints[i].second, tls.get(), name, o.connect_timeout_ms);
+          c->Open(endpoints[i].first, endpoints[i].second, setup, o.connect_timeout_ms);
       if (opened.kind != Connection::Opened::kOk) {
         refused = refused || opened.kind == Connection::Opened::kRefused;
         if (closed_handshake && opened.kind == Connection::Opened::kClosedHandshake)
@@ -269,6 +302,7 @@ struct Client::Impl {
         why += (why.empty() ? "" : "; ") + Label(i) + ": " + opened.why;
         continue;
       }
+      resumed += c->resumed;
       c->Start();
       conn = c;
       current = i;
@@ -277,6 +311,17 @@ struct Client::Impl {
     const std::string what =
         "cannot connect to " + (n == 1 ? why : "any of " + AllLabels() + " (" + why + ")");
     return refused ? Status(StatusCode::kFailedPrecondition, what) : Status::IoError(what);
+  }
+
+  // Unix seconds at which the server's certificate is checked (ClientOptions::CertificateClock).
+  int64_t CertificateTime() const {
+    using std::chrono::system_clock;
+    const system_clock::time_point t =
+        o.certificate_clock == ClientOptions::CertificateClock::kWallClock
+            ? o.wall_clock()
+            : anchor_wall + std::chrono::duration_cast<system_clock::duration>(
+                                std::chrono::steady_clock::now() - anchor_steady);
+    return std::chrono::duration_cast<std::chrono::seconds>(t.time_since_epoch()).count();
   }
 
   // 16 random bytes: the nonce a call's answer must echo.
@@ -395,6 +440,22 @@ std::string Client::endpoint() const {
 }
 Client::~Client() = default;
 
+void Client::Disconnect() {
+  std::shared_ptr<Connection> c;
+  {
+    std::lock_guard<std::mutex> lock(impl_->mu);
+    c = impl_->conn;
+  }
+  if (!c) return;
+  {
+    std::lock_guard<std::mutex> lock(c->mu);
+    c->dead = true;  // no new call on it; the ones in flight fail from the read and go again
+  }
+  c->Close();
+}
+
+uint64_t Client::resumed_handshakes() const { return impl_->resumed.load(); }
+
 Result<std::unique_ptr<Client>> Client::Connect(const ClientOptions& options) {
   auto impl = std::make_unique<Impl>();
   impl->o = options;
@@ -416,6 +477,10 @@ Result<std::unique_ptr<Client>> Client::Connect(const ClientOptions& options) {
         MakeClientTlsContext({options.tls_cert_file, options.tls_key_file, options.tls_ca_file});
     if (!ctx.ok()) return ctx.status();
     impl->tls = *ctx;
+    impl->tls_sessions = TlsSessionCache::Install(impl->tls.get());
+    if (!options.wall_clock) return Status::InvalidArgument("wall_clock must be set");
+    impl->anchor_wall = options.wall_clock();
+    impl->anchor_steady = std::chrono::steady_clock::now();
   }
   // A server over its handshake limit closes the handshake: tried again, with jittered
   // doubling pauses, within connect_timeout_ms.

@@ -10,6 +10,8 @@
 // concurrently.
 #pragma once
 
+#include <chrono>
+#include <functional>
 #include <future>
 #include <memory>
 #include <string>
@@ -31,7 +33,25 @@ struct ClientOptions {
   // this vehicle's certificate and key, which a TLS server requires; the name the server's
   // certificate must carry (default: the endpoint's host; a DNS name is also sent as SNI).
   // A server that refuses the certificate fails the call with kFailedPrecondition, not retried.
+  // A reconnect resumes the TLS session (a ticket from the server, offered once) when the
+  // server still accepts it, which costs a fraction of a full handshake; the server checks the
+  // vehicle's certificate again either way.
   std::string tls_ca_file, tls_cert_file, tls_key_file, tls_server_name;
+  // The time the server's certificate is checked against (notBefore, notAfter). A vehicle's
+  // wall clock is often set from its GNSS receiver, the very source under attack: a clock
+  // pushed forward makes a valid server look expired (no fallback just when it is needed), one
+  // pushed back makes an expired, perhaps compromised, certificate look valid.
+  //  kHoldover (default): wall_clock is read once, when the client connects first, and carried
+  //    forward on the monotonic clock; later jumps of the wall clock do not move it. Connect
+  //    while the clock is trusted (or give wall_clock a trusted source).
+  //  kWallClock: wall_clock at each handshake.
+  // The server checks vehicle certificates on its own clock (service.h).
+  enum class CertificateClock { kHoldover, kWallClock };
+  CertificateClock certificate_clock = CertificateClock::kHoldover;
+  // The wall clock the above reads: the system's, or a stack's own trusted time source.
+  std::function<std::chrono::system_clock::time_point()> wall_clock = [] {
+    return std::chrono::system_clock::now();
+  };
   // To connect and finish the TLS handshake; Connect also tries again within it, with the
   // backoff below, while a server over its handshake limit closes the handshake.
   int connect_timeout_ms = 3000;
@@ -78,6 +98,11 @@ class Client {
   uint64_t resent_calls() const;
   // The endpoint ("HOST:PORT") the client is or was last connected to.
   std::string endpoint() const;
+  // Closes the live connection (its calls in flight are sent again); the next call connects
+  // anew, resuming the TLS session where the server allows. For a stack whose network changed.
+  void Disconnect();
+  // TLS handshakes so far that resumed a session (of all the client's handshakes).
+  uint64_t resumed_handshakes() const;
 
  private:
   struct Impl;

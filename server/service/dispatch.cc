@@ -139,6 +139,11 @@ void Service::Impl::Dispatch(const std::shared_ptr<Session>& s, v1::Envelope env
   if (draining)
     return Answer(s, id, method, v1::Status::UNAVAILABLE, "the server is shutting down", "",
                   received);
+  if (s->retired())
+    return Answer(s, id, method, v1::Status::UNAVAILABLE,
+                  "this connection reached its age limit (" +
+                      std::to_string(o.max_connection_age_s) + " s): reconnect",
+                  "", received);
   if (method == "Describe")
     return Answer(s, id, method, v1::Status::OK, "", DescribeBody(), received);
   if (method == "ListTiles")
@@ -159,33 +164,6 @@ void Service::Impl::Dispatch(const std::shared_ptr<Session>& s, v1::Envelope env
   }
   Answer(s, id, method, v1::Status::OVERLOADED, "queue full (" + std::to_string(o.queue) + ")", "",
          received);
-}
-
-bool Service::Impl::TakeShare(const std::string& client, Clock::time_point now) {
-  // Bounded: a bucket full again is as good as none, so the map is swept when it grows.
-  if (buckets.size() > 4096)
-    for (auto it = buckets.begin(); it != buckets.end();)
-      it = std::chrono::duration<double>(now - it->second.last).count() * o.client_calls_per_s >=
-                   o.client_burst
-               ? buckets.erase(it)
-               : std::next(it);
-  auto [it, fresh] = buckets.try_emplace(client, Bucket{double(o.client_burst), now});
-  Bucket& b = it->second;
-  if (!fresh) {
-    b.tokens = std::min<double>(
-        o.client_burst,
-        b.tokens + std::chrono::duration<double>(now - b.last).count() * o.client_calls_per_s);
-    b.last = now;
-  }
-  if (b.tokens < 1) return false;
-  b.tokens -= 1;
-  return true;
-}
-
-std::string Service::Impl::FormatShare() const {
-  char buf[96];
-  std::snprintf(buf, sizeof buf, "%g calls/s, burst %d", o.client_calls_per_s, o.client_burst);
-  return buf;
 }
 
 void Service::Impl::WorkerLoop() {

@@ -47,6 +47,9 @@ std::string Metrics::Text(const Gauges& g) const {
   t += "# HELP sightfix_tls_refused_total Connections refused in the TLS handshake.\n"
        "# TYPE sightfix_tls_refused_total counter\nsightfix_tls_refused_total " +
        std::to_string(g.tls_refused) + "\n";
+  t += "# HELP sightfix_tls_resumed_total TLS handshakes that resumed a session.\n"
+       "# TYPE sightfix_tls_resumed_total counter\nsightfix_tls_resumed_total " +
+       std::to_string(g.tls_resumed) + "\n";
   if (g.crl_next_update > 0)
     gauge("sightfix_tls_crl_next_update_seconds",
           "Earliest nextUpdate of the client CRLs, Unix seconds (renew before it).",

@@ -27,6 +27,7 @@ class Metrics {
     int tiles_bad = 0;
     int map_version = 0;
     long tls_refused = 0;         // connections refused in the TLS handshake, since start
+    long tls_resumed = 0;         // TLS handshakes that resumed a session, since start
     int64_t crl_next_update = 0;  // Unix seconds (0: no CRL)
   };
 

@@ -99,6 +99,9 @@ bool ServiceOptions::Validate(std::string* error) const {
 
 Service::Service(std::unique_ptr<Impl> impl) : impl_(std::move(impl)) {}
 
+  if (!(handshake_rate_per_address >= 0))
+    return fail("handshake_rate_per_address must be >= 0 (0: no limit)");
+  if (max_connection_age_s < 0) return fail("max_connection_age_s must be >= 0 (0: no limit)");
 Service::~Service() {
   impl_->StopScrub();
   {

@@ -80,10 +80,23 @@ struct ServiceOptions {
   // their first use.
   bool scrub = true;
   LocalizerOptions engine;
+  // Handshakes are also paced per source address: handshake_rate_per_address new ones a
+  // second (a burst of twice that), beyond which a connection is closed before any TLS work
+  // (each full handshake costs the I/O thread a signature and a certificate check: a flood
+  // from one address would otherwise slow every other client's calls). 0: no pacing. Many
+  // vehicles behind one NAT, or a balancer that does not pass addresses on, share one address:
+  // raise both per-address limits there.
   bool Validate(std::string* error) const;
 };
+  double handshake_rate_per_address = 20;
 
 class Service {
+  // A connection older than this is retired: calls arriving on it are answered UNAVAILABLE
+  // ("reconnect"), which the client library sends again on a new connection, whose handshake
+  // checks the certificate again (expiry, the CRL); after a grace of default_deadline_ms more
+  // the server closes it. Bounds how long a certificate that expired, or a CRL entry added
+  // without a reload, goes unnoticed on a live connection. 0: no limit.
+  int max_connection_age_s = 3600;
  public:
   // Opens the map and binds the ports (0 picks a free one). Fails with the reason (bad options,
   // map, token file, address in use, open address without token).

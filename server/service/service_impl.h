@@ -75,6 +75,7 @@ struct Service::Impl {
 
   std::atomic<int> connections{0};
   std::atomic<uint64_t> tls_refused{0};
+  std::atomic<uint64_t> tls_resumed{0};  // handshakes that resumed a session
   // TLS on the query port (null: plaintext) and its CRLs (null: none); swapped on the I/O
   // thread by a reload. Sessions hold their own reference to the context they began with.
   std::shared_ptr<boost::asio::ssl::context> tls;
@@ -82,15 +83,22 @@ struct Service::Impl {
   std::atomic<int64_t> crl_next_update{0};       // Unix seconds, 0 without a CRL (for /metrics)
   std::vector<std::weak_ptr<Session>> sessions;  // the I/O thread's: live ones are checked
                                                  // against a reloaded CRL
-  // Fair shares (ServiceOptions), the I/O thread's: handshakes in progress, in all and by
-  // source address; each client's token bucket (tokens, last refill).
+  // Fair shares (ServiceOptions; fair_shares.cc), the I/O thread's: handshakes in progress,
+  // in all and by source address; token buckets (tokens, last refill) of new handshakes by
+  // address and of calls by client; when a refusal from an address was last logged.
   int handshakes = 0;
   std::map<std::string, int> handshakes_by_address;
   struct Bucket {
     double tokens = 0;
     Clock::time_point last;
   };
-  std::map<std::string, Bucket> buckets;
+  std::map<std::string, Bucket> handshake_buckets, buckets;
+  std::map<std::string, Clock::time_point> refusals_logged;
+  // Before any TLS work on a connection from `address`: "" when it may shake hands (counted
+  // in handshakes until HandshakeDone), else why not; *log tells whether to log this refusal
+  // (the first from the address in 10 s: a flood is not logged line by line).
+  std::string AdmitHandshake(const std::string& address, Clock::time_point now, bool* log);
+  void HandshakeDone(const std::string& address);
   // True when `client` may make one more call now (takes a token).
   bool TakeShare(const std::string& client, Clock::time_point now);
   std::string FormatShare() const;  // "R calls/s, burst B"

@@ -15,6 +15,7 @@ Session::Session(tcp::socket socket, Service::Impl* svc)
     : socket_(socket.get_executor()),
       tls_context_(svc->tls),
       timer_(socket.get_executor()),
+      age_timer_(socket.get_executor()),
       svc_(svc) {
   boost::system::error_code ec;
   const auto ep = socket.remote_endpoint(ec);
@@ -30,17 +31,15 @@ Session::Session(tcp::socket socket, Service::Impl* svc)
 }
 
 void Session::Start() {
+  ArmAge();
   if (!tls_) return ReadHeader();
-  // Fair shares before any TLS work: handshakes in progress, in all and from this address.
-  int& mine = svc_->handshakes_by_address[address_];
-  if (svc_->handshakes >= svc_->o.max_handshakes || mine >= svc_->o.max_handshakes_per_address) {
-    const int from_here = mine;
-    if (mine == 0) svc_->handshakes_by_address.erase(address_);
-    LogRefusal("too many handshakes in progress (" + std::to_string(svc_->handshakes) +
-               " in all, " + std::to_string(from_here) + " from this address)");
+  // Fair shares before any TLS work: handshakes in progress and new ones from this address.
+  bool log = true;
+  if (std::string why = svc_->AdmitHandshake(address_, Clock::now(), &log); !why.empty()) {
+    LogRefusal(why, log);
     return Close();
   }
-  ++mine, ++svc_->handshakes, handshaking_ = true;
+  handshaking_ = true;
   Arm(svc_->o.read_timeout_ms);  // a stalled handshake is cut off as a stalled frame is
   // A look at the first byte: a plaintext client gets a plaintext answer saying why not.
   Tcp().async_receive(asio::buffer(header_, 1), tcp::socket::message_peek,
@@ -92,19 +91,17 @@ void Session::RefusePlaintext() {
                     });
 }
 
-void Session::LogRefusal(const std::string& why) {
-  std::fprintf(stderr, "{\"peer\":\"%s\",\"tls_refused\":%s}\n", peer_.c_str(),
-               nlohmann::json(why).dump().c_str());
+void Session::LogRefusal(const std::string& why, bool log) {
+  if (log)
+    std::fprintf(stderr, "{\"peer\":\"%s\",\"tls_refused\":%s}\n", peer_.c_str(),
+                 nlohmann::json(why).dump().c_str());
   ++svc_->tls_refused;
 }
 
 void Session::EndHandshake() {
   if (!handshaking_) return;
   handshaking_ = false;
-  --svc_->handshakes;
-  auto it = svc_->handshakes_by_address.find(address_);
-  if (it != svc_->handshakes_by_address.end() && --it->second <= 0)
-    svc_->handshakes_by_address.erase(it);
+  svc_->HandshakeDone(address_);
 }
 
 void Session::OnHandshake(const boost::system::error_code& ec) {
@@ -119,7 +116,17 @@ void Session::OnHandshake(const boost::system::error_code& ec) {
     LogRefusal(why);
     return closed_ ? void() : Linger();
   }
-  identity_ = PeerCommonName(tls_->native_handle());
+  SSL* ssl = tls_->native_handle();
+  if (SSL_session_reused(ssl)) {
+    ++svc_->tls_resumed;
+    const int64_t grace_until =
+        svc_->crls ? svc_->crls->next_update_unix + svc_->o.tls_crl_grace_s : 0;
+    if (std::string v = VerifyResumedPeer(ssl, grace_until); !v.empty()) {
+      LogRefusal("resumed session: " + v);
+      return Close();  // the client's cached session is single-use: it comes back in full
+    }
+  }
+  identity_ = PeerCommonName(ssl);
   ReadHeader();
 }
 
@@ -141,6 +148,7 @@ void Session::Close() {
   if (closed_) return;
   closed_ = true;
   timer_.cancel();
+  age_timer_.cancel();
   boost::system::error_code ec;
   Tcp().shutdown(tcp::socket::shutdown_both, ec);
   Tcp().close(ec);
@@ -150,6 +158,19 @@ void Session::Arm(int ms) {
   timer_.expires_after(std::chrono::milliseconds(ms));
   timer_.async_wait([self = shared_from_this()](const boost::system::error_code& ec) {
     if (!ec) self->Close();  // timed out: slow or idle peer
+  });
+}
+
+void Session::ArmAge() {
+  if (svc_->o.max_connection_age_s <= 0) return;
+  age_timer_.expires_after(std::chrono::seconds(svc_->o.max_connection_age_s));
+  age_timer_.async_wait([self = shared_from_this()](const boost::system::error_code& ec) {
+    if (ec || self->closed_) return;
+    self->retired_ = true;  // calls from now on: UNAVAILABLE, reconnect
+    self->age_timer_.expires_after(std::chrono::milliseconds(self->svc_->o.default_deadline_ms));
+    self->age_timer_.async_wait([self](const boost::system::error_code& e) {
+      if (!e) self->Close();
+    });
   });
 }
 

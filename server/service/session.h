@@ -8,7 +8,11 @@
 // within read_timeout_ms; a peer that fails it (no or a bad certificate, an old protocol, no
 // ALPN of ours, garbage) is logged as refused and closed before any frame is read; a client
 // whose first byte is not a TLS handshake record gets one plaintext error frame saying so. The
-// certificate's common name then names the caller (identity()).
+// certificate's common name then names the caller (identity()). A resumed TLS session has its
+// client's certificate checked again against the current CRL and time (OpenSSL itself trusts
+// what the full handshake verified); one that fails is logged as refused and closed.
+// Age (max_connection_age_s): a connection past it is retired() (Dispatch answers its calls
+// UNAVAILABLE, "reconnect") and closed after a grace of default_deadline_ms.
 // Thread safety: none; every method runs on the I/O thread (workers post to it); peer() and
 // identity() are fixed before the first call is dispatched.
 #pragma once
@@ -38,6 +42,7 @@ class Session : public std::enable_shared_from_this<Session> {
   const std::string& address() const { return address_; }    // the peer's address, or "?"
   const std::string& identity() const { return identity_; }  // TLS: the certificate's CN
   bool RevokedBy(const CrlSet& crls);  // TLS: the client's certificate is on a CRL
+  bool retired() const { return retired_; }  // past max_connection_age_s
   // Queues a frame; closes the connection when the client is not reading.
   void Send(std::string frame, bool close_after = false);
   void Close();
@@ -45,9 +50,11 @@ class Session : public std::enable_shared_from_this<Session> {
  private:
   using TlsStream = boost::asio::ssl::stream<boost::asio::ip::tcp::socket>;
   void Arm(int ms);  // the timer: closes the connection after `ms`
+  void ArmAge();     // retires the connection at its age limit, closes it after the grace
   void OnHandshake(const boost::system::error_code& ec);
   void EndHandshake();                      // counts this session out of the handshakes in progress
-  void LogRefusal(const std::string& why);  // one log line and the metric's count
+  // The metric's count, and one log line unless `log` is false (a flood's refusals).
+  void LogRefusal(const std::string& why, bool log = true);
   void RefusePlaintext();                   // answers one error frame in plaintext, then closes
   // After a refused handshake: stops sending and reads (discarding) for up to a second before
   // closing, so that a request the client sent meanwhile does not make the close a reset that
@@ -70,10 +77,11 @@ class Session : public std::enable_shared_from_this<Session> {
   boost::asio::ip::tcp::socket socket_;                     // plaintext; moved into tls_ under TLS
   std::shared_ptr<boost::asio::ssl::context> tls_context_;  // kept while the session lives
   std::unique_ptr<TlsStream> tls_;
-  boost::asio::steady_timer timer_;
+  boost::asio::steady_timer timer_, age_timer_;
   Service::Impl* svc_;
   std::string peer_, address_, identity_;
   bool handshaking_ = false;  // counted in the service's handshakes in progress
+  bool retired_ = false;
   uint8_t header_[kFrameHeaderBytes];
   std::vector<uint8_t> body_;
   std::deque<std::string> writes_;

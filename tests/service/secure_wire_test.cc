@@ -1,10 +1,14 @@
 // The secured wire on loopback against the service's demo map (fixture: service_fixture.h): an
-// answer held up on the way refused as stale, the nonce echoed, each client's fair share, and
-// TLS from many threads while the server rereads its TLS files (run under ThreadSanitizer by
-// scripts/test-sanitizers.sh tsan). tests/robustness/tls_test.sh covers TLS from the shell.
+// answer held up on the way refused as stale, the nonce echoed, each client's fair share, TLS
+// from many threads while the server rereads its TLS files (run under ThreadSanitizer by
+// scripts/test-sanitizers.sh tsan), session resumption and its check of the certificate, a
+// client whose clock jumps, the connection age cap and the pacing of handshakes.
+// tests/robustness/tls_test.sh covers TLS from the shell.
 #include <array>
 #include <atomic>
+#include <ctime>
 #include <thread>
+#include <vector>
 
 #include "tests/service/service_fixture.h"
 
@@ -138,28 +142,55 @@ TEST_F(ServiceTest, EachClientGetsItsShare) {
   EXPECT_GT(c->resent_calls(), 0u);  // it waited its turn
 }
 
+// A certificate authority made with scripts/make-certs.sh in a fresh folder: each step is the
+// script's arguments after the folder; `ca_args` goes to `openssl ca` (CA_ARGS).
+std::string MakePki(const std::string& name, const std::vector<std::string>& steps) {
+  const std::string pki = ::testing::TempDir() + "/" + name + "_" + std::to_string(::getpid());
+  const std::string certs = std::string("bash ") + SIGHTFIX_SOURCE_DIR + "/scripts/make-certs.sh ";
+  std::filesystem::remove_all(pki);
+  for (const std::string& step : steps)
+    EXPECT_EQ(std::system((certs + pki + " " + step + " >/dev/null").c_str()), 0) << step;
+  return pki;
+}
+
+// A validity end `seconds` from now, in openssl ca's -enddate form (YYYYMMDDHHMMSSZ, UTC).
+std::string EndIn(int seconds) {
+  const std::time_t t = std::time(nullptr) + seconds;
+  char buf[32];
+  std::strftime(buf, sizeof buf, "%Y%m%d%H%M%SZ", std::gmtime(&t));
+  return buf;
+}
+
+ServiceOptions TlsService(const std::string& pki, bool crl) {
+  ServiceOptions o;
+  o.tls_cert_file = pki + "/localhost.crt", o.tls_key_file = pki + "/localhost.key";
+  o.tls_client_ca_file = pki + "/ca.crt";
+  if (crl) o.tls_crl_file = pki + "/crl.pem";
+  o.workers = 2;
+  return o;
+}
+
+ClientOptions TlsClient(const std::string& pki, int port, const std::string& vehicle) {
+  ClientOptions co;
+  co.port = port;
+  co.tls_ca_file = pki + "/ca.crt", co.tls_server_name = "localhost";
+  co.tls_cert_file = pki + "/" + vehicle + ".crt", co.tls_key_file = pki + "/" + vehicle + ".key";
+  return co;
+}
+
+const char kServerStep[] = "server localhost DNS:localhost IP:127.0.0.1";
+
 // TLS from many threads at once while the server rereads its TLS files (and its map): every
 // call of a good vehicle is answered, a revoked one is refused and not retried. Run under
 // ThreadSanitizer by scripts/test-sanitizers.sh tsan: the client's one I/O thread per
 // connection, the server's session swap of contexts and its check of live sessions against a
-// reloaded CRL. Certificates from scripts/make-certs.sh.
+// reloaded CRL.
 TEST_F(ServiceTest, TlsCallsFromManyThreadsWhileTheTlsFilesReload) {
-  const std::string pki = ::testing::TempDir() + "/service_tls_" + std::to_string(::getpid());
-  const std::string certs = std::string("bash ") + SIGHTFIX_SOURCE_DIR + "/scripts/make-certs.sh ";
-  for (const std::string step : {"ca", "server localhost DNS:localhost IP:127.0.0.1",
-                                 "vehicle vehicle-1", "vehicle vehicle-2", "revoke vehicle-2"})
-    ASSERT_EQ(std::system((certs + pki + " " + step + " >/dev/null").c_str()), 0) << step;
-  ServiceOptions o;
-  o.tls_cert_file = pki + "/localhost.crt", o.tls_key_file = pki + "/localhost.key";
-  o.tls_client_ca_file = pki + "/ca.crt", o.tls_crl_file = pki + "/crl.pem";
-  o.workers = 2;
-  ASSERT_TRUE(Start(o));
+  const std::string pki = MakePki("service_tls", {"ca", kServerStep, "vehicle vehicle-1",
+                                                  "vehicle vehicle-2", "revoke vehicle-2"});
+  ASSERT_TRUE(Start(TlsService(pki, true)));
   auto connect = [&](const std::string& vehicle) {
-    ClientOptions co;
-    co.port = service_->port();
-    co.tls_ca_file = pki + "/ca.crt", co.tls_server_name = "localhost";
-    co.tls_cert_file = pki + "/" + vehicle + ".crt", co.tls_key_file = pki + "/" + vehicle + ".key";
-    return Client::Connect(co);
+    return Client::Connect(TlsClient(pki, service_->port(), vehicle));
   };
   auto good = connect("vehicle-1");
   ASSERT_TRUE(good.ok()) << good.status().ToString();
@@ -186,6 +217,109 @@ TEST_F(ServiceTest, TlsCallsFromManyThreadsWhileTheTlsFilesReload) {
   EXPECT_EQ(refused.status().code(), StatusCode::kFailedPrecondition)
       << refused.status().ToString();
   EXPECT_EQ((*revoked)->resent_calls(), 0u);
+}
+
+// Resumption: a reconnect resumes the TLS session (cheaper than a full handshake), and the
+// server checks the vehicle's certificate again when it does. A certificate that expires
+// between the full handshake and the reconnect is refused: the resumed connection is closed,
+// the call sent again on a full handshake, which the server refuses with an alert.
+TEST_F(ServiceTest, AReconnectResumesTheSessionAndTheCertificateIsCheckedAgain) {
+  const std::string pki = MakePki("service_resume", {"ca", kServerStep, "vehicle vehicle-1"});
+  ASSERT_EQ(std::system(("CA_ARGS='-enddate " + EndIn(3) + "' bash " + SIGHTFIX_SOURCE_DIR +
+                         "/scripts/make-certs.sh " + pki + " vehicle short-lived >/dev/null")
+                            .c_str()),
+            0);
+  ASSERT_TRUE(Start(TlsService(pki, false)));
+  auto good = Client::Connect(TlsClient(pki, service_->port(), "vehicle-1"));
+  auto brief = Client::Connect(TlsClient(pki, service_->port(), "short-lived"));
+  ASSERT_TRUE(good.ok() && brief.ok());
+  for (Client* c : {good->get(), brief->get()}) {
+    ASSERT_TRUE(c->Describe(5000).ok());
+    EXPECT_EQ(c->resumed_handshakes(), 0u);
+  }
+  std::this_thread::sleep_for(std::chrono::seconds(4));  // short-lived has expired
+  (*good)->Disconnect();
+  EXPECT_TRUE((*good)->Describe(5000).ok());
+  EXPECT_EQ((*good)->resumed_handshakes(), 1u);
+  (*brief)->Disconnect();
+  auto refused = (*brief)->Describe(5000);
+  EXPECT_EQ((*brief)->resumed_handshakes(), 1u);
+  ASSERT_FALSE(refused.ok());
+  EXPECT_EQ(refused.status().code(), StatusCode::kFailedPrecondition)
+      << refused.status().ToString();
+}
+
+// The clock: a client whose wall clock jumps three years ahead (a spoofed GNSS time) after it
+// connected. Under the holdover clock it keeps checking the server's certificate at its own
+// carried-forward time and goes on; a client that reads the wall clock at each handshake finds
+// the certificate expired. The server's reload makes the next handshakes full ones.
+TEST_F(ServiceTest, AClientWhoseClockJumpsKeepsItsHoldoverTime) {
+  const std::string pki = MakePki("service_clock", {"ca", kServerStep, "vehicle vehicle-1"});
+  ASSERT_TRUE(Start(TlsService(pki, false)));
+  auto jump_s = std::make_shared<std::atomic<int64_t>>(0);
+  auto connect = [&](ClientOptions::CertificateClock clock) {
+    ClientOptions co = TlsClient(pki, service_->port(), "vehicle-1");
+    co.certificate_clock = clock;
+    co.wall_clock = [jump_s] {
+      return std::chrono::system_clock::now() + std::chrono::seconds(jump_s->load());
+    };
+    auto c = Client::Connect(co);
+    EXPECT_TRUE(c.ok()) << c.status().ToString();
+    return c.ok() ? std::move(c).value() : nullptr;
+  };
+  auto holdover = connect(ClientOptions::CertificateClock::kHoldover);
+  auto wall = connect(ClientOptions::CertificateClock::kWallClock);
+  ASSERT_TRUE(holdover && wall);
+  jump_s->store(int64_t{3} * 366 * 24 * 3600);
+  ASSERT_TRUE(service_->Reload().ok());  // new ticket keys: no resumption below
+  for (Client* c : {holdover.get(), wall.get()}) c->Disconnect();
+  auto kept = holdover->Describe(5000);
+  EXPECT_TRUE(kept.ok()) << kept.status().ToString();
+  EXPECT_EQ(holdover->resumed_handshakes(), 0u);
+  auto lost = wall->Describe(5000);
+  ASSERT_FALSE(lost.ok());
+  EXPECT_EQ(lost.status().code(), StatusCode::kFailedPrecondition) << lost.status().ToString();
+  EXPECT_NE(lost.status().message().find("expired"), std::string::npos) << lost.status().ToString();
+}
+
+// The connection age cap: a call on a connection past its age is answered UNAVAILABLE, which
+// the client library sends again on a new connection; the server closes the old one after its
+// grace.
+TEST_F(ServiceTest, AConnectionPastItsAgeIsRetired) {
+  ServiceOptions o;
+  o.max_connection_age_s = 1;
+  o.default_deadline_ms = 500;
+  ASSERT_TRUE(Start(o));
+  auto c = Connect();
+  ASSERT_TRUE(c && c->Describe(5000).ok());
+  std::this_thread::sleep_for(std::chrono::milliseconds(1200));
+  EXPECT_TRUE(c->Describe(5000).ok());
+  EXPECT_EQ(c->resent_calls(), 1u);
+  EXPECT_TRUE(c->Describe(5000).ok());  // on the new connection
+  EXPECT_EQ(c->resent_calls(), 1u);
+}
+
+// Handshakes paced per source address: past the burst (twice the rate), a new connection is
+// closed before any TLS work until the bucket refills.
+TEST_F(ServiceTest, HandshakesArePacedPerAddress) {
+  const std::string pki = MakePki("service_pace", {"ca", kServerStep, "vehicle vehicle-1"});
+  ServiceOptions o = TlsService(pki, false);
+  o.handshake_rate_per_address = 1;  // a burst of 2
+  ASSERT_TRUE(Start(o));
+  ClientOptions co = TlsClient(pki, service_->port(), "vehicle-1");
+  co.connect_timeout_ms = 300;  // shorter than a refill: no second try lands
+  std::vector<std::unique_ptr<Client>> clients;
+  for (int k = 0; k < 3; ++k) {
+    auto c = Client::Connect(co);
+    if (k < 2) {
+      ASSERT_TRUE(c.ok()) << k << ": " << c.status().ToString();
+      clients.push_back(std::move(c).value());
+    } else {
+      EXPECT_FALSE(c.ok()) << "the third handshake within a second was not refused";
+    }
+  }
+  std::this_thread::sleep_for(std::chrono::milliseconds(1100));
+  EXPECT_TRUE(Client::Connect(co).ok());
 }
 
 }  // namespace
