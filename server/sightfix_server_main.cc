@@ -50,23 +50,23 @@ po::options_description Flags(sightfix::ServiceOptions* o, size_t* cache_mb, dou
       "max-handshakes-per-address",
       po::value(&o->max_handshakes_per_address)->default_value(o->max_handshakes_per_address),
       "TLS handshakes in progress from one source address")(
-      "client-calls-per-s", po::value(&o->client_calls_per_s)->default_value(0),
-      "each client's share (by certificate, else address): calls a second, beyond the burst "
-      "answered RATE_LIMITED (0: no limit)")(
-      "client-burst", po::value(&o->client_burst)->default_value(o->client_burst),
       "handshake-rate-per-address",
       po::value(&o->handshake_rate_per_address)->default_value(o->handshake_rate_per_address),
       "new TLS handshakes a second from one source address (burst twice that); 0: no limit. "
       "Raise it where many vehicles share an address (NAT, a balancer)")(
+      "client-calls-per-s", po::value(&o->client_calls_per_s)->default_value(0),
+      "each client's share (by certificate, else address): calls a second, beyond the burst "
+      "answered RATE_LIMITED (0: no limit)")(
+      "client-burst", po::value(&o->client_burst)->default_value(o->client_burst),
       "calls a client may make at once before its rate applies")(
-      "plaintext-beyond-loopback",
-      "serve beyond loopback without TLS: anyone on the path reads and can forge fixes (not "
-      "advised)")("no-scrub",
-                  "skip the background check of every tile file at start (tiles are still "
       "max-connection-age-s",
       po::value(&o->max_connection_age_s)->default_value(o->max_connection_age_s),
       "retire a connection after this long: its client reconnects, and a new handshake checks "
       "its certificate again (0: never)")(
+      "plaintext-beyond-loopback",
+      "serve beyond loopback without TLS: anyone on the path reads and can forge fixes (not "
+      "advised)")("no-scrub",
+                  "skip the background check of every tile file at start (tiles are still "
                   "checked against the catalog before first use)")(
       "tile-cache-mb", po::value(cache_mb)->default_value(*cache_mb), "memory for loaded tiles");
   return desc;

@@ -92,6 +92,9 @@ bool ServiceOptions::Validate(std::string* error) const {
   if (!(client_calls_per_s >= 0) || client_burst < 1)
     return fail("client_calls_per_s must be >= 0 (0: no limit) and client_burst >= 1");
   if (tls_crl_grace_s < 0) return fail("the CRL grace must be >= 0 seconds");
+  if (!(handshake_rate_per_address >= 0))
+    return fail("handshake_rate_per_address must be >= 0 (0: no limit)");
+  if (max_connection_age_s < 0) return fail("max_connection_age_s must be >= 0 (0: no limit)");
   std::string e;
   if (!engine.Validate(&e)) return fail("engine: " + e);
   return true;
@@ -99,9 +102,6 @@ bool ServiceOptions::Validate(std::string* error) const {
 
 Service::Service(std::unique_ptr<Impl> impl) : impl_(std::move(impl)) {}
 
-  if (!(handshake_rate_per_address >= 0))
-    return fail("handshake_rate_per_address must be >= 0 (0: no limit)");
-  if (max_connection_age_s < 0) return fail("max_connection_age_s must be >= 0 (0: no limit)");
 Service::~Service() {
   impl_->StopScrub();
   {

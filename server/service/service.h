@@ -71,32 +71,32 @@ struct ServiceOptions {
   // and client_burst at once; a call beyond it is answered RATE_LIMITED, which the client
   // library backs off from with jitter. client_calls_per_s 0: no bucket. Per server: behind a
   // balancer with N replicas a client's share is N times this.
-  int max_handshakes = 64;
-  int max_handshakes_per_address = 8;
-  double client_calls_per_s = 0;
-  int client_burst = 20;
-  // Check every tile file against the catalog's SHA-256 in the background after start (and
-  // after a reload), so /healthz names bad tiles early. Off: tiles are still checked before
-  // their first use.
-  bool scrub = true;
-  LocalizerOptions engine;
   // Handshakes are also paced per source address: handshake_rate_per_address new ones a
   // second (a burst of twice that), beyond which a connection is closed before any TLS work
   // (each full handshake costs the I/O thread a signature and a certificate check: a flood
   // from one address would otherwise slow every other client's calls). 0: no pacing. Many
   // vehicles behind one NAT, or a balancer that does not pass addresses on, share one address:
   // raise both per-address limits there.
-  bool Validate(std::string* error) const;
-};
+  int max_handshakes = 64;
+  int max_handshakes_per_address = 8;
   double handshake_rate_per_address = 20;
-
-class Service {
+  double client_calls_per_s = 0;
+  int client_burst = 20;
   // A connection older than this is retired: calls arriving on it are answered UNAVAILABLE
   // ("reconnect"), which the client library sends again on a new connection, whose handshake
   // checks the certificate again (expiry, the CRL); after a grace of default_deadline_ms more
   // the server closes it. Bounds how long a certificate that expired, or a CRL entry added
   // without a reload, goes unnoticed on a live connection. 0: no limit.
   int max_connection_age_s = 3600;
+  // Check every tile file against the catalog's SHA-256 in the background after start (and
+  // after a reload), so /healthz names bad tiles early. Off: tiles are still checked before
+  // their first use.
+  bool scrub = true;
+  LocalizerOptions engine;
+  bool Validate(std::string* error) const;
+};
+
+class Service {
  public:
   // Opens the map and binds the ports (0 picks a free one). Fails with the reason (bad options,
   // map, token file, address in use, open address without token).
