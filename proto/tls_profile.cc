@@ -349,6 +349,7 @@ void TlsSessionCache::Keep(const std::string& server, SSL_SESSION* session) {
 void SetVerifyTime(SSL* ssl, int64_t unix_s) {
   X509_VERIFY_PARAM_set_time(SSL_get0_param(ssl), static_cast<time_t>(unix_s));
 }
+
 std::string PeerCommonName(SSL* ssl) {
   X509* cert = SSL_get0_peer_certificate(ssl);
   if (cert == nullptr) return "";
@@ -356,6 +357,15 @@ std::string PeerCommonName(SSL* ssl) {
   if (X509_NAME_get_text_by_NID(X509_get_subject_name(cert), NID_commonName, cn, sizeof cn) < 0)
     return "";
   return cn;
+}
+
+Result<std::shared_ptr<ssl::context>> MakeMonitoringTlsContext(const TlsFiles& f) {
+  Result<std::shared_ptr<ssl::context>> ctx = MakeServerTlsContext(f);
+  if (!ctx.ok()) return ctx;
+  SSL_CTX* h = (*ctx)->native_handle();
+  SSL_CTX_set_alpn_select_cb(h, nullptr, nullptr);  // no ALPN required, none chosen
+  SSL_CTX_set_num_tickets(h, 0);                    // no resumption: each check in full
+  return ctx;
 }
 
 }  // namespace sightfix

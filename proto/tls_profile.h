@@ -122,4 +122,13 @@ class TlsSessionCache : public std::enable_shared_from_this<TlsSessionCache> {
 // Client, before a handshake: the peer's certificate validity is checked at `unix_s` instead
 // of the system clock (X509_VERIFY_PARAM_set_time): the client library's holdover clock.
 void SetVerifyTime(SSL* ssl, int64_t unix_s);
+
+// The HTTP side port's server context (/healthz and /metrics served beyond loopback): the
+// profile above without ALPN (HTTP clients offer http/1.1 or nothing, and either is accepted):
+// TLS 1.3 only, this server's certificate and key, and a client certificate required, signed by
+// a CA of `files.ca_file` (the monitoring CA). No session tickets are issued, so there is no
+// resumption: every connection verifies its certificate in full, against the CRLs of the day.
+// Errors as MakeServerTlsContext.
+Result<std::shared_ptr<boost::asio::ssl::context>> MakeMonitoringTlsContext(const TlsFiles& files);
+
 }  // namespace sightfix

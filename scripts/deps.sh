@@ -11,7 +11,7 @@ packages=(
   libceres-dev libproj-dev proj-data libbenchmark-dev libyaml-cpp-dev
   nlohmann-json3-dev opencv-doc python3 python3-protobuf chromium exiv2
   clang-14 libclang-rt-14-dev
-  haproxy slurm-wlm munge
+  haproxy slurm-wlm munge curl
 )
 
 missing=()

@@ -22,7 +22,8 @@ po::options_description Flags(sightfix::ServiceOptions* o, size_t* cache_mb, dou
   desc.add_options()("help,h", "show this help")("map", po::value(&o->map_dir), "map folder")(
       "listen", po::value(&o->listen)->default_value(o->listen), "HOST:PORT for calls")(
       "http", po::value(&o->http)->default_value(o->http),
-      "HOST:PORT for /healthz and /metrics ('' = none)")(
+      "HOST:PORT for /healthz and /metrics ('' = none); beyond loopback under TLS it speaks "
+      "TLS 1.3 and wants a monitoring client certificate")(
       "workers", po::value(&o->workers)->default_value(0), "engine threads (0 = all cores)")(
       "queue", po::value(&o->queue)->default_value(o->queue), "calls waiting before OVERLOADED")(
       "max-frame-bytes", po::value(&o->max_frame_bytes)->default_value(o->max_frame_bytes),
@@ -42,6 +43,9 @@ po::options_description Flags(sightfix::ServiceOptions* o, size_t* cache_mb, dou
       "PEM CA (bundle) that signs vehicle certificates: every client must present one")(
       "tls-crl", po::value(&o->tls_crl_file),
       "PEM CRLs of the client CAs (one each): revoked vehicles are refused; SIGHUP rereads it")(
+      "http-client-ca", po::value(&o->http_client_ca_file),
+      "PEM CA (bundle) that signs monitoring client certificates for the HTTP port under TLS "
+      "(default: --tls-client-ca, and its --tls-crl)")(
       "tls-crl-grace-h", po::value(crl_grace_h)->default_value(*crl_grace_h),
       "hours past a CRL's nextUpdate during which it is still enforced and other vehicles "
       "accepted; after that every vehicle is refused")(

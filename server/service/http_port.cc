@@ -1,27 +1,140 @@
 // The HTTP side port (Boost.Beast): GET /healthz and /metrics, one request per connection.
+// Under TLS beyond loopback (service.h) a connection first passes a TLS 1.3 handshake with a
+// monitoring client certificate; a refusal is logged and counted as the query port's are. The
+// read timeout bounds the whole exchange: handshake, request and answer.
+#include <array>
 #include <boost/beast/core.hpp>
 #include <boost/beast/http.hpp>
+#include <cstdio>
+#include <nlohmann/json.hpp>
 
 #include "server/service/service_impl.h"
 
 namespace sightfix {
 namespace {
 
+namespace asio = boost::asio;
 namespace http = boost::beast::http;
-using tcp = boost::asio::ip::tcp;
+using tcp = asio::ip::tcp;
+
+// What a plaintext client of the TLS-speaking HTTP port is told, in plaintext, before it closes.
+const std::string& SpeaksTlsAnswer() {
+  static const std::string body =
+      "this port speaks TLS 1.3 only: use https with a client certificate of the monitoring CA\n";
+  static const std::string answer =
+      "HTTP/1.1 400 Bad Request\r\nContent-Type: text/plain\r\nContent-Length: " +
+      std::to_string(body.size()) + "\r\nConnection: close\r\n\r\n" + body;
+  return answer;
+}
 
 class HttpSession : public std::enable_shared_from_this<HttpSession> {
  public:
-  HttpSession(tcp::socket socket, Service::Impl* svc) : socket_(std::move(socket)), svc_(svc) {}
+  // `tls` null: plaintext.
+  HttpSession(tcp::socket socket, std::shared_ptr<asio::ssl::context> tls, Service::Impl* svc)
+      : socket_(socket.get_executor()),
+        tls_context_(std::move(tls)),
+        timer_(socket.get_executor()),
+        svc_(svc) {
+    boost::system::error_code ec;
+    const auto ep = socket.remote_endpoint(ec);
+    peer_ = ec ? "?" : ep.address().to_string() + ":" + std::to_string(ep.port());
+    socket.set_option(tcp::no_delay(true), ec);  // handshake flights go out at once
+    if (tls_context_)
+      tls_ = std::make_unique<TlsStream>(std::move(socket), *tls_context_);
+    else
+      socket_ = std::move(socket);
+  }
+
   void Start() {
-    http::async_read(socket_, buffer_, request_,
-                     [self = shared_from_this()](const boost::system::error_code& ec, size_t) {
-                       if (!ec) self->Respond();
-                     });
+    Arm(svc_->o.read_timeout_ms);
+    if (!tls_) return Read();
+    // A look at the first byte: a plaintext request gets a plaintext answer saying why not.
+    Tcp().async_receive(asio::buffer(first_byte_), tcp::socket::message_peek,
+                        [self = shared_from_this()](const boost::system::error_code& ec, size_t n) {
+                          if (ec || n == 0) return self->OnHandshake(ec ? ec : asio::error::eof);
+                          if (self->first_byte_[0] != kTlsHandshakeRecord)
+                            return self->RefusePlaintext();
+                          self->tls_->async_handshake(
+                              asio::ssl::stream_base::server,
+                              [self](const boost::system::error_code& e) { self->OnHandshake(e); });
+                        });
   }
 
  private:
   using Response = http::response<http::string_body>;
+  using TlsStream = asio::ssl::stream<tcp::socket>;
+
+  tcp::socket& Tcp() { return tls_ ? tls_->next_layer() : socket_; }
+
+  // The timer: closes the connection after `ms` (timed_out_ tells a handshake cut off).
+  void Arm(int ms) {
+    timer_.expires_after(std::chrono::milliseconds(ms));
+    timer_.async_wait([self = shared_from_this()](const boost::system::error_code& ec) {
+      if (ec) return;
+      self->timed_out_ = true;
+      self->Close();
+    });
+  }
+
+  void Close() {
+    boost::system::error_code ec;
+    timer_.cancel();
+    Tcp().shutdown(tcp::socket::shutdown_both, ec);
+    Tcp().close(ec);
+  }
+
+  void OnHandshake(const boost::system::error_code& ec) {
+    if (!ec) return Read();
+    std::string why = timed_out_ ? "handshake not finished within the read timeout" : ec.message();
+    if (!timed_out_)
+      if (const std::string v = VerifyProblem(tls_->native_handle()); !v.empty()) why += ": " + v;
+    LogRefusal(why);
+    if (!timed_out_) Linger();
+  }
+
+  void RefusePlaintext() {
+    LogRefusal("plaintext sent to the TLS HTTP port");
+    asio::async_write(Tcp(), asio::buffer(SpeaksTlsAnswer()),
+                      [self = shared_from_this()](const boost::system::error_code& ec, size_t) {
+                        if (ec) return self->Close();
+                        self->Linger();
+                      });
+  }
+
+  // One log line and the count in sightfix_tls_refused_total, as the query port's refusals.
+  void LogRefusal(const std::string& why) {
+    std::fprintf(stderr, "{\"peer\":\"%s\",\"port\":\"http\",\"tls_refused\":%s}\n", peer_.c_str(),
+                 nlohmann::json(why).dump().c_str());
+    ++svc_->tls_refused;
+  }
+
+  // After a refusal: stops sending and reads (discarding) for up to a second before closing,
+  // so that what the client sent meanwhile does not turn the close into a reset that destroys
+  // the alert or the answer on its way.
+  void Linger() {
+    boost::system::error_code ec;
+    Tcp().shutdown(tcp::socket::shutdown_send, ec);
+    Arm(1000);
+    Drain();
+  }
+
+  void Drain() {
+    Tcp().async_read_some(asio::buffer(scratch_),
+                          [self = shared_from_this()](const boost::system::error_code& ec, size_t) {
+                            if (ec) return self->Close();
+                            self->Drain();
+                          });
+  }
+
+  void Read() {
+    OnFrameStream(tls_, socket_, [this](auto& stream) {
+      http::async_read(stream, buffer_, request_,
+                       [self = shared_from_this()](const boost::system::error_code& ec, size_t) {
+                         if (ec) return self->Close();
+                         self->Respond();
+                       });
+    });
+  }
 
   void Respond() {
     auto res = std::make_shared<Response>();
@@ -43,11 +156,18 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
       res->body() = "not found: try /healthz or /metrics\n";
     }
     res->prepare_payload();
-    http::async_write(socket_, *res,
-                      [self = shared_from_this(), res](const boost::system::error_code&, size_t) {
-                        boost::system::error_code ec;
-                        self->socket_.shutdown(tcp::socket::shutdown_both, ec);
-                      });
+    OnFrameStream(tls_, socket_, [this, res](auto& stream) {
+      http::async_write(stream, *res,
+                        [self = shared_from_this(), res](const boost::system::error_code& ec,
+                                                         size_t) { self->Finish(ec); });
+    });
+  }
+
+  // After the answer: TLS says close_notify first (the timer bounds the wait for the peer's).
+  void Finish(const boost::system::error_code& ec) {
+    if (ec || !tls_) return Close();
+    tls_->async_shutdown(
+        [self = shared_from_this()](const boost::system::error_code&) { self->Close(); });
   }
 
   service_internal::Metrics::Gauges SampleGauges() const {
@@ -66,8 +186,15 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
     return g;
   }
 
-  tcp::socket socket_;
+  tcp::socket socket_;                               // plaintext; moved into tls_ under TLS
+  std::shared_ptr<asio::ssl::context> tls_context_;  // kept while the session lives
+  std::unique_ptr<TlsStream> tls_;
+  asio::steady_timer timer_;
   Service::Impl* svc_;
+  std::string peer_;
+  bool timed_out_ = false;
+  std::array<unsigned char, 1> first_byte_{};
+  std::array<char, 512> scratch_{};
   boost::beast::flat_buffer buffer_;
   http::request<http::string_body> request_;
 };
@@ -77,9 +204,34 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
 void Service::Impl::AcceptHttp() {
   http_acceptor.async_accept([this](const boost::system::error_code& ec, tcp::socket socket) {
     if (ec) return;
-    std::make_shared<HttpSession>(std::move(socket), this)->Start();
+    std::make_shared<HttpSession>(std::move(socket), http_tls, this)->Start();
     AcceptHttp();
   });
+}
+
+Result<std::shared_ptr<asio::ssl::context>> Service::Impl::LoadHttpTls() const {
+  const std::string& ca =
+      o.http_client_ca_file.empty() ? o.tls_client_ca_file : o.http_client_ca_file;
+  Result<std::shared_ptr<asio::ssl::context>> ctx =
+      MakeMonitoringTlsContext({o.tls_cert_file, o.tls_key_file, ca});
+  if (!ctx.ok()) return Status(ctx.status().code(), "HTTP port: " + ctx.status().message());
+  // The query port's CRLs cover its client CA; a monitoring CA of its own has none.
+  if (o.tls_crl_file.empty() || ca != o.tls_client_ca_file) return ctx;
+  Result<std::shared_ptr<const CrlSet>> crls =
+      AddCrl(ctx->get(), o.tls_crl_file, ca, o.tls_crl_grace_s);
+  if (!crls.ok()) return Status(crls.status().code(), "HTTP port: " + crls.status().message());
+  return ctx;
+}
+
+Status Service::Impl::ReloadHttpTls() {
+  Result<std::shared_ptr<asio::ssl::context>> ctx = LoadHttpTls();
+  if (!ctx.ok()) {
+    std::fprintf(stderr, "{\"event\":\"tls_reload_failed\",\"port\":\"http\",\"reason\":%s}\n",
+                 nlohmann::json(ctx.status().ToString()).dump().c_str());
+    return ctx.status();
+  }
+  asio::post(io, [this, fresh = *ctx] { http_tls = fresh; });
+  return Status::Ok();
 }
 
 // 200 while the service answers calls from at least one usable tile ("ok", or "degraded" with

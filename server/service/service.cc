@@ -67,6 +67,11 @@ bool IsLoopback(const std::string& address) {
   return !ec && ip.is_loopback();
 }
 
+// Under TLS the HTTP port speaks TLS too beyond loopback (local scrapers keep plaintext).
+bool HttpNeedsTls(const ServiceOptions& o) {
+  return !o.tls_cert_file.empty() && !o.http.empty() && !IsLoopback(o.http);
+}
+
 }  // namespace
 
 bool ServiceOptions::Validate(std::string* error) const {
@@ -87,6 +92,8 @@ bool ServiceOptions::Validate(std::string* error) const {
   if (tls_files != 0 && tls_files != 3)
     return fail("TLS needs all three: the server's certificate, its key and the client CA");
   if (!tls_crl_file.empty() && tls_files == 0) return fail("a CRL file needs TLS");
+  if (!http_client_ca_file.empty() && tls_files == 0)
+    return fail("an HTTP client CA (monitoring CA) needs TLS");
   if (max_handshakes < 1 || max_handshakes_per_address < 1)
     return fail("max_handshakes and max_handshakes_per_address must be >= 1");
   if (!(client_calls_per_s >= 0) || client_burst < 1)
@@ -135,10 +142,11 @@ Result<std::unique_ptr<Service>> Service::Create(const ServiceOptions& o) {
     return Status(StatusCode::kFailedPrecondition,
                   "refusing to serve beyond loopback in plaintext: give --tls-cert, --tls-key "
                   "and --tls-client-ca (or --plaintext-beyond-loopback, not advised)");
-  if (!o.allow_plaintext && !o.http.empty() && !IsLoopback(o.http))
+  if (!o.allow_plaintext && !tls && !o.http.empty() && !IsLoopback(o.http))
     return Status(StatusCode::kFailedPrecondition,
-                  "refusing to serve /healthz and /metrics beyond loopback: the HTTP port has no "
-                  "TLS (keep it on loopback, or --plaintext-beyond-loopback, not advised)");
+                  "refusing to serve /healthz and /metrics beyond loopback in plaintext: give "
+                  "--tls-cert, --tls-key and --tls-client-ca (the HTTP port then speaks TLS "
+                  "too), keep --http on loopback, or --plaintext-beyond-loopback (not advised)");
   if (impl->token.empty() && !o.allow_open && !tls &&
       (!IsLoopback(o.listen) || (!o.http.empty() && !IsLoopback(o.http))))
     return Status(StatusCode::kFailedPrecondition,
@@ -153,6 +161,11 @@ Result<std::unique_ptr<Service>> Service::Create(const ServiceOptions& o) {
       std::fprintf(stderr,
                    "{\"event\":\"warning\",\"reason\":\"TLS without a CRL (--tls-crl): a revoked "
                    "vehicle certificate is accepted until it expires\"}\n");
+  }
+  if (HttpNeedsTls(o)) {
+    Result<std::shared_ptr<asio::ssl::context>> http_tls = impl->LoadHttpTls();
+    if (!http_tls.ok()) return http_tls.status();
+    impl->http_tls = *http_tls;
   }
   auto loc = Localizer::Open(o.map_dir, o.engine);
   if (!loc.ok()) return loc.status();
@@ -257,8 +270,9 @@ Status Service::Run(bool handle_signals) {
   if (m.http_acceptor.is_open()) m.AcceptHttp();
   std::fprintf(stderr,
                "{\"event\":\"serving\",\"port\":%d,\"http_port\":%d,\"map_version\":%d,"
-               "\"tls\":%s}\n",
-               port(), http_port(), m.Current()->catalog().map_version, m.tls ? "true" : "false");
+               "\"tls\":%s,\"http_tls\":%s}\n",
+               port(), http_port(), m.Current()->catalog().map_version, m.tls ? "true" : "false",
+               m.http_tls ? "true" : "false");
   m.io.run();
   std::fprintf(stderr, "{\"event\":\"stopped\"}\n");
   return Status::Ok();
@@ -297,6 +311,7 @@ Status Service::Reload() {
   // Under TLS (the options say so: `tls` itself belongs to the I/O thread), logged either way;
   // the map reloads regardless.
   if (!impl_->o.tls_cert_file.empty()) impl_->ReloadTls();
+  if (HttpNeedsTls(impl_->o)) impl_->ReloadHttpTls();
   auto loc = Localizer::Open(impl_->o.map_dir, impl_->o.engine);
   if (!loc.ok()) {
     std::fprintf(stderr, "{\"event\":\"reload_failed\",\"reason\":%s}\n",

@@ -19,8 +19,11 @@
 // tls_client_ca_file; proto/tls_profile.h) the query port speaks TLS 1.3 only and every client
 // must present a certificate signed by the client CA; its common name names the caller in the
 // logs. Beyond loopback the query port refuses to start without TLS unless allow_plaintext, and
-// a plaintext one there also needs a token (or allow_open); the HTTP side port has no TLS yet,
-// so beyond loopback it needs allow_plaintext too. With a token file every call must carry that
+// a plaintext one there also needs a token (or allow_open). The HTTP side port stays plaintext
+// on loopback (local scrapers); beyond loopback under TLS it speaks TLS 1.3 with the same
+// server certificate and requires a client certificate of the monitoring CA
+// (http_client_ca_file), its handshake and request within read_timeout_ms; beyond loopback
+// without TLS it needs allow_plaintext. With a token file every call must carry that
 // token (compared in constant time): a second factor under TLS. Logs: one JSON line per call on
 // stderr (id, method, status, ms, quality, peer, client), never image data or the token; one per
 // connection refused in the TLS handshake (peer, reason).
@@ -64,6 +67,12 @@ struct ServiceOptions {
   // Without a CRL file a revoked vehicle certificate is accepted until it expires.
   std::string tls_crl_file;
   int64_t tls_crl_grace_s = 7 * 24 * 3600;
+  // TLS on the HTTP port (under TLS, when `http` is beyond loopback): the PEM bundle of the CAs
+  // that sign monitoring client certificates (a scraper's, a balancer's health check). Empty:
+  // tls_client_ca_file, and then tls_crl_file applies there too; a CA of its own has no CRL
+  // check (keep its certificates short-lived), but keeps a vehicle's certificate off the HTTP
+  // port and a monitor's off the query port. Needs TLS.
+  std::string http_client_ca_file;
   bool allow_plaintext = false;  // listen beyond loopback without TLS (not advised)
   // Fair shares. Before a client is known: TLS handshakes in progress at once, in all and per
   // source address (one more is closed before any TLS work). After: a token bucket per client

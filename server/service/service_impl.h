@@ -125,6 +125,15 @@ struct Service::Impl {
   void BeginDrain();
   void CheckDrained();
   // http_port.cc
+  // TLS on the HTTP port (null: plaintext): set by Create, swapped on the I/O thread by
+  // ReloadHttpTls; each HTTP session holds the context it was accepted with.
+  std::shared_ptr<boost::asio::ssl::context> http_tls;
+  // The HTTP port's context from the options' files (tls_profile.h MakeMonitoringTlsContext,
+  // with the query port's CRLs when its CA is the query port's client CA).
+  Result<std::shared_ptr<boost::asio::ssl::context>> LoadHttpTls() const;
+  // Any thread: LoadHttpTls, then the swap posted to the I/O thread; a failure is logged and
+  // the old context serves.
+  Status ReloadHttpTls();
   void AcceptHttp();
   // The /healthz text; *ok: whether the answer is 200.
   std::string HealthText(bool* ok);

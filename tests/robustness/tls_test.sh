@@ -13,7 +13,11 @@
 # a CA without a CRL or an unreadable one stops the server at start; SIGHUP rereads the CRL,
 # closes the live connection of a newly revoked vehicle and keeps the last good CRL when the
 # new one is bad; /metrics exposes the CRL's nextUpdate. Fair shares: a handshake beyond the
-# per-address limit is closed at once, and the client library retries until served.
+# per-address limit is closed at once, and the client library retries until served. The HTTP
+# port: plaintext on loopback; beyond loopback under TLS, curl with a client certificate gets
+# /healthz and /metrics, and no certificate, another CA's, a revoked one, TLS 1.2, plaintext and
+# a stalled handshake are refused, logged and counted; SIGHUP rereads its CRL; a monitoring CA
+# of its own (--http-client-ca) keeps vehicles off it and monitors off the query port.
 # Usage: tls_test.sh SOURCE_DIR BUILD_DIR SERVICE_DATA_DIR
 set -u
 src="$1" build="$2" data="$3"
@@ -51,9 +55,10 @@ openssl x509 -in "$pki/vehicle-7.crt" -noout -text | grep -q "id-ecPublicKey" &&
 # Beyond loopback: plaintext refused unless named; TLS serves without a token.
 expect "0.0.0.0 in plaintext: refused" 2 "refusing to serve beyond loopback in plaintext" -- \
   "$server_bin" --map "$data/map" --listen 0.0.0.0:0 --http ""
-expect "an HTTP port beyond loopback: refused (it has no TLS)" 2 "HTTP port has no TLS" -- \
-  "$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http 0.0.0.0:0 --tls-cert "$pki/localhost.crt" \
-  --tls-key "$pki/localhost.key" --tls-client-ca "$pki/ca.crt"
+expect "an HTTP port beyond loopback without TLS: refused" 2 "/metrics beyond loopback in plaintext" -- \
+  "$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http 0.0.0.0:0
+expect "a monitoring CA needs TLS" 2 "needs TLS" -- \
+  "$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http "" --http-client-ca "$pki/ca.crt"
 expect "TLS needs all three files" 2 "all three" -- \
   "$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http "" --tls-cert "$pki/localhost.crt"
 expect "a key that does not match its certificate: refused" 2 "mismatch" -- \
@@ -65,7 +70,8 @@ expect "a key that does not match its certificate: refused" 2 "mismatch" -- \
   2>"$tmp/server.log" &
 server_pid=$!
 read -r port http_port <<<"$(serving_port "$tmp/server.log" "$server_pid")"
-[ -n "${port:-}" ] && grep -q '"tls":true' "$tmp/server.log" && ok "0.0.0.0 with TLS: serving" ||
+[ -n "${port:-}" ] && grep -q '"tls":true,"http_tls":false' "$tmp/server.log" &&
+  ok "0.0.0.0 with TLS: serving (the HTTP port on loopback stays plaintext)" ||
   { bad "TLS server did not start: $(cat "$tmp/server.log")"; finish; exit 1; }
 good=(--tls-ca "$pki/ca.crt" --tls-cert "$pki/vehicle-7.crt" --tls-key "$pki/vehicle-7.key")
 
@@ -150,7 +156,7 @@ calls_after=$(grep -c '"method"' "$tmp/server.log")
   bad "refused peers served: $((calls_after - calls_before)) calls"
 metrics="$(exec 4<>"/dev/tcp/127.0.0.1/$http_port"; printf 'GET /metrics HTTP/1.0\r\n\r\n' >&4; cat <&4)"
 grep -qE "^sightfix_tls_refused_total [1-9]" <<<"$metrics" &&
-  ok "/metrics counts the refused handshakes" || bad "no tls_refused counter"
+  ok "/metrics counts the refused handshakes (plaintext HTTP on loopback)" || bad "no tls_refused counter"
 kill -TERM "$server_pid"; wait "$server_pid"; server_pid=""
 
 # The token as a second factor under TLS.
@@ -257,6 +263,93 @@ wait "$waiter" && grep -q "map version" "$tmp/waited.txt" &&
     "$tmp/shares.log" &&
   ok "a handshake beyond the per-address limit is closed at once; the client retries and is served" ||
   bad "handshake limit: $(cat "$tmp/waited.txt"; grep tls_refused "$tmp/shares.log" | head -2)"
+kill -TERM "$server_pid"; wait "$server_pid"; server_pid=""
+
+# The HTTP port beyond loopback under TLS: TLS 1.3 with the server's certificate, a client
+# certificate required (by default of the vehicles' CA, with its CRL), no ALPN needed; every
+# refusal logged and counted as the query port's. A stalled handshake runs meanwhile.
+bash "$certs" "$pki" crl && cp "$pki/crl.pem" "$tmp/served.crl"  # fresh: vehicle-7, -8 revoked
+"$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http 0.0.0.0:0 --workers 1 \
+  --tls-cert "$pki/localhost.crt" --tls-key "$pki/localhost.key" --tls-client-ca "$pki/ca.crt" \
+  --tls-crl "$tmp/served.crl" 2>"$tmp/http.log" &
+server_pid=$!
+read -r port http_port <<<"$(serving_port "$tmp/http.log" "$server_pid")"
+grep -q '"http_tls":true' "$tmp/http.log" && ok "an HTTP port on 0.0.0.0 under TLS: serving TLS" ||
+  bad "HTTP port not under TLS: $(head -3 "$tmp/http.log")"
+( start=$(date +%s); exec 3<>"/dev/tcp/127.0.0.1/$http_port"; timeout 20 cat <&3 >/dev/null
+  echo $(($(date +%s) - start)) >"$tmp/http_stall.txt" ) &
+stall_pid=$!
+https() {  # PATH [curl options]: GET https://localhost:HTTP_PORT/PATH, body and status code
+  local path="$1"
+  shift
+  curl -sS --max-time 10 --cacert "$pki/ca.crt" -w '\nstatus %{http_code}\n' "$@" \
+    "https://localhost:$http_port$path" 2>&1
+}
+monitor10=(--cert "$pki/vehicle-10.crt" --key "$pki/vehicle-10.key")
+out="$(https /healthz "${monitor10[@]}" -v)"
+grep -q "^status 200" <<<"$out" && grep -q "^ok " <<<"$out" && grep -q "TLSv1.3" <<<"$out" &&
+  ok "curl with a client certificate: /healthz 200 over TLS 1.3" || bad "healthz over TLS: $out"
+out="$(https /metrics "${monitor10[@]}")"
+grep -q "^status 200" <<<"$out" && grep -q "^sightfix_tiles_bad" <<<"$out" &&
+  ok "... and the metrics text" || bad "metrics over TLS: $(head -3 <<<"$out")"
+refusals_before=$(grep -c '"port":"http","tls_refused"' "$tmp/http.log")
+https /healthz | grep -q "^status 000" && ok "no client certificate: refused" ||
+  bad "HTTP port served a client without a certificate"
+grep -q '"port":"http","tls_refused":"peer did not return a certificate' "$tmp/http.log" &&
+  ok "... logged as the query port logs it" || bad "no-certificate refusal: $(tail -2 "$tmp/http.log")"
+https /healthz --cert "$other/vehicle-9.crt" --key "$other/vehicle-9.key" | grep -q "^status 000" &&
+  grep -q '"port":"http","tls_refused":"certificate verify failed: unable to get local issuer' \
+    "$tmp/http.log" && ok "a certificate of another CA: refused" || bad "other-CA client on HTTP port"
+https /healthz --cert "$pki/vehicle-7.crt" --key "$pki/vehicle-7.key" | grep -q "^status 000" &&
+  grep -q '"port":"http","tls_refused":"certificate verify failed: certificate revoked"' \
+    "$tmp/http.log" && ok "a revoked certificate: refused (the CRL applies to the same CA)" ||
+  bad "revoked client on HTTP port: $(tail -2 "$tmp/http.log")"
+https /healthz "${monitor10[@]}" --tls-max 1.2 | grep -q "^status 000" &&
+  ok "TLS 1.2: refused" || bad "TLS 1.2 served on the HTTP port"
+out="$(curl -sS --max-time 10 "http://127.0.0.1:$http_port/healthz" 2>&1)"
+grep -q "speaks TLS 1.3 only" <<<"$out" &&
+  grep -q '"port":"http","tls_refused":"plaintext sent to the TLS HTTP port"' "$tmp/http.log" &&
+  ok "plaintext HTTP: refused, told so in plaintext, logged" || bad "plaintext HTTP: $out"
+wait "$stall_pid"
+waited="$(cat "$tmp/http_stall.txt")"
+[ "$waited" -ge 8 ] && [ "$waited" -le 20 ] &&
+  grep -q '"port":"http","tls_refused":"handshake not finished within the read timeout"' \
+    "$tmp/http.log" && ok "a stalled HTTP handshake is cut off at the read timeout (${waited} s)" ||
+  bad "stalled HTTP handshake: closed after ${waited} s"
+refused=$(($(grep -c '"port":"http","tls_refused"' "$tmp/http.log") - refusals_before))
+metrics="$(https /metrics "${monitor10[@]}")"
+counted="$(sed -n 's/^sightfix_tls_refused_total //p' <<<"$metrics")"
+[ "$refused" -ge 5 ] && [ "${counted:-0}" -ge "$refused" ] &&
+  ok "/metrics counts the HTTP port's refusals ($counted, $refused logged here)" ||
+  bad "refusals: $refused logged, counted ${counted:-none}"
+bash "$certs" "$pki" revoke vehicle-10 && cp "$pki/crl.pem" "$tmp/served.crl"
+kill -HUP "$server_pid"
+for _ in $(seq 1 50); do
+  https /healthz "${monitor10[@]}" | grep -q "^status 000" && break
+  sleep 0.1
+done
+https /healthz "${monitor10[@]}" | grep -q "^status 000" &&
+  ok "SIGHUP: the HTTP port rereads the CRL (vehicle-10 revoked, refused)" ||
+  bad "HTTP port kept the old CRL after SIGHUP"
+kill -TERM "$server_pid"; wait "$server_pid"; server_pid=""
+# A monitoring CA of its own: its certificates reach the HTTP port only, a vehicle's the query
+# port only; the vehicles' CRL does not apply to it (the server starts).
+mon="$tmp/monitoring"
+CA_NAME="monitoring CA" bash "$certs" "$mon" ca >/dev/null && bash "$certs" "$mon" vehicle scraper-1 >/dev/null
+bash "$certs" "$pki" vehicle vehicle-11 >/dev/null
+"$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http 0.0.0.0:0 --workers 1 \
+  --tls-cert "$pki/localhost.crt" --tls-key "$pki/localhost.key" --tls-client-ca "$pki/ca.crt" \
+  --tls-crl "$tmp/served.crl" --http-client-ca "$mon/ca.crt" 2>"$tmp/monitor.log" &
+server_pid=$!
+read -r port http_port <<<"$(serving_port "$tmp/monitor.log" "$server_pid")"
+https /healthz --cert "$mon/scraper-1.crt" --key "$mon/scraper-1.key" | grep -q "^status 200" &&
+  ok "--http-client-ca: the monitoring certificate gets /healthz" ||
+  bad "monitoring certificate: $(tail -2 "$tmp/monitor.log")"
+https /healthz --cert "$pki/vehicle-11.crt" --key "$pki/vehicle-11.key" | grep -q "^status 000" &&
+  ok "... a vehicle certificate does not" || bad "vehicle certificate served on the HTTP port"
+expect "... and the monitoring certificate cannot call the query port" 1 "TLS" -- \
+  "$cli" describe --server "localhost:$port" --tls-ca "$pki/ca.crt" --tls-cert "$mon/scraper-1.crt" \
+  --tls-key "$mon/scraper-1.key"
 kill -TERM "$server_pid"; wait "$server_pid"; server_pid=""
 
 # Independent peer: the client library against openssl s_server (TLS 1.3, ALPN, client
