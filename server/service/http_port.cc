@@ -179,6 +179,7 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
     }
     g.connections = svc_->connections;
     g.tls_refused = static_cast<long>(svc_->tls_refused.load());
+    g.tls_resumed = static_cast<long>(svc_->tls_resumed.load());
     g.crl_next_update = svc_->crl_next_update.load();
     g.tiles_cached = loc->tiles_cached();
     g.tiles_bad = static_cast<int>(loc->TileProblems().size());
