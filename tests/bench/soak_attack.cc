@@ -331,12 +331,23 @@ double ThreadCpuSeconds(int pid, int tid) {
   return StatCpuSeconds("/proc/" + std::to_string(pid) + "/task/" + std::to_string(tid) + "/stat");
 }
 
+double MachineCpuSeconds() {
+  std::ifstream in("/proc/stat");
+  std::string cpu;
+  double user = 0, nice = 0, system = 0, idle = 0, iowait = 0, irq = 0, softirq = 0, steal = 0;
+  if (!(in >> cpu >> user >> nice >> system >> idle >> iowait >> irq >> softirq >> steal) ||
+      cpu != "cpu")
+    return -1;
+  return (user + nice + system + irq + softirq + steal) / static_cast<double>(sysconf(_SC_CLK_TCK));
+}
+
 ServerSnapshot TakeSnapshot(int pid, const std::string& metrics_host, int metrics_port) {
   ServerSnapshot s;
   s.at_s = Seconds(Clock::now());
   s.server_cpu_s = ProcessCpuSeconds(pid);
   s.io_thread_cpu_s = ThreadCpuSeconds(pid, pid);
   s.own_cpu_s = ProcessCpuSeconds(static_cast<int>(getpid()));
+  s.machine_cpu_s = MachineCpuSeconds();
   const std::string text = FetchMetrics(metrics_host, metrics_port, 5000);
   s.metrics_read = !text.empty();
   s.tls_refused = MetricValue(text, "sightfix_tls_refused_total");
@@ -373,8 +384,10 @@ void AttackPhase::Sample() {
 }
 
 void AttackPhase::End() {
+  // Released here, not at destruction: their connections close now.
   if (handshakes_) handshakes_->Stop(), handshake_counts_ = handshakes_->counts();
   if (queries_) queries_->Stop(), query_counts_ = queries_->counts();
+  handshakes_.reset(), queries_.reset();
   end_ = TakeSnapshot(o_.pid, o_.metrics_host, o_.metrics_port);
 }
 
@@ -388,6 +401,13 @@ double Cores(const ServerSnapshot& from, const ServerSnapshot& to, double Server
 constexpr double ServerSnapshot::*kServerCpu = &ServerSnapshot::server_cpu_s;
 constexpr double ServerSnapshot::*kIoThreadCpu = &ServerSnapshot::io_thread_cpu_s;
 constexpr double ServerSnapshot::*kOwnCpu = &ServerSnapshot::own_cpu_s;
+constexpr double ServerSnapshot::*kMachineCpu = &ServerSnapshot::machine_cpu_s;
+
+// Cores the rest of the machine kept busy (neither the server nor this process): other work
+// that a latency figure measured meanwhile also felt.
+double OthersCores(const ServerSnapshot& from, const ServerSnapshot& to) {
+  return Cores(from, to, kMachineCpu) - Cores(from, to, kServerCpu) - Cores(from, to, kOwnCpu);
+}
 
 std::string N(double v) { return std::to_string(static_cast<long long>(std::llround(v))); }
 
@@ -399,6 +419,14 @@ void Member(std::string* json, const char* name, double value, const char* forma
 }
 
 }  // namespace
+
+bool AttackPhase::Disturbed() const {
+  // A quarter of a core taken by others on a 2-core machine moves the workers' latency enough
+  // to blur a 1.5 x ratio.
+  constexpr double kOthersCores = 0.25;
+  return OthersCores(unloaded_, attacked_) > kOthersCores ||
+         OthersCores(attacked_, end_) > kOthersCores;
+}
 
 void AttackPhase::Print() const {
   const QueryFloodCounts& q = query_counts_;
@@ -424,10 +452,13 @@ void AttackPhase::Print() const {
       end_.locate_rate_limited - attacked_.locate_rate_limited, connections_peak_);
   std::printf(
       "attack: cores busy, unloaded / attacked: server %.2f / %.2f, its I/O thread %.2f / %.2f, "
-      "the soak's clients and flooders %.2f / %.2f\n",
+      "the soak's clients and flooders %.2f / %.2f, other processes %.2f / %.2f\n",
       Cores(unloaded_, attacked_, kServerCpu), Cores(attacked_, end_, kServerCpu),
       Cores(unloaded_, attacked_, kIoThreadCpu), Cores(attacked_, end_, kIoThreadCpu),
-      Cores(unloaded_, attacked_, kOwnCpu), Cores(attacked_, end_, kOwnCpu));
+      Cores(unloaded_, attacked_, kOwnCpu), Cores(attacked_, end_, kOwnCpu),
+      OthersCores(unloaded_, attacked_), OthersCores(attacked_, end_));
+  if (Disturbed())
+    std::printf("attack: other processes shared the cores: the ratio is disturbed, run again\n");
 }
 
 std::string AttackPhase::JsonMembers() const {
@@ -455,6 +486,10 @@ std::string AttackPhase::JsonMembers() const {
   Member(&j, "server_cores_attacked", Cores(attacked_, end_, kServerCpu), "%.2f");
   Member(&j, "io_thread_cores_unloaded", Cores(unloaded_, attacked_, kIoThreadCpu), "%.2f");
   Member(&j, "io_thread_cores_attacked", Cores(attacked_, end_, kIoThreadCpu), "%.2f");
+  Member(&j, "soak_load_cores_attacked", Cores(attacked_, end_, kOwnCpu), "%.2f");
+  Member(&j, "other_cores_unloaded", OthersCores(unloaded_, attacked_), "%.2f");
+  Member(&j, "other_cores_attacked", OthersCores(attacked_, end_), "%.2f");
+  j += std::string(",\"disturbed\":") + (Disturbed() ? "true" : "false");
   return j;
 }
 

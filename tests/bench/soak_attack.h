@@ -105,6 +105,8 @@ double Percentile(std::vector<double> values, double p);
 // cannot be read. A server's I/O thread is its main thread (Service::Run), whose tid is its pid.
 double ProcessCpuSeconds(int pid);
 double ThreadCpuSeconds(int pid, int tid);
+// CPU seconds the whole machine has spent busy since boot (/proc/stat), -1 when unreadable.
+double MachineCpuSeconds();
 
 // The server at one moment, as the soak sees it: counters from /metrics, CPU from /proc.
 struct ServerSnapshot {
@@ -112,6 +114,7 @@ struct ServerSnapshot {
   bool metrics_read = false;
   double tls_refused = 0, locate_rate_limited = 0, connections = 0;
   double server_cpu_s = -1, io_thread_cpu_s = -1, own_cpu_s = -1;  // own: this process
+  double machine_cpu_s = -1;  // every process on the machine: the rest is other people's work
 };
 ServerSnapshot TakeSnapshot(int pid, const std::string& metrics_host, int metrics_port);
 
@@ -151,6 +154,9 @@ class AttackPhase {
  private:
   void Print() const;
   std::string JsonMembers() const;
+  // Other processes kept the cores busy in a phase: the ratio says more about them than about
+  // the attack (reported, not judged).
+  bool Disturbed() const;
   // The query flooder got RATE_LIMITED answers, the handshake flooder was closed before TLS (a
   // handshake limit) and refused without a certificate, and the server counted more TLS
   // refusals attacked than unloaded.
