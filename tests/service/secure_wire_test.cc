@@ -241,6 +241,8 @@ TEST_F(ServiceTest, AReconnectResumesTheSessionAndTheCertificateIsCheckedAgain) 
   (*good)->Disconnect();
   EXPECT_TRUE((*good)->Describe(5000).ok());
   EXPECT_EQ((*good)->resumed_handshakes(), 1u);
+  const std::string metrics = HttpGet("/metrics");
+  EXPECT_NE(metrics.find("sightfix_tls_resumed_total 1\n"), std::string::npos) << metrics;
   (*brief)->Disconnect();
   auto refused = (*brief)->Describe(5000);
   EXPECT_EQ((*brief)->resumed_handshakes(), 1u);

@@ -72,6 +72,18 @@ class ServiceTest : public ::testing::Test {
     camera_ = *cam;
     return RequestToProto(ReadFile(dir + "/" + r.image), *cam, fields);
   }
+  // GET `path` from the service's HTTP side port (plaintext, loopback): the whole answer.
+  std::string HttpGet(const std::string& path) {
+    tcp::socket s(io_);
+    s.connect(
+        {asio::ip::make_address("127.0.0.1"), static_cast<unsigned short>(service_->http_port())});
+    asio::write(s, asio::buffer("GET " + path + " HTTP/1.1\r\nHost: x\r\n\r\n"));
+    std::string out;
+    boost::system::error_code ec;
+    char buf[4096];
+    for (size_t n; (n = s.read_some(asio::buffer(buf), ec)) > 0 || !ec;) out.append(buf, n);
+    return out;
+  }
   // Raw socket helpers for what a well-behaved client never sends.
   tcp::socket Raw() {
     tcp::socket s(io_);

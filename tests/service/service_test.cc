@@ -249,17 +249,7 @@ TEST_F(ServiceTest, HealthAndMetricsOnTheHttpPort) {
   auto c = Connect();
   ASSERT_TRUE(c->Locate(Query(6), 20000).ok());
   ASSERT_EQ(c->Call("Fly", "", 5000)->code, v1::Status::UNIMPLEMENTED);
-  auto get = [&](const std::string& path) {
-    tcp::socket s(io_);
-    s.connect(
-        {asio::ip::make_address("127.0.0.1"), static_cast<unsigned short>(service_->http_port())});
-    asio::write(s, asio::buffer("GET " + path + " HTTP/1.1\r\nHost: x\r\n\r\n"));
-    std::string out;
-    boost::system::error_code ec;
-    char buf[4096];
-    for (size_t n; (n = s.read_some(asio::buffer(buf), ec)) > 0 || !ec;) out.append(buf, n);
-    return out;
-  };
+  auto get = [&](const std::string& path) { return HttpGet(path); };
   const std::string health = get("/healthz");
   EXPECT_NE(health.find("200 OK"), std::string::npos) << health;
   const std::string metrics = get("/metrics");
