@@ -9,6 +9,9 @@
 #   make-certs.sh DIR vehicle NAME [DAYS]     DIR/NAME.crt, DIR/NAME.key: a client certificate
 #                                             whose common name NAME names the vehicle in the
 #                                             server's logs (default 365 days)
+#   make-certs.sh DIR sign NAME CSR [DAYS]    DIR/NAME.crt from a request made on the vehicle
+#                                             (its key never leaves it); the common name is set
+#                                             to NAME whatever the request says
 #   make-certs.sh DIR revoke NAME             revokes DIR/NAME.crt and writes DIR/crl.pem
 #   make-certs.sh DIR crl                     (re)writes DIR/crl.pem, valid 30 days
 # Extra `openssl ca` arguments can be given in CA_ARGS when issuing (the tests use
@@ -16,7 +19,7 @@
 # -crlhours 12; the tests use -crlsec 1 to make one that expires at once). Keys are written 0600.
 # Keep ca.key offline in real use: whoever holds it can make vehicles.
 set -euo pipefail
-[ $# -ge 2 ] || { sed -n '2,17p' "$0" | sed 's/^# \{0,1\}//'; exit 2; }
+[ $# -ge 2 ] || { sed -n '2,20p' "$0" | sed 's/^# \{0,1\}//'; exit 2; }
 dir="$1" what="$2"
 shift 2
 mkdir -p "$dir"
@@ -64,15 +67,21 @@ new_key() {
   (umask 077 && openssl genpkey -algorithm EC -pkeyopt ec_paramgen_curve:P-256 -out "$1" 2>/dev/null)
 }
 
+sign() {  # name, extension section, days, request
+  local name="$1" ext="$2" days="$3" csr="$4"
+  # shellcheck disable=SC2086
+  openssl ca -batch -config "$cnf" -extensions "$ext" -days "$days" -notext -subj "/CN=$name" \
+    -in "$csr" -out "$dir/$name.crt" ${CA_ARGS:-} 2>"$dir/$name.log" ||
+    { cat "$dir/$name.log" >&2; exit 1; }
+  rm -f "$dir/$name.log"
+}
+
 issue() {  # name, extension section, days
   local name="$1" ext="$2" days="$3"
   new_key "$dir/$name.key"
   openssl req -new -key "$dir/$name.key" -subj "/CN=$name" -out "$dir/$name.csr"
-  # shellcheck disable=SC2086
-  openssl ca -batch -config "$cnf" -extensions "$ext" -days "$days" -notext \
-    -in "$dir/$name.csr" -out "$dir/$name.crt" ${CA_ARGS:-} 2>"$dir/$name.log" ||
-    { cat "$dir/$name.log" >&2; exit 1; }
-  rm -f "$dir/$name.csr" "$dir/$name.log"
+  sign "$name" "$ext" "$days" "$dir/$name.csr"
+  rm -f "$dir/$name.csr"
 }
 
 case "$what" in
@@ -97,6 +106,12 @@ case "$what" in
     name="${1:?vehicle NAME}"
     issue "$name" vehicle_ext "${2:-365}"
     ;;
+  sign)
+    name="${1:?sign NAME CSR}" csr="${2:?sign NAME CSR}"
+    openssl req -in "$csr" -noout -verify 2>/dev/null ||
+      { echo "make-certs.sh: $csr is not a signed certificate request" >&2; exit 1; }
+    sign "$name" vehicle_ext "${3:-365}" "$csr"
+    ;;
   revoke)
     name="${1:?revoke NAME}"
     openssl ca -config "$cnf" -revoke "$dir/$name.crt" 2>/dev/null
@@ -108,7 +123,7 @@ case "$what" in
     openssl ca -config "$cnf" -gencrl -out "$dir/crl.pem" ${CRL_ARGS:-} 2>/dev/null
     ;;
   *)
-    echo "make-certs.sh: unknown step '$what' (ca, server, vehicle, revoke or crl)" >&2
+    echo "make-certs.sh: unknown step '$what' (ca, server, vehicle, sign, revoke or crl)" >&2
     exit 2
     ;;
 esac

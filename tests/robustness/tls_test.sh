@@ -17,7 +17,9 @@
 # port: plaintext on loopback; beyond loopback under TLS, curl with a client certificate gets
 # /healthz and /metrics, and no certificate, another CA's, a revoked one, TLS 1.2, plaintext and
 # a stalled handshake are refused, logged and counted; SIGHUP rereads its CRL; a monitoring CA
-# of its own (--http-client-ca) keeps vehicles off it and monitors off the query port.
+# of its own (--http-client-ca) keeps vehicles off it and monitors off the query port. A fleet's
+# life: a certificate signed from a request made on the vehicle, a CA rollover (two CAs, two
+# CRLs), and a session resumed by openssl s_client.
 # Usage: tls_test.sh SOURCE_DIR BUILD_DIR SERVICE_DATA_DIR
 set -u
 src="$1" build="$2" data="$3"
@@ -350,6 +352,49 @@ https /healthz --cert "$pki/vehicle-11.crt" --key "$pki/vehicle-11.key" | grep -
 expect "... and the monitoring certificate cannot call the query port" 1 "TLS" -- \
   "$cli" describe --server "localhost:$port" --tls-ca "$pki/ca.crt" --tls-cert "$mon/scraper-1.crt" \
   --tls-key "$mon/scraper-1.key"
+kill -TERM "$server_pid"; wait "$server_pid"; server_pid=""
+
+# A fleet's life (README, "Certificates over a fleet's life"): a vehicle key made on the vehicle
+# and only its request signed; a CA rolled over with both CAs and both CRLs served at once; and
+# resumption checked by an independent peer (openssl s_client -sess_out / -sess_in).
+next="$tmp/next"
+CA_NAME="sightfix next CA" bash "$certs" "$next" ca >/dev/null && bash "$certs" "$next" crl &&
+  bash "$certs" "$next" vehicle vehicle-20 >/dev/null &&
+  (umask 077 && openssl genpkey -algorithm EC -pkeyopt ec_paramgen_curve:P-256 \
+    -out "$tmp/on-vehicle.key" 2>/dev/null) &&
+  openssl req -new -key "$tmp/on-vehicle.key" -subj "/CN=anything" -out "$tmp/on-vehicle.csr" &&
+  bash "$certs" "$next" sign vehicle-21 "$tmp/on-vehicle.csr" &&
+  ok "a second CA, and a vehicle certificate signed from a request made on the vehicle" ||
+  bad "next CA or signing failed"
+cat "$pki/ca.crt" "$next/ca.crt" >"$tmp/rollover-cas.crt"
+cat "$pki/crl.pem" "$next/crl.pem" >"$tmp/rollover.crl"
+"$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http 127.0.0.1:0 --workers 1 \
+  --tls-cert "$pki/localhost.crt" --tls-key "$pki/localhost.key" \
+  --tls-client-ca "$tmp/rollover-cas.crt" --tls-crl "$tmp/rollover.crl" 2>"$tmp/rollover.log" &
+server_pid=$!
+read -r port http_port <<<"$(serving_port "$tmp/rollover.log" "$server_pid")"
+bundle=(--tls-ca "$tmp/rollover-cas.crt")
+expect "rollover: a vehicle of the old CA is served" 0 "map version" -- "$cli" describe \
+  --server "localhost:$port" "${bundle[@]}" --tls-cert "$pki/vehicle-11.crt" --tls-key "$pki/vehicle-11.key"
+expect "rollover: a vehicle of the new CA is served" 0 "map version" -- "$cli" describe \
+  --server "localhost:$port" "${bundle[@]}" --tls-cert "$next/vehicle-20.crt" --tls-key "$next/vehicle-20.key"
+expect "rollover: the certificate signed from the vehicle's request is served" 0 "map version" -- \
+  "$cli" describe --server "localhost:$port" "${bundle[@]}" --tls-cert "$next/vehicle-21.crt" \
+  --tls-key "$tmp/on-vehicle.key"
+grep -q '"client":"vehicle-21"' "$tmp/rollover.log" &&
+  ok "... named by the CA's choice of name, not the request's" || bad "signed vehicle not named"
+expect "rollover: the old CA's revocations still hold" 1 "TLS" -- "$cli" describe \
+  --server "localhost:$port" "${bundle[@]}" --tls-cert "$pki/vehicle-7.crt" --tls-key "$pki/vehicle-7.key"
+resume() {  # s_client with vehicle-20, holding the connection open long enough to get a ticket
+  (sleep 1) | timeout 10 openssl s_client -connect "127.0.0.1:$port" -CAfile "$pki/ca.crt" \
+    -alpn sightfix/1 -cert "$next/vehicle-20.crt" -key "$next/vehicle-20.key" "$@" 2>&1
+}
+resume -sess_out "$tmp/session.pem" >/dev/null
+resume -sess_in "$tmp/session.pem" | grep -q "^Reused, TLSv1.3" &&
+  metrics="$(exec 4<>"/dev/tcp/127.0.0.1/$http_port"; printf 'GET /metrics HTTP/1.0\r\n\r\n' >&4; cat <&4)" &&
+  grep -q "^sightfix_tls_resumed_total 1$" <<<"$metrics" &&
+  ok "openssl s_client resumes a session, and the server counts it" ||
+  bad "no resumption: $(grep resumed <<<"${metrics:-}")"
 kill -TERM "$server_pid"; wait "$server_pid"; server_pid=""
 
 # Independent peer: the client library against openssl s_server (TLS 1.3, ALPN, client
