@@ -73,7 +73,7 @@ void Service::Impl::Answer(const std::shared_ptr<Session>& s, const service_inte
   e.mutable_status()->set_message(message);
   if (code == v1::Status::OK) e.set_body(body);
   const double seconds = std::chrono::duration<double>(Clock::now() - received).count();
-  metrics.Record(method, code, seconds);
+  metrics.Record(method, code, seconds, s->identity());
   std::fprintf(stderr,
                "{\"call\":%llu,\"method\":%s,\"status\":\"%s\",\"ms\":%.1f,\"quality\":\"%s\","
                "\"peer\":\"%s\",\"client\":%s}\n",

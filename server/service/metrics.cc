@@ -6,9 +6,34 @@ namespace sightfix::service_internal {
 
 const char* CodeName(v1::Status::Code c) { return v1::Status::Code_Name(c).c_str(); }
 
-void Metrics::Record(const std::string& method, v1::Status::Code code, double seconds) {
+namespace {
+
+// A Prometheus label value: backslash, double quote and newline escaped (text format 0.0.4).
+std::string LabelValue(const std::string& v) {
+  std::string out;
+  for (char c : v) {
+    if (c == '\\' || c == '"') out += '\\';
+    if (c == '\n') {
+      out += "\\n";
+      continue;
+    }
+    out += c;
+  }
+  return out;
+}
+
+}  // namespace
+
+void Metrics::Record(const std::string& method, v1::Status::Code code, double seconds,
+                     const std::string& client) {
   std::lock_guard<std::mutex> lock(mu_);
   ++calls_[{method, CodeName(code)}];
+  if (!client.empty()) {
+    const bool known = client_calls_.count(client) > 0;
+    const std::string& key =
+        known || client_calls_.size() < kMaxClientSeries ? client : std::string("(others)");
+    ++client_calls_[key][CodeName(code)];
+  }
   if (method != "Locate") return;
   ++latency_count_;
   latency_sum_ += seconds;
@@ -24,6 +49,13 @@ std::string Metrics::Text(const Gauges& g) const {
   for (const auto& [k, n] : calls_)
     t += "sightfix_calls_total{method=\"" + k.first + "\",status=\"" + k.second + "\"} " +
          std::to_string(n) + "\n";
+  if (!client_calls_.empty())
+    t += "# HELP sightfix_client_calls_total Calls answered, by TLS client and status.\n"
+         "# TYPE sightfix_client_calls_total counter\n";
+  for (const auto& [client, by_status] : client_calls_)
+    for (const auto& [status, n] : by_status)
+      t += "sightfix_client_calls_total{client=\"" + LabelValue(client) + "\",status=\"" + status +
+           "\"} " + std::to_string(n) + "\n";
   t += "# HELP sightfix_locate_seconds Locate latency from receipt to answer.\n"
        "# TYPE sightfix_locate_seconds histogram\n";
   for (size_t i = 0; i < std::size(kLatencyBuckets); ++i) {

@@ -32,7 +32,12 @@ class Metrics {
   };
 
   // One answered call; `seconds` from receipt to answer (only Locate's feed the histogram).
-  void Record(const std::string& method, v1::Status::Code code, double seconds);
+  // `client`: the caller's certificate name under TLS ("" otherwise), counted by status in
+  // sightfix_client_calls_total for the first kMaxClientSeries names, the rest as "(others)"
+  // (a label per vehicle, bounded: a scraper's memory is not the fleet's size).
+  void Record(const std::string& method, v1::Status::Code code, double seconds,
+              const std::string& client = "");
+  static constexpr size_t kMaxClientSeries = 1000;
   std::string Text(const Gauges& gauges) const;
 
  private:
@@ -41,6 +46,7 @@ class Metrics {
 
   mutable std::mutex mu_;
   std::map<std::pair<std::string, std::string>, uint64_t> calls_;
+  std::map<std::string, std::map<std::string, uint64_t>> client_calls_;  // client -> status -> n
   uint64_t buckets_[std::size(kLatencyBuckets)] = {};
   uint64_t latency_count_ = 0;
   double latency_sum_ = 0;

@@ -243,6 +243,10 @@ TEST_F(ServiceTest, AReconnectResumesTheSessionAndTheCertificateIsCheckedAgain) 
   EXPECT_EQ((*good)->resumed_handshakes(), 1u);
   const std::string metrics = HttpGet("/metrics");
   EXPECT_NE(metrics.find("sightfix_tls_resumed_total 1\n"), std::string::npos) << metrics;
+  // The caller named by its certificate in the metrics too (two calls of vehicle-1).
+  EXPECT_NE(metrics.find("sightfix_client_calls_total{client=\"vehicle-1\",status=\"OK\"} 2\n"),
+            std::string::npos)
+      << metrics;
   (*brief)->Disconnect();
   auto refused = (*brief)->Describe(5000);
   EXPECT_EQ((*brief)->resumed_handshakes(), 1u);
