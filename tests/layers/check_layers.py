@@ -60,6 +60,14 @@ LINK_FORBIDDEN = ["faiss", "ceres", "opencv_features2d", "opencv_calib3d", "sqli
 INCLUDE = re.compile(r'^\s*#\s*include\s*[<"]([^>"]+)[>"]', re.M)
 
 
+def client_public_headers(src):
+    """The client library's installed headers: PUBLIC_HEADERS in client/api/CMakeLists.txt
+    (the others, e.g. connection.h, stay inside the library)."""
+    text = open(os.path.join(src, "client/api/CMakeLists.txt"), encoding="utf-8").read()
+    m = re.search(r"PUBLIC_HEADERS([^)]*)\)", text)
+    return set(m.group(1).split()) if m else set()
+
+
 def closure(folder):
     seen, todo = set(), list(deps_of(folder))
     while todo:
@@ -110,7 +118,7 @@ def check_includes(src):
                     for bad in FORBIDDEN_INCLUDES.get(layer, []):
                         if inc.startswith(bad):
                             errors.append(f"{rel}: includes <{inc}>, forbidden in {layer}")
-                    if layer == "client/api" and name.endswith(".h"):
+                    if layer == "client/api" and name in client_public_headers(src):
                         for bad in CLIENT_PUBLIC_FORBIDDEN:
                             if inc.startswith(bad):
                                 errors.append(f"{rel}: public client header includes <{inc}>")
