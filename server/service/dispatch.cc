@@ -128,10 +128,15 @@ void Service::Impl::Dispatch(const std::shared_ptr<Session>& s, v1::Envelope env
   if (o.client_calls_per_s > 0) {
     const std::string client =
         s->identity().empty() ? "address " + s->address() : "client " + s->identity();
-    if (!TakeShare(client, received))
+    double wait_s = 0;
+    if (!TakeShare(client, received, &wait_s)) {
+      // Its next calls wait in its socket (TCP holds the sender back) until it has a token
+      // again: a flood then costs neither decryption nor parsing here.
+      s->HoldReads(wait_s);
       return Answer(s, id, method, v1::Status::RATE_LIMITED,
                     client + " is over its share (" + FormatShare() + "): back off and retry", "",
                     received);
+    }
   }
   if (!token.empty() && !ConstantTimeEqual(env.token(), token))
     return Answer(s, id, method, v1::Status::UNAUTHENTICATED, "missing or wrong token", "",

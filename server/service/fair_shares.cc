@@ -15,10 +15,11 @@ using Buckets = std::map<std::string, Service::Impl::Bucket>;
 // flood would otherwise write a log line per connection.
 constexpr auto kRefusalLogEvery = std::chrono::seconds(10);
 
-// Takes one token from `key`'s bucket (rate tokens a second, `burst` at most, full at first).
-// The map is bounded: a bucket full again is as good as none, so those are swept when it grows.
+// Takes one token from `key`'s bucket (rate tokens a second, `burst` at most, full at first);
+// when there is none, *wait_s (if given) is the time until there is one. The map is bounded: a
+// bucket full again is as good as none, so those are swept when it grows.
 bool TakeToken(Buckets* buckets, const std::string& key, double rate, double burst,
-               Clock::time_point now) {
+               Clock::time_point now, double* wait_s = nullptr) {
   if (buckets->size() > 4096)
     for (auto it = buckets->begin(); it != buckets->end();)
       it = std::chrono::duration<double>(now - it->second.last).count() * rate >= burst
@@ -31,7 +32,10 @@ bool TakeToken(Buckets* buckets, const std::string& key, double rate, double bur
         std::min(burst, b.tokens + std::chrono::duration<double>(now - b.last).count() * rate);
     b.last = now;
   }
-  if (b.tokens < 1) return false;
+  if (b.tokens < 1) {
+    if (wait_s) *wait_s = (1 - b.tokens) / rate;
+    return false;
+  }
   b.tokens -= 1;
   return true;
 }
@@ -69,8 +73,8 @@ void Service::Impl::HandshakeDone(const std::string& address) {
   if (it != handshakes_by_address.end() && --it->second <= 0) handshakes_by_address.erase(it);
 }
 
-bool Service::Impl::TakeShare(const std::string& client, Clock::time_point now) {
-  return TakeToken(&buckets, client, o.client_calls_per_s, o.client_burst, now);
+bool Service::Impl::TakeShare(const std::string& client, Clock::time_point now, double* wait_s) {
+  return TakeToken(&buckets, client, o.client_calls_per_s, o.client_burst, now, wait_s);
 }
 
 std::string Service::Impl::FormatShare() const {

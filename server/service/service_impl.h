@@ -99,8 +99,9 @@ struct Service::Impl {
   // (the first from the address in 10 s: a flood is not logged line by line).
   std::string AdmitHandshake(const std::string& address, Clock::time_point now, bool* log);
   void HandshakeDone(const std::string& address);
-  // True when `client` may make one more call now (takes a token).
-  bool TakeShare(const std::string& client, Clock::time_point now);
+  // True when `client` may make one more call now (takes a token); else *wait_s is the time
+  // until it may.
+  bool TakeShare(const std::string& client, Clock::time_point now, double* wait_s);
   std::string FormatShare() const;  // "R calls/s, burst B"
   std::atomic<bool> draining{false};
 

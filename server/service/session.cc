@@ -16,6 +16,7 @@ Session::Session(tcp::socket socket, Service::Impl* svc)
       tls_context_(svc->tls),
       timer_(socket.get_executor()),
       age_timer_(socket.get_executor()),
+      hold_timer_(socket.get_executor()),
       svc_(svc) {
   boost::system::error_code ec;
   const auto ep = socket.remote_endpoint(ec);
@@ -149,6 +150,7 @@ void Session::Close() {
   closed_ = true;
   timer_.cancel();
   age_timer_.cancel();
+  hold_timer_.cancel();
   boost::system::error_code ec;
   Tcp().shutdown(tcp::socket::shutdown_both, ec);
   Tcp().close(ec);
@@ -211,7 +213,16 @@ void Session::OnBody() {
   body_.shrink_to_fit();
   if (!env.ok()) return Reject(0, env.status().message());
   svc_->Dispatch(shared_from_this(), std::move(env).value(), received);
-  ReadHeader();  // pipelining: the next call may arrive while this one runs
+  if (hold_until_ <= Clock::now()) return ReadHeader();  // pipelining: the next call may come
+  hold_timer_.expires_at(hold_until_);
+  hold_timer_.async_wait([self = shared_from_this()](const boost::system::error_code& ec) {
+    if (!ec) self->ReadHeader();
+  });
+}
+
+void Session::HoldReads(double seconds) {
+  hold_until_ = Clock::now() +
+                std::chrono::duration_cast<Clock::duration>(std::chrono::duration<double>(seconds));
 }
 
 void Session::Reject(uint64_t id, const std::string& why) {

@@ -41,8 +41,11 @@ class Session : public std::enable_shared_from_this<Session> {
   const std::string& peer() const { return peer_; }          // "address:port", or "?"
   const std::string& address() const { return address_; }    // the peer's address, or "?"
   const std::string& identity() const { return identity_; }  // TLS: the certificate's CN
-  bool RevokedBy(const CrlSet& crls);  // TLS: the client's certificate is on a CRL
+  bool RevokedBy(const CrlSet& crls);        // TLS: the client's certificate is on a CRL
   bool retired() const { return retired_; }  // past max_connection_age_s
+  // Reads no further frame for `seconds` from the end of the current one (the client is over
+  // its share: its calls wait in the socket, and TCP holds it back).
+  void HoldReads(double seconds);
   // Queues a frame; closes the connection when the client is not reading.
   void Send(std::string frame, bool close_after = false);
   void Close();
@@ -52,10 +55,10 @@ class Session : public std::enable_shared_from_this<Session> {
   void Arm(int ms);  // the timer: closes the connection after `ms`
   void ArmAge();     // retires the connection at its age limit, closes it after the grace
   void OnHandshake(const boost::system::error_code& ec);
-  void EndHandshake();                      // counts this session out of the handshakes in progress
+  void EndHandshake();  // counts this session out of the handshakes in progress
   // The metric's count, and one log line unless `log` is false (a flood's refusals).
   void LogRefusal(const std::string& why, bool log = true);
-  void RefusePlaintext();                   // answers one error frame in plaintext, then closes
+  void RefusePlaintext();  // answers one error frame in plaintext, then closes
   // After a refused handshake: stops sending and reads (discarding) for up to a second before
   // closing, so that a request the client sent meanwhile does not make the close a reset that
   // destroys the TLS alert on its way (the client would then see a lost connection, and retry).
@@ -77,7 +80,8 @@ class Session : public std::enable_shared_from_this<Session> {
   boost::asio::ip::tcp::socket socket_;                     // plaintext; moved into tls_ under TLS
   std::shared_ptr<boost::asio::ssl::context> tls_context_;  // kept while the session lives
   std::unique_ptr<TlsStream> tls_;
-  boost::asio::steady_timer timer_, age_timer_;
+  boost::asio::steady_timer timer_, age_timer_, hold_timer_;
+  Clock::time_point hold_until_{};
   Service::Impl* svc_;
   std::string peer_, address_, identity_;
   bool handshaking_ = false;  // counted in the service's handshakes in progress
