@@ -2,19 +2,21 @@
 // Under TLS beyond loopback (service.h) a connection first passes a TLS 1.3 handshake with a
 // monitoring client certificate; a refusal is logged and counted as the query port's are. The
 // read timeout bounds the whole exchange: handshake, request and answer.
-#include <array>
 #include <boost/beast/core.hpp>
 #include <boost/beast/http.hpp>
 #include <cstdio>
 #include <nlohmann/json.hpp>
 
 #include "server/service/service_impl.h"
+#include "server/service/tls_refusal.h"
 
 namespace sightfix {
 namespace {
 
 namespace asio = boost::asio;
 namespace http = boost::beast::http;
+using service_internal::LogTlsRefusal;
+using service_internal::TlsPort;
 using tcp = asio::ip::tcp;
 
 // What a plaintext client of the TLS-speaking HTTP port is told, in plaintext, before it closes.
@@ -48,19 +50,12 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
   void Start() {
     Arm(svc_->o.read_timeout_ms);
     if (!tls_) return Read();
-    // A look at the first byte: a plaintext request gets a plaintext answer saying why not.
-    Tcp().async_receive(asio::buffer(first_byte_), tcp::socket::message_peek,
-                        [self = shared_from_this()](const boost::system::error_code& ec, size_t n) {
-                          if (ec || n == 0) return self->OnHandshake(ec ? ec : asio::error::eof);
-                          if (self->first_byte_[0] != kTlsHandshakeRecord)
-                            return self->RefusePlaintext();
-                          self->tls_->async_handshake(
-                              asio::ssl::stream_base::server,
-                              [self](const boost::system::error_code& e) { self->OnHandshake(e); });
-                        });
+    // A plaintext request gets a plaintext answer saying why not.
+    service_internal::TlsRefusal::LookAtFirstByte(shared_from_this(), &first_byte_);
   }
 
  private:
+  friend struct service_internal::TlsRefusal;  // the first-byte look and the linger
   using Response = http::response<http::string_body>;
   using TlsStream = asio::ssl::stream<tcp::socket>;
 
@@ -88,42 +83,17 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
     std::string why = timed_out_ ? "handshake not finished within the read timeout" : ec.message();
     if (!timed_out_)
       if (const std::string v = VerifyProblem(tls_->native_handle()); !v.empty()) why += ": " + v;
-    LogRefusal(why);
-    if (!timed_out_) Linger();
+    LogTlsRefusal(svc_, TlsPort::kHttp, peer_, why);
+    if (!timed_out_) service_internal::TlsRefusal::Linger(shared_from_this());
   }
 
   void RefusePlaintext() {
-    LogRefusal("plaintext sent to the TLS HTTP port");
+    LogTlsRefusal(svc_, TlsPort::kHttp, peer_, "plaintext sent to the TLS HTTP port");
     asio::async_write(Tcp(), asio::buffer(SpeaksTlsAnswer()),
                       [self = shared_from_this()](const boost::system::error_code& ec, size_t) {
                         if (ec) return self->Close();
-                        self->Linger();
+                        service_internal::TlsRefusal::Linger(self);
                       });
-  }
-
-  // One log line and the count in sightfix_tls_refused_total, as the query port's refusals.
-  void LogRefusal(const std::string& why) {
-    std::fprintf(stderr, "{\"peer\":\"%s\",\"port\":\"http\",\"tls_refused\":%s}\n", peer_.c_str(),
-                 nlohmann::json(why).dump().c_str());
-    ++svc_->tls_refused;
-  }
-
-  // After a refusal: stops sending and reads (discarding) for up to a second before closing,
-  // so that what the client sent meanwhile does not turn the close into a reset that destroys
-  // the alert or the answer on its way.
-  void Linger() {
-    boost::system::error_code ec;
-    Tcp().shutdown(tcp::socket::shutdown_send, ec);
-    Arm(1000);
-    Drain();
-  }
-
-  void Drain() {
-    Tcp().async_read_some(asio::buffer(scratch_),
-                          [self = shared_from_this()](const boost::system::error_code& ec, size_t) {
-                            if (ec) return self->Close();
-                            self->Drain();
-                          });
   }
 
   void Read() {
@@ -194,8 +164,7 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
   Service::Impl* svc_;
   std::string peer_;
   bool timed_out_ = false;
-  std::array<unsigned char, 1> first_byte_{};
-  std::array<char, 512> scratch_{};
+  unsigned char first_byte_ = 0;
   boost::beast::flat_buffer buffer_;
   http::request<http::string_body> request_;
 };

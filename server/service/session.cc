@@ -1,6 +1,5 @@
 #include "server/service/session.h"
 
-#include <array>
 #include <cstdio>
 #include <nlohmann/json.hpp>
 
@@ -37,35 +36,13 @@ void Session::Start() {
   // Fair shares before any TLS work: handshakes in progress and new ones from this address.
   bool log = true;
   if (std::string why = svc_->AdmitHandshake(address_, Clock::now(), &log); !why.empty()) {
-    LogRefusal(why, log);
+    LogTlsRefusal(svc_, TlsPort::kQuery, peer_, why, log);
     return Close();
   }
   handshaking_ = true;
   Arm(svc_->o.read_timeout_ms);  // a stalled handshake is cut off as a stalled frame is
-  // A look at the first byte: a plaintext client gets a plaintext answer saying why not.
-  Tcp().async_receive(asio::buffer(header_, 1), tcp::socket::message_peek,
-                      [self = shared_from_this()](const boost::system::error_code& ec, size_t n) {
-                        if (ec || n == 0) return self->OnHandshake(ec ? ec : asio::error::eof);
-                        if (self->header_[0] != kTlsHandshakeRecord) return self->RefusePlaintext();
-                        self->tls_->async_handshake(
-                            asio::ssl::stream_base::server,
-                            [self](const boost::system::error_code& e) { self->OnHandshake(e); });
-                      });
-}
-
-void Session::Linger() {
-  boost::system::error_code ec;
-  Tcp().shutdown(tcp::socket::shutdown_send, ec);
-  Arm(1000);  // one second in all, however much the client sends
-  Drain(std::make_shared<std::array<char, 512>>());
-}
-
-void Session::Drain(std::shared_ptr<std::array<char, 512>> scratch) {
-  Tcp().async_read_some(asio::buffer(*scratch), [self = shared_from_this(), scratch](
-                                                    const boost::system::error_code& e, size_t) {
-    if (e || self->closed_) return self->Close();
-    self->Drain(scratch);
-  });
+  // A plaintext client gets a plaintext answer saying why not.
+  TlsRefusal::LookAtFirstByte(shared_from_this(), header_);
 }
 
 bool Session::RevokedBy(const CrlSet& crls) {
@@ -80,7 +57,7 @@ void Session::RefusePlaintext() {
   const std::string why =
       "this port speaks TLS 1.3 only: connect with the server's CA and a "
       "vehicle certificate (--tls-ca, --tls-cert, --tls-key)";
-  LogRefusal("plaintext sent to the TLS port");
+  LogTlsRefusal(svc_, TlsPort::kQuery, peer_, "plaintext sent to the TLS port");
   v1::Envelope e;
   e.mutable_status()->set_code(v1::Status::UNAUTHENTICATED);
   e.mutable_status()->set_message(why);
@@ -90,13 +67,6 @@ void Session::RefusePlaintext() {
                     [self = shared_from_this(), frame](const boost::system::error_code&, size_t) {
                       self->Close();
                     });
-}
-
-void Session::LogRefusal(const std::string& why, bool log) {
-  if (log)
-    std::fprintf(stderr, "{\"peer\":\"%s\",\"tls_refused\":%s}\n", peer_.c_str(),
-                 nlohmann::json(why).dump().c_str());
-  ++svc_->tls_refused;
 }
 
 void Session::EndHandshake() {
@@ -114,8 +84,8 @@ void Session::OnHandshake(const boost::system::error_code& ec) {
   if (ec && !closed_)
     if (const std::string v = VerifyProblem(tls_->native_handle()); !v.empty()) why += ": " + v;
   if (!why.empty()) {
-    LogRefusal(why);
-    return closed_ ? void() : Linger();
+    LogTlsRefusal(svc_, TlsPort::kQuery, peer_, why);
+    return closed_ ? void() : TlsRefusal::Linger(shared_from_this());
   }
   SSL* ssl = tls_->native_handle();
   if (SSL_session_reused(ssl)) {
@@ -123,7 +93,7 @@ void Session::OnHandshake(const boost::system::error_code& ec) {
     const int64_t grace_until =
         svc_->crls ? svc_->crls->next_update_unix + svc_->o.tls_crl_grace_s : 0;
     if (std::string v = VerifyResumedPeer(ssl, grace_until); !v.empty()) {
-      LogRefusal("resumed session: " + v);
+      LogTlsRefusal(svc_, TlsPort::kQuery, peer_, "resumed session: " + v);
       return Close();  // the client's cached session is single-use: it comes back in full
     }
   }

@@ -17,7 +17,6 @@
 // identity() are fixed before the first call is dispatched.
 #pragma once
 
-#include <array>
 #include <boost/asio.hpp>
 #include <boost/asio/ssl.hpp>
 #include <deque>
@@ -28,6 +27,7 @@
 #include "proto/frame_codec.h"
 #include "proto/tls_profile.h"
 #include "server/service/service_impl.h"
+#include "server/service/tls_refusal.h"
 
 namespace sightfix::service_internal {
 
@@ -51,19 +51,13 @@ class Session : public std::enable_shared_from_this<Session> {
   void Close();
 
  private:
+  friend struct TlsRefusal;  // the first-byte look and the linger (tls_refusal.h)
   using TlsStream = boost::asio::ssl::stream<boost::asio::ip::tcp::socket>;
   void Arm(int ms);  // the timer: closes the connection after `ms`
   void ArmAge();     // retires the connection at its age limit, closes it after the grace
   void OnHandshake(const boost::system::error_code& ec);
-  void EndHandshake();  // counts this session out of the handshakes in progress
-  // The metric's count, and one log line unless `log` is false (a flood's refusals).
-  void LogRefusal(const std::string& why, bool log = true);
+  void EndHandshake();     // counts this session out of the handshakes in progress
   void RefusePlaintext();  // answers one error frame in plaintext, then closes
-  // After a refused handshake: stops sending and reads (discarding) for up to a second before
-  // closing, so that a request the client sent meanwhile does not make the close a reset that
-  // destroys the TLS alert on its way (the client would then see a lost connection, and retry).
-  void Linger();
-  void Drain(std::shared_ptr<std::array<char, 512>> scratch);
   boost::asio::ip::tcp::socket& Tcp() { return tls_ ? tls_->next_layer() : socket_; }
   // Runs f on the stream the frames travel on: TLS or the plain socket.
   template <typename F>
