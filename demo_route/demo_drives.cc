@@ -179,7 +179,21 @@ Frame Exposure(const PlannedDrive& d, const Frame& f, double offset_s) {
   Frame g = f;
   g.time_s += offset_s;
   g.position += b.position - a.position;
-  const double turn_deg = std::remainder(b.attitude.heading_deg - a.attitude.heading_deg, 360.0);
+  // The turn over the offset is the path's yaw rate (over +-0.25 s) times it. A frame's heading
+  // is its polyline segment's direction, so two poses a few centimetres apart mostly share a
+  // segment: their headings' difference would move a corner's images along the arc without
+  // turning them. More than 45 deg in the span is the turn-round between passes (the heading
+  // flips where the vehicle stood), not a yaw rate: there the segments' difference stands.
+  constexpr double kHalfSpanS = 0.25, kTurnRoundDeg = 45;
+  const double mid_s = f.time_s + offset_s / 2;
+  const Frame before = PoseAtTime(d.path, d.passes, d.plan, mid_s - kHalfSpanS);
+  const Frame after = PoseAtTime(d.path, d.passes, d.plan, mid_s + kHalfSpanS);
+  const double span_deg =
+      std::remainder(after.attitude.heading_deg - before.attitude.heading_deg, 360.0);
+  const double turn_deg =
+      std::abs(span_deg) > kTurnRoundDeg
+          ? std::remainder(b.attitude.heading_deg - a.attitude.heading_deg, 360.0)
+          : span_deg / (2 * kHalfSpanS) * offset_s;
   g.attitude.heading_deg = std::fmod(g.attitude.heading_deg + turn_deg + 360.0, 360.0);
   return g;
 }
