@@ -50,6 +50,9 @@ struct Survey {
   // Per camera: the boresight self-calibration found (camera as mounted from the camera the INS
   // attitude implies); empty = identity for all.
   std::vector<cv::Matx33d> boresight;
+  // Per camera: its time offset (self_calibration.h), seconds; empty = 0 for all. Views() moves
+  // each row to the pose of its image's time.
+  std::vector<double> time_offset_s;
 };
 
 // Features already extracted in this process (BuildMap), by image name, under the survey's
@@ -78,7 +81,9 @@ std::string ReadFileBytes(const std::string& path);
 Result<GlobalDescriptor> TrainModel(const BuildOptions& o, const Survey& s, int* vectors);
 // Every row's code under a model.
 cv::Mat EncodeAll(const GlobalDescriptor& model, const Survey& s);
-// Every row as a structure view in ENU frame `enu` (the boresight applied); features borrowed.
+// Every row as a structure view in ENU frame `enu`, with the vehicle's motion from the same
+// camera's neighbouring rows within a second (RowMotion), the boresight applied and the row moved
+// by its camera's time offset (centre + velocity dt, turned by yaw rate dt); features borrowed.
 std::vector<SurveyView> Views(const Survey& s, const EnuFrame& enu);
 // Tracks, triangulation and bundle adjustment; fills the summary's structure figures and time.
 Result<StructureResult> Adjust(const BuildOptions& o, const Survey& s, const EnuFrame& enu,

@@ -22,6 +22,7 @@ struct ShardContext {
   const StagedModel* staged;
   std::vector<CameraModel> cameras;  // as self-calibration left them (staging.h)
   std::vector<cv::Matx33d> boresight;
+  std::vector<double> time_offset_s;
   FeatureCache* cache;  // may be null
   fs::path stage;       // MAPDIR/staging/<plan id>
 };
@@ -70,6 +71,7 @@ Result<Survey> TileSurvey(const ShardContext& c, const std::vector<int>& all,
   Survey s;
   s.cameras = c.cameras;
   s.boresight = c.boresight;
+  s.time_offset_s = c.time_offset_s;
   sha->resize(all.size());
   for (size_t i = 0; i < all.size(); ++i) {
     if (all[i] < 0 || static_cast<size_t>(all[i]) >= rows.size())
@@ -137,6 +139,7 @@ Result<std::vector<int>> KeepGoodFrames(const ShardContext& c, const std::vector
   Survey kept;
   kept.cameras = std::move(s->cameras);
   kept.boresight = std::move(s->boresight);
+  kept.time_offset_s = std::move(s->time_offset_s);
   const std::set<int> own_set(own.begin(), own.end());
   for (size_t i = 0; i < all.size(); ++i) {
     if (!status[i].ok()) {
@@ -235,10 +238,13 @@ Result<ShardSummary> BuildTilesImpl(const Plan& plan, int shard, int shards,
   if (!staged.ok()) return staged.status();
   Result<std::vector<CalibratedCamera>> cameras = PlanCameras(plan);
   if (!cameras.ok()) return cameras.status();
-  ShardContext c{
-      &plan, OptionsOf(plan, step), &*staged, {}, {}, cache, StagingDir(plan.map_dir) / plan.id};
-  for (const CalibratedCamera& cam : *cameras)
+  ShardContext c{};
+  c.plan = &plan, c.o = OptionsOf(plan, step), c.staged = &*staged, c.cache = cache;
+  c.stage = StagingDir(plan.map_dir) / plan.id;
+  for (const CalibratedCamera& cam : *cameras) {
     c.cameras.push_back(cam.camera), c.boresight.push_back(cam.boresight);
+    c.time_offset_s.push_back(cam.time_offset_s);
+  }
   ShardSummary summary;
   summary.shard = shard;
   summary.shards = shards;

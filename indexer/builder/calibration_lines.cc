@@ -9,7 +9,7 @@ namespace sightfix {
 
 std::string CalibrationLines(const nlohmann::json& cameras) {
   std::string out;
-  char line[512];
+  char line[640];
   for (const nlohmann::json& c : cameras) {
     const std::string file = c.value("file", "?");
     const nlohmann::json& cal = c.at("calibration");
@@ -29,11 +29,14 @@ std::string CalibrationLines(const nlohmann::json& cameras) {
         line, sizeof(line),
         "camera %s: focal %.2f -> %.2f px (%+.2f %%, sigma %.2f%s), k1 %.4f -> %.4f "
         "(sigma %.4f%s), k2 %.4f -> %.4f (sigma %.4f%s), boresight %.3f %.3f %.3f deg "
-        "(sigma %.3f%s); move chi-square %.1f of %d dof%s\n",
+        "(sigma %.3f%s), time offset %.1f ms (sigma %.1f%s); move chi-square %.1f of %d dof%s\n",
         file.c_str(), f0, f1, 100 * (f1 / f0 - 1), sigma[0], est[0] ? "" : ", held", k10, k11,
         sigma[1], est[1] ? "" : ", held", k20, k21, sigma[2], est[2] ? "" : ", held", b[0] * kDeg,
         b[1] * kDeg, b[2] * kDeg, std::max({sigma[3], sigma[4], sigma[5]}) * kDeg,
-        est[3] ? "" : ", held", cal.at("move_chi2").get<double>(), cal.at("move_dof").get<int>(),
+        est[3] ? "" : ", held", 1e3 * cal.value("time_offset_s", 0.0),
+        1e3 * cal.value("time_offset_sigma_s", 0.0),
+        cal.value("time_offset_estimated", false) ? "" : ", held",
+        cal.at("move_chi2").get<double>(), cal.at("move_dof").get<int>(),
         cal.at("move_alarm").get<bool>() ? ": MOVED BEYOND ITS PRIOR, check the file" : "");
     out += line;
   }

@@ -152,6 +152,7 @@ Survey SubSurvey(const Survey& all, const std::vector<int>& rows) {
   Survey sub;
   sub.cameras = all.cameras;
   sub.boresight = all.boresight;
+  sub.time_offset_s = all.time_offset_s;
   for (int i : rows) {
     sub.rows.push_back(all.rows[i]);
     sub.attitude_sigma_deg.push_back(all.attitude_sigma_deg[i]);
@@ -188,6 +189,33 @@ cv::Mat EncodeAll(const GlobalDescriptor& model, const Survey& s) {
   return model.Encode(model.Whiten(model.VladRows(descriptors)));
 }
 
+// Row i's velocity (ENU m/s) and yaw rate (rad/s, counterclockwise about up) from the same
+// camera's rows within a second before and after it (central difference; one-sided at a gap;
+// zero alone). A heading change of more than 45 deg between them is a turn-round, not a rate.
+void RowMotion(const Survey& s, const EnuFrame& enu, size_t i, cv::Vec3d* velocity,
+               double* yaw_rate) {
+  constexpr double kSpanS = 1.0, kTurnRoundDeg = 45;
+  const int cam = s.camera_of_row[i];
+  const double t = s.rows[i].timestamp_s;
+  auto near = [&](int step) {
+    for (long k = static_cast<long>(i) + step; k >= 0 && k < static_cast<long>(s.rows.size());
+         k += step) {
+      if (std::abs(s.rows[k].timestamp_s - t) > kSpanS) break;
+      if (s.camera_of_row[k] == cam && s.rows[k].timestamp_s != t) return static_cast<size_t>(k);
+    }
+    return i;
+  };
+  const size_t a = near(-1), b = near(+1);
+  *velocity = cv::Vec3d(0, 0, 0), *yaw_rate = 0;
+  const double dt = s.rows[b].timestamp_s - s.rows[a].timestamp_s;
+  if (a == b || !(dt > 0)) return;
+  const double turn_deg =
+      std::remainder(s.rows[b].attitude.heading_deg - s.rows[a].attitude.heading_deg, 360.0);
+  if (std::abs(turn_deg) > kTurnRoundDeg) return;
+  *velocity = (enu.ToEnu(s.rows[b].position) - enu.ToEnu(s.rows[a].position)) / dt;
+  *yaw_rate = -turn_deg * M_PI / 180 / dt;  // heading turns clockwise, ENU counterclockwise
+}
+
 std::vector<SurveyView> Views(const Survey& s, const EnuFrame& enu) {
   std::vector<SurveyView> views;
   for (size_t i = 0; i < s.rows.size(); ++i) {
@@ -196,6 +224,14 @@ std::vector<SurveyView> Views(const Survey& s, const EnuFrame& enu) {
     if (!s.boresight.empty())
       v.enu_from_camera = v.enu_from_camera * s.boresight[s.camera_of_row[i]].t();
     v.center_enu = enu.ToEnu(s.rows[i].position);
+    RowMotion(s, enu, i, &v.velocity_enu, &v.yaw_rate_rad_s);
+    if (const double dt = s.time_offset_s.empty() ? 0 : s.time_offset_s[s.camera_of_row[i]]) {
+      const double yaw = v.yaw_rate_rad_s * dt;
+      const cv::Matx33d turn(std::cos(yaw), -std::sin(yaw), 0, std::sin(yaw), std::cos(yaw), 0, 0,
+                             0, 1);  // Rz(yaw): the camera turned with the vehicle
+      v.enu_from_camera = turn * v.enu_from_camera;
+      v.center_enu += v.velocity_enu * dt;
+    }
     v.sigma_h_m = s.rows[i].sigma_h_m;
     v.focal_px = 0.5 * (s.cameras[s.camera_of_row[i]].fx + s.cameras[s.camera_of_row[i]].fy);
     v.attitude_sigma_deg = s.attitude_sigma_deg[i];

@@ -121,6 +121,7 @@ Status CalibrateDrive(const BuildOptions& o, Survey* s, BuildSummary* summary) {
     if (!cal.ok()) return cal.status();
     s->cameras[c] = cal->camera;
     s->boresight.push_back(cal->boresight);
+    s->time_offset_s.push_back(cal->time_offset_s);
   }
   for (size_t i = 0; i < s->rows.size(); ++i)
     NormalizeKeypoints(&s->cameras[s->camera_of_row[i]], &s->features[i]);
@@ -155,6 +156,12 @@ void AppendSurvey(Survey&& b, Survey* a) {
     a->boresight.resize(base, cv::Matx33d::eye());
     b.boresight.resize(b.cameras.size(), cv::Matx33d::eye());
     a->boresight.insert(a->boresight.end(), b.boresight.begin(), b.boresight.end());
+  }
+  // The map's frames already sit at their images' times (their tiles hold the moved poses).
+  if (!a->time_offset_s.empty() || !b.time_offset_s.empty()) {
+    a->time_offset_s.resize(base, 0.0);
+    b.time_offset_s.resize(b.cameras.size(), 0.0);
+    a->time_offset_s.insert(a->time_offset_s.end(), b.time_offset_s.begin(), b.time_offset_s.end());
   }
   for (CameraModel& c : b.cameras) a->cameras.push_back(c);
   for (size_t i = 0; i < b.rows.size(); ++i) {

@@ -20,10 +20,15 @@ namespace {
 constexpr double kDegToRad = M_PI / 180.0;
 
 // Pixel residual of one observation, over pixel sigma. Blocks: intrinsics (f, k1, k2),
-// boresight (angle-axis), the view's rotation correction (angle-axis), its centre, the point.
+// boresight (angle-axis), the view's rotation correction (angle-axis), its centre, the point,
+// the time offset dt. The camera at dt: centre + velocity dt, turned by yaw_rate dt about up
+// (the world turns the other way in the camera: R0 Rz(-yaw_rate dt)).
 struct PixelCost {
-  PixelCost(const cv::Matx33d& r0, const cv::Point2d& pixel, const CameraModel& c, double sigma)
-      : r0_(r0),
+  PixelCost(const CalibrationView& view, const cv::Point2d& pixel, const CameraModel& c,
+            double sigma)
+      : r0_(view.camera_from_world),
+        velocity_(view.velocity),
+        yaw_rate_(view.yaw_rate_rad_s),
         pixel_(pixel),
         aspect_(c.fy / c.fx),
         cx_(c.cx),
@@ -35,8 +40,11 @@ struct PixelCost {
 
   template <typename T>
   bool operator()(const T* intr, const T* bore, const T* delta, const T* center, const T* point,
-                  T* residual) const {
-    const T d[3] = {point[0] - center[0], point[1] - center[1], point[2] - center[2]};
+                  const T* dt, T* residual) const {
+    T w[3];
+    for (int i = 0; i < 3; ++i) w[i] = point[i] - center[i] - T(velocity_[i]) * dt[0];
+    const T yaw = T(yaw_rate_) * dt[0], c = cos(yaw), s = sin(yaw);
+    const T d[3] = {c * w[0] + s * w[1], -s * w[0] + c * w[1], w[2]};  // Rz(-yaw) w
     T p0[3], p1[3], p[3];
     for (int i = 0; i < 3; ++i)
       p0[i] = T(r0_(i, 0)) * d[0] + T(r0_(i, 1)) * d[1] + T(r0_(i, 2)) * d[2];
@@ -53,6 +61,8 @@ struct PixelCost {
   }
 
   cv::Matx33d r0_;
+  cv::Vec3d velocity_;
+  double yaw_rate_;
   cv::Point2d pixel_;
   double aspect_, cx_, cy_, p1_, p2_, k3_, inv_sigma_;
 };
@@ -80,6 +90,7 @@ cv::Matx33d RotationOf(const double* angle_axis) {
 struct State {
   std::array<double, 3> intr{};
   std::array<double, 3> bore{};
+  std::array<double, 1> dt{};
   std::vector<std::array<double, 3>> delta, center;
   std::vector<std::array<double, 3>> points;
   std::vector<ceres::ResidualBlockId> pixel_blocks;
@@ -108,24 +119,27 @@ class Adjustment {
  public:
   Adjustment(const CalibrationProblem& p, const SelfCalibrationOptions& o) : p_(p), o_(o) {}
 
-  // Builds the problem with the intrinsics of `held` fixed at the supplied values.
-  void Build(const std::array<bool, kCalibrationParameters>& held) {
+  // Builds the problem with the intrinsics of `held` fixed at the supplied values (the time
+  // offset at 0 when hold_dt).
+  void Build(const std::array<bool, kCalibrationParameters>& held, bool hold_dt) {
     problem_ = std::make_unique<ceres::Problem>();
     const CameraModel& c = p_.camera;
     st_.pixel_blocks.clear();
     for (int i = 0; i < 3; ++i)
       if (held[i]) st_.intr[i] = Supplied(i);
     if (held[kBoresightX]) st_.bore = {0, 0, 0};
+    if (hold_dt) st_.dt = {0};
     for (const CalibrationObservation& ob : p_.observations) {
-      auto* cost = new ceres::AutoDiffCostFunction<PixelCost, 2, 3, 3, 3, 3, 3>(
-          new PixelCost(p_.views[ob.view].camera_from_world, ob.pixel, c, o_.pixel_sigma_px));
-      st_.pixel_blocks.push_back(
-          problem_->AddResidualBlock(cost, new ceres::HuberLoss(o_.huber_px / o_.pixel_sigma_px),
-                                     st_.intr.data(), st_.bore.data(), st_.delta[ob.view].data(),
-                                     st_.center[ob.view].data(), st_.points[ob.point].data()));
+      auto* cost = new ceres::AutoDiffCostFunction<PixelCost, 2, 3, 3, 3, 3, 3, 1>(
+          new PixelCost(p_.views[ob.view], ob.pixel, c, o_.pixel_sigma_px));
+      st_.pixel_blocks.push_back(problem_->AddResidualBlock(
+          cost, new ceres::HuberLoss(o_.huber_px / o_.pixel_sigma_px), st_.intr.data(),
+          st_.bore.data(), st_.delta[ob.view].data(), st_.center[ob.view].data(),
+          st_.points[ob.point].data(), st_.dt.data()));
     }
     AddIntrinsicsBlock(held);
     AddBoresightBlock(held);
+    AddTimeOffsetBlock(hold_dt);
     AddViewBlocks();
     for (auto& x : st_.points)
       if (p_.points_fixed && Free(x.data())) problem_->SetParameterBlockConstant(x.data());
@@ -144,10 +158,11 @@ class Adjustment {
     PixelFigures(*problem_, st_, o_.pixel_sigma_px, &out->rms_after_px, &out->chi2);
   }
 
-  // The six parameters' marginal covariance: H^-1's block by sparse Cholesky (the header).
-  // Held parameters get zero rows and columns. False when H is not positive definite.
+  // The six parameters' marginal covariance: H^-1's block by sparse Cholesky (the header), and
+  // the time offset's variance (0 when held). Held parameters get zero rows and columns. False
+  // when H is not positive definite.
   bool Covariance(const std::array<bool, kCalibrationParameters>& held, cv::Matx<double, 6, 6>* cov,
-                  int* free_parameters) {
+                  double* dt_variance, int* free_parameters) {
     std::vector<double*> blocks;
     std::vector<int> column_of;  // calibration parameter of each leading tangent column
     if (Free(st_.intr.data())) {
@@ -159,6 +174,10 @@ class Adjustment {
       blocks.push_back(st_.bore.data());
       for (int i = kBoresightX; i <= kBoresightZ; ++i) column_of.push_back(i);
     }
+    if (Free(st_.dt.data())) {
+      blocks.push_back(st_.dt.data());
+      column_of.push_back(kCalibrationParameters);  // the time offset's column
+    }
     const int k = static_cast<int>(column_of.size());
     for (size_t v = 0; v < st_.delta.size(); ++v)
       for (double* b : {st_.delta[v].data(), st_.center[v].data()})
@@ -166,6 +185,7 @@ class Adjustment {
     for (auto& x : st_.points)
       if (Free(x.data())) blocks.push_back(x.data());
     *cov = cv::Matx<double, 6, 6>::zeros();
+    *dt_variance = 0;
     *free_parameters = 0;
     for (double* b : blocks) *free_parameters += problem_->ParameterBlockTangentSize(b);
     if (k == 0) return true;
@@ -189,10 +209,15 @@ class Adjustment {
     for (int i = 0; i < k; ++i) rhs(i, i) = 1;
     const Eigen::MatrixXd x = ldlt.solve(rhs);
     if (ldlt.info() != Eigen::Success) return false;
-    for (int a = 0; a < k; ++a)
-      for (int b = 0; b < k; ++b) (*cov)(column_of[a], column_of[b]) = x(a, b);
-    for (int a = 0; a < k; ++a)
-      if (!((*cov)(column_of[a], column_of[a]) > 0)) return false;
+    for (int a = 0; a < k; ++a) {
+      if (!(x(a, a) > 0)) return false;
+      if (column_of[a] == kCalibrationParameters) {
+        *dt_variance = x(a, a);
+        continue;
+      }
+      for (int b = 0; b < k; ++b)
+        if (column_of[b] < kCalibrationParameters) (*cov)(column_of[a], column_of[b]) = x(a, b);
+    }
     return true;
   }
 
@@ -200,6 +225,7 @@ class Adjustment {
     const CameraModel& c = p_.camera;
     st_.intr = {c.fx, c.distortion[0], c.distortion[1]};
     st_.bore = {0, 0, 0};
+    st_.dt = {0};
     st_.delta.assign(p_.views.size(), {0, 0, 0});
     st_.center.resize(p_.views.size());
     for (size_t v = 0; v < p_.views.size(); ++v)
@@ -258,6 +284,21 @@ class Adjustment {
     AddPrior(b, {0, 0, 0}, weight);
   }
 
+  void AddTimeOffsetBlock(bool hold) {
+    double* b = st_.dt.data();
+    if (!problem_->HasParameterBlock(b)) return;
+    if (hold) {
+      problem_->SetParameterBlockConstant(b);
+      return;
+    }
+    const double w = Weight(p_.prior.time_offset_s);
+    if (w == 0) return;
+    auto* prior = new DiagonalPrior<1>;
+    prior->centre = {0}, prior->weight = {w};
+    problem_->AddResidualBlock(new ceres::AutoDiffCostFunction<DiagonalPrior<1>, 1, 1>(prior),
+                               nullptr, b);
+  }
+
   void AddViewBlocks() {
     for (size_t v = 0; v < p_.views.size(); ++v) {
       double *delta = st_.delta[v].data(), *center = st_.center[v].data();
@@ -285,6 +326,12 @@ Status CheckProblem(const CalibrationProblem& p, const SelfCalibrationOptions& o
   if (!p.camera.IsValid(&error)) return Status::InvalidArgument(error);
   for (double s : p.prior.sigma)
     if (!(s >= 0)) return Status::InvalidArgument("prior sigmas must be >= 0 (inf: free)");
+  if (!(p.prior.time_offset_s >= 0))
+    return Status::InvalidArgument("the time offset's prior sigma must be >= 0 (inf: free)");
+  for (const CalibrationView& v : p.views)
+    if (!std::isfinite(v.yaw_rate_rad_s) || !std::isfinite(v.velocity[0]) ||
+        !std::isfinite(v.velocity[1]) || !std::isfinite(v.velocity[2]))
+      return Status::InvalidArgument("a view's velocity or yaw rate is not finite");
   if (p.observations.size() < 10)
     return Status::InvalidArgument("self-calibration needs at least 10 observations");
   for (const CalibrationObservation& ob : p.observations)
@@ -330,33 +377,48 @@ void MoveTest(const CalibrationProblem& p, const SelfCalibrationOptions& o,
   e->move_alarm = e->move_chi2 > boost::math::quantile(chi, o.alarm_probability);
 }
 
+// The adjusted views (CalibrationEstimate), each at its image's time.
+void AdjustedViews(const CalibrationProblem& p, const State& st, CalibrationEstimate* e) {
+  const cv::Matx33d b = e->boresight();
+  for (size_t v = 0; v < p.views.size(); ++v) {
+    const CalibrationView& view = p.views[v];
+    const double yaw = view.yaw_rate_rad_s * st.dt[0];
+    const cv::Matx33d turn(std::cos(yaw), std::sin(yaw), 0, -std::sin(yaw), std::cos(yaw), 0, 0, 0,
+                           1);  // Rz(-yaw), as PixelCost
+    e->camera_from_world.push_back(b * RotationOf(st.delta[v].data()) * view.camera_from_world *
+                                   turn);
+    e->centers.push_back(cv::Vec3d(st.center[v][0], st.center[v][1], st.center[v][2]) +
+                         view.velocity * st.dt[0]);
+  }
+}
+
+// The keep-prior rule (the header): holds each estimated parameter whose posterior sigma over
+// its prior is above keep_prior_ratio (the boresight as a whole). True when it held any.
+bool HoldUnimproved(const CalibrationProblem& p, const SelfCalibrationOptions& o,
+                    const cv::Matx<double, 6, 6>& cov, double dt_variance, bool bore_held,
+                    std::array<bool, kCalibrationParameters>* held_out, bool* hold_dt) {
+  std::array<bool, kCalibrationParameters>& held = *held_out;
+  bool changed = false;
+  for (int i = kFocal; i <= kK2; ++i) {
+    const double prior = p.prior.sigma[i];
+    if (held[i] || !std::isfinite(prior)) continue;
+    if (std::sqrt(cov(i, i)) / prior > o.keep_prior_ratio) held[i] = changed = true;
+  }
+  if (!bore_held && std::isfinite(p.prior.sigma[kBoresightX])) {
+    double worst = 0;
+    for (int i = kBoresightX; i <= kBoresightZ; ++i)
+      worst = std::max(worst, std::sqrt(cov(i, i)) / p.prior.sigma[i]);
+    if (worst > o.keep_prior_ratio && !held[kBoresightX])
+      held[kBoresightX] = held[kBoresightY] = held[kBoresightZ] = changed = true;
+  }
+  const double dt_prior = p.prior.time_offset_s;
+  if (!*hold_dt && std::isfinite(dt_prior) &&
+      std::sqrt(dt_variance) / dt_prior > o.keep_prior_ratio)
+    *hold_dt = changed = true;
+  return changed;
+}
+
 }  // namespace
-
-CalibrationPrior PriorOf(const CameraModel& c) {
-  const CalibrationUncertainty u = UncertaintyOrDefault(c);
-  CalibrationPrior p;
-  p.sigma[kFocal] = u.focal_px;
-  p.sigma[kK1] = u.k1;
-  p.sigma[kK2] = u.k2;
-  const double b = u.boresight_deg * kDegToRad;
-  p.sigma[kBoresightX] = p.sigma[kBoresightY] = p.sigma[kBoresightZ] = b;
-  return p;
-}
-
-bool SelfCalibrationOptions::Validate(std::string* error) const {
-  auto fail = [&](const char* m) {
-    if (error) *error = m;
-    return false;
-  };
-  if (!(pixel_sigma_px > 0) || !(huber_px > 0)) return fail("pixel_sigma_px, huber_px must be > 0");
-  if (max_iterations < 1) return fail("max_iterations must be >= 1");
-  if (!(keep_prior_ratio > 0 && keep_prior_ratio <= 1))
-    return fail("keep_prior_ratio must be within (0, 1]");
-  if (!(alarm_probability > 0 && alarm_probability < 1))
-    return fail("alarm_probability must be within (0, 1)");
-  if (max_points_per_view < 1) return fail("max_points_per_view must be >= 1");
-  return tracks.Validate(error);
-}
 
 cv::Matx33d CalibrationEstimate::boresight() const { return RotationOf(boresight_rad.val); }
 
@@ -372,33 +434,26 @@ Result<CalibrationEstimate> SolveCalibration(const CalibrationProblem& p,
   const bool bore_held =
       (held[kBoresightX] && held[kBoresightY] && held[kBoresightZ]) || !BoresightSeparable(p);
   held[kBoresightX] = held[kBoresightY] = held[kBoresightZ] = bore_held;
+  // The time offset moves nothing when no view moves.
+  bool moving = false;
+  for (const CalibrationView& v : p.views)
+    moving = moving || v.yaw_rate_rad_s != 0 || cv::norm(v.velocity) > 0;
+  bool hold_dt = p.prior.time_offset_s == 0 || !moving;
   CalibrationEstimate e;
   Solved s;
   cv::Matx<double, 6, 6> cov;
+  double dt_variance = 0;
   int free_parameters = 0;
   // Solve; hold the parameters the data do not improve and solve once more (the header).
   for (int pass = 0; pass < 2; ++pass) {
     adj.Reset();
-    adj.Build(held);
+    adj.Build(held, hold_dt);
     adj.Solve(&s);
     if (pass == 0) e.rms_before_px = s.rms_before_px;
-    if (!adj.Covariance(held, &cov, &free_parameters))
+    if (!adj.Covariance(held, &cov, &dt_variance, &free_parameters))
       return Status(StatusCode::kFailedPrecondition,
                     "self-calibration: the calibration is not observable (singular system)");
-    bool changed = false;
-    for (int i = kFocal; i <= kK2; ++i) {
-      const double prior = p.prior.sigma[i];
-      if (held[i] || !std::isfinite(prior)) continue;
-      if (std::sqrt(cov(i, i)) / prior > o.keep_prior_ratio) held[i] = changed = true;
-    }
-    if (!bore_held && std::isfinite(p.prior.sigma[kBoresightX])) {
-      double worst = 0;
-      for (int i = kBoresightX; i <= kBoresightZ; ++i)
-        worst = std::max(worst, std::sqrt(cov(i, i)) / p.prior.sigma[i]);
-      if (worst > o.keep_prior_ratio && !held[kBoresightX])
-        held[kBoresightX] = held[kBoresightY] = held[kBoresightZ] = changed = true;
-    }
-    if (!changed) break;
+    if (!HoldUnimproved(p, o, cov, dt_variance, bore_held, &held, &hold_dt)) break;
   }
   const State& st = adj.state();
   e.supplied = p.camera;
@@ -423,17 +478,16 @@ Result<CalibrationEstimate> SolveCalibration(const CalibrationProblem& p,
   u.boresight_deg = std::max({e.posterior_sigma[kBoresightX], e.posterior_sigma[kBoresightY],
                               e.posterior_sigma[kBoresightZ]}) /
                     kDegToRad;
+  e.time_offset_s = st.dt[0];
+  e.time_offset_prior_sigma_s = p.prior.time_offset_s;
+  e.time_offset_estimated = !hold_dt;
+  e.time_offset_sigma_s = hold_dt ? p.prior.time_offset_s : std::sqrt(dt_variance);
   e.rms_after_px = s.rms_after_px;
   e.observations = static_cast<int>(p.observations.size());
   e.views = static_cast<int>(p.views.size());
   e.points = static_cast<int>(p.points.size());
   e.variance_factor = s.chi2 / std::max(1, 2 * e.observations - free_parameters);
-  const cv::Matx33d b = e.boresight();
-  for (size_t v = 0; v < p.views.size(); ++v) {
-    e.camera_from_world.push_back(b * RotationOf(st.delta[v].data()) *
-                                  p.views[v].camera_from_world);
-    e.centers.emplace_back(st.center[v][0], st.center[v][1], st.center[v][2]);
-  }
+  AdjustedViews(p, st, &e);
   for (const auto& x : st.points) e.adjusted_points.emplace_back(x[0], x[1], x[2]);
   e.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   return e;

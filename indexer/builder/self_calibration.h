@@ -30,9 +30,17 @@
 // parameters, H = J^T J of the robustified Jacobian (priors included), solved by a sparse
 // Cholesky factorization for six right-hand sides, never a dense or full-problem inverse.
 //
-// What the demo world's camera (global shutter, synthetic) cannot show: rolling shutter, and the
-// drive's exposure time offset, which at speed shifts frames along the track and could be read
-// as a focal change on a camera that turns; neither is modelled here.
+// Time offset: the camera's clock against the INS's. An image taken dt after its row's time sees
+// from the pose the vehicle reached dt later: its centre moved by the velocity times dt and its
+// heading turned by the yaw rate times dt (first order; 20 ms at 9 m/s is 0.18 m and, in a
+// corner turning 40 deg/s, 0.8 deg). One dt per camera per drive, under a prior (time_offset_s);
+// each view carries its velocity and yaw rate from the survey's neighbouring rows. Observability:
+// on a straight the shift moves every camera and point together (unobservable: held at zero by
+// the keep-prior rule); turns pin it, through the heading turn and the shift's changing direction.
+// Left unmodelled, the heading error in corners moves the map's points there (a usable fix 2 m off
+// on the realistic demo town: docs/design.md 4.4.1).
+//
+// What the demo world's camera (global shutter, synthetic) cannot show: rolling shutter.
 //
 // Frames: ENU metres, camera as rotation.h. Thread safety: reentrant; one thread (Ceres' Schur
 // sums depend on thread order, and maps must be byte-identical whatever --jobs is).
@@ -59,12 +67,16 @@ extern const char* const kCalibrationParameterNames[kCalibrationParameters];
 // the camera's x, y, z). > 0 Gaussian prior; 0 held fixed; +infinity free.
 struct CalibrationPrior {
   std::array<double, kCalibrationParameters> sigma{};
+  double time_offset_s = 0;  // 1-sigma of the camera's time offset, seconds, as above
 };
 // The camera file's stated uncertainty with its defaults (UncertaintyOrDefault), boresight per
-// axis.
+// axis; the time offset's kDefaultTimeOffsetSigmaS.
 CalibrationPrior PriorOf(const CameraModel& camera);
 
 inline constexpr double kFreeParameter = std::numeric_limits<double>::infinity();
+// A camera's time offset against the INS without a hardware trigger: a few to a few tens of
+// milliseconds (from memory; the realistic demo world draws 5-30 ms).
+inline constexpr double kDefaultTimeOffsetSigmaS = 0.03;
 
 // The generic problem: views with pose priors, points (free or fixed), pixel observations.
 struct CalibrationView {
@@ -72,6 +84,8 @@ struct CalibrationView {
   cv::Vec3d center;               // world, metres
   double center_sigma_m = 0;      // 0 fixed, +inf free, else a prior per axis
   double attitude_sigma_rad = 0;  // 0 fixed, +inf free, else a prior per axis
+  cv::Vec3d velocity;             // world, m/s (the time offset's shift per second)
+  double yaw_rate_rad_s = 0;      // about the world's up axis, counterclockwise
 };
 struct CalibrationObservation {
   int view = 0, point = 0;
@@ -109,6 +123,10 @@ struct CalibrationEstimate {
   cv::Vec3d boresight_rad;            // angle-axis, camera as mounted from the INS-implied camera
   cv::Matx33d boresight() const;      // the rotation B
   cv::Matx<double, 6, 6> covariance;  // of the six parameters, at pixel_sigma_px
+  // The time offset (image time minus its row's time), its prior and posterior 1-sigma; held at
+  // 0 when not estimated (its prior 0, no view moving, or not improved by the data).
+  double time_offset_s = 0, time_offset_prior_sigma_s = 0, time_offset_sigma_s = 0;
+  bool time_offset_estimated = false;
   std::array<double, kCalibrationParameters> prior_sigma{}, posterior_sigma{};
   // Estimated from the data (false: held at the supplied value, fixed or not improved).
   std::array<bool, kCalibrationParameters> estimated{};

@@ -1,4 +1,5 @@
-// SelfCalibrateDrive (self_calibration.h): a drive's tracks into a calibration problem.
+// SelfCalibrateDrive (self_calibration.h): a drive's tracks into a calibration problem; the
+// priors and options it takes.
 #include <algorithm>
 #include <cmath>
 #include <numeric>
@@ -32,6 +33,33 @@ std::vector<int> PickPoints(const std::vector<StructurePoint>& pts, size_t views
 
 }  // namespace
 
+CalibrationPrior PriorOf(const CameraModel& c) {
+  const CalibrationUncertainty u = UncertaintyOrDefault(c);
+  CalibrationPrior p;
+  p.sigma[kFocal] = u.focal_px;
+  p.sigma[kK1] = u.k1;
+  p.sigma[kK2] = u.k2;
+  const double b = u.boresight_deg * kDegToRad;
+  p.sigma[kBoresightX] = p.sigma[kBoresightY] = p.sigma[kBoresightZ] = b;
+  p.time_offset_s = kDefaultTimeOffsetSigmaS;
+  return p;
+}
+
+bool SelfCalibrationOptions::Validate(std::string* error) const {
+  auto fail = [&](const char* m) {
+    if (error) *error = m;
+    return false;
+  };
+  if (!(pixel_sigma_px > 0) || !(huber_px > 0)) return fail("pixel_sigma_px, huber_px must be > 0");
+  if (max_iterations < 1) return fail("max_iterations must be >= 1");
+  if (!(keep_prior_ratio > 0 && keep_prior_ratio <= 1))
+    return fail("keep_prior_ratio must be within (0, 1]");
+  if (!(alarm_probability > 0 && alarm_probability < 1))
+    return fail("alarm_probability must be within (0, 1)");
+  if (max_points_per_view < 1) return fail("max_points_per_view must be >= 1");
+  return tracks.Validate(error);
+}
+
 Result<CalibrationEstimate> SelfCalibrateDrive(const std::vector<SurveyView>& views,
                                                const CameraModel& camera,
                                                const CalibrationPrior& prior,
@@ -60,6 +88,7 @@ Result<CalibrationEstimate> SelfCalibrateDrive(const std::vector<SurveyView>& vi
             ? (v.attitude_sigma_deg > 0 ? v.attitude_sigma_deg : o.tracks.attitude_sigma_deg) *
                   kDegToRad
             : 0;
+    view.velocity = v.velocity_enu, view.yaw_rate_rad_s = v.yaw_rate_rad_s;
     p.views.push_back(view);
   }
   for (int i : picked) {

@@ -88,11 +88,12 @@ Result<CameraModel> CameraOfJson(const json& j);
 // fisheye lens). CACHE (may be null) gets the features it extracted. Fails only on I/O.
 Status CalibrateSurveyCameras(const BuildOptions& o, const Survey& s, json* cameras,
                               FeatureCache* cache);
-// The camera a plan entry says to use: the refined one and its boresight where calibrated,
-// else the supplied one and the identity.
+// The camera a plan entry says to use: the refined one, its boresight and time offset where
+// calibrated (a plan without a time offset: 0), else the supplied one, the identity and 0.
 struct CalibratedCamera {
   CameraModel camera;
-  cv::Matx33d boresight;  // camera as mounted from the camera the INS attitude implies
+  cv::Matx33d boresight;     // camera as mounted from the camera the INS attitude implies
+  double time_offset_s = 0;  // the image's time minus its row's (self_calibration.h)
 };
 Result<CalibratedCamera> CalibratedCameraOf(const json& entry, const CameraModel& supplied);
 

@@ -57,6 +57,10 @@ struct SurveyView {
   // 1-sigma of the attitude prior; 0 = StructureOptions::attitude_sigma_deg. Larger for inputs
   // that carry no pitch and roll (EXIF, GPX).
   double attitude_sigma_deg = 0;
+  // The vehicle's motion at the row's time (from its neighbouring rows; 0 where it has none):
+  // what self-calibration's time offset moves the camera by (self_calibration.h).
+  cv::Vec3d velocity_enu;     // m/s
+  double yaw_rate_rad_s = 0;  // about up, counterclockwise
   const LocalFeatures* features = nullptr;
 };
 
