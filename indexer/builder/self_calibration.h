@@ -40,7 +40,8 @@
 // Left unmodelled, the heading error in corners moves the map's points there (a usable fix 2 m off
 // on the realistic demo town: docs/design.md 4.4.1).
 //
-// What the demo world's camera (global shutter, synthetic) cannot show: rolling shutter.
+// Not modelled: a rolling shutter (each row exposed at its own time), which the realistic demo
+// world renders and which biases f and the time offset here (docs/design.md 4.4.1).
 //
 // Frames: ENU metres, camera as rotation.h. Thread safety: reentrant; one thread (Ceres' Schur
 // sums depend on thread order, and maps must be byte-identical whatever --jobs is).
