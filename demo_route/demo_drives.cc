@@ -289,6 +289,7 @@ void AddCameraNuisances(const CameraNuisanceRanges& r, uint64_t seed, size_t i, 
   d->plan.camera_pitch_deg += d->camera_draw.mount_pitch_deg;
   d->condition.jpeg_quality = d->camera_draw.jpeg_quality;
   d->condition.noise_sigma = 0;
+  d->camera.readout_s = d->camera_draw.readout_s;  // a datasheet's figure: camera.yml states it
 }
 
 // The camera's motion at each exposure: the planned path's velocity and yaw rate over +-50 ms

@@ -21,8 +21,10 @@ constexpr double kDegToRad = M_PI / 180.0;
 
 // Pixel residual of one observation, over pixel sigma. Blocks: intrinsics (f, k1, k2),
 // boresight (angle-axis), the view's rotation correction (angle-axis), its centre, the point,
-// the time offset dt. The camera at dt: centre + velocity dt, turned by yaw_rate dt about up
-// (the world turns the other way in the camera: R0 Rz(-yaw_rate dt)).
+// the time offset dt. The observation's row was exposed at t = dt + its rolling-shutter time
+// (readout (row / (rows - 1) - 1/2), 0 with a global shutter), from the camera at t: centre +
+// velocity t, turned by yaw_rate t about up (the world turns the other way in the camera:
+// R0 Rz(-yaw_rate t)).
 struct PixelCost {
   PixelCost(const CalibrationView& view, const cv::Point2d& pixel, const CameraModel& c,
             double sigma)
@@ -30,6 +32,7 @@ struct PixelCost {
         velocity_(view.velocity),
         yaw_rate_(view.yaw_rate_rad_s),
         pixel_(pixel),
+        row_time_(c.height_px > 1 ? c.readout_s * (pixel.y / (c.height_px - 1) - 0.5) : 0.0),
         aspect_(c.fy / c.fx),
         cx_(c.cx),
         cy_(c.cy),
@@ -41,9 +44,10 @@ struct PixelCost {
   template <typename T>
   bool operator()(const T* intr, const T* bore, const T* delta, const T* center, const T* point,
                   const T* dt, T* residual) const {
+    const T t = dt[0] + T(row_time_);
     T w[3];
-    for (int i = 0; i < 3; ++i) w[i] = point[i] - center[i] - T(velocity_[i]) * dt[0];
-    const T yaw = T(yaw_rate_) * dt[0], c = cos(yaw), s = sin(yaw);
+    for (int i = 0; i < 3; ++i) w[i] = point[i] - center[i] - T(velocity_[i]) * t;
+    const T yaw = T(yaw_rate_) * t, c = cos(yaw), s = sin(yaw);
     const T d[3] = {c * w[0] + s * w[1], -s * w[0] + c * w[1], w[2]};  // Rz(-yaw) w
     T p0[3], p1[3], p[3];
     for (int i = 0; i < 3; ++i)
@@ -64,6 +68,7 @@ struct PixelCost {
   cv::Vec3d velocity_;
   double yaw_rate_;
   cv::Point2d pixel_;
+  double row_time_;
   double aspect_, cx_, cy_, p1_, p2_, k3_, inv_sigma_;
 };
 

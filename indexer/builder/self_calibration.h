@@ -40,8 +40,9 @@
 // Left unmodelled, the heading error in corners moves the map's points there (a usable fix 2 m off
 // on the realistic demo town: docs/design.md 4.4.1).
 //
-// Not modelled: a rolling shutter (each row exposed at its own time), which the realistic demo
-// world renders and which biases f and the time offset here (docs/design.md 4.4.1).
+// Rolling shutter: a row y is exposed at dt + readout (y / (rows - 1) - 1/2) (the camera's
+// readout_s, from its file; 0 for a global shutter), and each observation is taken from the pose
+// at its row's time. Left out, the rows' skew in corners biases f and dt (docs/design.md 4.4.1).
 //
 // Frames: ENU metres, camera as rotation.h. Thread safety: reentrant; one thread (Ceres' Schur
 // sums depend on thread order, and maps must be byte-identical whatever --jobs is).

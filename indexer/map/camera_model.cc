@@ -21,6 +21,8 @@ bool CameraModel::IsValid(std::string* error) const {
   const CalibrationUncertainty& u = uncertainty;
   for (double v : {u.focal_px, u.k1, u.k2, u.boresight_deg})
     if (!(std::isfinite(v) && v >= 0)) return fail("calibration sigmas must be finite and >= 0");
+  if (!(readout_s >= 0 && readout_s <= kMaxReadoutS))
+    return fail("rolling_shutter_readout_ms must be 0 to 200");
   return true;
 }
 
@@ -157,6 +159,11 @@ Result<CameraModel> ReadCalibration(const std::string& path) {
   }
   Status u = ReadUncertainty(fs, &cam.uncertainty);
   if (!u.ok()) return fail(u);
+  if (fs["rolling_shutter_readout_ms"]) {
+    Result<double> r = YamlNumber(fs["rolling_shutter_readout_ms"], "rolling_shutter_readout_ms");
+    if (!r.ok()) return fail(r.status());
+    cam.readout_s = *r / 1000;
+  }
   std::string error;
   if (!cam.IsValid(&error)) return Status::InvalidArgument(path + ": " + error);
   return cam;
@@ -198,6 +205,7 @@ Status SaveCameraModel(const CameraModel& cam, const std::string& path) {
     if (u.k1 > 0) fs << "k1_sigma" << u.k1;
     if (u.k2 > 0) fs << "k2_sigma" << u.k2;
     if (u.boresight_deg > 0) fs << "boresight_sigma_deg" << u.boresight_deg;
+    if (cam.readout_s > 0) fs << "rolling_shutter_readout_ms" << cam.readout_s * 1000;
     return Status::Ok();
   } catch (const cv::Exception& e) {
     return Status::IoError("cannot write " + path + ": " + e.what());

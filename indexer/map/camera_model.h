@@ -30,6 +30,10 @@ struct CalibrationUncertainty {
   double boresight_deg = 0;  // the camera's mounting rotation against the INS, per axis
 };
 
+// The longest readout a file may state: a slow CMOS sensor reads a frame in tens of milliseconds
+// (from memory); 200 ms is surely a wrong unit.
+inline constexpr double kMaxReadoutS = 0.2;
+
 struct CameraModel {
   int width_px = 0;
   int height_px = 0;
@@ -38,6 +42,10 @@ struct CameraModel {
   std::array<double, 5> distortion{0, 0, 0, 0, 0};
   LensModel lens = LensModel::kPinhole;
   CalibrationUncertainty uncertainty;
+  // A rolling shutter's readout: seconds from the first row's exposure centre to the last's, the
+  // middle row at the image's time (optional key rolling_shutter_readout_ms, the sensor's line
+  // time times its rows from its datasheet; 0 = global shutter or not stated).
+  double readout_s = 0;
 
   // Names the bad field in *error when false (non-positive size or focal length, principal
   // point outside the image, non-finite coefficients).

@@ -121,5 +121,34 @@ TEST(CameraModelTest, CalibrationUncertaintyRoundTrip) {
   EXPECT_NE(refused.status().message().find("k1_sigma"), std::string::npos);
 }
 
+// The optional rolling-shutter readout: written only when stated, read back in seconds, absent
+// means 0 (a global shutter), and refused when negative or beyond 200 ms (a wrong unit).
+TEST(CameraModelTest, RollingShutterReadoutRoundTrip) {
+  const std::string path = ::testing::TempDir() + "/cam_readout.yml";
+  CameraModel cam = Distorted();
+  ASSERT_TRUE(SaveCameraModel(cam, path).ok());
+  Result<CameraModel> global = LoadCameraModel(path);
+  ASSERT_TRUE(global.ok()) << global.status().ToString();
+  EXPECT_EQ(global->readout_s, 0);
+  cam.readout_s = 0.0212;
+  ASSERT_TRUE(SaveCameraModel(cam, path).ok());
+  Result<CameraModel> loaded = LoadCameraModel(path);
+  ASSERT_TRUE(loaded.ok()) << loaded.status().ToString();
+  EXPECT_NEAR(loaded->readout_s, 0.0212, 1e-12);
+  for (const char* bad : {"-1", "250", "fast"}) {
+    SCOPED_TRACE(bad);
+    cam.readout_s = 0;
+    ASSERT_TRUE(SaveCameraModel(cam, path).ok());
+    std::FILE* f = std::fopen(path.c_str(), "a");
+    ASSERT_NE(f, nullptr);
+    std::fprintf(f, "rolling_shutter_readout_ms: %s\n", bad);
+    std::fclose(f);
+    Result<CameraModel> refused = LoadCameraModel(path);
+    EXPECT_EQ(refused.status().code(), StatusCode::kInvalidArgument);
+    EXPECT_NE(refused.status().message().find("rolling_shutter_readout_ms"), std::string::npos)
+        << refused.status().message();
+  }
+}
+
 }  // namespace
 }  // namespace sightfix
