@@ -16,6 +16,7 @@
 #include "demo_route/demo_town.h"
 #include "indexer/base/geo.h"
 #include "indexer/base/rotation.h"
+#include "indexer/map/camera_model.h"
 #include "indexer/map/drive_manifest.h"
 
 namespace sightfix::demo {
@@ -110,7 +111,8 @@ void CheckMount(const fs::path& dir, const nlohmann::json& drive) {
 }
 
 // One realistic town, written twice (one and two render threads): same bytes; its town.json
-// records every drive's camera within the ranges; query drives stand at their mount.
+// records every drive's camera within the ranges; each camera.yml states the drawn readout, as
+// a datasheet would (none for a global shutter); query drives stand at their mount.
 TEST(CameraWorldTest, RecordsTheDrawAndTheMount) {
   const DemoOptions one = SmallRealistic("camera_world_1", 1);
   const DemoOptions two = SmallRealistic("camera_world_2", 2);
@@ -125,6 +127,12 @@ TEST(CameraWorldTest, RecordsTheDrawAndTheMount) {
     ASSERT_TRUE(drive.contains("camera_nuisances")) << name;
     CheckDraw(name, drive["camera_nuisances"], ranges);
     EXPECT_EQ(drive["appearance"]["jpeg_quality"], drive["camera_nuisances"]["jpeg_quality"]);
+    const Result<CameraModel> written =
+        LoadCameraModel((fs::path(two.out_dir) / name / "camera.yml").string());
+    ASSERT_TRUE(written.ok()) << written.status().ToString();
+    EXPECT_NEAR(written->readout_s * 1e3, drive["camera_nuisances"]["readout_ms"].get<double>(),
+                1e-9)
+        << name;
     if (name != "survey") CheckMount(fs::path(two.out_dir) / name, drive);
   }
   EXPECT_FALSE(NuisancesForWorld(World::kClean).camera.enabled);
