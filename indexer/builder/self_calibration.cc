@@ -19,12 +19,10 @@ namespace {
 
 constexpr double kDegToRad = M_PI / 180.0;
 
-// Pixel residual of one observation, over pixel sigma. Blocks: intrinsics (f, k1, k2),
-// boresight (angle-axis), the view's rotation correction (angle-axis), its centre, the point,
-// the time offset dt. The observation's row was exposed at t = dt + its rolling-shutter time
-// (readout (row / (rows - 1) - 1/2), 0 with a global shutter), from the camera at t: centre +
-// velocity t, turned by yaw_rate t about up (the world turns the other way in the camera:
-// R0 Rz(-yaw_rate t)).
+// Pixel residual of one observation, over pixel sigma. Blocks: intrinsics (f, k1, k2), boresight
+// and the view's rotation correction (angle-axis), its centre, the point, the time offset dt. The
+// row is exposed at t = dt + readout (row / (rows - 1) - 1/2) (readout 0: a global shutter), from
+// the camera at t: centre + velocity t, turned by yaw_rate t about up (R0 Rz(-yaw_rate t)).
 struct PixelCost {
   PixelCost(const CalibrationView& view, const cv::Point2d& pixel, const CameraModel& c,
             double sigma)
