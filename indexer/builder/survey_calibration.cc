@@ -73,23 +73,8 @@ Result<json> CalibrateCamera(const BuildOptions& o, const Survey& s, int cam, Fe
   const EnuFrame enu(sub.rows.front().position);
   SelfCalibrationOptions so = o.calibration;
   so.tracks.jobs = o.jobs;
-  Result<CalibrationEstimate> e =
+  const Result<CalibrationEstimate> e =
       SelfCalibrateDrive(Views(sub, enu), s.cameras[cam], PriorOf(s.cameras[cam]), so);
-  // Once more from the rows moved by a time offset found (beyond 3 sigma): tracks through a
-  // corner whose frames were turned away from their images failed the structure's gates the first
-  // time (the realistic demo town, seed 41: 13.1 ms, then 13.7 ms; a third pass moved it 0.0 ms).
-  if (e.ok() && e->time_offset_estimated &&
-      std::abs(e->time_offset_s) > 3 * e->time_offset_sigma_s) {
-    sub.time_offset_s.assign(sub.cameras.size(), 0.0);
-    sub.time_offset_s[cam] = e->time_offset_s;
-    Result<CalibrationEstimate> again =
-        SelfCalibrateDrive(Views(sub, enu), s.cameras[cam], PriorOf(s.cameras[cam]), so);
-    if (again.ok()) {
-      again->time_offset_s += e->time_offset_s;
-      again->seconds += e->seconds;
-      e = std::move(again);
-    }
-  }
   if (cache)  // the views borrowed the features until here
     for (size_t k = 0; k < sub.rows.size(); ++k)
       (*cache)[sub.rows[k].image] = std::move(sub.features[k]);
