@@ -243,8 +243,8 @@ TEST_F(RealisticAccuracyTest, OffMapFramesGetNoConfidentFix) {
 // tests/cli/fit_integrity_test.sh). Seed 41 (CI's) is held out from the development of the place
 // and near-miss checks, which seed 43 drove. Measured 2026-12-05, flagged usable: seed 41 103 of
 // 279 protected fixes (day 18, dusk 6, overcast 64, off-map 15), seed 43 28 of 236 (day 10, dusk
-// 10, overcast 7, off-map 1); 0 misleading on both; the floor of 20 usable keeps the test from passing
-// on an engine that flags nothing. Guards the protection levels end to end
+// 10, overcast 7, off-map 1); 0 misleading on both; the floor of 20 usable keeps the test from
+// passing on an engine that flags nothing. Guards the protection levels end to end
 // (tests/mutants/mutants.tsv: protection_levels_at_one_sigma).
 TEST_F(RealisticAccuracyTest, NoMisleadingFixAtTheNarrowestLevels) {
   RealisticTown& t = RealisticTown::Get();
