@@ -16,7 +16,6 @@ const char* const kCalibrationParameterNames[kCalibrationParameters] = {
     "focal_px", "k1", "k2", "boresight_x_rad", "boresight_y_rad", "boresight_z_rad"};
 
 namespace {
-
 constexpr double kDegToRad = M_PI / 180.0;
 
 // Pixel residual of one observation, over pixel sigma. Blocks: intrinsics (f, k1, k2), boresight
@@ -91,8 +90,7 @@ cv::Matx33d RotationOf(const double* angle_axis) {
 
 // The solver's state: every parameter block, owned here so Ceres can point into it.
 struct State {
-  std::array<double, 3> intr{};
-  std::array<double, 3> bore{};
+  std::array<double, 3> intr{}, bore{};
   std::array<double, 1> dt{};
   std::vector<std::array<double, 3>> delta, center;
   std::vector<std::array<double, 3>> points;
@@ -395,11 +393,12 @@ void AdjustedViews(const CalibrationProblem& p, const State& st, CalibrationEsti
   }
 }
 
-// The keep-prior rule (the header): holds each estimated parameter whose posterior sigma over
-// its prior is above keep_prior_ratio (the boresight as a whole). True when it held any.
+// The keep-prior rule (the header; the boresight as a whole) and a time offset dt within
+// time_offset_sigmas of zero: holds them. True when it held any.
 bool HoldUnimproved(const CalibrationProblem& p, const SelfCalibrationOptions& o,
-                    const cv::Matx<double, 6, 6>& cov, double dt_variance, bool bore_held,
-                    std::array<bool, kCalibrationParameters>* held_out, bool* hold_dt) {
+                    const cv::Matx<double, 6, 6>& cov, double dt, double dt_variance,
+                    bool bore_held, std::array<bool, kCalibrationParameters>* held_out,
+                    bool* hold_dt) {
   std::array<bool, kCalibrationParameters>& held = *held_out;
   bool changed = false;
   for (int i = kFocal; i <= kK2; ++i) {
@@ -415,8 +414,9 @@ bool HoldUnimproved(const CalibrationProblem& p, const SelfCalibrationOptions& o
       held[kBoresightX] = held[kBoresightY] = held[kBoresightZ] = changed = true;
   }
   const double dt_prior = p.prior.time_offset_s;
-  if (!*hold_dt && std::isfinite(dt_prior) &&
-      std::sqrt(dt_variance) / dt_prior > o.keep_prior_ratio)
+  if (!*hold_dt &&
+      ((std::isfinite(dt_prior) && std::sqrt(dt_variance) / dt_prior > o.keep_prior_ratio) ||
+       std::abs(dt) < o.time_offset_sigmas * std::sqrt(dt_variance)))
     *hold_dt = changed = true;
   return changed;
 }
@@ -456,7 +456,8 @@ Result<CalibrationEstimate> SolveCalibration(const CalibrationProblem& p,
     if (!adj.Covariance(held, &cov, &dt_variance, &free_parameters))
       return Status(StatusCode::kFailedPrecondition,
                     "self-calibration: the calibration is not observable (singular system)");
-    if (!HoldUnimproved(p, o, cov, dt_variance, bore_held, &held, &hold_dt)) break;
+    if (!HoldUnimproved(p, o, cov, adj.state().dt[0], dt_variance, bore_held, &held, &hold_dt))
+      break;
   }
   const State& st = adj.state();
   e.supplied = p.camera;

@@ -37,6 +37,8 @@
 // each view carries its velocity and yaw rate from the survey's neighbouring rows. Observability:
 // on a straight the shift moves every camera and point together (unobservable: held at zero by
 // the keep-prior rule); turns pin it, through the heading turn and the shift's changing direction.
+// An estimate within time_offset_sigmas (3) of zero is held at zero: a camera triggered by the
+// INS has none, and applying noise moved a clean map's fixes (docs/design.md 4.4.1).
 // Left unmodelled, the heading error in corners moves the map's points there (a usable fix 2 m off
 // on the realistic demo town: docs/design.md 4.4.1).
 //
@@ -103,10 +105,13 @@ struct CalibrationProblem {
 };
 
 struct SelfCalibrationOptions {
-  double pixel_sigma_px = 1.0;       // keypoint noise (SIFT, common practice ~1 px)
-  double huber_px = 2.0;             // Huber loss scale, pixels (as structure.h's adjustment)
-  int max_iterations = 50;           // per solve
-  double keep_prior_ratio = 0.7;     // posterior / prior sigma above this: held at the prior
+  double pixel_sigma_px = 1.0;    // keypoint noise (SIFT, common practice ~1 px)
+  double huber_px = 2.0;          // Huber loss scale, pixels (as structure.h's adjustment)
+  int max_iterations = 50;        // per solve
+  double keep_prior_ratio = 0.7;  // posterior / prior sigma above this: held at the prior
+  // A time offset within this many posterior sigmas of zero is held at zero: the data cannot tell
+  // it from a camera triggered by the INS, and a map built with it would move by noise.
+  double time_offset_sigmas = 3.0;
   double alarm_probability = 0.999;  // chi-square quantile of the move test
   // Tracks for a drive (SelfCalibrateDrive): the structure's gates, wider than a map's because
   // the supplied calibration may be a few pixels off at the image's edge, and at most this many

@@ -57,6 +57,7 @@ bool SelfCalibrationOptions::Validate(std::string* error) const {
   if (!(alarm_probability > 0 && alarm_probability < 1))
     return fail("alarm_probability must be within (0, 1)");
   if (max_points_per_view < 1) return fail("max_points_per_view must be >= 1");
+  if (!(time_offset_sigmas >= 0)) return fail("time_offset_sigmas must be >= 0");
   return tracks.Validate(error);
 }
 

@@ -15,7 +15,8 @@
 //   - the builder turns each frame by the estimated boresight the right way round (its INS
 //     attitude comes closer to the true camera, not further);
 //   - a camera whose images are 20 ms late: the turning drive recovers the time offset within 3
-//     sigma, a straight drive holds it, and the builder moves each row to its image's pose;
+//     sigma, a straight drive holds it, and the builder moves each row to its image's pose; a
+//     camera without one has it held at zero;
 //   - a rolling shutter stated in the camera file leaves no bias; left out, it biases the
 //     estimate beyond 3 sigma.
 #include "indexer/builder/self_calibration.h"
@@ -362,6 +363,21 @@ TEST_P(TurningDrive, RollingShutterStatedInTheFileLeavesNoBias) {
       static_cast<int>(GetParam()), 1e3 * e->time_offset_s, e->refined.fx, 1e3 * u->time_offset_s,
       u->refined.fx, worst);
   EXPECT_GT(worst, 3);
+}
+
+// A camera without a time offset (one triggered by the INS) through the same corner: the estimate
+// cannot be told from zero, so it is held there (time_offset_sigmas) and the builder moves no row
+// by noise. Seeds 1-3.
+TEST_P(TurningDrive, NoTimeOffsetHeldAtZero) {
+  const Drive d = MakeDrive(true, OffBy(0.008, 0.015, -0.006), GetParam());
+  Result<CalibrationEstimate> e = SolveCalibration(d.problem, Options());
+  ASSERT_TRUE(e.ok()) << e.status().message();
+  EXPECT_FALSE(e->time_offset_estimated) << 1e3 * e->time_offset_s << " ms";
+  EXPECT_EQ(e->time_offset_s, 0);
+  EXPECT_EQ(e->time_offset_sigma_s, kDefaultTimeOffsetSigmaS);
+  for (int i = 0; i < kCalibrationParameters; ++i)
+    EXPECT_LT(std::fabs(Estimate(*e, i) - TrueValue(d, i)), 3 * e->posterior_sigma[i])
+        << kCalibrationParameterNames[i];
 }
 
 // Straight ahead, a time offset only slides every camera and point along the road together: it
