@@ -38,6 +38,7 @@
 #include "indexer/base/geo.h"
 #include "indexer/builder/map_builder.h"
 #include "indexer/builder/self_calibration.h"
+#include "indexer/builder/staging.h"
 #include "indexer/map/camera_model.h"
 #include "indexer/map/drive_manifest.h"
 #include "server/engine/localizer.h"
@@ -322,6 +323,70 @@ TEST_F(RealisticAccuracyTest, SurveyCameraRefinedTowardItsTruth) {
   EXPECT_LT(std::abs(k1 - truth->distortion[0]), 3 * sigma[kK1]);
   EXPECT_TRUE(cal.at("time_offset_estimated").get<bool>());
   EXPECT_LT(std::abs(dt - true_dt), 0.003);
+}
+
+// The survey as two drives of one camera: its drive.csv with the first half's rows naming
+// cam-a.yml and the rest cam-b.yml, both copies of camera.yml; images linked, not copied.
+std::string SurveyInHalves(const std::string& root) {
+  const fs::path survey = fs::path(root) / "town" / "survey", out = fs::path(root) / "halves";
+  fs::create_directories(out);
+  fs::copy_file(survey / "camera.yml", out / "cam-a.yml", fs::copy_options::overwrite_existing);
+  fs::copy_file(survey / "camera.yml", out / "cam-b.yml", fs::copy_options::overwrite_existing);
+  fs::create_directory_symlink(survey / "images", out / "images");
+  std::ifstream in(survey / "drive.csv");
+  std::vector<std::string> lines;
+  for (std::string line; std::getline(in, line);) lines.push_back(line);
+  std::ofstream csv(out / "drive.csv");
+  csv << lines[0] << "\n";
+  const std::string from = ",camera.yml,";
+  for (size_t i = 1; i < lines.size(); ++i) {
+    std::string row = lines[i];
+    const size_t at = row.find(from);
+    if (at != std::string::npos)
+      row.replace(at, from.size(), 2 * i <= lines.size() ? ",cam-a.yml," : ",cam-b.yml,");
+    csv << row << "\n";
+  }
+  return out.string();
+}
+
+// Two drives of the same camera agree (docs/design.md 4.4.1): each half of the survey (300 frames
+// through different corners) calibrated on its own gives the same focal length and k1 within 3
+// sigma of their difference. The boresight and the time offset are printed, not held to it: each
+// half's boresight also takes up that half's share of the survey's correlated heading error.
+// Measured 2026-12-05 on seed 41 (the indexer on the same split): f 500.25 +- 0.26 and 500.09 +-
+// 0.23 (0.5 sigma apart), k1 0.0010 +- 0.0010 and 0.0018 +- 0.0008 (0.6 sigma), time offset 15.3
+// and 16.8 ms (+- 0.5), boresight about y 0.13 and 0.28 deg (+- 0.03).
+TEST_F(RealisticAccuracyTest, TwoHalvesOfTheSurveyAgree) {
+  RealisticTown& t = RealisticTown::Get();
+  ASSERT_TRUE(t.ok());
+  BuildOptions o;
+  o.drive_dir = SurveyInHalves(t.root());
+  o.progress = false;
+  std::string format;
+  std::vector<std::string> skipped;
+  Result<build_internal::Survey> s = staging::ReadRows(o, &format, &skipped);
+  ASSERT_TRUE(s.ok()) << s.status().ToString();
+  ASSERT_EQ(s->cameras.size(), 2u);
+  nlohmann::json cameras = nlohmann::json::array({nlohmann::json::object(), {}});
+  ASSERT_TRUE(staging::CalibrateSurveyCameras(o, *s, &cameras, nullptr).ok());
+  double f[2], k1[2], f_sigma[2], k1_sigma[2];
+  for (int h = 0; h < 2; ++h) {
+    const nlohmann::json& c = cameras[h].at("calibration");
+    ASSERT_EQ(c.at("status"), "refined") << c.dump();
+    EXPECT_TRUE(c.at("estimated").at(kFocal).get<bool>()) << "half " << h + 1 << ": f held";
+    EXPECT_TRUE(c.at("estimated").at(kK1).get<bool>()) << "half " << h + 1 << ": k1 held";
+    const std::vector<double> sigma = c.at("posterior_sigma").get<std::vector<double>>();
+    const std::vector<double> bore = c.at("boresight_rad").get<std::vector<double>>();
+    f[h] = c.at("refined").at("fx").get<double>(), f_sigma[h] = sigma[kFocal];
+    k1[h] = c.at("refined").at("distortion").at(0).get<double>(), k1_sigma[h] = sigma[kK1];
+    std::printf(
+        "half %d: f %.2f +- %.2f px, k1 %.4f +- %.4f, time offset %.1f ms, boresight %.3f "
+        "%.3f %.3f deg\n",
+        h + 1, f[h], f_sigma[h], k1[h], k1_sigma[h], 1e3 * c.at("time_offset_s").get<double>(),
+        bore[0] * 180 / M_PI, bore[1] * 180 / M_PI, bore[2] * 180 / M_PI);
+  }
+  EXPECT_LT(std::abs(f[0] - f[1]), 3 * std::hypot(f_sigma[0], f_sigma[1]));
+  EXPECT_LT(std::abs(k1[0] - k1[1]), 3 * std::hypot(k1_sigma[0], k1_sigma[1]));
 }
 
 TEST_F(RealisticAccuracyGoal, NoFixFarOffOrConfidentlyWrong) {
