@@ -25,6 +25,11 @@ cv::Matx33d NedFromBody(double yaw, double pitch, double roll) {
 
 }  // namespace
 
+cv::Matx33d RotationAboutUp(double yaw_rad) {
+  const double c = std::cos(yaw_rad), s = std::sin(yaw_rad);
+  return cv::Matx33d(c, -s, 0, s, c, 0, 0, 0, 1);
+}
+
 cv::Matx33d EnuFromCamera(const Attitude& a) {
   return kEnuFromNed *
          NedFromBody(a.heading_deg * kDegToRad, a.pitch_deg * kDegToRad, a.roll_deg * kDegToRad) *

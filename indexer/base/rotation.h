@@ -29,6 +29,9 @@ cv::Matx33d EnuFromCamera(const Attitude& attitude);
 // Inverse of EnuFromCamera for a proper rotation; heading in [0, 360).
 Attitude AttitudeFromEnuFromCamera(const cv::Matx33d& enu_from_camera);
 
+// Rz(yaw): a turn of yaw radians counterclockwise about up (ENU z); a vehicle turning left.
+cv::Matx33d RotationAboutUp(double yaw_rad);
+
 // Rotation matrix <-> unit quaternion (Shepperd's method; w >= 0 on output).
 Quaternion QuaternionFromRotation(const cv::Matx33d& r);
 cv::Matx33d RotationFromQuaternion(const Quaternion& q);

@@ -226,10 +226,8 @@ std::vector<SurveyView> Views(const Survey& s, const EnuFrame& enu) {
     v.center_enu = enu.ToEnu(s.rows[i].position);
     RowMotion(s, enu, i, &v.velocity_enu, &v.yaw_rate_rad_s);
     if (const double dt = s.time_offset_s.empty() ? 0 : s.time_offset_s[s.camera_of_row[i]]) {
-      const double yaw = v.yaw_rate_rad_s * dt;
-      const cv::Matx33d turn(std::cos(yaw), -std::sin(yaw), 0, std::sin(yaw), std::cos(yaw), 0, 0,
-                             0, 1);  // Rz(yaw): the camera turned with the vehicle
-      v.enu_from_camera = turn * v.enu_from_camera;
+      // The camera turned with the vehicle.
+      v.enu_from_camera = RotationAboutUp(v.yaw_rate_rad_s * dt) * v.enu_from_camera;
       v.center_enu += v.velocity_enu * dt;
     }
     v.sigma_h_m = s.rows[i].sigma_h_m;

@@ -10,6 +10,8 @@
 #include <chrono>
 #include <cmath>
 
+#include "indexer/base/rotation.h"
+
 namespace sightfix {
 
 const char* const kCalibrationParameterNames[kCalibrationParameters] = {
@@ -383,9 +385,7 @@ void AdjustedViews(const CalibrationProblem& p, const State& st, CalibrationEsti
   const cv::Matx33d b = e->boresight();
   for (size_t v = 0; v < p.views.size(); ++v) {
     const CalibrationView& view = p.views[v];
-    const double yaw = view.yaw_rate_rad_s * st.dt[0];
-    const cv::Matx33d turn(std::cos(yaw), std::sin(yaw), 0, -std::sin(yaw), std::cos(yaw), 0, 0, 0,
-                           1);  // Rz(-yaw), as PixelCost
+    const cv::Matx33d turn = RotationAboutUp(-view.yaw_rate_rad_s * st.dt[0]);  // as PixelCost
     e->camera_from_world.push_back(b * RotationOf(st.delta[v].data()) * view.camera_from_world *
                                    turn);
     e->centers.push_back(cv::Vec3d(st.center[v][0], st.center[v][1], st.center[v][2]) +

@@ -63,5 +63,20 @@ TEST(RotationTest, QuaternionOfKnownRotation) {
   EXPECT_DOUBLE_EQ(WrapDeg180(-190), 170);
 }
 
+// A turn about up is counterclockwise seen from above (right-handed ENU, common practice):
+// east goes to north, and a camera's heading (clockwise from north) drops by the turn.
+TEST(RotationTest, RotationAboutUpTurnsLeft) {
+  const cv::Vec3d north = RotationAboutUp(M_PI / 2) * cv::Vec3d(1, 0, 0);
+  EXPECT_NEAR(north[0], 0, 1e-12);
+  EXPECT_NEAR(north[1], 1, 1e-12);
+  EXPECT_NEAR(north[2], 0, 1e-12);
+  const Attitude a{70, 3, -2};
+  const Attitude turned =
+      AttitudeFromEnuFromCamera(RotationAboutUp(10 * M_PI / 180) * EnuFromCamera(a));
+  EXPECT_NEAR(turned.heading_deg, 60, 1e-9);
+  EXPECT_NEAR(turned.pitch_deg, 3, 1e-9);
+  EXPECT_NEAR(turned.roll_deg, -2, 1e-9);
+}
+
 }  // namespace
 }  // namespace sightfix
