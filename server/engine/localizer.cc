@@ -76,6 +76,9 @@ struct Localizer::Impl {
   // A usable fix's look-alike check (LocalizerOptions::look_alike_checks).
   void CheckLookAlikes(const LocalFeatures& q, const LocateRequest& r,
                        const std::vector<Verified>& verified, Fix* fix) const;
+  // A usable fix's nearby check (LocalizerOptions::nearby_checks); po: the fix's pose options.
+  void CheckNearby(const LocalFeatures& q, const LocateRequest& r, const EnuFrame& frame,
+                   AbsolutePoseOptions po, const AbsolutePose& pose, Fix* fix) const;
   // REQUIRES: !verified->empty(). Sets each reference's centre and rotation in the frame of
   // the first, then the fix.
   void Pose(const LocalFeatures& q, const LocateRequest& r, const std::string& note,
@@ -389,6 +392,21 @@ void Localizer::Impl::CheckLookAlikes(const LocalFeatures& q, const LocateReques
   fix->references.insert(fix->references.end(), uses.begin(), uses.end());
 }
 
+void Localizer::Impl::CheckNearby(const LocalFeatures& q, const LocateRequest& r,
+                                  const EnuFrame& frame, AbsolutePoseOptions po,
+                                  const AbsolutePose& pose, Fix* fix) const {
+  std::vector<ReferenceUse> uses;
+  std::vector<Verified> found;  // one at a time: Verify stops after max_verified
+  for (const Candidate& c : SelectNearby(*cache, catalog.zoom, frame, pose, *fix, o))
+    for (Verified& v : Verify(q, {c}, r.camera, Clock::now(), &uses)) found.push_back(std::move(v));
+  KeepDisagreeing(q.normalized, pose, frame, po.threshold_px / po.focal_px, &found);
+  std::vector<int> groups;
+  const Result<AbsolutePose> nearby = NearbyPose(FromPoints(q, found, frame, &uses, &groups), po);
+  if (auto why = NearbyAliasReason(nearby.ok() ? &*nearby : nullptr, pose, o))
+    fix->integrity.state = IntegrityState::kPlaceAmbiguity, fix->integrity.detail = *why;
+  fix->references.insert(fix->references.end(), uses.begin(), uses.end());
+}
+
 // Stage 4 and on: the metric pose from the map's points, else from a reference pair (as
 // o.method allows), then the checks; coarse with the reasons when no pose passes.
 void Localizer::Impl::Pose(const LocalFeatures& q, const LocateRequest& r, const std::string& note,
@@ -435,6 +453,7 @@ void Localizer::Impl::Pose(const LocalFeatures& q, const LocateRequest& r, const
         verified);
     Finish(*pose, pts, *verified, frame, r.integrity, fix);
     if (fix->integrity.usable() && o.look_alike_checks > 0) CheckLookAlikes(q, r, *verified, fix);
+    if (fix->integrity.usable() && o.nearby_checks > 0) CheckNearby(q, r, frame, po, *pose, fix);
   } else
     Coarse(*verified, note + why, fix);
 }

@@ -101,6 +101,18 @@ struct LocalizerOptions {
   // How deep the reference's own retrieval goes: past its neighbours along the street (a
   // survey image every 2 m leaves some 30 within distinct_place_m, in both directions).
   int look_alike_depth = 64;
+  // Then up to nearby_checks survey images within distinct_place_m of the fix (farther than
+  // nearby_alias_m), facing its way, at least nearby_spacing_m apart, are checked against the
+  // query, and the pose their matches the fix does not explain give alone is solved (at least
+  // kNearbyPoseInliers inliers): one more than nearby_alias_m from the fix with
+  // nearby_alias_ratio or more of the fix's PnP inliers makes it place_ambiguity. It catches an
+  // alias nearer than distinct_place_m (a terrace of one design): seed 43's two day fixes 14
+  // and 22 m off got poses 14.3 and 21.7 m away at 0.60 and 0.61 (docs/design.md 5.6). 0 checks
+  // turn it off.
+  int nearby_checks = 8;
+  double nearby_spacing_m = 6;
+  double nearby_alias_m = 3;
+  double nearby_alias_ratio = 0.5;
   // Integrity (protection_levels.h): the default risk, the false-alert budget and the CDF
   // overbound. A request may ask for another risk. The map's fitted overbound (catalog.h
   // IntegrityFit) replaces overbound_scale where it is larger; the fixes then name its drive.

@@ -28,6 +28,10 @@ bool LocalizerOptions::Validate(std::string* error) const {
     return fail("look_alike_checks must be within [0, top_k]");
   if (!(look_alike_ratio > 0)) return fail("look_alike_ratio must be > 0");
   if (look_alike_depth < 1) return fail("look_alike_depth must be >= 1");
+  if (nearby_checks < 0) return fail("nearby_checks must be >= 0");
+  if (!(nearby_spacing_m >= 0)) return fail("nearby_spacing_m must be >= 0");
+  if (!(nearby_alias_m > 0)) return fail("nearby_alias_m must be > 0");
+  if (!(nearby_alias_ratio > 0)) return fail("nearby_alias_ratio must be > 0");
   if (!(default_alert_limit_m > 0)) return fail("default_alert_limit_m must be > 0");
   std::string p;
   if (!protection.Validate(&p)) return fail("protection: " + p);

@@ -2,8 +2,11 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstdio>
 
 #include "indexer/base/geo.h"
+#include "indexer/base/rotation.h"
+#include "indexer/map/tile_key.h"
 
 namespace sightfix {
 
@@ -111,6 +114,99 @@ std::optional<std::string> LookAlikeReason(const std::vector<ReferenceUse>& uses
   return "a look-alike of its strongest reference, " + std::to_string(static_cast<int>(twin_m)) +
          " m away, matched with " + std::to_string(twin->inliers) + " inliers, this place with " +
          std::to_string(here_inliers);
+}
+
+std::vector<Candidate> SelectNearby(TileCache& cache, int zoom, const EnuFrame& frame,
+                                    const AbsolutePose& pose, const Fix& fix,
+                                    const LocalizerOptions& o) {
+  const cv::Vec3d& center = pose.center;
+  const cv::Vec3d forward = pose.camera_from_world.t() * cv::Vec3d(0, 0, 1);
+  struct Near {
+    Candidate c;
+    cv::Vec3d at;  // in frame
+    double m;
+  };
+  std::vector<Near> near;
+  const double cos45 = std::sqrt(0.5), forward_h = std::hypot(forward[0], forward[1]);
+  const GeoPoint g = frame.ToGeo(center);
+  for (const TileKey& k : TilesTouchingCircle(g.lat_deg, g.lon_deg, o.distinct_place_m, zoom)) {
+    const int ordinal = cache.OrdinalOf(k);
+    if (ordinal < 0) continue;
+    const Result<std::shared_ptr<const LoadedTile>> t = cache.Get(ordinal);
+    if (!t.ok()) continue;  // a bad tile: the candidates it held are not checked
+    const LoadedTile& tile = **t;
+    const std::string key = tile.data.key.ToString();
+    for (size_t j = 0; j < tile.data.images.size(); ++j) {
+      const cv::Vec3d at = &tile.enu == &frame ? tile.image_centers[j]
+                                               : frame.ToEnu(tile.enu.ToGeo(tile.image_centers[j]));
+      const double m = std::hypot(at[0] - center[0], at[1] - center[1]);
+      if (m > o.distinct_place_m || m <= o.nearby_alias_m) continue;
+      const cv::Vec3d look = EnuFromCamera(tile.data.images[j].attitude) * cv::Vec3d(0, 0, 1);
+      if (look[0] * forward[0] + look[1] * forward[1] <
+          cos45 * std::hypot(look[0], look[1]) * forward_h)
+        continue;
+      const bool checked =
+          std::any_of(fix.references.begin(), fix.references.end(), [&](const ReferenceUse& u) {
+            return u.checked && u.tile == key && u.image_id == static_cast<int>(j);
+          });
+      if (!checked) near.push_back({{*t, ordinal, static_cast<int>(j), 0}, at, m});
+    }
+  }
+  std::sort(near.begin(), near.end(), [](const Near& a, const Near& b) { return a.m < b.m; });
+  std::vector<Candidate> out;
+  std::vector<cv::Vec3d> chosen;
+  for (const Near& n : near) {
+    if (static_cast<int>(out.size()) >= o.nearby_checks) break;
+    if (std::any_of(chosen.begin(), chosen.end(),
+                    [&](const cv::Vec3d& c) { return cv::norm(c - n.at) < o.nearby_spacing_m; }))
+      continue;
+    chosen.push_back(n.at);
+    out.push_back(n.c);
+  }
+  return out;
+}
+
+void KeepDisagreeing(const std::vector<cv::Point2d>& query_normalized, const AbsolutePose& fix,
+                     const EnuFrame& frame, double threshold, std::vector<Verified>* refs) {
+  for (Verified& v : *refs) {
+    const LoadedTile& t = *v.c.tile;
+    const ReferenceImage& ref = t.data.images[v.c.image];
+    v.matches.erase(std::remove_if(v.matches.begin(), v.matches.end(),
+                                   [&](const std::pair<int, int>& m) {
+                                     const int pid = ref.point_ids[m.second];
+                                     if (pid < 0) return true;
+                                     const cv::Vec3d& e = t.data.points[pid].enu;
+                                     const cv::Vec3d w =
+                                         &t.enu == &frame ? e : frame.ToEnu(t.enu.ToGeo(e));
+                                     const cv::Vec3d x = fix.camera_from_world * (w - fix.center);
+                                     const cv::Point2d& q = query_normalized[m.first];
+                                     return x[2] > 0 && std::hypot(x[0] / x[2] - q.x,
+                                                                   x[1] / x[2] - q.y) <= threshold;
+                                   }),
+                    v.matches.end());
+  }
+}
+
+Result<AbsolutePose> NearbyPose(const std::vector<PointCorrespondence>& pts,
+                                AbsolutePoseOptions po) {
+  po.min_inliers = kNearbyPoseInliers, po.groups.clear(), po.separate_solutions = false;
+  po.camera.reset();  // a weaker pose than the fix's: intrinsics held
+  return EstimateAbsolutePose(pts, po);
+}
+
+std::optional<std::string> NearbyAliasReason(const AbsolutePose* nearby, const AbsolutePose& fix,
+                                             const LocalizerOptions& o) {
+  if (!nearby) return std::nullopt;
+  const cv::Vec3d d = nearby->center - fix.center;
+  const double m = std::hypot(d[0], d[1]);
+  if (m <= o.nearby_alias_m || nearby->inliers < o.nearby_alias_ratio * fix.inliers)
+    return std::nullopt;
+  char buf[200];
+  std::snprintf(buf, sizeof buf,
+                "survey images near the fix put the camera %.1f m away (%d PnP inliers, the fix "
+                "%d): a repeated front?",
+                m, nearby->inliers, fix.inliers);
+  return buf;
 }
 
 std::optional<std::string> AmbiguityReason(const PlaceEvidence& evidence, double ratio) {

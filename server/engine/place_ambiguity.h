@@ -16,6 +16,7 @@
 #include <vector>
 
 #include "indexer/map/tile_store.h"
+#include "server/engine/absolute_pose.h"
 #include "server/engine/localizer.h"
 #include "server/engine/verified_reference.h"
 
@@ -88,6 +89,41 @@ std::vector<Candidate> SelectLookAlikes(const std::vector<Candidate>& hits, cons
 // strongest reference), why the fix is not usable, else nullopt.
 std::optional<std::string> LookAlikeReason(const std::vector<ReferenceUse>& uses, const Fix& fix,
                                            int here_inliers, const LocalizerOptions& o);
+
+// The nearby check of a fix about to be called usable (LocalizerOptions::nearby_checks): a
+// repeated front a few metres along (a terrace of one design) can pull every correspondence of
+// the fix's references the same wrong way, so that every check above agrees, while the survey
+// images taken at the true place, near the fix but never retrieved, would show it. The
+// candidates: survey images of the tiles (at `zoom`) within distinct_place_m of the fix
+// (`pose`, solved in `frame`; horizontal distance), facing within 45 deg of its camera, not
+// checked already, nearest first, each nearby_spacing_m or more from those chosen before, at
+// most nearby_checks.
+std::vector<Candidate> SelectNearby(TileCache& cache, int zoom, const EnuFrame& frame,
+                                    const AbsolutePose& pose, const Fix& fix,
+                                    const LocalizerOptions& o);
+
+// The nearby references' pose needs this many PnP inliers (a single reference gives 10-30).
+inline constexpr int kNearbyPoseInliers = 10;
+
+// Drops from each reference's matches those whose map point the fix's pose reprojects within
+// threshold (normalized units) of the query keypoint, and those without a point: what agrees
+// with the fix is its own evidence, the rest may show another place. (Before the references'
+// correspondences are pooled: pooling keeps one correspondence per query keypoint, and a twin's
+// would lose to the fix's own.)
+void KeepDisagreeing(const std::vector<cv::Point2d>& query_normalized, const AbsolutePose& fix,
+                     const EnuFrame& frame, double threshold, std::vector<Verified>* refs);
+
+// The pose of the nearby references' pooled correspondences: po with at least
+// kNearbyPoseInliers inliers, intrinsics held (a weaker pose than the fix's), no subsets.
+Result<AbsolutePose> NearbyPose(const std::vector<PointCorrespondence>& pts,
+                                AbsolutePoseOptions po);
+
+// The pose the nearby references verified against the query give on their own (their
+// correspondences pooled; null when none could be solved) against the fix's: when it lies more
+// than nearby_alias_m from the fix with nearby_alias_ratio x or more of the fix's PnP inliers,
+// why the fix is not usable, else nullopt.
+std::optional<std::string> NearbyAliasReason(const AbsolutePose* nearby, const AbsolutePose& fix,
+                                             const LocalizerOptions& o);
 
 // "ambiguous: " + the evidence when its rival reaches ratio.
 std::optional<std::string> AmbiguityReason(const PlaceEvidence& evidence, double ratio);

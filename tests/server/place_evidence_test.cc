@@ -87,5 +87,26 @@ TEST(PlaceEvidenceTest, LookAlikesToCheckLieElsewhereAndWithinThePrior) {
   EXPECT_TRUE(IsLookAlikeToCheck(far, "17/1/2", 8, fix, r, o));
 }
 
+// The nearby check's verdict: the pose the nearby survey images give alone flags the fix when it
+// lies beyond nearby_alias_m (3 m) with nearby_alias_ratio (0.5) of the fix's PnP inliers; the
+// seed-43 terrace fix 14 m off had 30 against 50.
+TEST(PlaceEvidenceTest, NearbyPoseFarAndStrongEnoughFlagsTheFix) {
+  const LocalizerOptions o;
+  AbsolutePose fix;
+  fix.center = {10, 20, 1.5}, fix.inliers = 50;
+  AbsolutePose nearby = fix;
+  EXPECT_FALSE(NearbyAliasReason(nullptr, fix, o));  // no pose from the nearby images
+  nearby.center = fix.center + cv::Vec3d(0, 14.3, 0), nearby.inliers = 30;
+  const std::optional<std::string> why = NearbyAliasReason(&nearby, fix, o);
+  ASSERT_TRUE(why);
+  EXPECT_NE(why->find("14.3 m away (30 PnP inliers, the fix 50)"), std::string::npos) << *why;
+  nearby.inliers = 24;  // under half the fix's
+  EXPECT_FALSE(NearbyAliasReason(&nearby, fix, o));
+  nearby.inliers = 60, nearby.center = fix.center + cv::Vec3d(2.0, 2.0, 5);  // 2.8 m, horizontal
+  EXPECT_FALSE(NearbyAliasReason(&nearby, fix, o));
+  nearby.center = fix.center + cv::Vec3d(2.2, 2.2, 0);  // 3.1 m
+  EXPECT_TRUE(NearbyAliasReason(&nearby, fix, o));
+}
+
 }  // namespace
 }  // namespace sightfix
