@@ -48,6 +48,14 @@ bool ParseNumbers(const std::string& text, size_t n, std::vector<double>* out) {
   return out->size() == n;
 }
 
+bool ParseAlertLimits(const std::string& text, IntegrityRequest* r) {
+  std::vector<double> v;
+  if (!ParseNumbers(text, 1, &v) && !ParseNumbers(text, 3, &v)) return false;
+  r->horizontal_alert_limit_m = v[0];
+  if (v.size() == 3) r->lateral_alert_limit_m = v[1], r->longitudinal_alert_limit_m = v[2];
+  return true;
+}
+
 void AddServerOptions(po::options_description* desc, SourceFlags* flags) {
   desc->add_options()("server", po::value(&flags->server),
                       "HOST:PORT of a sightfix-server; several, comma-separated, to fail over "

@@ -39,6 +39,9 @@ int ParseFlags(int argc, char** argv, const std::string& command,
 
 // "a,b,c" -> numbers; false unless exactly n finite numbers.
 bool ParseNumbers(const std::string& text, size_t n, std::vector<double>* out);
+// "H" or "H,LATERAL,LONGITUDINAL" metres into r's alert limits; false (r untouched) otherwise.
+// The limits' own checks are IntegrityRequest::Validate's.
+bool ParseAlertLimits(const std::string& text, IntegrityRequest* r);
 
 // The flags that choose what answers: a map in this process or a server (and its token and the
 // deadline of each call).

@@ -84,13 +84,8 @@ int ParseRequest(const LocateFlags& f, const po::variables_map& vm, LocateReques
   if (!f.truth_text.empty() && !ParseNumbers(f.truth_text, 2, truth))
     return Fail("--truth must look like LAT,LON", 2);
   if (vm.count("heading")) req->heading_deg = f.heading_deg;
-  if (!f.alert_limits_text.empty()) {
-    if (!ParseNumbers(f.alert_limits_text, 1, &v) && !ParseNumbers(f.alert_limits_text, 3, &v))
-      return Fail("--alert-limits must look like H or H,LATERAL,LONGITUDINAL (metres)", 2);
-    req->integrity.horizontal_alert_limit_m = v[0];
-    if (v.size() == 3)
-      req->integrity.lateral_alert_limit_m = v[1], req->integrity.longitudinal_alert_limit_m = v[2];
-  }
+  if (!f.alert_limits_text.empty() && !ParseAlertLimits(f.alert_limits_text, &req->integrity))
+    return Fail("--alert-limits must look like H or H,LATERAL,LONGITUDINAL (metres)", 2);
   if (vm.count("integrity-risk") && !(f.integrity_risk > 0))
     return Fail("--integrity-risk must lie in (0, 0.5)", 2);
   req->integrity.integrity_risk = f.integrity_risk;

@@ -27,7 +27,7 @@ namespace {
 
 struct ReplayFlags {
   SourceFlags source;
-  std::string drive, out, prior = "noisy:150", gnss_path, spoof_path;
+  std::string drive, out, prior = "noisy:150", gnss_path, spoof_path, alert_limits;
   int limit = 0, jobs = 2;
   uint64_t seed = 1;
   double segment_m = SummaryOptions{}.segment_length_m;
@@ -47,7 +47,7 @@ po::options_description ReplayOptions(ReplayFlags* f) {
       "writes what ran, marked partial.\n\n"
       "Usage: sightfix replay (--server HOST:PORT | --map MAPDIR) --drive QUERYDIR --out "
       "REPORTDIR\n       [--prior none|noisy:RADIUS_M|gnss] [--gnss FILE] [--limit N] [--seed N]\n"
-      "       [--segment-m M]"
+      "       [--segment-m M] [--alert-limits H[,LATERAL,LONGITUDINAL]]"
       "\n\nOptions");
   desc.add_options()("help,h", "show this help");
   AddSourceOptions(&desc, &f->source);
@@ -68,6 +68,10 @@ po::options_description ReplayOptions(ReplayFlags* f) {
       "segment-m", po::value(&f->segment_m),
       "length of the street segments, metres driven along the truth track (50): the blocks of "
       "every interval's bootstrap and the trials of the integrity bound")(
+      "alert-limits", po::value(&f->alert_limits),
+      "H or H,LATERAL,LONGITUDINAL metres every fix is judged usable at (default: the map's, "
+      "2 m horizontal); the place checks run only for fixes usable there, so the availability "
+      "reported at a wider limit is an upper bound: ask for the widest you will read")(
       "deadline-ms", po::value(&f->source.deadline_ms),
       "deadline of each call to the server (30000; with --server only)")(
       "json", "print summary.json on stdout instead of the text summary");
@@ -102,6 +106,9 @@ int PrepareReplay(ReplayFlags* f, const po::variables_map& vm, RouteEvalOptions*
   summary_options.segment_length_m = f->segment_m;
   if (Status s = summary_options.Validate(); !s.ok())
     return Fail("--segment-m must be a number of metres > 0", 2);
+  if (!f->alert_limits.empty() && !ParseAlertLimits(f->alert_limits, &o->integrity))
+    return Fail("--alert-limits must look like H or H,LATERAL,LONGITUDINAL (metres)", 2);
+  if (std::string e; !o->integrity.Validate(&e)) return Fail("--alert-limits: " + e, 2);
   o->drive_dir = report->drive_dir = f->drive;
   o->seed = report->seed = f->seed;
   o->limit = f->limit;

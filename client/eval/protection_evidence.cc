@@ -47,6 +47,8 @@ ProtectionEvidence CountProtection(const std::vector<QueryResult>& results, cons
       e.overbound_scale = f.overbound_scale, e.overbound_drive = f.overbound_drive;
     for (size_t k = 0; k < kAlertLimitsM.size(); ++k)
       e.availability[k] += !Alerted(f) && f.horizontal_pl_m <= kAlertLimitsM[k];
+    if (e.checked_at_m == 0 || f.horizontal_alert_limit_m < e.checked_at_m)
+      e.checked_at_m = f.horizontal_alert_limit_m;
     if (WithinLevels(q)) ++e.within_levels, e.false_alerts += Alerted(f);
     if (!f.usable()) continue;  // neither ends nor extends a run
     ++e.usable;
@@ -82,9 +84,16 @@ std::string ProtectionLines(const ProtectionEvidence& e) {
   out += "; false alerts " + std::to_string(e.false_alerts) + " of " +
          std::to_string(e.within_levels) +
          " fixes within their levels\navailability by alert limit:";
-  for (size_t k = 0; k < kAlertLimitsM.size(); ++k)
-    out += " " + FormatNumber("%g", kAlertLimitsM[k]) + " m " +
+  bool above = false;
+  for (size_t k = 0; k < kAlertLimitsM.size(); ++k) {
+    const bool bound = e.checked_at_m > 0 && kAlertLimitsM[k] > e.checked_at_m;
+    out += " " + FormatNumber("%g", kAlertLimitsM[k]) + " m " + (bound ? "<= " : "") +
            FormatNumber("%.3f", e.availability[k]);
+    above = above || bound;
+  }
+  if (above)
+    out += " (place checks ran at " + FormatNumber("%g", e.checked_at_m) +
+           " m; replay --alert-limits for the wider)";
   return out;
 }
 

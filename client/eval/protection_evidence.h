@@ -9,7 +9,9 @@
 //    longitudinal level; the truth's heading sets those axes);
 //  - hazardous: misleading and beyond the horizontal alert limit as well;
 //  - available at an alert limit L: protected, no fault detected, no rival place, and its
-//    horizontal protection level within L (counted over every query that ran);
+//    horizontal protection level within L (counted over every query that ran). The place
+//    checks (look-alikes, nearby survey images) run only for fixes usable at the limit they
+//    were judged at, so above the narrowest such limit (checked_at_m) it is an upper bound;
 //  - false alert: a fix within all its levels whose state says a fault or a rival place;
 //  - time to alert: for a fix each image, the longest run (seconds, first to last timestamp) of
 //    consecutive misleading fixes, the longest time a fault went unflagged.

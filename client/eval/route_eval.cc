@@ -85,6 +85,7 @@ void RunQuery(const LocateFn& locate, const RouteEvalOptions& o, const fs::path&
   req.camera = camera;
   req.capture_time_s = q->truth.timestamp_s;
   req.prior = prior;
+  req.integrity = o.integrity;
   const auto t0 = std::chrono::steady_clock::now();
   Result<Fix> fix = locate(req, *bytes);
   if (fix.ok() && fix->quality != FixQuality::kRefined && o.prior == PriorMode::kGnss &&

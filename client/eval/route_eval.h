@@ -77,6 +77,10 @@ struct RouteEvalOptions {
   // as a vehicle stack would when its receiver may be lying.
   bool retry_without_prior = true;
   uint64_t seed = 1;
+  // The alert limits every query asks its fix to be judged at (0: the map's default, 2 m). The
+  // place checks run only for fixes usable at them, so availability at a wider limit is an
+  // upper bound (ProtectionEvidence::checked_at_m).
+  IntegrityRequest integrity;
   int limit = 0;                            // first N queries only; 0 = all
   int jobs = 0;                             // queries in flight; 0 = all cores
   const std::atomic<bool>* stop = nullptr;  // when set to true, no new query starts
@@ -165,8 +169,12 @@ struct ProtectionEvidence {
   int misleading = 0, hazardous = 0;
   int false_alerts = 0, within_levels = 0;  // of protected fixes: flagged but within; within
   std::array<double, kAlertLimitsM.size()> availability{};  // per kAlertLimitsM, of queries
-  int episodes = 0;                                         // runs of consecutive misleading fixes
-  double longest_unflagged_s = 0;                           // time to alert's worst case
+  // The narrowest horizontal alert limit the protected fixes were judged at (0: none). The
+  // place checks ran only for fixes usable at it: availability at a wider limit counts fixes
+  // those checks never saw, an upper bound.
+  double checked_at_m = 0;
+  int episodes = 0;                // runs of consecutive misleading fixes
+  double longest_unflagged_s = 0;  // time to alert's worst case
   int segments = 0, misleading_segments = 0;
   std::optional<double> segment_share_upper95;  // Clopper-Pearson, one-sided 95 %
   // The largest overbound the fixes carried and the drive it was fitted on ("": none fitted),

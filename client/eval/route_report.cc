@@ -173,6 +173,7 @@ nlohmann::json ProtectionJson(const ProtectionEvidence& e, const std::string& dr
       {"false_alerts", e.false_alerts},
       {"within_levels", e.within_levels},
       {"availability_by_alert_limit", availability},
+      {"alert_limit_checked_m", e.checked_at_m},
       {"overbound_scale", e.overbound_scale},
       {"overbound_drive",
        e.overbound_drive.empty() ? nlohmann::json(nullptr) : nlohmann::json(e.overbound_drive)},

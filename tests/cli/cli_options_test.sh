@@ -80,6 +80,7 @@ expect "pair --camera-b missing: its error" 2 "cannot open calibration file" -- 
   "$cli" pair "$img" "$img2" --camera "$cam" --camera-b "$tmp/none.yml"
 
 echo "== replay in process: --drive --out --limit --prior --seed --gnss --spoofing --jobs --json"
+echo "   --alert-limits"
 replay() { "$cli" replay --map "$map" --drive "$drive" --limit 4 "$@" 2>/dev/null; }
 replay --out "$tmp/r1" --seed 1 --jobs 1 >"$tmp/r1.txt" && grep -Eq "^pose fine \(0.25 m, 2 deg\): [0-9.]+ \[[0-9.]+, [0-9.]+\]( (seg|W))? of queries" "$tmp/r1.txt" &&
   ok "replay --out --limit --seed --jobs: text summary with the pose bins" || bad "replay: $(head -3 "$tmp/r1.txt")"
@@ -103,6 +104,14 @@ replay --out "$tmp/r7" --prior none >/dev/null
 [ "$(field "$tmp/r6/summary.json" 'j["spoofing"]["truth_known"]')" = False ] &&
   [ "$(field "$tmp/r7/summary.json" 'j["spoofing"]["truth_known"]')" = True ] &&
   ok "replay --spoofing FILE: its spans replace the drive's" || bad "--spoofing"
+replay --out "$tmp/r8" --prior none --alert-limits 7 >"$tmp/r8.txt"
+[ "$(field "$tmp/r8/summary.json" 'j["integrity"]["protection"]["alert_limit_checked_m"]')" = 7.0 ] &&
+  [ "$(field "$tmp/r7/summary.json" 'j["integrity"]["protection"]["alert_limit_checked_m"]')" = 2.0 ] &&
+  ok "replay --alert-limits 7: every fix judged at 7 m (the map's 2 m without it)" || bad "--alert-limits"
+grep -q "5 m <= " "$tmp/r8.txt" && bad "replay --alert-limits 7: 5 m marked an upper bound" ||
+  ok "replay --alert-limits 7: availability at 5 m exact"
+expect "replay --alert-limits 1,2: refused" 2 "alert-limits must look like" -- \
+  "$cli" replay --map "$map" --drive "$drive" --out "$tmp/x" --alert-limits 1,2
 
 echo "== compare: REPORTDIR_A REPORTDIR_B (or --a --b)"
 expect "compare A B: the bins named, B - A" 0 "within_0_25m_2deg (pose fine)" -- "$cli" compare "$tmp/r1" "$tmp/r2"

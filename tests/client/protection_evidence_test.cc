@@ -67,6 +67,7 @@ TEST(ProtectionEvidenceTest, CountsOfAConstructedDrive) {
   EXPECT_DOUBLE_EQ(e.availability[1], 0.5);
   EXPECT_DOUBLE_EQ(e.availability[2], 0.7);
   EXPECT_DOUBLE_EQ(e.availability[3], 0.7);
+  EXPECT_DOUBLE_EQ(e.checked_at_m, 2);  // the narrowest limit a protected fix was judged at
   EXPECT_EQ(e.segments, 2);
   EXPECT_EQ(e.misleading_segments, 2);
   ASSERT_TRUE(e.segment_share_upper95.has_value());
@@ -85,7 +86,14 @@ TEST(ProtectionEvidenceTest, CleanDriveBoundAndLines) {
   EXPECT_NEAR(*e.segment_share_upper95, 1 - std::sqrt(0.05), 1e-9);
   const std::string text = ProtectionLines(e);
   EXPECT_NE(text.find("0 misleading"), std::string::npos) << text;
-  EXPECT_NE(text.find("availability by alert limit: 1 m"), std::string::npos) << text;
+  EXPECT_NE(text.find("availability by alert limit: 1 m 0.000 2 m 0.000 5 m <= 0.100 10 m <="),
+            std::string::npos)
+      << text;
+  EXPECT_NE(text.find("(place checks ran at 2 m;"), std::string::npos) << text;
+  // Judged at 10 m, every plotted limit is exact.
+  for (QueryResult& q : d) q.fix.integrity.horizontal_alert_limit_m = 10;
+  const std::string wide = ProtectionLines(CountProtection(d, CutStreetSegments(d, 49.9)));
+  EXPECT_EQ(wide.find("<="), std::string::npos) << wide;
 }
 
 // report.html draws the constructed drive on the integrity diagram: one dot per protected fix
