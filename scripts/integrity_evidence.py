@@ -8,7 +8,8 @@ look-alike stretch of town.json, or in the stretch a twin mirrors), over drives 
 the overbound's fit:
   - protected fixes (refined, with protection levels), flagged usable, misleading (usable and the
     error beyond a protection level: horizontal, or cross/along beyond lateral/longitudinal),
-    hazardous (misleading and beyond the 2 m alert limit replay judges at);
+    hazardous (misleading and beyond the alert limit the replay judged at: its summary.json's
+    alert_limit_checked_m, 2 m without one);
   - episodes, the independent trials: one per (seed, drive, 50 m street segment) that holds a
     fix flagged usable (fixes.csv `segment`: the truth track cut by distance driven, so
     neighbouring frames of one stretch share a trial); the one-sided 95 % Clopper-Pearson upper
@@ -102,7 +103,7 @@ def new_tally():
             "wrong_place": 0, "wrong_place_usable": 0, "seeds": set()}
 
 
-def add(t, key, r):
+def add(t, key, r, alert_limit_m):
     t["queries"] += 1
     t["seeds"].add(key[0])
     if r.get("quality") != "refined" or not r.get("hpl_m"):
@@ -127,7 +128,7 @@ def add(t, key, r):
               or abs(float(r["along_track_m"])) > float(r["longitudinal_pl_m"]))
     if beyond:
         t["misleading"] += 1
-        t["hazardous"] += err > ALERT_LIMIT_M
+        t["hazardous"] += err > alert_limit_m
         t["misleading_episodes"].add(episode)
 
 
@@ -141,9 +142,18 @@ def finish(t):
             "wrong_place_fixes": t["wrong_place"], "wrong_place_usable": t["wrong_place_usable"]}
 
 
+def judged_at(replay_dir):
+    """The horizontal alert limit a replay judged its fixes at (summary.json), 2 m without one."""
+    try:
+        j = json.load(open(os.path.join(replay_dir, "summary.json")))
+        return float(j["integrity"]["protection"]["alert_limit_checked_m"]) or ALERT_LIMIT_M
+    except (OSError, KeyError, ValueError):
+        return ALERT_LIMIT_M
+
+
 def main(out):
     seeds = sorted(glob.glob(os.path.join(out, "seed-*")))
-    rows, fits = {}, {}
+    rows, fits, limits = {}, {}, set()
     for seed_dir in seeds:
         seed = os.path.basename(seed_dir)
         if not os.path.exists(os.path.join(seed_dir, "done")):
@@ -156,25 +166,29 @@ def main(out):
             drive = os.path.basename(os.path.dirname(fixes))
             held_out = drive != fit["drive"]
             cond = drive.replace("query-", "") + ("" if held_out else " (the fit's drive)")
+            limit = judged_at(os.path.dirname(fixes))
+            limits.add(limit)
             for r in csv.DictReader(open(fixes)):
                 key = (seed, drive)
-                add(rows.setdefault(cond, new_tally()), key, r)
+                add(rows.setdefault(cond, new_tally()), key, r, limit)
                 if not held_out:
                     continue
-                add(rows.setdefault("all held out", new_tally()), key, r)
+                add(rows.setdefault("all held out", new_tally()), key, r, limit)
                 m = locate(float(r["true_lat"]), float(r["true_lon"]))
                 if m is not None and any(a <= m <= b for a, b in spans):
-                    add(rows.setdefault("aliasing district", new_tally()), key, r)
+                    add(rows.setdefault("aliasing district", new_tally()), key, r, limit)
     result = {"seeds": len(fits), "overbound_scale_by_seed": fits,
               "rows": {k: finish(v) for k, v in sorted(rows.items())},
-              "alert_limit_m": ALERT_LIMIT_M, "episode": "(seed, drive, 50 m street segment) "
+              "alert_limit_m": sorted(limits), "episode": "(seed, drive, 50 m street segment) "
               "holding a fix flagged usable"}
     json.dump(result, open(os.path.join(out, "evidence.json"), "w"), indent=2)
-    lines = ["%d demo towns (realistic world), no prior; overbound fitted per town on its day "
+    lines = ["%d demo towns (realistic world), no prior, fixes judged at a %s m alert limit; "
+             "overbound fitted per town on its day "
              "drive, the other drives held out. Episode: %s. Upper bound: one-sided 95 %% "
              "Clopper-Pearson over episodes. A simulated town: such evidence validates the "
              "protection level to about 1e-3 at best; sightfix is a fallback aid, not a certified "
-             "navigation source." % (len(fits), result["episode"]), "",
+             "navigation source." % (len(fits), "/".join("%g" % l for l in sorted(limits)) or "-",
+                                     result["episode"]), "",
              "| condition | seeds | queries | protected | usable | misleading | hazardous | "
              "episodes | bound | avail 1/2/5/10 m | wrong places (usable) |",
              "| --- |" + " --- |" * 10]
