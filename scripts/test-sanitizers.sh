@@ -11,7 +11,7 @@
 #     TSan's interceptors), past that test's deadlines.
 #  ci: what scripts/test.sh runs in CI within its time budget: the ASan + UBSan build, the suite
 #     without the tests that build towns or maps (label heavy; about 7x slower under ASan),
-#     the service tests on the gcc tree's fixture map, every fuzz target for 20 s.
+#     the service tests on the gcc tree's fixture map, every fuzz target for 12 s.
 # Usage: scripts/test-sanitizers.sh [ci|asan|tsan|fuzz|all]   (default all)
 set -euo pipefail
 root="$(cd "$(dirname "$0")/.." && pwd)"
@@ -46,7 +46,7 @@ fi
 if [ "$what" = ci ] || [ "$what" = fuzz ] || [ "$what" = all ]; then
   seconds="${FUZZ_SECONDS:-60}"
   # CI fuzzes with a fixed seed, so a crash it reports can be replayed by the same command.
-  [ "$what" = ci ] && seconds="${FUZZ_SECONDS:-20}" && export FUZZ_SEED="${FUZZ_SEED:-1}"
+  [ "$what" = ci ] && seconds="${FUZZ_SECONDS:-12}" && export FUZZ_SEED="${FUZZ_SEED:-1}"
   echo "== fuzz targets, $seconds s each"
   BUILD_DIR="$san" bash "$root/scripts/fuzz.sh" all "$seconds"
 fi

@@ -2,7 +2,7 @@
 # Installs what is missing, configures, builds and runs every test with CTest; then the
 # robustness configuration within CI's budget (scripts/test-sanitizers.sh ci: the suite under
 # AddressSanitizer + UndefinedBehaviorSanitizer without the town-scale accuracy studies, and
-# every fuzz target for 20 s). SIGHTFIX_SANITIZERS=0, or any ctest argument, skips that part.
+# every fuzz target for 12 s). SIGHTFIX_SANITIZERS=0, or any ctest argument, skips that part.
 # Usage: scripts/test.sh [extra ctest arguments]   (BUILD_DIR overrides ./build)
 set -euo pipefail
 root="$(cd "$(dirname "$0")/.." && pwd)"
