@@ -15,39 +15,11 @@ idx="$build/indexer/sightfix-indexer"
 cli="$build/client/sightfix"
 town="$data/town"
 source "$(dirname "$0")/../lib/checks.sh"
+source "$(dirname "$0")/../lib/twin_survey.sh"
 
-# 15 m north: 15 / 111 132 m per degree of latitude near 44 N (WGS84 meridian arc, common
-# practice); nearer than distinct_place_m, farther than any usable fix's error.
+# 15 m north: nearer than distinct_place_m, farther than any usable fix's error.
 twin="$tmp/twin"
-mkdir -p "$twin/images"
-cp "$town/survey/camera.yml" "$twin/"
-for f in "$town"/survey/images/*.jpg; do
-  ln -s "$f" "$twin/images/$(basename "$f")"
-  # One byte after the JPEG's end marker: decoders ignore it, the indexer's duplicate check
-  # (a file hash) does not.
-  { cat "$f"; printf '\n'; } >"$twin/images/north_$(basename "$f")"
-done
-"$py" - "$town/survey/drive.csv" "$twin/drive.csv" <<'PY'
-import csv, datetime, sys
-rows = list(csv.reader(open(sys.argv[1])))
-t = rows[0].index("timestamp")
-lat = rows[0].index("lat")
-def later(stamp):  # an hour after: the second drive of the same street, in time order
-    d = datetime.datetime.strptime(stamp, "%Y-%m-%dT%H:%M:%S.%fZ") + datetime.timedelta(hours=1)
-    return d.strftime("%Y-%m-%dT%H:%M:%S.%f")[:-3] + "Z"
-kept = rows[1::2]
-with open(sys.argv[2], "w", newline="") as out:
-    w = csv.writer(out, lineterminator="\n")
-    w.writerow(rows[0])
-    for r in kept:
-        w.writerow(r)
-    for r in kept:
-        s = list(r)
-        s[0] = s[0].replace("images/", "images/north_")
-        s[lat] = "%.9f" % (float(r[lat]) + 15 / 111132.0)
-        s[t] = later(r[t])
-        w.writerow(s)
-PY
+twin_survey "$town/survey" "$twin" 15 2
 "$idx" build --drive "$twin" --map "$tmp/map" --zoom 18 --quiet >"$tmp/build.txt" 2>&1 \
   && ok "map with every place twice, 15 m apart, built" || { cat "$tmp/build.txt"; bad "build"; }
 

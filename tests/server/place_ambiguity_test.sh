@@ -13,39 +13,12 @@ idx="$build/indexer/sightfix-indexer"
 cli="$build/client/sightfix"
 town="$data/town"
 source "$(dirname "$0")/../lib/checks.sh"
+source "$(dirname "$0")/../lib/twin_survey.sh"
 
-# 400 m north: 400 / 111 132 m per degree of latitude near 44 N (WGS84 meridian arc,
-# common practice); two places, farther apart than distinct_place_m (30 m) and than a prior's
-# reach (radius 150 m plus offset up to 100 m).
+# 400 m north: two places, farther apart than distinct_place_m (30 m) and than a prior's reach
+# (radius 150 m plus offset up to 100 m).
 alias="$tmp/alias"
-mkdir -p "$alias/images"
-cp "$town/survey/camera.yml" "$alias/"
-for f in "$town"/survey/images/*.jpg; do
-  ln -s "$f" "$alias/images/$(basename "$f")"
-  # One byte after the JPEG's end marker: decoders ignore it, the indexer's duplicate check
-  # (a file hash) does not.
-  { cat "$f"; printf '\n'; } >"$alias/images/north_$(basename "$f")"
-done
-"$py" - "$town/survey/drive.csv" "$alias/drive.csv" <<'PY'
-import csv, datetime, sys
-rows = list(csv.reader(open(sys.argv[1])))
-t = rows[0].index("timestamp")
-def later(stamp):  # an hour after: the second drive of the same street, in time order
-    d = datetime.datetime.strptime(stamp, "%Y-%m-%dT%H:%M:%S.%fZ") + datetime.timedelta(hours=1)
-    return d.strftime("%Y-%m-%dT%H:%M:%S.%f")[:-3] + "Z"
-with open(sys.argv[2], "w", newline="") as out:
-    w = csv.writer(out, lineterminator="\n")
-    w.writerow(rows[0])
-    lat = rows[0].index("lat")
-    for r in rows[1:]:
-        w.writerow(r)
-    for r in rows[1:]:
-        s = list(r)
-        s[0] = s[0].replace("images/", "images/north_")
-        s[lat] = "%.9f" % (float(r[lat]) + 400 / 111132.0)
-        s[t] = later(r[t])
-        w.writerow(s)
-PY
+twin_survey "$town/survey" "$alias" 400 1
 "$idx" build --drive "$alias" --map "$tmp/map" --zoom 18 --quiet >"$tmp/build.txt" 2>&1 \
   && ok "map of two look-alike places built" || { cat "$tmp/build.txt"; bad "build"; }
 
