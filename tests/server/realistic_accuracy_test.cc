@@ -9,7 +9,8 @@
 // ceiling for the refined fixes more than 5 m off, near what seed 41 measured, each checked on
 // seed 43 (both figures beside it). A change that halves the night refined share or makes fixes
 // ten times worse fails although nothing else does. The off-map frames of query-offmap (those
-// town.json's excursion lists) must get no refined fix and no confidently wrong one.
+// town.json's excursion lists) must get no refined fix and no confidently wrong one. Every
+// refined fix more than 5 m off, asked again at a 10 m alert limit, is flagged.
 //
 // Goals (RealisticAccuracyGoal, label goal, scripts/goals.sh; not met yet, each gap stated in
 // DEVELOPERS.md "Realistic world: where the engine falls short"): in every condition zero refined
@@ -28,6 +29,7 @@
 #include <fstream>
 #include <map>
 #include <nlohmann/json.hpp>
+#include <opencv2/imgcodecs.hpp>
 #include <set>
 
 #include "client/eval/integrity.h"
@@ -62,6 +64,7 @@ class RealisticTown {
     return town;
   }
   bool ok() const { return localizer_ != nullptr; }
+  const Localizer& localizer() const { return *localizer_; }
   const std::string& root() const { return root_; }
   const std::vector<QueryResult>& Results(const std::string& drive) { return results_[drive]; }
   const RouteSummary& Summary(const std::string& drive) { return summaries_[drive]; }
@@ -247,8 +250,8 @@ TEST_F(RealisticAccuracyTest, OffMapFramesGetNoConfidentFix) {
 // tests' thresholds with them), so fewer fixes are usable with it; the fit itself is recorded after
 // the drives ran and checked for its record (its effect on the engine:
 // tests/cli/fit_integrity_test.sh). Seed 41 (CI's) is held out from the development of the place
-// and near-miss checks, which seed 43 drove. Measured 2026-12-05, flagged usable: seed 41 103 of
-// 279 protected fixes (day 18, dusk 6, overcast 64, off-map 15), seed 43 28 of 236 (day 10, dusk
+// and near-miss checks, which seed 43 drove. Measured 2026-12-05, flagged usable: seed 41 94 of
+// 279 protected fixes (day 21, dusk 6, overcast 53, off-map 14), seed 43 28 of 236 (day 10, dusk
 // 10, overcast 7, off-map 1); 0 misleading on both; the floor of 20 usable keeps the test from
 // passing on an engine that flags nothing. Guards the protection levels end to end
 // (tests/mutants/mutants.tsv: protection_levels_at_one_sigma).
@@ -268,6 +271,39 @@ TEST_F(RealisticAccuracyTest, NoMisleadingFixAtTheNarrowestLevels) {
   std::printf("scale 1: %d protected fixes, %d flagged usable, %d misleading\n", protected_fixes,
               usable, misleading);
   EXPECT_GE(usable, 20);
+}
+
+// A wrong place is caught whatever the alert limit: every refined fix more than 5 m off, asked
+// again at a 10 m limit (where its levels no longer keep it from use, and the place checks run),
+// comes back flagged fault or place ambiguity. Measured 2026-12-05: seed 41, the overcast fix
+// 145 m off (the look-alike check); seed 43, the day fixes 14 and 22 m off at the terrace's
+// mouth (the nearby check: survey images a few metres along put the camera 14.3 and 21.7 m away
+// with 30 and 20 PnP inliers against the fixes' 50 and 33). Replays of all five drives at 10 m
+// kept 469 fixes usable on the two seeds, none misleading.
+TEST_F(RealisticAccuracyTest, WrongPlacesCaughtAtAWideAlertLimit) {
+  RealisticTown& t = RealisticTown::Get();
+  ASSERT_TRUE(t.ok());
+  int asked = 0;
+  for (const char* drive : kDrives)
+    for (const QueryResult& q : t.Results(drive)) {
+      if (q.fix.quality != FixQuality::kRefined || !(q.error_m > 5)) continue;
+      const std::string dir = t.root() + "/town/" + drive + "/";
+      LocateRequest r;
+      r.image = cv::imread(dir + q.truth.image, cv::IMREAD_GRAYSCALE);
+      Result<CameraModel> camera = LoadCameraModel(dir + q.truth.camera);
+      ASSERT_TRUE(camera.ok()) << camera.status().ToString();
+      r.camera = *camera;
+      r.integrity.horizontal_alert_limit_m = 10;
+      Result<Fix> f = t.localizer().Locate(r);
+      ASSERT_TRUE(f.ok()) << f.status().ToString();
+      ++asked;
+      const IntegrityState s = f->integrity.state;
+      EXPECT_TRUE(f->quality != FixQuality::kRefined || s == IntegrityState::kFaultDetected ||
+                  s == IntegrityState::kPlaceAmbiguity)
+          << drive << " " << q.truth.image << ": " << q.error_m << " m off, at 10 m "
+          << IntegrityStateName(s) << " (" << f->integrity.detail << ")";
+    }
+  std::printf("refined fixes more than 5 m off, asked again at a 10 m alert limit: %d\n", asked);
 }
 
 // The overbound fitted on the day drive lands in the map: K >= 1 from at least 20 fixes, the
@@ -409,19 +445,6 @@ TEST_F(RealisticAccuracyGoal, NoFixFarOffOrConfidentlyWrong) {
 // (docs/design.md 5.6: the map's own look-alike list, next). Seed 41's two overcast fixes 145 m
 // off, once caught only by the limit, are flagged place ambiguity since the time offset and the
 // rolling shutter are in the map's calibration.
-TEST_F(RealisticAccuracyGoal, WrongPlacesCaughtWhateverTheAlertLimit) {
-  RealisticTown& t = RealisticTown::Get();
-  ASSERT_TRUE(t.ok());
-  for (const char* drive : kDrives)
-    for (const QueryResult& q : t.Results(drive)) {
-      if (q.fix.quality != FixQuality::kRefined || !(q.error_m > 5)) continue;
-      const IntegrityState s = q.fix.integrity.state;
-      EXPECT_TRUE(s == IntegrityState::kFaultDetected || s == IntegrityState::kPlaceAmbiguity)
-          << drive << " " << q.truth.image << ": " << q.error_m << " m off, "
-          << IntegrityStateName(s) << ", HPL " << q.fix.integrity.horizontal_pl_m << " m";
-    }
-}
-
 TEST_F(RealisticAccuracyGoal, RadiusCoversAndErrorNearTheMapsOwn) {
   RealisticTown& t = RealisticTown::Get();
   ASSERT_TRUE(t.ok());
