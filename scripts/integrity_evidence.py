@@ -143,10 +143,11 @@ def finish(t):
 
 
 def judged_at(replay_dir):
-    """The horizontal alert limit a replay judged its fixes at (summary.json), 2 m without one."""
+    """The horizontal alert limit a replay judged its fixes at (summary.json): 2 m for a replay
+    written before the field, None when it judged no fix."""
     try:
         j = json.load(open(os.path.join(replay_dir, "summary.json")))
-        return float(j["integrity"]["protection"]["alert_limit_checked_m"]) or ALERT_LIMIT_M
+        return float(j["integrity"]["protection"]["alert_limit_checked_m"]) or None
     except (OSError, KeyError, ValueError):
         return ALERT_LIMIT_M
 
@@ -167,7 +168,10 @@ def main(out):
             held_out = drive != fit["drive"]
             cond = drive.replace("query-", "") + ("" if held_out else " (the fit's drive)")
             limit = judged_at(os.path.dirname(fixes))
-            limits.add(limit)
+            if limit is not None:
+                limits.add(limit)
+            else:  # no protected fix (a night drive): nothing is judged
+                limit = ALERT_LIMIT_M
             for r in csv.DictReader(open(fixes)):
                 key = (seed, drive)
                 add(rows.setdefault(cond, new_tally()), key, r, limit)
