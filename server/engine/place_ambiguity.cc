@@ -9,6 +9,22 @@
 #include "indexer/map/tile_key.h"
 
 namespace sightfix {
+namespace {
+
+// ENU of `tile` -> ENU of `frame`, through WGS84.
+cv::Vec3d InFrame(const EnuFrame& frame, const LoadedTile& tile, const cv::Vec3d& p) {
+  return &tile.enu == &frame ? p : frame.ToEnu(tile.enu.ToGeo(p));
+}
+
+// The reprojection distance (normalized units) of world point w from keypoint q through a
+// camera at center; -1 when w lies behind it.
+double ReprojectionDistance(const cv::Matx33d& camera_from_world, const cv::Vec3d& center,
+                            const cv::Vec3d& w, const cv::Point2d& q) {
+  const cv::Vec3d x = camera_from_world * (w - center);
+  return x[2] > 0 ? std::hypot(x[0] / x[2] - q.x, x[1] / x[2] - q.y) : -1;
+}
+
+}  // namespace
 
 bool AtDistinctPlace(const ReferenceImage& ref, const std::vector<Verified>& verified,
                      double distinct_m) {
@@ -31,11 +47,11 @@ void WeighSupport(const std::vector<cv::Point2d>& query_normalized,
     for (auto [qk, rk] : v.matches) {
       const int pid = ref.point_ids[rk];
       if (pid < 0) continue;
-      const cv::Vec3d x = camera_from_world * (to_frame(v, pid) - center);
-      if (x[2] <= 0) continue;
+      const double d =
+          ReprojectionDistance(camera_from_world, center, to_frame(v, pid), query_normalized[qk]);
+      if (d < 0) continue;
       ++v.tested;
-      const cv::Point2d& q = query_normalized[qk];
-      v.agreeing += std::hypot(x[0] / x[2] - q.x, x[1] / x[2] - q.y) <= threshold;
+      v.agreeing += d <= threshold;
     }
   }
 }
@@ -137,8 +153,7 @@ std::vector<Candidate> SelectNearby(TileCache& cache, int zoom, const EnuFrame& 
     const LoadedTile& tile = **t;
     const std::string key = tile.data.key.ToString();
     for (size_t j = 0; j < tile.data.images.size(); ++j) {
-      const cv::Vec3d at = &tile.enu == &frame ? tile.image_centers[j]
-                                               : frame.ToEnu(tile.enu.ToGeo(tile.image_centers[j]));
+      const cv::Vec3d at = InFrame(frame, tile, tile.image_centers[j]);
       const double m = std::hypot(at[0] - center[0], at[1] - center[1]);
       if (m > o.distinct_place_m || m <= o.nearby_alias_m) continue;
       const cv::Vec3d look = EnuFromCamera(tile.data.images[j].attitude) * cv::Vec3d(0, 0, 1);
@@ -175,13 +190,11 @@ void KeepDisagreeing(const std::vector<cv::Point2d>& query_normalized, const Abs
                                    [&](const std::pair<int, int>& m) {
                                      const int pid = ref.point_ids[m.second];
                                      if (pid < 0) return true;
-                                     const cv::Vec3d& e = t.data.points[pid].enu;
-                                     const cv::Vec3d w =
-                                         &t.enu == &frame ? e : frame.ToEnu(t.enu.ToGeo(e));
-                                     const cv::Vec3d x = fix.camera_from_world * (w - fix.center);
-                                     const cv::Point2d& q = query_normalized[m.first];
-                                     return x[2] > 0 && std::hypot(x[0] / x[2] - q.x,
-                                                                   x[1] / x[2] - q.y) <= threshold;
+                                     const double d = ReprojectionDistance(
+                                         fix.camera_from_world, fix.center,
+                                         InFrame(frame, t, t.data.points[pid].enu),
+                                         query_normalized[m.first]);
+                                     return d >= 0 && d <= threshold;
                                    }),
                     v.matches.end());
   }
