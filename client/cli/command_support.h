@@ -42,6 +42,9 @@ bool ParseNumbers(const std::string& text, size_t n, std::vector<double>* out);
 // "H" or "H,LATERAL,LONGITUDINAL" metres into r's alert limits; false (r untouched) otherwise.
 // The limits' own checks are IntegrityRequest::Validate's.
 bool ParseAlertLimits(const std::string& text, IntegrityRequest* r);
+// What a command says when ParseAlertLimits refuses its --alert-limits.
+inline constexpr char kAlertLimitsForm[] =
+    "--alert-limits must look like H or H,LATERAL,LONGITUDINAL (metres)";
 
 // The flags that choose what answers: a map in this process or a server (and its token and the
 // deadline of each call).

@@ -85,7 +85,7 @@ int ParseRequest(const LocateFlags& f, const po::variables_map& vm, LocateReques
     return Fail("--truth must look like LAT,LON", 2);
   if (vm.count("heading")) req->heading_deg = f.heading_deg;
   if (!f.alert_limits_text.empty() && !ParseAlertLimits(f.alert_limits_text, &req->integrity))
-    return Fail("--alert-limits must look like H or H,LATERAL,LONGITUDINAL (metres)", 2);
+    return Fail(kAlertLimitsForm, 2);
   if (vm.count("integrity-risk") && !(f.integrity_risk > 0))
     return Fail("--integrity-risk must lie in (0, 0.5)", 2);
   req->integrity.integrity_risk = f.integrity_risk;

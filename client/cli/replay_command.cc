@@ -107,7 +107,7 @@ int PrepareReplay(ReplayFlags* f, const po::variables_map& vm, RouteEvalOptions*
   if (Status s = summary_options.Validate(); !s.ok())
     return Fail("--segment-m must be a number of metres > 0", 2);
   if (!f->alert_limits.empty() && !ParseAlertLimits(f->alert_limits, &o->integrity))
-    return Fail("--alert-limits must look like H or H,LATERAL,LONGITUDINAL (metres)", 2);
+    return Fail(kAlertLimitsForm, 2);
   if (std::string e; !o->integrity.Validate(&e)) return Fail("--alert-limits: " + e, 2);
   o->drive_dir = report->drive_dir = f->drive;
   o->seed = report->seed = f->seed;
