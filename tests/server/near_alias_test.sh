@@ -18,10 +18,8 @@ source "$(dirname "$0")/../lib/checks.sh"
 source "$(dirname "$0")/../lib/twin_survey.sh"
 
 # 15 m north: nearer than distinct_place_m, farther than any usable fix's error.
-twin="$tmp/twin"
-twin_survey "$town/survey" "$twin" 15 2
-"$idx" build --drive "$twin" --map "$tmp/map" --zoom 18 --quiet >"$tmp/build.txt" 2>&1 \
-  && ok "map with every place twice, 15 m apart, built" || { cat "$tmp/build.txt"; bad "build"; }
+twin_map "$idx" "$town/survey" 15 2 "$tmp/map" &&
+  ok "map with every place twice, 15 m apart, built" || { cat "$tmp/build.txt"; bad "build"; }
 
 # usable fixes, of them more than 3 m off, and place_ambiguity fixes, from fixes.csv.
 tally() {

@@ -17,10 +17,8 @@ source "$(dirname "$0")/../lib/twin_survey.sh"
 
 # 400 m north: two places, farther apart than distinct_place_m (30 m) and than a prior's reach
 # (radius 150 m plus offset up to 100 m).
-alias="$tmp/alias"
-twin_survey "$town/survey" "$alias" 400 1
-"$idx" build --drive "$alias" --map "$tmp/map" --zoom 18 --quiet >"$tmp/build.txt" 2>&1 \
-  && ok "map of two look-alike places built" || { cat "$tmp/build.txt"; bad "build"; }
+twin_map "$idx" "$town/survey" 400 1 "$tmp/map" &&
+  ok "map of two look-alike places built" || { cat "$tmp/build.txt"; bad "build"; }
 
 # Per query: quality, error_m, radius95_m, reason, from fixes.csv; a line of counts.
 tally() {
