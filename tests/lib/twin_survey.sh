@@ -1,9 +1,10 @@
-# Sourced by the place tests (after checks.sh, which sets $py and $tmp). twin_map IDX SURVEY
-# NORTH_M STEP MAP indexes twin_survey's drive (in $tmp/twin) into MAP at zoom 18, its log in
-# $tmp/build.txt; its exit status is the indexer's. twin_survey SURVEY OUT NORTH_M STEP writes OUT, a drive holding every STEP-th frame of SURVEY twice: once where it was driven
-# and once as if driven NORTH_M metres north, an hour later (the second drive of the same
-# street, in time order), the same images under north_ names. Degrees of latitude from metres:
-# 111 132 m per degree near 44 N (WGS84 meridian arc, common practice).
+# Sourced by the place tests (after checks.sh, which sets $py and $tmp).
+# twin_survey SURVEY OUT NORTH_M STEP writes OUT, a drive holding every STEP-th frame of SURVEY
+# twice: once where it was driven and once as if driven NORTH_M metres north, an hour later (the
+# second drive of the same street, in time order), the same images under north_ names. Degrees
+# of latitude from metres: 111 132 m per degree near 44 N (WGS84 meridian arc, common practice).
+# twin_map IDX SURVEY NORTH_M STEP MAP indexes such a drive (in $tmp/twin) into MAP at zoom 18,
+# its log in $tmp/build.txt; its exit status is the indexer's.
 twin_survey() {
   local survey="$1" out="$2" north_m="$3" step="$4" f
   mkdir -p "$out/images"

@@ -1,13 +1,13 @@
 #!/usr/bin/env bash
 # A near alias, end to end: the service tests' survey (every other frame, to keep the test
-# short) indexed twice, once where it was driven and once as if driven 15 m north (the same images, every latitude shifted): each place has a
-# twin nearer than distinct_place_m (30 m), as a terrace of one design has its houses. Every
-# check before the nearby one sees one place (the twin's references lie within 30 m, so they
-# are no rival), and a fix at either copy carries the small levels of a good one. The nearby
-# check must find the other copy and flag the fix: no usable fix more than 3 m from the truth,
-# and most would-be usable fixes flagged place_ambiguity. Guards the nearby check
-# (server/engine/place_ambiguity.cc SelectNearby, PoseElsewhere, NearbyAliasReason;
-# tests/mutants/mutants.tsv: nearby_check_skipped).
+# short) indexed twice, once where it was driven and once as if driven 15 m north (the same
+# images, every latitude shifted): each place has a twin nearer than distinct_place_m (30 m), as
+# a terrace of one design has its houses. Every check before the nearby one sees one place (the
+# twin's references lie within 30 m, so they are no rival), and a fix at either copy carries the
+# small levels of a good one. The nearby check must find the other copy and flag the fix: no
+# usable fix more than 3 m from the truth, and most fixes flagged place_ambiguity. Guards the
+# nearby check (server/engine/place_ambiguity.cc SelectNearby, KeepDisagreeing, NearbyPose,
+# NearbyAliasReason; tests/mutants/mutants.tsv: nearby_check_skipped, nearby_agreeing_kept).
 # Usage: near_alias_test.sh BUILD_DIR SERVICE_DATA_DIR
 set -u
 build="$1" data="$2"
