@@ -159,7 +159,7 @@ void SeparateSolutions(const std::vector<PointCorrespondence>& pts, const std::v
   const Mat8 cov = h.inv(cv::DECOMP_SVD);
   const Vec8 all_in = -(cov * g);
   for (const auto& [key, members] : Members(pts, in, o)) {
-    if (static_cast<int>(in.size() - members.size()) < o.min_inliers) {
+    if (static_cast<int>(in.size() - members.size()) < o.min_subset_inliers) {
       ++out->subsets_skipped;
       continue;
     }
@@ -377,12 +377,14 @@ bool AbsolutePoseOptions::Validate(std::string* error) const {
       if (error) *error = "absolute pose: groups must be labels >= 0, or -1 for none";
       return false;
     }
-  if (threshold_px > 0 && focal_px > 0 && min_inliers >= 6 && iterations > 0 && confidence > 0 &&
-      confidence < 1 && pixel_sigma_px > 0 && min_variance_factor > 0)
+  if (threshold_px > 0 && focal_px > 0 && min_inliers >= 6 && min_subset_inliers >= 6 &&
+      iterations > 0 && confidence > 0 && confidence < 1 && pixel_sigma_px > 0 &&
+      min_variance_factor > 0)
     return true;
   if (error)
     *error =
         "absolute pose: threshold_px, focal_px, pixel_sigma_px > 0, min_inliers >= 6, "
+        "min_subset_inliers >= 6, "
         "0 < confidence < 1";
   return false;
 }

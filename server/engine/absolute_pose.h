@@ -72,8 +72,12 @@ struct AbsolutePoseOptions {
   std::optional<CameraModel> camera;
   // Solution separation: a label >= 0 per correspondence (e.g. the reference image it came
   // from; -1 none), each label a group; empty: quadrants only. A group (or quadrant) is tested
-  // when leaving it out keeps min_inliers inliers; the others are counted as skipped.
+  // when leaving it out keeps min_subset_inliers inliers; the others are counted as skipped.
   std::vector<int> groups;
+  // Fewer than min_inliers: min_inliers guards the all-in pose against a chance consensus, which
+  // a subset solution (one Gauss-Newton step from the all-in pose) does not face; it needs only
+  // a well-posed step. Its sigma grows as the rest thins, and its protection level with it.
+  int min_subset_inliers = 10;
   bool separate_solutions = true;  // false: no subsets (the pose alone)
   bool Validate(std::string* error) const;
 };

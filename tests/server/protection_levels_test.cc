@@ -241,12 +241,35 @@ TEST(PoseSubsetTest, GroupsAreValidatedAndCanBeSwitchedOff) {
   Result<AbsolutePose> pose = EstimateAbsolutePose(s.points, o);
   ASSERT_TRUE(pose.ok());
   EXPECT_TRUE(pose->subsets.empty());
-  // A group holding nearly every inlier cannot be left out: skipped, not tested.
+  // A group holding all but 5 inliers cannot be left out (min_subset_inliers 10): skipped, not
+  // tested.
   o = SceneOptions(s);
-  for (size_t i = 0; i < o.groups.size(); ++i) o.groups[i] = i < 170 ? 0 : 1;
+  for (size_t i = 0; i < o.groups.size(); ++i) o.groups[i] = i < 175 ? 0 : 1;
   pose = EstimateAbsolutePose(s.points, o);
   ASSERT_TRUE(pose.ok());
   EXPECT_GE(pose->subsets_skipped, 1);
+}
+
+// A fault hypothesis is tested whenever the rest still gives a well-posed step, even with
+// fewer inliers than an all-in pose needs (min_inliers 25): a fix of few inliers must not
+// escape its fault terms because its groups are all too large to leave out. The rest's
+// solution is weaker, and its sigma says so.
+TEST(PoseSubsetTest, AGroupLeavingFewerThanMinInliersIsStillTested) {
+  const Scene s = MakeScene(9, 1.0, 0);
+  AbsolutePoseOptions o = SceneOptions(s);
+  for (size_t i = 0; i < o.groups.size(); ++i) o.groups[i] = i < 165 ? 0 : 1;  // rest: 15
+  const Result<AbsolutePose> pose = EstimateAbsolutePose(s.points, o);
+  ASSERT_TRUE(pose.ok()) << pose.status().ToString();
+  const PoseSubset* without_big = nullptr;
+  const PoseSubset* without_small = nullptr;
+  for (const PoseSubset& sub : pose->subsets)
+    if (sub.kind == PoseSubset::Kind::kGroup) (sub.index == 0 ? without_big : without_small) = &sub;
+  ASSERT_NE(without_big, nullptr) << "the group leaving 15 inliers was skipped";
+  ASSERT_NE(without_small, nullptr);
+  EXPECT_LT(pose->inliers - without_big->left_out, o.min_inliers);
+  EXPECT_GT(cv::trace(without_big->center_covariance),
+            4 * cv::trace(without_small->center_covariance));
+  EXPECT_EQ(pose->subsets_skipped, 0);
 }
 
 }  // namespace
