@@ -387,8 +387,7 @@ void Localizer::Impl::CheckLookAlikes(const LocalFeatures& q, const LocateReques
   // Inliers never outnumber matches: a look-alike with fewer than the flag needs is let be.
   Verify(q, twins, r.camera, Clock::now(), &uses,
          static_cast<int>(std::ceil(o.look_alike_ratio * best.inliers)));
-  if (auto why = LookAlikeReason(uses, *fix, best.inliers, o))
-    fix->integrity.state = IntegrityState::kPlaceAmbiguity, fix->integrity.detail = *why;
+  FlagPlaceAmbiguity(LookAlikeReason(uses, *fix, best.inliers, o), fix);
   fix->references.insert(fix->references.end(), uses.begin(), uses.end());
 }
 
@@ -402,8 +401,7 @@ void Localizer::Impl::CheckNearby(const LocalFeatures& q, const LocateRequest& r
   KeepDisagreeing(q.normalized, pose, frame, po.threshold_px / po.focal_px, &found);
   std::vector<int> groups;
   const Result<AbsolutePose> nearby = NearbyPose(FromPoints(q, found, frame, &uses, &groups), po);
-  if (auto why = NearbyAliasReason(nearby.ok() ? &*nearby : nullptr, pose, o))
-    fix->integrity.state = IntegrityState::kPlaceAmbiguity, fix->integrity.detail = *why;
+  FlagPlaceAmbiguity(NearbyAliasReason(nearby.ok() ? &*nearby : nullptr, pose, o), fix);
   fix->references.insert(fix->references.end(), uses.begin(), uses.end());
 }
 
@@ -452,6 +450,9 @@ void Localizer::Impl::Pose(const LocalFeatures& q, const LocateRequest& r, const
         },
         verified);
     Finish(*pose, pts, *verified, frame, r.integrity, fix);
+    if (fix->integrity.usable())
+      FlagPlaceAmbiguity(OneWallReason(SpreadOnWalls(pts, pose->inlier_mask), pose->inliers, o),
+                         fix);
     if (fix->integrity.usable() && o.look_alike_checks > 0) CheckLookAlikes(q, r, *verified, fix);
     if (fix->integrity.usable() && o.nearby_checks > 0) CheckNearby(q, r, frame, po, *pose, fix);
   } else

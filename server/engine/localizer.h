@@ -113,6 +113,12 @@ struct LocalizerOptions {
   double nearby_spacing_m = 6;
   double nearby_alias_m = 3;
   double nearby_alias_ratio = 0.5;
+  // First of all, the one-wall check (place_ambiguity.h OneWallReason): fewer than
+  // one_wall_off PnP inliers off the one wall that holds the rest is evidence from one front,
+  // which a street of one design repeats. Seed 103's overcast fix 14.2 m off at a terrace had
+  // all its 27 on one wall, seed 107's 7.1 m off 29 of its 31; 6 of the 248 fixes usable at
+  // 10 m on seed 103's lit drives had fewer than 3 off (docs/design.md 5.6). 0 turns it off.
+  int one_wall_off = 3;
   // Integrity (protection_levels.h): the default risk, the false-alert budget and the CDF
   // overbound. A request may ask for another risk. The map's fitted overbound (catalog.h
   // IntegrityFit) replaces overbound_scale where it is larger; the fixes then name its drive.

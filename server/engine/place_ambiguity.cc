@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <cmath>
 #include <cstdio>
+#include <random>
 
 #include "indexer/base/geo.h"
 #include "indexer/base/rotation.h"
@@ -220,6 +221,56 @@ std::optional<std::string> NearbyAliasReason(const AbsolutePose* nearby, const A
                 "%d): a repeated front?",
                 m, nearby->inliers, fix.inliers);
   return buf;
+}
+
+WallSpread SpreadOnWalls(const std::vector<PointCorrespondence>& pts,
+                         const std::vector<bool>& inlier) {
+  std::vector<cv::Vec2d> xy;
+  for (size_t i = 0; i < pts.size(); ++i)
+    if (inlier[i]) xy.emplace_back(pts[i].world[0], pts[i].world[1]);
+  const int n = static_cast<int>(xy.size());
+  std::vector<std::pair<int, int>> pairs;
+  constexpr int kPairs = 4000;
+  if (n * (n - 1) / 2 <= kPairs) {
+    for (int i = 0; i < n; ++i)
+      for (int j = i + 1; j < n; ++j) pairs.emplace_back(i, j);
+  } else {
+    std::mt19937 rng(1);
+    std::uniform_int_distribution<int> pick(0, n - 1);
+    while (static_cast<int>(pairs.size()) < kPairs)
+      if (const int i = pick(rng), j = pick(rng); i != j) pairs.emplace_back(i, j);
+  }
+  int best_on = 0;
+  WallSpread best{n, 0};
+  for (const auto& [i, j] : pairs) {
+    const cv::Vec2d d = xy[j] - xy[i];
+    if (cv::norm(d) < 1) continue;
+    const cv::Vec2d along = d / cv::norm(d), across(-along[1], along[0]);
+    int on = 0;
+    double lo = 0, hi = 0;
+    for (const cv::Vec2d& p : xy) {
+      if (std::fabs((p - xy[i]).dot(across)) > kWallToleranceM) continue;
+      const double t = (p - xy[i]).dot(along);
+      lo = on ? std::min(lo, t) : t, hi = on ? std::max(hi, t) : t, ++on;
+    }
+    if (on > best_on) best_on = on, best = {n - on, hi - lo};
+  }
+  return best;
+}
+
+std::optional<std::string> OneWallReason(const WallSpread& w, int inliers,
+                                         const LocalizerOptions& o) {
+  if (w.off_wall >= o.one_wall_off) return std::nullopt;
+  char buf[200];
+  std::snprintf(buf, sizeof buf,
+                "%d of %d PnP inliers on one wall (%.1f m of it): one front, which a street of "
+                "one design repeats",
+                inliers - w.off_wall, inliers, w.along_m);
+  return buf;
+}
+
+void FlagPlaceAmbiguity(const std::optional<std::string>& why, Fix* fix) {
+  if (why) fix->integrity.state = IntegrityState::kPlaceAmbiguity, fix->integrity.detail = *why;
 }
 
 std::optional<std::string> AmbiguityReason(const PlaceEvidence& evidence, double ratio) {

@@ -125,6 +125,29 @@ Result<AbsolutePose> NearbyPose(const std::vector<PointCorrespondence>& pts,
 std::optional<std::string> NearbyAliasReason(const AbsolutePose* nearby, const AbsolutePose& fix,
                                              const LocalizerOptions& o);
 
+// A fix's evidence on the walls it saw: its PnP inliers' map points (the fix's frame, z up)
+// against the vertical plane that holds the most of them within kWallToleranceM: how many lie
+// off it, and how far those on it spread along it (metres). The plane is the best of the lines
+// through pairs of points at least 1 m apart (all pairs up to 4000, else 4000 drawn with a
+// fixed seed): deterministic.
+struct WallSpread {
+  int off_wall = 0;
+  double along_m = 0;
+};
+inline constexpr double kWallToleranceM = 0.5;
+WallSpread SpreadOnWalls(const std::vector<PointCorrespondence>& pts,
+                         const std::vector<bool>& inlier);
+
+// The one-wall check of a fix about to be called usable (LocalizerOptions::one_wall_off):
+// fewer than one_wall_off inliers off one wall is evidence from one front alone. A street of one
+// design repeats it a house along, and nothing else in the scene matched to tell the repeats
+// apart. Why the fix is not usable, else nullopt.
+std::optional<std::string> OneWallReason(const WallSpread& w, int inliers,
+                                         const LocalizerOptions& o);
+
+// Makes the fix place_ambiguity with the reason, when there is one.
+void FlagPlaceAmbiguity(const std::optional<std::string>& why, Fix* fix);
+
 // "ambiguous: " + the evidence when its rival reaches ratio.
 std::optional<std::string> AmbiguityReason(const PlaceEvidence& evidence, double ratio);
 
