@@ -450,7 +450,7 @@ void Localizer::Impl::Pose(const LocalFeatures& q, const LocateRequest& r, const
         },
         verified);
     Finish(*pose, pts, *verified, frame, r.integrity, fix);
-    if (fix->integrity.usable())
+    if (fix->integrity.usable() && o.one_wall_off > 0)
       FlagPlaceAmbiguity(OneWallReason(SpreadOnWalls(pts, pose->inlier_mask), pose->inliers, o),
                          fix);
     if (fix->integrity.usable() && o.look_alike_checks > 0) CheckLookAlikes(q, r, *verified, fix);
