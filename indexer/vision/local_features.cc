@@ -52,7 +52,10 @@ Result<LocalFeatures> ExtractFeatures(const cv::Mat& image, const CameraModel* c
       cv::meanStdDev(grey, mean, stddev);
       if (stddev[0] > 0 && stddev[0] < options.min_contrast_std) {
         const double gain = std::min(options.max_gain, options.min_contrast_std / stddev[0]);
-        grey.convertTo(grey, CV_8U, gain, 128.0 - gain * mean[0]);  // saturates at 0 and 255
+        // Into a buffer of its own: `grey` may share the caller's image, which is const.
+        cv::Mat stretched;
+        grey.convertTo(stretched, CV_8U, gain, 128.0 - gain * mean[0]);  // saturates at 0, 255
+        grey = stretched;
       }
     }
     if (options.type == FeatureType::kRootSift) {
