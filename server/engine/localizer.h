@@ -119,6 +119,10 @@ struct LocalizerOptions {
   // all its 27 on one wall, seed 107's 7.1 m off 29 of its 31; 6 of the 248 fixes usable at
   // 10 m on seed 103's lit drives had fewer than 3 off (docs/design.md 5.6). 0 turns it off.
   int one_wall_off = 3;
+  // An inlier off the wall counts when sliding the camera one_wall_shift_m along the wall
+  // moves its image by more than pnp_threshold_px: seed 112's overcast fix 8.1 m off had 7 of
+  // its 26 off the wall, every one over 100 m away (docs/design.md 5.6).
+  double one_wall_shift_m = 3;
   // Integrity (protection_levels.h): the default risk, the false-alert budget and the CDF
   // overbound. A request may ask for another risk. The map's fitted overbound (catalog.h
   // IntegrityFit) replaces overbound_scale where it is larger; the fixes then name its drive.

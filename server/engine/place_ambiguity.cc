@@ -223,12 +223,27 @@ std::optional<std::string> NearbyAliasReason(const AbsolutePose* nearby, const A
   return buf;
 }
 
-WallSpread SpreadOnWalls(const std::vector<PointCorrespondence>& pts,
-                         const std::vector<bool>& inlier) {
-  std::vector<cv::Vec2d> xy;
+namespace {
+
+// Whether sliding the camera by `step` (rotation held) moves the image of `x` by more than
+// `threshold` (normalized image units), or takes it behind the camera.
+bool PlacesAlong(const AbsolutePose& pose, const cv::Vec3d& x, const cv::Vec3d& step,
+                 double threshold) {
+  const cv::Vec3d a = pose.camera_from_world * (x - pose.center);
+  const cv::Vec3d b = pose.camera_from_world * (x - pose.center - step);
+  if (a[2] <= 0 || b[2] <= 0) return true;
+  return std::hypot(a[0] / a[2] - b[0] / b[2], a[1] / a[2] - b[1] / b[2]) > threshold;
+}
+
+}  // namespace
+
+WallSpread SpreadOnWalls(const std::vector<PointCorrespondence>& pts, const AbsolutePose& pose,
+                         double shift_m, double threshold) {
+  std::vector<cv::Vec3d> in;
   for (size_t i = 0; i < pts.size(); ++i)
-    if (inlier[i]) xy.emplace_back(pts[i].world[0], pts[i].world[1]);
-  const int n = static_cast<int>(xy.size());
+    if (pose.inlier_mask[i]) in.push_back(pts[i].world);
+  const int n = static_cast<int>(in.size());
+  const auto plan = [&](int i) { return cv::Vec2d(in[i][0], in[i][1]); };
   std::vector<std::pair<int, int>> pairs;
   constexpr int kPairs = 4000;
   if (n * (n - 1) / 2 <= kPairs) {
@@ -241,31 +256,45 @@ WallSpread SpreadOnWalls(const std::vector<PointCorrespondence>& pts,
       if (const int i = pick(rng), j = pick(rng); i != j) pairs.emplace_back(i, j);
   }
   int best_on = 0;
-  WallSpread best{n, 0};
+  WallSpread best{n, 0, 0};
+  std::vector<bool> best_mask(n, false);
+  cv::Vec2d best_along(0, 0);
   for (const auto& [i, j] : pairs) {
-    const cv::Vec2d d = xy[j] - xy[i];
+    const cv::Vec2d d = plan(j) - plan(i);
     if (cv::norm(d) < 1) continue;
     const cv::Vec2d along = d / cv::norm(d), across(-along[1], along[0]);
+    std::vector<bool> mask(n, false);
     int on = 0;
     double lo = 0, hi = 0;
-    for (const cv::Vec2d& p : xy) {
-      if (std::fabs((p - xy[i]).dot(across)) > kWallToleranceM) continue;
-      const double t = (p - xy[i]).dot(along);
-      lo = on ? std::min(lo, t) : t, hi = on ? std::max(hi, t) : t, ++on;
+    for (int k = 0; k < n; ++k) {
+      if (std::fabs((plan(k) - plan(i)).dot(across)) > kWallToleranceM) continue;
+      const double t = (plan(k) - plan(i)).dot(along);
+      lo = on ? std::min(lo, t) : t, hi = on ? std::max(hi, t) : t, ++on, mask[k] = true;
     }
-    if (on > best_on) best_on = on, best = {n - on, hi - lo};
+    if (on > best_on)
+      best_on = on, best = {n - on, 0, hi - lo}, best_mask = mask, best_along = along;
   }
+  if (best_on == 0) return best;
+  const cv::Vec3d step(shift_m * best_along[0], shift_m * best_along[1], 0);
+  for (int k = 0; k < n; ++k)
+    if (!best_mask[k] &&
+        !(PlacesAlong(pose, in[k], step, threshold) && PlacesAlong(pose, in[k], -step, threshold)))
+      --best.off_wall, ++best.beyond_reach;
   return best;
 }
 
 std::optional<std::string> OneWallReason(const WallSpread& w, int inliers,
                                          const LocalizerOptions& o) {
   if (w.off_wall >= o.one_wall_off) return std::nullopt;
-  char buf[200];
+  char buf[300];
   std::snprintf(buf, sizeof buf,
-                "%d of %d PnP inliers on one wall (%.1f m of it): one front, which a street of "
-                "one design repeats",
-                inliers - w.off_wall, inliers, w.along_m);
+                "%d of %d PnP inliers on one wall (%.1f m of it)%s: one front, which a street "
+                "of one design repeats",
+                inliers - w.off_wall - w.beyond_reach, inliers, w.along_m,
+                w.beyond_reach == 0 ? ""
+                                    : (", " + std::to_string(w.beyond_reach) +
+                                       " off it too far to tell a shift along it")
+                                          .c_str());
   return buf;
 }
 

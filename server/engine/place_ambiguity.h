@@ -127,21 +127,27 @@ std::optional<std::string> NearbyAliasReason(const AbsolutePose* nearby, const A
 
 // A fix's evidence on the walls it saw: its PnP inliers' map points (the fix's frame, z up)
 // against the vertical plane that holds the most of them within kWallToleranceM: how many lie
-// off it, and how far those on it spread along it (metres). The plane is the best of the lines
-// through pairs of points at least 1 m apart (all pairs up to 4000, else 4000 drawn with a
-// fixed seed): deterministic.
+// off it and place the camera along it, how many lie off it beyond reach, and how far those on
+// it spread along it (metres). An inlier off the wall places the camera along it when sliding
+// the camera shift_m along the wall, either way with its rotation held, moves the inlier's
+// image by more than `threshold` (normalized image units): a repeat of the wall shifts the
+// position and keeps the rotation, so only such points could tell the repeats apart; a point
+// 100 m down the street barely moves. The plane is the best of the lines through pairs of
+// points at least 1 m apart (all pairs up to 4000, else 4000 drawn with a fixed seed):
+// deterministic.
 struct WallSpread {
   int off_wall = 0;
+  int beyond_reach = 0;
   double along_m = 0;
 };
 inline constexpr double kWallToleranceM = 0.5;
-WallSpread SpreadOnWalls(const std::vector<PointCorrespondence>& pts,
-                         const std::vector<bool>& inlier);
+WallSpread SpreadOnWalls(const std::vector<PointCorrespondence>& pts, const AbsolutePose& pose,
+                         double shift_m, double threshold);
 
 // The one-wall check of a fix about to be called usable (LocalizerOptions::one_wall_off):
-// fewer than one_wall_off inliers off one wall is evidence from one front alone. A street of one
-// design repeats it a house along, and nothing else in the scene matched to tell the repeats
-// apart. Why the fix is not usable, else nullopt.
+// fewer than one_wall_off inliers off one wall placing the camera along it is evidence from one
+// front alone. A street of one design repeats it a house along, and nothing else in the scene
+// matched to tell the repeats apart. Why the fix is not usable, else nullopt.
 std::optional<std::string> OneWallReason(const WallSpread& w, int inliers,
                                          const LocalizerOptions& o);
 
