@@ -19,7 +19,10 @@ the overbound's fit:
   - wrong places: refined fixes more than 5 m off, and how many of them were flagged usable.
 Such evidence validates a protection level to about 1e-3 at best, not to the far tails a safety
 case needs; sightfix is a fallback aid, not a certified navigation source.
-Usage: integrity_evidence.py OUT_DIR
+Usage: integrity_evidence.py OUT_DIR [MORE_DIR ...]
+  Several folders (runs of the same script split over machines by --first and --seeds) are
+  weighed together; OUT_DIR receives evidence.json and evidence.md. A seed found in two
+  folders is refused: its towns would count twice.
 """
 import csv
 import glob
@@ -152,13 +155,28 @@ def judged_at(replay_dir):
         return ALERT_LIMIT_M
 
 
-def main(out):
-    seeds = sorted(glob.glob(os.path.join(out, "seed-*")))
+def done_seeds(dirs):
+    """The finished seed folders of every run folder, by seed name; None naming a seed twice."""
+    found = {}
+    for d in dirs:
+        for seed_dir in sorted(glob.glob(os.path.join(d, "seed-*"))):
+            if not os.path.exists(os.path.join(seed_dir, "done")):
+                continue
+            seed = os.path.basename(seed_dir)
+            if seed in found:
+                return None, "%s is in both %s and %s" % (seed, found[seed], seed_dir)
+            found[seed] = seed_dir
+    return found, None
+
+
+def main(dirs):
+    out = dirs[0]
+    seeds, clash = done_seeds(dirs)
+    if clash:
+        sys.stderr.write("integrity_evidence: %s: a town would count twice\n" % clash)
+        sys.exit(2)
     rows, fits, limits = {}, {}, set()
-    for seed_dir in seeds:
-        seed = os.path.basename(seed_dir)
-        if not os.path.exists(os.path.join(seed_dir, "done")):
-            continue
+    for seed, seed_dir in sorted(seeds.items()):
         town = json.load(open(os.path.join(seed_dir, "town", "town.json")))
         fit = json.load(open(os.path.join(seed_dir, "fit.json")))
         fits[seed] = fit["overbound_scale"]
@@ -209,7 +227,7 @@ def main(out):
 
 
 if __name__ == "__main__":
-    if len(sys.argv) != 2 or sys.argv[1] in ("-h", "--help"):
+    if len(sys.argv) < 2 or sys.argv[1] in ("-h", "--help"):
         print(__doc__)
         sys.exit(0 if len(sys.argv) == 2 else 2)
-    main(sys.argv[1])
+    main(sys.argv[1:])

@@ -6,12 +6,14 @@ levels; misleading by the horizontal level; misleading by the lateral level alon
 2 m alert limit, so hazardous; a wrong place kept from use; a coarse fix; a usable fix in the
 aliasing district). The Clopper-Pearson bound of 2 misleading episodes out of 3 is solved by
 hand: P(X <= 2) = 1 - p^3 = 0.05 gives p = 0.95^(1/3) (Clopper and Pearson, Biometrika 1934).
+Then the same folder weighed with a second run folder, as a run split over machines is.
 Usage: integrity_evidence_test.py SOURCE_DIR
 """
 import csv
 import json
 import math
 import os
+import shutil
 import subprocess
 import sys
 import tempfile
@@ -104,4 +106,21 @@ with tempfile.TemporaryDirectory() as out:
           abs(integrity_evidence.cp_upper(5, 300) - 0.034722244301295) < 1e-12)
     check("Clopper-Pearson 0 of 2996 is about 1e-3 (the goal's episode count)",
           abs(integrity_evidence.cp_upper(0, 2996) - 0.001) < 2e-6)
+    # A run split over two machines: the second folder's seed-2 (a copy of seed-1) is weighed
+    # with the first's, and the same seed in both folders is refused.
+    with tempfile.TemporaryDirectory() as other:
+        shutil.copytree(seed, os.path.join(other, "seed-2"))
+        script = os.path.join(src, "scripts", "integrity_evidence.py")
+        run = subprocess.run(["/usr/bin/python3", script, out, other], capture_output=True,
+                             text=True)
+        both = json.load(open(os.path.join(out, "evidence.json")))
+        check("two folders: two towns, twice the held-out queries and episodes",
+              run.returncode == 0 and both["seeds"] == 2 and
+              both["rows"]["all held out"]["queries"] == 12 and
+              both["rows"]["all held out"]["episodes"] == 6)
+        shutil.copytree(seed, os.path.join(other, "seed-1"))
+        run = subprocess.run(["/usr/bin/python3", script, out, other], capture_output=True,
+                             text=True)
+        check("the same seed in two folders is refused (%s)" % run.stderr.strip(),
+              run.returncode == 2 and "seed-1 is in both" in run.stderr)
 sys.exit(1 if failed else 0)
