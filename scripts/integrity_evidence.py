@@ -3,9 +3,10 @@
 (each: town/town.json, town/survey/truth.csv, fit.json, and one replay folder per query drive
 with fixes.csv) and writes OUT/evidence.json and OUT/evidence.md.
 
-Per condition (a query drive kind) and over the aliasing district (fixes whose truth lies in a
-look-alike stretch of town.json, or in the stretch a twin mirrors), over drives held out from
-the overbound's fit:
+Per condition (a query drive kind), over the aliasing district (fixes whose truth lies in a
+look-alike stretch of town.json, or in the stretch a twin mirrors), per kind of look-alike
+street (terrace, chain shops, twin) and over the other streets of the survey route, over drives
+held out from the overbound's fit:
   - protected fixes (refined, with protection levels), flagged usable, misleading (usable and the
     error beyond a protection level: horizontal, or cross/along beyond lateral/longitudinal),
     hazardous (misleading and beyond the alert limit the replay judged at: its summary.json's
@@ -91,12 +92,14 @@ def route_locator(town_dir):
 
 
 def alias_spans(town):
+    """(from, to, kind) in route metres of each look-alike stretch and of the stretch a twin
+    mirrors, widened by MARGIN_M."""
     spans = []
     for s in town.get("look_alikes", []):
-        spans.append((s["route_from_m"] - MARGIN_M, s["route_to_m"] + MARGIN_M))
+        spans.append((s["route_from_m"] - MARGIN_M, s["route_to_m"] + MARGIN_M, s["kind"]))
         if "mirrors" in s:
             spans.append((s["mirrors"]["route_from_m"] - MARGIN_M,
-                          s["mirrors"]["route_to_m"] + MARGIN_M))
+                          s["mirrors"]["route_to_m"] + MARGIN_M, s["kind"]))
     return spans
 
 
@@ -197,8 +200,12 @@ def main(dirs):
                     continue
                 add(rows.setdefault("all held out", new_tally()), key, r, limit)
                 m = locate(float(r["true_lat"]), float(r["true_lon"]))
-                if m is not None and any(a <= m <= b for a, b in spans):
-                    add(rows.setdefault("aliasing district", new_tally()), key, r, limit)
+                if m is None:  # off the survey route (the off-map drive's detour)
+                    continue
+                kinds = sorted({kind for a, b, kind in spans if a <= m <= b})
+                streets = ["aliasing district"] + ["aliasing district: " + k for k in kinds]
+                for name in streets if kinds else ["other streets"]:
+                    add(rows.setdefault(name, new_tally()), key, r, limit)
     result = {"seeds": len(fits), "overbound_scale_by_seed": fits,
               "rows": {k: finish(v) for k, v in sorted(rows.items())},
               "alert_limit_m": sorted(limits), "episode": "(seed, drive, 50 m street segment) "

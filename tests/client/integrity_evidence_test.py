@@ -92,6 +92,9 @@ with tempfile.TemporaryDirectory() as out:
           abs(held["availability"]["2m"] - 0.5) < 1e-12)
     alias = ev["rows"]["aliasing district"]
     check("the aliasing district holds f only", (alias["queries"], alias["usable"]) == (1, 1))
+    check("the twin street holds f too", ev["rows"]["aliasing district: twin"] == alias)
+    other = ev["rows"]["other streets"]
+    check("the other streets hold a-e", (other["queries"], other["usable"]) == (5, 3))
     day = ev["rows"]["day (the fit's drive)"]
     check("the fit's drive stands apart, not in the held-out total",
           day["misleading"] == 1 and held["queries"] == 6)
