@@ -450,11 +450,8 @@ void Localizer::Impl::Pose(const LocalFeatures& q, const LocateRequest& r, const
         },
         verified);
     Finish(*pose, pts, *verified, frame, r.integrity, fix);
-    if (fix->integrity.usable() && o.one_wall_off > 0)
-      FlagPlaceAmbiguity(OneWallReason(SpreadOnWalls(pts, *pose, o.one_wall_shift_m,
-                                                     po.threshold_px / po.focal_px),
-                                       pose->inliers, o),
-                         fix);
+    if (fix->integrity.usable())
+      FlagPlaceAmbiguity(SpreadReason(pts, *pose, po.threshold_px / po.focal_px, o), fix);
     if (fix->integrity.usable() && o.look_alike_checks > 0) CheckLookAlikes(q, r, *verified, fix);
     if (fix->integrity.usable() && o.nearby_checks > 0) CheckNearby(q, r, frame, po, *pose, fix);
   } else

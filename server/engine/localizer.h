@@ -123,6 +123,13 @@ struct LocalizerOptions {
   // moves its image by more than pnp_threshold_px: seed 112's overcast fix 8.1 m off had 7 of
   // its 26 off the wall, every one over 100 m away (docs/design.md 5.6).
   double one_wall_shift_m = 3;
+  // Then fewer than min_sight_support PnP inliers that move in the image when the camera slides
+  // one_wall_shift_m along its line of sight (place_ambiguity.h SightSupport) makes the fix
+  // place_ambiguity: how far down the street it stands rests on a handful of matches. 10, the
+  // floor a subset solution needs (AbsolutePoseOptions::min_subset_inliers): seed 109's day fix
+  // 7.6 m off had 5 of 29; of 1 137 fixes usable at 10 m on seeds 103, 107, 109 and 112, 5 had
+  // fewer than 10 (docs/design.md 5.6). 0 turns it off.
+  int min_sight_support = 10;
   // Integrity (protection_levels.h): the default risk, the false-alert budget and the CDF
   // overbound. A request may ask for another risk. The map's fitted overbound (catalog.h
   // IntegrityFit) replaces overbound_scale where it is larger; the fixes then name its drive.

@@ -298,6 +298,35 @@ std::optional<std::string> OneWallReason(const WallSpread& w, int inliers,
   return buf;
 }
 
+int SightSupport(const std::vector<PointCorrespondence>& pts, const AbsolutePose& pose,
+                 double shift_m, double threshold) {
+  const cv::Matx33d& r = pose.camera_from_world;
+  const cv::Vec2d ahead(r(2, 0), r(2, 1));  // the optical axis, level
+  if (cv::norm(ahead) < 1e-9) return 0;     // looking straight up or down
+  const cv::Vec3d step =
+      shift_m * cv::Vec3d(ahead[0] / cv::norm(ahead), ahead[1] / cv::norm(ahead), 0);
+  int support = 0;
+  for (size_t i = 0; i < pts.size(); ++i)
+    support += pose.inlier_mask[i] && PlacesAlong(pose, pts[i].world, step, threshold) &&
+               PlacesAlong(pose, pts[i].world, -step, threshold);
+  return support;
+}
+
+std::optional<std::string> SpreadReason(const std::vector<PointCorrespondence>& pts,
+                                        const AbsolutePose& pose, double threshold,
+                                        const LocalizerOptions& o) {
+  if (o.one_wall_off > 0)
+    if (auto why =
+            OneWallReason(SpreadOnWalls(pts, pose, o.one_wall_shift_m, threshold), pose.inliers, o))
+      return why;
+  if (o.min_sight_support <= 0) return std::nullopt;
+  const int support = SightSupport(pts, pose, o.one_wall_shift_m, threshold);
+  if (support >= o.min_sight_support) return std::nullopt;
+  return std::to_string(support) + " of " + std::to_string(pose.inliers) +
+         " PnP inliers place the camera along its line of sight (the rest lie too far ahead " +
+         "to move when it does): a few wrong matches could agree on that place by chance";
+}
+
 void FlagPlaceAmbiguity(const std::optional<std::string>& why, Fix* fix) {
   if (why) fix->integrity.state = IntegrityState::kPlaceAmbiguity, fix->integrity.detail = *why;
 }

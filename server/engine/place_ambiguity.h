@@ -151,6 +151,21 @@ WallSpread SpreadOnWalls(const std::vector<PointCorrespondence>& pts, const Abso
 std::optional<std::string> OneWallReason(const WallSpread& w, int inliers,
                                          const LocalizerOptions& o);
 
+// How many of a fix's PnP inliers place the camera along its line of sight: sliding the camera
+// shift_m forward or back (level, its rotation held) moves the inlier's image by more than
+// `threshold` (normalized image units). A front far down the street fixes where the camera
+// looks, not how far from it the camera stands: that rests on the nearer inliers alone.
+int SightSupport(const std::vector<PointCorrespondence>& pts, const AbsolutePose& pose,
+                 double shift_m, double threshold);
+
+// The spread checks of a fix about to be called usable: the one-wall check, then the
+// line-of-sight check (fewer than LocalizerOptions::min_sight_support inliers placing the
+// camera along its line of sight: a handful of wrong matches could agree on a place there by
+// chance, whatever the rest say). Why the fix is not usable, else nullopt.
+std::optional<std::string> SpreadReason(const std::vector<PointCorrespondence>& pts,
+                                        const AbsolutePose& pose, double threshold,
+                                        const LocalizerOptions& o);
+
 // Makes the fix place_ambiguity with the reason, when there is one.
 void FlagPlaceAmbiguity(const std::optional<std::string>& why, Fix* fix);
 
