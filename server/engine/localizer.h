@@ -119,12 +119,12 @@ struct LocalizerOptions {
   // all its 27 on one wall, seed 107's 7.1 m off 29 of its 31; 6 of the 248 fixes usable at
   // 10 m on seed 103's lit drives had fewer than 3 off (docs/design.md 5.6). 0 turns it off.
   int one_wall_off = 3;
-  // An inlier off the wall counts when sliding the camera one_wall_shift_m along the wall
+  // An inlier off the wall counts when sliding the camera spread_shift_m along the wall
   // moves its image by more than pnp_threshold_px: seed 112's overcast fix 8.1 m off had 7 of
   // its 26 off the wall, every one over 100 m away (docs/design.md 5.6).
-  double one_wall_shift_m = 3;
+  double spread_shift_m = 3;
   // Then fewer than min_sight_support PnP inliers that move in the image when the camera slides
-  // one_wall_shift_m along its line of sight (place_ambiguity.h SightSupport) makes the fix
+  // spread_shift_m along its line of sight (place_ambiguity.h SightSupport) makes the fix
   // place_ambiguity: how far down the street it stands rests on a handful of matches. 10, the
   // floor a subset solution needs (AbsolutePoseOptions::min_subset_inliers): seed 109's day fix
   // 7.6 m off had 5 of 29; of 1 137 fixes usable at 10 m on seeds 103, 107, 109 and 112, 5 had

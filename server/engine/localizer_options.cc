@@ -34,7 +34,7 @@ bool LocalizerOptions::Validate(std::string* error) const {
   if (!(nearby_alias_ratio > 0)) return fail("nearby_alias_ratio must be > 0");
   if (one_wall_off < 0) return fail("one_wall_off must be >= 0");
   if (min_sight_support < 0) return fail("min_sight_support must be >= 0");
-  if (!(one_wall_shift_m > 0)) return fail("one_wall_shift_m must be > 0");
+  if (!(spread_shift_m > 0)) return fail("spread_shift_m must be > 0");
   if (!(default_alert_limit_m > 0)) return fail("default_alert_limit_m must be > 0");
   std::string p;
   if (!protection.Validate(&p)) return fail("protection: " + p);

@@ -317,10 +317,10 @@ std::optional<std::string> SpreadReason(const std::vector<PointCorrespondence>& 
                                         const LocalizerOptions& o) {
   if (o.one_wall_off > 0)
     if (auto why =
-            OneWallReason(SpreadOnWalls(pts, pose, o.one_wall_shift_m, threshold), pose.inliers, o))
+            OneWallReason(SpreadOnWalls(pts, pose, o.spread_shift_m, threshold), pose.inliers, o))
       return why;
   if (o.min_sight_support <= 0) return std::nullopt;
-  const int support = SightSupport(pts, pose, o.one_wall_shift_m, threshold);
+  const int support = SightSupport(pts, pose, o.spread_shift_m, threshold);
   if (support >= o.min_sight_support) return std::nullopt;
   return std::to_string(support) + " of " + std::to_string(pose.inliers) +
          " PnP inliers place the camera along its line of sight (the rest lie too far ahead " +
