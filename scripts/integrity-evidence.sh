@@ -13,8 +13,8 @@
 #                                      [--alert-limit M] [--small]
 #   OUT_DIR            default out/integrity-evidence
 #   --seeds N          towns (20: the goal's count; 4-7 min each on 2 cores)
-#   --first S          first seed (101: away from the seeds the tests use; seeds 103 and 107
-#                      tuned the one-wall check, docs/design.md 5.6)
+#   --first S          first seed (101: away from the seeds the tests use; seeds 103, 107,
+#                      109 and 112 tuned the spread checks, docs/design.md 5.6)
 #   --route-length-m M survey route (600: long enough for the look-alike stretches)
 #   --alert-limit M    the horizontal alert limit every replay judges its fixes at (10: the
 #                      widest the availability is given at; the place checks run only for
