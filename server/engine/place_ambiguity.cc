@@ -225,14 +225,17 @@ std::optional<std::string> NearbyAliasReason(const AbsolutePose* nearby, const A
 
 namespace {
 
-// Whether sliding the camera by `step` (rotation held) moves the image of `x` by more than
-// `threshold` (normalized image units), or takes it behind the camera.
-bool PlacesAlong(const AbsolutePose& pose, const cv::Vec3d& x, const cv::Vec3d& step,
-                 double threshold) {
+// Whether sliding the camera by `step` either way (rotation held) moves the image of `x` by
+// more than `threshold` (normalized image units), or takes it behind the camera.
+bool TellsShift(const AbsolutePose& pose, const cv::Vec3d& x, const cv::Vec3d& step,
+                double threshold) {
   const cv::Vec3d a = pose.camera_from_world * (x - pose.center);
-  const cv::Vec3d b = pose.camera_from_world * (x - pose.center - step);
-  if (a[2] <= 0 || b[2] <= 0) return true;
-  return std::hypot(a[0] / a[2] - b[0] / b[2], a[1] / a[2] - b[1] / b[2]) > threshold;
+  for (const cv::Vec3d& s : {step, -step}) {
+    const cv::Vec3d b = pose.camera_from_world * (x - pose.center - s);
+    if (a[2] <= 0 || b[2] <= 0) continue;
+    if (std::hypot(a[0] / a[2] - b[0] / b[2], a[1] / a[2] - b[1] / b[2]) <= threshold) return false;
+  }
+  return true;
 }
 
 }  // namespace
@@ -255,30 +258,29 @@ WallSpread SpreadOnWalls(const std::vector<PointCorrespondence>& pts, const Abso
     while (static_cast<int>(pairs.size()) < kPairs)
       if (const int i = pick(rng), j = pick(rng); i != j) pairs.emplace_back(i, j);
   }
-  int best_on = 0;
+  int best_on = 0, best_i = 0;
   WallSpread best{n, 0, 0};
-  std::vector<bool> best_mask(n, false);
   cv::Vec2d best_along(0, 0);
+  const auto on_wall = [&](int k, int i, const cv::Vec2d& along) {
+    return std::fabs((plan(k) - plan(i)).dot(cv::Vec2d(-along[1], along[0]))) <= kWallToleranceM;
+  };
   for (const auto& [i, j] : pairs) {
     const cv::Vec2d d = plan(j) - plan(i);
     if (cv::norm(d) < 1) continue;
-    const cv::Vec2d along = d / cv::norm(d), across(-along[1], along[0]);
-    std::vector<bool> mask(n, false);
+    const cv::Vec2d along = d / cv::norm(d);
     int on = 0;
     double lo = 0, hi = 0;
     for (int k = 0; k < n; ++k) {
-      if (std::fabs((plan(k) - plan(i)).dot(across)) > kWallToleranceM) continue;
+      if (!on_wall(k, i, along)) continue;
       const double t = (plan(k) - plan(i)).dot(along);
-      lo = on ? std::min(lo, t) : t, hi = on ? std::max(hi, t) : t, ++on, mask[k] = true;
+      lo = on ? std::min(lo, t) : t, hi = on ? std::max(hi, t) : t, ++on;
     }
-    if (on > best_on)
-      best_on = on, best = {n - on, 0, hi - lo}, best_mask = mask, best_along = along;
+    if (on > best_on) best_on = on, best = {n - on, 0, hi - lo}, best_i = i, best_along = along;
   }
   if (best_on == 0) return best;
   const cv::Vec3d step(shift_m * best_along[0], shift_m * best_along[1], 0);
   for (int k = 0; k < n; ++k)
-    if (!best_mask[k] &&
-        !(PlacesAlong(pose, in[k], step, threshold) && PlacesAlong(pose, in[k], -step, threshold)))
+    if (!on_wall(k, best_i, best_along) && !TellsShift(pose, in[k], step, threshold))
       --best.off_wall, ++best.beyond_reach;
   return best;
 }
@@ -286,16 +288,13 @@ WallSpread SpreadOnWalls(const std::vector<PointCorrespondence>& pts, const Abso
 std::optional<std::string> OneWallReason(const WallSpread& w, int inliers,
                                          const LocalizerOptions& o) {
   if (w.off_wall >= o.one_wall_off) return std::nullopt;
-  char buf[300];
-  std::snprintf(buf, sizeof buf,
-                "%d of %d PnP inliers on one wall (%.1f m of it)%s: one front, which a street "
-                "of one design repeats",
-                inliers - w.off_wall - w.beyond_reach, inliers, w.along_m,
-                w.beyond_reach == 0 ? ""
-                                    : (", " + std::to_string(w.beyond_reach) +
-                                       " off it too far to tell a shift along it")
-                                          .c_str());
-  return buf;
+  char buf[200];
+  std::snprintf(buf, sizeof buf, "%d of %d PnP inliers on one wall (%.1f m of it)",
+                inliers - w.off_wall - w.beyond_reach, inliers, w.along_m);
+  std::string why = buf;
+  if (w.beyond_reach > 0)
+    why += ", " + std::to_string(w.beyond_reach) + " off it too far to tell a shift along it";
+  return why + ": one front, which a street of one design repeats";
 }
 
 int SightSupport(const std::vector<PointCorrespondence>& pts, const AbsolutePose& pose,
@@ -307,8 +306,7 @@ int SightSupport(const std::vector<PointCorrespondence>& pts, const AbsolutePose
       shift_m * cv::Vec3d(ahead[0] / cv::norm(ahead), ahead[1] / cv::norm(ahead), 0);
   int support = 0;
   for (size_t i = 0; i < pts.size(); ++i)
-    support += pose.inlier_mask[i] && PlacesAlong(pose, pts[i].world, step, threshold) &&
-               PlacesAlong(pose, pts[i].world, -step, threshold);
+    support += pose.inlier_mask[i] && TellsShift(pose, pts[i].world, step, threshold);
   return support;
 }
 
