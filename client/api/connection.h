@@ -228,6 +228,7 @@ struct Connection {
                       "TLS handshake not finished within " + std::to_string(timeout_ms) + " ms");
       if (ec) {
         const bool closed = ec == asio::error::eof || ec == asio::error::connection_reset ||
+                            ec == asio::error::broken_pipe ||
                             ec == asio::ssl::error::stream_truncated;
         const std::string v = VerifyProblem(tls->native_handle());
         return failed(closed ? Opened::kClosedHandshake : Opened::kRefused,

@@ -4,6 +4,7 @@
 #include <cstdio>
 
 #include "server/service/service_impl.h"
+#include "server/service/tls_refusal.h"
 
 namespace sightfix {
 namespace {
@@ -65,6 +66,20 @@ std::string Service::Impl::AdmitHandshake(const std::string& address, Clock::tim
     for (auto it = refusals_logged.begin(); it != refusals_logged.end();)
       it = now - it->second >= kRefusalLogEvery ? refusals_logged.erase(it) : std::next(it);
   return why;
+}
+
+bool Service::Impl::AdmitAtAccept(boost::asio::ip::tcp::socket* socket) {
+  boost::system::error_code ec;
+  const auto peer = socket->remote_endpoint(ec);
+  const std::string address = ec ? "?" : peer.address().to_string();
+  bool log = true;
+  const std::string why = AdmitHandshake(address, Clock::now(), &log);
+  if (why.empty()) return true;
+  service_internal::LogTlsRefusal(this, service_internal::TlsPort::kQuery,
+                                  ec ? "?" : address + ":" + std::to_string(peer.port()), why, log);
+  socket->set_option(boost::asio::socket_base::linger(true, 0), ec);
+  socket->close(ec);
+  return false;
 }
 
 void Service::Impl::HandshakeDone(const std::string& address) {

@@ -186,6 +186,8 @@ void Service::Impl::Accept() {
     if (connections >= o.max_connections) {
       boost::system::error_code ignored;
       socket.close(ignored);  // over the cap: refused at once
+    } else if (tls && !AdmitAtAccept(&socket)) {
+      // refused before a session or any TLS state is made for it
     } else {
       ++connections;
       auto session = std::make_shared<Session>(std::move(socket), this);

@@ -99,6 +99,10 @@ struct Service::Impl {
   // (the first from the address in 10 s: a flood is not logged line by line).
   std::string AdmitHandshake(const std::string& address, Clock::time_point now, bool* log);
   void HandshakeDone(const std::string& address);
+  // AdmitHandshake on an accepted socket, before a session is made for it: false when refused,
+  // the refusal logged (as AdmitHandshake says) and the socket reset (nothing was sent, so a
+  // reset loses nothing and leaves no TIME_WAIT behind, which a flood would pile up).
+  bool AdmitAtAccept(boost::asio::ip::tcp::socket* socket);
   // True when `client` may make one more call now (takes a token); else *wait_s is the time
   // until it may.
   bool TakeShare(const std::string& client, Clock::time_point now, double* wait_s);

@@ -33,13 +33,7 @@ Session::Session(tcp::socket socket, Service::Impl* svc)
 void Session::Start() {
   ArmAge();
   if (!tls_) return ReadHeader();
-  // Fair shares before any TLS work: handshakes in progress and new ones from this address.
-  bool log = true;
-  if (std::string why = svc_->AdmitHandshake(address_, Clock::now(), &log); !why.empty()) {
-    LogTlsRefusal(svc_, TlsPort::kQuery, peer_, why, log);
-    return Close();
-  }
-  handshaking_ = true;
+  handshaking_ = true;           // admitted at accept (Service::Impl::AdmitAtAccept)
   Arm(svc_->o.read_timeout_ms);  // a stalled handshake is cut off as a stalled frame is
   // A plaintext client gets a plaintext answer saying why not.
   TlsRefusal::LookAtFirstByte(shared_from_this(), header_);
