@@ -8,11 +8,14 @@
 # --tls: a CA, a server certificate and one vehicle certificate per client (scripts/make-certs.sh,
 #   in BUILD_DIR/soak/pki), the query port on TLS and a share per client (--client-calls-per-s:
 #   one call per shortest think time, burst 3, so a client that thinks is never limited).
-# --attack (implies --tls): the run is two phases of --seconds each. The second adds a handshake
-#   flooder from 127.0.0.2 (half without a certificate, half full handshakes with a vehicle's,
-#   each then closed) and a query flooder with its own certificate (Locates back to back, 64 in
-#   flight, no retries).
-#   Passes when the clients' p99 Locate latency attacked is within 1.5 x of unloaded, none of
+# --attack (implies --tls): the run is three phases of --seconds each, the same clients in all:
+#   unloaded; attacked, by a handshake flooder from 127.0.0.2 (half without a certificate, half
+#   full handshakes with a vehicle's, each then closed) and a query flooder with its own
+#   certificate (Locates back to back, 64 in flight, no retries); control, a burner taking the
+#   CPU the flooders took (the soak's own process, attacked less unloaded) without the network.
+#   The flooders share the server's cores here, which an attacker on the radio link does not:
+#   the control phase holds that share equal. Passes when the clients' p99 Locate latency
+#   attacked is within 1.5 x of control (attacked / unloaded is printed beside it), none of
 #   their calls failed, the flooder was answered RATE_LIMITED, the handshake limits closed and
 #   refused the flood (/metrics and the log), and the server drained.
 # --handshake-rate R: passes --handshake-rate-per-address R to a server that has it (0: off).
@@ -34,7 +37,7 @@ while [ $# -gt 0 ]; do
     --attack) attack=1 tls=1; shift ;;
     --handshake-rate) handshake_rate="$2"; shift 2 ;;
     --no-build) build_first=0; shift ;;
-    -h|--help) sed -n '2,23p' "$0" | sed 's/^# \{0,1\}//'; exit 0 ;;
+    -h|--help) sed -n '2,26p' "$0" | sed 's/^# \{0,1\}//'; exit 0 ;;
     *) echo "soak.sh: unknown option $1 (see --help)" >&2; exit 2 ;;
   esac
 done
@@ -96,7 +99,7 @@ read -r port http_port <<<"$(serving_port "$out/server.log" "$pid" || true)"
   { echo "soak: the server did not start: $(tail -3 "$out/server.log")" >&2; exit 1; }
 [ "$attack" = 1 ] && load+=(--attack --metrics "127.0.0.1:$http_port")
 what="$clients clients for $seconds s"
-[ "$attack" = 1 ] && what="$what unloaded, then $seconds s attacked"
+[ "$attack" = 1 ] && what="$what unloaded, $seconds s attacked, then $seconds s control"
 [ "$tls" = 1 ] && what="$what, TLS (a share of $share calls/s and a burst of 3 per vehicle;" &&
   what="$what handshakes a second per address: ${handshake_rate:-as the server defaults})"
 echo "soak: $what; server pid $pid, port $port"

@@ -2,9 +2,9 @@
 // bad calls mixed, while the server's memory, descriptors and latency are watched through
 // /proc. Prints one line per window and a JSON verdict; exit 0 only when the verdict passes.
 // With --tls-dir the clients speak TLS, each with its own vehicle certificate. With --attack
-// (TLS only) the run is two phases of --seconds each: unloaded, then the same clients while a
-// handshake flooder and a query flooder run (soak_attack.h); the verdict then compares the
-// clients' p99 Locate latency across the phases instead of across windows.
+// (TLS only) the run is three phases of --seconds each: unloaded, attacked (a handshake flooder
+// and a query flooder, soak_attack.h) and control (a burner in their place, soak_phases.h); the
+// verdict then compares the clients' p99 Locate latency across the phases, not across windows.
 // scripts/soak.sh starts the server and runs this; see README "Limits and guarantees".
 #include <algorithm>
 #include <atomic>
@@ -25,6 +25,7 @@
 #include "proto/frame_codec.h"
 #include "server/wire/wire.h"
 #include "tests/bench/soak_attack.h"
+#include "tests/bench/soak_phases.h"
 
 namespace po = boost::program_options;
 namespace asio = boost::asio;
@@ -49,8 +50,8 @@ struct Config {
   std::string metrics;  // HOST:PORT of the server's HTTP side port
   std::string attack_source = "127.0.0.2";
   int handshakes_in_flight = 16, queries_in_flight = 64;
-  double max_p99_ratio = 1.5;  // the requirement: attacked p99 within 1.5 x of unloaded
-  int run_s() const { return attack ? 2 * seconds : seconds; }
+  double max_p99_ratio = 1.5;  // the requirement: attacked p99 within 1.5 x of control
+  int run_s() const { return attack ? 3 * seconds : seconds; }
 };
 
 std::string ReadFile(const std::string& path) {
@@ -78,7 +79,7 @@ int ParseFlags(int argc, char** argv, Config* c) {
       "drive", po::value(&c->drive), "query drive folder (drive.csv, camera.yml, images/)")(
       "clients", po::value(&c->clients)->default_value(c->clients), "concurrent clients")(
       "seconds", po::value(&c->seconds)->default_value(c->seconds),
-      "length of the run (with --attack: of each phase)")(
+      "length of the run (with --attack: of each of its three phases)")(
       "warmup", po::value(&c->warmup_s)->default_value(c->warmup_s),
       "seconds before the RSS baseline (with --attack: at most --seconds)")(
       "window", po::value(&c->window_s)->default_value(c->window_s), "seconds per report line")(
@@ -88,8 +89,10 @@ int ParseFlags(int argc, char** argv, Config* c) {
       "largest RSS growth after warm-up that passes (fraction)")(
       "tls-dir", po::value(&c->tls_dir),
       "speak TLS: ca.crt and soak-client-N.crt/.key per client (scripts/soak.sh makes them)")(
-      "attack", "after an unloaded phase, a second one under a handshake and a query flood")(
-      "metrics", po::value(&c->metrics), "HOST:PORT of the server's HTTP side port (--attack)")(
+      "attack",
+      "three phases: unloaded; under a handshake and a query flood; control (a burner taking "
+      "the flooders' CPU, no network)")("metrics", po::value(&c->metrics),
+                                        "HOST:PORT of the server's HTTP side port (--attack)")(
       "attack-source", po::value(&c->attack_source)->default_value(c->attack_source),
       "source address of the handshake flooder")(
       "handshakes-in-flight",
@@ -98,7 +101,7 @@ int ParseFlags(int argc, char** argv, Config* c) {
       "queries-in-flight", po::value(&c->queries_in_flight)->default_value(c->queries_in_flight),
       "the query flooder's calls outstanding at once")(
       "max-p99-ratio", po::value(&c->max_p99_ratio)->default_value(c->max_p99_ratio),
-      "largest attacked / unloaded p99 Locate latency that passes");
+      "largest attacked / control p99 Locate latency that passes (--attack)");
   po::variables_map vm;
   try {
     po::store(po::parse_command_line(argc, argv, desc), vm);
@@ -175,7 +178,7 @@ struct Window {
 // Every outcome, by the window in which it ended and the phase in which it started.
 class Tally {
  public:
-  explicit Tally(const Config& c) : c_(c), windows_(c.run_s() / c.window_s + 2) {}
+  explicit Tally(const Config& c) : c_(c), windows_(c.run_s() / c.window_s + 3) {}
   void Start() { start_ = Clock::now(); }
   double Elapsed(Clock::time_point t = Clock::now()) const {
     return std::chrono::duration<double>(t - start_).count();
@@ -183,7 +186,9 @@ class Tally {
   void Add(Outcome o, Clock::time_point started, double locate_ms = NAN) {
     std::lock_guard<std::mutex> lock(mu_);
     Window& w = windows_[std::min<size_t>(Elapsed() / c_.window_s, windows_.size() - 1)];
-    sightfix::soak::PhaseCalls& p = phases_[c_.attack && Elapsed(started) >= c_.seconds ? 1 : 0];
+    const int phase = PhaseOf(started);
+    sightfix::soak::PhaseCalls unphased;
+    sightfix::soak::PhaseCalls& p = phase >= 0 ? phases_[phase] : unphased;
     if (std::isfinite(locate_ms))
       w.locate_ms.push_back(locate_ms), p.locate_ms.push_back(locate_ms);
     p.calls += o != Outcome::kAbuse;
@@ -193,6 +198,8 @@ class Tally {
     if (o == Outcome::kUnexpected) ++w.unexpected, ++p.unexpected;
     if (o == Outcome::kAbuse) ++w.abuse;
   }
+  // The control phase counts calls started from now (the flooders have stopped).
+  void MarkControlStart() { control_from_s_ = Elapsed(); }
   Window window(size_t i) const {
     std::lock_guard<std::mutex> lock(mu_);
     return windows_[i];
@@ -204,11 +211,21 @@ class Tally {
   }
 
  private:
+  // With --attack: 0 unloaded, 1 attacked, 2 control; -1 between the attack's end and the
+  // control's start (the flooders stopping), in no phase.
+  int PhaseOf(Clock::time_point started) const {
+    const double s = Elapsed(started);
+    if (!c_.attack || s < c_.seconds) return 0;
+    if (s < 2 * c_.seconds) return 1;
+    return s >= control_from_s_ ? 2 : -1;
+  }
+
   const Config& c_;
   Clock::time_point start_ = Clock::now();
   mutable std::mutex mu_;
   std::vector<Window> windows_;
-  sightfix::soak::PhaseCalls phases_[2];  // with --attack: unloaded, attacked
+  std::atomic<double> control_from_s_{INFINITY};
+  sightfix::soak::PhaseCalls phases_[3];
 };
 
 // Abuse on a raw socket: garbage, a length over the cap, a frame cut short.
@@ -328,12 +345,14 @@ void PrintWindow(const Tally& tally, size_t i, const Config& c) {
   std::fflush(stdout);
 }
 
-// Runs the clock: window lines as they close, and with an attack its start at --seconds and
-// its end at twice that.
-Watch WatchServer(const Config& c, const Tally& tally, sightfix::soak::AttackPhase* attack) {
+// Runs the clock: window lines as they close, and with an attack its start at --seconds, its
+// end (and the control phase's start) at twice that, and the control's end --seconds later.
+Watch WatchServer(const Config& c, Tally* tally_out, sightfix::soak::AttackPhase* attack) {
+  const Tally& tally = *tally_out;
   Watch w;
   size_t reported = 0;
-  bool attacking = false;
+  int phase = 0;
+  double end_s = c.seconds;
   std::printf(
       "window   good  refused  shed  unexpected  abuse  locate_p50_ms  locate_p99_ms  rss_mb  "
       "fds\n");
@@ -346,16 +365,25 @@ Watch WatchServer(const Config& c, const Tally& tally, sightfix::soak::AttackPha
     if (w.rss_warm < 0 && t >= c.warmup_s) w.rss_warm = RssKb(c.pid);
     for (; reported < static_cast<size_t>(t / c.window_s) && reported < tally.windows(); ++reported)
       PrintWindow(tally, reported, c);
-    if (attack && !attacking && t >= c.seconds) {
-      attacking = true;
+    if (attack && phase == 0 && t >= c.seconds) {
+      phase = 1, end_s = 2 * c.seconds;
       const sightfix::Status s = attack->Begin();
       std::printf("-- %.0f s: the attack starts (a handshake and a query flooder)%s%s\n", t,
                   s.ok() ? "" : ": ", s.ok() ? "" : s.ToString().c_str());
       if (!s.ok()) return w.attack_failed = true, w;
+    } else if (phase == 1 && t >= end_s) {
+      const double burn = attack->BeginControl();
+      tally_out->MarkControlStart();
+      phase = 2, end_s = tally.Elapsed() + c.seconds;
+      std::printf(
+          "-- %.0f s: the attack ends; control from %.0f s: a burner takes %.2f cores "
+          "(the flooders' share), no flood\n",
+          t, tally.Elapsed(), burn);
     }
-    if (attacking) attack->Sample();
-    if (t >= c.run_s()) break;
+    if (phase == 1) attack->Sample();
+    if (t >= end_s) break;
   }
+  if (phase == 2) attack->EndControl();
   w.rss_end = RssKb(c.pid);
   return w;
 }
@@ -396,9 +424,9 @@ int Verdict(const Config& c, const Tally& tally, const Watch& w, int fds_before,
   const bool fds_ok = fds_after >= 0 && fds_after <= fds_before;
   std::string why;
   bool p99_ok = false;
-  const std::string p99 =
-      attack ? attack->Judge(tally.phase(0), tally.phase(1), resent, c.max_p99_ratio, &why)
-             : WindowP99(c, tally, &p99_ok);
+  const std::string p99 = attack ? attack->Judge(tally.phase(0), tally.phase(1), tally.phase(2),
+                                                 resent, c.max_p99_ratio, &why)
+                                 : WindowP99(c, tally, &p99_ok);
   if (attack) p99_ok = why.empty() && !w.attack_failed;
   const bool pass = !w.died && rss_ok && fds_ok && p99_ok && t.unexpected == 0;
   std::printf(
@@ -434,8 +462,7 @@ int main(int argc, char** argv) {
   std::vector<std::thread> threads;
   for (int i = 0; i < c.clients; ++i)
     threads.emplace_back([&, i] { RunClient(c, calls, i, &tally, stop, &resent); });
-  Watch w = WatchServer(c, tally, attack.get());
-  if (attack) attack->End();
+  Watch w = WatchServer(c, &tally, attack.get());
   stop = true;
   for (std::thread& th : threads) th.join();
   std::this_thread::sleep_for(std::chrono::seconds(2));  // the server closes the connections
