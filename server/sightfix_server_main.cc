@@ -50,7 +50,7 @@ po::options_description Flags(sightfix::ServiceOptions* o, size_t* cache_mb, dou
       "hours past a CRL's nextUpdate during which it is still enforced and other vehicles "
       "accepted; after that every vehicle is refused")(
       "max-handshakes", po::value(&o->max_handshakes)->default_value(o->max_handshakes),
-      "TLS handshakes in progress at once; one more connection is closed at once")(
+      "TLS handshakes in progress at once; one more connection is reset at once")(
       "max-handshakes-per-address",
       po::value(&o->max_handshakes_per_address)->default_value(o->max_handshakes_per_address),
       "TLS handshakes in progress from one source address")(
