@@ -19,15 +19,16 @@
 #   their calls failed, the flooder was answered RATE_LIMITED, the handshake limits closed and
 #   refused the flood (/metrics and the log), and the server drained.
 # --handshake-rate R: passes --handshake-rate-per-address R to a server that has it (0: off).
+# --flood-block-s S: passes --flood-block-s S to a server that has it (0: never block).
 # --no-build: use the programs already in BUILD_DIR.
 # Usage: scripts/soak.sh [--clients N] [--seconds S] [--think-ms MS] [--tls] [--attack]
-#          [--handshake-rate R] [--no-build]       (BUILD_DIR overrides ./build)
+#          [--handshake-rate R] [--flood-block-s S] [--no-build]   (BUILD_DIR overrides ./build)
 #   quick check: scripts/soak.sh --tls --attack --clients 16 --seconds 60
 # Output: one line per 30 s window and a JSON verdict, also in BUILD_DIR/soak/.
 set -euo pipefail
 root="$(cd "$(dirname "$0")/.." && pwd)"
 build="${BUILD_DIR:-$root/build}"
-clients=64 seconds=300 think_ms=8000 tls=0 attack=0 handshake_rate="" build_first=1
+clients=64 seconds=300 think_ms=8000 tls=0 attack=0 handshake_rate="" flood_block="" build_first=1
 while [ $# -gt 0 ]; do
   case "$1" in
     --clients) clients="$2"; shift 2 ;;
@@ -36,8 +37,9 @@ while [ $# -gt 0 ]; do
     --tls) tls=1; shift ;;
     --attack) attack=1 tls=1; shift ;;
     --handshake-rate) handshake_rate="$2"; shift 2 ;;
+    --flood-block-s) flood_block="$2"; shift 2 ;;
     --no-build) build_first=0; shift ;;
-    -h|--help) sed -n '2,26p' "$0" | sed 's/^# \{0,1\}//'; exit 0 ;;
+    -h|--help) sed -n '2,27p' "$0" | sed 's/^# \{0,1\}//'; exit 0 ;;
     *) echo "soak.sh: unknown option $1 (see --help)" >&2; exit 2 ;;
   esac
 done
@@ -90,6 +92,11 @@ if [ -n "$handshake_rate" ]; then
     { echo "soak: this sightfix-server has no --handshake-rate-per-address" >&2; exit 2; }
   server+=(--handshake-rate-per-address "$handshake_rate")
 fi
+if [ -n "$flood_block" ]; then
+  grep -q -- --flood-block-s <<<"$("${server[0]}" --help)" ||
+    { echo "soak: this sightfix-server has no --flood-block-s" >&2; exit 2; }
+  server+=(--flood-block-s "$flood_block")
+fi
 "${server[@]}" 2>"$out/server.log" &
 pid=$!
 trap 'kill "$pid" 2>/dev/null || true' EXIT
@@ -101,7 +108,8 @@ read -r port http_port <<<"$(serving_port "$out/server.log" "$pid" || true)"
 what="$clients clients for $seconds s"
 [ "$attack" = 1 ] && what="$what unloaded, $seconds s attacked, then $seconds s control"
 [ "$tls" = 1 ] && what="$what, TLS (a share of $share calls/s and a burst of 3 per vehicle;" &&
-  what="$what handshakes a second per address: ${handshake_rate:-as the server defaults})"
+  what="$what handshakes a second per address: ${handshake_rate:-as the server defaults};" &&
+  what="$what flood block: ${flood_block:-as the server defaults} s)"
 echo "soak: $what; server pid $pid, port $port"
 rc=0
 "$build/tests/soak_load" --server "127.0.0.1:$port" --pid "$pid" --drive "$data/town/query-day" \

@@ -50,7 +50,7 @@ po::options_description Flags(sightfix::ServiceOptions* o, size_t* cache_mb, dou
       "hours past a CRL's nextUpdate during which it is still enforced and other vehicles "
       "accepted; after that every vehicle is refused")(
       "max-handshakes", po::value(&o->max_handshakes)->default_value(o->max_handshakes),
-      "TLS handshakes in progress at once; one more connection is reset at once")(
+      "TLS handshakes in progress at once; one more connection is closed at once")(
       "max-handshakes-per-address",
       po::value(&o->max_handshakes_per_address)->default_value(o->max_handshakes_per_address),
       "TLS handshakes in progress from one source address")(
@@ -58,6 +58,9 @@ po::options_description Flags(sightfix::ServiceOptions* o, size_t* cache_mb, dou
       po::value(&o->handshake_rate_per_address)->default_value(o->handshake_rate_per_address),
       "new TLS handshakes a second from one source address (burst twice that); 0: no limit. "
       "Raise it where many vehicles share an address (NAT, a balancer)")(
+      "flood-block-s", po::value(&o->flood_block_s)->default_value(o->flood_block_s),
+      "an address refused more than four bursts' worth of handshakes within a second has its "
+      "new connections dropped by the kernel for this long (IPv4); 0: never")(
       "client-calls-per-s", po::value(&o->client_calls_per_s)->default_value(0),
       "each client's share (by certificate, else address): calls a second, beyond the burst "
       "answered RATE_LIMITED (0: no limit)")(

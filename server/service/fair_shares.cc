@@ -1,9 +1,12 @@
 // Fair shares (service.h): handshakes admitted before a client is known, and each known
 // client's calls. Everything here runs on the I/O thread: the maps need no lock.
 #include <algorithm>
+#include <cmath>
 #include <cstdio>
+#include <nlohmann/json.hpp>
 
 #include "server/service/service_impl.h"
+#include "server/service/syn_filter.h"
 #include "server/service/tls_refusal.h"
 
 namespace sightfix {
@@ -59,6 +62,7 @@ std::string Service::Impl::AdmitHandshake(const std::string& address, Clock::tim
     ++handshakes_by_address[address], ++handshakes;
     return why;
   }
+  NoteRefusal(address, now);
   Clock::time_point& logged = refusals_logged[address];
   *log = logged == Clock::time_point{} || now - logged >= kRefusalLogEvery;
   if (*log) logged = now;
@@ -77,9 +81,60 @@ bool Service::Impl::AdmitAtAccept(boost::asio::ip::tcp::socket* socket) {
   if (why.empty()) return true;
   service_internal::LogTlsRefusal(this, service_internal::TlsPort::kQuery,
                                   ec ? "?" : address + ":" + std::to_string(peer.port()), why, log);
-  socket->set_option(boost::asio::socket_base::linger(true, 0), ec);
+  socket->shutdown(boost::asio::ip::tcp::socket::shutdown_both, ec);
   socket->close(ec);
   return false;
+}
+
+void Service::Impl::NoteRefusal(const std::string& address, Clock::time_point now) {
+  if (o.flood_block_s <= 0 || blocked.count(address)) return;
+  const double rate = o.handshake_rate_per_address;
+  const int threshold =
+      4 * (rate > 0 ? static_cast<int>(std::ceil(2 * rate)) : o.max_handshakes_per_address);
+  if (refusal_counts.size() > 4096)  // bounded: a count older than its second is as good as none
+    for (auto it = refusal_counts.begin(); it != refusal_counts.end();)
+      it = now - it->second.first >= std::chrono::seconds(1) ? refusal_counts.erase(it)
+                                                             : std::next(it);
+  auto& [since, count] = refusal_counts[address];
+  if (now - since >= std::chrono::seconds(1)) since = now, count = 0;
+  if (++count <= threshold) return;
+  refusal_counts.erase(address);
+  if (blocked.size() >=
+      service_internal::kMaxSynFilterAddresses)  // the block nearest its end ends now
+    blocked.erase(std::min_element(blocked.begin(), blocked.end(),
+                                   [](auto& a, auto& b) { return a.second < b.second; }));
+  blocked[address] = now + std::chrono::seconds(o.flood_block_s);
+  ++address_blocks;
+  std::fprintf(stderr, "{\"peer\":%s,\"flood_blocked_s\":%d,\"refusals_in_a_second\":%d}\n",
+               nlohmann::json(address).dump().c_str(), o.flood_block_s, threshold + 1);
+  ApplyBlocks(now);
+}
+
+void Service::Impl::ApplyBlocks(Clock::time_point now) {
+  std::vector<std::string> addresses;
+  Clock::time_point next_end = Clock::time_point::max();
+  for (auto it = blocked.begin(); it != blocked.end();)
+    if (it->second <= now) {
+      it = blocked.erase(it);
+    } else {
+      addresses.push_back(it->first), next_end = std::min(next_end, it->second);
+      ++it;
+    }
+  addresses_blocked = static_cast<int>(addresses.size());
+  if (!syn_filter_failed && acceptor.is_open())
+    if (Status s = service_internal::SetSynFilter(acceptor.native_handle(), addresses); !s.ok()) {
+      syn_filter_failed = true;
+      std::fprintf(stderr, "{\"warning\":%s}\n",
+                   nlohmann::json("flooding addresses cannot be blocked in the kernel (" +
+                                  s.message() + "); they are refused at accept")
+                       .dump()
+                       .c_str());
+    }
+  if (addresses.empty()) return;
+  block_timer.expires_at(next_end);
+  block_timer.async_wait([this](const boost::system::error_code& ec) {
+    if (!ec) ApplyBlocks(Clock::now());
+  });
 }
 
 void Service::Impl::HandshakeDone(const std::string& address) {

@@ -151,6 +151,8 @@ class HttpSession : public std::enable_shared_from_this<HttpSession> {
     g.tls_refused = static_cast<long>(svc_->tls_refused.load());
     g.tls_resumed = static_cast<long>(svc_->tls_resumed.load());
     g.crl_next_update = svc_->crl_next_update.load();
+    g.addresses_blocked = svc_->addresses_blocked.load();
+    g.address_blocks = static_cast<long>(svc_->address_blocks.load());
     g.tiles_cached = loc->tiles_cached();
     g.tiles_bad = static_cast<int>(loc->TileProblems().size());
     g.map_version = loc->catalog().map_version;

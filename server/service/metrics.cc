@@ -82,6 +82,12 @@ std::string Metrics::Text(const Gauges& g) const {
   t += "# HELP sightfix_tls_resumed_total TLS handshakes that resumed a session.\n"
        "# TYPE sightfix_tls_resumed_total counter\nsightfix_tls_resumed_total " +
        std::to_string(g.tls_resumed) + "\n";
+  gauge("sightfix_addresses_blocked",
+        "Source addresses whose new connections are dropped for flooding (--flood-block-s).",
+        g.addresses_blocked);
+  t += "# HELP sightfix_address_blocks_total Times a flooding source address was blocked.\n"
+       "# TYPE sightfix_address_blocks_total counter\nsightfix_address_blocks_total " +
+       std::to_string(g.address_blocks) + "\n";
   if (g.crl_next_update > 0)
     gauge("sightfix_tls_crl_next_update_seconds",
           "Earliest nextUpdate of the client CRLs, Unix seconds (renew before it).",

@@ -29,6 +29,8 @@ class Metrics {
     long tls_refused = 0;         // connections refused in the TLS handshake, since start
     long tls_resumed = 0;         // TLS handshakes that resumed a session, since start
     int64_t crl_next_update = 0;  // Unix seconds (0: no CRL)
+    int addresses_blocked = 0;    // source addresses whose new connections the kernel drops
+    long address_blocks = 0;      // such blocks since start
   };
 
   // One answered call; `seconds` from receipt to answer (only Locate's feed the histogram).

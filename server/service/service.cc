@@ -101,6 +101,7 @@ bool ServiceOptions::Validate(std::string* error) const {
   if (tls_crl_grace_s < 0) return fail("the CRL grace must be >= 0 seconds");
   if (!(handshake_rate_per_address >= 0))
     return fail("handshake_rate_per_address must be >= 0 (0: no limit)");
+  if (flood_block_s < 0) return fail("flood_block_s must be >= 0 (0: no blocking)");
   if (max_connection_age_s < 0) return fail("max_connection_age_s must be >= 0 (0: no limit)");
   std::string e;
   if (!engine.Validate(&e)) return fail("engine: " + e);
@@ -229,6 +230,7 @@ void Service::Impl::BeginDrain() {
   acceptor.close(ec);
   http_acceptor.close(ec);
   signals.cancel(ec);
+  block_timer.cancel();
   CheckDrained();
 }
 

@@ -86,9 +86,15 @@ struct ServiceOptions {
   // from one address would otherwise slow every other client's calls). 0: no pacing. Many
   // vehicles behind one NAT, or a balancer that does not pass addresses on, share one address:
   // raise both per-address limits there.
+  // An address refused more than four times its burst (of paced handshakes; without pacing,
+  // of handshakes in progress) within one second floods: for flood_block_s seconds the kernel
+  // drops its new connections' SYNs before the server sees them (syn_filter.h; IPv4 sources,
+  // at most 200 at once). A flood answered by refusals comes back as fast as it is refused;
+  // one whose SYNs go unanswered waits on its own retransmission timers. 0: no blocking.
   int max_handshakes = 64;
   int max_handshakes_per_address = 8;
   double handshake_rate_per_address = 20;
+  int flood_block_s = 10;
   double client_calls_per_s = 0;
   int client_burst = 20;
   // A connection older than this is retired: calls arriving on it are answered UNAVAILABLE

@@ -94,15 +94,30 @@ struct Service::Impl {
   };
   std::map<std::string, Bucket> handshake_buckets, buckets;
   std::map<std::string, Clock::time_point> refusals_logged;
+  // Flooding addresses (ServiceOptions::flood_block_s): refusals by address in the second
+  // that began at the time kept; the addresses whose SYNs the query port's filter drops, and
+  // until when; the timer that lifts the next block to end.
+  std::map<std::string, std::pair<Clock::time_point, int>> refusal_counts;
+  std::map<std::string, Clock::time_point> blocked;
+  boost::asio::steady_timer block_timer{io};
+  bool syn_filter_failed = false;  // logged once; refusals at accept go on without it
+  std::atomic<int> addresses_blocked{0};
+  std::atomic<uint64_t> address_blocks{0};  // since start
   // Before any TLS work on a connection from `address`: "" when it may shake hands (counted
   // in handshakes until HandshakeDone), else why not; *log tells whether to log this refusal
   // (the first from the address in 10 s: a flood is not logged line by line).
   std::string AdmitHandshake(const std::string& address, Clock::time_point now, bool* log);
   void HandshakeDone(const std::string& address);
   // AdmitHandshake on an accepted socket, before a session is made for it: false when refused,
-  // the refusal logged (as AdmitHandshake says) and the socket reset (nothing was sent, so a
-  // reset loses nothing and leaves no TIME_WAIT behind, which a flood would pile up).
+  // the refusal logged (as AdmitHandshake says) and the socket closed. Closed, not reset: a
+  // reset that reaches the client before its connect is reported fails the connect, which the
+  // client library does not retry, where a closed handshake is retried.
   bool AdmitAtAccept(boost::asio::ip::tcp::socket* socket);
+  // Counts a refusal of `address`; past the flood threshold, blocks it (ApplyBlocks).
+  void NoteRefusal(const std::string& address, Clock::time_point now);
+  // Lifts the blocks that have ended, sets the query port's SYN filter to the rest and arms
+  // block_timer for the next to end.
+  void ApplyBlocks(Clock::time_point now);
   // True when `client` may make one more call now (takes a token); else *wait_s is the time
   // until it may.
   bool TakeShare(const std::string& client, Clock::time_point now, double* wait_s);

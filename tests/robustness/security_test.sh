@@ -28,6 +28,10 @@ grep -q -- "--listen arg (=127.0.0.1:7411)" "$tmp/help.txt" && grep -q -- "--htt
 "$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http 0.0.0.0:0 >"$tmp/open2.txt" 2>&1; rc=$?
 [ $rc -eq 2 ] && ok "an HTTP port off loopback: refused (exit 2)" || bad "open http (exit $rc)"
 
+"$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http "" --flood-block-s -1 >"$tmp/flood.txt" 2>&1; rc=$?
+[ $rc -eq 2 ] && grep -q "flood_block_s must be >= 0" "$tmp/flood.txt" &&
+  ok "a negative --flood-block-s is refused" || bad "flood block (exit $rc): $(cat "$tmp/flood.txt")"
+
 echo "short" >"$tmp/short.token"
 "$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http "" --token-file "$tmp/short.token" >"$tmp/short.txt" 2>&1; rc=$?
 [ $rc -eq 2 ] && grep -q "shorter than 16" "$tmp/short.txt" &&

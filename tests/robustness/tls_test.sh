@@ -13,7 +13,7 @@
 # a CA without a CRL or an unreadable one stops the server at start; SIGHUP rereads the CRL,
 # closes the live connection of a newly revoked vehicle and keeps the last good CRL when the
 # new one is bad; /metrics exposes the CRL's nextUpdate. Fair shares: a handshake beyond the
-# per-address limit is reset at once, and the client library retries until served. The HTTP
+# per-address limit is closed at once, and the client library retries until served. The HTTP
 # port: plaintext on loopback; beyond loopback under TLS, curl with a client certificate gets
 # /healthz and /metrics, and no certificate, another CA's, a revoked one, TLS 1.2, plaintext and
 # a stalled handshake are refused, logged and counted; SIGHUP rereads its CRL; a monitoring CA
@@ -247,7 +247,7 @@ grep -q '"tls_refused":"certificate verify failed: CRL has expired"' "$tmp/stale
 kill -TERM "$server_pid"; wait "$server_pid"; server_pid=""
 
 # Fair shares before the client is known: one handshake in progress per address. A stalled
-# handshake holds the slot; a client arriving meanwhile is reset at once and retries with
+# handshake holds the slot; a client arriving meanwhile is closed at once and retries with
 # backoff until the slot frees (the stall cut off, here by closing it after a second).
 "$server_bin" --map "$data/map" --listen 127.0.0.1:0 --http "" --workers 1 \
   --max-handshakes-per-address 1 --tls-cert "$pki/localhost.crt" --tls-key "$pki/localhost.key" \
@@ -263,7 +263,7 @@ exec 3<&-
 wait "$waiter" && grep -q "map version" "$tmp/waited.txt" &&
   grep -q '"tls_refused":"too many handshakes in progress (1 in all, 1 from this address)"' \
     "$tmp/shares.log" &&
-  ok "a handshake beyond the per-address limit is reset at once; the client retries and is served" ||
+  ok "a handshake beyond the per-address limit is closed at once; the client retries and is served" ||
   bad "handshake limit: $(cat "$tmp/waited.txt"; grep tls_refused "$tmp/shares.log" | head -2)"
 kill -TERM "$server_pid"; wait "$server_pid"; server_pid=""
 

@@ -335,5 +335,42 @@ TEST_F(ServiceTest, HandshakesArePacedPerAddress) {
   EXPECT_TRUE(Client::Connect(co).ok());
 }
 
+// True when a TCP connection from `source` to the server's port completes within timeout_ms.
+bool TcpConnects(const std::string& source, int port, int timeout_ms) {
+  asio::io_context io;
+  tcp::socket s(io);
+  s.open(tcp::v4());
+  s.bind({asio::ip::make_address(source), 0});
+  bool connected = false;
+  s.async_connect({asio::ip::make_address("127.0.0.1"), static_cast<unsigned short>(port)},
+                  [&](const boost::system::error_code& ec) { connected = !ec; });
+  io.run_for(std::chrono::milliseconds(timeout_ms));
+  return connected;
+}
+
+// An address refused more than four bursts' worth within a second floods: the kernel then
+// drops its SYNs (its connects go unanswered), other addresses are served, and after
+// flood_block_s it may connect again. The kernel completes connects before the server accepts
+// them, so the flood's first connects all complete; the block follows the server's refusals.
+TEST_F(ServiceTest, AFloodingAddressIsDroppedByTheKernel) {
+  const std::string pki = MakePki("service_flood", {"ca", kServerStep, "vehicle vehicle-1"});
+  ServiceOptions o = TlsService(pki, false);
+  o.handshake_rate_per_address = 1;  // a burst of 2: blocked past 8 refusals in a second
+  o.flood_block_s = 3;
+  ASSERT_TRUE(Start(o));
+  const int port = service_->port();
+  for (int k = 0; k < 12; ++k) TcpConnects("127.0.0.2", port, 200);  // the last may be dropped
+  bool blocked = false;
+  const auto flood_end = std::chrono::steady_clock::now();
+  while (!blocked && std::chrono::steady_clock::now() - flood_end < std::chrono::seconds(2))
+    blocked = !TcpConnects("127.0.0.2", port, 200);
+  ASSERT_TRUE(blocked) << "a flooding address was never blocked";
+  const auto blocked_by = std::chrono::steady_clock::now();  // the block began before this
+  EXPECT_TRUE(TcpConnects("127.0.0.1", port, 300)) << "another address was blocked too";
+  EXPECT_TRUE(Client::Connect(TlsClient(pki, port, "vehicle-1")).ok());
+  std::this_thread::sleep_until(blocked_by + std::chrono::milliseconds(3300));
+  EXPECT_TRUE(TcpConnects("127.0.0.2", port, 1000)) << "the block did not end";
+}
+
 }  // namespace
 }  // namespace sightfix
