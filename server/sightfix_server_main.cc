@@ -60,7 +60,7 @@ po::options_description Flags(sightfix::ServiceOptions* o, size_t* cache_mb, dou
       "Raise it where many vehicles share an address (NAT, a balancer)")(
       "flood-block-s", po::value(&o->flood_block_s)->default_value(o->flood_block_s),
       "an address refused more than four bursts' worth of handshakes within a second has its "
-      "new connections dropped by the kernel for this long (IPv4); 0: never")(
+      "new connections dropped by the kernel for this long; 0: never")(
       "client-calls-per-s", po::value(&o->client_calls_per_s)->default_value(0),
       "each client's share (by certificate, else address): calls a second, beyond the burst "
       "answered RATE_LIMITED (0: no limit)")(

@@ -88,9 +88,9 @@ struct ServiceOptions {
   // raise both per-address limits there.
   // An address refused more than four times its burst (of paced handshakes; without pacing,
   // of handshakes in progress) within one second floods: for flood_block_s seconds the kernel
-  // drops its new connections' SYNs before the server sees them (syn_filter.h; IPv4 sources,
-  // at most 200 at once). A flood answered by refusals comes back as fast as it is refused;
-  // one whose SYNs go unanswered waits on its own retransmission timers. 0: no blocking.
+  // drops its new connections' SYNs before the server sees them (syn_filter.h; at most 200
+  // addresses at once, of them 30 IPv6). A flood answered by refusals comes back as fast as it is
+  // refused; one whose SYNs go unanswered waits on its own retransmission timers. 0: no blocking.
   int max_handshakes = 64;
   int max_handshakes_per_address = 8;
   double handshake_rate_per_address = 20;

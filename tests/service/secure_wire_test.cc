@@ -335,23 +335,34 @@ TEST_F(ServiceTest, HandshakesArePacedPerAddress) {
   EXPECT_TRUE(Client::Connect(co).ok());
 }
 
-// True when a TCP connection from `source` to the server's port completes within timeout_ms.
-bool TcpConnects(const std::string& source, int port, int timeout_ms) {
+// True when a TCP connection from `source` to `target`:port completes within timeout_ms.
+bool TcpConnects(const std::string& source, int port, int timeout_ms,
+                 const std::string& target = "127.0.0.1") {
   asio::io_context io;
   tcp::socket s(io);
-  s.open(tcp::v4());
+  const tcp::endpoint to{asio::ip::make_address(target), static_cast<unsigned short>(port)};
+  s.open(to.protocol());
   s.bind({asio::ip::make_address(source), 0});
   bool connected = false;
-  s.async_connect({asio::ip::make_address("127.0.0.1"), static_cast<unsigned short>(port)},
-                  [&](const boost::system::error_code& ec) { connected = !ec; });
+  s.async_connect(to, [&](const boost::system::error_code& ec) { connected = !ec; });
   io.run_for(std::chrono::milliseconds(timeout_ms));
   return connected;
 }
 
+// Floods the port with connections from `source` until one goes unanswered (its SYN dropped),
+// for at most 2 s after a first burst of 12. The kernel completes connects before the server
+// accepts them, so the burst's connects all complete; the block follows the server's refusals.
+bool FloodUntilBlocked(const std::string& source, int port, const std::string& target) {
+  for (int k = 0; k < 12; ++k) TcpConnects(source, port, 200, target);  // the last may be dropped
+  const auto burst_end = std::chrono::steady_clock::now();
+  while (std::chrono::steady_clock::now() - burst_end < std::chrono::seconds(2))
+    if (!TcpConnects(source, port, 200, target)) return true;
+  return false;
+}
+
 // An address refused more than four bursts' worth within a second floods: the kernel then
 // drops its SYNs (its connects go unanswered), other addresses are served, and after
-// flood_block_s it may connect again. The kernel completes connects before the server accepts
-// them, so the flood's first connects all complete; the block follows the server's refusals.
+// flood_block_s it may connect again.
 TEST_F(ServiceTest, AFloodingAddressIsDroppedByTheKernel) {
   const std::string pki = MakePki("service_flood", {"ca", kServerStep, "vehicle vehicle-1"});
   ServiceOptions o = TlsService(pki, false);
@@ -359,17 +370,39 @@ TEST_F(ServiceTest, AFloodingAddressIsDroppedByTheKernel) {
   o.flood_block_s = 3;
   ASSERT_TRUE(Start(o));
   const int port = service_->port();
-  for (int k = 0; k < 12; ++k) TcpConnects("127.0.0.2", port, 200);  // the last may be dropped
-  bool blocked = false;
-  const auto flood_end = std::chrono::steady_clock::now();
-  while (!blocked && std::chrono::steady_clock::now() - flood_end < std::chrono::seconds(2))
-    blocked = !TcpConnects("127.0.0.2", port, 200);
-  ASSERT_TRUE(blocked) << "a flooding address was never blocked";
+  ASSERT_TRUE(FloodUntilBlocked("127.0.0.2", port, "127.0.0.1"))
+      << "a flooding address was never blocked";
   const auto blocked_by = std::chrono::steady_clock::now();  // the block began before this
   EXPECT_TRUE(TcpConnects("127.0.0.1", port, 300)) << "another address was blocked too";
   EXPECT_TRUE(Client::Connect(TlsClient(pki, port, "vehicle-1")).ok());
   std::this_thread::sleep_until(blocked_by + std::chrono::milliseconds(3300));
   EXPECT_TRUE(TcpConnects("127.0.0.2", port, 1000)) << "the block did not end";
+}
+
+// On a dual-stack port an IPv4 peer is named by its v4-mapped IPv6 address, and its packets are
+// IPv4: the block must match them so. A flood from an IPv6 address is dropped too.
+TEST_F(ServiceTest, FloodsAreDroppedOnDualStackAndIpv6Ports) {
+  {
+    boost::system::error_code ec;
+    asio::io_context io;
+    tcp::socket probe(io);
+    probe.open(tcp::v6(), ec);
+    if (!ec) probe.bind({asio::ip::make_address("::1"), 0}, ec);
+    if (ec) GTEST_SKIP() << "no IPv6 loopback on this machine: " << ec.message();
+  }
+  const std::string pki = MakePki("service_flood6", {"ca", kServerStep, "vehicle vehicle-1"});
+  ServiceOptions o = TlsService(pki, false);
+  o.handshake_rate_per_address = 1;
+  o.flood_block_s = 3;
+  ASSERT_TRUE(Start(o, "[::]:0"));
+  EXPECT_TRUE(FloodUntilBlocked("127.0.0.2", service_->port(), "127.0.0.1"))
+      << "an IPv4 flood on a dual-stack port was never blocked";
+  EXPECT_TRUE(TcpConnects("127.0.0.1", service_->port(), 300)) << "another address was blocked";
+  EXPECT_TRUE(TcpConnects("::1", service_->port(), 300, "::1")) << "an IPv6 peer was blocked";
+  service_->Shutdown(), runner_.join(), service_.reset();
+  ASSERT_TRUE(Start(o, "[::1]:0"));
+  EXPECT_TRUE(FloodUntilBlocked("::1", service_->port(), "::1"))
+      << "an IPv6 flood was never blocked";
 }
 
 }  // namespace

@@ -39,9 +39,9 @@ inline std::string ReadFile(const std::string& path) {
 class ServiceTest : public ::testing::Test {
  protected:
   // False (with the reason) when the fixture's map is missing or the service cannot start.
-  bool Start(ServiceOptions o) {
+  bool Start(ServiceOptions o, const std::string& listen = "127.0.0.1:0") {
     if (o.map_dir.empty()) o.map_dir = DataDir() + "/map";
-    o.listen = "127.0.0.1:0";
+    o.listen = listen;
     o.http = "127.0.0.1:0";
     auto s = Service::Create(o);
     EXPECT_TRUE(s.ok()) << s.status().ToString() << " (run the service_map fixture first)";
