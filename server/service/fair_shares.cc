@@ -99,8 +99,8 @@ void Service::Impl::NoteRefusal(const std::string& address, Clock::time_point no
   if (now - since >= std::chrono::seconds(1)) since = now, count = 0;
   if (++count <= threshold) return;
   refusal_counts.erase(address);
-  if (blocked.size() >=
-      service_internal::kMaxSynFilterAddresses)  // the block nearest its end ends now
+  // Bounded as the filter is: the block nearest its end ends now.
+  if (blocked.size() >= service_internal::kMaxSynFilterAddresses)
     blocked.erase(std::min_element(blocked.begin(), blocked.end(),
                                    [](auto& a, auto& b) { return a.second < b.second; }));
   blocked[address] = now + std::chrono::seconds(o.flood_block_s);

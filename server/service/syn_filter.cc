@@ -14,7 +14,7 @@ namespace {
 // A jump target: an instruction's index once the program is laid out.
 enum Label { kNext, kPass4, kDrop4, kV6, kPass6, kDrop6, kLabels };
 
-// One instruction with symbolic jump targets; `next` names the block after a v6 address.
+// One instruction with symbolic jump targets.
 struct Line {
   uint16_t code;
   uint32_t k;
