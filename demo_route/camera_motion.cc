@@ -51,12 +51,18 @@ cv::Point2d ProjectFast(const CameraModel& camera, const cv::Vec3d& p) {
 
 // Displacement of the point on `ray` (x, y, 1) with inverse depth w: Project(rt (ray - w shift))
 // minus `base` = Project(ray) (a homogeneous point, so the sky, w = 0, only turns). False
-// behind the camera.
+// behind the camera. A point that passes close to the camera's plane projects arbitrarily far
+// (x / z with z near 0): its displacement is cut to the image's diagonal, by which it has left
+// the view (uncut, one such pixel asked the blur for a 694 GB structuring element).
 bool Displace(const CameraModel& camera, const MovedCamera& c, const cv::Vec3d& ray, double w,
               const cv::Point2d& base, cv::Point2d* d) {
   const cv::Vec3d p = c.rt * (ray - w * c.shift);
   if (p[2] <= 1e-3 * cv::norm(p)) return false;
   *d = ProjectFast(camera, p) - base;
+  const double length = std::hypot(d->x, d->y);
+  const double diagonal = std::hypot(camera.width_px, camera.height_px);
+  if (!std::isfinite(length)) return false;
+  if (length > diagonal) *d *= diagonal / length;
   return true;
 }
 

@@ -57,7 +57,8 @@ cv::Mat2f NormalizedCoordinates(const CameraModel& camera);
 
 // The image displacement D(tau) of the point seen at pixel (x, y) with inverse depth
 // inverse_depth_per_m (1/Z, 0 for the sky), for the camera model `camera` (lens distortion
-// included). False when the moved point is behind the camera (or within 1 mm of its plane).
+// included). False when the moved point is behind the camera (or within 1 mm of its plane);
+// a displacement longer than the image's diagonal is cut to it, direction kept.
 bool ImageDisplacement(const CameraModel& camera, const CameraMotion& motion, cv::Point2d pixel,
                        double inverse_depth_per_m, double tau_s, cv::Point2d* displacement);
 

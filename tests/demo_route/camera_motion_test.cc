@@ -197,6 +197,28 @@ TEST(CameraMotionTest, ForwardFlowIsRadialFromTheFocusOfExpansion) {
   EXPECT_NEAR(cv::norm(d), cv::norm(r) * 9 * tau / z, 0.005 * cv::norm(d));
 }
 
+// A point 1 m ahead at the image's edge, the camera moving 0.999 m forward: the moved point lies
+// almost in the camera's plane and projects some 640 000 px away (x / z = 0.64 / 0.001). Its
+// displacement is cut to the image's diagonal, direction kept, and blurring an image holding
+// such a pixel finishes (uncut, the blur's reach asked for a 694 GB structuring element).
+TEST(CameraMotionTest, APointGrazingTheCameraPlaneMovesAtMostTheDiagonal) {
+  const CameraModel camera = TestCamera();
+  CameraMotion motion;
+  motion.velocity_mps = {0, 0, 99.9};
+  const double diagonal = std::hypot(camera.width_px, camera.height_px);
+  const cv::Point2d edge(camera.width_px - 1, camera.cy);
+  cv::Point2d d;
+  ASSERT_TRUE(ImageDisplacement(camera, motion, edge, 1.0, 0.01, &d));
+  EXPECT_NEAR(cv::norm(d), diagonal, 1e-6 * diagonal);
+  EXPECT_GT(d.x, 0);  // outward, away from the focus of expansion
+  EXPECT_NEAR(d.y, 0, 1e-6);
+  cv::Mat image(camera.height_px, camera.width_px, CV_32FC3, cv::Scalar::all(0.5));
+  cv::Mat inverse_depth(camera.height_px, camera.width_px, CV_32F, cv::Scalar(0.05f));
+  inverse_depth.at<float>(static_cast<int>(edge.y), static_cast<int>(edge.x)) = 1.0f;
+  const cv::Mat out = ApplyCameraMotion(image, inverse_depth, camera, motion, 0.02, 0.0);
+  EXPECT_EQ(out.size(), image.size());
+}
+
 // The drive's motion in the camera frame: heading north at 9 m/s, turning right (heading up by
 // 10 degrees in 0.1 s): the camera moves forward, and a point straight ahead moves left by
 // f w tau (w = 1.745 rad/s).
