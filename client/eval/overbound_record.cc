@@ -14,13 +14,23 @@ Result<DriveOverbound> FitDriveOverbound(const std::vector<QueryResult>& results
   DriveOverbound out;
   out.errors = NormaliseErrors(results, o.wrong_m);
   const int usable = out.errors.fixes - out.errors.excluded - out.errors.faults;
-  if (usable < kMinOverboundFixes)
+  if (usable < kMinOverboundFixes) {
+    // Queries that failed outright (an image missing or unreadable, a refused call) say more
+    // than "a longer drive": name how many and the first reason.
+    size_t failed = 0;
+    const QueryResult* first = nullptr;
+    for (const QueryResult& r : results)
+      if (!r.error.empty()) first = first ? first : &r, ++failed;
+    const std::string why = failed == 0 ? " (a longer drive, or a map that covers it)"
+                                        : "; " + std::to_string(failed) + " of " +
+                                              std::to_string(results.size()) +
+                                              " queries failed, the first: " + first->error;
     return Status{StatusCode::kFailedPrecondition,
                   "only " + std::to_string(usable) + " refined fixes within " +
                       FormatNumber("%g", o.wrong_m) +
                       " m of the truth and no group's fault: a fit needs at least " +
-                      std::to_string(kMinOverboundFixes) +
-                      " (a longer drive, or a map that covers it)"};
+                      std::to_string(kMinOverboundFixes) + why};
+  }
   Result<OverboundFit> k = FitOverbound(out.errors.z, o.confidence);
   if (!k.ok()) return k.status();
   Result<std::string> sha = Sha256OfFile(drive_dir + "/drive.csv");

@@ -39,6 +39,9 @@ expect "--wrong-m 0 refused" 2 "wrong-m must be" -- \
   "$cli" fit-integrity --map "$map" --drive "$town/query-day" --wrong-m 0
 expect "too few fixes refused" 1 "a fit needs at least 20" -- \
   "$cli" fit-integrity --map "$map" --drive "$town/query-day" --limit 8
+mkdir -p "$tmp/no-images" && cp "$town/query-day/drive.csv" "$town/query-day/camera.yml" "$tmp/no-images/"
+expect "a drive without its images: the failed queries named" 1 "queries failed, the first: .*cannot read" -- \
+  "$cli" fit-integrity --map "$map" --drive "$tmp/no-images" --limit 30
 "$py" -c 'import fcntl, sys, time
 f = open(sys.argv[1], "a"); fcntl.flock(f, fcntl.LOCK_EX); print("held", flush=True); time.sleep(60)' \
   "$map/.writer.lock" >"$tmp/lock.out" &
