@@ -19,16 +19,22 @@ using Buckets = std::map<std::string, Service::Impl::Bucket>;
 // flood would otherwise write a log line per connection.
 constexpr auto kRefusalLogEvery = std::chrono::seconds(10);
 
+// The maps kept per address or client are bounded: past 4 096 entries, those `stale` says are
+// as good as none (a full bucket, an old log time, a count from an earlier second) are dropped.
+template <typename Map, typename Stale>
+void Sweep(Map* m, Stale stale) {
+  if (m->size() <= 4096) return;
+  for (auto it = m->begin(); it != m->end();) it = stale(it->second) ? m->erase(it) : std::next(it);
+}
+
 // Takes one token from `key`'s bucket (rate tokens a second, `burst` at most, full at first);
 // when there is none, *wait_s (if given) is the time until there is one. The map is bounded: a
 // bucket full again is as good as none, so those are swept when it grows.
 bool TakeToken(Buckets* buckets, const std::string& key, double rate, double burst,
                Clock::time_point now, double* wait_s = nullptr) {
-  if (buckets->size() > 4096)
-    for (auto it = buckets->begin(); it != buckets->end();)
-      it = std::chrono::duration<double>(now - it->second.last).count() * rate >= burst
-               ? buckets->erase(it)
-               : std::next(it);
+  Sweep(buckets, [&](const Service::Impl::Bucket& b) {
+    return std::chrono::duration<double>(now - b.last).count() * rate >= burst;
+  });
   auto [it, fresh] = buckets->try_emplace(key, Service::Impl::Bucket{burst, now});
   Service::Impl::Bucket& b = it->second;
   if (!fresh) {
@@ -66,9 +72,7 @@ std::string Service::Impl::AdmitHandshake(const std::string& address, Clock::tim
   Clock::time_point& logged = refusals_logged[address];
   *log = logged == Clock::time_point{} || now - logged >= kRefusalLogEvery;
   if (*log) logged = now;
-  if (refusals_logged.size() > 4096)  // bounded as the buckets are
-    for (auto it = refusals_logged.begin(); it != refusals_logged.end();)
-      it = now - it->second >= kRefusalLogEvery ? refusals_logged.erase(it) : std::next(it);
+  Sweep(&refusals_logged, [&](Clock::time_point t) { return now - t >= kRefusalLogEvery; });
   return why;
 }
 
@@ -91,10 +95,9 @@ void Service::Impl::NoteRefusal(const std::string& address, Clock::time_point no
   const double rate = o.handshake_rate_per_address;
   const int threshold =
       4 * (rate > 0 ? static_cast<int>(std::ceil(2 * rate)) : o.max_handshakes_per_address);
-  if (refusal_counts.size() > 4096)  // bounded: a count older than its second is as good as none
-    for (auto it = refusal_counts.begin(); it != refusal_counts.end();)
-      it = now - it->second.first >= std::chrono::seconds(1) ? refusal_counts.erase(it)
-                                                             : std::next(it);
+  Sweep(&refusal_counts, [&](const std::pair<Clock::time_point, int>& c) {
+    return now - c.first >= std::chrono::seconds(1);
+  });
   auto& [since, count] = refusal_counts[address];
   if (now - since >= std::chrono::seconds(1)) since = now, count = 0;
   if (++count <= threshold) return;
